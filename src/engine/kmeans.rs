@@ -1,0 +1,608 @@
+//! k-means by Lloyd's iterations, from greedy k-means++ or random-partition
+//! starts, best of several restarts run in parallel.
+//!
+//! # References
+//! - S. Lloyd, "Least squares quantization in PCM", IEEE Transactions on
+//!   Information Theory 28(2), 1982: the assign / re-centre iteration.
+//! - D. Arthur and S. Vassilvitskii, "k-means++: the advantages of careful
+//!   seeding", SODA 2007: seeding by squared-distance sampling. We use the
+//!   greedy variant the paper's experiments mention: at each step
+//!   `2 + floor(ln k)` candidates are drawn and the one that lowers the
+//!   potential most is kept (analysed by Grunau, Özüdoğru, Rozhoň and Tětek,
+//!   "A nearly tight analysis of greedy k-means++", SODA 2023).
+//! - Random partition: every record gets a uniformly drawn segment and the
+//!   first centres are the segment means (E. Forgy's and R. Jancey's early
+//!   variants of the method start this way; common practice).
+//!
+//! # Complexity
+//! Each round is O(n k d) time; seeding is O(n k d log k). Memory is O(n + k d)
+//! per restart beyond the data; restarts run in parallel, each on its own
+//! thread-local buffers.
+//!
+//! # Determinism and ties
+//! Restart `r` for a given `k` draws from stream `(k << 32) | r` of the seeded
+//! generator ([`super::rng`]), so its result does not depend on which thread
+//! runs it. A record goes to the nearest centre, ties to the lowest centre
+//! number. The best restart has the lowest within-cluster sum of squares,
+//! ties to the lowest restart number. Sums run in record order.
+//!
+//! # Empty clusters
+//! When a centre loses all its records, it is moved onto the record farthest
+//! from its own centre among those whose segment has more than one record
+//! (ties to the lowest record index); several empty centres are refilled in
+//! ascending order, each taking the next farthest record.
+//!
+//! # Stopping
+//! Iterations stop when no record changes segment, when the summed squared
+//! movement of the centres falls to `tolerance` times the mean squared
+//! distance of the records to their grand mean, or after `max_rounds`
+//! rounds. The result always ends with an assignment step, so every record
+//! is labelled with its nearest final centre and the within-cluster sum of
+//! squares is measured against those centres.
+//!
+//! # Output convention
+//! Segments are numbered canonically: 0..k by decreasing size, ties to the
+//! segment holding the lowest record index. Two runs that find the same
+//! partition therefore give the same numbers, whatever the restart.
+
+use super::{dist2, rng::Stream, EngineError};
+use ndarray::{Array2, ArrayView2};
+use rayon::prelude::*;
+use serde::Serialize;
+
+/// How restarts choose their first centres.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+#[non_exhaustive]
+pub enum Seeding {
+    /// Greedy k-means++ (the default).
+    KMeansPlusPlus,
+    /// Uniformly random segments, centres at their means.
+    RandomPartition,
+}
+
+impl Seeding {
+    pub const NAMES: [&'static str; 2] = ["kmeans++", "random-partition"];
+
+    pub fn parse(word: &str) -> Option<Seeding> {
+        match word {
+            "kmeans++" => Some(Seeding::KMeansPlusPlus),
+            "random-partition" => Some(Seeding::RandomPartition),
+            _ => None,
+        }
+    }
+}
+
+/// Settings for one value of k. The caller (the checker) has validated
+/// them: `k >= 1`, `restarts >= 1`, `max_rounds >= 1`, `tolerance >= 0`.
+#[derive(Debug, Clone)]
+pub struct KMeansSettings {
+    pub k: usize,
+    pub restarts: usize,
+    pub max_rounds: usize,
+    pub tolerance: f64,
+    pub seeding: Seeding,
+    pub seed: u64,
+}
+
+/// The best of the restarts, canonically numbered.
+#[derive(Debug, Clone)]
+pub struct KMeansFit {
+    pub k: usize,
+    /// Segment of each record, 0-based canonical numbers.
+    pub labels: Vec<u32>,
+    /// k by d, row `j` is the centre of segment `j`.
+    pub centroids: Array2<f64>,
+    /// Within-cluster sum of squared distances.
+    pub inertia: f64,
+    /// Rounds the best restart took.
+    pub rounds: usize,
+    /// Whether the best restart stopped before `max_rounds`.
+    pub converged: bool,
+    /// 0-based number of the restart that found the best.
+    pub best_restart: usize,
+    /// How many restarts reached the same partition as the best.
+    pub restarts_at_best: usize,
+    pub restarts: usize,
+}
+
+/// Records above which one restart's assignment step is split across
+/// threads. Below it, parallel restarts already keep the cores busy.
+const PARALLEL_ASSIGN_MIN: usize = 16_384;
+
+/// Fits k-means: `settings.restarts` restarts, the best kept.
+pub fn kmeans(
+    data: ArrayView2<'_, f64>,
+    settings: &KMeansSettings,
+) -> Result<KMeansFit, EngineError> {
+    let (n, d) = data.dim();
+    let k = settings.k;
+    if k == 0 {
+        return Err(EngineError::BadK { k });
+    }
+    if d == 0 {
+        return Err(EngineError::NoFeatures);
+    }
+    if k > n {
+        return Err(EngineError::TooFewRecords { k, n });
+    }
+    let owned;
+    let x: &[f64] = match data.as_slice() {
+        Some(s) => s,
+        None => {
+            owned = data.iter().copied().collect::<Vec<f64>>();
+            &owned
+        }
+    };
+    let problem = Problem::new(x, n, d, settings);
+
+    // Each restart is summarised; only the best is kept in full, by running
+    // it again (it is deterministic), so memory stays O(n) per thread.
+    let summaries: Vec<(f64, u64)> = (0..settings.restarts)
+        .into_par_iter()
+        .map(|r| {
+            let run = problem.restart(r);
+            let labels = canonical(&run.labels, k).0;
+            (run.inertia, partition_hash(&labels))
+        })
+        .collect();
+    let mut best = 0;
+    for (r, s) in summaries.iter().enumerate() {
+        if s.0 < summaries[best].0 {
+            best = r;
+        }
+    }
+    let best_hash = summaries[best].1;
+    let restarts_at_best = summaries.iter().filter(|s| s.1 == best_hash).count();
+
+    let run = problem.restart(best);
+    if has_empty(&run.labels, k) {
+        return Err(EngineError::TooFewDistinct { k });
+    }
+    let (labels, order) = canonical(&run.labels, k);
+    let mut centroids = Array2::zeros((k, d));
+    for (new, &old) in order.iter().enumerate() {
+        for f in 0..d {
+            centroids[[new, f]] = run.centroids[old * d + f];
+        }
+    }
+    Ok(KMeansFit {
+        k,
+        labels,
+        centroids,
+        inertia: run.inertia,
+        rounds: run.rounds,
+        converged: run.converged,
+        best_restart: best,
+        restarts_at_best,
+        restarts: settings.restarts,
+    })
+}
+
+/// For each record: its nearest centre, the distance to it, and the margin
+/// (distance to the second-nearest centre minus distance to the nearest;
+/// zero when there is only one centre). Ties go to the lower centre number.
+pub fn nearest_with_margin(
+    data: ArrayView2<'_, f64>,
+    centroids: ArrayView2<'_, f64>,
+) -> Vec<(u32, f64, f64)> {
+    let rows: Vec<Vec<f64>> = data.outer_iter().map(|r| r.to_vec()).collect();
+    let cents: Vec<Vec<f64>> = centroids.outer_iter().map(|r| r.to_vec()).collect();
+    rows.par_iter()
+        .map(|row| {
+            let (mut b1, mut d1, mut d2) = (0u32, f64::INFINITY, f64::INFINITY);
+            for (j, c) in cents.iter().enumerate() {
+                let dd = dist2(row, c);
+                if dd < d1 {
+                    d2 = d1;
+                    d1 = dd;
+                    b1 = j as u32;
+                } else if dd < d2 {
+                    d2 = dd;
+                }
+            }
+            let margin = if d2.is_finite() {
+                d2.sqrt() - d1.sqrt()
+            } else {
+                0.0
+            };
+            (b1, d1.sqrt(), margin)
+        })
+        .collect()
+}
+
+/// The data and settings shared by all restarts.
+struct Problem<'a> {
+    x: &'a [f64],
+    n: usize,
+    d: usize,
+    settings: &'a KMeansSettings,
+    /// Centre movement below which iterations stop.
+    shift_limit: f64,
+}
+
+/// One restart's outcome, in its own (not yet canonical) numbering.
+struct Restart {
+    labels: Vec<u32>,
+    centroids: Vec<f64>,
+    inertia: f64,
+    rounds: usize,
+    converged: bool,
+}
+
+impl<'a> Problem<'a> {
+    fn new(x: &'a [f64], n: usize, d: usize, settings: &'a KMeansSettings) -> Self {
+        let mut grand = vec![0.0; d];
+        for row in x.chunks_exact(d) {
+            for (g, v) in grand.iter_mut().zip(row) {
+                *g += v;
+            }
+        }
+        grand.iter_mut().for_each(|g| *g /= n as f64);
+        let spread: f64 = x.chunks_exact(d).map(|row| dist2(row, &grand)).sum::<f64>() / n as f64;
+        Problem {
+            x,
+            n,
+            d,
+            settings,
+            shift_limit: settings.tolerance * spread,
+        }
+    }
+
+    fn row(&self, i: usize) -> &[f64] {
+        &self.x[i * self.d..(i + 1) * self.d]
+    }
+
+    fn restart(&self, r: usize) -> Restart {
+        let k = self.settings.k;
+        let mut stream = Stream::new(self.settings.seed, ((k as u64) << 32) | r as u64);
+        let mut labels = vec![0u32; self.n];
+        let mut dists = vec![0.0; self.n];
+        let mut centroids = match self.settings.seeding {
+            Seeding::KMeansPlusPlus => self.plusplus(&mut stream),
+            Seeding::RandomPartition => {
+                for l in labels.iter_mut() {
+                    *l = stream.below(k) as u32;
+                }
+                // Distances to the first means are needed only to refill
+                // empty segments; measure them against the raw means.
+                let rough = self.means(&labels);
+                for i in 0..self.n {
+                    dists[i] = dist2(self.row(i), &rough[labels[i] as usize * self.d..][..self.d]);
+                }
+                self.update(&mut labels, &dists)
+            }
+        };
+        let mut rounds = 0;
+        let mut converged = false;
+        let mut first = self.settings.seeding == Seeding::KMeansPlusPlus;
+        loop {
+            let changed = self.assign(&centroids, &mut labels, &mut dists);
+            if (changed == 0 && !first) || converged {
+                converged = true;
+                break;
+            }
+            first = false;
+            if rounds == self.settings.max_rounds {
+                break;
+            }
+            let next = self.update(&mut labels, &dists);
+            let shift: f64 = centroids
+                .chunks_exact(self.d)
+                .zip(next.chunks_exact(self.d))
+                .map(|(a, b)| dist2(a, b))
+                .sum();
+            centroids = next;
+            rounds += 1;
+            if shift <= self.shift_limit {
+                // One last assignment against the final centres follows.
+                converged = true;
+            }
+        }
+        // A round cap can stop right after an assignment that emptied a
+        // segment; refill and reassign until none is empty. Each pass moves a
+        // centre onto a record, which then keeps it unless another centre
+        // sits on an identical record, so this ends within k passes.
+        for _ in 0..k {
+            if !has_empty(&labels, k) {
+                break;
+            }
+            centroids = self.update(&mut labels, &dists);
+            self.assign(&centroids, &mut labels, &mut dists);
+        }
+        let inertia = dists.iter().sum();
+        Restart {
+            labels,
+            centroids,
+            inertia,
+            rounds,
+            converged,
+        }
+    }
+
+    /// Greedy k-means++ seeding; see the module documentation.
+    fn plusplus(&self, stream: &mut Stream) -> Vec<f64> {
+        let (n, d, k) = (self.n, self.d, self.settings.k);
+        let trials = 2 + (k as f64).ln().floor() as usize;
+        let mut centres = Vec::with_capacity(k * d);
+        let first = stream.below(n);
+        centres.extend_from_slice(self.row(first));
+        let mut closest: Vec<f64> = (0..n)
+            .map(|i| dist2(self.row(i), self.row(first)))
+            .collect();
+        let mut potential: f64 = closest.iter().sum();
+        let mut candidate = vec![0.0; n];
+        let mut best_closest = vec![0.0; n];
+        for _ in 1..k {
+            let mut best: Option<(usize, f64)> = None;
+            for _ in 0..trials {
+                let pick = if potential > 0.0 {
+                    sample_by_weight(&closest, stream.unit() * potential)
+                } else {
+                    // Every record sits on a centre already (duplicates);
+                    // any record will do and the empty-cluster rule follows.
+                    stream.below(n)
+                };
+                let c = self.row(pick);
+                let mut pot = 0.0;
+                for i in 0..n {
+                    let v = closest[i].min(dist2(self.row(i), c));
+                    candidate[i] = v;
+                    pot += v;
+                }
+                if best.is_none_or(|(_, p)| pot < p) {
+                    best = Some((pick, pot));
+                    std::mem::swap(&mut best_closest, &mut candidate);
+                }
+            }
+            // trials >= 2, so a candidate was always kept.
+            let (pick, pot) = best.unwrap_or((0, potential));
+            centres.extend_from_slice(self.row(pick));
+            std::mem::swap(&mut closest, &mut best_closest);
+            potential = pot;
+        }
+        centres
+    }
+
+    /// Labels every record with its nearest centre; returns how many changed.
+    fn assign(&self, centroids: &[f64], labels: &mut [u32], dists: &mut [f64]) -> usize {
+        let d = self.d;
+        let nearest = |row: &[f64]| {
+            let mut best = (0u32, f64::INFINITY);
+            for (j, c) in centroids.chunks_exact(d).enumerate() {
+                let dd = dist2(row, c);
+                if dd < best.1 {
+                    best = (j as u32, dd);
+                }
+            }
+            best
+        };
+        let work = |(chunk_start, (ls, ds)): (usize, (&mut [u32], &mut [f64]))| {
+            let mut changed = 0;
+            for (off, (l, dd)) in ls.iter_mut().zip(ds.iter_mut()).enumerate() {
+                let (j, v) = nearest(self.row(chunk_start + off));
+                if *l != j {
+                    changed += 1;
+                    *l = j;
+                }
+                *dd = v;
+            }
+            changed
+        };
+        if self.n >= PARALLEL_ASSIGN_MIN {
+            const CHUNK: usize = 4096;
+            labels
+                .par_chunks_mut(CHUNK)
+                .zip(dists.par_chunks_mut(CHUNK))
+                .enumerate()
+                .map(|(c, pair)| work((c * CHUNK, pair)))
+                .sum()
+        } else {
+            work((0, (labels, dists)))
+        }
+    }
+
+    /// Segment means, with no care for empty segments (left at zero).
+    fn means(&self, labels: &[u32]) -> Vec<f64> {
+        let (d, k) = (self.d, self.settings.k);
+        let mut sums = vec![0.0; k * d];
+        let mut counts = vec![0usize; k];
+        for (i, &l) in labels.iter().enumerate() {
+            let l = l as usize;
+            counts[l] += 1;
+            for (s, v) in sums[l * d..(l + 1) * d].iter_mut().zip(self.row(i)) {
+                *s += v;
+            }
+        }
+        for (j, &c) in counts.iter().enumerate() {
+            if c > 0 {
+                sums[j * d..(j + 1) * d]
+                    .iter_mut()
+                    .for_each(|s| *s /= c as f64);
+            }
+        }
+        sums
+    }
+
+    /// New centres as segment means, refilling empty segments by the rule in
+    /// the module documentation (which may relabel records).
+    fn update(&self, labels: &mut [u32], dists: &[f64]) -> Vec<f64> {
+        let k = self.settings.k;
+        let mut counts = vec![0usize; k];
+        for &l in labels.iter() {
+            counts[l as usize] += 1;
+        }
+        let mut taken = vec![false; self.n];
+        for j in 0..k {
+            if counts[j] > 0 {
+                continue;
+            }
+            let mut far: Option<usize> = None;
+            for i in 0..self.n {
+                if taken[i] || counts[labels[i] as usize] <= 1 {
+                    continue;
+                }
+                if far.is_none_or(|f| dists[i] > dists[f]) {
+                    far = Some(i);
+                }
+            }
+            // k <= n guarantees some segment has two records while one is
+            // empty; the guard keeps a bug from turning into a panic.
+            if let Some(i) = far {
+                counts[labels[i] as usize] -= 1;
+                labels[i] = j as u32;
+                counts[j] = 1;
+                taken[i] = true;
+            }
+        }
+        self.means(labels)
+    }
+}
+
+fn has_empty(labels: &[u32], k: usize) -> bool {
+    let mut seen = vec![false; k];
+    labels.iter().for_each(|&l| seen[l as usize] = true);
+    seen.contains(&false)
+}
+
+/// Index where the running sum of `weights` first exceeds `target`; the last
+/// index with positive weight when rounding leaves `target` past the total.
+fn sample_by_weight(weights: &[f64], target: f64) -> usize {
+    let mut acc = 0.0;
+    let mut last_positive = 0;
+    for (i, &w) in weights.iter().enumerate() {
+        if w > 0.0 {
+            acc += w;
+            last_positive = i;
+            if acc > target {
+                return i;
+            }
+        }
+    }
+    last_positive
+}
+
+/// Renumbers a labelling canonically (see the module documentation).
+/// Returns the new labels and, for each new number, the old one.
+pub fn canonical(labels: &[u32], k: usize) -> (Vec<u32>, Vec<usize>) {
+    let mut size = vec![0usize; k];
+    let mut first = vec![usize::MAX; k];
+    for (i, &l) in labels.iter().enumerate() {
+        let l = l as usize;
+        size[l] += 1;
+        first[l] = first[l].min(i);
+    }
+    let mut order: Vec<usize> = (0..k).collect();
+    order.sort_by(|&a, &b| size[b].cmp(&size[a]).then(first[a].cmp(&first[b])));
+    let mut new_of = vec![0u32; k];
+    for (new, &old) in order.iter().enumerate() {
+        new_of[old] = new as u32;
+    }
+    (labels.iter().map(|&l| new_of[l as usize]).collect(), order)
+}
+
+/// FNV-1a over the labels: identifies a canonical partition.
+fn partition_hash(labels: &[u32]) -> u64 {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for l in labels {
+        for b in l.to_le_bytes() {
+            h ^= u64::from(b);
+            h = h.wrapping_mul(0x0000_0100_0000_01b3);
+        }
+    }
+    h
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use ndarray::array;
+
+    fn settings(k: usize) -> KMeansSettings {
+        KMeansSettings {
+            k,
+            restarts: 8,
+            max_rounds: 100,
+            tolerance: 0.0,
+            seeding: Seeding::KMeansPlusPlus,
+            seed: 1,
+        }
+    }
+
+    #[test]
+    fn two_obvious_groups_are_found() {
+        let x = array![
+            [0.0, 0.0],
+            [0.0, 1.0],
+            [10.0, 10.0],
+            [10.0, 11.0],
+            [0.5, 0.5]
+        ];
+        let fit = kmeans(x.view(), &settings(2)).unwrap();
+        assert_eq!(fit.labels, vec![0, 0, 1, 1, 0]);
+        assert_eq!(fit.restarts_at_best, 8);
+        // Worked by hand: the first group's mean is (1/6, 1/2), its squared
+        // distances 10/36 + 10/36 + 4/36; the second's are 1/4 + 1/4.
+        assert!((fit.inertia - (2.0 / 3.0 + 0.5)).abs() < 1e-12);
+    }
+
+    #[test]
+    fn k_above_the_record_count_is_an_error() {
+        let x = array![[0.0], [1.0]];
+        assert_eq!(
+            kmeans(x.view(), &settings(3)).unwrap_err(),
+            EngineError::TooFewRecords { k: 3, n: 2 }
+        );
+    }
+
+    #[test]
+    fn fewer_distinct_records_than_k_is_an_error() {
+        let x = array![[1.0], [1.0], [1.0], [1.0], [2.0]];
+        assert_eq!(
+            kmeans(x.view(), &settings(3)).unwrap_err(),
+            EngineError::TooFewDistinct { k: 3 }
+        );
+    }
+
+    #[test]
+    fn identical_points_still_give_k_nonempty_segments() {
+        let x = array![[1.0], [1.0], [1.0], [1.0], [2.0], [3.0]];
+        let fit = kmeans(x.view(), &settings(3)).unwrap();
+        let mut sizes = [0; 3];
+        fit.labels.iter().for_each(|&l| sizes[l as usize] += 1);
+        assert!(sizes.iter().all(|&s| s > 0), "{sizes:?}");
+        assert_eq!(fit.inertia, 0.0);
+    }
+
+    #[test]
+    fn random_partition_seeding_also_converges() {
+        let x = array![
+            [0.0, 0.0],
+            [0.0, 1.0],
+            [10.0, 10.0],
+            [10.0, 11.0],
+            [0.5, 0.5]
+        ];
+        let mut s = settings(2);
+        s.seeding = Seeding::RandomPartition;
+        let fit = kmeans(x.view(), &s).unwrap();
+        assert_eq!(fit.labels, vec![0, 0, 1, 1, 0]);
+        assert!(fit.converged);
+    }
+
+    #[test]
+    fn canonical_numbers_follow_size_then_first_record() {
+        let (labels, order) = canonical(&[2, 0, 0, 1, 1, 2, 2], 3);
+        // Segment 2 has three records; 0 and 1 have two each, 0 first.
+        assert_eq!(labels, vec![0, 1, 1, 2, 2, 0, 0]);
+        assert_eq!(order, vec![2, 0, 1]);
+    }
+
+    #[test]
+    fn margins_measure_the_gap_to_the_second_centre() {
+        let x = array![[1.0], [4.0]];
+        let c = array![[0.0], [5.0]];
+        let out = nearest_with_margin(x.view(), c.view());
+        assert_eq!(out, vec![(0, 1.0, 3.0), (1, 1.0, 3.0)]);
+    }
+}

@@ -1,0 +1,23 @@
+//! assort: segmentation recipes for people who segment records for a living.
+//!
+//! The pipeline, one module per stage:
+//!
+//! ```text
+//! recipe text --syntax--> syntax tree --check (+ data header)--> Plan
+//!      Plan --run (over engine)--> Outcome --output--> tables and files
+//! ```
+//!
+//! - [`syntax`]: pest grammar to a syntax tree with spans.
+//! - [`check`]: syntax tree and the data's header to diagnostics and a
+//!   typed [`plan::Plan`].
+//! - [`run`]: the interpreter: reads the data, prepares the matrix, calls
+//!   the engine, builds profiles.
+//! - [`engine`]: clustering and criteria; knows nothing of the language.
+//! - [`output`]: terminal tables and output files.
+
+pub mod check;
+pub mod engine;
+pub mod output;
+pub mod plan;
+pub mod run;
+pub mod syntax;

@@ -1,0 +1,193 @@
+//! The plan: a checked recipe, typed, with every default written out.
+//!
+//! A `Plan` is only ever built by the checker ([`crate::check`]); the
+//! interpreter ([`crate::run`]) accepts nothing else. Every value in it has
+//! been validated, so the run stage never re-checks the recipe's words.
+
+use serde::Serialize;
+use std::collections::BTreeMap;
+use std::path::PathBuf;
+
+pub use crate::engine::kmeans::Seeding;
+
+/// Version of the plan's layout, printed by `assort plan`.
+pub const PLAN_FORMAT: u32 = 1;
+
+#[derive(Debug, Clone, Serialize)]
+pub struct Plan {
+    pub format: u32,
+    pub name: String,
+    pub seed: u64,
+    pub input: InputPlan,
+    /// Numeric features in the order they are clustered.
+    pub features: Vec<FeaturePlan>,
+    /// Category columns, one-hot encoded after the numeric features.
+    pub categories: Vec<CategoryPlan>,
+    pub scale: Scale,
+    pub kmeans: KMeansPlan,
+    pub choose: ChooseK,
+    /// Segment number (1-based) to label.
+    pub labels: BTreeMap<usize, String>,
+    pub validate: Option<ValidatePlan>,
+    pub outputs: Vec<OutputPlan>,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct InputPlan {
+    /// As written in the recipe, relative to the recipe's folder.
+    pub path: String,
+    /// Resolved against the recipe's folder.
+    pub resolved: PathBuf,
+    pub key: String,
+    pub separator: char,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct FeaturePlan {
+    pub column: String,
+    pub missing: MissingRule,
+    /// Quantile fractions to clip at, applied before `transform`.
+    pub clip: Option<(f64, f64)>,
+    pub transform: Transform,
+    /// Counts as this many features in squared distance.
+    pub weight: f64,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct CategoryPlan {
+    pub column: String,
+    pub weight: f64,
+}
+
+/// What happens to a record whose value is missing in one column.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum MissingRule {
+    /// No rule given: a missing value stops the run with its location.
+    Refuse,
+    DropRow,
+    FillMedian,
+    FillMean,
+    FillValue(f64),
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Transform {
+    None,
+    Log1p,
+    Log,
+    Sqrt,
+}
+
+impl Transform {
+    pub const NAMES: [&'static str; 3] = ["log1p", "log", "sqrt"];
+
+    pub fn parse(word: &str) -> Option<Transform> {
+        match word {
+            "log1p" => Some(Transform::Log1p),
+            "log" => Some(Transform::Log),
+            "sqrt" => Some(Transform::Sqrt),
+            _ => None,
+        }
+    }
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Scale {
+    Zscore,
+    Robust,
+    Range,
+    None,
+}
+
+impl Scale {
+    pub const NAMES: [&'static str; 4] = ["zscore", "robust", "range", "none"];
+
+    pub fn parse(word: &str) -> Option<Scale> {
+        match word {
+            "zscore" => Some(Scale::Zscore),
+            "robust" => Some(Scale::Robust),
+            "range" => Some(Scale::Range),
+            "none" => Some(Scale::None),
+            _ => None,
+        }
+    }
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct KMeansPlan {
+    /// The values of k to fit, ascending, each at least 2.
+    pub ks: Vec<usize>,
+    pub restarts: usize,
+    pub rounds: usize,
+    pub tolerance: f64,
+    pub seeding: Seeding,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum ChooseK {
+    Fixed(usize),
+    By(Criterion),
+}
+
+/// A criterion that can choose k.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Criterion {
+    Silhouette,
+    CalinskiHarabasz,
+    DaviesBouldin,
+}
+
+impl Criterion {
+    pub const NAMES: [&'static str; 3] = ["silhouette", "calinski-harabasz", "davies-bouldin"];
+
+    pub fn parse(word: &str) -> Option<Criterion> {
+        match word {
+            "silhouette" => Some(Criterion::Silhouette),
+            "calinski-harabasz" => Some(Criterion::CalinskiHarabasz),
+            "davies-bouldin" => Some(Criterion::DaviesBouldin),
+            _ => None,
+        }
+    }
+
+    pub fn name(self) -> &'static str {
+        match self {
+            Criterion::Silhouette => "silhouette",
+            Criterion::CalinskiHarabasz => "calinski-harabasz",
+            Criterion::DaviesBouldin => "davies-bouldin",
+        }
+    }
+
+    /// Whether a higher value is better.
+    pub fn higher_is_better(self) -> bool {
+        !matches!(self, Criterion::DaviesBouldin)
+    }
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct ValidatePlan {
+    pub path: String,
+    pub resolved: PathBuf,
+    /// The column holding the known grouping; joined on the input's key.
+    pub column: String,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum OutputKind {
+    Assignments,
+    ProfilesCsv,
+    ProfilesJson,
+    Centroids,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct OutputPlan {
+    pub kind: OutputKind,
+    pub path: String,
+    pub resolved: PathBuf,
+}
