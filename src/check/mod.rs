@@ -1,1 +1,1302 @@
-//! placeholder
+//! Check: a syntax tree and the data's header become diagnostics and, when
+//! there is no error, a typed [`Plan`].
+//!
+//! The checker orders the work, so statements may come in any order. It
+//! reads the input's header and a sample (see [`probe`]) to check column
+//! names and kinds, never the whole file. All problems are collected, not
+//! only the first.
+
+pub mod diagnostic;
+pub mod probe;
+pub mod suggest;
+pub mod vocab;
+
+use crate::plan::*;
+use crate::syntax::{self, ast::*};
+use diagnostic::{did_you_mean, CheckError, Problem};
+use probe::{ColumnKind, Probe, ProbeError};
+use std::collections::{BTreeMap, HashMap};
+use std::path::{Component, Path, PathBuf};
+
+/// Defaults written into every plan that does not override them.
+pub mod defaults {
+    pub const SEED: u64 = 1;
+    pub const RESTARTS: usize = 10;
+    pub const ROUNDS: usize = 300;
+    pub const TOLERANCE: f64 = 1e-6;
+    pub const SEPARATOR: char = ',';
+    pub const WEIGHT: f64 = 1.0;
+}
+
+/// A recipe's text and where it lives.
+#[derive(Debug, Clone)]
+pub struct RecipeSource {
+    /// The path as the user gave it; shown in messages.
+    pub path: PathBuf,
+    pub text: String,
+}
+
+impl RecipeSource {
+    pub fn read(path: &Path) -> std::io::Result<RecipeSource> {
+        Ok(RecipeSource {
+            path: path.to_path_buf(),
+            text: std::fs::read_to_string(path)?,
+        })
+    }
+
+    /// The folder every path in the recipe is relative to.
+    pub fn folder(&self) -> PathBuf {
+        match self.path.parent() {
+            Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+            _ => PathBuf::from("."),
+        }
+    }
+
+    pub fn name(&self) -> String {
+        self.path.display().to_string()
+    }
+}
+
+/// The checker's result: every problem found, and the plan when none of
+/// them is an error.
+#[derive(Debug)]
+pub struct Checked {
+    pub plan: Option<Plan>,
+    pub problems: Vec<Problem>,
+}
+
+impl Checked {
+    pub fn has_errors(&self) -> bool {
+        self.problems.iter().any(Problem::is_error)
+    }
+}
+
+/// Checks a recipe against its data's header.
+pub fn check(source: &RecipeSource) -> Checked {
+    let tree = syntax::parse(&source.text);
+    let mut cx = Checker {
+        folder: source.folder(),
+        recipe_stem: source
+            .path
+            .file_stem()
+            .map(|s| s.to_string_lossy().into_owned())
+            .unwrap_or_default(),
+        problems: tree.errors.iter().cloned().map(Problem::from).collect(),
+        probe: None,
+        input_file: String::new(),
+    };
+    let plan = cx.plan(&tree.statements);
+    let errors = cx.problems.iter().any(Problem::is_error);
+    Checked {
+        plan: if errors { None } else { plan },
+        problems: cx.problems,
+    }
+}
+
+/// Statements that may appear once, by word.
+const SINGLE: [&str; 8] = [
+    "recipe", "seed", "input", "features", "scale", "kmeans", "choose", "validate",
+];
+
+struct Checker {
+    folder: PathBuf,
+    recipe_stem: String,
+    problems: Vec<Problem>,
+    /// The input's header and sample, once read.
+    probe: Option<Probe>,
+    input_file: String,
+}
+
+impl Checker {
+    fn err(&mut self, e: CheckError) {
+        self.problems.push(Problem::Check(e));
+    }
+
+    /// Builds the plan, collecting problems on the way. Returns a plan only
+    /// when every required part could be settled.
+    fn plan(&mut self, stmts: &[Statement]) -> Option<Plan> {
+        let mut first: HashMap<&str, &Statement> = HashMap::new();
+        for s in stmts {
+            if let StatementKind::Unknown { word } = &s.kind {
+                let suggestion = suggest::nearest(&word.node, vocab::statement_words());
+                let all: Vec<_> = vocab::statement_words().collect();
+                self.err(CheckError::UnknownStatement {
+                    word: word.node.clone(),
+                    span: word.span,
+                    help: did_you_mean(&suggestion, &format!("statements are {}", all.join(", "))),
+                });
+                continue;
+            }
+            let word = s.keyword.node.as_str();
+            if SINGLE.contains(&word) {
+                if let Some(prev) = first.get(word) {
+                    self.err(CheckError::DuplicateStatement {
+                        keyword: word.to_string(),
+                        span: s.keyword.span,
+                        first: prev.keyword.span,
+                    });
+                    continue;
+                }
+                first.insert(word_static(word), s);
+            }
+        }
+        let find = |w: &str| first.get(w).copied();
+
+        let input = self.input(find("input"));
+        let categories = self.categories(stmts, input.as_ref());
+        let features = self.features(find("features"), input.as_ref(), &categories);
+        let features = features.map(|f| self.feature_rules(stmts, f));
+        let scale = match find("scale") {
+            Some(Statement {
+                kind: StatementKind::Scale { method },
+                ..
+            }) => self.word_choice("scale method", method, &Scale::NAMES, Scale::parse),
+            _ => Some(Scale::Zscore),
+        };
+        let kmeans = self.kmeans(find("kmeans"));
+        let choose = self.choose(find("choose"), kmeans.as_ref());
+        let labels = self.labels(stmts, kmeans.as_ref());
+        let validate = self.validate(find("validate"), input.as_ref());
+        let outputs = self.outputs(stmts, input.as_ref());
+        let seed = self.seed(find("seed"));
+        let name = match find("recipe") {
+            Some(Statement {
+                kind: StatementKind::Recipe { name },
+                ..
+            }) => name.node.clone(),
+            _ => self.recipe_stem.clone(),
+        };
+
+        Some(Plan {
+            format: PLAN_FORMAT,
+            name,
+            seed: seed?,
+            input: input?.plan,
+            features: features?,
+            categories: categories?,
+            scale: scale?,
+            kmeans: kmeans?,
+            choose: choose?,
+            labels: labels?,
+            validate: validate?,
+            outputs: outputs?,
+        })
+    }
+
+    fn seed(&mut self, stmt: Option<&Statement>) -> Option<u64> {
+        let Some(Statement {
+            kind: StatementKind::Seed { value },
+            ..
+        }) = stmt
+        else {
+            return Some(defaults::SEED);
+        };
+        match value.node.as_whole() {
+            Some(v) if v >= 0 => Some(v as u64),
+            _ => {
+                self.err(CheckError::BadValue {
+                    option: "seed".into(),
+                    found: format!("`{}`", value.node.raw),
+                    expected: "a whole number, 0 or more".into(),
+                    span: value.span,
+                    help: "any whole number will do; keep it, so reruns match".into(),
+                });
+                None
+            }
+        }
+    }
+
+    // ------------------------------------------------------------ input --
+
+    fn input(&mut self, stmt: Option<&Statement>) -> Option<CheckedInput> {
+        let Some(
+            s @ Statement {
+                kind: StatementKind::Input { path, options },
+                ..
+            },
+        ) = stmt
+        else {
+            self.err(CheckError::MissingStatement {
+                keyword: "input",
+                help: r#"name the data file and its key, such as `input "data/members.csv" key member_id`"#.into(),
+            });
+            return None;
+        };
+        let opts = self.options("input", options, vocab::INPUT_OPTIONS);
+        let separator = match opts.get("separator") {
+            None => Some(defaults::SEPARATOR),
+            Some(o) => match &o.value.node {
+                Value::Text(t) if t.chars().count() == 1 && t.is_ascii() => t.chars().next(),
+                other => {
+                    self.err(CheckError::BadValue {
+                        option: "separator".into(),
+                        found: other.to_string(),
+                        expected: "one quoted ASCII character".into(),
+                        span: o.value.span,
+                        help: r#"for example `separator ";"`"#.into(),
+                    });
+                    None
+                }
+            },
+        };
+        let key = match opts.get("key") {
+            Some(o) => self.column_name("key", o),
+            None => {
+                self.err(CheckError::MissingOption {
+                    statement: "input",
+                    option: "key",
+                    span: s.span,
+                    help: "the key column identifies each record in the outputs, such as `key member_id`".into(),
+                });
+                None
+            }
+        };
+        let resolved = self.safe_path(path)?;
+        self.input_file = path.node.clone();
+        let separator = separator?;
+        match probe::probe(&resolved, separator as u8) {
+            Ok(p) => self.probe = Some(p),
+            Err(e) => {
+                self.file_problem(path, &e);
+                return None;
+            }
+        }
+        let key = key?;
+        if self.known_column(&key).is_none() {
+            return None;
+        }
+        Some(CheckedInput {
+            plan: InputPlan {
+                path: path.node.clone(),
+                resolved,
+                key: key.node.clone(),
+                separator,
+            },
+            key_span: key.span,
+            path_span: path.span,
+        })
+    }
+
+    fn file_problem(&mut self, path: &Spanned<String>, e: &ProbeError) {
+        let (reason, help) = match e {
+            ProbeError::NotFound => {
+                self.err(CheckError::FileNotFound {
+                    path: path.node.clone(),
+                    folder: self.folder.display().to_string(),
+                    span: path.span,
+                });
+                return;
+            }
+            ProbeError::Unreadable(r) => (r.clone(), "check the file's permissions".to_string()),
+            ProbeError::Malformed { line, reason } => (
+                format!("line {line}: {reason}"),
+                "every line needs as many fields as the header; quote fields that hold the separator".to_string(),
+            ),
+            ProbeError::NoHeader => (
+                "it has no header line".to_string(),
+                "the first line must name the columns".to_string(),
+            ),
+        };
+        self.err(CheckError::FileUnreadable {
+            path: path.node.clone(),
+            reason,
+            span: path.span,
+            help,
+        });
+    }
+
+    /// Resolves a recipe path against the recipe's folder, refusing paths
+    /// that lead outside it.
+    fn safe_path(&mut self, path: &Spanned<String>) -> Option<PathBuf> {
+        let p = Path::new(&path.node);
+        let escapes = p.is_absolute()
+            || p.components().any(|c| {
+                matches!(
+                    c,
+                    Component::ParentDir | Component::RootDir | Component::Prefix(_)
+                )
+            });
+        if escapes || path.node.is_empty() {
+            self.err(CheckError::PathOutside {
+                path: path.node.clone(),
+                span: path.span,
+            });
+            return None;
+        }
+        Some(self.folder.join(p))
+    }
+
+    // ---------------------------------------------------------- columns --
+
+    /// The column's header entry, or an `unknown column` diagnostic. When
+    /// the header could not be read, no column can be judged and `None`
+    /// comes back silently (the file's own problem was reported).
+    fn known_column(&mut self, col: &Column) -> Option<probe::ColumnInfo> {
+        let probe = self.probe.as_ref()?;
+        if let Some(info) = probe.column(&col.node) {
+            return Some(info.clone());
+        }
+        let suggestion = suggest::nearest(&col.node, probe.names());
+        let names: Vec<&str> = probe.names().collect();
+        let listing = if names.len() <= 12 {
+            format!("its columns are {}", names.join(", "))
+        } else {
+            format!("its columns include {}, ...", names[..12].join(", "))
+        };
+        self.err(CheckError::UnknownColumn {
+            column: col.node.clone(),
+            file: self.input_file.clone(),
+            span: col.span,
+            help: did_you_mean(&suggestion, &listing),
+        });
+        None
+    }
+
+    /// An option value that names a column.
+    fn column_name(&mut self, option: &str, o: &OptionPair) -> Option<Column> {
+        match &o.value.node {
+            Value::Word(w) | Value::Text(w) => Some(Spanned::new(w.clone(), o.value.span)),
+            other => {
+                self.err(CheckError::BadValue {
+                    option: option.into(),
+                    found: other.kind_name().into(),
+                    expected: "a column name".into(),
+                    span: o.value.span,
+                    help: "write the column's name as in the header, quoted if it has spaces"
+                        .into(),
+                });
+                None
+            }
+        }
+    }
+
+    fn categories(
+        &mut self,
+        stmts: &[Statement],
+        input: Option<&CheckedInput>,
+    ) -> Option<Vec<CategoryPlan>> {
+        let mut out = Vec::new();
+        let mut seen: HashMap<String, Span> = HashMap::new();
+        let mut ok = true;
+        for s in stmts {
+            let StatementKind::Categories { columns, options } = &s.kind else {
+                continue;
+            };
+            let opts = self.options("categories", options, vocab::CATEGORIES_OPTIONS);
+            let weight = match opts.get("weight") {
+                Some(o) => self.positive("weight", &o.value),
+                None => Some(defaults::WEIGHT),
+            };
+            ok &= weight.is_some();
+            for col in columns {
+                if let Some(prev) = seen.get(&col.node) {
+                    self.err(CheckError::DuplicateColumn {
+                        column: col.node.clone(),
+                        span: col.span,
+                        first: *prev,
+                    });
+                    ok = false;
+                    continue;
+                }
+                seen.insert(col.node.clone(), col.span);
+                if input.is_some_and(|i| i.plan.key == col.node) {
+                    self.key_clustered(col);
+                    ok = false;
+                    continue;
+                }
+                if self.probe.is_some() && self.known_column(col).is_none() {
+                    ok = false;
+                    continue;
+                }
+                out.push(CategoryPlan {
+                    column: col.node.clone(),
+                    weight: weight.unwrap_or(defaults::WEIGHT),
+                });
+            }
+        }
+        ok.then_some(out)
+    }
+
+    fn key_clustered(&mut self, col: &Column) {
+        self.err(CheckError::KeyClustered {
+            column: col.node.clone(),
+            span: col.span,
+        });
+    }
+
+    /// The feature columns, in order, with default rules.
+    fn features(
+        &mut self,
+        stmt: Option<&Statement>,
+        input: Option<&CheckedInput>,
+        categories: &Option<Vec<CategoryPlan>>,
+    ) -> Option<Vec<(String, Span)>> {
+        let Some(
+            s @ Statement {
+                kind: StatementKind::Features(choice),
+                ..
+            },
+        ) = stmt
+        else {
+            self.err(CheckError::MissingStatement {
+                keyword: "features",
+                help: "list the numeric columns to segment on, such as `features visits_per_month, basket_value`, or write `features all`".into(),
+            });
+            return None;
+        };
+        let key = input.map(|i| i.plan.key.clone());
+        let cats: Vec<String> = categories
+            .iter()
+            .flatten()
+            .map(|c| c.column.clone())
+            .collect();
+        let mut out: Vec<(String, Span)> = Vec::new();
+        let mut ok = true;
+        match choice {
+            FeatureChoice::Listed(cols) => {
+                for col in cols {
+                    if let Some((_, first)) = out.iter().find(|(n, _)| *n == col.node) {
+                        self.err(CheckError::DuplicateColumn {
+                            column: col.node.clone(),
+                            span: col.span,
+                            first: *first,
+                        });
+                        ok = false;
+                        continue;
+                    }
+                    if key.as_deref() == Some(col.node.as_str()) {
+                        self.key_clustered(col);
+                        ok = false;
+                        continue;
+                    }
+                    if cats.contains(&col.node) {
+                        self.err(CheckError::DuplicateColumn {
+                            column: col.node.clone(),
+                            span: col.span,
+                            first: col.span,
+                        });
+                        ok = false;
+                        continue;
+                    }
+                    match self.known_column(col) {
+                        Some(info) if info.kind == ColumnKind::Text => {
+                            self.err(CheckError::TextFeature {
+                                column: col.node.clone(),
+                                example: info.text_example.unwrap_or_default(),
+                                span: col.span,
+                            });
+                            ok = false;
+                        }
+                        Some(_) => out.push((col.node.clone(), col.span)),
+                        None => ok = false,
+                    }
+                }
+            }
+            FeatureChoice::AllNumeric { except } => {
+                for col in except {
+                    ok &= self.known_column(col).is_some();
+                }
+                let probe = self.probe.as_ref()?;
+                for c in &probe.columns {
+                    let excluded = except.iter().any(|e| e.node == c.name)
+                        || key.as_deref() == Some(c.name.as_str())
+                        || cats.contains(&c.name);
+                    if !excluded && c.kind == ColumnKind::Numeric {
+                        out.push((c.name.clone(), s.span));
+                    }
+                }
+            }
+        }
+        if ok && out.is_empty() && self.probe.is_some() {
+            self.err(CheckError::NoFeatures {
+                span: s.span,
+                help: "name at least one numeric column".into(),
+            });
+            return None;
+        }
+        ok.then_some(out)
+    }
+
+    /// Applies `missing`, `reshape` and `weight` statements to the features.
+    fn feature_rules(
+        &mut self,
+        stmts: &[Statement],
+        features: Vec<(String, Span)>,
+    ) -> Vec<FeaturePlan> {
+        let mut plans: Vec<FeaturePlan> = features
+            .iter()
+            .map(|(name, _)| FeaturePlan {
+                column: name.clone(),
+                missing: MissingRule::Refuse,
+                clip: None,
+                transform: Transform::None,
+                weight: defaults::WEIGHT,
+            })
+            .collect();
+        let mut missing_set: HashMap<String, Span> = HashMap::new();
+        let mut transform_set: HashMap<String, Span> = HashMap::new();
+        let mut clip_set: HashMap<String, Span> = HashMap::new();
+        let mut weight_set: HashMap<String, Span> = HashMap::new();
+        let mut global_missing: Option<(MissingRule, Span)> = None;
+
+        for s in stmts {
+            match &s.kind {
+                StatementKind::Missing { action, columns } => {
+                    let Some(rule) = self.missing_rule(action) else {
+                        continue;
+                    };
+                    match columns {
+                        None => {
+                            if let Some((_, first)) = global_missing {
+                                self.err(CheckError::Conflict {
+                                    what: "a rule for missing values in all columns".into(),
+                                    span: s.span,
+                                    first,
+                                });
+                            } else {
+                                global_missing = Some((rule, s.span));
+                            }
+                        }
+                        Some(cols) => {
+                            for col in cols {
+                                if let Some(f) = self.feature_of(&mut plans, col, "missing") {
+                                    if self.once(
+                                        &mut missing_set,
+                                        col,
+                                        "a missing-value rule for this column",
+                                    ) {
+                                        f_mut(&mut plans, f).missing = rule;
+                                    }
+                                }
+                            }
+                        }
+                    }
+                }
+                StatementKind::Reshape { columns, action } => {
+                    for col in columns {
+                        let Some(f) = self.feature_of(&mut plans, col, "reshape") else {
+                            continue;
+                        };
+                        match action {
+                            ReshapeAction::Clip(range) => {
+                                let (lo, hi) = (&range.node.0, &range.node.1);
+                                if !(0.0..=1.0).contains(&lo.value)
+                                    || !(0.0..=1.0).contains(&hi.value)
+                                    || lo.value >= hi.value
+                                {
+                                    self.err(CheckError::BadValue {
+                                        option: "clip".into(),
+                                        found: format!("`{}..{}`", lo.raw, hi.raw),
+                                        expected:
+                                            "two quantile fractions from 0 to 1, the lower first"
+                                                .into(),
+                                        span: range.span,
+                                        help: "for example `clip 0.01..0.99` keeps the middle 98%"
+                                            .into(),
+                                    });
+                                    break;
+                                }
+                                if self.once(&mut clip_set, col, "a clip for this column") {
+                                    f_mut(&mut plans, f).clip = Some((lo.value, hi.value));
+                                }
+                            }
+                            ReshapeAction::Named(word) => {
+                                let Some(t) = self.word_choice(
+                                    "reshaping",
+                                    word,
+                                    &Transform::NAMES,
+                                    Transform::parse,
+                                ) else {
+                                    break;
+                                };
+                                if self.once(&mut transform_set, col, "a transform for this column")
+                                {
+                                    f_mut(&mut plans, f).transform = t;
+                                }
+                            }
+                        }
+                    }
+                }
+                StatementKind::Weight { columns, value } => {
+                    let Some(w) = self.positive(
+                        "weight",
+                        &Spanned::new(Value::Number(value.node.clone()), value.span),
+                    ) else {
+                        continue;
+                    };
+                    for col in columns {
+                        if let Some(f) = self.feature_of(&mut plans, col, "weight") {
+                            if self.once(&mut weight_set, col, "a weight for this column") {
+                                f_mut(&mut plans, f).weight = w;
+                            }
+                        }
+                    }
+                }
+                _ => {}
+            }
+        }
+        if let Some((rule, _)) = global_missing {
+            for p in plans.iter_mut() {
+                if !missing_set.contains_key(&p.column) {
+                    p.missing = rule;
+                }
+            }
+        }
+        plans
+    }
+
+    /// Records that `col` got a rule of this kind; a second one conflicts.
+    fn once(&mut self, set: &mut HashMap<String, Span>, col: &Column, what: &str) -> bool {
+        if let Some(first) = set.get(&col.node) {
+            self.err(CheckError::Conflict {
+                what: format!("{what} (`{}`)", col.node),
+                span: col.span,
+                first: *first,
+            });
+            return false;
+        }
+        set.insert(col.node.clone(), col.span);
+        true
+    }
+
+    /// Index of the feature `col` names, or a diagnostic.
+    fn feature_of(
+        &mut self,
+        plans: &mut [FeaturePlan],
+        col: &Column,
+        statement: &str,
+    ) -> Option<usize> {
+        if let Some(i) = plans.iter().position(|p| p.column == col.node) {
+            return Some(i);
+        }
+        // Report unknown columns as such; known ones as not features.
+        self.probe.as_ref()?;
+        self.known_column(col)?;
+        self.err(CheckError::NotAFeature {
+            column: col.node.clone(),
+            span: col.span,
+            help: format!(
+                "`{statement}` applies to the columns listed in `features`; add `{}` there first",
+                col.node
+            ),
+        });
+        None
+    }
+
+    fn missing_rule(&mut self, action: &Spanned<MissingAction>) -> Option<MissingRule> {
+        match &action.node {
+            MissingAction::DropRows => Some(MissingRule::DropRow),
+            MissingAction::Fill(v) => match &v.node {
+                Value::Number(n) if n.value.is_finite() => Some(MissingRule::FillValue(n.value)),
+                Value::Word(w) if w == "median" => Some(MissingRule::FillMedian),
+                Value::Word(w) if w == "mean" => Some(MissingRule::FillMean),
+                Value::Word(w) => {
+                    let suggestion = suggest::nearest(w, vocab::FILL_WORDS);
+                    self.err(CheckError::UnknownWord {
+                        what: "fill",
+                        found: w.clone(),
+                        span: v.span,
+                        choices: "`median`, `mean` or a number".into(),
+                        help: did_you_mean(
+                            &suggestion,
+                            "fill with the column's median, its mean, or a number you choose",
+                        ),
+                    });
+                    None
+                }
+                other => {
+                    self.err(CheckError::BadValue {
+                        option: "fill".into(),
+                        found: format!("`{other}`"),
+                        expected: "`median`, `mean` or a finite number".into(),
+                        span: v.span,
+                        help: "for example `missing fill 0 for coupon_rate`".into(),
+                    });
+                    None
+                }
+            },
+        }
+    }
+
+    // ----------------------------------------------------------- method --
+
+    fn kmeans(&mut self, stmt: Option<&Statement>) -> Option<KMeansPlan> {
+        let Some(
+            s @ Statement {
+                kind: StatementKind::KMeans { options },
+                ..
+            },
+        ) = stmt
+        else {
+            self.err(CheckError::MissingStatement {
+                keyword: "kmeans",
+                help: "say how many segments to look for, such as `kmeans k 2..9`".into(),
+            });
+            return None;
+        };
+        let opts = self.options("kmeans", options, vocab::KMEANS_OPTIONS);
+        let ks = match opts.get("k") {
+            None => {
+                self.err(CheckError::MissingOption {
+                    statement: "kmeans",
+                    option: "k",
+                    span: s.span,
+                    help:
+                        "a number of segments such as `k 5`, or a range to compare such as `k 2..9`"
+                            .into(),
+                });
+                None
+            }
+            Some(o) => self.ks(&o.value),
+        };
+        let restarts = self.whole_option(&opts, "restarts", 1, defaults::RESTARTS);
+        let rounds = self.whole_option(&opts, "rounds", 1, defaults::ROUNDS);
+        let tolerance = match opts.get("tolerance") {
+            None => Some(defaults::TOLERANCE),
+            Some(o) => match &o.value.node {
+                Value::Number(n) if n.value.is_finite() && n.value >= 0.0 => Some(n.value),
+                other => {
+                    self.bad_value(
+                        "tolerance",
+                        other,
+                        "a number, 0 or more",
+                        o.value.span,
+                        "for example `tolerance 1e-6`; 0 runs until no record moves",
+                    );
+                    None
+                }
+            },
+        };
+        let seeding = match opts.get("seeding") {
+            None => Some(Seeding::KMeansPlusPlus),
+            Some(o) => match &o.value.node {
+                Value::Word(w) => self.word_choice(
+                    "seeding",
+                    &Spanned::new(w.clone(), o.value.span),
+                    &Seeding::NAMES,
+                    Seeding::parse,
+                ),
+                other => {
+                    self.bad_value(
+                        "seeding",
+                        other,
+                        "`kmeans++` or `random-partition`",
+                        o.value.span,
+                        "k-means++ spreads the first centres out; it is the usual choice",
+                    );
+                    None
+                }
+            },
+        };
+        Some(KMeansPlan {
+            ks: ks?,
+            restarts: restarts?,
+            rounds: rounds?,
+            tolerance: tolerance?,
+            seeding: seeding?,
+        })
+    }
+
+    /// The values of k, checked against each other and the record count.
+    fn ks(&mut self, value: &Spanned<Value>) -> Option<Vec<usize>> {
+        let rows = self.probe.as_ref().and_then(|p| p.rows);
+        let impossible = |reason: String, help: &str| CheckError::ImpossibleK {
+            reason,
+            span: value.span,
+            help: help.to_string(),
+        };
+        let (lo, hi) = match &value.node {
+            Value::Number(n) => match n.as_whole() {
+                Some(k) => (k, k),
+                None => {
+                    self.bad_value(
+                        "k",
+                        &value.node,
+                        "a whole number or a range",
+                        value.span,
+                        "for example `k 5` or `k 2..9`",
+                    );
+                    return None;
+                }
+            },
+            Value::Range(a, b) => match (a.as_whole(), b.as_whole()) {
+                (Some(a), Some(b)) => (a, b),
+                _ => {
+                    self.bad_value(
+                        "k",
+                        &value.node,
+                        "a range of whole numbers",
+                        value.span,
+                        "for example `k 2..9`",
+                    );
+                    return None;
+                }
+            },
+            other => {
+                self.bad_value(
+                    "k",
+                    other,
+                    "a whole number or a range",
+                    value.span,
+                    "for example `k 5` or `k 2..9`",
+                );
+                return None;
+            }
+        };
+        if lo > hi {
+            self.err(impossible(
+                format!("the range {lo}..{hi} is empty"),
+                "write the smaller number first, such as `k 2..9`",
+            ));
+            return None;
+        }
+        if lo < 2 {
+            self.err(impossible(
+                format!("k must be at least 2, found {lo}"),
+                "one segment is the whole data; segmenting starts at two",
+            ));
+            return None;
+        }
+        if let Some(n) = rows {
+            if hi as usize > n {
+                self.err(impossible(
+                    format!(
+                        "k {hi} is more than the {n} records in `{}`",
+                        self.input_file
+                    ),
+                    "each segment needs at least one record",
+                ));
+                return None;
+            }
+        }
+        Some((lo as usize..=hi as usize).collect())
+    }
+
+    fn choose(&mut self, stmt: Option<&Statement>, kmeans: Option<&KMeansPlan>) -> Option<ChooseK> {
+        let Some(Statement {
+            kind: StatementKind::Choose(rule),
+            ..
+        }) = stmt
+        else {
+            // A single k is fixed; a range is judged by silhouette unless
+            // the recipe says otherwise.
+            return Some(match kmeans.map(|k| k.ks.as_slice()) {
+                Some([k]) => ChooseK::Fixed(*k),
+                _ => ChooseK::By(Criterion::Silhouette),
+            });
+        };
+        match rule {
+            ChooseRule::By(word) => {
+                let c = self.word_choice("criterion", word, &Criterion::NAMES, Criterion::parse)?;
+                if let Some([k]) = kmeans.map(|k| k.ks.as_slice()) {
+                    self.err(CheckError::NothingToChoose {
+                        criterion: word.node.clone(),
+                        span: word.span,
+                    });
+                    return Some(ChooseK::Fixed(*k));
+                }
+                Some(ChooseK::By(c))
+            }
+            ChooseRule::Fixed(n) => {
+                let Some(k) = n.node.as_whole() else {
+                    self.bad_value(
+                        "choose k",
+                        &Value::Number(n.node.clone()),
+                        "a whole number",
+                        n.span,
+                        "for example `choose k 5`",
+                    );
+                    return None;
+                };
+                let ks = kmeans.map(|p| p.ks.clone()).unwrap_or_default();
+                if !ks.is_empty() && !ks.contains(&(k.max(0) as usize)) {
+                    self.err(CheckError::ImpossibleK {
+                        reason: format!(
+                            "k {k} is not among the k fitted ({}..{})",
+                            ks[0],
+                            ks[ks.len() - 1]
+                        ),
+                        span: n.span,
+                        help: "choose one of the k that `kmeans` fits".into(),
+                    });
+                    return None;
+                }
+                Some(ChooseK::Fixed(k as usize))
+            }
+        }
+    }
+
+    fn labels(
+        &mut self,
+        stmts: &[Statement],
+        kmeans: Option<&KMeansPlan>,
+    ) -> Option<BTreeMap<usize, String>> {
+        let most = kmeans.and_then(|k| k.ks.last().copied());
+        let mut out = BTreeMap::new();
+        let mut spans: HashMap<usize, Span> = HashMap::new();
+        let mut ok = true;
+        for s in stmts {
+            let StatementKind::Label { segment, text } = &s.kind else {
+                continue;
+            };
+            let n = match segment.node.as_whole() {
+                Some(n) if n >= 1 => n,
+                _ => {
+                    self.bad_value(
+                        "label",
+                        &Value::Number(segment.node.clone()),
+                        "a segment number, 1 or more",
+                        segment.span,
+                        "segments are numbered 1 to k, largest first",
+                    );
+                    ok = false;
+                    continue;
+                }
+            };
+            if let Some(m) = most {
+                if n as usize > m {
+                    self.err(CheckError::LabelOutOfRange {
+                        segment: n,
+                        most: m,
+                        span: segment.span,
+                    });
+                    ok = false;
+                    continue;
+                }
+            }
+            if let Some(first) = spans.get(&(n as usize)) {
+                self.err(CheckError::Conflict {
+                    what: format!("a label for segment {n}"),
+                    span: segment.span,
+                    first: *first,
+                });
+                ok = false;
+                continue;
+            }
+            spans.insert(n as usize, segment.span);
+            out.insert(n as usize, text.node.clone());
+        }
+        ok.then_some(out)
+    }
+
+    fn validate(
+        &mut self,
+        stmt: Option<&Statement>,
+        input: Option<&CheckedInput>,
+    ) -> Option<Option<ValidatePlan>> {
+        let Some(
+            s @ Statement {
+                kind: StatementKind::Validate { path, options },
+                ..
+            },
+        ) = stmt
+        else {
+            return Some(None);
+        };
+        let opts = self.options("validate", options, vocab::VALIDATE_OPTIONS);
+        let column = match opts.get("column") {
+            Some(o) => self.column_name("column", o),
+            None => {
+                self.err(CheckError::MissingOption {
+                    statement: "validate",
+                    option: "column",
+                    span: s.span,
+                    help: "name the column that holds the known grouping, such as `column planted_segment`".into(),
+                });
+                None
+            }
+        };
+        let resolved = self.safe_path(path)?;
+        let column = column?;
+        let separator = input
+            .map(|i| i.plan.separator)
+            .unwrap_or(defaults::SEPARATOR);
+        match probe::probe(&resolved, separator as u8) {
+            Ok(p) => {
+                // Columns of the known grouping are checked against its own
+                // header, so swap it in for the lookup.
+                let saved = self.probe.replace(p);
+                let saved_file = std::mem::replace(&mut self.input_file, path.node.clone());
+                let found = self.known_column(&column).is_some();
+                let key_found = match input {
+                    Some(i) => self
+                        .known_column(&Spanned::new(i.plan.key.clone(), i.key_span))
+                        .is_some(),
+                    None => false,
+                };
+                self.probe = saved;
+                self.input_file = saved_file;
+                (found && key_found).then(|| {
+                    Some(ValidatePlan {
+                        path: path.node.clone(),
+                        resolved,
+                        column: column.node.clone(),
+                    })
+                })
+            }
+            Err(e) => {
+                self.file_problem(path, &e);
+                None
+            }
+        }
+    }
+
+    fn outputs(
+        &mut self,
+        stmts: &[Statement],
+        input: Option<&CheckedInput>,
+    ) -> Option<Vec<OutputPlan>> {
+        let mut out: Vec<OutputPlan> = Vec::new();
+        let mut spans: Vec<Span> = Vec::new();
+        let mut ok = true;
+        for s in stmts {
+            let StatementKind::Save { what, path } = &s.kind else {
+                continue;
+            };
+            let Some(resolved) = self.safe_path(path) else {
+                ok = false;
+                continue;
+            };
+            let ext = Path::new(&path.node)
+                .extension()
+                .and_then(|e| e.to_str())
+                .unwrap_or("")
+                .to_ascii_lowercase();
+            let kind = match (what.node.as_str(), ext.as_str()) {
+                ("assignments", "csv") => Some(OutputKind::Assignments),
+                ("centroids", "csv") => Some(OutputKind::Centroids),
+                ("profiles", "csv") => Some(OutputKind::ProfilesCsv),
+                ("profiles", "json") => Some(OutputKind::ProfilesJson),
+                ("assignments" | "centroids", _) => {
+                    self.err(CheckError::OutputFormat {
+                        what: format!("`save {}`", what.node),
+                        expected: "`.csv`",
+                        path: path.node.clone(),
+                        span: path.span,
+                    });
+                    None
+                }
+                ("profiles", _) => {
+                    self.err(CheckError::OutputFormat {
+                        what: "`save profiles`".into(),
+                        expected: "`.csv` or `.json`",
+                        path: path.node.clone(),
+                        span: path.span,
+                    });
+                    None
+                }
+                (other, _) => {
+                    let suggestion = suggest::nearest(other, vocab::SAVE_WHAT);
+                    self.err(CheckError::UnknownWord {
+                        what: "output",
+                        found: other.to_string(),
+                        span: what.span,
+                        choices: "`assignments`, `profiles` or `centroids`".into(),
+                        help: did_you_mean(&suggestion, "save assignments, profiles or centroids"),
+                    });
+                    None
+                }
+            };
+            let Some(kind) = kind else {
+                ok = false;
+                continue;
+            };
+            if let Some(i) = input {
+                if same_file(&resolved, &i.plan.resolved) {
+                    self.err(CheckError::OutputIsInput {
+                        path: path.node.clone(),
+                        span: path.span,
+                        input: i.path_span,
+                    });
+                    ok = false;
+                    continue;
+                }
+            }
+            if let Some(j) = out.iter().position(|o| same_file(&o.resolved, &resolved)) {
+                self.err(CheckError::OutputTwice {
+                    path: path.node.clone(),
+                    span: path.span,
+                    first: spans[j],
+                });
+                ok = false;
+                continue;
+            }
+            spans.push(path.span);
+            out.push(OutputPlan {
+                kind,
+                path: path.node.clone(),
+                resolved,
+            });
+        }
+        ok.then_some(out)
+    }
+
+    // ---------------------------------------------------------- helpers --
+
+    /// Options by name, reporting unknown and repeated ones.
+    fn options<'a>(
+        &mut self,
+        statement: &'static str,
+        given: &'a [OptionPair],
+        known: &[vocab::OptionDoc],
+    ) -> HashMap<&'static str, &'a OptionPair> {
+        let mut out: HashMap<&'static str, &'a OptionPair> = HashMap::new();
+        for o in given {
+            let Some(doc) = known.iter().find(|d| d.name == o.name.node) else {
+                let suggestion = suggest::nearest(&o.name.node, vocab::names(known));
+                let all: Vec<String> = vocab::names(known).map(|n| format!("`{n}`")).collect();
+                self.err(CheckError::UnknownOption {
+                    statement,
+                    option: o.name.node.clone(),
+                    span: o.name.span,
+                    help: did_you_mean(
+                        &suggestion,
+                        &format!("`{statement}` takes {}", all.join(", ")),
+                    ),
+                });
+                continue;
+            };
+            if let Some(prev) = out.get(doc.name) {
+                self.err(CheckError::Conflict {
+                    what: format!("option `{}`", doc.name),
+                    span: o.name.span,
+                    first: prev.name.span,
+                });
+                continue;
+            }
+            out.insert(doc.name, o);
+        }
+        out
+    }
+
+    fn whole_option(
+        &mut self,
+        opts: &HashMap<&'static str, &OptionPair>,
+        name: &str,
+        min: i64,
+        default: usize,
+    ) -> Option<usize> {
+        let Some(o) = opts.get(name) else {
+            return Some(default);
+        };
+        match &o.value.node {
+            Value::Number(n) => match n.as_whole() {
+                Some(v) if v >= min => Some(v as usize),
+                _ => {
+                    self.bad_value(
+                        name,
+                        &o.value.node,
+                        &format!("a whole number, {min} or more"),
+                        o.value.span,
+                        &format!("for example `{name} {default}`"),
+                    );
+                    None
+                }
+            },
+            other => {
+                self.bad_value(
+                    name,
+                    other,
+                    "a whole number",
+                    o.value.span,
+                    &format!("for example `{name} {default}`"),
+                );
+                None
+            }
+        }
+    }
+
+    fn positive(&mut self, name: &str, value: &Spanned<Value>) -> Option<f64> {
+        match &value.node {
+            Value::Number(n) if n.value.is_finite() && n.value > 0.0 => Some(n.value),
+            other => {
+                self.bad_value(
+                    name,
+                    other,
+                    "a number above 0",
+                    value.span,
+                    "1 counts as one feature; 2 as two; 0.5 as half of one",
+                );
+                None
+            }
+        }
+    }
+
+    fn bad_value(&mut self, option: &str, found: &Value, expected: &str, span: Span, help: &str) {
+        let found = match found {
+            Value::Number(_) | Value::Range(..) => format!("`{found}`"),
+            other => format!("{} `{other}`", other.kind_name()),
+        };
+        self.err(CheckError::BadValue {
+            option: option.into(),
+            found,
+            expected: expected.into(),
+            span,
+            help: help.into(),
+        });
+    }
+
+    /// A word from a fixed list, with a suggestion when it is not.
+    fn word_choice<T>(
+        &mut self,
+        what: &'static str,
+        word: &Spanned<String>,
+        names: &[&'static str],
+        parse: fn(&str) -> Option<T>,
+    ) -> Option<T> {
+        if let Some(v) = parse(&word.node) {
+            return Some(v);
+        }
+        let suggestion = suggest::nearest(&word.node, names.iter().copied());
+        let choices: Vec<String> = names.iter().map(|n| format!("`{n}`")).collect();
+        self.err(CheckError::UnknownWord {
+            what,
+            found: word.node.clone(),
+            span: word.span,
+            choices: choices.join(", "),
+            help: did_you_mean(
+                &suggestion,
+                &format!("choose one of {}", choices.join(", ")),
+            ),
+        });
+        None
+    }
+}
+
+/// The input as checked, with the spans later checks point back at.
+struct CheckedInput {
+    plan: InputPlan,
+    key_span: Span,
+    path_span: Span,
+}
+
+fn f_mut(plans: &mut [FeaturePlan], i: usize) -> &mut FeaturePlan {
+    &mut plans[i]
+}
+
+/// The statement word as a `'static` string; every word that reaches here
+/// is one of the grammar's statement words.
+fn word_static(word: &str) -> &'static str {
+    SINGLE
+        .iter()
+        .find(|w| **w == word)
+        .copied()
+        .unwrap_or("statement")
+}
+
+/// Whether two paths name the same file: lexically after dropping `.`
+/// components, or, when both exist, by their canonical paths.
+fn same_file(a: &Path, b: &Path) -> bool {
+    let norm = |p: &Path| {
+        p.components()
+            .filter(|c| !matches!(c, Component::CurDir))
+            .collect::<PathBuf>()
+    };
+    if norm(a) == norm(b) {
+        return true;
+    }
+    match (a.canonicalize(), b.canonicalize()) {
+        (Ok(x), Ok(y)) => x == y,
+        _ => false,
+    }
+}

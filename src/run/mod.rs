@@ -1,1 +1,426 @@
-//! placeholder
+//! Run: the interpreter. Takes a checked [`Plan`] (nothing else), reads the
+//! data, prepares the matrix, fits k-means for every k asked for, judges
+//! each k, chooses one, and builds profiles in original units.
+//!
+//! Nothing is written here: [`crate::output`] turns the [`Outcome`] into
+//! tables and files, only once the whole run has succeeded.
+
+pub mod error;
+pub mod load;
+pub mod prepare;
+
+use crate::engine::{self, compare, criteria, kmeans};
+use crate::plan::{ChooseK, Criterion, Plan};
+pub use error::RunError;
+use prepare::Prepared;
+use serde::Serialize;
+use std::collections::HashMap;
+
+/// Stream number base for silhouette samples (k-means uses `(k << 32) | r`).
+const SILHOUETTE_STREAM: u64 = 1 << 63;
+
+/// When fewer than this share of restarts reach the best partition (or only
+/// one does), the run advises more restarts.
+pub const RESTART_ADVICE_SHARE: f64 = 0.2;
+
+/// One row of the sweep: a k and what judged it.
+#[derive(Debug, Clone, Serialize)]
+pub struct SweepRow {
+    pub k: usize,
+    pub within_ss: f64,
+    pub silhouette: f64,
+    pub silhouette_evaluated: usize,
+    pub calinski_harabasz: f64,
+    pub davies_bouldin: f64,
+    pub restarts_at_best: usize,
+    pub restarts: usize,
+    pub converged: bool,
+}
+
+impl SweepRow {
+    pub fn value(&self, c: Criterion) -> f64 {
+        match c {
+            Criterion::Silhouette => self.silhouette,
+            Criterion::CalinskiHarabasz => self.calinski_harabasz,
+            Criterion::DaviesBouldin => self.davies_bouldin,
+        }
+    }
+}
+
+/// A record's place in the chosen segmentation.
+#[derive(Debug, Clone, Serialize)]
+pub struct Assignment {
+    pub key: String,
+    /// 1-based segment number.
+    pub segment: usize,
+    pub distance: f64,
+    pub margin: f64,
+}
+
+/// A feature's summary within a group of records, in original units.
+#[derive(Debug, Clone, Serialize)]
+pub struct FeatureSummary {
+    pub mean: f64,
+    /// (group mean - overall mean) / overall standard deviation.
+    pub std_diff: f64,
+}
+
+/// One segment (or, for the overall profile, all records).
+#[derive(Debug, Clone, Serialize)]
+pub struct Profile {
+    pub segment: Option<usize>,
+    pub label: Option<String>,
+    pub size: usize,
+    pub share: f64,
+    pub features: Vec<FeatureSummary>,
+    /// Per category, the share of each level (in the level order of
+    /// [`prepare::CategoryParams::levels`]).
+    pub categories: Vec<Vec<f64>>,
+    /// The segment's centre in original units (none for the overall row).
+    pub centre: Option<Vec<f64>>,
+    pub silhouette: Option<f64>,
+}
+
+/// How the segments compare with a known grouping.
+#[derive(Debug, Clone, Serialize)]
+pub struct Validation {
+    pub column: String,
+    pub adjusted_rand_index: f64,
+    pub matched: usize,
+    /// Segmented records with no entry in the known grouping.
+    pub unmatched: usize,
+}
+
+/// Everything a run found.
+#[derive(Debug, Clone)]
+pub struct Outcome {
+    pub plan: Plan,
+    pub records: usize,
+    pub prepared: Prepared,
+    pub sweep: Vec<SweepRow>,
+    pub chosen: usize,
+    /// One sentence: the rule that chose k.
+    pub reason: String,
+    /// When the criteria would choose different k, in plain words.
+    pub disagreement: Option<String>,
+    /// Advice on restarts, one sentence per k that needs it.
+    pub advice: Vec<String>,
+    pub assignments: Vec<Assignment>,
+    pub profiles: Vec<Profile>,
+    pub overall: Profile,
+    pub validation: Option<Validation>,
+}
+
+/// Runs a plan.
+pub fn run(plan: &Plan) -> Result<Outcome, RunError> {
+    let numeric: Vec<String> = plan.features.iter().map(|f| f.column.clone()).collect();
+    let text: Vec<String> = plan.categories.iter().map(|c| c.column.clone()).collect();
+    let table = load::load(
+        &plan.input.resolved,
+        &plan.input.path,
+        plan.input.separator,
+        &load::Columns {
+            key: &plan.input.key,
+            numeric: &numeric,
+            text: &text,
+        },
+    )?;
+    let prepared = prepare::prepare(plan, &table)?;
+    let n = prepared.kept.len();
+    if let Some(&most) = plan.kmeans.ks.last() {
+        if most > n {
+            return Err(RunError::TooFewRecords { k: most, n });
+        }
+    }
+
+    let mut fits = Vec::with_capacity(plan.kmeans.ks.len());
+    let mut sweep = Vec::with_capacity(plan.kmeans.ks.len());
+    let mut per_segment_silhouette = Vec::new();
+    for &k in &plan.kmeans.ks {
+        let settings = kmeans::KMeansSettings {
+            k,
+            restarts: plan.kmeans.restarts,
+            max_rounds: plan.kmeans.rounds,
+            tolerance: plan.kmeans.tolerance,
+            seeding: plan.kmeans.seeding,
+            seed: plan.seed,
+        };
+        let x = prepared.matrix.view();
+        let fit = kmeans::kmeans(x, &settings).map_err(|source| RunError::Engine { k, source })?;
+        let sil = criteria::silhouette(x, &fit.labels, k, plan.seed, SILHOUETTE_STREAM | k as u64);
+        sweep.push(SweepRow {
+            k,
+            within_ss: fit.inertia,
+            silhouette: sil.mean,
+            silhouette_evaluated: sil.evaluated,
+            calinski_harabasz: criteria::calinski_harabasz(x, &fit.labels, k),
+            davies_bouldin: criteria::davies_bouldin(x, &fit.labels, k),
+            restarts_at_best: fit.restarts_at_best,
+            restarts: fit.restarts,
+            converged: fit.converged,
+        });
+        per_segment_silhouette.push(sil.per_segment);
+        fits.push(fit);
+    }
+
+    let (chosen, reason) = choose(plan, &sweep);
+    let disagreement = disagreement(&sweep);
+    let advice = advice(&sweep);
+    let at = plan
+        .kmeans
+        .ks
+        .iter()
+        .position(|&k| k == chosen)
+        .unwrap_or(0);
+    let fit = &fits[at];
+
+    let nearest = kmeans::nearest_with_margin(prepared.matrix.view(), fit.centroids.view());
+    let assignments = prepared
+        .kept
+        .iter()
+        .zip(&nearest)
+        .map(|(&row, &(seg, distance, margin))| Assignment {
+            key: table.keys[row].clone(),
+            segment: seg as usize + 1,
+            distance,
+            margin,
+        })
+        .collect::<Vec<_>>();
+
+    let overall = profile(&prepared, None, None, None, None);
+    let profiles = (0..chosen)
+        .map(|s| {
+            let members: Vec<usize> = fit
+                .labels
+                .iter()
+                .enumerate()
+                .filter(|(_, &l)| l as usize == s)
+                .map(|(i, _)| i)
+                .collect();
+            let centre: Vec<f64> = prepared
+                .features
+                .iter()
+                .enumerate()
+                .map(|(f, p)| p.to_original(fit.centroids[[s, f]]))
+                .collect();
+            let mut p = profile(
+                &prepared,
+                Some(&members),
+                Some(&overall),
+                Some(centre),
+                per_segment_silhouette[at].get(s).copied(),
+            );
+            p.segment = Some(s + 1);
+            p.label = plan.labels.get(&(s + 1)).cloned();
+            p
+        })
+        .collect();
+
+    let validation = match &plan.validate {
+        Some(v) => Some(validate(plan, v, &assignments)?),
+        None => None,
+    };
+
+    Ok(Outcome {
+        plan: plan.clone(),
+        records: table.keys.len(),
+        prepared,
+        sweep,
+        chosen,
+        reason,
+        disagreement,
+        advice,
+        assignments,
+        profiles,
+        overall,
+        validation,
+    })
+}
+
+/// The k a criterion prefers: best value, ties to the smaller k. A value
+/// that is not a number never wins.
+pub fn best_k(sweep: &[SweepRow], c: Criterion) -> Option<&SweepRow> {
+    let better = |a: f64, b: f64| if c.higher_is_better() { a > b } else { a < b };
+    let mut best: Option<&SweepRow> = None;
+    for row in sweep {
+        let v = row.value(c);
+        if v.is_nan() {
+            continue;
+        }
+        if best.is_none_or(|b| better(v, b.value(c))) {
+            best = Some(row);
+        }
+    }
+    best
+}
+
+fn choose(plan: &Plan, sweep: &[SweepRow]) -> (usize, String) {
+    let ks = &plan.kmeans.ks;
+    let span = match ks.as_slice() {
+        [k] => format!("k = {k}"),
+        _ => format!("k = {}..{}", ks[0], ks[ks.len() - 1]),
+    };
+    match plan.choose {
+        ChooseK::Fixed(k) if ks.len() == 1 => (k, format!("k = {k} is the only k fitted")),
+        ChooseK::Fixed(k) => (k, format!("k = {k} was fixed by the recipe (`choose k {k}`); the sweep over {span} is shown as evidence")),
+        ChooseK::By(c) => match best_k(sweep, c) {
+            Some(row) => {
+                let word = if c.higher_is_better() { "highest" } else { "lowest" };
+                (row.k, format!("k = {} has the {word} {} ({}) among {span}", row.k, c.name(), fmt_criterion(row.value(c))))
+            }
+            // Every value was undefined: fall back to the smallest k and say so.
+            None => (ks[0], format!("k = {}: no k had a defined {}, so the smallest was kept", ks[0], c.name())),
+        },
+    }
+}
+
+fn fmt_criterion(v: f64) -> String {
+    if v.is_finite() {
+        format!("{v:.4}")
+    } else {
+        "infinite".into()
+    }
+}
+
+/// A sentence when the three criteria point at different k.
+fn disagreement(sweep: &[SweepRow]) -> Option<String> {
+    if sweep.len() < 2 {
+        return None;
+    }
+    let picks: Vec<(Criterion, usize)> = [
+        Criterion::Silhouette,
+        Criterion::CalinskiHarabasz,
+        Criterion::DaviesBouldin,
+    ]
+    .into_iter()
+    .filter_map(|c| best_k(sweep, c).map(|r| (c, r.k)))
+    .collect();
+    if picks.windows(2).all(|w| w[0].1 == w[1].1) {
+        return None;
+    }
+    let parts: Vec<String> = picks
+        .iter()
+        .map(|(c, k)| format!("{} points to k = {k}", c.name()))
+        .collect();
+    Some(format!(
+        "the criteria disagree: {}; look at the profiles of each before settling",
+        parts.join(", ")
+    ))
+}
+
+fn advice(sweep: &[SweepRow]) -> Vec<String> {
+    sweep
+        .iter()
+        .filter(|r| r.restarts > 1 && ((r.restarts_at_best as f64) < RESTART_ADVICE_SHARE * r.restarts as f64 || r.restarts_at_best == 1))
+        .map(|r| {
+            format!(
+                "for k = {} only {} of {} restarts reached the best partition; k-means finds local optima, so more restarts are advisable",
+                r.k, r.restarts_at_best, r.restarts
+            )
+        })
+        .collect()
+}
+
+/// The profile of some kept records (`None`: all of them).
+fn profile(
+    p: &Prepared,
+    members: Option<&[usize]>,
+    overall: Option<&Profile>,
+    centre: Option<Vec<f64>>,
+    silhouette: Option<f64>,
+) -> Profile {
+    let n = p.kept.len();
+    let all: Vec<usize>;
+    let members = match members {
+        Some(m) => m,
+        None => {
+            all = (0..n).collect();
+            &all
+        }
+    };
+    let size = members.len();
+    let features = p
+        .raw
+        .iter()
+        .enumerate()
+        .map(|(f, values)| {
+            let vals: Vec<f64> = members.iter().map(|&i| values[i]).collect();
+            let mean = engine::stats::mean(&vals).unwrap_or(0.0);
+            let std_diff = match overall {
+                Some(o) => {
+                    let sd = engine::stats::sd_population(values).unwrap_or(0.0);
+                    if sd > 0.0 {
+                        (mean - o.features[f].mean) / sd
+                    } else {
+                        0.0
+                    }
+                }
+                None => 0.0,
+            };
+            FeatureSummary { mean, std_diff }
+        })
+        .collect();
+    let categories = p
+        .categories
+        .iter()
+        .zip(&p.codes)
+        .map(|(cat, codes)| {
+            let mut counts = vec![0usize; cat.levels.len()];
+            members.iter().for_each(|&i| counts[codes[i]] += 1);
+            counts
+                .iter()
+                .map(|&c| c as f64 / size.max(1) as f64)
+                .collect()
+        })
+        .collect();
+    Profile {
+        segment: None,
+        label: None,
+        size,
+        share: size as f64 / n.max(1) as f64,
+        features,
+        categories,
+        centre,
+        silhouette,
+    }
+}
+
+/// Joins the segments with the known grouping on the key and scores the
+/// agreement (adjusted Rand index, Hubert and Arabie 1985).
+fn validate(
+    plan: &Plan,
+    v: &crate::plan::ValidatePlan,
+    assignments: &[Assignment],
+) -> Result<Validation, RunError> {
+    let cols = [v.column.clone()];
+    let known = load::load(
+        &v.resolved,
+        &v.path,
+        plan.input.separator,
+        &load::Columns {
+            key: &plan.input.key,
+            numeric: &[],
+            text: &cols,
+        },
+    )?;
+    let group_of: HashMap<&str, &str> = known
+        .keys
+        .iter()
+        .map(String::as_str)
+        .zip(known.text[0].iter().map(String::as_str))
+        .collect();
+    let mut ours = Vec::new();
+    let mut theirs = Vec::new();
+    for a in assignments {
+        if let Some(g) = group_of.get(a.key.as_str()) {
+            ours.push(a.segment);
+            theirs.push(*g);
+        }
+    }
+    Ok(Validation {
+        column: v.column.clone(),
+        adjusted_rand_index: compare::adjusted_rand_index(&ours, &theirs),
+        matched: ours.len(),
+        unmatched: assignments.len() - ours.len(),
+    })
+}

@@ -1,0 +1,316 @@
+//! What the checker can say about a recipe.
+//!
+//! Each kind carries the data it speaks of (names, spans, counts), and its
+//! wording lives on the variant. Message conventions: lowercase, names in
+//! backticks, no trailing period, "found X, expected Y".
+
+use crate::syntax::{ast::Span, SyntaxError};
+use miette::{Diagnostic, GraphicalReportHandler, GraphicalTheme, NamedSource};
+use thiserror::Error;
+
+/// Any problem found in a recipe: syntax or meaning.
+#[derive(Debug, Clone, Error, Diagnostic)]
+pub enum Problem {
+    #[error(transparent)]
+    #[diagnostic(transparent)]
+    Syntax(#[from] SyntaxError),
+    #[error(transparent)]
+    #[diagnostic(transparent)]
+    Check(#[from] CheckError),
+}
+
+impl Problem {
+    pub fn is_error(&self) -> bool {
+        !matches!(
+            self.severity(),
+            Some(miette::Severity::Warning) | Some(miette::Severity::Advice)
+        )
+    }
+}
+
+/// "did you mean `x`?" or a fallback sentence.
+pub(crate) fn did_you_mean(suggestion: &Option<String>, otherwise: &str) -> String {
+    match suggestion {
+        Some(s) => format!("did you mean `{s}`?"),
+        None => otherwise.to_string(),
+    }
+}
+
+#[derive(Debug, Clone, Error, Diagnostic, PartialEq)]
+pub enum CheckError {
+    #[error("unknown statement `{word}`")]
+    #[diagnostic(code(assort::unknown_statement), help("{help}"))]
+    UnknownStatement {
+        word: String,
+        #[label("not a statement word")]
+        span: Span,
+        help: String,
+    },
+
+    #[error("`{statement}` has no option `{option}`")]
+    #[diagnostic(code(assort::unknown_option), help("{help}"))]
+    UnknownOption {
+        statement: &'static str,
+        option: String,
+        #[label("unknown option")]
+        span: Span,
+        help: String,
+    },
+
+    #[error("`{option}` found {found}, expected {expected}")]
+    #[diagnostic(code(assort::bad_value), help("{help}"))]
+    BadValue {
+        option: String,
+        found: String,
+        expected: String,
+        #[label("this value")]
+        span: Span,
+        help: String,
+    },
+
+    #[error("unknown {what} `{found}`")]
+    #[diagnostic(code(assort::unknown_word), help("{help}"))]
+    UnknownWord {
+        what: &'static str,
+        found: String,
+        #[label("expected one of {choices}")]
+        span: Span,
+        choices: String,
+        help: String,
+    },
+
+    #[error("no column `{column}` in `{file}`")]
+    #[diagnostic(code(assort::unknown_column), help("{help}"))]
+    UnknownColumn {
+        column: String,
+        file: String,
+        #[label("not in the header")]
+        span: Span,
+        help: String,
+    },
+
+    #[error(
+        "column `{column}` holds text (such as `{example}`), so it cannot be a numeric feature"
+    )]
+    #[diagnostic(
+        code(assort::text_feature),
+        help("to segment on it, list it as a category instead: `categories {column}`")
+    )]
+    TextFeature {
+        column: String,
+        example: String,
+        #[label("text column")]
+        span: Span,
+    },
+
+    #[error("`{column}` is the key column, so it cannot also be clustered on")]
+    #[diagnostic(
+        code(assort::key_clustered),
+        help("the key identifies records in the outputs; it never takes part in the segmentation")
+    )]
+    KeyClustered {
+        column: String,
+        #[label("the key")]
+        span: Span,
+    },
+
+    #[error("`{column}` is named twice")]
+    #[diagnostic(
+        code(assort::duplicate_column),
+        help("each column is either a feature or a category, once")
+    )]
+    DuplicateColumn {
+        column: String,
+        #[label("named again here")]
+        span: Span,
+        #[label("first named here")]
+        first: Span,
+    },
+
+    #[error("`{column}` is not a numeric feature of this recipe")]
+    #[diagnostic(code(assort::not_a_feature), help("{help}"))]
+    NotAFeature {
+        column: String,
+        #[label("not among the features")]
+        span: Span,
+        help: String,
+    },
+
+    #[error("a recipe takes one `{keyword}` statement, found a second")]
+    #[diagnostic(code(assort::duplicate_statement), help("keep one of them"))]
+    DuplicateStatement {
+        keyword: String,
+        #[label("second")]
+        span: Span,
+        #[label("first")]
+        first: Span,
+    },
+
+    #[error("{what} is given twice")]
+    #[diagnostic(code(assort::conflict), help("keep one of them"))]
+    Conflict {
+        what: String,
+        #[label("second")]
+        span: Span,
+        #[label("first")]
+        first: Span,
+    },
+
+    #[error("the recipe has no `{keyword}` statement")]
+    #[diagnostic(code(assort::missing_statement), help("{help}"))]
+    MissingStatement { keyword: &'static str, help: String },
+
+    #[error("`{statement}` needs the option `{option}`")]
+    #[diagnostic(code(assort::missing_option), help("{help}"))]
+    MissingOption {
+        statement: &'static str,
+        option: &'static str,
+        #[label("add `{option}` here")]
+        span: Span,
+        help: String,
+    },
+
+    #[error("impossible k: {reason}")]
+    #[diagnostic(code(assort::impossible_k), help("{help}"))]
+    ImpossibleK {
+        reason: String,
+        #[label("this k")]
+        span: Span,
+        help: String,
+    },
+
+    #[error("data file `{path}` not found")]
+    #[diagnostic(
+        code(assort::file_not_found),
+        help("paths are read relative to the recipe's folder, here `{folder}`")
+    )]
+    FileNotFound {
+        path: String,
+        folder: String,
+        #[label("no such file")]
+        span: Span,
+    },
+
+    #[error("data file `{path}` cannot be read: {reason}")]
+    #[diagnostic(code(assort::file_unreadable), help("{help}"))]
+    FileUnreadable {
+        path: String,
+        reason: String,
+        #[label("this file")]
+        span: Span,
+        help: String,
+    },
+
+    #[error("path `{path}` leads outside the recipe's folder")]
+    #[diagnostic(
+        code(assort::path_outside),
+        help("write paths relative to the recipe's folder, without `..` or a leading `/`; a recipe from someone else may only touch its own folder")
+    )]
+    PathOutside {
+        path: String,
+        #[label("outside the recipe's folder")]
+        span: Span,
+    },
+
+    #[error("output `{path}` would overwrite the input data")]
+    #[diagnostic(
+        code(assort::output_is_input),
+        help("write outputs to another file, for example under `out/`")
+    )]
+    OutputIsInput {
+        path: String,
+        #[label("output")]
+        span: Span,
+        #[label("input")]
+        input: Span,
+    },
+
+    #[error("two outputs write to `{path}`")]
+    #[diagnostic(code(assort::output_twice), help("give each output its own file"))]
+    OutputTwice {
+        path: String,
+        #[label("second")]
+        span: Span,
+        #[label("first")]
+        first: Span,
+    },
+
+    #[error("{what} must end in {expected}, found `{path}`")]
+    #[diagnostic(
+        code(assort::output_format),
+        help("the file's ending chooses its format")
+    )]
+    OutputFormat {
+        what: String,
+        expected: &'static str,
+        path: String,
+        #[label("this path")]
+        span: Span,
+    },
+
+    #[error("label for segment {segment}, but the recipe makes at most {most} segments")]
+    #[diagnostic(
+        code(assort::label_out_of_range),
+        help("segments are numbered 1 to k, largest first")
+    )]
+    LabelOutOfRange {
+        segment: i64,
+        most: usize,
+        #[label("no such segment")]
+        span: Span,
+    },
+
+    #[error("no features left to cluster on")]
+    #[diagnostic(code(assort::no_features), help("{help}"))]
+    NoFeatures {
+        #[label("selects nothing")]
+        span: Span,
+        help: String,
+    },
+
+    #[error("only one k is fitted, so `choose k by {criterion}` has nothing to choose from")]
+    #[diagnostic(
+        code(assort::nothing_to_choose),
+        severity(Warning),
+        help("give `kmeans` a range such as `k 2..9` to compare several k")
+    )]
+    NothingToChoose {
+        criterion: String,
+        #[label("ignored")]
+        span: Span,
+    },
+}
+
+/// Renders problems as text, with the recipe lines they point at. Colour
+/// only when `colour` is set; golden tests and pipes get none.
+pub fn render(problems: &[Problem], name: &str, text: &str, colour: bool) -> String {
+    let theme = if colour {
+        GraphicalTheme::unicode()
+    } else {
+        GraphicalTheme::unicode_nocolor()
+    };
+    let handler = GraphicalReportHandler::new_themed(theme).with_width(100);
+    let mut out = String::new();
+    for p in problems {
+        let report = miette::Report::new(p.clone())
+            .with_source_code(NamedSource::new(name, text.to_string()));
+        // Writing into a String cannot fail.
+        let _ = handler.render_report(&mut out, report.as_ref());
+        out.push('\n');
+    }
+    out
+}
+
+/// Renders a diagnostic that points at no recipe text (a data or output
+/// problem), in the same style.
+pub fn render_bare(diag: &dyn Diagnostic, colour: bool) -> String {
+    let theme = if colour {
+        GraphicalTheme::unicode()
+    } else {
+        GraphicalTheme::unicode_nocolor()
+    };
+    let handler = GraphicalReportHandler::new_themed(theme).with_width(100);
+    let mut out = String::new();
+    let _ = handler.render_report(&mut out, diag);
+    out
+}

@@ -1,0 +1,162 @@
+//! A look at the data before the run: the header and a sample of rows.
+//!
+//! The checker never reads a whole data file. It reads the header and the
+//! first [`SAMPLE_ROWS`] records to learn each column's kind; when the file
+//! ends within the sample, it also knows the record count.
+
+use std::fs::File;
+use std::path::Path;
+
+/// Records read to judge column kinds.
+pub const SAMPLE_ROWS: usize = 1000;
+
+/// What a column looked like in the sample.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ColumnKind {
+    /// Every non-blank sampled value is a finite number.
+    Numeric,
+    /// Some sampled value is not a number.
+    Text,
+    /// Every sampled value is blank.
+    Blank,
+}
+
+#[derive(Debug, Clone)]
+pub struct ColumnInfo {
+    pub name: String,
+    pub kind: ColumnKind,
+    /// A sampled value that is not a number, for messages.
+    pub text_example: Option<String>,
+}
+
+#[derive(Debug, Clone)]
+pub struct Probe {
+    pub columns: Vec<ColumnInfo>,
+    /// Records seen in the sample.
+    pub sampled: usize,
+    /// The record count, when the whole file fit in the sample.
+    pub rows: Option<usize>,
+}
+
+impl Probe {
+    pub fn column(&self, name: &str) -> Option<&ColumnInfo> {
+        self.columns.iter().find(|c| c.name == name)
+    }
+
+    pub fn names(&self) -> impl Iterator<Item = &str> {
+        self.columns.iter().map(|c| c.name.as_str())
+    }
+}
+
+/// Why a data file could not be probed.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ProbeError {
+    NotFound,
+    Unreadable(String),
+    /// Malformed CSV at a 1-based line.
+    Malformed {
+        line: u64,
+        reason: String,
+    },
+    NoHeader,
+}
+
+/// Whether a field counts as missing: blank after trimming.
+pub fn is_blank(field: &str) -> bool {
+    field.trim().is_empty()
+}
+
+/// Parses a data field as a finite number.
+pub fn parse_number(field: &str) -> Option<f64> {
+    let t = field.trim();
+    // Rust's parser also accepts words like `inf` and `NaN`; data values
+    // must be written as digits.
+    if !t.bytes().any(|b| b.is_ascii_digit()) {
+        return None;
+    }
+    t.parse::<f64>().ok().filter(|v| v.is_finite())
+}
+
+/// Reads the header and a sample of `path`.
+pub fn probe(path: &Path, separator: u8) -> Result<Probe, ProbeError> {
+    let file = File::open(path).map_err(|e| match e.kind() {
+        std::io::ErrorKind::NotFound => ProbeError::NotFound,
+        _ => ProbeError::Unreadable(e.to_string()),
+    })?;
+    let mut reader = csv::ReaderBuilder::new()
+        .delimiter(separator)
+        .has_headers(true)
+        .from_reader(file);
+    let header = reader.headers().map_err(|e| csv_problem(&e))?.clone();
+    if header.is_empty() || header.iter().all(is_blank) {
+        return Err(ProbeError::NoHeader);
+    }
+    let mut columns: Vec<ColumnInfo> = header
+        .iter()
+        .map(|h| ColumnInfo {
+            name: h.trim().to_string(),
+            kind: ColumnKind::Blank,
+            text_example: None,
+        })
+        .collect();
+    let mut sampled = 0;
+    let mut record = csv::StringRecord::new();
+    let mut complete = false;
+    while sampled < SAMPLE_ROWS {
+        match reader.read_record(&mut record) {
+            Ok(true) => {}
+            Ok(false) => {
+                complete = true;
+                break;
+            }
+            Err(e) => return Err(csv_problem(&e)),
+        }
+        sampled += 1;
+        for (col, field) in columns.iter_mut().zip(record.iter()) {
+            if is_blank(field) {
+                continue;
+            }
+            if parse_number(field).is_some() {
+                if col.kind == ColumnKind::Blank {
+                    col.kind = ColumnKind::Numeric;
+                }
+            } else {
+                col.kind = ColumnKind::Text;
+                col.text_example
+                    .get_or_insert_with(|| field.trim().to_string());
+            }
+        }
+    }
+    if !complete {
+        // Exactly SAMPLE_ROWS records: peek once more to know the count.
+        if let Ok(false) = reader.read_record(&mut record) {
+            complete = true;
+        }
+    }
+    Ok(Probe {
+        columns,
+        sampled,
+        rows: complete.then_some(sampled),
+    })
+}
+
+fn csv_problem(e: &csv::Error) -> ProbeError {
+    let line = e.position().map(|p| p.line()).unwrap_or(1);
+    match e.kind() {
+        csv::ErrorKind::Io(io) => ProbeError::Unreadable(io.to_string()),
+        csv::ErrorKind::Utf8 { .. } => ProbeError::Malformed {
+            line,
+            reason: "the text is not valid UTF-8".into(),
+        },
+        csv::ErrorKind::UnequalLengths {
+            expected_len, len, ..
+        } => ProbeError::Malformed {
+            line,
+            reason: format!("found {len} fields, expected {expected_len} as in the header"),
+        },
+        _ => ProbeError::Malformed {
+            line,
+            reason: e.to_string(),
+        },
+    }
+}

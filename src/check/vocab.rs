@@ -1,0 +1,156 @@
+//! The language's vocabulary: statement words and their options, with the
+//! one-line help the checker, the docs and (later) the editor support share.
+
+/// A statement word with a one-line summary and an example.
+pub struct StatementDoc {
+    pub word: &'static str,
+    pub summary: &'static str,
+    pub example: &'static str,
+}
+
+pub const STATEMENTS: &[StatementDoc] = &[
+    StatementDoc {
+        word: "recipe",
+        summary: "names the segmentation",
+        example: r#"recipe "member-segments""#,
+    },
+    StatementDoc {
+        word: "seed",
+        summary: "fixes every random draw, so reruns match bit for bit",
+        example: "seed 2026",
+    },
+    StatementDoc {
+        word: "input",
+        summary: "the CSV file (relative to the recipe) and its key column",
+        example: r#"input "data/members.csv" key member_id"#,
+    },
+    StatementDoc {
+        word: "features",
+        summary: "the numeric columns to segment on",
+        example: "features visits_per_month, basket_value",
+    },
+    StatementDoc {
+        word: "categories",
+        summary: "text columns to segment on, one-hot encoded, with a weight",
+        example: "categories home_branch weight 0.5",
+    },
+    StatementDoc {
+        word: "missing",
+        summary: "what to do with missing values: drop the record or fill",
+        example: "missing fill median",
+    },
+    StatementDoc {
+        word: "reshape",
+        summary: "tames skew: log1p, log, sqrt, or clip at quantiles",
+        example: "reshape basket_value log1p",
+    },
+    StatementDoc {
+        word: "scale",
+        summary: "puts features on one footing: zscore, robust, range or none",
+        example: "scale zscore",
+    },
+    StatementDoc {
+        word: "weight",
+        summary: "makes features count more or less in the distance",
+        example: "weight share_fresh 2",
+    },
+    StatementDoc {
+        word: "kmeans",
+        summary: "the method: k fixed or a range, restarts, rounds, tolerance, seeding",
+        example: "kmeans k 2..9 restarts 25",
+    },
+    StatementDoc {
+        word: "choose",
+        summary: "how k is chosen from the range: fixed or by a criterion",
+        example: "choose k by silhouette",
+    },
+    StatementDoc {
+        word: "label",
+        summary: "names a segment after review",
+        example: r#"label 1 "weekly fresh regulars""#,
+    },
+    StatementDoc {
+        word: "save",
+        summary: "writes assignments, profiles (.csv or .json) or centroids",
+        example: r#"save assignments "out/members.csv""#,
+    },
+    StatementDoc {
+        word: "validate",
+        summary: "compares the segments with a known grouping of the same records",
+        example: r#"validate against "data/known.csv" column group"#,
+    },
+];
+
+pub fn statement_words() -> impl Iterator<Item = &'static str> {
+    STATEMENTS.iter().map(|s| s.word)
+}
+
+/// An option of a statement and the value it takes.
+pub struct OptionDoc {
+    pub name: &'static str,
+    pub takes: &'static str,
+    pub summary: &'static str,
+}
+
+pub const INPUT_OPTIONS: &[OptionDoc] = &[
+    OptionDoc {
+        name: "key",
+        takes: "a column name",
+        summary: "the column that identifies each record; kept, never clustered (required)",
+    },
+    OptionDoc {
+        name: "separator",
+        takes: "one quoted character",
+        summary: r#"the field separator, `","` unless given"#,
+    },
+];
+
+pub const CATEGORIES_OPTIONS: &[OptionDoc] = &[OptionDoc {
+    name: "weight",
+    takes: "a positive number",
+    summary: "how much a category counts, 1 unless given (1 = at most one z-scored feature)",
+}];
+
+pub const KMEANS_OPTIONS: &[OptionDoc] = &[
+    OptionDoc {
+        name: "k",
+        takes: "a whole number or a range such as `2..9`",
+        summary: "how many segments, or the range to try (required)",
+    },
+    OptionDoc {
+        name: "restarts",
+        takes: "a whole number",
+        summary: "independent starts per k; the best is kept (10 unless given)",
+    },
+    OptionDoc {
+        name: "rounds",
+        takes: "a whole number",
+        summary: "the most assign/re-centre rounds per start (300 unless given)",
+    },
+    OptionDoc {
+        name: "tolerance",
+        takes: "a number at least 0",
+        summary: "stop when centres move less than this, relative to the data's spread (1e-6 unless given)",
+    },
+    OptionDoc {
+        name: "seeding",
+        takes: "`kmeans++` or `random-partition`",
+        summary: "how each start picks its first centres (`kmeans++` unless given)",
+    },
+];
+
+pub const VALIDATE_OPTIONS: &[OptionDoc] = &[OptionDoc {
+    name: "column",
+    takes: "a column name",
+    summary: "the column holding the known grouping (required)",
+}];
+
+/// What `save` can write.
+pub const SAVE_WHAT: [&str; 3] = ["assignments", "profiles", "centroids"];
+
+/// Fill words `missing fill` takes besides a number.
+pub const FILL_WORDS: [&str; 2] = ["median", "mean"];
+
+pub fn names(options: &[OptionDoc]) -> impl Iterator<Item = &'static str> + '_ {
+    options.iter().map(|o| o.name)
+}

@@ -1,0 +1,256 @@
+//! Output files: assignments, profiles (CSV or JSON) and centroids, built in
+//! memory, then written atomically.
+//!
+//! Numbers in CSV files carry six decimals; JSON numbers are written in
+//! full (shortest form that reads back to the same value). Both are fixed by
+//! the values alone, so identical results give identical bytes.
+
+use crate::plan::{OutputKind, OutputPlan};
+use crate::run::{Outcome, Profile, RunError};
+use serde::Serialize;
+use std::path::{Path, PathBuf};
+
+/// A file's path and its full contents.
+pub struct Rendered {
+    pub path: PathBuf,
+    pub shown: String,
+    pub bytes: Vec<u8>,
+}
+
+/// Builds every output the plan names.
+pub fn render_all(o: &Outcome) -> Vec<Rendered> {
+    o.plan.outputs.iter().map(|out| render(o, out)).collect()
+}
+
+fn render(o: &Outcome, out: &OutputPlan) -> Rendered {
+    let bytes = match out.kind {
+        OutputKind::Assignments => assignments(o),
+        OutputKind::ProfilesCsv => profiles_csv(o),
+        OutputKind::ProfilesJson => profiles_json(o),
+        OutputKind::Centroids => centroids(o),
+    };
+    Rendered {
+        path: out.resolved.clone(),
+        shown: out.path.clone(),
+        bytes,
+    }
+}
+
+fn f6(v: f64) -> String {
+    if v.is_finite() {
+        format!("{v:.6}")
+    } else {
+        String::new()
+    }
+}
+
+fn csv_bytes(rows: Vec<Vec<String>>) -> Vec<u8> {
+    let mut w = csv::WriterBuilder::new()
+        .terminator(csv::Terminator::Any(b'\n'))
+        .from_writer(Vec::new());
+    for r in rows {
+        // Writing to memory cannot fail.
+        let _ = w.write_record(&r);
+    }
+    w.into_inner().unwrap_or_default()
+}
+
+fn label_of(o: &Outcome, segment: usize) -> String {
+    o.plan.labels.get(&segment).cloned().unwrap_or_default()
+}
+
+fn assignments(o: &Outcome) -> Vec<u8> {
+    let mut rows = vec![vec![
+        o.plan.input.key.clone(),
+        "segment".into(),
+        "label".into(),
+        "distance".into(),
+        "margin".into(),
+    ]];
+    for a in &o.assignments {
+        rows.push(vec![
+            a.key.clone(),
+            a.segment.to_string(),
+            label_of(o, a.segment),
+            f6(a.distance),
+            f6(a.margin),
+        ]);
+    }
+    csv_bytes(rows)
+}
+
+/// Column names for category levels: `column=level`.
+fn level_names(o: &Outcome) -> Vec<String> {
+    o.prepared
+        .categories
+        .iter()
+        .flat_map(|c| c.levels.iter().map(move |l| format!("{}={}", c.column, l)))
+        .collect()
+}
+
+fn level_shares(p: &Profile) -> Vec<String> {
+    p.categories.iter().flatten().map(|&v| f6(v)).collect()
+}
+
+fn profiles_csv(o: &Outcome) -> Vec<u8> {
+    let mut header: Vec<String> = ["segment", "label", "size", "share", "silhouette"]
+        .iter()
+        .map(|s| s.to_string())
+        .collect();
+    for f in &o.prepared.features {
+        header.push(format!("{}_mean", f.column));
+        header.push(format!("{}_std_diff", f.column));
+    }
+    header.extend(level_names(o));
+    let mut rows = vec![header];
+    for p in std::iter::once(&o.overall).chain(&o.profiles) {
+        let mut r = vec![
+            p.segment
+                .map(|s| s.to_string())
+                .unwrap_or_else(|| "all".into()),
+            p.label.clone().unwrap_or_default(),
+            p.size.to_string(),
+            f6(p.share),
+            p.silhouette.map(f6).unwrap_or_default(),
+        ];
+        for fs in &p.features {
+            r.push(f6(fs.mean));
+            r.push(if p.segment.is_some() {
+                f6(fs.std_diff)
+            } else {
+                String::new()
+            });
+        }
+        r.extend(level_shares(p));
+        rows.push(r);
+    }
+    csv_bytes(rows)
+}
+
+fn centroids(o: &Outcome) -> Vec<u8> {
+    let mut header = vec!["segment".to_string(), "label".to_string()];
+    header.extend(o.prepared.features.iter().map(|f| f.column.clone()));
+    header.extend(level_names(o));
+    let mut rows = vec![header];
+    for p in &o.profiles {
+        let seg = p.segment.unwrap_or(0);
+        let mut r = vec![seg.to_string(), label_of(o, seg)];
+        r.extend(p.centre.iter().flatten().map(|&v| f6(v)));
+        r.extend(level_shares(p));
+        rows.push(r);
+    }
+    csv_bytes(rows)
+}
+
+#[derive(Serialize)]
+struct JsonProfiles<'a> {
+    format: &'static str,
+    recipe: &'a str,
+    k: usize,
+    features: Vec<&'a str>,
+    categories: Vec<JsonCategory<'a>>,
+    overall: JsonProfile<'a>,
+    segments: Vec<JsonProfile<'a>>,
+}
+
+#[derive(Serialize)]
+struct JsonCategory<'a> {
+    column: &'a str,
+    levels: &'a [String],
+}
+
+#[derive(Serialize)]
+struct JsonProfile<'a> {
+    segment: Option<usize>,
+    label: Option<&'a str>,
+    size: usize,
+    share: f64,
+    silhouette: Option<f64>,
+    means: Vec<f64>,
+    std_diffs: Option<Vec<f64>>,
+    centre: Option<&'a [f64]>,
+    level_shares: &'a [Vec<f64>],
+}
+
+fn json_profile(p: &Profile) -> JsonProfile<'_> {
+    JsonProfile {
+        segment: p.segment,
+        label: p.label.as_deref(),
+        size: p.size,
+        share: p.share,
+        silhouette: p.silhouette,
+        means: p.features.iter().map(|f| f.mean).collect(),
+        std_diffs: p
+            .segment
+            .map(|_| p.features.iter().map(|f| f.std_diff).collect()),
+        centre: p.centre.as_deref(),
+        level_shares: &p.categories,
+    }
+}
+
+fn profiles_json(o: &Outcome) -> Vec<u8> {
+    let doc = JsonProfiles {
+        format: "assort-profiles/1",
+        recipe: &o.plan.name,
+        k: o.chosen,
+        features: o
+            .prepared
+            .features
+            .iter()
+            .map(|f| f.column.as_str())
+            .collect(),
+        categories: o
+            .prepared
+            .categories
+            .iter()
+            .map(|c| JsonCategory {
+                column: &c.column,
+                levels: &c.levels,
+            })
+            .collect(),
+        overall: json_profile(&o.overall),
+        segments: o.profiles.iter().map(json_profile).collect(),
+    };
+    let mut bytes = serde_json::to_vec_pretty(&doc).unwrap_or_default();
+    bytes.push(b'\n');
+    bytes
+}
+
+/// Writes every file to a temporary sibling, then renames them all into
+/// place. On any failure the temporaries are removed and no target is
+/// touched (renames happen only once every temporary is complete).
+pub fn write_all(files: &[Rendered]) -> Result<(), RunError> {
+    let mut temps: Vec<PathBuf> = Vec::new();
+    let fail = |temps: &[PathBuf], path: &str, e: std::io::Error| {
+        for t in temps {
+            let _ = std::fs::remove_file(t);
+        }
+        RunError::Write {
+            path: path.to_string(),
+            reason: e.to_string(),
+        }
+    };
+    for f in files {
+        if let Some(dir) = f.path.parent() {
+            if !dir.as_os_str().is_empty() {
+                std::fs::create_dir_all(dir).map_err(|e| fail(&temps, &f.shown, e))?;
+            }
+        }
+        let tmp = temp_path(&f.path);
+        std::fs::write(&tmp, &f.bytes).map_err(|e| fail(&temps, &f.shown, e))?;
+        temps.push(tmp);
+    }
+    for (f, tmp) in files.iter().zip(&temps) {
+        std::fs::rename(tmp, &f.path).map_err(|e| fail(&temps, &f.shown, e))?;
+    }
+    Ok(())
+}
+
+fn temp_path(target: &Path) -> PathBuf {
+    let mut name = target
+        .file_name()
+        .map(|n| n.to_os_string())
+        .unwrap_or_default();
+    name.push(format!(".{}.tmp-assort", std::process::id()));
+    target.with_file_name(name)
+}

@@ -1,0 +1,243 @@
+//! Terminal tables: the run summary, the k sweep and the segment profiles,
+//! laid out to read at 100 columns.
+
+use super::short;
+use crate::plan::Seeding;
+use crate::run::{Outcome, Profile};
+use std::fmt::Write;
+
+/// Segments shown side by side before the profile table wraps.
+const SEGMENTS_PER_BLOCK: usize = 5;
+const NAME_WIDTH: usize = 24;
+const CELL: usize = 14;
+
+/// The whole report: summary, sweep, profiles.
+pub fn report(o: &Outcome) -> String {
+    let mut s = String::new();
+    summary(&mut s, o);
+    s.push('\n');
+    sweep(&mut s, o);
+    s.push('\n');
+    profiles(&mut s, o);
+    s
+}
+
+fn summary(s: &mut String, o: &Outcome) {
+    let p = &o.prepared;
+    let plan = &o.plan;
+    let _ = writeln!(s, "recipe `{}`", plan.name);
+    let mut line = format!("  data      {}: {} records", plan.input.path, o.records);
+    if p.dropped > 0 {
+        let _ = write!(
+            line,
+            ", {} dropped for missing values, {} segmented",
+            p.dropped,
+            p.kept.len()
+        );
+        let by: Vec<String> = p
+            .dropped_by
+            .iter()
+            .filter(|(_, c)| *c > 0)
+            .map(|(c, n)| format!("{c} {n}"))
+            .collect();
+        let _ = write!(line, " (missing in {})", by.join(", "));
+    }
+    let _ = writeln!(s, "{line}");
+    let fills: Vec<String> = p
+        .features
+        .iter()
+        .filter(|f| f.filled > 0)
+        .map(|f| {
+            format!(
+                "{} {} filled with {}",
+                f.column,
+                f.filled,
+                short(f.fill.unwrap_or(f64::NAN))
+            )
+        })
+        .collect();
+    if !fills.is_empty() {
+        let _ = writeln!(s, "  missing   {}", fills.join("; "));
+    }
+    let constant: Vec<&str> = p
+        .features
+        .iter()
+        .filter(|f| f.constant)
+        .map(|f| f.column.as_str())
+        .collect();
+    if !constant.is_empty() {
+        let _ = writeln!(
+            s,
+            "  warning   constant after preparation, so no help in telling segments apart: {}",
+            constant.join(", ")
+        );
+    }
+    let cats: Vec<String> = p
+        .categories
+        .iter()
+        .map(|c| format!("{} ({} levels)", c.column, c.levels.len()))
+        .collect();
+    let mut shape = format!("{} numeric features", p.features.len());
+    if !cats.is_empty() {
+        let _ = write!(shape, " + categories {}", cats.join(", "));
+    }
+    let _ = writeln!(
+        s,
+        "  clustered {shape}; scaling `{}`",
+        serde_plain(&plan.scale)
+    );
+}
+
+fn serde_plain<T: serde::Serialize>(v: &T) -> String {
+    serde_json::to_value(v)
+        .ok()
+        .and_then(|v| v.as_str().map(str::to_string))
+        .unwrap_or_default()
+}
+
+fn sweep(s: &mut String, o: &Outcome) {
+    let km = &o.plan.kmeans;
+    let seeding = match km.seeding {
+        Seeding::KMeansPlusPlus => "k-means++ starts",
+        _ => "random-partition starts",
+    };
+    let _ = writeln!(
+        s,
+        "k-means sweep: {} restarts per k, {seeding}, seed {}",
+        km.restarts, o.plan.seed
+    );
+    let _ = writeln!(
+        s,
+        "  {:>3} {:>14} {:>11} {:>17} {:>14} {:>14}",
+        "k", "within SS", "silhouette", "calinski-harabasz", "davies-bouldin", "best reached"
+    );
+    for r in &o.sweep {
+        let mark = if r.k == o.chosen { ">" } else { " " };
+        let reached = format!("{}/{}", r.restarts_at_best, r.restarts);
+        let _ = writeln!(
+            s,
+            "{mark} {:>3} {:>14.3} {:>11.4} {:>17.2} {:>14.4} {:>14}",
+            r.k, r.within_ss, r.silhouette, r.calinski_harabasz, r.davies_bouldin, reached
+        );
+    }
+    let sampled = o
+        .sweep
+        .iter()
+        .find(|r| r.silhouette_evaluated < o.prepared.kept.len());
+    if let Some(r) = sampled {
+        let _ = writeln!(
+            s,
+            "  silhouette estimated from {} records sampled within each segment",
+            r.silhouette_evaluated
+        );
+    }
+    let _ = writeln!(s, "  chosen: {}", o.reason);
+    if let Some(d) = &o.disagreement {
+        let _ = writeln!(s, "  note: {d}");
+    }
+    for a in &o.advice {
+        let _ = writeln!(s, "  advice: {a}");
+    }
+    if let Some(v) = &o.validation {
+        let _ = writeln!(
+            s,
+            "  validation: adjusted Rand index {:.4} against `{}` over {} records{}",
+            v.adjusted_rand_index,
+            v.column,
+            v.matched,
+            if v.unmatched > 0 {
+                format!(" ({} had no known group)", v.unmatched)
+            } else {
+                String::new()
+            }
+        );
+    }
+}
+
+fn profiles(s: &mut String, o: &Outcome) {
+    let _ = writeln!(s, "segments at k = {} (feature means in original units, standardised difference from all in brackets)", o.chosen);
+    for block in o.profiles.chunks(SEGMENTS_PER_BLOCK) {
+        let mut cols: Vec<&Profile> = vec![&o.overall];
+        cols.extend(block.iter());
+        let row = |s: &mut String, name: &str, cells: Vec<String>| {
+            let mut line = format!("  {:<w$}", clip(name, NAME_WIDTH - 1), w = NAME_WIDTH - 2);
+            for (i, c) in cells.iter().enumerate() {
+                let w = if i == 0 { 10 } else { CELL };
+                let _ = write!(line, "{:>w$}", clip(c, w - 1));
+            }
+            let _ = writeln!(s, "{}", line.trim_end());
+        };
+        row(
+            s,
+            "segment",
+            cols.iter()
+                .map(|p| {
+                    p.segment
+                        .map(|n| n.to_string())
+                        .unwrap_or_else(|| "all".into())
+                })
+                .collect(),
+        );
+        if block.iter().any(|p| p.label.is_some()) {
+            row(
+                s,
+                "label",
+                cols.iter()
+                    .map(|p| p.label.clone().unwrap_or_default())
+                    .collect(),
+            );
+        }
+        row(s, "size", cols.iter().map(|p| p.size.to_string()).collect());
+        row(
+            s,
+            "share",
+            cols.iter()
+                .map(|p| format!("{:.1}%", p.share * 100.0))
+                .collect(),
+        );
+        if block.iter().any(|p| p.silhouette.is_some()) {
+            row(
+                s,
+                "silhouette",
+                cols.iter()
+                    .map(|p| p.silhouette.map(|v| format!("{v:.3}")).unwrap_or_default())
+                    .collect(),
+            );
+        }
+        for (f, fp) in o.prepared.features.iter().enumerate() {
+            let cells = cols
+                .iter()
+                .map(|p| {
+                    let fs = &p.features[f];
+                    if p.segment.is_none() {
+                        short(fs.mean)
+                    } else {
+                        format!("{} ({:+.1})", short(fs.mean), fs.std_diff)
+                    }
+                })
+                .collect();
+            row(s, &fp.column, cells);
+        }
+        for (c, cat) in o.prepared.categories.iter().enumerate() {
+            for (l, level) in cat.levels.iter().enumerate() {
+                let cells = cols
+                    .iter()
+                    .map(|p| format!("{:.0}%", p.categories[c][l] * 100.0))
+                    .collect();
+                row(s, &format!("{}={}", cat.column, level), cells);
+            }
+        }
+        s.push('\n');
+    }
+}
+
+/// Shortens text to `w` characters, marking the cut.
+fn clip(text: &str, w: usize) -> String {
+    if text.chars().count() <= w {
+        text.to_string()
+    } else {
+        let mut t: String = text.chars().take(w.saturating_sub(1)).collect();
+        t.push('~');
+        t
+    }
+}

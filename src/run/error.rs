@@ -1,0 +1,123 @@
+//! What can go wrong while running a checked plan: mostly the data itself.
+//! Every data problem names the file, the 1-based line and the column.
+
+use crate::engine::EngineError;
+use miette::Diagnostic;
+use thiserror::Error;
+
+/// A place in a data file: 1-based line, 1-based column (field number) and
+/// the column's name.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Place {
+    pub file: String,
+    pub line: u64,
+    pub column: usize,
+    pub name: String,
+}
+
+impl std::fmt::Display for Place {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(
+            f,
+            "`{}` line {}, column {} (`{}`)",
+            self.file, self.line, self.column, self.name
+        )
+    }
+}
+
+#[derive(Debug, Clone, Error, Diagnostic, PartialEq)]
+pub enum RunError {
+    #[error("cannot read `{file}`: {reason}")]
+    #[diagnostic(
+        code(assort::run::unreadable),
+        help("check that the file exists and can be read")
+    )]
+    Unreadable { file: String, reason: String },
+
+    #[error("`{file}` line {line}: {reason}")]
+    #[diagnostic(
+        code(assort::run::malformed_csv),
+        help(
+            "every line needs as many fields as the header; quote fields that hold the separator"
+        )
+    )]
+    Malformed {
+        file: String,
+        line: u64,
+        reason: String,
+    },
+
+    #[error("{place}: found `{found}`, expected a number")]
+    #[diagnostic(code(assort::run::not_a_number), help("{help}"))]
+    NotANumber {
+        place: Place,
+        found: String,
+        help: String,
+    },
+
+    #[error("{place}: value is missing and the recipe has no rule for missing values in `{}`", place.name)]
+    #[diagnostic(
+        code(assort::run::missing_value),
+        help("add a rule such as `missing fill median` or `missing drop for {}`", place.name)
+    )]
+    MissingValue { place: Place },
+
+    #[error("{place}: key `{key}` appears again (first on line {first_line})")]
+    #[diagnostic(
+        code(assort::run::duplicate_key),
+        help("the key column must identify each record once")
+    )]
+    DuplicateKey {
+        place: Place,
+        key: String,
+        first_line: u64,
+    },
+
+    #[error("{place}: the key is blank")]
+    #[diagnostic(
+        code(assort::run::blank_key),
+        help("every record needs a key, so it can be found in the outputs")
+    )]
+    BlankKey { place: Place },
+
+    #[error("`{file}` has no column `{column}` any more")]
+    #[diagnostic(
+        code(assort::run::column_gone),
+        help("the file changed after the recipe was checked; run again")
+    )]
+    ColumnGone { file: String, column: String },
+
+    #[error("{place}: `{transform}` cannot take {value}")]
+    #[diagnostic(code(assort::run::transform_domain), help("{help}"))]
+    TransformDomain {
+        place: Place,
+        transform: &'static str,
+        value: f64,
+        help: &'static str,
+    },
+
+    #[error("only {n} records remain after missing values are handled; k {k} needs at least {k}")]
+    #[diagnostic(
+        code(assort::run::too_few_records),
+        help("lower k, or fill missing values instead of dropping records")
+    )]
+    TooFewRecords { k: usize, n: usize },
+
+    #[error("k-means for k {k}: {source}")]
+    #[diagnostic(
+        code(assort::run::engine),
+        help("lower k, or add features that tell the records apart")
+    )]
+    Engine {
+        k: usize,
+        #[source]
+        source: EngineError,
+    },
+
+    #[error("cannot write `{path}`: {reason}")]
+    #[diagnostic(
+        code(assort::run::write),
+        help("check that the folder can be written; earlier outputs were left as they were")
+    )]
+    Write { path: String, reason: String },
+}

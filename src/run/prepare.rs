@@ -1,0 +1,320 @@
+//! From the table to the matrix the engine clusters, in a fixed order:
+//!
+//! 1. missing values: records are dropped for columns whose rule says so;
+//!    a missing value under no rule stops the run at its location; fill
+//!    values (median, mean) are computed over the records that remain;
+//! 2. clipping at quantiles (linear interpolation, see
+//!    [`crate::engine::stats::quantile_sorted`]), in original units;
+//! 3. the transform (log1p, log, sqrt);
+//! 4. scaling: z-score (mean, population standard deviation), robust
+//!    (median, interquartile range), range (minimum, maximum) or none;
+//! 5. feature weights: a feature of weight w is multiplied by sqrt(w), so it
+//!    counts w times in the squared distance;
+//! 6. categories: one indicator column per level, sorted by level, valued
+//!    sqrt(w) for the record's level. Two records with different levels are
+//!    then at squared distance 2w, the expected squared distance between two
+//!    random records on one z-scored feature: at weight 1 a category weighs
+//!    on average no more than one z-scored feature. A blank category value is
+//!    a level of its own, `(blank)`.
+//!
+//! Every parameter is kept, so centres can be mapped back to original units
+//! (and, later, new records prepared the same way).
+
+use super::error::{Place, RunError};
+use super::load::Table;
+use crate::engine::stats;
+use crate::plan::{MissingRule, Plan, Scale, Transform};
+use ndarray::Array2;
+use serde::Serialize;
+
+/// How one feature was prepared.
+#[derive(Debug, Clone, Serialize)]
+pub struct FeatureParams {
+    pub column: String,
+    pub fill: Option<f64>,
+    /// Values filled in.
+    pub filled: usize,
+    /// Clip bounds in original units.
+    pub clip: Option<(f64, f64)>,
+    pub transform: Transform,
+    pub centre: f64,
+    pub divisor: f64,
+    /// sqrt(weight).
+    pub multiplier: f64,
+    /// The column was constant after reshaping, so scaling left it at zero.
+    pub constant: bool,
+}
+
+impl FeatureParams {
+    /// Maps a clustered coordinate back to original units (clipping cannot
+    /// be undone, so the value is within the clip bounds).
+    pub fn to_original(&self, v: f64) -> f64 {
+        let t = v / self.multiplier * self.divisor + self.centre;
+        match self.transform {
+            Transform::None => t,
+            Transform::Log1p => libm::expm1(t),
+            Transform::Log => libm::exp(t),
+            Transform::Sqrt => t * t,
+        }
+    }
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct CategoryParams {
+    pub column: String,
+    pub levels: Vec<String>,
+    pub value: f64,
+}
+
+/// The matrix and everything needed to read it.
+#[derive(Debug, Clone)]
+pub struct Prepared {
+    /// Kept records by (features, then one column per category level).
+    pub matrix: Array2<f64>,
+    /// Indices into the table of the records kept.
+    pub kept: Vec<usize>,
+    /// Per feature, the kept records' values after filling, original units.
+    pub raw: Vec<Vec<f64>>,
+    /// Per category, each kept record's level index.
+    pub codes: Vec<Vec<usize>>,
+    pub features: Vec<FeatureParams>,
+    pub categories: Vec<CategoryParams>,
+    /// Records dropped for missing values, by column (a record missing in
+    /// two such columns counts in both).
+    pub dropped_by: Vec<(String, usize)>,
+    pub dropped: usize,
+}
+
+pub const BLANK_LEVEL: &str = "(blank)";
+
+pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
+    let n = table.keys.len();
+
+    // 1. Missing values.
+    let mut keep = vec![true; n];
+    let mut dropped_by = Vec::new();
+    for (f, fp) in plan.features.iter().enumerate() {
+        if fp.missing == MissingRule::DropRow {
+            let mut count = 0;
+            for (row, v) in table.numeric[f].iter().enumerate() {
+                if v.is_none() {
+                    count += 1;
+                    keep[row] = false;
+                }
+            }
+            dropped_by.push((fp.column.clone(), count));
+        }
+    }
+    let kept: Vec<usize> = (0..n).filter(|&i| keep[i]).collect();
+    let mut raw = Vec::with_capacity(plan.features.len());
+    let mut params = Vec::with_capacity(plan.features.len());
+    for (f, fp) in plan.features.iter().enumerate() {
+        let col = &table.numeric[f];
+        let present: Vec<f64> = kept.iter().filter_map(|&i| col[i]).collect();
+        let fill = match fp.missing {
+            MissingRule::FillMedian => stats::median(&present),
+            MissingRule::FillMean => stats::mean(&present),
+            MissingRule::FillValue(v) => Some(v),
+            MissingRule::Refuse | MissingRule::DropRow => None,
+        };
+        let mut values = Vec::with_capacity(kept.len());
+        let mut filled = 0;
+        for &i in &kept {
+            match (col[i], fill) {
+                (Some(v), _) => values.push(v),
+                (None, Some(v)) => {
+                    filled += 1;
+                    values.push(v);
+                }
+                (None, None) => {
+                    // A column whose values are all missing has no median;
+                    // this also lands here, at its first record.
+                    return Err(RunError::MissingValue {
+                        place: located(plan, table, i, f),
+                    });
+                }
+            }
+        }
+        raw.push(values);
+        params.push(FeatureParams {
+            column: fp.column.clone(),
+            fill,
+            filled,
+            clip: None,
+            transform: fp.transform,
+            centre: 0.0,
+            divisor: 1.0,
+            multiplier: fp.weight.sqrt(),
+            constant: false,
+        });
+    }
+
+    // 2-5. Clip, transform, scale, weight.
+    let n_kept = kept.len();
+    let width = plan.features.len();
+    let mut columns: Vec<Vec<f64>> = Vec::with_capacity(width);
+    for (f, fp) in plan.features.iter().enumerate() {
+        let mut v = raw[f].clone();
+        if let Some((lo, hi)) = fp.clip {
+            let s = stats::sorted(&v);
+            let (a, b) = (
+                stats::quantile_sorted(&s, lo),
+                stats::quantile_sorted(&s, hi),
+            );
+            if let (Some(a), Some(b)) = (a, b) {
+                v.iter_mut().for_each(|x| *x = x.clamp(a, b));
+                params[f].clip = Some((a, b));
+            }
+        }
+        for (j, x) in v.iter_mut().enumerate() {
+            *x = transform(fp.transform, *x).map_err(|(name, help)| RunError::TransformDomain {
+                place: located(plan, table, kept[j], f),
+                transform: name,
+                value: *x,
+                help,
+            })?;
+        }
+        let (centre, divisor) = scale_params(plan.scale, &v);
+        let constant = divisor == 0.0;
+        let divisor = if constant { 1.0 } else { divisor };
+        let m = params[f].multiplier;
+        v.iter_mut().for_each(|x| {
+            *x = if constant {
+                0.0
+            } else {
+                (*x - centre) / divisor * m
+            }
+        });
+        params[f].centre = centre;
+        params[f].divisor = divisor;
+        params[f].constant = constant;
+        columns.push(v);
+    }
+
+    // 6. Categories.
+    let mut categories = Vec::new();
+    let mut codes = Vec::new();
+    for (c, cp) in plan.categories.iter().enumerate() {
+        let level_of = |s: &str| {
+            if s.is_empty() {
+                BLANK_LEVEL.to_string()
+            } else {
+                s.to_string()
+            }
+        };
+        let mut levels: Vec<String> = kept.iter().map(|&i| level_of(&table.text[c][i])).collect();
+        levels.sort();
+        levels.dedup();
+        let code: Vec<usize> = kept
+            .iter()
+            .map(|&i| {
+                let l = level_of(&table.text[c][i]);
+                // Every kept record's level is in `levels`, built from them.
+                levels.binary_search(&l).unwrap_or(0)
+            })
+            .collect();
+        codes.push(code);
+        categories.push(CategoryParams {
+            column: cp.column.clone(),
+            levels,
+            value: cp.weight.sqrt(),
+        });
+    }
+
+    let total_width = width + categories.iter().map(|c| c.levels.len()).sum::<usize>();
+    let mut matrix = Array2::zeros((n_kept, total_width));
+    for (f, col) in columns.iter().enumerate() {
+        for (r, &v) in col.iter().enumerate() {
+            matrix[[r, f]] = v;
+        }
+    }
+    let mut offset = width;
+    for (cat, code) in categories.iter().zip(&codes) {
+        for (r, &l) in code.iter().enumerate() {
+            matrix[[r, offset + l]] = cat.value;
+        }
+        offset += cat.levels.len();
+    }
+    Ok(Prepared {
+        matrix,
+        dropped: n - n_kept,
+        kept,
+        raw,
+        codes,
+        features: params,
+        categories,
+        dropped_by,
+    })
+}
+
+/// The place of feature `f` of table row `row`, with its field number.
+fn located(plan: &Plan, table: &Table, row: usize, f: usize) -> Place {
+    Place {
+        file: plan.input.path.clone(),
+        line: table.lines[row],
+        column: table_column(plan, f),
+        name: plan.features[f].column.clone(),
+    }
+}
+
+/// The 1-based field number of feature `f`, from the header the run read.
+fn table_column(plan: &Plan, f: usize) -> usize {
+    header_index(
+        &plan.input.resolved,
+        plan.input.separator,
+        &plan.features[f].column,
+    )
+    .map(|i| i + 1)
+    .unwrap_or(0)
+}
+
+fn header_index(path: &std::path::Path, sep: char, name: &str) -> Option<usize> {
+    let mut r = csv::ReaderBuilder::new()
+        .delimiter(sep as u8)
+        .from_path(path)
+        .ok()?;
+    let h = r.headers().ok()?;
+    h.iter().position(|c| c.trim() == name)
+}
+
+fn transform(t: Transform, x: f64) -> Result<f64, (&'static str, &'static str)> {
+    // libm gives the same bits on every platform, unlike the system's maths
+    // library, which keeps reruns identical across machines.
+    match t {
+        Transform::None => Ok(x),
+        Transform::Log1p if x > -1.0 => Ok(libm::log1p(x)),
+        Transform::Log1p => Err((
+            "log1p",
+            "log1p needs values above -1; clip the column or choose another reshaping",
+        )),
+        Transform::Log if x > 0.0 => Ok(libm::log(x)),
+        Transform::Log => Err(("log", "log needs values above 0; `log1p` also accepts 0")),
+        Transform::Sqrt if x >= 0.0 => Ok(x.sqrt()),
+        Transform::Sqrt => Err(("sqrt", "sqrt needs values of 0 or more")),
+    }
+}
+
+/// (centre, divisor) for a scaling; a zero divisor marks a constant column.
+fn scale_params(scale: Scale, v: &[f64]) -> (f64, f64) {
+    match scale {
+        Scale::Zscore => (
+            stats::mean(v).unwrap_or(0.0),
+            stats::sd_population(v).unwrap_or(0.0),
+        ),
+        Scale::Robust => {
+            let s = stats::sorted(v);
+            let q = |p| stats::quantile_sorted(&s, p).unwrap_or(0.0);
+            (q(0.5), q(0.75) - q(0.25))
+        }
+        Scale::Range => {
+            let lo = v.iter().copied().fold(f64::INFINITY, f64::min);
+            let hi = v.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+            if v.is_empty() {
+                (0.0, 0.0)
+            } else {
+                (lo, hi - lo)
+            }
+        }
+        Scale::None => (0.0, 1.0),
+    }
+}
