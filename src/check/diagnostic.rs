@@ -158,7 +158,12 @@ pub enum CheckError {
 
     #[error("the recipe has no `{keyword}` statement")]
     #[diagnostic(code(assort::missing_statement), help("{help}"))]
-    MissingStatement { keyword: &'static str, help: String },
+    MissingStatement {
+        keyword: &'static str,
+        #[label("the recipe ends here without one")]
+        span: Span,
+        help: String,
+    },
 
     #[error("`{statement}` needs the option `{option}`")]
     #[diagnostic(code(assort::missing_option), help("{help}"))]
@@ -180,13 +185,10 @@ pub enum CheckError {
     },
 
     #[error("data file `{path}` not found")]
-    #[diagnostic(
-        code(assort::file_not_found),
-        help("paths are read relative to the recipe's folder, here `{folder}`")
-    )]
+    #[diagnostic(code(assort::file_not_found), help("{help}"))]
     FileNotFound {
         path: String,
-        folder: String,
+        help: String,
         #[label("no such file")]
         span: Span,
     },

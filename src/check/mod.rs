@@ -81,9 +81,16 @@ pub fn check(source: &RecipeSource) -> Checked {
             .file_stem()
             .map(|s| s.to_string_lossy().into_owned())
             .unwrap_or_default(),
-        problems: tree.errors.iter().cloned().map(Problem::from).collect(),
+        problems: tree
+            .errors
+            .iter()
+            .cloned()
+            .map(explain_syntax)
+            .map(Problem::from)
+            .collect(),
         probe: None,
         input_file: String::new(),
+        end: end_span(&source.text),
     };
     let plan = cx.plan(&tree.statements);
     let errors = cx.problems.iter().any(Problem::is_error);
@@ -91,6 +98,14 @@ pub fn check(source: &RecipeSource) -> Checked {
         plan: if errors { None } else { plan },
         problems: cx.problems,
     }
+}
+
+/// Gives a syntax error the example of its statement as help.
+fn explain_syntax(mut e: syntax::SyntaxError) -> syntax::SyntaxError {
+    if let Some(doc) = e.statement_word.as_deref().and_then(vocab::statement) {
+        e.help = format!("`{}` is written like `{}`", doc.word, doc.example);
+    }
+    e
 }
 
 /// Statements that may appear once, by word.
@@ -105,6 +120,15 @@ struct Checker {
     /// The input's header and sample, once read.
     probe: Option<Probe>,
     input_file: String,
+    /// The recipe's last character, where a missing statement is reported.
+    end: Span,
+}
+
+/// The span of the last non-blank character of the text.
+fn end_span(text: &str) -> Span {
+    let t = text.trim_end();
+    let last = t.chars().last().map(char::len_utf8).unwrap_or(0);
+    Span::new(t.len() - last, t.len())
 }
 
 impl Checker {
@@ -217,6 +241,7 @@ impl Checker {
         ) = stmt
         else {
             self.err(CheckError::MissingStatement {
+                span: self.end,
                 keyword: "input",
                 help: r#"name the data file and its key, such as `input "data/members.csv" key member_id`"#.into(),
             });
@@ -280,10 +305,14 @@ impl Checker {
     fn file_problem(&mut self, path: &Spanned<String>, e: &ProbeError) {
         let (reason, help) = match e {
             ProbeError::NotFound => {
+                let help = match self.nearest_file(&path.node) {
+                    Some(f) => format!("did you mean `{f}`?"),
+                    None => format!("paths are read relative to the recipe's folder, here `{}`", self.folder.display()),
+                };
                 self.err(CheckError::FileNotFound {
                     path: path.node.clone(),
-                    folder: self.folder.display().to_string(),
                     span: path.span,
+                    help,
                 });
                 return;
             }
@@ -303,6 +332,20 @@ impl Checker {
             span: path.span,
             help,
         });
+    }
+
+    /// The file beside a missing one whose name is closest to it.
+    fn nearest_file(&self, written: &str) -> Option<String> {
+        let p = Path::new(written);
+        let name = p.file_name()?.to_str()?;
+        let dir = self.folder.join(p.parent().unwrap_or(Path::new("")));
+        let mut names: Vec<String> = std::fs::read_dir(dir)
+            .ok()?
+            .filter_map(|e| e.ok()?.file_name().into_string().ok())
+            .collect();
+        names.sort();
+        let best = suggest::nearest(name, names.iter().map(String::as_str))?;
+        Some(p.with_file_name(best).to_string_lossy().into_owned())
     }
 
     /// Resolves a recipe path against the recipe's folder, refusing paths
@@ -439,6 +482,7 @@ impl Checker {
         ) = stmt
         else {
             self.err(CheckError::MissingStatement {
+                span: self.end,
                 keyword: "features",
                 help: "list the numeric columns to segment on, such as `features visits_per_month, basket_value`, or write `features all`".into(),
             });
@@ -729,6 +773,7 @@ impl Checker {
         ) = stmt
         else {
             self.err(CheckError::MissingStatement {
+                span: self.end,
                 keyword: "kmeans",
                 help: "say how many segments to look for, such as `kmeans k 2..9`".into(),
             });

@@ -81,6 +81,10 @@ pub const STATEMENTS: &[StatementDoc] = &[
     },
 ];
 
+pub fn statement(word: &str) -> Option<&'static StatementDoc> {
+    STATEMENTS.iter().find(|s| s.word == word)
+}
+
 pub fn statement_words() -> impl Iterator<Item = &'static str> {
     STATEMENTS.iter().map(|s| s.word)
 }

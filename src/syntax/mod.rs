@@ -28,6 +28,9 @@ pub struct SyntaxError {
     #[label("here")]
     pub span: Span,
     pub help: String,
+    /// The first word of the statement, so the checker can show how that
+    /// statement is written.
+    pub statement_word: Option<String>,
 }
 
 /// Parses a whole recipe. Never fails: statements that do not parse become
@@ -340,6 +343,10 @@ fn syntax_error(text: &str, offset: usize, err: &pest::error::Error<Rule>) -> Sy
         expected,
         span,
         help: "each statement starts with a statement word; `docs/language.md` shows every statement with an example".to_string(),
+        statement_word: text
+            .split(|c: char| c.is_whitespace() || c == '#')
+            .find(|w| !w.is_empty())
+            .map(str::to_string),
     }
 }
 
