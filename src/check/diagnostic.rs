@@ -103,6 +103,23 @@ pub enum CheckError {
         span: Span,
     },
 
+    #[error(
+        "`{file}` line {line}, column {column} (`{name}`): found `{found}`, expected a number"
+    )]
+    #[diagnostic(
+        code(assort::not_a_number),
+        help("mend the value in the data; leave a field blank to mark a value as missing, and write numbers with digits")
+    )]
+    NotANumberInData {
+        file: String,
+        line: u64,
+        column: usize,
+        name: String,
+        found: String,
+        #[label("this feature")]
+        span: Span,
+    },
+
     #[error("`{column}` is the key column, so it cannot also be clustered on")]
     #[diagnostic(
         code(assort::key_clustered),

@@ -523,6 +523,22 @@ impl Checker {
                         continue;
                     }
                     match self.known_column(col) {
+                        Some(info) if info.mostly_numeric() => {
+                            let at = self
+                                .probe
+                                .as_ref()
+                                .and_then(|p| p.columns.iter().position(|c| c.name == info.name))
+                                .unwrap_or(0);
+                            self.err(CheckError::NotANumberInData {
+                                file: self.input_file.clone(),
+                                line: info.text_line.unwrap_or(0),
+                                column: at + 1,
+                                name: info.name.clone(),
+                                found: info.text_example.clone().unwrap_or_default(),
+                                span: col.span,
+                            });
+                            ok = false;
+                        }
                         Some(info) if info.kind == ColumnKind::Text => {
                             self.err(CheckError::TextFeature {
                                 column: col.node.clone(),

@@ -27,6 +27,20 @@ pub struct ColumnInfo {
     pub kind: ColumnKind,
     /// A sampled value that is not a number, for messages.
     pub text_example: Option<String>,
+    /// The 1-based line of that value.
+    pub text_line: Option<u64>,
+    /// Sampled values that are numbers, and that are not.
+    pub numbers: usize,
+    pub texts: usize,
+}
+
+impl ColumnInfo {
+    /// A column of numbers with a few stray values: more numbers than text
+    /// in the sample. Such a column is meant to be numeric, and the stray
+    /// values are data errors rather than a sign of a text column.
+    pub fn mostly_numeric(&self) -> bool {
+        self.kind == ColumnKind::Text && self.numbers > self.texts
+    }
 }
 
 #[derive(Debug, Clone)]
@@ -97,6 +111,9 @@ pub fn probe(path: &Path, separator: u8) -> Result<Probe, ProbeError> {
             name: h.trim().to_string(),
             kind: ColumnKind::Blank,
             text_example: None,
+            text_line: None,
+            numbers: 0,
+            texts: 0,
         })
         .collect();
     let mut sampled = 0;
@@ -112,18 +129,23 @@ pub fn probe(path: &Path, separator: u8) -> Result<Probe, ProbeError> {
             Err(e) => return Err(csv_problem(&e)),
         }
         sampled += 1;
+        let line = record.position().map(|p| p.line()).unwrap_or(0);
         for (col, field) in columns.iter_mut().zip(record.iter()) {
             if is_blank(field) {
                 continue;
             }
             if parse_number(field).is_some() {
+                col.numbers += 1;
                 if col.kind == ColumnKind::Blank {
                     col.kind = ColumnKind::Numeric;
                 }
             } else {
+                col.texts += 1;
                 col.kind = ColumnKind::Text;
-                col.text_example
-                    .get_or_insert_with(|| field.trim().to_string());
+                if col.text_example.is_none() {
+                    col.text_example = Some(field.trim().to_string());
+                    col.text_line = Some(line);
+                }
             }
         }
     }

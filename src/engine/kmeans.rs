@@ -52,12 +52,13 @@ use serde::Serialize;
 
 /// How restarts choose their first centres.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
-#[serde(rename_all = "kebab-case")]
 #[non_exhaustive]
 pub enum Seeding {
     /// Greedy k-means++ (the default).
+    #[serde(rename = "kmeans++")]
     KMeansPlusPlus,
     /// Uniformly random segments, centres at their means.
+    #[serde(rename = "random-partition")]
     RandomPartition,
 }
 

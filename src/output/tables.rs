@@ -9,7 +9,7 @@ use std::fmt::Write;
 /// Segments shown side by side before the profile table wraps.
 const SEGMENTS_PER_BLOCK: usize = 5;
 const NAME_WIDTH: usize = 24;
-const CELL: usize = 14;
+const CELL: usize = 13;
 
 /// The whole report: summary, sweep, profiles.
 pub fn report(o: &Outcome) -> String {
@@ -43,21 +43,13 @@ fn summary(s: &mut String, o: &Outcome) {
         let _ = write!(line, " (missing in {})", by.join(", "));
     }
     let _ = writeln!(s, "{line}");
-    let fills: Vec<String> = p
-        .features
-        .iter()
-        .filter(|f| f.filled > 0)
-        .map(|f| {
-            format!(
-                "{} {} filled with {}",
-                f.column,
-                f.filled,
-                short(f.fill.unwrap_or(f64::NAN))
-            )
-        })
-        .collect();
-    if !fills.is_empty() {
-        let _ = writeln!(s, "  missing   {}", fills.join("; "));
+    for f in p.features.iter().filter(|f| f.filled > 0) {
+        let fill = short(f.fill.unwrap_or(f64::NAN));
+        let _ = writeln!(
+            s,
+            "  missing   {}: {} filled with {fill}",
+            f.column, f.filled
+        );
     }
     let constant: Vec<&str> = p
         .features
@@ -66,11 +58,11 @@ fn summary(s: &mut String, o: &Outcome) {
         .map(|f| f.column.as_str())
         .collect();
     if !constant.is_empty() {
-        let _ = writeln!(
-            s,
-            "  warning   constant after preparation, so no help in telling segments apart: {}",
+        let text = format!(
+            "constant after preparation, so no help in telling segments apart: {}",
             constant.join(", ")
         );
+        wrapped(s, "  warning   ", &text);
     }
     let cats: Vec<String> = p
         .categories
@@ -131,12 +123,12 @@ fn sweep(s: &mut String, o: &Outcome) {
             r.silhouette_evaluated
         );
     }
-    let _ = writeln!(s, "  chosen: {}", o.reason);
+    wrapped(s, "  chosen: ", &o.reason);
     if let Some(d) = &o.disagreement {
-        let _ = writeln!(s, "  note: {d}");
+        wrapped(s, "  note: ", d);
     }
     for a in &o.advice {
-        let _ = writeln!(s, "  advice: {a}");
+        wrapped(s, "  advice: ", a);
     }
     if let Some(v) = &o.validation {
         let _ = writeln!(
@@ -156,6 +148,14 @@ fn sweep(s: &mut String, o: &Outcome) {
 
 fn profiles(s: &mut String, o: &Outcome) {
     let _ = writeln!(s, "segments at k = {} (feature means in original units, standardised difference from all in brackets)", o.chosen);
+    let labels: Vec<String> = o
+        .profiles
+        .iter()
+        .filter_map(|p| Some(format!("{} = {}", p.segment?, p.label.as_ref()?)))
+        .collect();
+    if !labels.is_empty() {
+        wrapped_items(s, "  labels: ", &labels);
+    }
     for block in o.profiles.chunks(SEGMENTS_PER_BLOCK) {
         let mut cols: Vec<&Profile> = vec![&o.overall];
         cols.extend(block.iter());
@@ -229,6 +229,51 @@ fn profiles(s: &mut String, o: &Outcome) {
         }
         s.push('\n');
     }
+}
+
+/// Writes `text` after `lead`, wrapped at 100 columns, continuation lines
+/// indented to match.
+fn wrapped(s: &mut String, lead: &str, text: &str) {
+    const WIDTH: usize = 100;
+    let indent = " ".repeat(lead.chars().count());
+    let mut line = lead.to_string();
+    let mut empty = true;
+    for word in text.split_whitespace() {
+        if !empty && line.chars().count() + 1 + word.chars().count() > WIDTH {
+            let _ = writeln!(s, "{line}");
+            line = indent.clone();
+            empty = true;
+        }
+        if !empty {
+            line.push(' ');
+        }
+        line.push_str(word);
+        empty = false;
+    }
+    let _ = writeln!(s, "{line}");
+}
+
+/// Like [`wrapped`], but breaks only between items (joined by commas).
+fn wrapped_items(s: &mut String, lead: &str, items: &[String]) {
+    const WIDTH: usize = 100;
+    let indent = " ".repeat(lead.chars().count());
+    let mut line = lead.to_string();
+    for (i, item) in items.iter().enumerate() {
+        let piece = if i + 1 < items.len() {
+            format!("{item},")
+        } else {
+            item.clone()
+        };
+        let fresh = line.chars().count() == indent.len();
+        if !fresh && line.chars().count() + 1 + piece.chars().count() > WIDTH {
+            let _ = writeln!(s, "{line}");
+            line = indent.clone();
+        } else if !fresh {
+            line.push(' ');
+        }
+        line.push_str(&piece);
+    }
+    let _ = writeln!(s, "{line}");
 }
 
 /// Shortens text to `w` characters, marking the cut.

@@ -314,7 +314,7 @@ fn advice(sweep: &[SweepRow]) -> Vec<String> {
         .filter(|r| r.restarts > 1 && ((r.restarts_at_best as f64) < RESTART_ADVICE_SHARE * r.restarts as f64 || r.restarts_at_best == 1))
         .map(|r| {
             format!(
-                "for k = {} only {} of {} restarts reached the best partition; k-means finds local optima, so more restarts are advisable",
+                "for k = {} only {} of {} restarts reached the best partition; k-means finds local optima, so more restarts are advisable, and a k whose best is rarely reached is often one the data does not support",
                 r.k, r.restarts_at_best, r.restarts
             )
         })

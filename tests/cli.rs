@@ -1,0 +1,516 @@
+//! End-to-end tests of the `assort` binary on temporary copies of recipes.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+/// A scratch folder holding a recipe and its data, and a way to run
+/// `assort` on it.
+struct Case {
+    dir: tempfile::TempDir,
+}
+
+impl Case {
+    /// A copy of the shipped demo (recipe and data).
+    fn demo() -> Case {
+        let case = Case::empty();
+        let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("recipes");
+        case.copy(&root.join("coop-members.assort"), "coop-members.assort");
+        for f in ["coop_members.csv", "coop_members_planted.csv"] {
+            case.copy(&root.join("data").join(f), &format!("data/{f}"));
+        }
+        case
+    }
+
+    fn empty() -> Case {
+        Case {
+            dir: tempfile::tempdir().unwrap(),
+        }
+    }
+
+    fn path(&self, rel: &str) -> PathBuf {
+        self.dir.path().join(rel)
+    }
+
+    fn copy(&self, from: &Path, to: &str) {
+        let to = self.path(to);
+        std::fs::create_dir_all(to.parent().unwrap()).unwrap();
+        std::fs::copy(from, to).unwrap();
+    }
+
+    fn write(&self, rel: &str, text: &str) -> &Case {
+        let p = self.path(rel);
+        std::fs::create_dir_all(p.parent().unwrap()).unwrap();
+        std::fs::write(p, text).unwrap();
+        self
+    }
+
+    fn read(&self, rel: &str) -> String {
+        std::fs::read_to_string(self.path(rel)).unwrap()
+    }
+
+    /// Replaces the first occurrence of `from` in a file.
+    fn edit(&self, rel: &str, from: &str, to: &str) -> &Case {
+        let text = self.read(rel);
+        assert!(text.contains(from), "`{from}` not in {rel}");
+        self.write(rel, &text.replacen(from, to, 1))
+    }
+
+    fn assort(&self, args: &[&str], env: &[(&str, &str)]) -> Run {
+        let mut cmd = Command::new(env!("CARGO_BIN_EXE_assort"));
+        cmd.args(args)
+            .current_dir(self.dir.path())
+            .env("NO_COLOR", "1");
+        for (k, v) in env {
+            cmd.env(k, v);
+        }
+        Run(cmd.output().unwrap())
+    }
+
+    fn run(&self, recipe: &str) -> Run {
+        self.assort(&["run", recipe], &[])
+    }
+}
+
+struct Run(Output);
+
+impl Run {
+    fn stdout(&self) -> String {
+        String::from_utf8_lossy(&self.0.stdout).into_owned()
+    }
+
+    fn stderr(&self) -> String {
+        String::from_utf8_lossy(&self.0.stderr).into_owned()
+    }
+
+    #[track_caller]
+    fn ok(self) -> Run {
+        assert!(
+            self.0.status.success(),
+            "expected success, got {:?}\nstdout:\n{}\nstderr:\n{}",
+            self.0.status,
+            self.stdout(),
+            self.stderr()
+        );
+        self
+    }
+
+    #[track_caller]
+    fn fails(self) -> Run {
+        assert!(
+            !self.0.status.success(),
+            "expected failure\nstdout:\n{}",
+            self.stdout()
+        );
+        self
+    }
+
+    #[track_caller]
+    fn stderr_has(self, text: &str) -> Run {
+        assert!(
+            self.stderr().contains(text),
+            "stderr lacks `{text}`:\n{}",
+            self.stderr()
+        );
+        self
+    }
+
+    #[track_caller]
+    fn stdout_has(self, text: &str) -> Run {
+        assert!(
+            self.stdout().contains(text),
+            "stdout lacks `{text}`:\n{}",
+            self.stdout()
+        );
+        self
+    }
+}
+
+const DEMO: &str = "coop-members.assort";
+const DEMO_OUTPUTS: [&str; 4] = [
+    "out/member_segments.csv",
+    "out/segment_profiles.csv",
+    "out/segment_profiles.json",
+    "out/segment_centroids.csv",
+];
+
+fn outputs(case: &Case) -> Vec<Vec<u8>> {
+    DEMO_OUTPUTS
+        .iter()
+        .map(|f| std::fs::read(case.path(f)).unwrap())
+        .collect()
+}
+
+#[test]
+fn the_demo_prints_the_sweep_and_profiles_and_writes_every_output() {
+    let case = Case::demo();
+    let run = case.run(DEMO).ok();
+    let out = run.stdout();
+    assert!(out.contains("k-means sweep"), "{out}");
+    assert!(out.contains("chosen: k = "), "{out}");
+    assert!(out.contains("segments at k = "), "{out}");
+    assert!(out.contains("weekly fresh regulars"), "{out}");
+    for f in DEMO_OUTPUTS {
+        assert!(out.contains(&format!("wrote {f}")), "{out}");
+    }
+    // Readable at 100 columns.
+    for line in out.lines() {
+        assert!(
+            line.chars().count() <= 100,
+            "line wider than 100 columns: {line}"
+        );
+    }
+    let assignments = case.read("out/member_segments.csv");
+    let mut lines = assignments.lines();
+    assert_eq!(
+        lines.next(),
+        Some("member_id,segment,label,distance,margin")
+    );
+    // Every member is assigned (gaps are filled, none dropped).
+    assert_eq!(lines.count(), 6000);
+    let json: serde_json::Value =
+        serde_json::from_str(&case.read("out/segment_profiles.json")).unwrap();
+    let segments = json["segments"].as_array().unwrap();
+    let total: u64 = segments.iter().map(|s| s["size"].as_u64().unwrap()).sum();
+    assert_eq!(total, 6000);
+}
+
+#[test]
+fn the_demo_recovers_its_planted_segments() {
+    // The demo data has five planted segments; the recipe must find five and
+    // agree with them closely (adjusted Rand index printed by `validate`).
+    let case = Case::demo();
+    let out = case.run(DEMO).ok().stdout();
+    assert!(out.contains("chosen: k = 5 "), "{out}");
+    let ari: f64 = out
+        .split("adjusted Rand index ")
+        .nth(1)
+        .and_then(|rest| rest.split_whitespace().next())
+        .and_then(|v| v.parse().ok())
+        .unwrap();
+    assert!(ari > 0.9, "adjusted Rand index {ari}");
+}
+
+#[test]
+fn reruns_and_thread_counts_give_byte_identical_outputs() {
+    let case = Case::demo();
+    case.run(DEMO).ok();
+    let first = outputs(&case);
+    case.run(DEMO).ok();
+    assert!(first == outputs(&case), "a second run changed the outputs");
+    for threads in ["1", "2", "5"] {
+        case.assort(&["run", DEMO], &[("RAYON_NUM_THREADS", threads)])
+            .ok();
+        assert!(
+            first == outputs(&case),
+            "RAYON_NUM_THREADS={threads} changed the outputs"
+        );
+    }
+}
+
+#[test]
+fn a_misspelt_column_is_located_and_the_right_name_suggested() {
+    let case = Case::demo();
+    case.edit(DEMO, "visits_per_month", "vists_per_month");
+    let text = case.read(DEMO);
+    let at = text.find("vists_per_month").unwrap();
+    let line = text[..at].lines().count();
+    let col = at - text[..at].rfind('\n').map(|i| i + 1).unwrap_or(0) + 1;
+    case.assort(&["check", DEMO], &[])
+        .fails()
+        .stderr_has(&format!("{DEMO}:{line}:{col}"))
+        .stderr_has("no column `vists_per_month`")
+        .stderr_has("did you mean `visits_per_month`?");
+}
+
+#[test]
+fn a_recipe_that_fails_to_check_writes_nothing() {
+    let case = Case::demo();
+    case.edit(DEMO, "scale zscore", "scale zscor");
+    case.run(DEMO)
+        .fails()
+        .stderr_has("unknown scale method `zscor`")
+        .stderr_has("nothing was run");
+    assert!(!case.path("out").exists());
+}
+
+#[test]
+fn a_recipe_that_fails_to_parse_gives_every_diagnostic_and_writes_nothing() {
+    let case = Case::demo();
+    case.edit(DEMO, "seed 2026", "seed twenty");
+    case.edit(DEMO, "kmeans k 2..8", "kmeans k 2..8 restart 3");
+    case.run(DEMO)
+        .fails()
+        .stderr_has("found `twenty`, expected a number")
+        .stderr_has("did you mean `restarts`?")
+        .stderr_has("2 errors");
+    assert!(!case.path("out").exists());
+}
+
+#[test]
+fn check_and_plan_succeed_on_the_demo() {
+    let case = Case::demo();
+    case.assort(&["check", DEMO], &[])
+        .ok()
+        .stdout_has("checks out: 8 numeric features, 1 categories, k 2..8");
+    let plan: serde_json::Value =
+        serde_json::from_str(&case.assort(&["plan", DEMO], &[]).ok().stdout()).unwrap();
+    // Defaults are written out.
+    assert_eq!(plan["kmeans"]["rounds"], 300);
+    assert_eq!(plan["kmeans"]["seeding"], "kmeans++");
+    assert_eq!(plan["features"][2]["transform"], "log1p");
+}
+
+// ------------------------------------------------------------ bad data --
+
+fn small(case: &Case, data: &str) {
+    case.write("data.csv", data).write(
+        "r.assort",
+        "input \"data.csv\" key id\nfeatures a, b\nkmeans k 2\nsave assignments \"out/a.csv\"\n",
+    );
+}
+
+#[test]
+fn a_non_numeric_value_in_the_checked_sample_is_named_by_file_line_and_column() {
+    let case = Case::empty();
+    small(
+        &case,
+        "id,a,b\n1,1.0,2.0\n2,1.5,2.5\n3,oops,3.0\n4,9.0,9.0\n",
+    );
+    case.assort(&["check", "r.assort"], &[])
+        .fails()
+        .stderr_has("`data.csv` line 4, column 2 (`a`): found `oops`, expected a number");
+    case.run("r.assort").fails();
+    assert!(!case.path("out").exists());
+}
+
+/// Data whose first 1,200 records are clean, so the checker's sample
+/// passes and the run itself meets `bad` on line 1,202.
+fn long_data_with(bad: &str) -> String {
+    let mut text = String::from("id,a,b\n");
+    for i in 0..1200 {
+        text.push_str(&format!("{i},{}.5,{}\n", i % 7, i % 5));
+    }
+    text.push_str(&format!("9999,{bad}\n"));
+    text
+}
+
+#[test]
+fn a_non_numeric_value_past_the_sample_is_named_by_file_line_and_column() {
+    let case = Case::empty();
+    small(&case, &long_data_with("oops,3.0"));
+    case.run("r.assort")
+        .fails()
+        .stderr_has("`data.csv` line 1202, column 2 (`a`): found `oops`, expected a number");
+    assert!(!case.path("out").exists());
+}
+
+#[test]
+fn infinity_in_the_data_is_refused_at_its_place() {
+    let case = Case::empty();
+    small(&case, &long_data_with("1.0,inf"));
+    case.run("r.assort")
+        .fails()
+        .stderr_has("line 1202, column 3 (`b`): found `inf`")
+        .stderr_has("values must be finite");
+}
+
+#[test]
+fn a_missing_value_without_a_rule_is_located_and_a_rule_suggested() {
+    let case = Case::empty();
+    small(&case, "id,a,b\n1,1.0,2.0\n2,,2.5\n3,2.0,3.0\n4,9.0,9.0\n");
+    case.run("r.assort")
+        .fails()
+        .stderr_has("`data.csv` line 3, column 2 (`a`)")
+        .stderr_has("missing fill median");
+}
+
+#[test]
+fn a_malformed_csv_line_is_named() {
+    let case = Case::empty();
+    // The checker samples the file, so this is caught before any run.
+    small(&case, "id,a,b\n1,1.0,2.0\n2,1.5,2.5,7\n3,2.0,3.0\n");
+    case.run("r.assort")
+        .fails()
+        .stderr_has("line 3: found 4 fields, expected 3 as in the header");
+}
+
+#[test]
+fn a_duplicate_key_is_named_with_both_lines() {
+    let case = Case::empty();
+    small(
+        &case,
+        "id,a,b\n1,1.0,2.0\n2,1.5,2.5\n1,2.0,3.0\n4,9.0,9.0\n",
+    );
+    case.run("r.assort")
+        .fails()
+        .stderr_has("line 4, column 1 (`id`): key `1` appears again (first on line 2)");
+}
+
+#[test]
+fn missing_values_are_dropped_or_filled_and_counted() {
+    let case = Case::empty();
+    case.write("data.csv", "id,a,b\n1,1.0,2.0\n2,,2.5\n3,2.0,\n4,9.0,9.0\n5,8.0,8.5\n").write(
+        "r.assort",
+        "input \"data.csv\" key id\nfeatures a, b\nmissing drop for a\nmissing fill 0 for b\nkmeans k 2\nsave assignments \"out/a.csv\"\n",
+    );
+    case.run("r.assort")
+        .ok()
+        .stdout_has("1 dropped for missing values, 4 segmented (missing in a 1)")
+        .stdout_has("b: 1 filled with 0.000");
+    let a = case.read("out/a.csv");
+    assert_eq!(a.lines().count(), 5, "{a}");
+    assert!(
+        !a.contains("\n2,"),
+        "the dropped record is not assigned: {a}"
+    );
+}
+
+#[test]
+fn a_failed_run_leaves_earlier_outputs_untouched() {
+    let case = Case::empty();
+    small(
+        &case,
+        "id,a,b\n1,1.0,2.0\n2,1.5,2.5\n3,2.0,3.0\n4,9.0,9.0\n",
+    );
+    case.run("r.assort").ok();
+    let before = case.read("out/a.csv");
+    small(&case, "id,a,b\n1,1.0,2.0\n2,1.5,2.5\n3,2.0,x\n4,9.0,9.0\n");
+    case.run("r.assort").fails();
+    assert_eq!(case.read("out/a.csv"), before);
+    let leftovers: Vec<_> = std::fs::read_dir(case.path("out"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name())
+        .collect();
+    assert_eq!(
+        leftovers.len(),
+        1,
+        "temporary files left behind: {leftovers:?}"
+    );
+}
+
+#[test]
+fn log_of_zero_is_refused_at_its_place() {
+    let case = Case::empty();
+    case.write(
+        "data.csv",
+        "id,a,b\n1,1.0,2.0\n2,0,2.5\n3,2.0,3.0\n4,9.0,9.0\n",
+    )
+    .write(
+        "r.assort",
+        "input \"data.csv\" key id\nfeatures a, b\nreshape a log\nkmeans k 2\n",
+    );
+    case.run("r.assort")
+        .fails()
+        .stderr_has("`data.csv` line 3, column 2 (`a`): `log` cannot take 0");
+}
+
+// ------------------------------------------------------ hostile paths --
+
+#[test]
+fn paths_outside_the_recipe_folder_are_refused_and_nothing_is_written() {
+    for (input, output) in [
+        ("/etc/passwd", "out/a.csv"),
+        ("../data.csv", "out/a.csv"),
+        ("data.csv", "../a.csv"),
+        ("data.csv", "/tmp/a.csv"),
+    ] {
+        let case = Case::empty();
+        case.write("sub/data.csv", "id,a\n1,1\n2,2\n3,3\n")
+            .write("data.csv", "id,a\n1,1\n2,2\n3,3\n")
+            .write("sub/r.assort", &format!("input \"{input}\" key id\nfeatures a\nkmeans k 2\nsave assignments \"{output}\"\n"));
+        case.run("sub/r.assort")
+            .fails()
+            .stderr_has("leads outside the recipe's folder");
+        assert!(!case.path("a.csv").exists() && !case.path("sub/out").exists());
+    }
+}
+
+#[test]
+fn an_output_may_not_overwrite_the_input() {
+    let case = Case::empty();
+    small(&case, "id,a,b\n1,1.0,2.0\n2,1.5,2.5\n3,2.0,3.0\n");
+    case.edit("r.assort", "out/a.csv", "./data.csv");
+    let before = case.read("data.csv");
+    case.run("r.assort")
+        .fails()
+        .stderr_has("would overwrite the input data");
+    assert_eq!(case.read("data.csv"), before);
+}
+
+#[test]
+fn an_impossible_k_is_refused() {
+    let case = Case::empty();
+    small(&case, "id,a,b\n1,1.0,2.0\n2,1.5,2.5\n3,2.0,3.0\n");
+    case.edit("r.assort", "kmeans k 2", "kmeans k 2..4");
+    case.run("r.assort")
+        .fails()
+        .stderr_has("impossible k: k 4 is more than the 3 records in `data.csv`");
+}
+
+#[test]
+fn a_missing_recipe_file_is_an_error_not_a_panic() {
+    let case = Case::empty();
+    case.assort(&["run", "nope.assort"], &[])
+        .fails()
+        .stderr_has("cannot read recipe `nope.assort`");
+}
+
+// ------------------------------------------------ outside reference --
+
+#[test]
+fn iris_through_a_recipe_reaches_the_reference_within_cluster_sum_of_squares() {
+    // Reference: scikit-learn 1.9.1, KMeans(n_clusters=3, n_init=100) on the
+    // four raw Iris measurements: best inertia 78.851441426146
+    // (tests/data/reference.json). Iris has no key column, so the test adds
+    // a row number as the key.
+    let iris =
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/iris.csv"))
+            .unwrap();
+    let keyed: String = iris
+        .lines()
+        .enumerate()
+        .map(|(i, l)| {
+            if i == 0 {
+                format!("row,{l}\n")
+            } else {
+                format!("{i},{l}\n")
+            }
+        })
+        .collect();
+    let case = Case::empty();
+    case.write("iris.csv", &keyed).write(
+        "iris.assort",
+        "input \"iris.csv\" key row\nfeatures all\nscale none\nkmeans k 3 restarts 100\nsave profiles \"out/p.json\"\n",
+    );
+    let out = case.run("iris.assort").ok().stdout();
+    let reference: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(
+            Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/reference.json"),
+        )
+        .unwrap(),
+    )
+    .unwrap();
+    let expected = reference["iris_raw_k3"]["best_inertia"].as_f64().unwrap();
+    let row = out
+        .lines()
+        .find(|l| l.trim_start_matches('>').trim_start().starts_with("3 "))
+        .unwrap();
+    let within: f64 = row
+        .split_whitespace()
+        .filter(|w| *w != ">")
+        .nth(1)
+        .unwrap()
+        .parse()
+        .unwrap();
+    // The table prints three decimals.
+    assert!((within - expected).abs() < 5e-4, "{within} vs {expected}");
+    let json: serde_json::Value = serde_json::from_str(&case.read("out/p.json")).unwrap();
+    let mut sizes: Vec<u64> = json["segments"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| s["size"].as_u64().unwrap())
+        .collect();
+    sizes.sort();
+    assert_eq!(sizes, vec![38, 50, 62]);
+}
