@@ -287,9 +287,7 @@ impl Checker {
             }
         }
         let key = key?;
-        if self.known_column(&key).is_none() {
-            return None;
-        }
+        self.known_column(&key)?;
         Some(CheckedInput {
             plan: InputPlan {
                 path: path.node.clone(),
