@@ -38,9 +38,15 @@ pub struct RecipeSource {
 
 impl RecipeSource {
     pub fn read(path: &Path) -> std::io::Result<RecipeSource> {
+        let text = std::fs::read_to_string(path)?;
+        // Editors on some systems start files with a byte-order mark.
+        let text = text
+            .strip_prefix('\u{feff}')
+            .map(str::to_string)
+            .unwrap_or(text);
         Ok(RecipeSource {
             path: path.to_path_buf(),
-            text: std::fs::read_to_string(path)?,
+            text,
         })
     }
 
@@ -107,6 +113,10 @@ fn explain_syntax(mut e: syntax::SyntaxError) -> syntax::SyntaxError {
     }
     e
 }
+
+/// The largest k a recipe may ask for, and the widest sweep.
+pub const MAX_K: i64 = 1_000_000;
+pub const MAX_K_SPAN: i64 = 500;
 
 /// Statements that may appear once, by word.
 const SINGLE: [&str; 8] = [
@@ -902,6 +912,13 @@ impl Checker {
                 return None;
             }
         };
+        if hi > MAX_K || hi - lo > MAX_K_SPAN {
+            self.err(impossible(
+                format!("assort fits k up to {MAX_K} and at most {} values of k in one sweep, found {lo}..{hi}", MAX_K_SPAN + 1),
+                "narrow the range; a sweep is for comparing a handful of candidate k",
+            ));
+            return None;
+        }
         if lo > hi {
             self.err(impossible(
                 format!("the range {lo}..{hi} is empty"),

@@ -112,6 +112,17 @@ pub struct KMeansFit {
 const PARALLEL_ASSIGN_MIN: usize = 16_384;
 
 /// Fits k-means: `settings.restarts` restarts, the best kept.
+///
+/// # Example
+/// ```
+/// use assort::engine::kmeans::{kmeans, KMeansSettings, Seeding};
+/// let x = ndarray::array![[0.0], [0.2], [5.0], [5.1]];
+/// let settings = KMeansSettings { k: 2, restarts: 4, max_rounds: 100, tolerance: 0.0, seeding: Seeding::KMeansPlusPlus, seed: 1 };
+/// let fit = kmeans(x.view(), &settings).unwrap();
+/// // Equal sizes: the segment holding the first record is numbered first.
+/// assert_eq!(fit.labels, vec![0, 0, 1, 1]);
+/// assert!((fit.inertia - (0.02 + 0.005)).abs() < 1e-12);
+/// ```
 pub fn kmeans(
     data: ArrayView2<'_, f64>,
     settings: &KMeansSettings,

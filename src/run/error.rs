@@ -62,6 +62,15 @@ pub enum RunError {
     )]
     MissingValue { place: Place },
 
+    #[error(
+        "column `{column}` has no values at all, so there is nothing to compute a fill value from"
+    )]
+    #[diagnostic(
+        code(assort::run::nothing_to_fill_from),
+        help("fill it with a number you choose, or leave the column out")
+    )]
+    NothingToFillFrom { column: String },
+
     #[error("{place}: key `{key}` appears again (first on line {first_line})")]
     #[diagnostic(
         code(assort::run::duplicate_key),

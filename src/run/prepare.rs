@@ -126,9 +126,18 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
                     filled += 1;
                     values.push(v);
                 }
+                (None, None)
+                    if present.is_empty()
+                        && matches!(
+                            fp.missing,
+                            MissingRule::FillMedian | MissingRule::FillMean
+                        ) =>
+                {
+                    return Err(RunError::NothingToFillFrom {
+                        column: fp.column.clone(),
+                    });
+                }
                 (None, None) => {
-                    // A column whose values are all missing has no median;
-                    // this also lands here, at its first record.
                     return Err(RunError::MissingValue {
                         place: located(plan, table, i, f),
                     });
