@@ -99,30 +99,31 @@ fn iris_kmeans_k3_reaches_the_reference_within_cluster_sum_of_squares() {
 
     // Criteria of that labelling: scikit-learn's silhouette_score,
     // calinski_harabasz_score, davies_bouldin_score, adjusted_rand_score.
-    let sil = criteria::silhouette(x.view(), &fit.labels, 3, 0, 0);
+    assert_criteria(&x, &fit.labels, &species, &r["iris_raw_k3"]);
+}
+
+/// The criteria of a labelling and its agreement with the known classes,
+/// against a reference block (to 1e-9 relative).
+#[track_caller]
+fn assert_criteria(x: &Array2<f64>, labels: &[u32], truth: &[String], block: &Value) {
+    let k = *labels.iter().max().unwrap() as usize + 1;
+    let sil = criteria::silhouette(x.view(), labels, k, 0, 0);
+    assert_rel(sil.mean, num(block, "silhouette"), 1e-9, "silhouette");
+    let ch = criteria::calinski_harabasz(x.view(), labels, k);
     assert_rel(
-        sil.mean,
-        num(&r, "iris_raw_k3/silhouette"),
-        1e-9,
-        "silhouette",
-    );
-    assert_rel(
-        criteria::calinski_harabasz(x.view(), &fit.labels, 3),
-        num(&r, "iris_raw_k3/calinski_harabasz"),
+        ch,
+        num(block, "calinski_harabasz"),
         1e-9,
         "Calinski-Harabasz",
     );
+    let db = criteria::davies_bouldin(x.view(), labels, k);
+    assert_rel(db, num(block, "davies_bouldin"), 1e-9, "Davies-Bouldin");
+    let ari = compare::adjusted_rand_index(labels, truth);
     assert_rel(
-        criteria::davies_bouldin(x.view(), &fit.labels, 3),
-        num(&r, "iris_raw_k3/davies_bouldin"),
+        ari,
+        num(block, "ari_vs_truth"),
         1e-9,
-        "Davies-Bouldin",
-    );
-    assert_rel(
-        compare::adjusted_rand_index(&fit.labels, &species),
-        num(&r, "iris_raw_k3/ari_vs_truth"),
-        1e-9,
-        "ARI vs species",
+        "ARI vs the known classes",
     );
 }
 
@@ -144,31 +145,7 @@ fn wine_zscored_kmeans_k3_matches_the_reference() {
         1e-6,
         "within-cluster SS",
     );
-    let sil = criteria::silhouette(x.view(), &fit.labels, 3, 0, 0);
-    assert_rel(
-        sil.mean,
-        num(&r, "wine_zscore_k3/silhouette"),
-        1e-9,
-        "silhouette",
-    );
-    assert_rel(
-        criteria::calinski_harabasz(x.view(), &fit.labels, 3),
-        num(&r, "wine_zscore_k3/calinski_harabasz"),
-        1e-9,
-        "Calinski-Harabasz",
-    );
-    assert_rel(
-        criteria::davies_bouldin(x.view(), &fit.labels, 3),
-        num(&r, "wine_zscore_k3/davies_bouldin"),
-        1e-9,
-        "Davies-Bouldin",
-    );
-    assert_rel(
-        compare::adjusted_rand_index(&fit.labels, &cultivar),
-        num(&r, "wine_zscore_k3/ari_vs_truth"),
-        1e-9,
-        "ARI vs cultivar",
-    );
+    assert_criteria(&x, &fit.labels, &cultivar, &r["wine_zscore_k3"]);
 }
 
 #[test]

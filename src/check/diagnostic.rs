@@ -303,12 +303,7 @@ pub enum CheckError {
 /// Renders problems as text, with the recipe lines they point at. Colour
 /// only when `colour` is set; golden tests and pipes get none.
 pub fn render(problems: &[Problem], name: &str, text: &str, colour: bool) -> String {
-    let theme = if colour {
-        GraphicalTheme::unicode()
-    } else {
-        GraphicalTheme::unicode_nocolor()
-    };
-    let handler = GraphicalReportHandler::new_themed(theme).with_width(100);
+    let handler = handler(colour);
     let mut out = String::new();
     for p in problems {
         let report = miette::Report::new(p.clone())
@@ -323,13 +318,17 @@ pub fn render(problems: &[Problem], name: &str, text: &str, colour: bool) -> Str
 /// Renders a diagnostic that points at no recipe text (a data or output
 /// problem), in the same style.
 pub fn render_bare(diag: &dyn Diagnostic, colour: bool) -> String {
+    let mut out = String::new();
+    let _ = handler(colour).render_report(&mut out, diag);
+    out
+}
+
+/// The one report style: Unicode frames, 100 columns, colour on request.
+fn handler(colour: bool) -> GraphicalReportHandler {
     let theme = if colour {
         GraphicalTheme::unicode()
     } else {
         GraphicalTheme::unicode_nocolor()
     };
-    let handler = GraphicalReportHandler::new_themed(theme).with_width(100);
-    let mut out = String::new();
-    let _ = handler.render_report(&mut out, diag);
-    out
+    GraphicalReportHandler::new_themed(theme).with_width(100)
 }
