@@ -31,10 +31,10 @@ fn main() -> ExitCode {
         Command::Check { recipe } => with_plan(&recipe, |plan| {
             let ks = &plan.kmeans.ks;
             println!(
-                "recipe `{}` checks out: {} numeric features, {} categories, k {}",
+                "recipe `{}` checks out: {}, {}, k {}",
                 plan.name,
-                plan.features.len(),
-                plan.categories.len(),
+                plural(plan.features.len(), "numeric feature"),
+                plural(plan.categories.len(), "category column"),
                 if ks.len() == 1 {
                     ks[0].to_string()
                 } else {
@@ -70,7 +70,7 @@ fn main() -> ExitCode {
                 return ExitCode::FAILURE;
             }
             for f in &files {
-                println!("wrote {}", f.shown);
+                println!("wrote {}", f.path.display());
             }
             ExitCode::SUCCESS
         }),

@@ -150,7 +150,13 @@ fn the_demo_prints_the_sweep_and_profiles_and_writes_every_output() {
     assert!(out.contains("segments at k = "), "{out}");
     assert!(out.contains("weekly fresh regulars"), "{out}");
     for f in DEMO_OUTPUTS {
-        assert!(out.contains(&format!("wrote {f}")), "{out}");
+        assert!(
+            out.contains(&format!(
+                "wrote {}",
+                Path::new(DEMO).parent().unwrap().join(f).display()
+            )),
+            "{out}"
+        );
     }
     // Readable at 100 columns.
     for line in out.lines() {
@@ -251,7 +257,7 @@ fn check_and_plan_succeed_on_the_demo() {
     let case = Case::demo();
     case.assort(&["check", DEMO], &[])
         .ok()
-        .stdout_has("checks out: 8 numeric features, 1 categories, k 2..8");
+        .stdout_has("checks out: 8 numeric features, 1 category column, k 2..8");
     let plan: serde_json::Value =
         serde_json::from_str(&case.assort(&["plan", DEMO], &[]).ok().stdout()).unwrap();
     // Defaults are written out.

@@ -97,6 +97,7 @@ pub fn check(source: &RecipeSource) -> Checked {
         probe: None,
         input_file: String::new(),
         end: end_span(&source.text),
+        category_spans: HashMap::new(),
     };
     let plan = cx.plan(&tree.statements);
     let errors = cx.problems.iter().any(Problem::is_error);
@@ -132,6 +133,8 @@ struct Checker {
     input_file: String,
     /// The recipe's last character, where a missing statement is reported.
     end: Span,
+    /// Where each category column was named.
+    category_spans: HashMap<String, Span>,
 }
 
 /// The span of the last non-blank character of the text.
@@ -450,6 +453,7 @@ impl Checker {
                     continue;
                 }
                 seen.insert(col.node.clone(), col.span);
+                self.category_spans.insert(col.node.clone(), col.span);
                 if input.is_some_and(|i| i.plan.key == col.node) {
                     self.key_clustered(col);
                     ok = false;
@@ -521,11 +525,11 @@ impl Checker {
                         ok = false;
                         continue;
                     }
-                    if cats.contains(&col.node) {
+                    if let Some(&first) = self.category_spans.get(&col.node) {
                         self.err(CheckError::DuplicateColumn {
                             column: col.node.clone(),
                             span: col.span,
-                            first: col.span,
+                            first,
                         });
                         ok = false;
                         continue;
