@@ -70,7 +70,8 @@ fn main() -> ExitCode {
                 return ExitCode::FAILURE;
             }
             for f in &files {
-                println!("wrote {}", f.path.display());
+                let shown = f.path.strip_prefix(".").unwrap_or(&f.path);
+                println!("wrote {}", shown.display());
             }
             ExitCode::SUCCESS
         }),
