@@ -147,7 +147,7 @@ fn sweep(s: &mut String, o: &Outcome) {
 }
 
 fn profiles(s: &mut String, o: &Outcome) {
-    let _ = writeln!(s, "segments at k = {} (feature means in original units, standardised difference from all in brackets)", o.chosen);
+    let _ = writeln!(s, "segments at k = {} (means in original units, each with its standardised difference from all)", o.chosen);
     let labels: Vec<String> = o
         .profiles
         .iter()
@@ -212,7 +212,7 @@ fn profiles(s: &mut String, o: &Outcome) {
                     if p.segment.is_none() {
                         short(fs.mean)
                     } else {
-                        format!("{} ({:+.1})", short(fs.mean), fs.std_diff)
+                        format!("{} {:+.1}", short(fs.mean), fs.std_diff)
                     }
                 })
                 .collect();
