@@ -17,6 +17,7 @@ pub mod criteria;
 pub mod kmeans;
 pub mod rng;
 pub mod stats;
+pub mod tree;
 
 use thiserror::Error;
 
@@ -28,6 +29,8 @@ pub enum EngineError {
     TooFewRecords { k: usize, n: usize },
     #[error("fewer than {k} distinct records: cannot form {k} separate segments")]
     TooFewDistinct { k: usize },
+    #[error("`{linkage}` linkage is defined only for Euclidean distances")]
+    NeedsEuclidean { linkage: &'static str },
     #[error("k must be at least 1, found {k}")]
     BadK { k: usize },
     #[error("the data has no columns to cluster on")]

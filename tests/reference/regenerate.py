@@ -15,6 +15,8 @@ import sys
 import numpy as np
 import scipy
 import sklearn
+from scipy.cluster.hierarchy import cophenet, fcluster, linkage
+from scipy.spatial.distance import pdist
 from sklearn.cluster import KMeans
 from sklearn.metrics import (adjusted_rand_score, calinski_harabasz_score,
                              davies_bouldin_score, silhouette_samples,
@@ -44,6 +46,19 @@ def kmeans_block(x, truth, k, n_init):
         "calinski_harabasz": float(calinski_harabasz_score(x, labels)),
         "davies_bouldin": float(davies_bouldin_score(x, labels)),
         "ari_vs_truth": float(adjusted_rand_score(truth, labels)),
+    }
+
+
+def tree_block(x, method, metric):
+    z = linkage(x, method=method, metric=metric)
+    coph, _ = cophenet(z, pdist(x, metric))
+    cut = fcluster(z, 3, criterion="maxclust")
+    return {
+        "call": f"scipy.cluster.hierarchy.linkage(x, method={method!r}, metric={metric!r})",
+        "heights": [float(h) for h in z[:, 2]],
+        "sizes": [int(s) for s in z[:, 3]],
+        "cophenetic_correlation": float(coph),
+        "cut3_labels": [int(l) for l in cut],
     }
 
 
@@ -80,6 +95,18 @@ def main():
         "calinski_harabasz_truth": float(calinski_harabasz_score(tiny_points, truth)),
         "davies_bouldin_truth": float(davies_bouldin_score(tiny_points, truth)),
     }
+    # Agglomerative clustering: scipy's linkage on the raw Iris measurements,
+    # every linkage with Euclidean distances, and the matrix-based linkages
+    # with the other distances; Ward on z-scored Wine.
+    trees = {}
+    for method in ["single", "complete", "average", "weighted", "ward", "centroid", "median"]:
+        trees[f"iris/{method}/euclidean"] = tree_block(iris, method, "euclidean")
+    for method in ["single", "complete", "average", "weighted"]:
+        for metric in ["cityblock", "cosine", "correlation"]:
+            trees[f"iris/{method}/{metric}"] = tree_block(iris, method, metric)
+    trees["wine-zscore/ward/euclidean"] = tree_block(z, "ward", "euclidean")
+    out["trees"] = trees
+
     (DATA / "reference.json").write_text(json.dumps(out, indent=2) + "\n")
     print("wrote", DATA / "reference.json")
 
