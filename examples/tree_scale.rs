@@ -18,7 +18,10 @@ fn peak_mib() -> Option<f64> {
 fn main() {
     let args: Vec<String> = std::env::args().collect();
     let n: usize = args.get(1).and_then(|v| v.parse().ok()).unwrap_or(20_000);
-    let link = args.get(2).and_then(|w| Linkage::parse(w)).unwrap_or(Linkage::Average);
+    let link = args
+        .get(2)
+        .and_then(|w| Linkage::parse(w))
+        .unwrap_or(Linkage::Average);
     let d = 8;
     let mut s = Stream::new(42, 0);
     let x = Array2::from_shape_fn((n, d), |_| s.unit());
@@ -28,7 +31,9 @@ fn main() {
     println!(
         "{} linkage, {n} records x {d}: {secs:.2} s, peak memory {} MiB, top merge {:.4}",
         link.name(),
-        peak_mib().map(|m| format!("{m:.0}")).unwrap_or_else(|| "?".into()),
+        peak_mib()
+            .map(|m| format!("{m:.0}"))
+            .unwrap_or_else(|| "?".into()),
         tree.merges.last().map(|m| m.height).unwrap_or(0.0)
     );
 }

@@ -29,7 +29,7 @@ fn main() -> ExitCode {
     let cli = Cli::parse();
     match cli.command {
         Command::Check { recipe } => with_plan(&recipe, |plan| {
-            let ks = &plan.kmeans.ks;
+            let ks = plan.ks();
             println!(
                 "recipe `{}` checks out: {}, {}, k {}",
                 plan.name,

@@ -9,6 +9,7 @@ use std::collections::BTreeMap;
 use std::path::PathBuf;
 
 pub use crate::engine::kmeans::Seeding;
+pub use crate::engine::tree::{Linkage, Metric};
 
 /// Version of the plan's layout, printed by `assort plan`.
 pub const PLAN_FORMAT: u32 = 1;
@@ -24,7 +25,7 @@ pub struct Plan {
     /// Category columns, one-hot encoded after the numeric features.
     pub categories: Vec<CategoryPlan>,
     pub scale: Scale,
-    pub kmeans: KMeansPlan,
+    pub method: MethodPlan,
     pub choose: ChooseK,
     /// Segment number (1-based) to label.
     pub labels: BTreeMap<usize, String>,
@@ -116,6 +117,44 @@ impl Scale {
     }
 }
 
+impl Plan {
+    /// The values of k the method fits, ascending.
+    pub fn ks(&self) -> &[usize] {
+        match &self.method {
+            MethodPlan::KMeans(k) => &k.ks,
+            MethodPlan::Tree(t) => &t.ks,
+        }
+    }
+}
+
+/// The clustering method, with its settings.
+#[derive(Debug, Clone, Serialize)]
+#[serde(tag = "method", rename_all = "kebab-case")]
+pub enum MethodPlan {
+    #[serde(rename = "kmeans")]
+    KMeans(KMeansPlan),
+    Tree(TreePlan),
+}
+
+/// Agglomerative clustering: one tree, cut at every k.
+#[derive(Debug, Clone, Serialize)]
+pub struct TreePlan {
+    pub ks: Vec<usize>,
+    pub linkage: Linkage,
+    pub distance: Metric,
+    /// Two-stage route: k-means into this many micro-segments first, then
+    /// the tree over their centres weighted by their sizes.
+    pub micro: Option<MicroPlan>,
+}
+
+/// The k-means stage of the two-stage route.
+#[derive(Debug, Clone, Serialize)]
+pub struct MicroPlan {
+    pub segments: usize,
+    pub restarts: usize,
+    pub rounds: usize,
+}
+
 #[derive(Debug, Clone, Serialize)]
 pub struct KMeansPlan {
     /// The values of k to fit, ascending, each at least 2.
@@ -183,6 +222,10 @@ pub enum OutputKind {
     ProfilesCsv,
     ProfilesJson,
     Centroids,
+    /// The tree's merge table (CSV).
+    Merges,
+    /// The tree in Newick format.
+    Newick,
 }
 
 #[derive(Debug, Clone, Serialize)]

@@ -261,8 +261,9 @@ fn check_and_plan_succeed_on_the_demo() {
     let plan: serde_json::Value =
         serde_json::from_str(&case.assort(&["plan", DEMO], &[]).ok().stdout()).unwrap();
     // Defaults are written out.
-    assert_eq!(plan["kmeans"]["rounds"], 300);
-    assert_eq!(plan["kmeans"]["seeding"], "kmeans++");
+    assert_eq!(plan["method"]["method"], "kmeans");
+    assert_eq!(plan["method"]["rounds"], 300);
+    assert_eq!(plan["method"]["seeding"], "kmeans++");
     assert_eq!(plan["features"][2]["transform"], "log1p");
 }
 
@@ -519,4 +520,112 @@ fn iris_through_a_recipe_reaches_the_reference_within_cluster_sum_of_squares() {
         .collect();
     sizes.sort();
     assert_eq!(sizes, vec![38, 50, 62]);
+}
+
+// -------------------------------------------------------------- trees --
+
+/// Iris with a row number as key (Iris has no key column).
+fn keyed_iris() -> String {
+    let iris =
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/iris.csv"))
+            .unwrap();
+    iris.lines()
+        .enumerate()
+        .map(|(i, l)| {
+            if i == 0 {
+                format!("row,{l}\n")
+            } else {
+                format!("{i},{l}\n")
+            }
+        })
+        .collect()
+}
+
+#[test]
+fn an_iris_tree_recipe_cuts_like_the_reference_and_writes_its_tree() {
+    // Reference: scipy 1.17.1, linkage(method='average') on the raw Iris
+    // measurements, fcluster(maxclust=3) (tests/data/reference.json).
+    let case = Case::empty();
+    case.write("iris.csv", &keyed_iris()).write(
+        "iris.assort",
+        "input \"iris.csv\" key row\nfeatures all\nscale none\ntree linkage average k 3\n\
+         save assignments \"out/a.csv\"\nsave merges \"out/merges.csv\"\nsave tree \"out/iris.nwk\"\n",
+    );
+    case.run("iris.assort")
+        .ok()
+        .stdout_has("tree sweep: average linkage, euclidean distance, over 150 records")
+        .stdout_has("cophenetic correlation 0.8770");
+    let reference: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(
+            Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/reference.json"),
+        )
+        .unwrap(),
+    )
+    .unwrap();
+    let theirs: Vec<u64> = reference["trees"]["iris/average/euclidean"]["cut3_labels"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_u64().unwrap())
+        .collect();
+    let ours: Vec<u64> = case
+        .read("out/a.csv")
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').nth(1).unwrap().parse().unwrap())
+        .collect();
+    assert_eq!(
+        assort::engine::compare::adjusted_rand_index(&ours, &theirs),
+        1.0
+    );
+
+    let merges = case.read("out/merges.csv");
+    assert_eq!(merges.lines().next(), Some("step,first,second,height,size"));
+    assert_eq!(merges.lines().count(), 150, "a header and 149 merges");
+    assert!(merges.lines().last().unwrap().ends_with(",150"));
+    let newick = case.read("out/iris.nwk");
+    assert!(newick.ends_with(");\n"), "{newick}");
+    assert_eq!(newick.matches('(').count(), 149);
+    assert_eq!(newick.matches(')').count(), 149);
+    assert_eq!(newick.matches(',').count(), 149);
+}
+
+#[test]
+fn the_two_stage_tree_recovers_the_demo_segments() {
+    let case = Case::demo();
+    case.edit(
+        DEMO,
+        "kmeans k 2..8 restarts 50",
+        "tree linkage ward k 2..8 micro 300",
+    );
+    let out = case.run(DEMO).ok().stdout();
+    assert!(
+        out.contains("over 300 k-means micro-segments (weighted by size)"),
+        "{out}"
+    );
+    assert!(out.contains("chosen: k = 5 "), "{out}");
+    let ari: f64 = out
+        .split("adjusted Rand index ")
+        .nth(1)
+        .and_then(|r| r.split_whitespace().next())
+        .and_then(|v| v.parse().ok())
+        .unwrap();
+    assert!(ari > 0.9, "adjusted Rand index {ari}");
+}
+
+#[test]
+fn a_tree_over_many_records_is_warned_about_but_allowed() {
+    let case = Case::empty();
+    let mut data = String::from("id,a\n");
+    for i in 0..20_500 {
+        data.push_str(&format!("{i},{}\n", (i * 37) % 101));
+    }
+    case.write("big.csv", &data).write(
+        "r.assort",
+        "input \"big.csv\" key id\nfeatures a\ntree linkage ward k 2..4\n",
+    );
+    case.assort(&["check", "r.assort"], &[])
+        .ok()
+        .stderr_has("a tree over every record grows with the square of their number")
+        .stderr_has("add `micro 500`");
 }

@@ -173,6 +173,56 @@ pub enum CheckError {
         first: Span,
     },
 
+    #[error("the recipe names no method")]
+    #[diagnostic(
+        code(assort::no_method),
+        help("say how to form segments: `kmeans k 2..9` or `tree linkage ward k 2..9`")
+    )]
+    NoMethod {
+        #[label("the recipe ends here without one")]
+        span: Span,
+    },
+
+    #[error("`{linkage}` linkage needs Euclidean distances, found `distance {distance}`")]
+    #[diagnostic(
+        code(assort::needs_euclidean),
+        help("`{linkage}` measures distances between group means, which exist only in Euclidean geometry; use `distance euclidean`, or `average`, `complete`, `single` or `weighted` linkage with this distance")
+    )]
+    NeedsEuclidean {
+        linkage: &'static str,
+        distance: &'static str,
+        #[label("this distance")]
+        span: Span,
+        #[label("this linkage")]
+        linkage_span: Span,
+    },
+
+    #[error(
+        "about {records} records: a tree over every record grows with the square of their number"
+    )]
+    #[diagnostic(
+        code(assort::large_tree),
+        severity(Warning),
+        help("above {limit} records, build the tree over k-means micro-segments: add `micro 500` (or more) to `tree`")
+    )]
+    LargeTree {
+        records: usize,
+        limit: usize,
+        #[label("one tree over all records")]
+        span: Span,
+    },
+
+    #[error("`save {what}` needs the `tree` method")]
+    #[diagnostic(
+        code(assort::needs_tree),
+        help("merges and the tree exist only when segments come from `tree`")
+    )]
+    NeedsTree {
+        what: String,
+        #[label("no tree to save")]
+        span: Span,
+    },
+
     #[error("the recipe has no `{keyword}` statement")]
     #[diagnostic(code(assort::missing_statement), help("{help}"))]
     MissingStatement {

@@ -26,6 +26,8 @@ pub mod defaults {
     pub const TOLERANCE: f64 = 1e-6;
     pub const SEPARATOR: char = ',';
     pub const WEIGHT: f64 = 1.0;
+    /// Restarts of the k-means stage of the two-stage tree.
+    pub const MICRO_RESTARTS: usize = 3;
 }
 
 /// A recipe's text and where it lives.
@@ -119,9 +121,12 @@ fn explain_syntax(mut e: syntax::SyntaxError) -> syntax::SyntaxError {
 pub const MAX_K: i64 = 1_000_000;
 pub const MAX_K_SPAN: i64 = 500;
 
+/// Records above which a tree over every record is advised against.
+pub const TREE_DIRECT_LIMIT: usize = 20_000;
+
 /// Statements that may appear once, by word.
-const SINGLE: [&str; 8] = [
-    "recipe", "seed", "input", "features", "scale", "kmeans", "choose", "validate",
+const SINGLE: [&str; 9] = [
+    "recipe", "seed", "input", "features", "scale", "kmeans", "tree", "choose", "validate",
 ];
 
 struct Checker {
@@ -190,11 +195,16 @@ impl Checker {
             }) => self.word_choice("scale method", method, &Scale::NAMES, Scale::parse),
             _ => Some(Scale::Zscore),
         };
-        let kmeans = self.kmeans(find("kmeans"));
-        let choose = self.choose(find("choose"), kmeans.as_ref());
-        let labels = self.labels(stmts, kmeans.as_ref());
+        let method = self.method(find("kmeans"), find("tree"));
+        let ks: Option<Vec<usize>> = method.as_ref().map(|m| match m {
+            MethodPlan::KMeans(k) => k.ks.clone(),
+            MethodPlan::Tree(t) => t.ks.clone(),
+        });
+        let choose = self.choose(find("choose"), ks.as_deref());
+        let labels = self.labels(stmts, ks.as_deref());
         let validate = self.validate(find("validate"), input.as_ref());
-        let outputs = self.outputs(stmts, input.as_ref());
+        let is_tree = matches!(method, Some(MethodPlan::Tree(_)));
+        let outputs = self.outputs(stmts, input.as_ref(), is_tree);
         let seed = self.seed(find("seed"));
         let name = match find("recipe") {
             Some(Statement {
@@ -212,7 +222,7 @@ impl Checker {
             features: features?,
             categories: categories?,
             scale: scale?,
-            kmeans: kmeans?,
+            method: method?,
             choose: choose?,
             labels: labels?,
             validate: validate?,
@@ -792,28 +802,48 @@ impl Checker {
 
     // ----------------------------------------------------------- method --
 
-    fn kmeans(&mut self, stmt: Option<&Statement>) -> Option<KMeansPlan> {
-        let Some(
-            s @ Statement {
-                kind: StatementKind::KMeans { options },
-                ..
-            },
-        ) = stmt
-        else {
-            self.err(CheckError::MissingStatement {
-                span: self.end,
-                keyword: "kmeans",
-                help: "say how many segments to look for, such as `kmeans k 2..9`".into(),
-            });
-            return None;
-        };
-        let opts = self.options("kmeans", options, vocab::KMEANS_OPTIONS);
-        let ks = match opts.get("k") {
+    /// The one method statement: `kmeans` or `tree`.
+    fn method(
+        &mut self,
+        kmeans: Option<&Statement>,
+        tree: Option<&Statement>,
+    ) -> Option<MethodPlan> {
+        match (kmeans, tree) {
+            (Some(a), Some(b)) => {
+                let (first, second) = if a.span.start < b.span.start {
+                    (a, b)
+                } else {
+                    (b, a)
+                };
+                self.err(CheckError::Conflict {
+                    what: "a method (`kmeans` or `tree`)".into(),
+                    span: second.keyword.span,
+                    first: first.keyword.span,
+                });
+                None
+            }
+            (Some(s), None) => self.kmeans(s).map(MethodPlan::KMeans),
+            (None, Some(s)) => self.tree(s).map(MethodPlan::Tree),
+            (None, None) => {
+                self.err(CheckError::NoMethod { span: self.end });
+                None
+            }
+        }
+    }
+
+    /// The required `k` option of a method statement.
+    fn required_ks(
+        &mut self,
+        statement: &'static str,
+        opts: &HashMap<&'static str, &OptionPair>,
+        span: Span,
+    ) -> Option<Vec<usize>> {
+        match opts.get("k") {
             None => {
                 self.err(CheckError::MissingOption {
-                    statement: "kmeans",
+                    statement,
                     option: "k",
-                    span: s.span,
+                    span,
                     help:
                         "a number of segments such as `k 5`, or a range to compare such as `k 2..9`"
                             .into(),
@@ -821,7 +851,114 @@ impl Checker {
                 None
             }
             Some(o) => self.ks(&o.value),
+        }
+    }
+
+    fn tree(&mut self, s: &Statement) -> Option<TreePlan> {
+        let StatementKind::Tree { options } = &s.kind else {
+            return None;
         };
+        let opts = self.options("tree", options, vocab::TREE_OPTIONS);
+        let ks = self.required_ks("tree", &opts, s.span);
+        let word = |o: &OptionPair| match &o.value.node {
+            Value::Word(w) => Some(Spanned::new(w.clone(), o.value.span)),
+            _ => None,
+        };
+        let linkage = match opts.get("linkage") {
+            None => Some((Linkage::Ward, None)),
+            Some(o) => match word(o) {
+                Some(w) => self
+                    .word_choice("linkage", &w, &Linkage::NAMES, Linkage::parse)
+                    .map(|l| (l, Some(o.value.span))),
+                None => {
+                    self.bad_value(
+                        "linkage",
+                        &o.value.node,
+                        "a linkage name",
+                        o.value.span,
+                        "for example `linkage ward`",
+                    );
+                    None
+                }
+            },
+        };
+        let distance = match opts.get("distance") {
+            None => Some((Metric::Euclidean, None)),
+            Some(o) => match word(o) {
+                Some(w) => self
+                    .word_choice("distance", &w, &Metric::NAMES, Metric::parse)
+                    .map(|m| (m, Some(o.value.span))),
+                None => {
+                    self.bad_value(
+                        "distance",
+                        &o.value.node,
+                        "a distance name",
+                        o.value.span,
+                        "for example `distance manhattan`",
+                    );
+                    None
+                }
+            },
+        };
+        if let (Some((l, l_span)), Some((m, Some(m_span)))) = (linkage, distance) {
+            if l.needs_euclidean() && m != Metric::Euclidean {
+                self.err(CheckError::NeedsEuclidean {
+                    linkage: l.name(),
+                    distance: m.name(),
+                    span: m_span,
+                    linkage_span: l_span.unwrap_or(s.keyword.span),
+                });
+                return None;
+            }
+        }
+        let micro = match opts.get("micro") {
+            None => None,
+            Some(o) => {
+                let m = self.whole_option(&opts, "micro", 2, 500)?;
+                if let Some(most) = ks.as_ref().and_then(|k| k.last()) {
+                    if m <= *most {
+                        self.err(CheckError::ImpossibleK {
+                            reason: format!("{m} micro-segments cannot be cut into {most} segments"),
+                            span: o.value.span,
+                            help: "micro-segments are the tree's leaves; use many more than the largest k, such as `micro 500`".into(),
+                        });
+                        return None;
+                    }
+                }
+                Some(MicroPlan {
+                    segments: m,
+                    restarts: defaults::MICRO_RESTARTS,
+                    rounds: defaults::ROUNDS,
+                })
+            }
+        };
+        if micro.is_none() {
+            let rows = self
+                .probe
+                .as_ref()
+                .and_then(|p| p.rows.or(p.estimated_rows));
+            if let Some(n) = rows.filter(|&n| n > TREE_DIRECT_LIMIT) {
+                self.err(CheckError::LargeTree {
+                    records: n,
+                    limit: TREE_DIRECT_LIMIT,
+                    span: s.keyword.span,
+                });
+            }
+        }
+        Some(TreePlan {
+            ks: ks?,
+            linkage: linkage?.0,
+            distance: distance?.0,
+            micro,
+        })
+    }
+
+    fn kmeans(&mut self, s: &Statement) -> Option<KMeansPlan> {
+        let StatementKind::KMeans { options } = &s.kind else {
+            return None;
+        };
+        let opts = self.options("kmeans", options, vocab::KMEANS_OPTIONS);
+        let ks = self.required_ks("kmeans", &opts, s.span);
         let restarts = self.whole_option(&opts, "restarts", 1, defaults::RESTARTS);
         let rounds = self.whole_option(&opts, "rounds", 1, defaults::ROUNDS);
         let tolerance = match opts.get("tolerance") {
@@ -952,7 +1089,7 @@ impl Checker {
         Some((lo as usize..=hi as usize).collect())
     }
 
-    fn choose(&mut self, stmt: Option<&Statement>, kmeans: Option<&KMeansPlan>) -> Option<ChooseK> {
+    fn choose(&mut self, stmt: Option<&Statement>, fitted: Option<&[usize]>) -> Option<ChooseK> {
         let Some(Statement {
             kind: StatementKind::Choose(rule),
             ..
@@ -960,7 +1097,7 @@ impl Checker {
         else {
             // A single k is fixed; a range is judged by silhouette unless
             // the recipe says otherwise.
-            return Some(match kmeans.map(|k| k.ks.as_slice()) {
+            return Some(match fitted {
                 Some([k]) => ChooseK::Fixed(*k),
                 _ => ChooseK::By(Criterion::Silhouette),
             });
@@ -968,7 +1105,7 @@ impl Checker {
         match rule {
             ChooseRule::By(word) => {
                 let c = self.word_choice("criterion", word, &Criterion::NAMES, Criterion::parse)?;
-                if let Some([k]) = kmeans.map(|k| k.ks.as_slice()) {
+                if let Some([k]) = fitted {
                     self.err(CheckError::NothingToChoose {
                         criterion: word.node.clone(),
                         span: word.span,
@@ -988,7 +1125,7 @@ impl Checker {
                     );
                     return None;
                 };
-                let ks = kmeans.map(|p| p.ks.clone()).unwrap_or_default();
+                let ks = fitted.map(<[usize]>::to_vec).unwrap_or_default();
                 if !ks.is_empty() && !ks.contains(&(k.max(0) as usize)) {
                     self.err(CheckError::ImpossibleK {
                         reason: format!(
@@ -1009,9 +1146,9 @@ impl Checker {
     fn labels(
         &mut self,
         stmts: &[Statement],
-        kmeans: Option<&KMeansPlan>,
+        fitted: Option<&[usize]>,
     ) -> Option<BTreeMap<usize, String>> {
-        let most = kmeans.and_then(|k| k.ks.last().copied());
+        let most = fitted.and_then(|k| k.last().copied());
         let mut out = BTreeMap::new();
         let mut spans: HashMap<usize, Span> = HashMap::new();
         let mut ok = true;
@@ -1125,6 +1262,7 @@ impl Checker {
         &mut self,
         stmts: &[Statement],
         input: Option<&CheckedInput>,
+        is_tree: bool,
     ) -> Option<Vec<OutputPlan>> {
         let mut out: Vec<OutputPlan> = Vec::new();
         let mut spans: Vec<Span> = Vec::new();
@@ -1147,7 +1285,25 @@ impl Checker {
                 ("centroids", "csv") => Some(OutputKind::Centroids),
                 ("profiles", "csv") => Some(OutputKind::ProfilesCsv),
                 ("profiles", "json") => Some(OutputKind::ProfilesJson),
-                ("assignments" | "centroids", _) => {
+                ("merges" | "tree", _) if !is_tree => {
+                    self.err(CheckError::NeedsTree {
+                        what: what.node.clone(),
+                        span: what.span,
+                    });
+                    None
+                }
+                ("merges", "csv") => Some(OutputKind::Merges),
+                ("tree", "nwk" | "newick") => Some(OutputKind::Newick),
+                ("tree", _) => {
+                    self.err(CheckError::OutputFormat {
+                        what: "`save tree`".into(),
+                        expected: "`.nwk` or `.newick`",
+                        path: path.node.clone(),
+                        span: path.span,
+                    });
+                    None
+                }
+                ("assignments" | "centroids" | "merges", _) => {
                     self.err(CheckError::OutputFormat {
                         what: format!("`save {}`", what.node),
                         expected: "`.csv`",
@@ -1171,8 +1327,12 @@ impl Checker {
                         what: "output",
                         found: other.to_string(),
                         span: what.span,
-                        choices: "`assignments`, `profiles` or `centroids`".into(),
-                        help: did_you_mean(&suggestion, "save assignments, profiles or centroids"),
+                        choices: "`assignments`, `profiles`, `centroids`, `merges` or `tree`"
+                            .into(),
+                        help: did_you_mean(
+                            &suggestion,
+                            "save assignments, profiles, centroids, or a tree's merges and tree",
+                        ),
                     });
                     None
                 }

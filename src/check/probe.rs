@@ -50,6 +50,9 @@ pub struct Probe {
     pub sampled: usize,
     /// The record count, when the whole file fit in the sample.
     pub rows: Option<usize>,
+    /// Otherwise an estimate: the file's size over the sample's bytes per
+    /// record.
+    pub estimated_rows: Option<usize>,
 }
 
 impl Probe {
@@ -155,10 +158,20 @@ pub fn probe(path: &Path, separator: u8) -> Result<Probe, ProbeError> {
             complete = true;
         }
     }
+    let estimated_rows = if complete || sampled == 0 {
+        None
+    } else {
+        let read = reader.position().byte().max(1) as f64;
+        let size = std::fs::metadata(path)
+            .map(|m| m.len() as f64)
+            .unwrap_or(read);
+        Some((size / read * sampled as f64).round() as usize)
+    };
     Ok(Probe {
         columns,
         sampled,
         rows: complete.then_some(sampled),
+        estimated_rows,
     })
 }
 

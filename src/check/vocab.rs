@@ -60,6 +60,11 @@ pub const STATEMENTS: &[StatementDoc] = &[
         example: "kmeans k 2..9 restarts 25",
     },
     StatementDoc {
+        word: "tree",
+        summary: "the method: agglomerative clustering, one tree cut at every k",
+        example: "tree linkage ward k 2..9",
+    },
+    StatementDoc {
         word: "choose",
         summary: "how k is chosen from the range: fixed or by a criterion",
         example: "choose k by silhouette",
@@ -71,7 +76,8 @@ pub const STATEMENTS: &[StatementDoc] = &[
     },
     StatementDoc {
         word: "save",
-        summary: "writes assignments, profiles (.csv or .json) or centroids",
+        summary:
+            "writes assignments, profiles (.csv or .json), centroids, or a tree's merges and tree",
         example: r#"save assignments "out/members.csv""#,
     },
     StatementDoc {
@@ -143,6 +149,29 @@ pub const KMEANS_OPTIONS: &[OptionDoc] = &[
     },
 ];
 
+pub const TREE_OPTIONS: &[OptionDoc] = &[
+    OptionDoc {
+        name: "k",
+        takes: "a whole number or a range such as `2..9`",
+        summary: "how many segments to cut the tree into, or the range to compare (required)",
+    },
+    OptionDoc {
+        name: "linkage",
+        takes: "`ward`, `average`, `complete`, `single`, `weighted`, `centroid` or `median`",
+        summary: "how the distance between two groups is measured (`ward` unless given)",
+    },
+    OptionDoc {
+        name: "distance",
+        takes: "`euclidean`, `manhattan`, `cosine` or `correlation`",
+        summary: "how the distance between two records is measured (`euclidean` unless given)",
+    },
+    OptionDoc {
+        name: "micro",
+        takes: "a whole number above the largest k",
+        summary: "first k-means into this many micro-segments, then the tree over their centres (for large data)",
+    },
+];
+
 pub const VALIDATE_OPTIONS: &[OptionDoc] = &[OptionDoc {
     name: "column",
     takes: "a column name",
@@ -150,7 +179,7 @@ pub const VALIDATE_OPTIONS: &[OptionDoc] = &[OptionDoc {
 }];
 
 /// What `save` can write.
-pub const SAVE_WHAT: [&str; 3] = ["assignments", "profiles", "centroids"];
+pub const SAVE_WHAT: [&str; 5] = ["assignments", "profiles", "centroids", "merges", "tree"];
 
 /// Fill words `missing fill` takes besides a number.
 pub const FILL_WORDS: [&str; 2] = ["median", "mean"];

@@ -223,6 +223,38 @@ pub fn nearest_with_margin(
         .collect()
 }
 
+/// For each record: the distance to the centre of its own segment, and the
+/// margin (distance to the nearest other centre minus that distance; zero
+/// with one centre). For k-means labels the own centre is the nearest, so
+/// the margin is never negative; for a tree's segments it can be, marking a
+/// record nearer another segment's centre than its own.
+pub fn distance_and_margin(
+    data: ArrayView2<'_, f64>,
+    centroids: ArrayView2<'_, f64>,
+    labels: &[u32],
+) -> Vec<(f64, f64)> {
+    let cents: Vec<Vec<f64>> = centroids.outer_iter().map(|r| r.to_vec()).collect();
+    let rows: Vec<Vec<f64>> = data.outer_iter().map(|r| r.to_vec()).collect();
+    rows.par_iter()
+        .zip(labels.par_iter())
+        .map(|(row, &own)| {
+            let own_d = dist2(row, &cents[own as usize]).sqrt();
+            let other = cents
+                .iter()
+                .enumerate()
+                .filter(|(j, _)| *j != own as usize)
+                .map(|(_, c)| dist2(row, c))
+                .fold(f64::INFINITY, f64::min);
+            let margin = if other.is_finite() {
+                other.sqrt() - own_d
+            } else {
+                0.0
+            };
+            (own_d, margin)
+        })
+        .collect()
+}
+
 /// The data and settings shared by all restarts.
 struct Problem<'a> {
     x: &'a [f64],

@@ -114,6 +114,15 @@ pub enum Metric {
 impl Metric {
     pub const NAMES: [&'static str; 4] = ["euclidean", "manhattan", "cosine", "correlation"];
 
+    pub fn name(self) -> &'static str {
+        match self {
+            Metric::Euclidean => "euclidean",
+            Metric::Manhattan => "manhattan",
+            Metric::Cosine => "cosine",
+            Metric::Correlation => "correlation",
+        }
+    }
+
     pub fn parse(word: &str) -> Option<Metric> {
         match word {
             "euclidean" => Some(Metric::Euclidean),

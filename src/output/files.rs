@@ -28,6 +28,8 @@ fn render(o: &Outcome, out: &OutputPlan) -> Rendered {
         OutputKind::ProfilesCsv => profiles_csv(o),
         OutputKind::ProfilesJson => profiles_json(o),
         OutputKind::Centroids => centroids(o),
+        OutputKind::Merges => merges(o),
+        OutputKind::Newick => newick(o),
     };
     Rendered {
         path: out.resolved.clone(),
@@ -140,6 +142,42 @@ fn centroids(o: &Outcome) -> Vec<u8> {
         rows.push(r);
     }
     csv_bytes(rows)
+}
+
+/// The tree's merge table, one row per merge in order: the step, the two
+/// groups joined (a leaf by its name, an earlier merge as `#step`), the
+/// height and the size of the new group.
+fn merges(o: &Outcome) -> Vec<u8> {
+    let Some(t) = &o.tree else { return Vec::new() };
+    let n = t.dendrogram.n;
+    let name = |id: usize| {
+        if id < n {
+            t.leaf_names[id].clone()
+        } else {
+            format!("#{}", id - n + 1)
+        }
+    };
+    let mut rows = vec![["step", "first", "second", "height", "size"]
+        .iter()
+        .map(|s| s.to_string())
+        .collect::<Vec<_>>()];
+    for (i, m) in t.dendrogram.merges.iter().enumerate() {
+        rows.push(vec![
+            (i + 1).to_string(),
+            name(m.a),
+            name(m.b),
+            format!("{}", m.height),
+            m.size.to_string(),
+        ]);
+    }
+    csv_bytes(rows)
+}
+
+fn newick(o: &Outcome) -> Vec<u8> {
+    let Some(t) = &o.tree else { return Vec::new() };
+    let mut text = t.dendrogram.newick(&t.leaf_names);
+    text.push('\n');
+    text.into_bytes()
 }
 
 #[derive(Serialize)]

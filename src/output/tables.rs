@@ -2,7 +2,7 @@
 //! laid out to read at 100 columns.
 
 use super::short;
-use crate::plan::Seeding;
+use crate::plan::{MethodPlan, Seeding};
 use crate::run::{Outcome, Profile};
 use std::fmt::Write;
 
@@ -88,29 +88,64 @@ fn serde_plain<T: serde::Serialize>(v: &T) -> String {
 }
 
 fn sweep(s: &mut String, o: &Outcome) {
-    let km = &o.plan.kmeans;
-    let seeding = match km.seeding {
-        Seeding::KMeansPlusPlus => "k-means++ starts",
-        _ => "random-partition starts",
-    };
-    let _ = writeln!(
-        s,
-        "k-means sweep: {} restarts per k, {seeding}, seed {}",
-        km.restarts, o.plan.seed
-    );
-    let _ = writeln!(
-        s,
+    match (&o.plan.method, &o.tree) {
+        (MethodPlan::KMeans(km), _) => {
+            let seeding = match km.seeding {
+                Seeding::KMeansPlusPlus => "k-means++ starts",
+                _ => "random-partition starts",
+            };
+            let _ = writeln!(
+                s,
+                "k-means sweep: {} restarts per k, {seeding}, seed {}",
+                km.restarts, o.plan.seed
+            );
+        }
+        (MethodPlan::Tree(_), Some(t)) => {
+            let over = if t.two_stage {
+                format!(
+                    "over {} k-means micro-segments (weighted by size)",
+                    t.leaves
+                )
+            } else {
+                format!("over {} records", t.leaves)
+            };
+            let _ = writeln!(
+                s,
+                "tree sweep: {} linkage, {} distance, {over}",
+                t.linkage.name(),
+                t.distance.name()
+            );
+            let mut line = format!("cophenetic correlation {:.4}", t.cophenetic);
+            if t.inversions > 0 {
+                let _ = write!(line, "; {} inversions (merges lower than the one before: the tree is not monotone, so heights do not order the cuts)", t.inversions);
+            }
+            wrapped(s, "  ", &line);
+        }
+        (MethodPlan::Tree(_), None) => {}
+    }
+    let restarts = o.sweep.iter().any(|r| r.restarts.is_some());
+    let header = format!(
         "  {:>3} {:>14} {:>11} {:>17} {:>14} {:>14}",
-        "k", "within SS", "silhouette", "calinski-harabasz", "davies-bouldin", "best reached"
+        "k",
+        "within SS",
+        "silhouette",
+        "calinski-harabasz",
+        "davies-bouldin",
+        if restarts { "best reached" } else { "" }
     );
+    let _ = writeln!(s, "{}", header.trim_end());
     for r in &o.sweep {
         let mark = if r.k == o.chosen { ">" } else { " " };
-        let reached = format!("{}/{}", r.restarts_at_best, r.restarts);
-        let _ = writeln!(
-            s,
+        let reached = r
+            .restarts
+            .as_ref()
+            .map(|x| format!("{}/{}", x.at_best, x.of))
+            .unwrap_or_default();
+        let line = format!(
             "{mark} {:>3} {:>14.3} {:>11.4} {:>17.2} {:>14.4} {:>14}",
             r.k, r.within_ss, r.silhouette, r.calinski_harabasz, r.davies_bouldin, reached
         );
+        let _ = writeln!(s, "{}", line.trim_end());
     }
     let sampled = o
         .sweep

@@ -9,9 +9,10 @@ pub mod error;
 pub mod load;
 pub mod prepare;
 
-use crate::engine::{self, compare, criteria, kmeans};
-use crate::plan::{ChooseK, Criterion, Plan};
+use crate::engine::{self, compare, criteria, kmeans, tree};
+use crate::plan::{ChooseK, Criterion, KMeansPlan, MethodPlan, Plan, TreePlan};
 pub use error::RunError;
+use ndarray::{Array2, ArrayView2};
 use prepare::Prepared;
 use serde::Serialize;
 use std::collections::HashMap;
@@ -32,9 +33,32 @@ pub struct SweepRow {
     pub silhouette_evaluated: usize,
     pub calinski_harabasz: f64,
     pub davies_bouldin: f64,
-    pub restarts_at_best: usize,
-    pub restarts: usize,
+    /// For k-means: how the restarts went.
+    pub restarts: Option<Restarts>,
+}
+
+/// How k-means restarts went for one k.
+#[derive(Debug, Clone, Serialize)]
+pub struct Restarts {
+    /// Restarts that reached the best partition.
+    pub at_best: usize,
+    pub of: usize,
+    /// Whether the best restart stopped before its round cap.
     pub converged: bool,
+}
+
+/// The tree a `tree` recipe built.
+#[derive(Debug, Clone)]
+pub struct TreeResult {
+    pub linkage: crate::plan::Linkage,
+    pub distance: crate::plan::Metric,
+    /// Records, or micro-segments in the two-stage route.
+    pub leaves: usize,
+    pub two_stage: bool,
+    pub cophenetic: f64,
+    pub inversions: usize,
+    pub dendrogram: tree::Dendrogram,
+    pub leaf_names: Vec<String>,
 }
 
 impl SweepRow {
@@ -109,6 +133,8 @@ pub struct Outcome {
     pub profiles: Vec<Profile>,
     pub overall: Profile,
     pub validation: Option<Validation>,
+    /// For `tree` recipes: the tree and its summary.
+    pub tree: Option<TreeResult>,
 }
 
 /// Runs a plan.
@@ -127,60 +153,59 @@ pub fn run(plan: &Plan) -> Result<Outcome, RunError> {
     )?;
     let prepared = prepare::prepare(plan, &table)?;
     let n = prepared.kept.len();
-    if let Some(&most) = plan.kmeans.ks.last() {
-        if most > n {
-            return Err(RunError::TooFewRecords { k: most, n });
-        }
+    let most = plan.ks().last().copied().unwrap_or(0);
+    let needed = match &plan.method {
+        MethodPlan::Tree(TreePlan { micro: Some(m), .. }) => m.segments,
+        _ => most,
+    };
+    if needed > n {
+        return Err(RunError::TooFewRecords { k: needed, n });
     }
 
-    let mut fits = Vec::with_capacity(plan.kmeans.ks.len());
-    let mut sweep = Vec::with_capacity(plan.kmeans.ks.len());
-    let mut per_segment_silhouette = Vec::new();
-    for &k in &plan.kmeans.ks {
-        let settings = kmeans::KMeansSettings {
-            k,
-            restarts: plan.kmeans.restarts,
-            max_rounds: plan.kmeans.rounds,
-            tolerance: plan.kmeans.tolerance,
-            seeding: plan.kmeans.seeding,
-            seed: plan.seed,
-        };
-        let x = prepared.matrix.view();
-        let fit = kmeans::kmeans(x, &settings).map_err(|source| RunError::Engine { k, source })?;
-        let sil = criteria::silhouette(x, &fit.labels, k, plan.seed, SILHOUETTE_STREAM | k as u64);
+    let x = prepared.matrix.view();
+    let keys: Vec<&str> = prepared
+        .kept
+        .iter()
+        .map(|&i| table.keys[i].as_str())
+        .collect();
+    let (candidates, tree) = match &plan.method {
+        MethodPlan::KMeans(km) => (fit_kmeans(plan, km, x)?, None),
+        MethodPlan::Tree(t) => {
+            let (c, tree) = fit_tree(plan, t, x, &keys)?;
+            (c, Some(tree))
+        }
+    };
+
+    let mut sweep = Vec::with_capacity(candidates.len());
+    let mut per_segment_silhouette = Vec::with_capacity(candidates.len());
+    for c in &candidates {
+        let k = c.k;
+        let sil = criteria::silhouette(x, &c.labels, k, plan.seed, SILHOUETTE_STREAM | k as u64);
         sweep.push(SweepRow {
             k,
-            within_ss: fit.inertia,
+            within_ss: criteria::within_ss(x, &c.labels, k),
             silhouette: sil.mean,
             silhouette_evaluated: sil.evaluated,
-            calinski_harabasz: criteria::calinski_harabasz(x, &fit.labels, k),
-            davies_bouldin: criteria::davies_bouldin(x, &fit.labels, k),
-            restarts_at_best: fit.restarts_at_best,
-            restarts: fit.restarts,
-            converged: fit.converged,
+            calinski_harabasz: criteria::calinski_harabasz(x, &c.labels, k),
+            davies_bouldin: criteria::davies_bouldin(x, &c.labels, k),
+            restarts: c.restarts.clone(),
         });
         per_segment_silhouette.push(sil.per_segment);
-        fits.push(fit);
     }
 
     let (chosen, reason) = choose(plan, &sweep);
     let disagreement = disagreement(&sweep);
     let advice = advice(&sweep);
-    let at = plan
-        .kmeans
-        .ks
-        .iter()
-        .position(|&k| k == chosen)
-        .unwrap_or(0);
-    let fit = &fits[at];
+    let at = candidates.iter().position(|c| c.k == chosen).unwrap_or(0);
+    let fit = &candidates[at];
 
-    let nearest = kmeans::nearest_with_margin(prepared.matrix.view(), fit.centroids.view());
-    let assignments = prepared
-        .kept
+    let measured = kmeans::distance_and_margin(x, fit.centres.view(), &fit.labels);
+    let assignments = keys
         .iter()
-        .zip(&nearest)
-        .map(|(&row, &(seg, distance, margin))| Assignment {
-            key: table.keys[row].clone(),
+        .zip(&fit.labels)
+        .zip(&measured)
+        .map(|((key, &seg), &(distance, margin))| Assignment {
+            key: key.to_string(),
             segment: seg as usize + 1,
             distance,
             margin,
@@ -201,7 +226,7 @@ pub fn run(plan: &Plan) -> Result<Outcome, RunError> {
                 .features
                 .iter()
                 .enumerate()
-                .map(|(f, p)| p.to_original(fit.centroids[[s, f]]))
+                .map(|(f, p)| p.to_original(fit.centres[[s, f]]))
                 .collect();
             let mut p = profile(
                 &prepared,
@@ -234,7 +259,134 @@ pub fn run(plan: &Plan) -> Result<Outcome, RunError> {
         profiles,
         overall,
         validation,
+        tree,
     })
+}
+
+/// One candidate segmentation: a k, each record's segment (0-based,
+/// canonical) and the segment centres in the clustered space.
+struct Candidate {
+    k: usize,
+    labels: Vec<u32>,
+    centres: Array2<f64>,
+    restarts: Option<Restarts>,
+}
+
+fn fit_kmeans(
+    plan: &Plan,
+    km: &KMeansPlan,
+    x: ArrayView2<'_, f64>,
+) -> Result<Vec<Candidate>, RunError> {
+    km.ks
+        .iter()
+        .map(|&k| {
+            let settings = kmeans::KMeansSettings {
+                k,
+                restarts: km.restarts,
+                max_rounds: km.rounds,
+                tolerance: km.tolerance,
+                seeding: km.seeding,
+                seed: plan.seed,
+            };
+            let fit =
+                kmeans::kmeans(x, &settings).map_err(|source| RunError::Engine { k, source })?;
+            Ok(Candidate {
+                k,
+                restarts: Some(Restarts {
+                    at_best: fit.restarts_at_best,
+                    of: fit.restarts,
+                    converged: fit.converged,
+                }),
+                labels: fit.labels,
+                centres: fit.centroids,
+            })
+        })
+        .collect()
+}
+
+/// Builds one tree (over the records, or over k-means micro-segments) and
+/// cuts it at every k.
+fn fit_tree(
+    plan: &Plan,
+    t: &TreePlan,
+    x: ArrayView2<'_, f64>,
+    keys: &[&str],
+) -> Result<(Vec<Candidate>, TreeResult), RunError> {
+    let (dendrogram, leaf_of, leaf_names, leaves) = match &t.micro {
+        Some(m) => {
+            let settings = kmeans::KMeansSettings {
+                k: m.segments,
+                restarts: m.restarts,
+                max_rounds: m.rounds,
+                tolerance: crate::check::defaults::TOLERANCE,
+                seeding: kmeans::Seeding::KMeansPlusPlus,
+                seed: plan.seed,
+            };
+            let fit = kmeans::kmeans(x, &settings).map_err(|source| RunError::Engine {
+                k: m.segments,
+                source,
+            })?;
+            let mut sizes = vec![0usize; m.segments];
+            fit.labels.iter().for_each(|&l| sizes[l as usize] += 1);
+            let tree =
+                tree::linkage_weighted(fit.centroids.view(), Some(&sizes), t.linkage, t.distance)
+                    .map_err(|source| RunError::Engine {
+                    k: m.segments,
+                    source,
+                })?;
+            let names = (1..=m.segments).map(|i| format!("micro-{i}")).collect();
+            let coph = tree.cophenetic_correlation(fit.centroids.view(), t.distance);
+            ((tree, coph), Some(fit.labels), names, m.segments)
+        }
+        None => {
+            let tree = tree::linkage(x, t.linkage, t.distance)
+                .map_err(|source| RunError::Engine { k: 1, source })?;
+            let coph = tree.cophenetic_correlation(x, t.distance);
+            (
+                (tree, coph),
+                None,
+                keys.iter().map(|k| k.to_string()).collect(),
+                x.nrows(),
+            )
+        }
+    };
+    let (dendrogram, cophenetic) = dendrogram;
+    let candidates =
+        t.ks.iter()
+            .map(|&k| {
+                let cut = dendrogram.cut(k);
+                let labels = match &leaf_of {
+                    Some(micro) => {
+                        kmeans::canonical(
+                            &micro.iter().map(|&m| cut[m as usize]).collect::<Vec<_>>(),
+                            k,
+                        )
+                        .0
+                    }
+                    None => cut,
+                };
+                let centres = criteria::centres(x, &labels, k);
+                let d = x.ncols();
+                let centres = Array2::from_shape_fn((k, d), |(s, f)| centres[s][f]);
+                Candidate {
+                    k,
+                    labels,
+                    centres,
+                    restarts: None,
+                }
+            })
+            .collect();
+    let result = TreeResult {
+        linkage: t.linkage,
+        distance: t.distance,
+        leaves,
+        two_stage: leaf_of.is_some(),
+        cophenetic,
+        inversions: dendrogram.inversions(),
+        dendrogram,
+        leaf_names,
+    };
+    Ok((candidates, result))
 }
 
 /// The k a criterion prefers: best value, ties to the smaller k. A value
@@ -255,8 +407,8 @@ pub fn best_k(sweep: &[SweepRow], c: Criterion) -> Option<&SweepRow> {
 }
 
 fn choose(plan: &Plan, sweep: &[SweepRow]) -> (usize, String) {
-    let ks = &plan.kmeans.ks;
-    let span = match ks.as_slice() {
+    let ks = plan.ks();
+    let span = match ks {
         [k] => format!("k = {k}"),
         _ => format!("k = {}..{}", ks[0], ks[ks.len() - 1]),
     };
@@ -311,11 +463,12 @@ fn disagreement(sweep: &[SweepRow]) -> Option<String> {
 fn advice(sweep: &[SweepRow]) -> Vec<String> {
     sweep
         .iter()
-        .filter(|r| r.restarts > 1 && ((r.restarts_at_best as f64) < RESTART_ADVICE_SHARE * r.restarts as f64 || r.restarts_at_best == 1))
-        .map(|r| {
+        .filter_map(|r| r.restarts.as_ref().map(|x| (r.k, x)))
+        .filter(|(_, x)| x.of > 1 && ((x.at_best as f64) < RESTART_ADVICE_SHARE * x.of as f64 || x.at_best == 1))
+        .map(|(k, x)| {
             format!(
-                "for k = {} only {} of {} restarts reached the best partition; k-means finds local optima, so more restarts are advisable, and a k whose best is rarely reached is often one the data does not support",
-                r.k, r.restarts_at_best, r.restarts
+                "for k = {k} only {} of {} restarts reached the best partition; k-means finds local optima, so more restarts are advisable, and a k whose best is rarely reached is often one the data does not support",
+                x.at_best, x.of
             )
         })
         .collect()

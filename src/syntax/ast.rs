@@ -173,6 +173,9 @@ pub enum StatementKind {
     KMeans {
         options: Vec<OptionPair>,
     },
+    Tree {
+        options: Vec<OptionPair>,
+    },
     Choose(ChooseRule),
     Label {
         segment: Spanned<Number>,

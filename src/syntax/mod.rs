@@ -177,6 +177,9 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
         Rule::kmeans_stmt => StatementKind::KMeans {
             options: options_of(&rest, off),
         },
+        Rule::tree_stmt => StatementKind::Tree {
+            options: options_of(&rest, off),
+        },
         Rule::choose_stmt => {
             // rest[0] is the fixed word `k`.
             let rule = &rest[1];
