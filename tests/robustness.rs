@@ -37,10 +37,20 @@ fn mangled_recipes_are_checked_without_panic() {
     let base = demo_recipe();
     let alphabet: Vec<char> = "abk_0129.,\"# \n\t-+e..é\u{feff}".chars().collect();
     let mut s = Stream::new(99, 0);
-    let tree_text = base.text.replace("kmeans k 2..8 restarts 50", "tree linkage ward k 2..8 micro 300 distance euclidean");
-    assert_ne!(tree_text, base.text, "the demo recipe changed; update this test");
+    let tree_text = base.text.replace(
+        "kmeans k 2..8 restarts 50",
+        "tree linkage ward k 2..8 micro 300 distance euclidean",
+    );
+    assert_ne!(
+        tree_text, base.text,
+        "the demo recipe changed; update this test"
+    );
     for round in 0..600 {
-        let source = if round % 2 == 0 { &base.text } else { &tree_text };
+        let source = if round % 2 == 0 {
+            &base.text
+        } else {
+            &tree_text
+        };
         let mut chars: Vec<char> = source.chars().collect();
         for _ in 0..1 + s.below(6) {
             let at = s.below(chars.len() + 1);
