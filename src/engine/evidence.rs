@@ -25,7 +25,7 @@ pub fn derived_seed(seed: u64, purpose: u64, i: u64) -> u64 {
     z ^ (z >> 31)
 }
 
-const GAP_PURPOSE: u64 = 0x6761_70;
+const GAP_PURPOSE: u64 = 0x0067_6170;
 const STABILITY_PURPOSE: u64 = 0x7374_6162;
 
 // --------------------------------------------------------------- knee --
@@ -44,7 +44,7 @@ pub fn knee(ks: &[usize], within: &[f64]) -> Option<usize> {
     let (k0, k1) = (ks[0] as f64, ks[ks.len() - 1] as f64);
     let hi = within.iter().copied().fold(f64::NEG_INFINITY, f64::max);
     let lo = within.iter().copied().fold(f64::INFINITY, f64::min);
-    if !(hi > lo) || k1 <= k0 {
+    if hi <= lo || hi.is_nan() || lo.is_nan() || k1 <= k0 {
         return None;
     }
     let mut best: Option<(usize, f64)> = None;
