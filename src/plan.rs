@@ -29,6 +29,7 @@ pub struct Plan {
     pub choose: ChooseK,
     /// Segment number (1-based) to label.
     pub labels: BTreeMap<usize, String>,
+    pub evidence: EvidencePlan,
     pub validate: Option<ValidatePlan>,
     pub outputs: Vec<OutputPlan>,
 }
@@ -179,32 +180,58 @@ pub enum Criterion {
     Silhouette,
     CalinskiHarabasz,
     DaviesBouldin,
+    /// The knee of the within-cluster sum of squares.
+    Elbow,
+    /// The gap statistic's one-standard-error rule.
+    Gap,
+    /// The highest mean adjusted Rand index under bootstrap resampling.
+    Stability,
 }
 
 impl Criterion {
-    pub const NAMES: [&'static str; 3] = ["silhouette", "calinski-harabasz", "davies-bouldin"];
+    pub const NAMES: [&'static str; 6] = [
+        "silhouette",
+        "calinski-harabasz",
+        "davies-bouldin",
+        "elbow",
+        "gap",
+        "stability",
+    ];
+    pub const ALL: [Criterion; 6] = [
+        Criterion::Silhouette,
+        Criterion::CalinskiHarabasz,
+        Criterion::DaviesBouldin,
+        Criterion::Elbow,
+        Criterion::Gap,
+        Criterion::Stability,
+    ];
 
     pub fn parse(word: &str) -> Option<Criterion> {
-        match word {
-            "silhouette" => Some(Criterion::Silhouette),
-            "calinski-harabasz" => Some(Criterion::CalinskiHarabasz),
-            "davies-bouldin" => Some(Criterion::DaviesBouldin),
-            _ => None,
-        }
+        Self::NAMES
+            .iter()
+            .position(|n| *n == word)
+            .map(|i| Self::ALL[i])
     }
 
     pub fn name(self) -> &'static str {
-        match self {
-            Criterion::Silhouette => "silhouette",
-            Criterion::CalinskiHarabasz => "calinski-harabasz",
-            Criterion::DaviesBouldin => "davies-bouldin",
-        }
+        Self::NAMES[Self::ALL.iter().position(|c| *c == self).unwrap_or(0)]
     }
 
     /// Whether a higher value is better.
     pub fn higher_is_better(self) -> bool {
         !matches!(self, Criterion::DaviesBouldin)
     }
+}
+
+/// Evidence for k that costs reclustering, when asked for.
+#[derive(Debug, Clone, Serialize)]
+pub struct EvidencePlan {
+    /// Reference sets for the gap statistic.
+    pub gap: Option<usize>,
+    /// Bootstrap resamples for stability.
+    pub stability: Option<usize>,
+    /// Restarts when k-means reclusters a reference set or a resample.
+    pub restarts: usize,
 }
 
 #[derive(Debug, Clone, Serialize)]

@@ -629,3 +629,42 @@ fn a_tree_over_many_records_is_warned_about_but_allowed() {
         .stderr_has("a tree over every record grows with the square of their number")
         .stderr_has("add `micro 500`");
 }
+
+// ----------------------------------------------------------- evidence --
+
+#[test]
+fn evidence_adds_gap_and_stability_and_can_choose_k() {
+    let case = Case::empty();
+    case.write("iris.csv", &keyed_iris()).write(
+        "iris.assort",
+        "input \"iris.csv\" key row\nfeatures all\nscale zscore\nkmeans k 2..5 restarts 10\n\
+         evidence gap 10 stability 10\nchoose k by stability\nsave profiles \"out/p.csv\"\n",
+    );
+    let out = case.run("iris.assort").ok().stdout();
+    assert!(out.contains("gap (se)") && out.contains("stability"), "{out}");
+    assert!(out.contains("stability: mean adjusted Rand index over bootstrap resamples"), "{out}");
+    assert!(out.contains("has the highest stability"), "{out}");
+    assert!(out.contains("stability (Jaccard)"), "{out}");
+    let profiles = case.read("out/p.csv");
+    assert!(profiles.starts_with("segment,label,size,share,silhouette,stability,"), "{profiles}");
+}
+
+#[test]
+fn a_structureless_cloud_is_called_so_in_plain_words() {
+    // One Gaussian cloud: the gap statistic's rule answers k = 1.
+    let mut s = assort::engine::rng::Stream::new(3, 0);
+    let mut normal = || {
+        let (u1, u2) = (1.0 - s.unit(), s.unit());
+        (-2.0 * u1.ln()).sqrt() * (std::f64::consts::TAU * u2).cos()
+    };
+    let mut data = String::from("id,a,b\n");
+    for i in 0..300 {
+        data.push_str(&format!("{i},{:.6},{:.6}\n", normal(), normal()));
+    }
+    let case = Case::empty();
+    case.write("cloud.csv", &data).write("r.assort", "input \"cloud.csv\" key id\nfeatures a, b\nkmeans k 2..5\nchoose k by gap\n");
+    case.run("r.assort")
+        .ok()
+        .stdout_has("the gap statistic finds no cluster structure")
+        .stdout_has("k = 2, the smallest of the range, is shown");
+}

@@ -26,6 +26,11 @@ pub mod defaults {
     pub const TOLERANCE: f64 = 1e-6;
     pub const SEPARATOR: char = ',';
     pub const WEIGHT: f64 = 1.0;
+    /// Reference sets or resamples when a choice by gap or stability asks
+    /// for evidence without sizing it.
+    pub const EVIDENCE_SETS: usize = 20;
+    /// Restarts when k-means reclusters for evidence.
+    pub const EVIDENCE_RESTARTS: usize = 5;
     /// Restarts of the k-means stage of the two-stage tree.
     pub const MICRO_RESTARTS: usize = 3;
 }
@@ -125,8 +130,9 @@ pub const MAX_K_SPAN: i64 = 500;
 pub const TREE_DIRECT_LIMIT: usize = 20_000;
 
 /// Statements that may appear once, by word.
-const SINGLE: [&str; 9] = [
-    "recipe", "seed", "input", "features", "scale", "kmeans", "tree", "choose", "validate",
+const SINGLE: [&str; 10] = [
+    "recipe", "seed", "input", "features", "scale", "kmeans", "tree", "evidence", "choose",
+    "validate",
 ];
 
 struct Checker {
@@ -202,6 +208,7 @@ impl Checker {
         });
         let choose = self.choose(find("choose"), ks.as_deref());
         let labels = self.labels(stmts, ks.as_deref());
+        let evidence = self.evidence(find("evidence"), choose);
         let validate = self.validate(find("validate"), input.as_ref());
         let is_tree = matches!(method, Some(MethodPlan::Tree(_)));
         let outputs = self.outputs(stmts, input.as_ref(), is_tree);
@@ -225,6 +232,7 @@ impl Checker {
             method: method?,
             choose: choose?,
             labels: labels?,
+            evidence: evidence?,
             validate: validate?,
             outputs: outputs?,
         })
@@ -1141,6 +1149,44 @@ impl Checker {
                 Some(ChooseK::Fixed(k as usize))
             }
         }
+    }
+
+    /// The `evidence` statement; a choice by gap or stability turns that
+    /// evidence on with its default size.
+    fn evidence(
+        &mut self,
+        stmt: Option<&Statement>,
+        choose: Option<ChooseK>,
+    ) -> Option<EvidencePlan> {
+        let mut plan = EvidencePlan {
+            gap: None,
+            stability: None,
+            restarts: defaults::EVIDENCE_RESTARTS,
+        };
+        if let Some(Statement {
+            kind: StatementKind::Evidence { options },
+            ..
+        }) = stmt
+        {
+            let opts = self.options("evidence", options, vocab::EVIDENCE_OPTIONS);
+            if opts.contains_key("gap") {
+                plan.gap = Some(self.whole_option(&opts, "gap", 2, defaults::EVIDENCE_SETS)?);
+            }
+            if opts.contains_key("stability") {
+                plan.stability =
+                    Some(self.whole_option(&opts, "stability", 2, defaults::EVIDENCE_SETS)?);
+            }
+        }
+        match choose {
+            Some(ChooseK::By(Criterion::Gap)) => {
+                plan.gap.get_or_insert(defaults::EVIDENCE_SETS);
+            }
+            Some(ChooseK::By(Criterion::Stability)) => {
+                plan.stability.get_or_insert(defaults::EVIDENCE_SETS);
+            }
+            _ => {}
+        }
+        Some(plan)
     }
 
     fn labels(

@@ -65,8 +65,13 @@ pub const STATEMENTS: &[StatementDoc] = &[
         example: "tree linkage ward k 2..9",
     },
     StatementDoc {
+        word: "evidence",
+        summary: "asks for costlier evidence for k: the gap statistic, bootstrap stability",
+        example: "evidence gap 20 stability 30",
+    },
+    StatementDoc {
         word: "choose",
-        summary: "how k is chosen from the range: fixed or by a criterion",
+        summary: "how k is chosen from the range: fixed, or by silhouette, calinski-harabasz, davies-bouldin, elbow, gap or stability",
         example: "choose k by silhouette",
     },
     StatementDoc {
@@ -169,6 +174,19 @@ pub const TREE_OPTIONS: &[OptionDoc] = &[
         name: "micro",
         takes: "a whole number above the largest k",
         summary: "first k-means into this many micro-segments, then the tree over their centres (for large data)",
+    },
+];
+
+pub const EVIDENCE_OPTIONS: &[OptionDoc] = &[
+    OptionDoc {
+        name: "gap",
+        takes: "a whole number, 2 or more",
+        summary: "compute the gap statistic with this many reference sets",
+    },
+    OptionDoc {
+        name: "stability",
+        takes: "a whole number, 2 or more",
+        summary: "measure bootstrap stability with this many resamples",
     },
 ];
 

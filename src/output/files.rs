@@ -95,10 +95,17 @@ fn level_shares(p: &Profile) -> Vec<String> {
 }
 
 fn profiles_csv(o: &Outcome) -> Vec<u8> {
-    let mut header: Vec<String> = ["segment", "label", "size", "share", "silhouette"]
-        .iter()
-        .map(|s| s.to_string())
-        .collect();
+    let mut header: Vec<String> = [
+        "segment",
+        "label",
+        "size",
+        "share",
+        "silhouette",
+        "stability",
+    ]
+    .iter()
+    .map(|s| s.to_string())
+    .collect();
     for f in &o.prepared.features {
         header.push(format!("{}_mean", f.column));
         header.push(format!("{}_std_diff", f.column));
@@ -114,6 +121,7 @@ fn profiles_csv(o: &Outcome) -> Vec<u8> {
             p.size.to_string(),
             f6(p.share),
             p.silhouette.map(f6).unwrap_or_default(),
+            p.stability.map(f6).unwrap_or_default(),
         ];
         for fs in &p.features {
             r.push(f6(fs.mean));
@@ -204,6 +212,7 @@ struct JsonProfile<'a> {
     size: usize,
     share: f64,
     silhouette: Option<f64>,
+    stability: Option<f64>,
     means: Vec<f64>,
     std_diffs: Option<Vec<f64>>,
     centre: Option<&'a [f64]>,
@@ -217,6 +226,7 @@ fn json_profile(p: &Profile) -> JsonProfile<'_> {
         size: p.size,
         share: p.share,
         silhouette: p.silhouette,
+        stability: p.stability,
         means: p.features.iter().map(|f| f.mean).collect(),
         std_diffs: p
             .segment

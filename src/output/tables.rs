@@ -123,30 +123,7 @@ fn sweep(s: &mut String, o: &Outcome) {
         }
         (MethodPlan::Tree(_), None) => {}
     }
-    let restarts = o.sweep.iter().any(|r| r.restarts.is_some());
-    let header = format!(
-        "  {:>3} {:>14} {:>11} {:>17} {:>14} {:>14}",
-        "k",
-        "within SS",
-        "silhouette",
-        "calinski-harabasz",
-        "davies-bouldin",
-        if restarts { "best reached" } else { "" }
-    );
-    let _ = writeln!(s, "{}", header.trim_end());
-    for r in &o.sweep {
-        let mark = if r.k == o.chosen { ">" } else { " " };
-        let reached = r
-            .restarts
-            .as_ref()
-            .map(|x| format!("{}/{}", x.at_best, x.of))
-            .unwrap_or_default();
-        let line = format!(
-            "{mark} {:>3} {:>14.3} {:>11.4} {:>17.2} {:>14.4} {:>14}",
-            r.k, r.within_ss, r.silhouette, r.calinski_harabasz, r.davies_bouldin, reached
-        );
-        let _ = writeln!(s, "{}", line.trim_end());
-    }
+    sweep_table(s, o);
     let sampled = o
         .sweep
         .iter()
@@ -161,6 +138,9 @@ fn sweep(s: &mut String, o: &Outcome) {
     wrapped(s, "  chosen: ", &o.reason);
     if let Some(d) = &o.disagreement {
         wrapped(s, "  note: ", d);
+    }
+    for n in &o.notes {
+        wrapped(s, "  note: ", n);
     }
     for a in &o.advice {
         wrapped(s, "  advice: ", a);
@@ -181,6 +161,66 @@ fn sweep(s: &mut String, o: &Outcome) {
     }
 }
 
+/// The sweep table: a row per k, a column per criterion computed, the
+/// chosen k marked with `>`, then a legend.
+fn sweep_table(s: &mut String, o: &Outcome) {
+    type Cell = fn(&crate::run::SweepRow) -> String;
+    let mut columns: Vec<(&str, usize, Cell)> = vec![
+        ("within SS", 12, |r| format!("{:.3}", r.within_ss)),
+        ("silhouette", 10, |r| format!("{:.4}", r.silhouette)),
+        ("C-H", 10, |r| format!("{:.2}", r.calinski_harabasz)),
+        ("D-B", 8, |r| format!("{:.4}", r.davies_bouldin)),
+    ];
+    if o.sweep.iter().any(|r| r.gap.is_some()) {
+        columns.push(("gap (se)", 17, |r| {
+            r.gap
+                .map(|(g, se)| format!("{g:.4} ({se:.4})"))
+                .unwrap_or_default()
+        }));
+    }
+    if o.sweep.iter().any(|r| r.stability.is_some()) {
+        columns.push(("stability", 9, |r| {
+            r.stability.map(|v| format!("{v:.3}")).unwrap_or_default()
+        }));
+    }
+    if o.sweep.iter().any(|r| r.restarts.is_some()) {
+        columns.push(("best found", 10, |r| {
+            r.restarts
+                .as_ref()
+                .map(|x| format!("{}/{}", x.at_best, x.of))
+                .unwrap_or_default()
+        }));
+    }
+    let mut header = format!("  {:>3}", "k");
+    for (name, w, _) in &columns {
+        let _ = write!(header, " {name:>w$}");
+    }
+    let _ = writeln!(s, "{header}");
+    for r in &o.sweep {
+        let mark = if r.k == o.chosen { ">" } else { " " };
+        let mut line = format!("{mark} {:>3}", r.k);
+        for (_, w, cell) in &columns {
+            let _ = write!(line, " {:>w$}", cell(r));
+        }
+        let _ = writeln!(s, "{}", line.trim_end());
+    }
+    let mut legend = vec![
+        "C-H: Calinski-Harabasz, higher is better",
+        "D-B: Davies-Bouldin, lower is better",
+    ];
+    if o.sweep.iter().any(|r| r.gap.is_some()) {
+        legend.push("gap: gap statistic (standard error)");
+    }
+    if o.sweep.iter().any(|r| r.stability.is_some()) {
+        legend.push("stability: mean adjusted Rand index over bootstrap resamples");
+    }
+    if o.sweep.iter().any(|r| r.restarts.is_some()) {
+        legend.push("best found: restarts that reached the best partition");
+    }
+    let legend: Vec<String> = legend.into_iter().map(String::from).collect();
+    wrapped_items(s, "  ", &legend, ';');
+}
+
 fn profiles(s: &mut String, o: &Outcome) {
     let _ = writeln!(s, "segments at k = {} (means in original units, each with its standardised difference from all)", o.chosen);
     let labels: Vec<String> = o
@@ -189,7 +229,7 @@ fn profiles(s: &mut String, o: &Outcome) {
         .filter_map(|p| Some(format!("{} = {}", p.segment?, p.label.as_ref()?)))
         .collect();
     if !labels.is_empty() {
-        wrapped_items(s, "  labels: ", &labels);
+        wrapped_items(s, "  labels: ", &labels, ',');
     }
     for block in o.profiles.chunks(SEGMENTS_PER_BLOCK) {
         let mut cols: Vec<&Profile> = vec![&o.overall];
@@ -230,6 +270,15 @@ fn profiles(s: &mut String, o: &Outcome) {
                 .map(|p| format!("{:.1}%", p.share * 100.0))
                 .collect(),
         );
+        if block.iter().any(|p| p.stability.is_some()) {
+            row(
+                s,
+                "stability (Jaccard)",
+                cols.iter()
+                    .map(|p| p.stability.map(|v| format!("{v:.2}")).unwrap_or_default())
+                    .collect(),
+            );
+        }
         if block.iter().any(|p| p.silhouette.is_some()) {
             row(
                 s,
@@ -289,13 +338,13 @@ fn wrapped(s: &mut String, lead: &str, text: &str) {
 }
 
 /// Like [`wrapped`], but breaks only between items (joined by commas).
-fn wrapped_items(s: &mut String, lead: &str, items: &[String]) {
+fn wrapped_items(s: &mut String, lead: &str, items: &[String], sep: char) {
     const WIDTH: usize = 100;
     let indent = " ".repeat(lead.chars().count());
     let mut line = lead.to_string();
     for (i, item) in items.iter().enumerate() {
         let piece = if i + 1 < items.len() {
-            format!("{item},")
+            format!("{item}{sep}")
         } else {
             item.clone()
         };

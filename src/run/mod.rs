@@ -9,7 +9,7 @@ pub mod error;
 pub mod load;
 pub mod prepare;
 
-use crate::engine::{self, compare, criteria, kmeans, tree};
+use crate::engine::{self, compare, criteria, evidence, kmeans, tree};
 use crate::plan::{ChooseK, Criterion, KMeansPlan, MethodPlan, Plan, TreePlan};
 pub use error::RunError;
 use ndarray::{Array2, ArrayView2};
@@ -33,6 +33,10 @@ pub struct SweepRow {
     pub silhouette_evaluated: usize,
     pub calinski_harabasz: f64,
     pub davies_bouldin: f64,
+    /// The gap statistic and its standard error, when asked for.
+    pub gap: Option<(f64, f64)>,
+    /// Mean adjusted Rand index under bootstrap resampling, when asked for.
+    pub stability: Option<f64>,
     /// For k-means: how the restarts went.
     pub restarts: Option<Restarts>,
 }
@@ -67,6 +71,9 @@ impl SweepRow {
             Criterion::Silhouette => self.silhouette,
             Criterion::CalinskiHarabasz => self.calinski_harabasz,
             Criterion::DaviesBouldin => self.davies_bouldin,
+            Criterion::Stability => self.stability.unwrap_or(f64::NAN),
+            // Chosen from the whole sweep, not row by row.
+            Criterion::Elbow | Criterion::Gap => f64::NAN,
         }
     }
 }
@@ -103,6 +110,8 @@ pub struct Profile {
     /// The segment's centre in original units (none for the overall row).
     pub centre: Option<Vec<f64>>,
     pub silhouette: Option<f64>,
+    /// Mean Jaccard recovery under bootstrap resampling, when asked for.
+    pub stability: Option<f64>,
 }
 
 /// How the segments compare with a known grouping.
@@ -129,6 +138,9 @@ pub struct Outcome {
     pub disagreement: Option<String>,
     /// Advice on restarts, one sentence per k that needs it.
     pub advice: Vec<String>,
+    /// What the evidence says beyond the choice: no structure, unstable
+    /// segments.
+    pub notes: Vec<String>,
     pub assignments: Vec<Assignment>,
     pub profiles: Vec<Profile>,
     pub overall: Profile,
@@ -189,12 +201,37 @@ pub fn run(plan: &Plan) -> Result<Outcome, RunError> {
             calinski_harabasz: criteria::calinski_harabasz(x, &c.labels, k),
             davies_bouldin: criteria::davies_bouldin(x, &c.labels, k),
             restarts: c.restarts.clone(),
+            gap: None,
+            stability: None,
         });
         per_segment_silhouette.push(sil.per_segment);
     }
 
-    let (chosen, reason) = choose(plan, &sweep);
-    let disagreement = disagreement(&sweep);
+    // Evidence that reclusters: reference sets and resamples.
+    let recluster = reclusterer(plan);
+    let ks: Vec<usize> = candidates.iter().map(|c| c.k).collect();
+    let gaps = plan
+        .evidence
+        .gap
+        .map(|b| evidence::gap_statistic(x, &ks, b, plan.seed, &*recluster));
+    if let Some(g) = &gaps {
+        for row in sweep.iter_mut() {
+            row.gap = g.iter().find(|x| x.k == row.k).map(|x| (x.gap, x.se));
+        }
+    }
+    let stability = plan.evidence.stability.map(|b| {
+        let labels: Vec<Vec<u32>> = candidates.iter().map(|c| c.labels.clone()).collect();
+        evidence::bootstrap_stability(x, &ks, &labels, b, plan.seed, &*recluster)
+    });
+    if let Some(st) = &stability {
+        for (row, s) in sweep.iter_mut().zip(st) {
+            row.stability = Some(s.mean_ari);
+        }
+    }
+    let picks = Picks::new(&sweep, gaps.as_deref());
+
+    let (chosen, reason) = choose(plan, &sweep, &picks);
+    let disagreement = disagreement(&picks);
     let advice = advice(&sweep);
     let at = candidates.iter().position(|c| c.k == chosen).unwrap_or(0);
     let fit = &candidates[at];
@@ -237,9 +274,31 @@ pub fn run(plan: &Plan) -> Result<Outcome, RunError> {
             );
             p.segment = Some(s + 1);
             p.label = plan.labels.get(&(s + 1)).cloned();
+            p.stability = stability
+                .as_ref()
+                .and_then(|st| st[at].jaccard.get(s).copied());
             p
         })
-        .collect();
+        .collect::<Vec<_>>();
+    let mut notes = Vec::new();
+    if picks.gap == Some(1) && plan.choose != ChooseK::By(Criterion::Gap) {
+        notes.push(NO_STRUCTURE.to_string());
+    }
+    for p in &profiles {
+        if let (Some(j), Some(seg)) = (p.stability, p.segment) {
+            if j < evidence::UNSTABLE_BELOW {
+                let name = p
+                    .label
+                    .as_ref()
+                    .map(|l| format!(" ({l})"))
+                    .unwrap_or_default();
+                notes.push(format!(
+                    "segment {seg}{name} is unstable: resampled, it is recovered with a mean Jaccard of {j:.2}, below {}; do not present it as a group the data holds",
+                    evidence::UNSTABLE_BELOW
+                ));
+            }
+        }
+    }
 
     let validation = match &plan.validate {
         Some(v) => Some(validate(plan, v, &assignments)?),
@@ -255,6 +314,7 @@ pub fn run(plan: &Plan) -> Result<Outcome, RunError> {
         reason,
         disagreement,
         advice,
+        notes,
         assignments,
         profiles,
         overall,
@@ -304,15 +364,36 @@ fn fit_kmeans(
         .collect()
 }
 
-/// Builds one tree (over the records, or over k-means micro-segments) and
-/// cuts it at every k.
-fn fit_tree(
-    plan: &Plan,
-    t: &TreePlan,
-    x: ArrayView2<'_, f64>,
-    keys: &[&str],
-) -> Result<(Vec<Candidate>, TreeResult), RunError> {
-    let (dendrogram, leaf_of, leaf_names, leaves) = match &t.micro {
+/// A tree as built for a recipe: over the records, or over k-means
+/// micro-segments (then `leaf_of` maps each record to its leaf).
+struct BuiltTree {
+    tree: tree::Dendrogram,
+    leaf_of: Option<Vec<u32>>,
+    /// The points the tree was built on (records, or micro-segment centres).
+    leaves: Array2<f64>,
+}
+
+impl BuiltTree {
+    /// Each record's segment when the tree is cut into `k`, canonical.
+    fn cut(&self, k: usize) -> Vec<u32> {
+        let cut = self.tree.cut(k);
+        match &self.leaf_of {
+            Some(micro) => {
+                kmeans::canonical(
+                    &micro.iter().map(|&m| cut[m as usize]).collect::<Vec<_>>(),
+                    k,
+                )
+                .0
+            }
+            None => cut,
+        }
+    }
+}
+
+/// Builds the tree a plan asks for; on failure, the k (or micro count) that
+/// failed and why.
+fn build_tree(t: &TreePlan, x: ArrayView2<'_, f64>, seed: u64) -> Result<BuiltTree, RunError> {
+    match &t.micro {
         Some(m) => {
             let settings = kmeans::KMeansSettings {
                 k: m.segments,
@@ -320,54 +401,47 @@ fn fit_tree(
                 max_rounds: m.rounds,
                 tolerance: crate::check::defaults::TOLERANCE,
                 seeding: kmeans::Seeding::KMeansPlusPlus,
-                seed: plan.seed,
+                seed,
             };
-            let fit = kmeans::kmeans(x, &settings).map_err(|source| RunError::Engine {
+            let engine = |source| RunError::Engine {
                 k: m.segments,
                 source,
-            })?;
+            };
+            let fit = kmeans::kmeans(x, &settings).map_err(engine)?;
             let mut sizes = vec![0usize; m.segments];
             fit.labels.iter().for_each(|&l| sizes[l as usize] += 1);
             let tree =
                 tree::linkage_weighted(fit.centroids.view(), Some(&sizes), t.linkage, t.distance)
-                    .map_err(|source| RunError::Engine {
-                    k: m.segments,
-                    source,
-                })?;
-            let names = (1..=m.segments).map(|i| format!("micro-{i}")).collect();
-            let coph = tree.cophenetic_correlation(fit.centroids.view(), t.distance);
-            ((tree, coph), Some(fit.labels), names, m.segments)
+                    .map_err(engine)?;
+            Ok(BuiltTree {
+                tree,
+                leaf_of: Some(fit.labels),
+                leaves: fit.centroids,
+            })
         }
-        None => {
-            let tree = tree::linkage(x, t.linkage, t.distance)
-                .map_err(|source| RunError::Engine { k: 1, source })?;
-            let coph = tree.cophenetic_correlation(x, t.distance);
-            (
-                (tree, coph),
-                None,
-                keys.iter().map(|k| k.to_string()).collect(),
-                x.nrows(),
-            )
-        }
-    };
-    let (dendrogram, cophenetic) = dendrogram;
+        None => Ok(BuiltTree {
+            tree: tree::linkage(x, t.linkage, t.distance)
+                .map_err(|source| RunError::Engine { k: 1, source })?,
+            leaf_of: None,
+            leaves: x.to_owned(),
+        }),
+    }
+}
+
+/// Builds one tree and cuts it at every k.
+fn fit_tree(
+    plan: &Plan,
+    t: &TreePlan,
+    x: ArrayView2<'_, f64>,
+    keys: &[&str],
+) -> Result<(Vec<Candidate>, TreeResult), RunError> {
+    let built = build_tree(t, x, plan.seed)?;
     let candidates =
         t.ks.iter()
             .map(|&k| {
-                let cut = dendrogram.cut(k);
-                let labels = match &leaf_of {
-                    Some(micro) => {
-                        kmeans::canonical(
-                            &micro.iter().map(|&m| cut[m as usize]).collect::<Vec<_>>(),
-                            k,
-                        )
-                        .0
-                    }
-                    None => cut,
-                };
+                let labels = built.cut(k);
                 let centres = criteria::centres(x, &labels, k);
-                let d = x.ncols();
-                let centres = Array2::from_shape_fn((k, d), |(s, f)| centres[s][f]);
+                let centres = Array2::from_shape_fn((k, x.ncols()), |(s, f)| centres[s][f]);
                 Candidate {
                     k,
                     labels,
@@ -376,14 +450,22 @@ fn fit_tree(
                 }
             })
             .collect();
+    let leaf_names = match &built.leaf_of {
+        Some(_) => (1..=built.leaves.nrows())
+            .map(|i| format!("micro-{i}"))
+            .collect(),
+        None => keys.iter().map(|k| k.to_string()).collect(),
+    };
     let result = TreeResult {
         linkage: t.linkage,
         distance: t.distance,
-        leaves,
-        two_stage: leaf_of.is_some(),
-        cophenetic,
-        inversions: dendrogram.inversions(),
-        dendrogram,
+        leaves: built.leaves.nrows(),
+        two_stage: built.leaf_of.is_some(),
+        cophenetic: built
+            .tree
+            .cophenetic_correlation(built.leaves.view(), t.distance),
+        inversions: built.tree.inversions(),
+        dendrogram: built.tree,
         leaf_names,
     };
     Ok((candidates, result))
@@ -406,24 +488,110 @@ pub fn best_k(sweep: &[SweepRow], c: Criterion) -> Option<&SweepRow> {
     best
 }
 
-fn choose(plan: &Plan, sweep: &[SweepRow]) -> (usize, String) {
+/// The sentence for a gap statistic that finds no cluster structure.
+const NO_STRUCTURE: &str = "the gap statistic finds no cluster structure (its one-standard-error rule answers k = 1): the records look like one cloud, so read the segments as a partition of convenience, not as groups the data holds";
+
+/// The k each criterion would choose, where it can.
+struct Picks {
+    by: Vec<(Criterion, usize)>,
+    gap: Option<usize>,
+    gap_row: Option<(f64, f64)>,
+}
+
+impl Picks {
+    fn new(sweep: &[SweepRow], gaps: Option<&[evidence::Gap]>) -> Picks {
+        let mut by = Vec::new();
+        for c in [
+            Criterion::Silhouette,
+            Criterion::CalinskiHarabasz,
+            Criterion::DaviesBouldin,
+        ] {
+            if let Some(r) = best_k(sweep, c) {
+                by.push((c, r.k));
+            }
+        }
+        let ks: Vec<usize> = sweep.iter().map(|r| r.k).collect();
+        let within: Vec<f64> = sweep.iter().map(|r| r.within_ss).collect();
+        if let Some(k) = evidence::knee(&ks, &within) {
+            by.push((Criterion::Elbow, k));
+        }
+        let gap = gaps.and_then(evidence::gap_choice);
+        let gap_row = gaps
+            .and_then(|g| g.iter().find(|x| Some(x.k) == gap))
+            .map(|x| (x.gap, x.se));
+        if let Some(k) = gap {
+            by.push((Criterion::Gap, k));
+        }
+        if sweep.iter().any(|r| r.stability.is_some()) {
+            if let Some(r) = best_k(sweep, Criterion::Stability) {
+                by.push((Criterion::Stability, r.k));
+            }
+        }
+        Picks { by, gap, gap_row }
+    }
+
+    fn of(&self, c: Criterion) -> Option<usize> {
+        self.by.iter().find(|(x, _)| *x == c).map(|(_, k)| *k)
+    }
+}
+
+fn choose(plan: &Plan, sweep: &[SweepRow], picks: &Picks) -> (usize, String) {
     let ks = plan.ks();
     let span = match ks {
         [k] => format!("k = {k}"),
         _ => format!("k = {}..{}", ks[0], ks[ks.len() - 1]),
     };
-    match plan.choose {
-        ChooseK::Fixed(k) if ks.len() == 1 => (k, format!("k = {k} is the only k fitted")),
-        ChooseK::Fixed(k) => (k, format!("k = {k} was fixed by the recipe (`choose k {k}`); the sweep over {span} is shown as evidence")),
-        ChooseK::By(c) => match best_k(sweep, c) {
-            Some(row) => {
-                let word = if c.higher_is_better() { "highest" } else { "lowest" };
-                (row.k, format!("k = {} has the {word} {} ({}) among {span}", row.k, c.name(), fmt_criterion(row.value(c))))
-            }
-            // Every value was undefined: fall back to the smallest k and say so.
-            None => (ks[0], format!("k = {}: no k had a defined {}, so the smallest was kept", ks[0], c.name())),
-        },
+    let c = match plan.choose {
+        ChooseK::Fixed(k) if ks.len() == 1 => return (k, format!("k = {k} is the only k fitted")),
+        ChooseK::Fixed(k) => return (k, format!("k = {k} was fixed by the recipe (`choose k {k}`); the sweep over {span} is shown as evidence")),
+        ChooseK::By(c) => c,
+    };
+    let Some(k) = picks.of(c) else {
+        let why = match c {
+            Criterion::Elbow => "the within-cluster sum of squares has no knee here (it needs three k or more, and a bend)",
+            _ => "no k had a defined value",
+        };
+        return (
+            ks[0],
+            format!("k = {}: {why}, so the smallest k was kept", ks[0]),
+        );
+    };
+    if k == 1 {
+        return (
+            ks[0],
+            format!(
+                "{NO_STRUCTURE}; k = {}, the smallest of the range, is shown",
+                ks[0]
+            ),
+        );
     }
+    let reason = match c {
+        Criterion::Elbow => format!(
+            "k = {k} is the knee of the within-cluster sum of squares (Kneedle) among {span}"
+        ),
+        Criterion::Gap => {
+            let (g, se) = picks.gap_row.unwrap_or((f64::NAN, f64::NAN));
+            format!("k = {k} is the smallest k whose gap ({g:.4}, standard error {se:.4}) is within one standard error of the next k's, among {span}")
+        }
+        _ => {
+            let word = if c.higher_is_better() {
+                "highest"
+            } else {
+                "lowest"
+            };
+            let v = sweep
+                .iter()
+                .find(|r| r.k == k)
+                .map(|r| r.value(c))
+                .unwrap_or(f64::NAN);
+            format!(
+                "k = {k} has the {word} {} ({}) among {span}",
+                c.name(),
+                fmt_criterion(v)
+            )
+        }
+    };
+    (k, reason)
 }
 
 fn fmt_criterion(v: f64) -> String {
@@ -434,30 +602,78 @@ fn fmt_criterion(v: f64) -> String {
     }
 }
 
-/// A sentence when the three criteria point at different k.
-fn disagreement(sweep: &[SweepRow]) -> Option<String> {
-    if sweep.len() < 2 {
+/// A sentence when the criteria point at different k.
+fn disagreement(picks: &Picks) -> Option<String> {
+    if picks.by.windows(2).all(|w| w[0].1 == w[1].1) {
         return None;
     }
-    let picks: Vec<(Criterion, usize)> = [
-        Criterion::Silhouette,
-        Criterion::CalinskiHarabasz,
-        Criterion::DaviesBouldin,
-    ]
-    .into_iter()
-    .filter_map(|c| best_k(sweep, c).map(|r| (c, r.k)))
-    .collect();
-    if picks.windows(2).all(|w| w[0].1 == w[1].1) {
-        return None;
-    }
-    let parts: Vec<String> = picks
+    let mut ks: Vec<usize> = picks.by.iter().map(|(_, k)| *k).collect();
+    ks.sort_unstable();
+    ks.dedup();
+    let parts: Vec<String> = ks
         .iter()
-        .map(|(c, k)| format!("{} points to k = {k}", c.name()))
+        .map(|&k| {
+            let names: Vec<&str> = picks
+                .by
+                .iter()
+                .filter(|(_, x)| *x == k)
+                .map(|(c, _)| {
+                    if *c == Criterion::Elbow {
+                        "the knee"
+                    } else {
+                        c.name()
+                    }
+                })
+                .collect();
+            let verb = if names.len() == 1 { "points" } else { "point" };
+            let names = match names.split_last() {
+                Some((last, rest)) if !rest.is_empty() => format!("{} and {last}", rest.join(", ")),
+                _ => names.join(""),
+            };
+            format!("{names} {verb} to k = {k}")
+        })
         .collect();
     Some(format!(
         "the criteria disagree: {}; look at the profiles of each before settling",
-        parts.join(", ")
+        parts.join("; ")
     ))
+}
+
+/// How evidence reclusters a reference set or a resample: the recipe's
+/// method at every k, k-means with at most the plan's evidence restarts.
+fn reclusterer(plan: &Plan) -> Box<evidence::Recluster<'static>> {
+    let method = plan.method.clone();
+    let restarts_cap = plan.evidence.restarts;
+    Box::new(
+        move |data: ArrayView2<'_, f64>, ks: &[usize], seed: u64| -> Vec<Vec<u32>> {
+            let n = data.nrows();
+            let fallback = || vec![0u32; n];
+            match &method {
+                MethodPlan::KMeans(km) => ks
+                    .iter()
+                    .map(|&k| {
+                        let settings = kmeans::KMeansSettings {
+                            k,
+                            restarts: km.restarts.min(restarts_cap),
+                            max_rounds: km.rounds,
+                            tolerance: km.tolerance,
+                            seeding: km.seeding,
+                            seed,
+                        };
+                        // A k the draw cannot support (too few distinct
+                        // records) counts as a failed recovery.
+                        kmeans::kmeans(data, &settings)
+                            .map(|f| f.labels)
+                            .unwrap_or_else(|_| fallback())
+                    })
+                    .collect(),
+                MethodPlan::Tree(t) => match build_tree(t, data, seed) {
+                    Ok(built) => ks.iter().map(|&k| built.cut(k)).collect(),
+                    Err(_) => ks.iter().map(|_| fallback()).collect(),
+                },
+            }
+        },
+    )
 }
 
 fn advice(sweep: &[SweepRow]) -> Vec<String> {
@@ -535,6 +751,7 @@ fn profile(
         categories,
         centre,
         silhouette,
+        stability: None,
     }
 }
 

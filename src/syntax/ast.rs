@@ -176,6 +176,9 @@ pub enum StatementKind {
     Tree {
         options: Vec<OptionPair>,
     },
+    Evidence {
+        options: Vec<OptionPair>,
+    },
     Choose(ChooseRule),
     Label {
         segment: Spanned<Number>,

@@ -180,6 +180,9 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
         Rule::tree_stmt => StatementKind::Tree {
             options: options_of(&rest, off),
         },
+        Rule::evidence_stmt => StatementKind::Evidence {
+            options: options_of(&rest, off),
+        },
         Rule::choose_stmt => {
             // rest[0] is the fixed word `k`.
             let rule = &rest[1];
