@@ -29,17 +29,12 @@ fn main() -> ExitCode {
     let cli = Cli::parse();
     match cli.command {
         Command::Check { recipe } => with_plan(&recipe, |plan| {
-            let ks = plan.ks();
             println!(
-                "recipe `{}` checks out: {}, {}, k {}",
+                "recipe `{}` checks out: {}, {}, {}",
                 plan.name,
                 plural(plan.features.len(), "numeric feature"),
                 plural(plan.categories.len(), "category column"),
-                if ks.len() == 1 {
-                    ks[0].to_string()
-                } else {
-                    format!("{}..{}", ks[0], ks[ks.len() - 1])
-                }
+                plan.cut_description()
             );
             ExitCode::SUCCESS
         }),

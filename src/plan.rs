@@ -119,6 +119,22 @@ impl Scale {
 }
 
 impl Plan {
+    /// Where segments come from, in the recipe's words: `k 2..9`, `k 5`,
+    /// or `height 1.5`.
+    pub fn cut_description(&self) -> String {
+        if let MethodPlan::Tree(TreePlan {
+            height: Some(h), ..
+        }) = &self.method
+        {
+            return format!("height {h}");
+        }
+        match self.ks() {
+            [] => "k ?".to_string(),
+            [k] => format!("k {k}"),
+            ks => format!("k {}..{}", ks[0], ks[ks.len() - 1]),
+        }
+    }
+
     /// The values of k the method fits, ascending.
     pub fn ks(&self) -> &[usize] {
         match &self.method {
@@ -140,7 +156,10 @@ pub enum MethodPlan {
 /// Agglomerative clustering: one tree, cut at every k.
 #[derive(Debug, Clone, Serialize)]
 pub struct TreePlan {
+    /// The k to cut at; empty when the cut is by height.
     pub ks: Vec<usize>,
+    /// Cut where the merges pass this height instead of at given k.
+    pub height: Option<f64>,
     pub linkage: Linkage,
     pub distance: Metric,
     /// Two-stage route: k-means into this many micro-segments first, then

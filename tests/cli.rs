@@ -613,21 +613,115 @@ fn the_two_stage_tree_recovers_the_demo_segments() {
     assert!(ari > 0.9, "adjusted Rand index {ari}");
 }
 
-#[test]
-fn a_tree_over_many_records_is_warned_about_but_allowed() {
-    let case = Case::empty();
-    let mut data = String::from("id,a\n");
-    for i in 0..20_500 {
-        data.push_str(&format!("{i},{}\n", (i * 37) % 101));
+/// 200,000 records in three planted groups, two features.
+fn many_records() -> String {
+    let mut s = assort::engine::rng::Stream::new(8, 0);
+    let mut data = String::with_capacity(200_000 * 24);
+    data.push_str("id,a,b\n");
+    let centres = [(0.0, 0.0), (6.0, 0.0), (3.0, 5.0)];
+    for i in 0..200_000 {
+        let (cx, cy) = centres[i % 3];
+        data.push_str(&format!("{i},{:.4},{:.4}\n", cx + s.unit(), cy + s.unit()));
     }
-    case.write("big.csv", &data).write(
+    data
+}
+
+#[test]
+fn a_tree_over_200000_records_is_refused_and_the_two_stage_route_runs() {
+    let case = Case::empty();
+    case.write("big.csv", &many_records()).write(
         "r.assort",
-        "input \"big.csv\" key id\nfeatures a\ntree linkage ward k 2..4\n",
+        "input \"big.csv\" key id\nfeatures a, b\ntree linkage ward k 2..4\nsave assignments \"out/a.csv\"\n",
     );
     case.assort(&["check", "r.assort"], &[])
-        .ok()
-        .stderr_has("a tree over every record grows with the square of their number")
+        .fails()
+        .stderr_has("too many for a tree over every record (at most 20000)")
         .stderr_has("add `micro 500`");
+    assert!(!case.path("out").exists());
+
+    case.edit("r.assort", "k 2..4", "k 2..4 micro 100");
+    case.edit(
+        "r.assort",
+        "save assignments",
+        "save merges \"out/merges.csv\"\nsave assignments",
+    );
+    let out = case.run("r.assort").ok().stdout();
+    assert!(out.contains("over 100 k-means micro-segments"), "{out}");
+    assert!(out.contains("chosen: k = 3 "), "{out}");
+    assert_eq!(case.read("out/a.csv").lines().count(), 200_001);
+    let merges = case.read("out/merges.csv");
+    assert_eq!(
+        merges.lines().count(),
+        100,
+        "a header and 99 merges of 100 micro-segments"
+    );
+    assert!(merges.contains(",micro-"), "{merges}");
+}
+
+#[test]
+fn an_iris_tree_cut_by_height_matches_the_reference_cut() {
+    // Reference: scipy 1.17.1 average linkage on the raw Iris measurements;
+    // its last merges are at 1.7856, 1.9636 and 4.0627, so a cut at 1.9
+    // undoes the top two and leaves fcluster's three segments
+    // (tests/data/reference.json).
+    let case = Case::empty();
+    case.write("iris.csv", &keyed_iris()).write(
+        "iris.assort",
+        "input \"iris.csv\" key row\nfeatures all\nscale none\ntree linkage average height 1.9\nsave assignments \"out/a.csv\"\n",
+    );
+    case.assort(&["check", "iris.assort"], &[])
+        .ok()
+        .stdout_has("height 1.9");
+    case.run("iris.assort")
+        .ok()
+        .stdout_has("k = 3: the segments left when the tree is cut at height 1.9");
+    let reference: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(
+            Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/reference.json"),
+        )
+        .unwrap(),
+    )
+    .unwrap();
+    let block = &reference["trees"]["iris/average/euclidean"];
+    let heights: Vec<f64> = block["heights"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_f64().unwrap())
+        .collect();
+    assert!(
+        heights[146] < 1.9 && heights[147] > 1.9,
+        "the reference heights moved: {:?}",
+        &heights[145..]
+    );
+    let theirs: Vec<u64> = block["cut3_labels"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_u64().unwrap())
+        .collect();
+    let ours: Vec<u64> = case
+        .read("out/a.csv")
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').nth(1).unwrap().parse().unwrap())
+        .collect();
+    assert_eq!(
+        assort::engine::compare::adjusted_rand_index(&ours, &theirs),
+        1.0
+    );
+}
+
+#[test]
+fn a_height_above_the_whole_tree_is_a_clear_error() {
+    let case = Case::empty();
+    case.write("iris.csv", &keyed_iris()).write(
+        "iris.assort",
+        "input \"iris.csv\" key row\nfeatures all\ntree linkage average height 1000\n",
+    );
+    case.run("iris.assort")
+        .fails()
+        .stderr_has("cutting the tree at height 1000 leaves a single segment");
 }
 
 // ----------------------------------------------------------- evidence --
@@ -641,12 +735,21 @@ fn evidence_adds_gap_and_stability_and_can_choose_k() {
          evidence gap 10 stability 10\nchoose k by stability\nsave profiles \"out/p.csv\"\n",
     );
     let out = case.run("iris.assort").ok().stdout();
-    assert!(out.contains("gap (se)") && out.contains("stability"), "{out}");
-    assert!(out.contains("stability: mean adjusted Rand index over bootstrap resamples"), "{out}");
+    assert!(
+        out.contains("gap (se)") && out.contains("stability"),
+        "{out}"
+    );
+    assert!(
+        out.contains("stability: mean adjusted Rand index over bootstrap resamples"),
+        "{out}"
+    );
     assert!(out.contains("has the highest stability"), "{out}");
     assert!(out.contains("stability (Jaccard)"), "{out}");
     let profiles = case.read("out/p.csv");
-    assert!(profiles.starts_with("segment,label,size,share,silhouette,stability,"), "{profiles}");
+    assert!(
+        profiles.starts_with("segment,label,size,share,silhouette,stability,"),
+        "{profiles}"
+    );
 }
 
 #[test]
@@ -662,7 +765,10 @@ fn a_structureless_cloud_is_called_so_in_plain_words() {
         data.push_str(&format!("{i},{:.6},{:.6}\n", normal(), normal()));
     }
     let case = Case::empty();
-    case.write("cloud.csv", &data).write("r.assort", "input \"cloud.csv\" key id\nfeatures a, b\nkmeans k 2..5\nchoose k by gap\n");
+    case.write("cloud.csv", &data).write(
+        "r.assort",
+        "input \"cloud.csv\" key id\nfeatures a, b\nkmeans k 2..5\nchoose k by gap\n",
+    );
     case.run("r.assort")
         .ok()
         .stdout_has("the gap statistic finds no cluster structure")

@@ -202,3 +202,56 @@ fn tiny_example_criteria_and_ari_match_the_reference() {
         "Davies-Bouldin",
     );
 }
+
+#[test]
+fn the_criteria_of_the_known_classes_match_the_reference() {
+    // Reference: scikit-learn 1.9.1 silhouette_score, calinski_harabasz_score
+    // and davies_bouldin_score of Iris's species (raw measurements) and
+    // Wine's cultivars (z-scored, population sd), tests/data/reference.json.
+    let r = reference();
+    let codes = |classes: &[String]| -> (Vec<u32>, usize) {
+        let mut names: Vec<&String> = classes.iter().collect();
+        names.sort();
+        names.dedup();
+        (
+            classes
+                .iter()
+                .map(|c| names.binary_search(&c).unwrap() as u32)
+                .collect(),
+            names.len(),
+        )
+    };
+    let (iris, species) = read("iris.csv");
+    let (mut wine, cultivar) = read("wine.csv");
+    for mut col in wine.columns_mut() {
+        let v: Vec<f64> = col.to_vec();
+        let m = assort::engine::stats::mean(&v).unwrap();
+        let sd = assort::engine::stats::sd_population(&v).unwrap();
+        col.mapv_inplace(|a| (a - m) / sd);
+    }
+    for (x, classes, key) in [
+        (&iris, &species, "iris_raw_species"),
+        (&wine, &cultivar, "wine_zscore_cultivar"),
+    ] {
+        let (labels, k) = codes(classes);
+        let block = &r[key];
+        assert_rel(
+            criteria::silhouette(x.view(), &labels, k, 0, 0).mean,
+            num(block, "silhouette"),
+            1e-9,
+            key,
+        );
+        assert_rel(
+            criteria::calinski_harabasz(x.view(), &labels, k),
+            num(block, "calinski_harabasz"),
+            1e-9,
+            key,
+        );
+        assert_rel(
+            criteria::davies_bouldin(x.view(), &labels, k),
+            num(block, "davies_bouldin"),
+            1e-9,
+            key,
+        );
+    }
+}

@@ -46,10 +46,14 @@ fn mangled_recipes_are_checked_without_panic() {
         "the demo recipe changed; update this test"
     );
     for round in 0..600 {
-        let source = if round % 2 == 0 {
-            &base.text
-        } else {
-            &tree_text
+        let height_text = base.text.replace(
+            "kmeans k 2..8 restarts 50",
+            "tree linkage average height 2.5",
+        );
+        let source = match round % 3 {
+            0 => &base.text,
+            1 => &tree_text,
+            _ => &height_text,
         };
         let mut chars: Vec<char> = source.chars().collect();
         for _ in 0..1 + s.below(6) {

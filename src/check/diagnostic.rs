@@ -197,13 +197,10 @@ pub enum CheckError {
         linkage_span: Span,
     },
 
-    #[error(
-        "about {records} records: a tree over every record grows with the square of their number"
-    )]
+    #[error("about {records} records: too many for a tree over every record (at most {limit})")]
     #[diagnostic(
         code(assort::large_tree),
-        severity(Warning),
-        help("above {limit} records, build the tree over k-means micro-segments: add `micro 500` (or more) to `tree`")
+        help("a tree's time and memory grow with the square of the records; build it over k-means micro-segments instead: add `micro 500` (or more) to `tree`")
     )]
     LargeTree {
         records: usize,

@@ -867,7 +867,22 @@ impl Checker {
             return None;
         };
         let opts = self.options("tree", options, vocab::TREE_OPTIONS);
-        let ks = self.required_ks("tree", &opts, s.span);
+        let height = match (opts.get("height"), opts.get("k")) {
+            (Some(h), Some(k)) => {
+                self.err(CheckError::Conflict {
+                    what: "where to cut the tree (`k` or `height`)".into(),
+                    span: h.name.span,
+                    first: k.name.span,
+                });
+                return None;
+            }
+            (Some(h), None) => Some(self.positive("height", &h.value)?),
+            (None, _) => None,
+        };
+        let ks = match height {
+            Some(_) => Some(Vec::new()),
+            None => self.required_ks("tree", &opts, s.span),
+        };
         let word = |o: &OptionPair| match &o.value.node {
             Value::Word(w) => Some(Spanned::new(w.clone(), o.value.span)),
             _ => None,
@@ -955,6 +970,7 @@ impl Checker {
         }
         Some(TreePlan {
             ks: ks?,
+            height,
             linkage: linkage?.0,
             distance: distance?.0,
             micro,

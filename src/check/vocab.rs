@@ -158,7 +158,12 @@ pub const TREE_OPTIONS: &[OptionDoc] = &[
     OptionDoc {
         name: "k",
         takes: "a whole number or a range such as `2..9`",
-        summary: "how many segments to cut the tree into, or the range to compare (required)",
+        summary: "how many segments to cut the tree into, or the range to compare (required unless `height` is given)",
+    },
+    OptionDoc {
+        name: "height",
+        takes: "a number above 0",
+        summary: "cut the tree where its merges pass this height, instead of at given k",
     },
     OptionDoc {
         name: "linkage",

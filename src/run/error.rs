@@ -123,6 +123,24 @@ pub enum RunError {
         source: EngineError,
     },
 
+    #[error(
+        "cutting the tree at height {height} leaves a single segment (its top merge is at {top})"
+    )]
+    #[diagnostic(
+        code(assort::run::height_too_high),
+        help("choose a lower height, or cut at a number of segments with `k`")
+    )]
+    HeightTooHigh { height: f64, top: f64 },
+
+    #[error("{n} records are too many for a tree over every record (the limit is {limit})")]
+    #[diagnostic(
+        code(assort::run::tree_too_large),
+        help(
+            "add `micro 500` to `tree`: k-means into micro-segments first, then the tree over them"
+        )
+    )]
+    TreeTooLarge { n: usize, limit: usize },
+
     #[error("cannot write `{path}`: {reason}")]
     #[diagnostic(
         code(assort::run::write),

@@ -173,6 +173,16 @@ pub fn run(plan: &Plan) -> Result<Outcome, RunError> {
     if needed > n {
         return Err(RunError::TooFewRecords { k: needed, n });
     }
+    if let MethodPlan::Tree(TreePlan { micro: None, .. }) = &plan.method {
+        // The checker refuses this from a count or an estimate; the run
+        // holds the line for an estimate that fell short.
+        if n > crate::check::TREE_DIRECT_LIMIT {
+            return Err(RunError::TreeTooLarge {
+                n,
+                limit: crate::check::TREE_DIRECT_LIMIT,
+            });
+        }
+    }
 
     let x = prepared.matrix.view();
     let keys: Vec<&str> = prepared
@@ -374,6 +384,22 @@ struct BuiltTree {
 }
 
 impl BuiltTree {
+    /// Each record's segment when the tree is cut at `height` (into `k`
+    /// segments), canonical.
+    fn cut_at_height(&self, height: f64, k: usize) -> Vec<u32> {
+        let cut = self.tree.cut_at_height(height);
+        match &self.leaf_of {
+            Some(micro) => {
+                kmeans::canonical(
+                    &micro.iter().map(|&m| cut[m as usize]).collect::<Vec<_>>(),
+                    k,
+                )
+                .0
+            }
+            None => cut,
+        }
+    }
+
     /// Each record's segment when the tree is cut into `k`, canonical.
     fn cut(&self, k: usize) -> Vec<u32> {
         let cut = self.tree.cut(k);
@@ -436,20 +462,41 @@ fn fit_tree(
     keys: &[&str],
 ) -> Result<(Vec<Candidate>, TreeResult), RunError> {
     let built = build_tree(t, x, plan.seed)?;
-    let candidates =
-        t.ks.iter()
-            .map(|&k| {
-                let labels = built.cut(k);
-                let centres = criteria::centres(x, &labels, k);
-                let centres = Array2::from_shape_fn((k, x.ncols()), |(s, f)| centres[s][f]);
-                Candidate {
-                    k,
-                    labels,
-                    centres,
-                    restarts: None,
-                }
-            })
-            .collect();
+    let ks = match t.height {
+        Some(h) => {
+            // The number of segments a cut at this height leaves.
+            let k = built
+                .tree
+                .cut_at_height(h)
+                .iter()
+                .copied()
+                .max()
+                .map_or(1, |m| m as usize + 1);
+            if k < 2 {
+                let top = built.tree.merges.last().map_or(0.0, |m| m.height);
+                return Err(RunError::HeightTooHigh { height: h, top });
+            }
+            vec![k]
+        }
+        None => t.ks.clone(),
+    };
+    let candidates = ks
+        .iter()
+        .map(|&k| {
+            let labels = match t.height {
+                Some(h) => built.cut_at_height(h, k),
+                None => built.cut(k),
+            };
+            let centres = criteria::centres(x, &labels, k);
+            let centres = Array2::from_shape_fn((k, x.ncols()), |(s, f)| centres[s][f]);
+            Candidate {
+                k,
+                labels,
+                centres,
+                restarts: None,
+            }
+        })
+        .collect();
     let leaf_names = match &built.leaf_of {
         Some(_) => (1..=built.leaves.nrows())
             .map(|i| format!("micro-{i}"))
@@ -536,10 +583,21 @@ impl Picks {
 }
 
 fn choose(plan: &Plan, sweep: &[SweepRow], picks: &Picks) -> (usize, String) {
-    let ks = plan.ks();
-    let span = match ks {
+    // The run always fits at least one k, so the sweep has a first row.
+    let first = sweep.first().map_or(0, |r| r.k);
+    if let MethodPlan::Tree(TreePlan {
+        height: Some(h), ..
+    }) = &plan.method
+    {
+        return (
+            first,
+            format!("k = {first}: the segments left when the tree is cut at height {h}"),
+        );
+    }
+    let ks: Vec<usize> = sweep.iter().map(|r| r.k).collect();
+    let span = match ks.as_slice() {
         [k] => format!("k = {k}"),
-        _ => format!("k = {}..{}", ks[0], ks[ks.len() - 1]),
+        _ => format!("k = {first}..{}", ks.last().copied().unwrap_or(first)),
     };
     let c = match plan.choose {
         ChooseK::Fixed(k) if ks.len() == 1 => return (k, format!("k = {k} is the only k fitted")),
@@ -552,17 +610,14 @@ fn choose(plan: &Plan, sweep: &[SweepRow], picks: &Picks) -> (usize, String) {
             _ => "no k had a defined value",
         };
         return (
-            ks[0],
-            format!("k = {}: {why}, so the smallest k was kept", ks[0]),
+            first,
+            format!("k = {first}: {why}, so the smallest k was kept"),
         );
     };
     if k == 1 {
         return (
-            ks[0],
-            format!(
-                "{NO_STRUCTURE}; k = {}, the smallest of the range, is shown",
-                ks[0]
-            ),
+            first,
+            format!("{NO_STRUCTURE}; k = {first}, the smallest of the range, is shown"),
         );
     }
     let reason = match c {
