@@ -39,6 +39,7 @@ pub struct InputPlan {
     /// As written in the recipe, relative to the recipe's folder.
     pub path: String,
     /// Resolved against the recipe's folder.
+    #[serde(skip)]
     pub resolved: PathBuf,
     pub key: String,
     pub separator: char,
@@ -256,6 +257,7 @@ pub struct EvidencePlan {
 #[derive(Debug, Clone, Serialize)]
 pub struct ValidatePlan {
     pub path: String,
+    #[serde(skip)]
     pub resolved: PathBuf,
     /// The column holding the known grouping; joined on the input's key.
     pub column: String,
@@ -278,5 +280,6 @@ pub enum OutputKind {
 pub struct OutputPlan {
     pub kind: OutputKind,
     pub path: String,
+    #[serde(skip)]
     pub resolved: PathBuf,
 }

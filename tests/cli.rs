@@ -126,11 +126,12 @@ impl Run {
 }
 
 const DEMO: &str = "coop-members.assort";
-const DEMO_OUTPUTS: [&str; 4] = [
+const DEMO_OUTPUTS: [&str; 5] = [
     "out/member_segments.csv",
     "out/segment_profiles.csv",
     "out/segment_profiles.json",
     "out/segment_centroids.csv",
+    "out/coop-members.run.json",
 ];
 
 fn outputs(case: &Case) -> Vec<Vec<u8>> {
@@ -203,7 +204,7 @@ fn reruns_and_thread_counts_give_byte_identical_outputs() {
     let first = outputs(&case);
     case.run(DEMO).ok();
     assert!(first == outputs(&case), "a second run changed the outputs");
-    for threads in ["1", "2", "5"] {
+    for threads in ["1", "2", "8"] {
         case.assort(&["run", DEMO], &[("RAYON_NUM_THREADS", threads)])
             .ok();
         assert!(
@@ -384,15 +385,14 @@ fn a_failed_run_leaves_earlier_outputs_untouched() {
     small(&case, "id,a,b\n1,1.0,2.0\n2,1.5,2.5\n3,2.0,x\n4,9.0,9.0\n");
     case.run("r.assort").fails();
     assert_eq!(case.read("out/a.csv"), before);
-    let leftovers: Vec<_> = std::fs::read_dir(case.path("out"))
+    let before_record = case.read("out/r.run.json");
+    assert_eq!(case.read("out/r.run.json"), before_record);
+    let mut left: Vec<String> = std::fs::read_dir(case.path("out"))
         .unwrap()
-        .map(|e| e.unwrap().file_name())
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
         .collect();
-    assert_eq!(
-        leftovers.len(),
-        1,
-        "temporary files left behind: {leftovers:?}"
-    );
+    left.sort();
+    assert_eq!(left, ["a.csv", "r.run.json"], "temporary files left behind");
 }
 
 #[test]
@@ -773,4 +773,123 @@ fn a_structureless_cloud_is_called_so_in_plain_words() {
         .ok()
         .stdout_has("the gap statistic finds no cluster structure")
         .stdout_has("k = 2, the smallest of the range, is shown");
+}
+
+// ------------------------------------------------------------- reruns --
+
+#[test]
+fn verify_passes_after_a_run_and_names_a_data_change() {
+    let case = Case::demo();
+    case.run(DEMO).ok();
+    case.assort(&["verify", DEMO], &[])
+        .ok()
+        .stdout_has("verified: the rerun of `coop-members.assort` matches its run record");
+    // One byte of the data changes: a digit of the first member's tenure.
+    let data = case.read("data/coop_members.csv");
+    let at = data.find("\nM10001,").unwrap() + "\nM10001,Riverside,".len();
+    let mut bytes = data.into_bytes();
+    bytes[at] = if bytes[at] == b'9' {
+        b'8'
+    } else {
+        bytes[at] + 1
+    };
+    std::fs::write(case.path("data/coop_members.csv"), bytes).unwrap();
+    case.assort(&["verify", DEMO], &[])
+        .fails()
+        .stderr_has("data changed: `data/coop_members.csv`");
+}
+
+#[test]
+fn verify_names_a_recipe_change_and_an_edited_output() {
+    let case = Case::demo();
+    case.run(DEMO).ok();
+    case.write("out/segment_centroids.csv", "tampered\n");
+    case.assort(&["verify", DEMO], &[])
+        .fails()
+        .stderr_has("output edited: `out/segment_centroids.csv`");
+    case.edit(DEMO, "restarts 50", "restarts 51");
+    case.assort(&["verify", DEMO], &[])
+        .fails()
+        .stderr_has("recipe changed");
+}
+
+#[test]
+fn verify_without_a_record_says_to_run_first() {
+    let case = Case::demo();
+    case.assort(&["verify", DEMO], &[])
+        .fails()
+        .stderr_has("cannot read the run record")
+        .stderr_has("run the recipe once");
+}
+
+#[test]
+fn the_run_record_holds_digests_of_everything() {
+    let case = Case::demo();
+    case.run(DEMO).ok();
+    let rec: serde_json::Value =
+        serde_json::from_str(&case.read("out/coop-members.run.json")).unwrap();
+    assert_eq!(rec["format"], "assort-run/1");
+    assert_eq!(rec["seed"], 2026);
+    assert_eq!(rec["chosen_k"], 5);
+    assert_eq!(rec["inputs"][0]["records"], 6000);
+    assert_eq!(rec["inputs"][1]["role"], "validate");
+    assert_eq!(rec["outputs"].as_array().unwrap().len(), 4);
+    assert_eq!(rec["plan"]["method"]["restarts"], 50);
+    // The digest of each output is the SHA-256 of its bytes (checked here
+    // with an independent count: a 64-digit lowercase hex string that
+    // changes when the file does).
+    let first = rec["outputs"][0]["sha256"].as_str().unwrap();
+    assert_eq!(first.len(), 64);
+    assert!(first
+        .chars()
+        .all(|c| c.is_ascii_hexdigit() && !c.is_ascii_uppercase()));
+}
+
+#[test]
+fn a_dry_run_lists_reads_and_writes_and_writes_nothing() {
+    let case = Case::demo();
+    case.assort(&["run", "--dry-run", DEMO], &[])
+        .ok()
+        .stdout_has("would read  data/coop_members.csv")
+        .stdout_has("would write out/member_segments.csv")
+        .stdout_has("would write out/coop-members.run.json (the run record)");
+    assert!(!case.path("out").exists());
+}
+
+#[cfg(unix)]
+#[test]
+fn a_symbolic_link_out_of_the_folder_is_refused_unless_allowed() {
+    let outside = tempfile::tempdir().unwrap();
+    std::fs::write(outside.path().join("d.csv"), "id,a\n1,1\n2,2\n3,3\n").unwrap();
+    let case = Case::empty();
+    std::os::unix::fs::symlink(outside.path(), case.path("shared")).unwrap();
+    case.write(
+        "r.assort",
+        "input \"shared/d.csv\" key id\nfeatures a\nkmeans k 2\nsave assignments \"out/a.csv\"\n",
+    );
+    case.run("r.assort")
+        .fails()
+        .stderr_has("path `shared/d.csv` leads outside the recipe's folder")
+        .stderr_has("--allow-dir");
+    assert!(!case.path("out").exists());
+    let allow = outside.path().to_string_lossy().into_owned();
+    case.assort(&["run", "--allow-dir", &allow, "r.assort"], &[])
+        .ok();
+    assert!(case.path("out/a.csv").exists());
+}
+
+#[test]
+fn an_output_may_not_overwrite_the_known_grouping_either() {
+    let case = Case::demo();
+    case.edit(
+        DEMO,
+        "save centroids \"out/segment_centroids.csv\"",
+        "save centroids \"data/coop_members_planted.csv\"",
+    );
+    let before = case.read("data/coop_members_planted.csv");
+    case.run(DEMO)
+        .fails()
+        .stderr_has("would overwrite the input data");
+    assert_eq!(case.read("data/coop_members_planted.csv"), before);
+    assert!(!case.path("out").exists());
 }

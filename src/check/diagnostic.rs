@@ -270,7 +270,7 @@ pub enum CheckError {
     #[error("path `{path}` leads outside the recipe's folder")]
     #[diagnostic(
         code(assort::path_outside),
-        help("write paths relative to the recipe's folder, without `..` or a leading `/`; a recipe from someone else may only touch its own folder")
+        help("keep paths inside the recipe's folder (symbolic links are followed); a recipe may touch another folder only when the person running it passes `--allow-dir FOLDER`")
     )]
     PathOutside {
         path: String,

@@ -7,6 +7,7 @@
 //! only the first.
 
 pub mod diagnostic;
+pub mod paths;
 pub mod probe;
 pub mod suggest;
 pub mod vocab;
@@ -86,8 +87,22 @@ impl Checked {
 
 /// Checks a recipe against its data's header.
 pub fn check(source: &RecipeSource) -> Checked {
+    check_with(source, &CheckOptions::default())
+}
+
+/// What the person running a recipe allows beyond the recipe itself.
+#[derive(Debug, Clone, Default)]
+pub struct CheckOptions {
+    /// Folders outside the recipe's own that it may read and write.
+    pub allow_dirs: Vec<PathBuf>,
+}
+
+/// Checks a recipe with the given permissions.
+pub fn check_with(source: &RecipeSource, options: &CheckOptions) -> Checked {
     let tree = syntax::parse(&source.text);
     let mut cx = Checker {
+        sandbox: paths::Sandbox::new(&source.folder(), &options.allow_dirs),
+        reads: Vec::new(),
         folder: source.folder(),
         recipe_stem: source
             .path
@@ -146,6 +161,11 @@ struct Checker {
     end: Span,
     /// Where each category column was named.
     category_spans: HashMap<String, Span>,
+    /// The folders the recipe may touch.
+    sandbox: paths::Sandbox,
+    /// Every file the recipe reads (real path, span), so no output can
+    /// overwrite one.
+    reads: Vec<(PathBuf, Span)>,
 }
 
 /// The span of the last non-blank character of the text.
@@ -211,7 +231,7 @@ impl Checker {
         let evidence = self.evidence(find("evidence"), choose);
         let validate = self.validate(find("validate"), input.as_ref());
         let is_tree = matches!(method, Some(MethodPlan::Tree(_)));
-        let outputs = self.outputs(stmts, input.as_ref(), is_tree);
+        let outputs = self.outputs(stmts, is_tree);
         let seed = self.seed(find("seed"));
         let name = match find("recipe") {
             Some(Statement {
@@ -307,7 +327,7 @@ impl Checker {
                 None
             }
         };
-        let resolved = self.safe_path(path)?;
+        let resolved = self.read_path(path)?;
         self.input_file = path.node.clone();
         let separator = separator?;
         match probe::probe(&resolved, separator as u8) {
@@ -327,7 +347,6 @@ impl Checker {
                 separator,
             },
             key_span: key.span,
-            path_span: path.span,
         })
     }
 
@@ -380,22 +399,22 @@ impl Checker {
     /// Resolves a recipe path against the recipe's folder, refusing paths
     /// that lead outside it.
     fn safe_path(&mut self, path: &Spanned<String>) -> Option<PathBuf> {
-        let p = Path::new(&path.node);
-        let escapes = p.is_absolute()
-            || p.components().any(|c| {
-                matches!(
-                    c,
-                    Component::ParentDir | Component::RootDir | Component::Prefix(_)
-                )
-            });
-        if escapes || path.node.is_empty() {
+        let resolved = self.sandbox.resolve(&path.node);
+        if resolved.is_none() {
             self.err(CheckError::PathOutside {
                 path: path.node.clone(),
                 span: path.span,
             });
-            return None;
         }
-        Some(self.folder.join(p))
+        resolved
+    }
+
+    /// A path the recipe reads: checked like any path, and remembered.
+    fn read_path(&mut self, path: &Spanned<String>) -> Option<PathBuf> {
+        let resolved = self.safe_path(path)?;
+        self.reads
+            .push((paths::Sandbox::real_path(&resolved), path.span));
+        Some(resolved)
     }
 
     // ---------------------------------------------------------- columns --
@@ -1285,7 +1304,7 @@ impl Checker {
                 None
             }
         };
-        let resolved = self.safe_path(path)?;
+        let resolved = self.read_path(path)?;
         let column = column?;
         let separator = input
             .map(|i| i.plan.separator)
@@ -1320,12 +1339,7 @@ impl Checker {
         }
     }
 
-    fn outputs(
-        &mut self,
-        stmts: &[Statement],
-        input: Option<&CheckedInput>,
-        is_tree: bool,
-    ) -> Option<Vec<OutputPlan>> {
+    fn outputs(&mut self, stmts: &[Statement], is_tree: bool) -> Option<Vec<OutputPlan>> {
         let mut out: Vec<OutputPlan> = Vec::new();
         let mut spans: Vec<Span> = Vec::new();
         let mut ok = true;
@@ -1403,16 +1417,15 @@ impl Checker {
                 ok = false;
                 continue;
             };
-            if let Some(i) = input {
-                if same_file(&resolved, &i.plan.resolved) {
-                    self.err(CheckError::OutputIsInput {
-                        path: path.node.clone(),
-                        span: path.span,
-                        input: i.path_span,
-                    });
-                    ok = false;
-                    continue;
-                }
+            let real = paths::Sandbox::real_path(&resolved);
+            if let Some(&(_, input)) = self.reads.iter().find(|(r, _)| *r == real) {
+                self.err(CheckError::OutputIsInput {
+                    path: path.node.clone(),
+                    span: path.span,
+                    input,
+                });
+                ok = false;
+                continue;
             }
             if let Some(j) = out.iter().position(|o| same_file(&o.resolved, &resolved)) {
                 self.err(CheckError::OutputTwice {
@@ -1569,7 +1582,6 @@ impl Checker {
 struct CheckedInput {
     plan: InputPlan,
     key_span: Span,
-    path_span: Span,
 }
 
 fn f_mut(plans: &mut [FeaturePlan], i: usize) -> &mut FeaturePlan {

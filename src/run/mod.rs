@@ -122,6 +122,8 @@ pub struct Validation {
     pub matched: usize,
     /// Segmented records with no entry in the known grouping.
     pub unmatched: usize,
+    /// Records in the known grouping's file.
+    pub records: usize,
 }
 
 /// Everything a run found.
@@ -847,5 +849,6 @@ fn validate(
         adjusted_rand_index: compare::adjusted_rand_index(&ours, &theirs),
         matched: ours.len(),
         unmatched: assignments.len() - ours.len(),
+        records: known.keys.len(),
     })
 }
