@@ -35,6 +35,17 @@ enum Command {
     /// Rerun a recipe and compare with its run record: exit 0 when the
     /// recipe, the data and every output are as recorded.
     Verify(RecipeArgs),
+    /// Score new records with a saved segment model: each record's segment,
+    /// label, distance and margin, prepared exactly as in training.
+    Assign {
+        /// The model file a recipe saved (`save model "out/model.json"`).
+        model: PathBuf,
+        /// The records to score (CSV with the model's columns).
+        data: PathBuf,
+        /// Write the assignments here instead of to standard output.
+        #[arg(long, value_name = "FILE")]
+        out: Option<PathBuf>,
+    },
 }
 
 #[derive(Args)]
@@ -91,7 +102,105 @@ fn main() -> ExitCode {
             ExitCode::SUCCESS
         }),
         Command::Verify(args) => with_plan(&args, verify),
+        Command::Assign { model, data, out } => assign(&model, &data, out.as_deref()),
     }
+}
+
+fn assign(model_path: &Path, data: &Path, out: Option<&Path>) -> ExitCode {
+    let fail = |e: run::RunError| {
+        eprint!("{}", diagnostic::render_bare(&e, colour()));
+        ExitCode::FAILURE
+    };
+    if let Some(o) = out {
+        let real = |p: &Path| check::paths::Sandbox::real_path(p);
+        if real(o) == real(data) || real(o) == real(model_path) {
+            eprintln!(
+                "error: `--out {}` would overwrite one of the inputs",
+                o.display()
+            );
+            return ExitCode::FAILURE;
+        }
+    }
+    let model = match run::model::read_model(model_path) {
+        Ok(m) => m,
+        Err(e) => return fail(e),
+    };
+    let table = match run::model::read_for_scoring(data, &shown(data), &model) {
+        Ok(t) => t,
+        Err(e) => return fail(e),
+    };
+    let (assignments, summary) = run::model::score(&model, &table);
+    let label = |s: usize| {
+        model
+            .segments
+            .iter()
+            .find(|m| m.segment == s)
+            .and_then(|m| m.label.clone())
+            .unwrap_or_default()
+    };
+    let bytes = output::files::assignments_csv(&model.key, &assignments, label);
+    match out {
+        Some(path) => {
+            let file = Rendered {
+                path: path.to_path_buf(),
+                shown: shown(path),
+                bytes,
+            };
+            if let Err(e) = output::files::write_all(std::slice::from_ref(&file)) {
+                return fail(e);
+            }
+        }
+        None => {
+            use std::io::Write;
+            if std::io::stdout().write_all(&bytes).is_err() {
+                return ExitCode::FAILURE;
+            }
+        }
+    }
+    eprint!("{}", score_summary(&summary));
+    ExitCode::SUCCESS
+}
+
+/// What scoring did, in plain words, one line per kind of event.
+fn score_summary(s: &run::model::ScoreSummary) -> String {
+    let by = |v: &[(String, usize)]| {
+        v.iter()
+            .filter(|(_, n)| *n > 0)
+            .map(|(c, n)| format!("{c} {n}"))
+            .collect::<Vec<_>>()
+            .join(", ")
+    };
+    let mut out = format!(
+        "assigned {} of {}\n",
+        plural(s.assigned, "record"),
+        s.records
+    );
+    let lines = [
+        (&s.filled, "values filled with the training fill value"),
+        (
+            &s.missing,
+            "records left out: a missing value and no fill rule in training",
+        ),
+        (
+            &s.not_numbers,
+            "records left out: a value that is not a number",
+        ),
+        (
+            &s.out_of_range,
+            "records left out: a value the transform cannot take",
+        ),
+        (
+            &s.unseen_levels,
+            "category values not seen in training (scored as no level)",
+        ),
+    ];
+    for (v, what) in lines {
+        let detail = by(v);
+        if !detail.is_empty() {
+            out.push_str(&format!("  {what}: {detail}\n"));
+        }
+    }
+    out
 }
 
 /// Runs a plan and renders its files, the run record last; reports a run

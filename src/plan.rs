@@ -63,7 +63,7 @@ pub struct CategoryPlan {
 }
 
 /// What happens to a record whose value is missing in one column.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, serde::Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum MissingRule {
     /// No rule given: a missing value stops the run with its location.
@@ -74,7 +74,7 @@ pub enum MissingRule {
     FillValue(f64),
 }
 
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, serde::Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum Transform {
     None,
@@ -270,6 +270,8 @@ pub enum OutputKind {
     ProfilesCsv,
     ProfilesJson,
     Centroids,
+    /// The segment model, for scoring new records (JSON).
+    Model,
     /// The tree's merge table (CSV).
     Merges,
     /// The tree in Newick format.

@@ -126,7 +126,8 @@ impl Run {
 }
 
 const DEMO: &str = "coop-members.assort";
-const DEMO_OUTPUTS: [&str; 5] = [
+const DEMO_OUTPUTS: [&str; 6] = [
+    "out/segment_model.json",
     "out/member_segments.csv",
     "out/segment_profiles.csv",
     "out/segment_profiles.json",
@@ -833,7 +834,7 @@ fn the_run_record_holds_digests_of_everything() {
     assert_eq!(rec["chosen_k"], 5);
     assert_eq!(rec["inputs"][0]["records"], 6000);
     assert_eq!(rec["inputs"][1]["role"], "validate");
-    assert_eq!(rec["outputs"].as_array().unwrap().len(), 4);
+    assert_eq!(rec["outputs"].as_array().unwrap().len(), 5);
     assert_eq!(rec["plan"]["method"]["restarts"], 50);
     // The digest of each output is the SHA-256 of its bytes (checked here
     // with an independent count: a 64-digit lowercase hex string that
@@ -892,4 +893,114 @@ fn an_output_may_not_overwrite_the_known_grouping_either() {
         .stderr_has("would overwrite the input data");
     assert_eq!(case.read("data/coop_members_planted.csv"), before);
     assert!(!case.path("out").exists());
+}
+
+// ------------------------------------------------------------- models --
+
+#[test]
+fn assigning_the_training_data_with_the_model_reproduces_the_run() {
+    let case = Case::demo();
+    case.run(DEMO).ok();
+    case.assort(
+        &[
+            "assign",
+            "out/segment_model.json",
+            "data/coop_members.csv",
+            "--out",
+            "out/again.csv",
+        ],
+        &[],
+    )
+    .ok()
+    .stderr_has("assigned 6000 records of 6000")
+    .stderr_has("values filled with the training fill value: basket_value 81");
+    assert_eq!(
+        std::fs::read(case.path("out/again.csv")).unwrap(),
+        std::fs::read(case.path("out/member_segments.csv")).unwrap()
+    );
+    // To standard output, the same bytes.
+    let to_stdout = case
+        .assort(
+            &["assign", "out/segment_model.json", "data/coop_members.csv"],
+            &[],
+        )
+        .ok();
+    assert_eq!(
+        to_stdout.0.stdout,
+        std::fs::read(case.path("out/member_segments.csv")).unwrap()
+    );
+}
+
+#[test]
+fn scoring_new_records_counts_what_it_could_not_use() {
+    let case = Case::demo();
+    case.run(DEMO).ok();
+    case.write(
+        "new.csv",
+        "member_id,home_branch,tenure_months,visits_per_month,basket_value,share_fresh,share_bulk,share_prepared,online_ratio,coupon_rate\n\
+         N1,Riverside,12,4.0,30.5,0.4,0.2,0.1,0.1,0.05\n\
+         N2,Lakeside,40,2.0,140.0,0.2,0.5,0.05,0.1,0.1\n\
+         N3,Hilltop,,1.0,20.0,0.3,0.1,0.3,0.3,0.1\n\
+         N4,Harbour,20,lots,50.0,0.1,0.1,0.5,0.7,0.1\n\
+         N5,Harbour,20,3.0,-5,0.1,0.1,0.5,0.7,0.1\n",
+    );
+    let run = case
+        .assort(&["assign", "out/segment_model.json", "new.csv"], &[])
+        .ok();
+    let out = run.stdout();
+    // N4 has a word for a number and N5 a basket log1p cannot take; the
+    // blank tenure of N3 is filled, the unseen branch of N2 scored as none.
+    assert_eq!(out.lines().count(), 4, "{out}");
+    assert!(
+        out.contains("\nN1,") && out.contains("\nN2,") && out.contains("\nN3,"),
+        "{out}"
+    );
+    run.stderr_has("assigned 3 records of 5")
+        .stderr_has("values filled with the training fill value: tenure_months 1")
+        .stderr_has("records left out: a value that is not a number: visits_per_month 1")
+        .stderr_has("records left out: a value the transform cannot take: basket_value 1")
+        .stderr_has("category values not seen in training (scored as no level): home_branch 1");
+}
+
+#[test]
+fn scoring_data_without_a_model_column_is_an_error() {
+    let case = Case::demo();
+    case.run(DEMO).ok();
+    case.write(
+        "new.csv",
+        "member_id,home_branch,tenure_months\nN1,Riverside,12\n",
+    );
+    case.assort(
+        &[
+            "assign",
+            "out/segment_model.json",
+            "new.csv",
+            "--out",
+            "out/scored.csv",
+        ],
+        &[],
+    )
+    .fails()
+    .stderr_has("`new.csv` has no column `visits_per_month`, which the model needs");
+    assert!(!case.path("out/scored.csv").exists());
+}
+
+#[test]
+fn assign_refuses_to_overwrite_its_input() {
+    let case = Case::demo();
+    case.run(DEMO).ok();
+    let before = case.read("data/coop_members.csv");
+    case.assort(
+        &[
+            "assign",
+            "out/segment_model.json",
+            "data/coop_members.csv",
+            "--out",
+            "data/coop_members.csv",
+        ],
+        &[],
+    )
+    .fails()
+    .stderr_has("would overwrite one of the inputs");
+    assert_eq!(case.read("data/coop_members.csv"), before);
 }

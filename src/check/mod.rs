@@ -1361,6 +1361,16 @@ impl Checker {
                 ("centroids", "csv") => Some(OutputKind::Centroids),
                 ("profiles", "csv") => Some(OutputKind::ProfilesCsv),
                 ("profiles", "json") => Some(OutputKind::ProfilesJson),
+                ("model", "json") => Some(OutputKind::Model),
+                ("model", _) => {
+                    self.err(CheckError::OutputFormat {
+                        what: "`save model`".into(),
+                        expected: "`.json`",
+                        path: path.node.clone(),
+                        span: path.span,
+                    });
+                    None
+                }
                 ("merges" | "tree", _) if !is_tree => {
                     self.err(CheckError::NeedsTree {
                         what: what.node.clone(),
@@ -1403,8 +1413,9 @@ impl Checker {
                         what: "output",
                         found: other.to_string(),
                         span: what.span,
-                        choices: "`assignments`, `profiles`, `centroids`, `merges` or `tree`"
-                            .into(),
+                        choices:
+                            "`assignments`, `profiles`, `centroids`, `model`, `merges` or `tree`"
+                                .into(),
                         help: did_you_mean(
                             &suggestion,
                             "save assignments, profiles, centroids, or a tree's merges and tree",

@@ -81,8 +81,7 @@ pub const STATEMENTS: &[StatementDoc] = &[
     },
     StatementDoc {
         word: "save",
-        summary:
-            "writes assignments, profiles (.csv or .json), centroids, or a tree's merges and tree",
+        summary: "writes assignments, profiles (.csv or .json), centroids, a segment model, or a tree's merges and tree",
         example: r#"save assignments "out/members.csv""#,
     },
     StatementDoc {
@@ -202,7 +201,14 @@ pub const VALIDATE_OPTIONS: &[OptionDoc] = &[OptionDoc {
 }];
 
 /// What `save` can write.
-pub const SAVE_WHAT: [&str; 5] = ["assignments", "profiles", "centroids", "merges", "tree"];
+pub const SAVE_WHAT: [&str; 6] = [
+    "assignments",
+    "profiles",
+    "centroids",
+    "model",
+    "merges",
+    "tree",
+];
 
 /// Fill words `missing fill` takes besides a number.
 pub const FILL_WORDS: [&str; 2] = ["median", "mean"];

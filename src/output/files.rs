@@ -6,7 +6,7 @@
 //! the values alone, so identical results give identical bytes.
 
 use crate::plan::{OutputKind, OutputPlan};
-use crate::run::{Outcome, Profile, RunError};
+use crate::run::{Assignment, Outcome, Profile, RunError};
 use serde::Serialize;
 use std::path::{Path, PathBuf};
 
@@ -28,6 +28,10 @@ fn render(o: &Outcome, out: &OutputPlan) -> Rendered {
         OutputKind::ProfilesCsv => profiles_csv(o),
         OutputKind::ProfilesJson => profiles_json(o),
         OutputKind::Centroids => centroids(o),
+        OutputKind::Model => {
+            let sha = super::record::file_sha256(&o.plan.input.resolved).unwrap_or_default();
+            crate::run::model::to_bytes(&crate::run::model::from_outcome(o, sha))
+        }
         OutputKind::Merges => merges(o),
         OutputKind::Newick => newick(o),
     };
@@ -62,18 +66,25 @@ fn label_of(o: &Outcome, segment: usize) -> String {
 }
 
 fn assignments(o: &Outcome) -> Vec<u8> {
-    let mut rows = vec![vec![
-        o.plan.input.key.clone(),
-        "segment".into(),
-        "label".into(),
-        "distance".into(),
-        "margin".into(),
-    ]];
-    for a in &o.assignments {
+    assignments_csv(&o.plan.input.key, &o.assignments, |s| label_of(o, s))
+}
+
+/// The assignments file: key, segment, label, distance, margin. Shared by
+/// runs and by scoring with a model, so both write the same bytes.
+pub fn assignments_csv(
+    key: &str,
+    assignments: &[Assignment],
+    label: impl Fn(usize) -> String,
+) -> Vec<u8> {
+    let mut rows = vec![[key, "segment", "label", "distance", "margin"]
+        .iter()
+        .map(|s| s.to_string())
+        .collect::<Vec<_>>()];
+    for a in assignments {
         rows.push(vec![
             a.key.clone(),
             a.segment.to_string(),
-            label_of(o, a.segment),
+            label(a.segment),
             f6(a.distance),
             f6(a.margin),
         ]);

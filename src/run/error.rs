@@ -141,6 +141,20 @@ pub enum RunError {
     )]
     TreeTooLarge { n: usize, limit: usize },
 
+    #[error("`{file}` has no column `{column}`, which the model needs")]
+    #[diagnostic(
+        code(assort::run::model_column_missing),
+        help("score data with the same columns the model was trained on")
+    )]
+    ModelColumnMissing { file: String, column: String },
+
+    #[error("`{file}` is not a segment model assort can read: {reason}")]
+    #[diagnostic(
+        code(assort::run::bad_model),
+        help("models are written by a recipe's `save model \"out/model.json\"`")
+    )]
+    BadModel { file: String, reason: String },
+
     #[error("cannot write `{path}`: {reason}")]
     #[diagnostic(
         code(assort::run::write),

@@ -7,6 +7,7 @@
 
 pub mod error;
 pub mod load;
+pub mod model;
 pub mod prepare;
 
 use crate::engine::{self, compare, criteria, evidence, kmeans, tree};
@@ -149,6 +150,8 @@ pub struct Outcome {
     pub validation: Option<Validation>,
     /// For `tree` recipes: the tree and its summary.
     pub tree: Option<TreeResult>,
+    /// The chosen segments' centres in the clustered space, k rows.
+    pub centres: Array2<f64>,
 }
 
 /// Runs a plan.
@@ -332,6 +335,7 @@ pub fn run(plan: &Plan) -> Result<Outcome, RunError> {
         overall,
         validation,
         tree,
+        centres: candidates[at].centres.clone(),
     })
 }
 

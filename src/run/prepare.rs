@@ -28,7 +28,7 @@ use ndarray::Array2;
 use serde::Serialize;
 
 /// How one feature was prepared.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, serde::Deserialize)]
 pub struct FeatureParams {
     pub column: String,
     pub fill: Option<f64>,
@@ -59,7 +59,7 @@ impl FeatureParams {
     }
 }
 
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, serde::Deserialize)]
 pub struct CategoryParams {
     pub column: String,
     pub levels: Vec<String>,
@@ -286,7 +286,7 @@ fn header_index(path: &std::path::Path, sep: char, name: &str) -> Option<usize> 
     h.iter().position(|c| c.trim() == name)
 }
 
-fn transform(t: Transform, x: f64) -> Result<f64, (&'static str, &'static str)> {
+pub(crate) fn transform(t: Transform, x: f64) -> Result<f64, (&'static str, &'static str)> {
     // libm gives the same bits on every platform, unlike the system's maths
     // library, which keeps reruns identical across machines.
     match t {

@@ -1,0 +1,345 @@
+//! Segment models: everything needed to score new records exactly as the
+//! run prepared its own, and the scoring itself.
+//!
+//! A model is our own versioned JSON format (`assort-model/1`): the key and
+//! separator, each feature's fill value, clip bounds, transform, scaling and
+//! weight, each category's levels and weight, the segments' centres in the
+//! clustered space, their numbers and labels, and where the model came
+//! from. Scoring puts each record with its nearest centre (ties to the lower
+//! number), so on the training data of a k-means recipe it reproduces the
+//! run's assignments; a tree's segments are scored by their means, so a
+//! border record the tree put elsewhere may move.
+
+use super::error::RunError;
+use super::prepare::{self, CategoryParams, FeatureParams, BLANK_LEVEL};
+use super::{Assignment, Outcome};
+use crate::check::probe::{is_blank, parse_number};
+use crate::engine::kmeans;
+use ndarray::Array2;
+use serde::{Deserialize, Serialize};
+
+pub const MODEL_FORMAT: &str = "assort-model/1";
+
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct SegmentModel {
+    pub format: String,
+    pub assort_version: String,
+    pub provenance: Provenance,
+    pub key: String,
+    pub separator: char,
+    pub features: Vec<FeatureParams>,
+    pub categories: Vec<CategoryParams>,
+    /// One row per segment, in the clustered space.
+    pub centres: Vec<Vec<f64>>,
+    pub segments: Vec<ModelSegment>,
+}
+
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct Provenance {
+    pub recipe: String,
+    pub input: String,
+    pub input_sha256: String,
+    pub records: usize,
+    pub seed: u64,
+    pub method: String,
+}
+
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct ModelSegment {
+    pub segment: usize,
+    pub label: Option<String>,
+    pub size: usize,
+}
+
+/// The model of a run's chosen segmentation.
+pub fn from_outcome(o: &Outcome, input_sha256: String) -> SegmentModel {
+    let method = match &o.plan.method {
+        crate::plan::MethodPlan::KMeans(_) => "kmeans".to_string(),
+        crate::plan::MethodPlan::Tree(t) => format!(
+            "tree ({} linkage; new records go to the nearest segment mean)",
+            t.linkage.name()
+        ),
+    };
+    SegmentModel {
+        format: MODEL_FORMAT.into(),
+        assort_version: env!("CARGO_PKG_VERSION").into(),
+        provenance: Provenance {
+            recipe: o.plan.name.clone(),
+            input: o.plan.input.path.clone(),
+            input_sha256,
+            records: o.records,
+            seed: o.plan.seed,
+            method,
+        },
+        key: o.plan.input.key.clone(),
+        separator: o.plan.input.separator,
+        features: o.prepared.features.clone(),
+        categories: o.prepared.categories.clone(),
+        centres: o.centres.outer_iter().map(|r| r.to_vec()).collect(),
+        segments: o
+            .profiles
+            .iter()
+            .map(|p| ModelSegment {
+                segment: p.segment.unwrap_or(0),
+                label: p.label.clone(),
+                size: p.size,
+            })
+            .collect(),
+    }
+}
+
+/// Why a record was left unassigned, or what was done to it.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct ScoreSummary {
+    pub records: usize,
+    pub assigned: usize,
+    /// Values filled with the training fill value, by feature.
+    pub filled: Vec<(String, usize)>,
+    /// Records left out: a missing value with no fill rule, by feature.
+    pub missing: Vec<(String, usize)>,
+    /// Records left out: a value that is not a number, by feature.
+    pub not_numbers: Vec<(String, usize)>,
+    /// Records left out: a value outside the transform's range, by feature.
+    pub out_of_range: Vec<(String, usize)>,
+    /// Category values not seen in training, by column (scored as no level).
+    pub unseen_levels: Vec<(String, usize)>,
+}
+
+/// Scores a table read with the model's columns (`numeric` in feature
+/// order, `text` in category order). Records that cannot be prepared are
+/// left out and counted.
+pub fn score(model: &SegmentModel, table: &Table) -> (Vec<Assignment>, ScoreSummary) {
+    let n = table.keys.len();
+    let nf = model.features.len();
+    let width = nf
+        + model
+            .categories
+            .iter()
+            .map(|c| c.levels.len())
+            .sum::<usize>();
+    let mut summary = ScoreSummary {
+        records: n,
+        filled: count_slots(model.features.iter().map(|f| &f.column)),
+        missing: count_slots(model.features.iter().map(|f| &f.column)),
+        not_numbers: count_slots(model.features.iter().map(|f| &f.column)),
+        out_of_range: count_slots(model.features.iter().map(|f| &f.column)),
+        unseen_levels: count_slots(model.categories.iter().map(|c| &c.column)),
+        ..Default::default()
+    };
+    let mut rows: Vec<f64> = Vec::with_capacity(n * width);
+    let mut kept: Vec<usize> = Vec::with_capacity(n);
+    'records: for r in 0..n {
+        let mut row = vec![0.0; width];
+        for (f, fp) in model.features.iter().enumerate() {
+            let value = match table.numeric_raw[f][r].as_deref() {
+                None => match fp.fill {
+                    Some(v) => {
+                        summary.filled[f].1 += 1;
+                        v
+                    }
+                    None => {
+                        summary.missing[f].1 += 1;
+                        continue 'records;
+                    }
+                },
+                Some(text) => match parse_number(text) {
+                    Some(v) => v,
+                    None => {
+                        summary.not_numbers[f].1 += 1;
+                        continue 'records;
+                    }
+                },
+            };
+            match prepared_value(fp, value) {
+                Some(v) => row[f] = v,
+                None => {
+                    summary.out_of_range[f].1 += 1;
+                    continue 'records;
+                }
+            }
+        }
+        let mut offset = nf;
+        for (c, cat) in model.categories.iter().enumerate() {
+            let raw = &table.text[c][r];
+            let level = if raw.is_empty() {
+                BLANK_LEVEL
+            } else {
+                raw.as_str()
+            };
+            match cat.levels.binary_search_by(|l| l.as_str().cmp(level)) {
+                Ok(at) => row[offset + at] = cat.value,
+                // An unseen level sets no indicator: the record is equally
+                // far from every level's records.
+                Err(_) => summary.unseen_levels[c].1 += 1,
+            }
+            offset += cat.levels.len();
+        }
+        rows.extend(row);
+        kept.push(r);
+    }
+    summary.assigned = kept.len();
+    let x = Array2::from_shape_vec((kept.len(), width), rows)
+        .unwrap_or_else(|_| Array2::zeros((0, width)));
+    let k = model.centres.len();
+    let centres = Array2::from_shape_fn((k, width), |(s, f)| {
+        model.centres[s].get(f).copied().unwrap_or(0.0)
+    });
+    let nearest = kmeans::nearest_with_margin(x.view(), centres.view());
+    let assignments = kept
+        .iter()
+        .zip(nearest)
+        .map(|(&r, (seg, distance, margin))| Assignment {
+            key: table.keys[r].clone(),
+            segment: seg as usize + 1,
+            distance,
+            margin,
+        })
+        .collect();
+    (assignments, summary)
+}
+
+fn count_slots<'a>(names: impl Iterator<Item = &'a String>) -> Vec<(String, usize)> {
+    names.map(|n| (n.clone(), 0)).collect()
+}
+
+/// A raw value prepared exactly as the run prepared its own: clip, the
+/// transform, scaling, weight. `None` outside the transform's range.
+fn prepared_value(fp: &FeatureParams, x: f64) -> Option<f64> {
+    let x = match fp.clip {
+        Some((a, b)) => x.clamp(a, b),
+        None => x,
+    };
+    let t = prepare::transform(fp.transform, x).ok()?;
+    Some(if fp.constant {
+        0.0
+    } else {
+        (t - fp.centre) / fp.divisor * fp.multiplier
+    })
+}
+
+/// The columns a model needs, read as text so that each value's fate
+/// (number, missing, not a number) is decided while scoring.
+#[derive(Debug, Clone)]
+pub struct Table {
+    pub keys: Vec<String>,
+    /// Per feature, each record's field; `None` where blank.
+    pub numeric_raw: Vec<Vec<Option<String>>>,
+    /// Per category, each record's trimmed value.
+    pub text: Vec<Vec<String>>,
+}
+
+/// Reads the columns `model` needs from a CSV file. A missing column is an
+/// error naming it; so is a malformed line or a blank key.
+pub fn read_for_scoring(
+    path: &std::path::Path,
+    shown: &str,
+    model: &SegmentModel,
+) -> Result<Table, RunError> {
+    let file = std::fs::File::open(path).map_err(|e| RunError::Unreadable {
+        file: shown.to_string(),
+        reason: e.to_string(),
+    })?;
+    let mut reader = csv::ReaderBuilder::new()
+        .delimiter(model.separator as u8)
+        .from_reader(std::io::BufReader::new(file));
+    let malformed = |e: csv::Error| RunError::Malformed {
+        file: shown.to_string(),
+        line: e.position().map_or(1, |p| p.line()),
+        reason: e.to_string(),
+    };
+    let header = reader.headers().map_err(malformed)?.clone();
+    let index_of = |name: &str| {
+        header
+            .iter()
+            .position(|h| h.trim() == name)
+            .ok_or_else(|| RunError::ModelColumnMissing {
+                file: shown.to_string(),
+                column: name.to_string(),
+            })
+    };
+    let key_at = index_of(&model.key)?;
+    let num_at = model
+        .features
+        .iter()
+        .map(|f| index_of(&f.column))
+        .collect::<Result<Vec<_>, _>>()?;
+    let text_at = model
+        .categories
+        .iter()
+        .map(|c| index_of(&c.column))
+        .collect::<Result<Vec<_>, _>>()?;
+    let mut table = Table {
+        keys: Vec::new(),
+        numeric_raw: vec![Vec::new(); num_at.len()],
+        text: vec![Vec::new(); text_at.len()],
+    };
+    let mut record = csv::StringRecord::new();
+    while reader.read_record(&mut record).map_err(malformed)? {
+        let key = record.get(key_at).unwrap_or("").trim();
+        if key.is_empty() {
+            return Err(RunError::BlankKey {
+                place: super::error::Place {
+                    file: shown.to_string(),
+                    line: record.position().map_or(0, |p| p.line()),
+                    column: key_at + 1,
+                    name: model.key.clone(),
+                },
+            });
+        }
+        table.keys.push(key.to_string());
+        for (col, &at) in table.numeric_raw.iter_mut().zip(&num_at) {
+            let field = record.get(at).unwrap_or("");
+            col.push(if is_blank(field) {
+                None
+            } else {
+                Some(field.trim().to_string())
+            });
+        }
+        for (col, &at) in table.text.iter_mut().zip(&text_at) {
+            col.push(record.get(at).unwrap_or("").trim().to_string());
+        }
+    }
+    Ok(table)
+}
+
+/// Reads and checks a model file.
+pub fn read_model(path: &std::path::Path) -> Result<SegmentModel, RunError> {
+    let shown = path.display().to_string();
+    let bytes = std::fs::read(path).map_err(|e| RunError::Unreadable {
+        file: shown.clone(),
+        reason: e.to_string(),
+    })?;
+    let model: SegmentModel = serde_json::from_slice(&bytes).map_err(|e| RunError::BadModel {
+        file: shown.clone(),
+        reason: e.to_string(),
+    })?;
+    if model.format != MODEL_FORMAT {
+        return Err(RunError::BadModel {
+            file: shown,
+            reason: format!(
+                "its format is `{}`, this assort reads `{MODEL_FORMAT}`",
+                model.format
+            ),
+        });
+    }
+    let width = model.features.len()
+        + model
+            .categories
+            .iter()
+            .map(|c| c.levels.len())
+            .sum::<usize>();
+    if model.centres.is_empty() || model.centres.iter().any(|c| c.len() != width) {
+        return Err(RunError::BadModel {
+            file: shown,
+            reason: "its centres do not match its columns".into(),
+        });
+    }
+    Ok(model)
+}
+
+/// The model as the bytes of its file.
+pub fn to_bytes(model: &SegmentModel) -> Vec<u8> {
+    let mut bytes = serde_json::to_vec_pretty(model).unwrap_or_default();
+    bytes.push(b'\n');
+    bytes
+}
