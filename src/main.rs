@@ -46,6 +46,14 @@ enum Command {
         #[arg(long, value_name = "FILE")]
         out: Option<PathBuf>,
     },
+    /// Compare two assignments files joined on their key: who moved where,
+    /// the adjusted Rand index, each old segment's best match.
+    Compare {
+        /// The earlier assignments file.
+        old: PathBuf,
+        /// The later assignments file.
+        new: PathBuf,
+    },
 }
 
 #[derive(Args)]
@@ -103,6 +111,27 @@ fn main() -> ExitCode {
         }),
         Command::Verify(args) => with_plan(&args, verify),
         Command::Assign { model, data, out } => assign(&model, &data, out.as_deref()),
+        Command::Compare { old, new } => {
+            let read = |p: &Path| run::comparison::read_assignments(p, &shown(p));
+            match (read(&old), read(&new)) {
+                (Ok(a), Ok(b)) => {
+                    print!(
+                        "{}",
+                        output::tables::comparison(&run::comparison::compare(
+                            &shown(&old),
+                            &a,
+                            &shown(&new),
+                            &b
+                        ))
+                    );
+                    ExitCode::SUCCESS
+                }
+                (Err(e), _) | (_, Err(e)) => {
+                    eprint!("{}", diagnostic::render_bare(&e, colour()));
+                    ExitCode::FAILURE
+                }
+            }
+        }
     }
 }
 

@@ -31,6 +31,8 @@ pub struct Plan {
     pub labels: BTreeMap<usize, String>,
     pub evidence: EvidencePlan,
     pub validate: Option<ValidatePlan>,
+    /// An earlier assignments file to compare with.
+    pub compare: Option<ComparePlan>,
     pub outputs: Vec<OutputPlan>,
 }
 
@@ -261,6 +263,13 @@ pub struct ValidatePlan {
     pub resolved: PathBuf,
     /// The column holding the known grouping; joined on the input's key.
     pub column: String,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct ComparePlan {
+    pub path: String,
+    #[serde(skip)]
+    pub resolved: PathBuf,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]

@@ -1004,3 +1004,107 @@ fn assign_refuses_to_overwrite_its_input() {
     .stderr_has("would overwrite one of the inputs");
     assert_eq!(case.read("data/coop_members.csv"), before);
 }
+
+// --------------------------------------------------------- comparison --
+
+#[test]
+fn compare_shows_a_hand_checked_migration_table() {
+    // Worked by hand: old 1,1,1,2,2 and new 1,1,2,2,2 on keys a..e, plus a
+    // key only in each file. Old 1 keeps 2 of 3 in new 1 (Jaccard 2/3);
+    // old 2 lands wholly in new 2 (Jaccard 2/3: 2 shared of 3 in the union).
+    let case = Case::empty();
+    case.write("old.csv", "id,segment,label,distance,margin\na,1,,0,0\nb,1,,0,0\nc,1,,0,0\nd,2,,0,0\ne,2,,0,0\nx,2,,0,0\n")
+        .write("new.csv", "id,segment,label,distance,margin\na,1,,0,0\nb,1,,0,0\nc,2,,0,0\nd,2,,0,0\ne,2,,0,0\ny,1,,0,0\n");
+    let out = case
+        .assort(&["compare", "old.csv", "new.csv"], &[])
+        .ok()
+        .stdout();
+    assert!(
+        out.contains("5 in both; 1 only in the old; 1 only in the new"),
+        "{out}"
+    );
+    let rows: Vec<Vec<&str>> = out
+        .lines()
+        .filter(|l| l.starts_with("  1 ") || l.starts_with("  2 "))
+        .map(|l| l.split_whitespace().collect())
+        .collect();
+    assert_eq!(rows[0], ["1", "2", "1", "3", "1", "(0.67)"], "{out}");
+    assert_eq!(rows[1], ["2", "0", "2", "2", "2", "(0.67)"], "{out}");
+    assert_eq!(rows[2], ["1", "67%", "33%"], "{out}");
+    assert_eq!(rows[3], ["2", "0%", "100%"], "{out}");
+}
+
+#[test]
+fn compare_gives_the_reference_adjusted_rand_index() {
+    // Reference: scikit-learn 1.9.1 adjusted_rand_score on the tiny example's
+    // labellings, 0.39114391143911437 (../shared/data/REFERENCE.md;
+    // tests/data/reference.json).
+    let reference: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(
+            Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/reference.json"),
+        )
+        .unwrap(),
+    )
+    .unwrap();
+    let t = &reference["tiny"];
+    let file = |labels: &serde_json::Value| -> String {
+        let mut s = String::from("id,segment\n");
+        for (i, l) in labels.as_array().unwrap().iter().enumerate() {
+            s.push_str(&format!("r{i},{l}\n"));
+        }
+        s
+    };
+    let case = Case::empty();
+    case.write("truth.csv", &file(&t["labels_truth"]))
+        .write("pred.csv", &file(&t["labels_pred"]));
+    case.assort(&["compare", "truth.csv", "pred.csv"], &[])
+        .ok()
+        .stdout_has("adjusted Rand index 0.3911 ");
+    let read = |n: &str| assort::run::comparison::read_assignments(&case.path(n), n).unwrap();
+    let c =
+        assort::run::comparison::compare("truth", &read("truth.csv"), "pred", &read("pred.csv"));
+    let expected = t["ari_truth_vs_pred"].as_f64().unwrap();
+    assert!(
+        (c.adjusted_rand_index - expected).abs() < 1e-12,
+        "{} vs {expected}",
+        c.adjusted_rand_index
+    );
+}
+
+#[test]
+fn a_recipe_compares_itself_with_last_quarter() {
+    let case = Case::demo();
+    case.run(DEMO).ok();
+    std::fs::copy(
+        case.path("out/member_segments.csv"),
+        case.path("last_quarter.csv"),
+    )
+    .unwrap();
+    case.edit(
+        DEMO,
+        "validate against",
+        "compare with \"last_quarter.csv\"\nvalidate against",
+    );
+    case.run(DEMO)
+        .ok()
+        .stdout_has("comparison: `last_quarter.csv` (old) with `this run` (new)")
+        .stdout_has("6000 in both; 0 only in the old; 0 only in the new")
+        .stdout_has("adjusted Rand index 1.0000");
+    let rec: serde_json::Value =
+        serde_json::from_str(&case.read("out/coop-members.run.json")).unwrap();
+    assert!(rec["inputs"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .any(|i| i["role"] == "compare"));
+}
+
+#[test]
+fn comparing_a_file_without_segments_is_an_error() {
+    let case = Case::empty();
+    case.write("a.csv", "id,group\n1,2\n")
+        .write("b.csv", "id,segment\n1,2\n");
+    case.assort(&["compare", "a.csv", "b.csv"], &[])
+        .fails()
+        .stderr_has("`a.csv` is not an assignments file: it has no `segment` column");
+}

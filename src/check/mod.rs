@@ -145,9 +145,9 @@ pub const MAX_K_SPAN: i64 = 500;
 pub const TREE_DIRECT_LIMIT: usize = 20_000;
 
 /// Statements that may appear once, by word.
-const SINGLE: [&str; 10] = [
+const SINGLE: [&str; 11] = [
     "recipe", "seed", "input", "features", "scale", "kmeans", "tree", "evidence", "choose",
-    "validate",
+    "validate", "compare",
 ];
 
 struct Checker {
@@ -230,6 +230,7 @@ impl Checker {
         let labels = self.labels(stmts, ks.as_deref());
         let evidence = self.evidence(find("evidence"), choose);
         let validate = self.validate(find("validate"), input.as_ref());
+        let compare = self.compare(find("compare"));
         let is_tree = matches!(method, Some(MethodPlan::Tree(_)));
         let outputs = self.outputs(stmts, is_tree);
         let seed = self.seed(find("seed"));
@@ -254,6 +255,7 @@ impl Checker {
             labels: labels?,
             evidence: evidence?,
             validate: validate?,
+            compare: compare?,
             outputs: outputs?,
         })
     }
@@ -1331,6 +1333,39 @@ impl Checker {
                         column: column.node.clone(),
                     })
                 })
+            }
+            Err(e) => {
+                self.file_problem(path, &e);
+                None
+            }
+        }
+    }
+
+    /// The `compare with` statement: an earlier assignments file, which
+    /// must exist and have a `segment` column.
+    fn compare(&mut self, stmt: Option<&Statement>) -> Option<Option<ComparePlan>> {
+        let Some(Statement {
+            kind: StatementKind::Compare { path },
+            ..
+        }) = stmt
+        else {
+            return Some(None);
+        };
+        let resolved = self.read_path(path)?;
+        match probe::probe(&resolved, b',') {
+            Ok(p) if p.column("segment").is_some() => Some(Some(ComparePlan {
+                path: path.node.clone(),
+                resolved,
+            })),
+            Ok(_) => {
+                self.err(CheckError::FileUnreadable {
+                    path: path.node.clone(),
+                    reason: "it has no `segment` column".into(),
+                    span: path.span,
+                    help: "compare with a file written by `save assignments` or `assort assign`"
+                        .into(),
+                });
+                None
             }
             Err(e) => {
                 self.file_problem(path, &e);

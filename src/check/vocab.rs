@@ -85,6 +85,11 @@ pub const STATEMENTS: &[StatementDoc] = &[
         example: r#"save assignments "out/members.csv""#,
     },
     StatementDoc {
+        word: "compare",
+        summary: "compares the segments with an earlier assignments file, joined on the key",
+        example: r#"compare with "out/last_quarter.csv""#,
+    },
+    StatementDoc {
         word: "validate",
         summary: "compares the segments with a known grouping of the same records",
         example: r#"validate against "data/known.csv" column group"#,

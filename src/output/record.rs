@@ -80,6 +80,14 @@ pub fn input_digests(o: &Outcome) -> Vec<InputDigest> {
         sha256: file_sha256(&o.plan.input.resolved).unwrap_or_default(),
         records: o.records,
     }];
+    if let (Some(c), Some(cmp)) = (&o.plan.compare, &o.comparison) {
+        out.push(InputDigest {
+            role: "compare".into(),
+            path: c.path.clone(),
+            sha256: file_sha256(&c.resolved).unwrap_or_default(),
+            records: cmp.both + cmp.only_old,
+        });
+    }
     if let (Some(v), Some(val)) = (&o.plan.validate, &o.validation) {
         out.push(InputDigest {
             role: "validate".into(),

@@ -19,6 +19,68 @@ pub fn report(o: &Outcome) -> String {
     sweep(&mut s, o);
     s.push('\n');
     profiles(&mut s, o);
+    if let Some(c) = &o.comparison {
+        s.push_str(&comparison(c));
+        s.push('\n');
+    }
+    s
+}
+
+/// A comparison of two segmentations: who is in both, the adjusted Rand
+/// index, and the migration table (old segments by new) with each old
+/// segment's best match.
+pub fn comparison(c: &crate::run::comparison::Comparison) -> String {
+    let mut s = String::new();
+    let m = &c.migration;
+    let _ = writeln!(
+        s,
+        "comparison: `{}` (old) with `{}` (new)",
+        c.old_name, c.new_name
+    );
+    let _ = writeln!(
+        s,
+        "  {} in both; {} only in the old; {} only in the new",
+        c.both, c.only_old, c.only_new
+    );
+    let _ = writeln!(
+        s,
+        "  adjusted Rand index {:.4} (1: the same segments; about 0: no more alike than chance)",
+        c.adjusted_rand_index
+    );
+    const W: usize = 8;
+    let mut header = format!("  {:<12}", "old \\ new");
+    for t in &m.to {
+        let _ = write!(header, "{:>W$}", clip(t, W - 1));
+    }
+    let _ = write!(header, "{:>W$}  best match (Jaccard)", "total");
+    let _ = writeln!(s, "{header}");
+    for (i, f) in m.from.iter().enumerate() {
+        let mut line = format!("  {:<12}", clip(f, 11));
+        for j in 0..m.to.len() {
+            let _ = write!(line, "{:>W$}", m.counts[i][j]);
+        }
+        let (j, jac) = c.best[i];
+        let _ = write!(
+            line,
+            "{:>W$}  {} ({jac:.2})",
+            m.row_total(i),
+            m.to.get(j).map(String::as_str).unwrap_or("-")
+        );
+        let _ = writeln!(s, "{line}");
+    }
+    let _ = writeln!(s, "  shares of each old segment:");
+    for (i, f) in m.from.iter().enumerate() {
+        let total = m.row_total(i).max(1) as f64;
+        let mut line = format!("  {:<12}", clip(f, 11));
+        for j in 0..m.to.len() {
+            let _ = write!(
+                line,
+                "{:>W$}",
+                format!("{:.0}%", 100.0 * m.counts[i][j] as f64 / total)
+            );
+        }
+        let _ = writeln!(s, "{line}");
+    }
     s
 }
 

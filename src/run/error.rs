@@ -155,6 +155,13 @@ pub enum RunError {
     )]
     BadModel { file: String, reason: String },
 
+    #[error("`{file}` is not an assignments file: it has no `segment` column")]
+    #[diagnostic(
+        code(assort::run::not_assignments),
+        help("compare files written by `save assignments` or `assort assign`")
+    )]
+    NotAssignments { file: String },
+
     #[error("cannot write `{path}`: {reason}")]
     #[diagnostic(
         code(assort::run::write),

@@ -5,6 +5,7 @@
 //! Nothing is written here: [`crate::output`] turns the [`Outcome`] into
 //! tables and files, only once the whole run has succeeded.
 
+pub mod comparison;
 pub mod error;
 pub mod load;
 pub mod model;
@@ -152,6 +153,8 @@ pub struct Outcome {
     pub tree: Option<TreeResult>,
     /// The chosen segments' centres in the clustered space, k rows.
     pub centres: Array2<f64>,
+    /// The comparison with an earlier segmentation, when asked for.
+    pub comparison: Option<comparison::Comparison>,
 }
 
 /// Runs a plan.
@@ -319,6 +322,16 @@ pub fn run(plan: &Plan) -> Result<Outcome, RunError> {
         Some(v) => Some(validate(plan, v, &assignments)?),
         None => None,
     };
+    let comparison = match &plan.compare {
+        Some(c) => {
+            let old = comparison::read_assignments(&c.resolved, &c.path)?;
+            let new = comparison::from_run(&assignments, |s| {
+                plan.labels.get(&s).cloned().unwrap_or_default()
+            });
+            Some(comparison::compare(&c.path, &old, "this run", &new))
+        }
+        None => None,
+    };
 
     Ok(Outcome {
         plan: plan.clone(),
@@ -336,6 +349,7 @@ pub fn run(plan: &Plan) -> Result<Outcome, RunError> {
         validation,
         tree,
         centres: candidates[at].centres.clone(),
+        comparison,
     })
 }
 

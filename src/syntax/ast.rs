@@ -192,6 +192,9 @@ pub enum StatementKind {
         path: Spanned<String>,
         options: Vec<OptionPair>,
     },
+    Compare {
+        path: Spanned<String>,
+    },
     /// A line whose first word is no statement word.
     Unknown {
         word: Spanned<String>,

@@ -210,6 +210,10 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
             path: text_of(&rest[1], off),
             options: options_of(&rest[2..], off),
         },
+        Rule::compare_stmt => StatementKind::Compare {
+            // rest[0] is the fixed word `with`.
+            path: text_of(&rest[1], off),
+        },
         _ => StatementKind::Unknown {
             word: keyword.clone(),
         },
@@ -394,6 +398,7 @@ fn describe(rule: Rule) -> &'static str {
         Rule::by_criterion | Rule::kw_by => "`by`",
         Rule::kw_k => "`k`",
         Rule::kw_against => "`against`",
+        Rule::kw_with => "`with`",
         _ => "a statement word",
     }
 }

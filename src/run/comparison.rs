@@ -1,0 +1,120 @@
+//! Comparing two segmentations of (mostly) the same records: this quarter's
+//! with last quarter's, or a rerun with the original. Joined on the key.
+
+use super::error::RunError;
+use super::Assignment;
+use crate::engine::compare::{adjusted_rand_index, Migration};
+use std::collections::HashMap;
+
+/// One record of an assignments file: key, segment, label.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Assigned {
+    pub key: String,
+    pub segment: String,
+    pub label: String,
+}
+
+/// Two segmentations side by side.
+#[derive(Debug, Clone)]
+pub struct Comparison {
+    pub old_name: String,
+    pub new_name: String,
+    pub both: usize,
+    pub only_old: usize,
+    pub only_new: usize,
+    /// Adjusted Rand index over the records in both (Hubert and Arabie 1985).
+    pub adjusted_rand_index: f64,
+    /// Old segments by new segments.
+    pub migration: Migration,
+    /// For each old segment, its best new match and their Jaccard.
+    pub best: Vec<(usize, f64)>,
+    /// Labels by segment, as each file gives them.
+    pub old_labels: HashMap<String, String>,
+    pub new_labels: HashMap<String, String>,
+}
+
+/// Reads an assignments file (as `assort run` or `assort assign` write):
+/// the first column is the key, and a `segment` column must exist.
+pub fn read_assignments(path: &std::path::Path, shown: &str) -> Result<Vec<Assigned>, RunError> {
+    let mut reader = csv::Reader::from_path(path).map_err(|e| RunError::Unreadable {
+        file: shown.to_string(),
+        reason: e.to_string(),
+    })?;
+    let malformed = |e: csv::Error| RunError::Malformed {
+        file: shown.to_string(),
+        line: e.position().map_or(1, |p| p.line()),
+        reason: e.to_string(),
+    };
+    let header = reader.headers().map_err(malformed)?.clone();
+    let seg = header
+        .iter()
+        .position(|h| h.trim() == "segment")
+        .ok_or_else(|| RunError::NotAssignments {
+            file: shown.to_string(),
+        })?;
+    let label = header.iter().position(|h| h.trim() == "label");
+    let mut out = Vec::new();
+    let mut record = csv::StringRecord::new();
+    while reader.read_record(&mut record).map_err(malformed)? {
+        out.push(Assigned {
+            key: record.get(0).unwrap_or("").trim().to_string(),
+            segment: record.get(seg).unwrap_or("").trim().to_string(),
+            label: label
+                .and_then(|l| record.get(l))
+                .unwrap_or("")
+                .trim()
+                .to_string(),
+        });
+    }
+    Ok(out)
+}
+
+/// A run's assignments in the same shape.
+pub fn from_run(assignments: &[Assignment], label: impl Fn(usize) -> String) -> Vec<Assigned> {
+    assignments
+        .iter()
+        .map(|a| Assigned {
+            key: a.key.clone(),
+            segment: a.segment.to_string(),
+            label: label(a.segment),
+        })
+        .collect()
+}
+
+/// Joins two segmentations on the key and compares them.
+pub fn compare(old_name: &str, old: &[Assigned], new_name: &str, new: &[Assigned]) -> Comparison {
+    let new_by_key: HashMap<&str, &Assigned> = new.iter().map(|a| (a.key.as_str(), a)).collect();
+    let mut a = Vec::new();
+    let mut b = Vec::new();
+    for o in old {
+        if let Some(n) = new_by_key.get(o.key.as_str()) {
+            a.push(o.segment.as_str());
+            b.push(n.segment.as_str());
+        }
+    }
+    let both = a.len();
+    let old_keys: std::collections::HashSet<&str> = old.iter().map(|o| o.key.as_str()).collect();
+    let only_new = new
+        .iter()
+        .filter(|n| !old_keys.contains(n.key.as_str()))
+        .count();
+    let migration = Migration::new(&a, &b);
+    let labels = |v: &[Assigned]| {
+        v.iter()
+            .filter(|x| !x.label.is_empty())
+            .map(|x| (x.segment.clone(), x.label.clone()))
+            .collect()
+    };
+    Comparison {
+        old_name: old_name.to_string(),
+        new_name: new_name.to_string(),
+        both,
+        only_old: old.len() - both,
+        only_new,
+        adjusted_rand_index: adjusted_rand_index(&a, &b),
+        best: migration.best_matches(),
+        migration,
+        old_labels: labels(old),
+        new_labels: labels(new),
+    }
+}
