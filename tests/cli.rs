@@ -1108,3 +1108,35 @@ fn comparing_a_file_without_segments_is_an_error() {
         .fails()
         .stderr_has("`a.csv` is not an assignments file: it has no `segment` column");
 }
+
+// ------------------------------------------------------ personal data --
+
+#[test]
+fn an_acknowledged_column_is_not_warned_about_again() {
+    let case = Case::empty();
+    case.write(
+        "p.csv",
+        "id,age_band,visits\n1,2,3.0\n2,3,1.0\n3,4,2.0\n4,1,5.0\n",
+    )
+    .write(
+        "r.assort",
+        "input \"p.csv\" key id\nfeatures visits, age_band\nkmeans k 2\n",
+    );
+    case.assort(&["check", "r.assort"], &[])
+        .ok()
+        .stderr_has("`age_band` looks like a protected attribute");
+    case.edit(
+        "r.assort",
+        "kmeans k 2",
+        "acknowledge age_band \"reviewed with the privacy office, ref 2026-114\"\nkmeans k 2",
+    );
+    let run = case.assort(&["check", "r.assort"], &[]).ok();
+    assert!(run.stderr().is_empty(), "{}", run.stderr());
+}
+
+#[test]
+fn the_demo_raises_no_personal_data_warning() {
+    let case = Case::demo();
+    let run = case.assort(&["check", DEMO], &[]).ok();
+    assert!(run.stderr().is_empty(), "{}", run.stderr());
+}

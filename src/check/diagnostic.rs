@@ -173,6 +173,30 @@ pub enum CheckError {
         first: Span,
     },
 
+    #[error("`{column}` looks like {kind} (`{word}`)")]
+    #[diagnostic(
+        code(assort::personal_data),
+        severity(Warning),
+        help("segmenting or targeting people on it may be unlawful or unfair; local law and your organisation's privacy practice decide. If its use has been reviewed and approved, say so in the recipe: `acknowledge {column} \"who approved it, and when\"`")
+    )]
+    PersonalData {
+        column: String,
+        kind: &'static str,
+        word: &'static str,
+        #[label("personal data?")]
+        span: Span,
+    },
+
+    #[error("`acknowledge` needs a reason")]
+    #[diagnostic(
+        code(assort::acknowledge_reason),
+        help("say who reviewed the column and when, so the next reader can check")
+    )]
+    EmptyReason {
+        #[label("empty")]
+        span: Span,
+    },
+
     #[error("the recipe names no method")]
     #[diagnostic(
         code(assort::no_method),

@@ -6,6 +6,7 @@
 //! names and kinds, never the whole file. All problems are collected, not
 //! only the first.
 
+pub mod caution;
 pub mod diagnostic;
 pub mod paths;
 pub mod probe;
@@ -213,6 +214,7 @@ impl Checker {
         let input = self.input(find("input"));
         let categories = self.categories(stmts, input.as_ref());
         let features = self.features(find("features"), input.as_ref(), &categories);
+        self.cautions(stmts, features.as_deref(), categories.as_deref());
         let features = features.map(|f| self.feature_rules(stmts, f));
         let scale = match find("scale") {
             Some(Statement {
@@ -626,6 +628,48 @@ impl Checker {
             return None;
         }
         ok.then_some(out)
+    }
+
+    /// Warns about clustered columns whose names suggest personal data,
+    /// unless the recipe acknowledges them.
+    fn cautions(
+        &mut self,
+        stmts: &[Statement],
+        features: Option<&[(String, Span)]>,
+        categories: Option<&[CategoryPlan]>,
+    ) {
+        let mut acknowledged: Vec<&str> = Vec::new();
+        for s in stmts {
+            if let StatementKind::Acknowledge { columns, reason } = &s.kind {
+                if reason.node.trim().is_empty() {
+                    self.err(CheckError::EmptyReason { span: reason.span });
+                    continue;
+                }
+                acknowledged.extend(columns.iter().map(|c| c.node.as_str()));
+            }
+        }
+        let mut used: Vec<(String, Span)> = features.unwrap_or_default().to_vec();
+        for c in categories.unwrap_or_default() {
+            let span = self
+                .category_spans
+                .get(&c.column)
+                .copied()
+                .unwrap_or_default();
+            used.push((c.column.clone(), span));
+        }
+        for (column, span) in used {
+            if acknowledged.contains(&column.as_str()) {
+                continue;
+            }
+            if let Some((kind, word)) = caution::sensitive(&column) {
+                self.err(CheckError::PersonalData {
+                    column,
+                    kind: kind.describe(),
+                    word,
+                    span,
+                });
+            }
+        }
     }
 
     /// Applies `missing`, `reshape` and `weight` statements to the features.

@@ -85,6 +85,11 @@ pub const STATEMENTS: &[StatementDoc] = &[
         example: r#"save assignments "out/members.csv""#,
     },
     StatementDoc {
+        word: "acknowledge",
+        summary: "records that a column which looks like personal data was reviewed and its use approved",
+        example: r#"acknowledge loyalty_tier "approved by the privacy office, ref 2026-114""#,
+    },
+    StatementDoc {
         word: "compare",
         summary: "compares the segments with an earlier assignments file, joined on the key",
         example: r#"compare with "out/last_quarter.csv""#,

@@ -195,6 +195,10 @@ pub enum StatementKind {
     Compare {
         path: Spanned<String>,
     },
+    Acknowledge {
+        columns: Vec<Column>,
+        reason: Spanned<String>,
+    },
     /// A line whose first word is no statement word.
     Unknown {
         word: Spanned<String>,

@@ -210,6 +210,10 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
             path: text_of(&rest[1], off),
             options: options_of(&rest[2..], off),
         },
+        Rule::acknowledge_stmt => StatementKind::Acknowledge {
+            columns: columns_of(&rest[0], off),
+            reason: text_of(&rest[1], off),
+        },
         Rule::compare_stmt => StatementKind::Compare {
             // rest[0] is the fixed word `with`.
             path: text_of(&rest[1], off),
