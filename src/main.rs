@@ -46,6 +46,15 @@ enum Command {
         #[arg(long, value_name = "FILE")]
         out: Option<PathBuf>,
     },
+    /// Rewrite recipes in the canonical layout (comments kept).
+    Fmt {
+        /// Change nothing; list the files whose layout differs and exit 1.
+        #[arg(long)]
+        check: bool,
+        /// The recipe files.
+        #[arg(required = true)]
+        files: Vec<PathBuf>,
+    },
     /// Compare two assignments files joined on their key: who moved where,
     /// the adjusted Rand index, each old segment's best match.
     Compare {
@@ -111,6 +120,7 @@ fn main() -> ExitCode {
         }),
         Command::Verify(args) => with_plan(&args, verify),
         Command::Assign { model, data, out } => assign(&model, &data, out.as_deref()),
+        Command::Fmt { check, files } => fmt(check, &files),
         Command::Compare { old, new } => {
             let read = |p: &Path| run::comparison::read_assignments(p, &shown(p));
             match (read(&old), read(&new)) {
@@ -188,6 +198,55 @@ fn assign(model_path: &Path, data: &Path, out: Option<&Path>) -> ExitCode {
     }
     eprint!("{}", score_summary(&summary));
     ExitCode::SUCCESS
+}
+
+fn fmt(check_only: bool, files: &[PathBuf]) -> ExitCode {
+    let mut failed = false;
+    for path in files {
+        let source = match RecipeSource::read(path) {
+            Ok(s) => s,
+            Err(e) => {
+                eprintln!("error: cannot read recipe `{}`: {e}", path.display());
+                failed = true;
+                continue;
+            }
+        };
+        match assort::syntax::format::format(&source.text) {
+            Err(errors) => {
+                let problems: Vec<check::diagnostic::Problem> =
+                    errors.into_iter().map(Into::into).collect();
+                eprint!(
+                    "{}",
+                    diagnostic::render(&problems, &source.name(), &source.text, colour())
+                );
+                eprintln!("`{}` was not formatted: it does not parse", source.name());
+                failed = true;
+            }
+            Ok(formatted) if formatted == source.text => {}
+            Ok(_) if check_only => {
+                println!("would reformat {}", source.name());
+                failed = true;
+            }
+            Ok(formatted) => {
+                let file = Rendered {
+                    path: path.clone(),
+                    shown: source.name(),
+                    bytes: formatted.into_bytes(),
+                };
+                if let Err(e) = output::files::write_all(std::slice::from_ref(&file)) {
+                    eprint!("{}", diagnostic::render_bare(&e, colour()));
+                    failed = true;
+                } else {
+                    println!("formatted {}", source.name());
+                }
+            }
+        }
+    }
+    if failed {
+        ExitCode::FAILURE
+    } else {
+        ExitCode::SUCCESS
+    }
 }
 
 /// What scoring did, in plain words, one line per kind of event.

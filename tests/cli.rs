@@ -1140,3 +1140,35 @@ fn the_demo_raises_no_personal_data_warning() {
     let run = case.assort(&["check", DEMO], &[]).ok();
     assert!(run.stderr().is_empty(), "{}", run.stderr());
 }
+
+// ------------------------------------------------------------ formatter --
+
+#[test]
+fn fmt_rewrites_a_recipe_and_check_reports_it() {
+    let case = Case::empty();
+    case.write(
+        "r.assort",
+        "seed   7 # fixed\nfeatures a ,b,\n   c\n\n\n\nkmeans k 2\n",
+    );
+    case.assort(&["fmt", "--check", "r.assort"], &[])
+        .fails()
+        .stdout_has("would reformat r.assort");
+    case.assort(&["fmt", "r.assort"], &[])
+        .ok()
+        .stdout_has("formatted r.assort");
+    assert_eq!(
+        case.read("r.assort"),
+        "seed 7  # fixed\nfeatures a, b,\n         c\n\nkmeans k 2\n"
+    );
+    case.assort(&["fmt", "--check", "r.assort"], &[]).ok();
+}
+
+#[test]
+fn fmt_refuses_a_recipe_that_does_not_parse() {
+    let case = Case::empty();
+    case.write("r.assort", "seed abc\n");
+    case.assort(&["fmt", "r.assort"], &[])
+        .fails()
+        .stderr_has("was not formatted: it does not parse");
+    assert_eq!(case.read("r.assort"), "seed abc\n");
+}

@@ -7,6 +7,7 @@
 //! [`SyntaxError`] and the other statements still reach the checker.
 
 pub mod ast;
+pub mod format;
 
 use ast::*;
 use miette::Diagnostic;
@@ -37,21 +38,14 @@ pub struct SyntaxError {
 /// entries in [`Recipe::errors`].
 pub fn parse(src: &str) -> Recipe {
     let mut recipe = Recipe::default();
-    let lines = match RecipeParser::parse(Rule::recipe_lines, src) {
-        Ok(mut pairs) => pairs.next().map(|p| p.into_inner()),
-        Err(err) => {
-            // The line splitter accepts any text; this is a grammar bug, and
-            // it is still reported rather than panicking.
-            recipe.errors.push(syntax_error(src, 0, &err));
-            None
+    let lines = match logical_lines(src) {
+        Ok(lines) => lines,
+        Err(e) => {
+            recipe.errors.push(e);
+            Vec::new()
         }
     };
-    for line in lines.into_iter().flatten() {
-        if line.as_rule() != Rule::logical_line {
-            continue;
-        }
-        let text = line.as_str();
-        let offset = line.as_span().start();
+    for (offset, text) in lines {
         if is_blank(text) {
             continue;
         }
@@ -66,6 +60,25 @@ pub fn parse(src: &str) -> Recipe {
         }
     }
     recipe
+}
+
+/// The recipe cut into logical lines (a statement, possibly continued
+/// after commas, or a blank or comment line), each with its byte offset.
+pub fn logical_lines(src: &str) -> Result<Vec<(usize, &str)>, SyntaxError> {
+    match RecipeParser::parse(Rule::recipe_lines, src) {
+        Ok(mut pairs) => Ok(pairs
+            .next()
+            .map(|p| {
+                p.into_inner()
+                    .filter(|l| l.as_rule() == Rule::logical_line)
+                    .map(|l| (l.as_span().start(), l.as_str()))
+                    .collect()
+            })
+            .unwrap_or_default()),
+        // The line splitter accepts any text; failing is a grammar bug, and
+        // it is still reported rather than panicking.
+        Err(err) => Err(syntax_error(src, 0, &err)),
+    }
 }
 
 /// A line holding only blanks and a comment.
