@@ -19,5 +19,7 @@ pub mod check;
 pub mod engine;
 pub mod output;
 pub mod plan;
+pub mod repl;
 pub mod run;
+pub mod session;
 pub mod syntax;

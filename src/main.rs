@@ -46,6 +46,16 @@ enum Command {
         #[arg(long, value_name = "FILE")]
         out: Option<PathBuf>,
     },
+    /// An interactive session: enter statements one by one, each checked
+    /// at once; run, look, change, and save the result as a recipe.
+    Repl {
+        /// The recipe to start from, or to save to (`session.assort` unless
+        /// given).
+        recipe: Option<PathBuf>,
+        /// A folder outside the recipe's own that it may read and write.
+        #[arg(long = "allow-dir", value_name = "FOLDER")]
+        allow_dirs: Vec<PathBuf>,
+    },
     /// Rewrite recipes in the canonical layout (comments kept).
     Fmt {
         /// Change nothing; list the files whose layout differs and exit 1.
@@ -121,6 +131,10 @@ fn main() -> ExitCode {
         Command::Verify(args) => with_plan(&args, verify),
         Command::Assign { model, data, out } => assign(&model, &data, out.as_deref()),
         Command::Fmt { check, files } => fmt(check, &files),
+        Command::Repl { recipe, allow_dirs } => {
+            let code = assort::repl::run(recipe.as_deref(), CheckOptions { allow_dirs });
+            ExitCode::from(u8::try_from(code).unwrap_or(1))
+        }
         Command::Compare { old, new } => {
             let read = |p: &Path| run::comparison::read_assignments(p, &shown(p));
             match (read(&old), read(&new)) {

@@ -1172,3 +1172,101 @@ fn fmt_refuses_a_recipe_that_does_not_parse() {
         .stderr_has("was not formatted: it does not parse");
     assert_eq!(case.read("r.assort"), "seed abc\n");
 }
+
+// ------------------------------------------------------------ session --
+
+impl Case {
+    /// Runs `assort` with `input` piped to standard input.
+    fn assort_piped(&self, args: &[&str], input: &str) -> Run {
+        use std::io::Write;
+        let mut child = Command::new(env!("CARGO_BIN_EXE_assort"))
+            .args(args)
+            .current_dir(self.dir.path())
+            .env("NO_COLOR", "1")
+            .stdin(std::process::Stdio::piped())
+            .stdout(std::process::Stdio::piped())
+            .stderr(std::process::Stdio::piped())
+            .spawn()
+            .unwrap();
+        child
+            .stdin
+            .take()
+            .unwrap()
+            .write_all(input.as_bytes())
+            .unwrap();
+        Run(child.wait_with_output().unwrap())
+    }
+}
+
+#[test]
+fn a_piped_session_builds_runs_varies_and_saves_a_recipe() {
+    let case = Case::demo();
+    let script = "input \"data/coop_members.csv\" key member_id\n\
+                  features tenure_months, visits_per_month, basket_value,\n\
+                  \x20        share_fresh, share_bulk, share_prepared\n\
+                  missing fill median\n\
+                  reshape basket_value log1p\n\
+                  kmeans k 2..5 restarts 5\n\
+                  :run\n\
+                  kmeans k 4 restarts 5\n\
+                  scale robust\n\
+                  weight share_fresh 2\n\
+                  features vists_per_month\n\
+                  :undo\n\
+                  :run\n\
+                  :again sweep\n\
+                  :save tried.assort\n\
+                  :quit\n";
+    let run = case.assort_piped(&["repl", "tried.assort"], script).ok();
+    let out = run.stdout();
+    assert!(out.contains("k-means sweep: 5 restarts per k"), "{out}");
+    assert!(out.contains("replaced the earlier `kmeans`"), "{out}");
+    assert!(out.contains("did you mean `visits_per_month`?"), "{out}");
+    assert!(
+        out.contains("not kept: the `features` statement has an error"),
+        "{out}"
+    );
+    assert!(out.contains("removed `weight share_fresh 2`"), "{out}");
+    assert!(out.contains("saved tried.assort"), "{out}");
+    // The last run's table, as the session showed it.
+    let session_sweep = out
+        .split("chosen: ")
+        .nth(2)
+        .and_then(|s| s.lines().next())
+        .unwrap()
+        .to_string();
+
+    // The saved recipe checks cleanly, is formatted, and runs to the same
+    // results the session showed.
+    let saved = case.read("tried.assort");
+    assert_eq!(assort::syntax::format::format(&saved).unwrap(), saved);
+    assert!(
+        saved.contains("kmeans k 4 restarts 5")
+            && saved.contains("scale robust")
+            && !saved.contains("weight"),
+        "{saved}"
+    );
+    let check = case.assort(&["check", "tried.assort"], &[]).ok();
+    assert!(check.stderr().is_empty(), "{}", check.stderr());
+    let rerun = case.run("tried.assort").ok().stdout();
+    assert!(
+        rerun.contains(&format!("chosen: {session_sweep}")),
+        "session: {session_sweep}\nrerun:\n{rerun}"
+    );
+}
+
+#[test]
+fn a_session_explains_unknown_commands_and_helps() {
+    let case = Case::empty();
+    let out = case
+        .assort_piped(&["repl"], ":rnu\n:help kmeans\n:again\n:quit\n")
+        .ok()
+        .stdout();
+    assert!(
+        out.contains("unknown command `:rnu`; did you mean `:run`?"),
+        "{out}"
+    );
+    assert!(out.contains("kmeans: the method"), "{out}");
+    assert!(out.contains("restarts"), "{out}");
+    assert!(out.contains("nothing to show: `:run` first"), "{out}");
+}

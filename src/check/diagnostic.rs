@@ -20,6 +20,15 @@ pub enum Problem {
 }
 
 impl Problem {
+    /// A problem of the recipe as a whole (a statement it lacks), rather
+    /// than of one statement: expected while a recipe is being built.
+    pub fn is_incomplete(&self) -> bool {
+        matches!(
+            self,
+            Problem::Check(CheckError::MissingStatement { .. } | CheckError::NoMethod { .. })
+        )
+    }
+
     pub fn is_error(&self) -> bool {
         !matches!(
             self.severity(),

@@ -7,6 +7,7 @@
 //! only the first.
 
 pub mod caution;
+pub mod complete;
 pub mod diagnostic;
 pub mod paths;
 pub mod probe;
@@ -78,6 +79,8 @@ impl RecipeSource {
 pub struct Checked {
     pub plan: Option<Plan>,
     pub problems: Vec<Problem>,
+    /// The input's column names, when its header could be read.
+    pub columns: Vec<String>,
 }
 
 impl Checked {
@@ -127,7 +130,28 @@ pub fn check_with(source: &RecipeSource, options: &CheckOptions) -> Checked {
     Checked {
         plan: if errors { None } else { plan },
         problems: cx.problems,
+        columns: cx
+            .probe
+            .as_ref()
+            .map(|p| p.names().map(String::from).collect())
+            .unwrap_or_default(),
     }
+}
+
+/// The statements of a recipe's text, one string each (continued lists
+/// kept whole); blank and comment-only lines left out.
+pub fn statements_of(text: &str) -> Vec<String> {
+    syntax::logical_lines(text)
+        .unwrap_or_default()
+        .into_iter()
+        .map(|(_, t)| t.trim().to_string())
+        .filter(|t| !t.is_empty() && !t.starts_with('#'))
+        .collect()
+}
+
+/// Whether a statement word may appear only once in a recipe.
+pub fn single_statement(word: &str) -> bool {
+    SINGLE.contains(&word)
 }
 
 /// Gives a syntax error the example of its statement as help.

@@ -1,19 +1,32 @@
 //! "Did you mean": the nearest name in scope, by edit distance.
 
-/// Levenshtein distance over characters. O(|a| |b|) time, O(|b|) memory.
+/// Edit distance over characters counting insertions, deletions,
+/// substitutions and transpositions of neighbours as one edit each (the
+/// optimal string alignment distance; F. J. Damerau, "A technique for
+/// computer detection and correction of spelling errors", CACM 7(3), 1964).
+/// O(|a| |b|) time and memory.
 pub fn edit_distance(a: &str, b: &str) -> usize {
+    let a: Vec<char> = a.chars().collect();
     let b: Vec<char> = b.chars().collect();
-    let mut prev: Vec<usize> = (0..=b.len()).collect();
-    let mut cur = vec![0; b.len() + 1];
-    for (i, ca) in a.chars().enumerate() {
-        cur[0] = i + 1;
-        for (j, cb) in b.iter().enumerate() {
-            let cost = usize::from(ca != *cb);
-            cur[j + 1] = (prev[j] + cost).min(prev[j + 1] + 1).min(cur[j] + 1);
-        }
-        std::mem::swap(&mut prev, &mut cur);
+    let mut d = vec![vec![0usize; b.len() + 1]; a.len() + 1];
+    for (i, row) in d.iter_mut().enumerate() {
+        row[0] = i;
     }
-    prev[b.len()]
+    for (j, cell) in d[0].iter_mut().enumerate() {
+        *cell = j;
+    }
+    for i in 1..=a.len() {
+        for j in 1..=b.len() {
+            let cost = usize::from(a[i - 1] != b[j - 1]);
+            d[i][j] = (d[i - 1][j] + 1)
+                .min(d[i][j - 1] + 1)
+                .min(d[i - 1][j - 1] + cost);
+            if i > 1 && j > 1 && a[i - 1] == b[j - 2] && a[i - 2] == b[j - 1] {
+                d[i][j] = d[i][j].min(d[i - 2][j - 2] + 1);
+            }
+        }
+    }
+    d[a.len()][b.len()]
 }
 
 /// The candidate nearest to `word`, if it is close enough to be a likely
@@ -57,5 +70,6 @@ mod tests {
     fn edit_distance_counts_insertions_deletions_and_substitutions() {
         assert_eq!(edit_distance("kitten", "sitting"), 3);
         assert_eq!(edit_distance("", "abc"), 3);
+        assert_eq!(edit_distance("rnu", "run"), 1);
     }
 }

@@ -223,6 +223,19 @@ pub const SAVE_WHAT: [&str; 6] = [
 /// Fill words `missing fill` takes besides a number.
 pub const FILL_WORDS: [&str; 2] = ["median", "mean"];
 
+/// The options a statement takes (none for statements without options).
+pub fn options_for(word: &str) -> &'static [OptionDoc] {
+    match word {
+        "input" => INPUT_OPTIONS,
+        "categories" => CATEGORIES_OPTIONS,
+        "kmeans" => KMEANS_OPTIONS,
+        "tree" => TREE_OPTIONS,
+        "evidence" => EVIDENCE_OPTIONS,
+        "validate" => VALIDATE_OPTIONS,
+        _ => &[],
+    }
+}
+
 pub fn names(options: &[OptionDoc]) -> impl Iterator<Item = &'static str> + '_ {
     options.iter().map(|o| o.name)
 }

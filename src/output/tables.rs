@@ -149,6 +149,20 @@ fn serde_plain<T: serde::Serialize>(v: &T) -> String {
         .unwrap_or_default()
 }
 
+/// The sweep section alone.
+pub fn sweep_report(o: &Outcome) -> String {
+    let mut s = String::new();
+    sweep(&mut s, o);
+    s
+}
+
+/// The profiles section alone.
+pub fn profiles_report(o: &Outcome) -> String {
+    let mut s = String::new();
+    profiles(&mut s, o);
+    s
+}
+
 fn sweep(s: &mut String, o: &Outcome) {
     match (&o.plan.method, &o.tree) {
         (MethodPlan::KMeans(km), _) => {

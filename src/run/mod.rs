@@ -159,19 +159,65 @@ pub struct Outcome {
 
 /// Runs a plan.
 pub fn run(plan: &Plan) -> Result<Outcome, RunError> {
-    let numeric: Vec<String> = plan.features.iter().map(|f| f.column.clone()).collect();
-    let text: Vec<String> = plan.categories.iter().map(|c| c.column.clone()).collect();
-    let table = load::load(
-        &plan.input.resolved,
-        &plan.input.path,
-        plan.input.separator,
-        &load::Columns {
-            key: &plan.input.key,
-            numeric: &numeric,
-            text: &text,
-        },
-    )?;
-    let prepared = prepare::prepare(plan, &table)?;
+    run_cached(plan, &mut DataCache::default())
+}
+
+/// The last data read, kept so that a session trying variations (another
+/// k, another scaling) does not read the file again. The file's size and
+/// modification time are part of the key, so an edited file is read anew.
+#[derive(Debug, Default)]
+pub struct DataCache {
+    entry: Option<(CacheKey, load::Table)>,
+    /// How many times a file was actually read.
+    pub loads: usize,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+struct CacheKey {
+    path: std::path::PathBuf,
+    separator: char,
+    key: String,
+    numeric: Vec<String>,
+    text: Vec<String>,
+    len: u64,
+    modified: Option<std::time::SystemTime>,
+}
+
+impl DataCache {
+    fn table(&mut self, plan: &Plan) -> Result<&load::Table, RunError> {
+        let meta = std::fs::metadata(&plan.input.resolved).ok();
+        let key = CacheKey {
+            path: plan.input.resolved.clone(),
+            separator: plan.input.separator,
+            key: plan.input.key.clone(),
+            numeric: plan.features.iter().map(|f| f.column.clone()).collect(),
+            text: plan.categories.iter().map(|c| c.column.clone()).collect(),
+            len: meta.as_ref().map_or(0, |m| m.len()),
+            modified: meta.and_then(|m| m.modified().ok()),
+        };
+        if self.entry.as_ref().is_none_or(|(k, _)| *k != key) {
+            let table = load::load(
+                &plan.input.resolved,
+                &plan.input.path,
+                plan.input.separator,
+                &load::Columns {
+                    key: &key.key,
+                    numeric: &key.numeric,
+                    text: &key.text,
+                },
+            )?;
+            self.loads += 1;
+            self.entry = Some((key, table));
+        }
+        // Filled just above when it was empty or stale.
+        Ok(&self.entry.as_ref().expect("the cache was filled above").1)
+    }
+}
+
+/// Runs a plan, reading the data through `cache`.
+pub fn run_cached(plan: &Plan, cache: &mut DataCache) -> Result<Outcome, RunError> {
+    let table = cache.table(plan)?;
+    let prepared = prepare::prepare(plan, table)?;
     let n = prepared.kept.len();
     let most = plan.ks().last().copied().unwrap_or(0);
     let needed = match &plan.method {

@@ -1,0 +1,265 @@
+//! The interactive session (`assort repl`): a thin front end over
+//! [`crate::session`]. Statements are checked as they are entered; commands
+//! start with `:`. With a terminal it edits lines (rustyline: completion,
+//! hints, history); piped, it reads lines as they come, so it can be
+//! scripted and tested.
+
+use crate::check::{complete, vocab, CheckOptions};
+use crate::session::{help, Entered, Session};
+use rustyline::completion::Completer;
+use rustyline::highlight::Highlighter;
+use rustyline::hint::Hinter;
+use rustyline::validate::Validator;
+use rustyline::{Context, Helper};
+use std::io::{BufRead, IsTerminal, Write};
+use std::path::{Path, PathBuf};
+
+/// Session commands with a line of help each.
+pub const COMMANDS: &[(&str, &str)] = &[
+    (":recipe", "show the recipe as it stands, formatted"),
+    (":check", "show every problem of the recipe as it stands"),
+    (":plan", "show the checked plan (JSON)"),
+    (":run", "run the recipe and show the sweep and profiles"),
+    (
+        ":again",
+        "show a table of the last run again: `:again sweep`, `profiles` or `comparison`",
+    ),
+    (":undo", "take back the last statement entered"),
+    (
+        ":save",
+        "save the recipe, formatted: `:save` (to the file opened) or `:save FILE`",
+    ),
+    (":open", "start over from a recipe file: `:open FILE`"),
+    (":help", "list statements, or explain one: `:help kmeans`"),
+    (":quit", "leave"),
+];
+
+/// Runs a session over `recipe` (opened when it exists); returns the exit
+/// code: 0, or 1 when the input ended inside a statement.
+pub fn run(recipe: Option<&Path>, options: CheckOptions) -> i32 {
+    let path = recipe
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| PathBuf::from("session.assort"));
+    let mut session = if path.exists() {
+        match Session::open(&path, options.clone()) {
+            Ok(s) => s,
+            Err(e) => {
+                eprintln!("error: cannot read recipe `{}`: {e}", path.display());
+                return 1;
+            }
+        }
+    } else {
+        Session::new(&path, options.clone())
+    };
+    let colour = std::io::stdout().is_terminal() && std::env::var_os("NO_COLOR").is_none();
+    if std::io::stdin().is_terminal() {
+        interactive(&mut session, &path, colour, &options)
+    } else {
+        piped(&mut session, &path, colour, &options)
+    }
+}
+
+/// Reads statements (continued after a trailing comma) and commands from
+/// standard input.
+fn piped(session: &mut Session, path: &Path, colour: bool, options: &CheckOptions) -> i32 {
+    let stdin = std::io::stdin();
+    let mut pending = String::new();
+    let mut path = path.to_path_buf();
+    for line in stdin.lock().lines() {
+        let Ok(line) = line else { break };
+        if let Some(done) = gather(&mut pending, &line) {
+            if !handle(session, &mut path, &done, colour, options) {
+                return 0;
+            }
+        }
+    }
+    i32::from(!pending.trim().is_empty())
+}
+
+fn interactive(session: &mut Session, path: &Path, colour: bool, options: &CheckOptions) -> i32 {
+    let mut editor = match rustyline::Editor::<Assist, rustyline::history::DefaultHistory>::new() {
+        Ok(e) => e,
+        Err(_) => return piped(session, path, colour, options),
+    };
+    editor.set_helper(Some(Assist {
+        columns: session.check().columns,
+    }));
+    let history = std::env::var_os("HOME").map(|h| PathBuf::from(h).join(".assort_history"));
+    if let Some(h) = &history {
+        let _ = editor.load_history(h);
+    }
+    println!(
+        "assort session on `{}`: enter statements, or `:help`",
+        path.display()
+    );
+    let mut pending = String::new();
+    let mut path = path.to_path_buf();
+    loop {
+        let prompt = if pending.is_empty() {
+            "assort> "
+        } else {
+            "    ... "
+        };
+        let Ok(line) = editor.readline(prompt) else {
+            break;
+        };
+        let _ = editor.add_history_entry(line.as_str());
+        if let Some(done) = gather(&mut pending, &line) {
+            if !handle(session, &mut path, &done, colour, options) {
+                break;
+            }
+            if let Some(h) = editor.helper_mut() {
+                h.columns = session.check().columns;
+            }
+        }
+    }
+    if let Some(h) = &history {
+        let _ = editor.save_history(h);
+    }
+    0
+}
+
+/// Adds a line to a statement being gathered; returns the whole statement
+/// once it does not end in a comma (a comment after the comma counts as the
+/// line's end).
+fn gather(pending: &mut String, line: &str) -> Option<String> {
+    if !pending.is_empty() {
+        pending.push('\n');
+    }
+    pending.push_str(line);
+    let code = line.split('#').next().unwrap_or("").trim_end();
+    if code.ends_with(',') && !line.trim_start().starts_with(':') {
+        return None;
+    }
+    Some(std::mem::take(pending))
+}
+
+/// Handles one statement or command; `false` to leave.
+fn handle(
+    session: &mut Session,
+    path: &mut PathBuf,
+    input: &str,
+    colour: bool,
+    options: &CheckOptions,
+) -> bool {
+    let trimmed = input.trim();
+    let out = &mut std::io::stdout();
+    if let Some(command) = trimmed.strip_prefix(':') {
+        let mut words = command.split_whitespace();
+        let name = words.next().unwrap_or("");
+        let arg = words.next();
+        let text = match name {
+            "quit" | "q" => return false,
+            "recipe" => session.formatted(),
+            "check" => {
+                let p = session.problems(colour);
+                if p.is_empty() {
+                    "no problems\n".into()
+                } else {
+                    p
+                }
+            }
+            "plan" => match session.check().plan {
+                Some(plan) => serde_json::to_string_pretty(&plan).unwrap_or_default() + "\n",
+                None => session.problems(colour),
+            },
+            "run" => session.run(colour).unwrap_or_else(|e| e),
+            "again" => session
+                .table(arg.unwrap_or("sweep"))
+                .unwrap_or_else(|| "nothing to show: `:run` first, then `:again sweep`, `profiles` or `comparison`\n".into()),
+            "undo" => session.undo().map(|u| u + "\n").unwrap_or_else(|| "nothing to undo\n".into()),
+            "save" => {
+                let target = arg.map(PathBuf::from).unwrap_or_else(|| path.clone());
+                match session.save(&target) {
+                    Ok(()) => format!("saved {}\n", target.display()),
+                    Err(e) => format!("not saved: {e}\n"),
+                }
+            }
+            "open" => match arg {
+                Some(p) => match Session::open(Path::new(p), options.clone()) {
+                    Ok(s) => {
+                        *session = s;
+                        *path = PathBuf::from(p);
+                        format!("opened {p}\n")
+                    }
+                    Err(e) => format!("cannot open `{p}`: {e}\n"),
+                },
+                None => "`:open FILE`\n".into(),
+            },
+            "help" => match arg {
+                Some(w) => help(Some(w)),
+                None => {
+                    let mut s = help(None);
+                    s.push_str("commands:\n");
+                    for (c, h) in COMMANDS {
+                        s.push_str(&format!("  {c:<12} {h}\n"));
+                    }
+                    s
+                }
+            },
+            other => {
+                let names: Vec<&str> = COMMANDS.iter().map(|(c, _)| &c[1..]).collect();
+                match crate::check::suggest::nearest(other, names) {
+                    Some(s) => format!("unknown command `:{other}`; did you mean `:{s}`?\n"),
+                    None => format!("unknown command `:{other}`; `:help` lists them\n"),
+                }
+            }
+        };
+        let _ = write!(out, "{text}");
+        return true;
+    }
+    let (what, problems) = session.enter(trimmed, colour);
+    let _ = write!(out, "{problems}");
+    let word = trimmed.split_whitespace().next().unwrap_or("");
+    let note = match what {
+        Entered::Added | Entered::Nothing => None,
+        Entered::Replaced(w) => Some(format!("replaced the earlier `{w}`")),
+        Entered::Rejected => Some(format!("not kept: the `{word}` statement has an error")),
+    };
+    if let Some(n) = note {
+        let _ = writeln!(out, "{n}");
+    }
+    true
+}
+
+/// Completion and hints for the line editor.
+struct Assist {
+    columns: Vec<String>,
+}
+
+impl Completer for Assist {
+    type Candidate = String;
+
+    fn complete(
+        &self,
+        line: &str,
+        pos: usize,
+        _: &Context<'_>,
+    ) -> rustyline::Result<(usize, Vec<String>)> {
+        let before = &line[..pos];
+        let start = before
+            .rfind(|c: char| c.is_whitespace() || c == ',')
+            .map_or(0, |i| i + 1);
+        Ok((start, complete::complete(before, &self.columns)))
+    }
+}
+
+impl Hinter for Assist {
+    type Hint = String;
+
+    /// After a statement word and a space, the statement's example.
+    fn hint(&self, line: &str, pos: usize, _: &Context<'_>) -> Option<String> {
+        let word = line.strip_suffix(' ')?;
+        if pos != line.len() || word.contains(' ') {
+            return None;
+        }
+        let doc = vocab::statement(word)?;
+        doc.example
+            .strip_prefix(word)
+            .map(|rest| rest.trim_start().to_string())
+    }
+}
+
+impl Highlighter for Assist {}
+impl Validator for Assist {}
+impl Helper for Assist {}

@@ -1,0 +1,257 @@
+//! A recipe under construction: the one session API the interactive
+//! session and the language server are thin front ends over. It reaches
+//! the language only through the checker and the data only through the
+//! interpreter.
+//!
+//! Entering a statement checks the whole recipe with the same checker as
+//! `assort check`. A statement that may appear once (`kmeans`, `scale`...)
+//! replaces the one before, so trying a variation is one line; others are
+//! added. A statement with an error in it is not kept. Runs reuse the data
+//! already read while the file and the columns asked for are unchanged, so
+//! changing k does not read the file again.
+
+use crate::check::{self, diagnostic, vocab, CheckOptions, Checked, RecipeSource};
+use crate::output::tables;
+use crate::run::{self, DataCache, Outcome};
+use crate::syntax::ast::Span;
+use miette::Diagnostic;
+use std::path::{Path, PathBuf};
+
+/// The session: statements in recipe order, and what a run left.
+pub struct Session {
+    /// Where the recipe lives; paths in it are relative to its folder.
+    path: PathBuf,
+    statements: Vec<String>,
+    undo: Vec<Undo>,
+    cache: DataCache,
+    options: CheckOptions,
+    last: Option<Outcome>,
+}
+
+enum Undo {
+    Added(usize),
+    Replaced { at: usize, old: String },
+}
+
+/// What entering a statement did.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Entered {
+    Added,
+    /// It replaced an earlier statement of the same kind.
+    Replaced(String),
+    /// It had an error and was not kept.
+    Rejected,
+    /// A blank or comment line: nothing to do.
+    Nothing,
+}
+
+impl Session {
+    /// An empty session for a recipe that will live at `path`.
+    pub fn new(path: &Path, options: CheckOptions) -> Session {
+        Session {
+            path: path.to_path_buf(),
+            statements: Vec::new(),
+            undo: Vec::new(),
+            cache: DataCache::default(),
+            options,
+            last: None,
+        }
+    }
+
+    /// A session holding a recipe file's statements.
+    pub fn open(path: &Path, options: CheckOptions) -> std::io::Result<Session> {
+        let source = RecipeSource::read(path)?;
+        let mut s = Session::new(path, options);
+        s.statements = check::statements_of(&source.text);
+        Ok(s)
+    }
+
+    /// The recipe as text, one statement per line.
+    pub fn text(&self) -> String {
+        let mut t = self.statements.join("\n");
+        t.push('\n');
+        t
+    }
+
+    fn source(&self) -> RecipeSource {
+        RecipeSource {
+            path: self.path.clone(),
+            text: self.text(),
+        }
+    }
+
+    /// Checks the recipe as it stands.
+    pub fn check(&self) -> Checked {
+        check::check_with(&self.source(), &self.options)
+    }
+
+    /// Problems of the whole recipe, rendered.
+    pub fn problems(&self, colour: bool) -> String {
+        let source = self.source();
+        diagnostic::render(&self.check().problems, &source.name(), &source.text, colour)
+    }
+
+    /// Enters a statement; returns what happened and the problems found in
+    /// that statement, rendered (empty when there are none).
+    pub fn enter(&mut self, statement: &str, colour: bool) -> (Entered, String) {
+        let statement = statement.trim();
+        if statement.is_empty() || statement.starts_with('#') {
+            return (Entered::Nothing, String::new());
+        }
+        let word = statement.split_whitespace().next().unwrap_or("");
+        let existing = if check::single_statement(word) {
+            self.statements
+                .iter()
+                .position(|s| s.split_whitespace().next() == Some(word))
+        } else {
+            None
+        };
+        let at = match existing {
+            Some(i) => {
+                let old = std::mem::replace(&mut self.statements[i], statement.to_string());
+                self.undo.push(Undo::Replaced { at: i, old });
+                i
+            }
+            None => {
+                self.statements.push(statement.to_string());
+                self.undo.push(Undo::Added(self.statements.len() - 1));
+                self.statements.len() - 1
+            }
+        };
+        let source = self.source();
+        let range = self.range_of(at);
+        let checked = check::check_with(&source, &self.options);
+        let mine: Vec<diagnostic::Problem> = checked
+            .problems
+            .into_iter()
+            .filter(|p| !p.is_incomplete() && touches(p, range))
+            .collect();
+        let rendered = diagnostic::render(&mine, &source.name(), &source.text, colour);
+        if mine.iter().any(diagnostic::Problem::is_error) {
+            self.undo();
+            return (Entered::Rejected, rendered);
+        }
+        let what = match existing {
+            Some(_) => Entered::Replaced(word.to_string()),
+            None => Entered::Added,
+        };
+        (what, rendered)
+    }
+
+    /// The byte range of statement `i` in [`Session::text`].
+    fn range_of(&self, i: usize) -> Span {
+        let start: usize = self.statements[..i].iter().map(|s| s.len() + 1).sum();
+        Span::new(start, start + self.statements[i].len())
+    }
+
+    /// Takes back the last statement entered; says what was undone.
+    pub fn undo(&mut self) -> Option<String> {
+        match self.undo.pop()? {
+            Undo::Added(i) => Some(format!("removed `{}`", self.statements.remove(i))),
+            Undo::Replaced { at, old } => {
+                let new = std::mem::replace(&mut self.statements[at], old.clone());
+                Some(format!("put back `{old}` in place of `{new}`"))
+            }
+        }
+    }
+
+    /// Runs the recipe: the report, or the problems that stop it.
+    pub fn run(&mut self, colour: bool) -> Result<String, String> {
+        let checked = self.check();
+        let Some(plan) = checked
+            .plan
+            .filter(|_| !checked.problems.iter().any(diagnostic::Problem::is_error))
+        else {
+            return Err(self.problems(colour));
+        };
+        match run::run_cached(&plan, &mut self.cache) {
+            Ok(outcome) => {
+                let report = tables::report(&outcome);
+                self.last = Some(outcome);
+                Ok(report)
+            }
+            Err(e) => Err(diagnostic::render_bare(&e, colour)),
+        }
+    }
+
+    /// A table of the last run again: `sweep` or `profiles`.
+    pub fn table(&self, which: &str) -> Option<String> {
+        let o = self.last.as_ref()?;
+        match which {
+            "sweep" => Some(tables::sweep_report(o)),
+            "profiles" => Some(tables::profiles_report(o)),
+            "comparison" => o.comparison.as_ref().map(tables::comparison),
+            _ => None,
+        }
+    }
+
+    /// The last run's outcome.
+    pub fn last(&self) -> Option<&Outcome> {
+        self.last.as_ref()
+    }
+
+    /// How many times the session read a data file.
+    pub fn data_loads(&self) -> usize {
+        self.cache.loads
+    }
+
+    /// The recipe in canonical layout, as `save` writes it.
+    pub fn formatted(&self) -> String {
+        crate::syntax::format::format(&self.text()).unwrap_or_else(|_| self.text())
+    }
+
+    /// Saves the recipe, formatted, to `path`. Paths inside it stay
+    /// relative to the session's folder, so saving elsewhere is refused.
+    pub fn save(&self, path: &Path) -> Result<(), String> {
+        let folder =
+            |p: &Path| check::paths::Sandbox::real_path(p.parent().unwrap_or(Path::new(".")));
+        if folder(path) != folder(&self.path) {
+            return Err(format!(
+                "the recipe's paths are relative to `{}`; save it in that folder",
+                self.path.parent().unwrap_or(Path::new(".")).display()
+            ));
+        }
+        let file = crate::output::files::Rendered {
+            path: path.to_path_buf(),
+            shown: path.display().to_string(),
+            bytes: self.formatted().into_bytes(),
+        };
+        crate::output::files::write_all(std::slice::from_ref(&file)).map_err(|e| e.to_string())
+    }
+
+    /// Completions for the statement being typed, `before` being its text
+    /// up to the cursor.
+    pub fn complete(&self, before: &str) -> Vec<String> {
+        check::complete::complete(before, &self.check().columns)
+    }
+}
+
+/// Whether a problem points into `range`.
+fn touches(p: &diagnostic::Problem, range: Span) -> bool {
+    p.labels().into_iter().flatten().any(|l| {
+        let start = l.offset();
+        start >= range.start && start <= range.end
+    })
+}
+
+/// Help on a statement word, or the list of statements.
+pub fn help(word: Option<&str>) -> String {
+    let Some(word) = word else {
+        let mut s = String::from("statements:\n");
+        for d in vocab::STATEMENTS {
+            s.push_str(&format!("  {:<12} {}\n", d.word, d.summary));
+        }
+        return s;
+    };
+    let Some(doc) = vocab::statement(word) else {
+        return format!("no statement `{word}`; `:help` lists them\n");
+    };
+    let mut s = format!(
+        "{}: {}\n  for example: {}\n",
+        doc.word, doc.summary, doc.example
+    );
+    for o in vocab::options_for(word) {
+        s.push_str(&format!("  {:<10} {} ({})\n", o.name, o.summary, o.takes));
+    }
+    s
+}

@@ -1,0 +1,68 @@
+//! The session API the interactive session and the language server share.
+
+use assort::check::CheckOptions;
+use assort::session::{Entered, Session};
+use std::path::Path;
+
+fn demo_folder_session() -> Session {
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("recipes");
+    Session::new(&dir.join("not-saved.assort"), CheckOptions::default())
+}
+
+#[test]
+fn changing_k_does_not_read_the_data_again() {
+    let mut s = demo_folder_session();
+    for line in [
+        "input \"data/coop_members.csv\" key member_id",
+        "features visits_per_month, basket_value",
+        "missing fill median",
+        "kmeans k 3 restarts 2",
+    ] {
+        assert_eq!(s.enter(line, false).0, Entered::Added, "{line}");
+    }
+    s.run(false).unwrap();
+    assert_eq!(
+        s.enter("kmeans k 4 restarts 2", false).0,
+        Entered::Replaced("kmeans".into())
+    );
+    assert_eq!(s.enter("scale robust", false).0, Entered::Added);
+    s.run(false).unwrap();
+    assert_eq!(s.last().unwrap().chosen, 4);
+    assert_eq!(s.data_loads(), 1, "the file was read again");
+    // Asking for another column reads it again.
+    assert_eq!(
+        s.enter(
+            "features visits_per_month, basket_value, coupon_rate",
+            false
+        )
+        .0,
+        Entered::Replaced("features".into())
+    );
+    s.run(false).unwrap();
+    assert_eq!(s.data_loads(), 2);
+}
+
+#[test]
+fn a_statement_with_an_error_is_not_kept() {
+    let mut s = demo_folder_session();
+    s.enter("input \"data/coop_members.csv\" key member_id", false);
+    let (what, problems) = s.enter("features visits_per_mnth", false);
+    assert_eq!(what, Entered::Rejected);
+    assert!(
+        problems.contains("did you mean `visits_per_month`?"),
+        "{problems}"
+    );
+    assert!(!s.text().contains("visits_per_mnth"));
+}
+
+#[test]
+fn completion_knows_statements_options_and_columns() {
+    let mut s = demo_folder_session();
+    s.enter("input \"data/coop_members.csv\" key member_id", false);
+    assert_eq!(s.complete("kme"), ["kmeans"]);
+    assert_eq!(s.complete("kmeans k 3 see"), ["seeding"]);
+    assert_eq!(
+        s.complete("features visits_per_month, coup"),
+        ["coupon_rate"]
+    );
+}
