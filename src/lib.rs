@@ -17,6 +17,7 @@
 
 pub mod check;
 pub mod engine;
+pub mod lsp;
 pub mod output;
 pub mod plan;
 pub mod repl;

@@ -56,6 +56,10 @@ enum Command {
         #[arg(long = "allow-dir", value_name = "FOLDER")]
         allow_dirs: Vec<PathBuf>,
     },
+    /// The language server, over standard input and output: diagnostics,
+    /// hover help, completion, go to definition, symbols and formatting
+    /// for recipes in any editor that speaks the protocol.
+    Lsp,
     /// Rewrite recipes in the canonical layout (comments kept).
     Fmt {
         /// Change nothing; list the files whose layout differs and exit 1.
@@ -131,6 +135,13 @@ fn main() -> ExitCode {
         Command::Verify(args) => with_plan(&args, verify),
         Command::Assign { model, data, out } => assign(&model, &data, out.as_deref()),
         Command::Fmt { check, files } => fmt(check, &files),
+        Command::Lsp => match assort::lsp::serve() {
+            Ok(()) => ExitCode::SUCCESS,
+            Err(e) => {
+                eprintln!("error: the language server stopped: {e}");
+                ExitCode::FAILURE
+            }
+        },
         Command::Repl { recipe, allow_dirs } => {
             let code = assort::repl::run(recipe.as_deref(), CheckOptions { allow_dirs });
             ExitCode::from(u8::try_from(code).unwrap_or(1))

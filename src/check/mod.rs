@@ -81,6 +81,10 @@ pub struct Checked {
     pub problems: Vec<Problem>,
     /// The input's column names, when its header could be read.
     pub columns: Vec<String>,
+    /// What the sample showed of each column.
+    pub column_info: Vec<probe::ColumnInfo>,
+    /// Records in the sample.
+    pub sampled: usize,
 }
 
 impl Checked {
@@ -135,6 +139,12 @@ pub fn check_with(source: &RecipeSource, options: &CheckOptions) -> Checked {
             .as_ref()
             .map(|p| p.names().map(String::from).collect())
             .unwrap_or_default(),
+        column_info: cx
+            .probe
+            .as_ref()
+            .map(|p| p.columns.clone())
+            .unwrap_or_default(),
+        sampled: cx.probe.as_ref().map_or(0, |p| p.sampled),
     }
 }
 
@@ -147,6 +157,36 @@ pub fn statements_of(text: &str) -> Vec<String> {
         .map(|(_, t)| t.trim().to_string())
         .filter(|t| !t.is_empty() && !t.starts_with('#'))
         .collect()
+}
+
+/// The shape of a recipe for editors: each statement's word and span, and
+/// where each clustered column is named (its definition).
+#[derive(Debug, Clone, Default)]
+pub struct Outline {
+    pub statements: Vec<(String, Span)>,
+    pub columns: Vec<(String, Span)>,
+}
+
+/// The outline of a recipe's text (statements that parse).
+pub fn outline(text: &str) -> Outline {
+    let tree = syntax::parse(text);
+    let mut out = Outline::default();
+    for s in &tree.statements {
+        out.statements.push((s.keyword.node.clone(), s.span));
+        let named: &[Column] = match &s.kind {
+            StatementKind::Features(FeatureChoice::Listed(cols)) => cols,
+            StatementKind::Categories { columns, .. } => columns,
+            _ => &[],
+        };
+        out.columns
+            .extend(named.iter().map(|c| (c.node.clone(), c.span)));
+    }
+    out
+}
+
+/// The recipe in canonical layout, or `None` when it does not parse.
+pub fn format(text: &str) -> Option<String> {
+    syntax::format::format(text).ok()
 }
 
 /// Whether a statement word may appear only once in a recipe.

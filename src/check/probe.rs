@@ -32,6 +32,12 @@ pub struct ColumnInfo {
     /// Sampled values that are numbers, and that are not.
     pub numbers: usize,
     pub texts: usize,
+    /// Blank values in the sample.
+    pub blanks: usize,
+    /// Smallest, largest and sum of the sampled numbers.
+    pub min: f64,
+    pub max: f64,
+    pub sum: f64,
 }
 
 impl ColumnInfo {
@@ -94,8 +100,52 @@ pub fn parse_number(field: &str) -> Option<f64> {
     t.parse::<f64>().ok().filter(|v| v.is_finite())
 }
 
-/// Reads the header and a sample of `path`.
+/// Probes already made, by file, separator, size and modification time:
+/// an editor re-checking a recipe at every keystroke reads each data file
+/// once until it changes.
+static CACHE: std::sync::Mutex<Vec<(ProbeKey, Probe)>> = std::sync::Mutex::new(Vec::new());
+
+#[derive(Clone, PartialEq)]
+struct ProbeKey {
+    path: std::path::PathBuf,
+    separator: u8,
+    len: u64,
+    modified: Option<std::time::SystemTime>,
+}
+
+/// The most probes kept.
+const CACHE_SIZE: usize = 16;
+
+/// Reads the header and a sample of `path`, or takes them from the cache
+/// when the file has not changed.
 pub fn probe(path: &Path, separator: u8) -> Result<Probe, ProbeError> {
+    let meta = std::fs::metadata(path).ok();
+    let key = meta.as_ref().map(|m| ProbeKey {
+        path: path.to_path_buf(),
+        separator,
+        len: m.len(),
+        modified: m.modified().ok(),
+    });
+    if let Some(k) = &key {
+        // A poisoned lock only means another thread panicked mid-update;
+        // the cache is then skipped, not trusted.
+        if let Ok(cache) = CACHE.lock() {
+            if let Some((_, p)) = cache.iter().find(|(c, _)| c == k) {
+                return Ok(p.clone());
+            }
+        }
+    }
+    let fresh = probe_file(path, separator)?;
+    if let (Some(k), Ok(mut cache)) = (key, CACHE.lock()) {
+        if cache.len() >= CACHE_SIZE {
+            cache.remove(0);
+        }
+        cache.push((k, fresh.clone()));
+    }
+    Ok(fresh)
+}
+
+fn probe_file(path: &Path, separator: u8) -> Result<Probe, ProbeError> {
     let file = File::open(path).map_err(|e| match e.kind() {
         std::io::ErrorKind::NotFound => ProbeError::NotFound,
         _ => ProbeError::Unreadable(e.to_string()),
@@ -117,6 +167,10 @@ pub fn probe(path: &Path, separator: u8) -> Result<Probe, ProbeError> {
             text_line: None,
             numbers: 0,
             texts: 0,
+            blanks: 0,
+            min: f64::INFINITY,
+            max: f64::NEG_INFINITY,
+            sum: 0.0,
         })
         .collect();
     let mut sampled = 0;
@@ -135,10 +189,14 @@ pub fn probe(path: &Path, separator: u8) -> Result<Probe, ProbeError> {
         let line = record.position().map(|p| p.line()).unwrap_or(0);
         for (col, field) in columns.iter_mut().zip(record.iter()) {
             if is_blank(field) {
+                col.blanks += 1;
                 continue;
             }
-            if parse_number(field).is_some() {
+            if let Some(v) = parse_number(field) {
                 col.numbers += 1;
+                col.min = col.min.min(v);
+                col.max = col.max.max(v);
+                col.sum += v;
                 if col.kind == ColumnKind::Blank {
                     col.kind = ColumnKind::Numeric;
                 }
