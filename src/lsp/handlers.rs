@@ -126,9 +126,7 @@ pub fn completion(ctx: &Context<'_>, p: Position) -> Vec<CompletionItem> {
         .map(|label| {
             let kind = if checked.columns.contains(&label) {
                 CompletionItemKind::FIELD
-            } else if vocab::statement(&label).is_some()
-                && before.split_whitespace().count() <= 1
-            {
+            } else if vocab::statement(&label).is_some() && before.split_whitespace().count() <= 1 {
                 CompletionItemKind::KEYWORD
             } else {
                 CompletionItemKind::VALUE
