@@ -102,13 +102,23 @@ impl Session {
         let existing = if check::single_statement(word) {
             self.statements
                 .iter()
-                .position(|s| s.split_whitespace().next() == Some(word))
+                .position(|s| check::statement_word(s) == word)
         } else {
             None
         };
         let at = match existing {
             Some(i) => {
-                let old = std::mem::replace(&mut self.statements[i], statement.to_string());
+                // The replaced statement's comments stay above the new one.
+                let comments: Vec<&str> = self.statements[i]
+                    .lines()
+                    .take_while(|l| l.trim().is_empty() || l.trim().starts_with('#'))
+                    .collect();
+                let mut entry = comments.join("\n");
+                if !entry.is_empty() {
+                    entry.push('\n');
+                }
+                entry.push_str(statement);
+                let old = std::mem::replace(&mut self.statements[i], entry);
                 self.undo.push(Undo::Replaced { at: i, old });
                 i
             }

@@ -1270,3 +1270,40 @@ fn a_session_explains_unknown_commands_and_helps() {
     assert!(out.contains("restarts"), "{out}");
     assert!(out.contains("nothing to show: `:run` first"), "{out}");
 }
+
+#[test]
+fn a_session_on_the_demo_changes_k_and_scaling_and_saves_a_recipe_that_reruns_the_same() {
+    let case = Case::demo();
+    let script = "kmeans k 3..6 restarts 10\nscale robust\n:run\n:save varied.assort\n:quit\n";
+    let out = case.assort_piped(&["repl", DEMO], script).ok().stdout();
+    assert!(
+        out.contains("replaced the earlier `kmeans`")
+            && out.contains("replaced the earlier `scale`"),
+        "{out}"
+    );
+    assert!(out.contains("saved varied.assort"), "{out}");
+    // The sweep and the profiles the session showed are what the saved
+    // recipe runs to.
+    let section = |text: &str| -> String {
+        let start = text.find("k-means sweep").unwrap();
+        let end = ["\nwrote ", "\nsaved "]
+            .iter()
+            .filter_map(|m| text[start..].find(m))
+            .min()
+            .map_or(text.len(), |e| start + e);
+        text[start..end]
+            .replace("coop-members", "varied")
+            .trim_end()
+            .to_string()
+    };
+    let shown = section(&out);
+    let rerun = case.run("varied.assort").ok().stdout();
+    assert_eq!(section(&rerun), shown);
+    let saved = case.read("varied.assort");
+    assert!(
+        saved.contains("kmeans k 3..6 restarts 10")
+            && saved.contains("scale robust")
+            && saved.contains("# Quarterly review"),
+        "{saved}"
+    );
+}

@@ -149,14 +149,43 @@ pub fn check_with(source: &RecipeSource, options: &CheckOptions) -> Checked {
 }
 
 /// The statements of a recipe's text, one string each (continued lists
-/// kept whole); blank and comment-only lines left out.
+/// kept whole), each with the comment lines and the blank line before it;
+/// comments after the last statement make a last entry of their own.
 pub fn statements_of(text: &str) -> Vec<String> {
-    syntax::logical_lines(text)
-        .unwrap_or_default()
-        .into_iter()
-        .map(|(_, t)| t.trim().to_string())
-        .filter(|t| !t.is_empty() && !t.starts_with('#'))
-        .collect()
+    let mut out = Vec::new();
+    let mut prefix: Vec<String> = Vec::new();
+    for (_, line) in syntax::logical_lines(text).unwrap_or_default() {
+        let t = line.trim();
+        if t.is_empty() {
+            if !prefix.last().is_some_and(String::is_empty) {
+                prefix.push(String::new());
+            }
+            continue;
+        }
+        if t.starts_with('#') {
+            prefix.push(t.to_string());
+            continue;
+        }
+        prefix.push(t.to_string());
+        out.push(prefix.join("\n").trim_start_matches('\n').to_string());
+        prefix.clear();
+    }
+    let rest = prefix.join("\n");
+    if !rest.trim().is_empty() {
+        out.push(rest.trim_start_matches('\n').to_string());
+    }
+    out
+}
+
+/// The statement word of an entry from [`statements_of`] (its first line
+/// that is neither blank nor a comment), or "" for comments alone.
+pub fn statement_word(entry: &str) -> &str {
+    entry
+        .lines()
+        .map(str::trim)
+        .find(|l| !l.is_empty() && !l.starts_with('#'))
+        .and_then(|l| l.split_whitespace().next())
+        .unwrap_or("")
 }
 
 /// The shape of a recipe for editors: each statement's word and span, and
