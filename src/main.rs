@@ -5,6 +5,7 @@ use assort::output::{self, files::Rendered, record};
 use assort::plan::Plan;
 use assort::run::{self, Outcome};
 use clap::{Args, Parser, Subcommand};
+use serde_json::json;
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -76,6 +77,9 @@ enum Command {
         old: PathBuf,
         /// The later assignments file.
         new: PathBuf,
+        /// Print one JSON document instead of text (see docs/json.md).
+        #[arg(long)]
+        json: bool,
     },
 }
 
@@ -87,52 +91,94 @@ struct RecipeArgs {
     /// (repeatable).
     #[arg(long = "allow-dir", value_name = "FOLDER")]
     allow_dirs: Vec<PathBuf>,
+    /// Print one JSON document on standard output instead of text (see
+    /// docs/json.md).
+    #[arg(long)]
+    json: bool,
+    /// Print only problems: no tables, no progress.
+    #[arg(long, short)]
+    quiet: bool,
 }
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
     match cli.command {
-        Command::Check(args) => with_plan(&args, |_, plan| {
-            println!(
-                "recipe `{}` checks out: {}, {}, {}",
-                plan.name,
-                plural(plan.features.len(), "numeric feature"),
-                plural(plan.categories.len(), "category column"),
-                plan.cut_description()
-            );
+        Command::Check(args) => with_plan(&args, "assort-check/1", |_, plan, diagnostics| {
+            if args.json {
+                output::json::print(&json!({
+                    "format": "assort-check/1",
+                    "ok": true,
+                    "diagnostics": diagnostics,
+                    "recipe": plan.name,
+                    "features": plan.features.len(),
+                    "categories": plan.categories.len(),
+                    "cut": plan.cut_description(),
+                }));
+            } else {
+                println!(
+                    "recipe `{}` checks out: {}, {}, {}",
+                    plan.name,
+                    plural(plan.features.len(), "numeric feature"),
+                    plural(plan.categories.len(), "category column"),
+                    plan.cut_description()
+                );
+            }
             ExitCode::SUCCESS
         }),
-        Command::Plan(args) => {
-            with_plan(&args, |_, plan| match serde_json::to_string_pretty(plan) {
-                Ok(json) => {
-                    println!("{json}");
-                    ExitCode::SUCCESS
+        Command::Plan(args) => with_plan(&args, "assort-plan/1", |_, plan, diagnostics| {
+            if args.json {
+                output::json::print(
+                    &json!({"format": "assort-plan/1", "ok": true, "diagnostics": diagnostics, "plan": plan}),
+                );
+            } else {
+                output::json::print(&serde_json::to_value(plan).unwrap_or_default());
+            }
+            ExitCode::SUCCESS
+        }),
+        Command::Run { recipe, dry_run } => {
+            with_plan(&recipe, "assort-result/1", |source, plan, diagnostics| {
+                if dry_run {
+                    print!("{}", dry_run_listing(source, plan));
+                    return ExitCode::SUCCESS;
                 }
-                Err(e) => {
-                    eprintln!("error: cannot print the plan: {e}");
+                let fail = |e: &dyn miette::Diagnostic| {
+                    if recipe.json {
+                        output::json::print(
+                            &json!({"format": "assort-result/1", "ok": false, "diagnostics": diagnostics, "error": output::json::error(e)}),
+                        );
+                    } else {
+                        eprint!("{}", diagnostic::render_bare(e, colour()));
+                    }
                     ExitCode::FAILURE
+                };
+                let progress = Progress::new(recipe.quiet || recipe.json);
+                let (outcome, files) = match run_and_render(source, plan, &progress) {
+                    Ok(x) => x,
+                    Err(e) => return fail(&e),
+                };
+                progress.finish();
+                if let Err(e) = output::files::write_all(&files) {
+                    return fail(&e);
                 }
+                let written: Vec<String> = files.iter().map(|f| shown(&f.path)).collect();
+                if recipe.json {
+                    output::json::print(
+                        &json!({"format": "assort-result/1", "ok": true, "diagnostics": diagnostics, "result": output::json::run(&outcome, &written)}),
+                    );
+                } else if !recipe.quiet {
+                    print!("{}", output::tables::report(&outcome));
+                    for w in &written {
+                        println!("wrote {w}");
+                    }
+                }
+                ExitCode::SUCCESS
             })
         }
-        Command::Run { recipe, dry_run } => with_plan(&recipe, |source, plan| {
-            if dry_run {
-                print!("{}", dry_run_listing(source, plan));
-                return ExitCode::SUCCESS;
-            }
-            let Some((outcome, files)) = run_and_render(source, plan) else {
-                return ExitCode::FAILURE;
-            };
-            print!("{}", output::tables::report(&outcome));
-            if let Err(e) = output::files::write_all(&files) {
-                eprint!("{}", diagnostic::render_bare(&e, colour()));
-                return ExitCode::FAILURE;
-            }
-            for f in &files {
-                println!("wrote {}", shown(&f.path));
-            }
-            ExitCode::SUCCESS
-        }),
-        Command::Verify(args) => with_plan(&args, verify),
+        Command::Verify(args) => {
+            with_plan(&args, "assort-verify/1", |source, plan, diagnostics| {
+                verify(&args, source, plan, diagnostics)
+            })
+        }
         Command::Assign { model, data, out } => assign(&model, &data, out.as_deref()),
         Command::Fmt { check, files } => fmt(check, &files),
         Command::Lsp => match assort::lsp::serve() {
@@ -146,23 +192,28 @@ fn main() -> ExitCode {
             let code = assort::repl::run(recipe.as_deref(), CheckOptions { allow_dirs });
             ExitCode::from(u8::try_from(code).unwrap_or(1))
         }
-        Command::Compare { old, new } => {
+        Command::Compare { old, new, json } => {
             let read = |p: &Path| run::comparison::read_assignments(p, &shown(p));
             match (read(&old), read(&new)) {
                 (Ok(a), Ok(b)) => {
-                    print!(
-                        "{}",
-                        output::tables::comparison(&run::comparison::compare(
-                            &shown(&old),
-                            &a,
-                            &shown(&new),
-                            &b
-                        ))
-                    );
+                    let c = run::comparison::compare(&shown(&old), &a, &shown(&new), &b);
+                    if json {
+                        output::json::print(
+                            &json!({"format": "assort-compare/1", "ok": true, "comparison": output::json::comparison(&c)}),
+                        );
+                    } else {
+                        print!("{}", output::tables::comparison(&c));
+                    }
                     ExitCode::SUCCESS
                 }
                 (Err(e), _) | (_, Err(e)) => {
-                    eprint!("{}", diagnostic::render_bare(&e, colour()));
+                    if json {
+                        output::json::print(
+                            &json!({"format": "assort-compare/1", "ok": false, "error": output::json::error(&e)}),
+                        );
+                    } else {
+                        eprint!("{}", diagnostic::render_bare(&e, colour()));
+                    }
                     ExitCode::FAILURE
                 }
             }
@@ -318,14 +369,14 @@ fn score_summary(s: &run::model::ScoreSummary) -> String {
 
 /// Runs a plan and renders its files, the run record last; reports a run
 /// error and returns `None` on failure.
-fn run_and_render(source: &RecipeSource, plan: &Plan) -> Option<(Outcome, Vec<Rendered>)> {
-    let outcome = match run::run(plan) {
-        Ok(o) => o,
-        Err(e) => {
-            eprint!("{}", diagnostic::render_bare(&e, colour()));
-            return None;
-        }
-    };
+fn run_and_render(
+    source: &RecipeSource,
+    plan: &Plan,
+    progress: &Progress,
+) -> Result<(Outcome, Vec<Rendered>), run::RunError> {
+    let outcome = run::run_with(plan, &mut run::DataCache::default(), &|step| {
+        progress.step(step)
+    })?;
     let mut files = output::files::render_all(&outcome);
     let rec = record::build(
         &recipe_shown(source),
@@ -340,7 +391,7 @@ fn run_and_render(source: &RecipeSource, plan: &Plan) -> Option<(Outcome, Vec<Re
         path,
         bytes: record::to_bytes(&rec),
     });
-    Some((outcome, files))
+    Ok((outcome, files))
 }
 
 fn record_path(source: &RecipeSource, plan: &Plan) -> PathBuf {
@@ -358,22 +409,51 @@ fn recipe_shown(source: &RecipeSource) -> String {
         .unwrap_or_default()
 }
 
-fn verify(source: &RecipeSource, plan: &Plan) -> ExitCode {
+fn verify(
+    args: &RecipeArgs,
+    source: &RecipeSource,
+    plan: &Plan,
+    diagnostics: serde_json::Value,
+) -> ExitCode {
     let path = record_path(source, plan);
+    let report = |ok: bool, differences: Vec<String>, error: Option<serde_json::Value>| {
+        output::json::print(
+            &json!({"format": "assort-verify/1", "ok": ok, "diagnostics": diagnostics, "differences": differences, "error": error}),
+        );
+    };
     let recorded: record::RunRecord = match std::fs::read(&path)
         .map_err(|e| e.to_string())
         .and_then(|b| serde_json::from_slice(&b).map_err(|e| e.to_string()))
     {
         Ok(r) => r,
         Err(e) => {
-            eprintln!("error: cannot read the run record `{}`: {e}", shown(&path));
-            eprintln!("  help: run the recipe once (`assort run`) to write its record");
+            let message = format!("cannot read the run record `{}`: {e}", shown(&path));
+            let help = "run the recipe once (`assort run`) to write its record";
+            if args.json {
+                report(
+                    false,
+                    Vec::new(),
+                    Some(json!({"message": message, "help": help})),
+                );
+            } else {
+                eprintln!("error: {message}\n  help: {help}");
+            }
             return ExitCode::FAILURE;
         }
     };
-    let Some((outcome, files)) = run_and_render(source, plan) else {
-        return ExitCode::FAILURE;
+    let progress = Progress::new(args.quiet || args.json);
+    let (outcome, files) = match run_and_render(source, plan, &progress) {
+        Ok(x) => x,
+        Err(e) => {
+            if args.json {
+                report(false, Vec::new(), Some(output::json::error(&e)));
+            } else {
+                eprint!("{}", diagnostic::render_bare(&e, colour()));
+            }
+            return ExitCode::FAILURE;
+        }
     };
+    progress.finish();
     let now = record::build(
         &recipe_shown(source),
         &source.text,
@@ -386,25 +466,67 @@ fn verify(source: &RecipeSource, plan: &Plan) -> ExitCode {
         .iter()
         .map(|o| (o.path.clone(), record::file_sha256(&o.resolved)))
         .collect();
-    let differences = record::differences(&recorded, &now, &on_disk);
-    if differences.is_empty() {
+    let differences: Vec<String> = record::differences(&recorded, &now, &on_disk)
+        .iter()
+        .map(ToString::to_string)
+        .collect();
+    if args.json {
+        report(differences.is_empty(), differences.clone(), None);
+    } else if differences.is_empty() {
         println!(
             "verified: the rerun of `{}` matches its run record (recipe, {}, {} identical)",
             recipe_shown(source),
             plural(now.inputs.len(), "data file"),
             plural(now.outputs.len(), "output")
         );
-        return ExitCode::SUCCESS;
+    } else {
+        eprintln!(
+            "not verified: the rerun of `{}` differs from its run record `{}`",
+            recipe_shown(source),
+            shown(&path)
+        );
+        for d in &differences {
+            eprintln!("  - {d}");
+        }
     }
-    eprintln!(
-        "not verified: the rerun of `{}` differs from its run record `{}`",
-        recipe_shown(source),
-        shown(&path)
-    );
-    for d in &differences {
-        eprintln!("  - {d}");
+    if differences.is_empty() {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::FAILURE
     }
-    ExitCode::FAILURE
+}
+
+/// A progress bar on standard error for long runs: shown only on a
+/// terminal, never with `--quiet` or `--json`.
+struct Progress(Option<indicatif::ProgressBar>);
+
+impl Progress {
+    fn new(silent: bool) -> Progress {
+        if silent || !std::io::stderr().is_terminal() {
+            return Progress(None);
+        }
+        let bar = indicatif::ProgressBar::new(0);
+        let style = indicatif::ProgressStyle::with_template("  {msg:<28} [{bar:30}] {pos}/{len}")
+            .map(|s| s.progress_chars("=> "));
+        if let Ok(style) = style {
+            bar.set_style(style);
+        }
+        Progress(Some(bar))
+    }
+
+    fn step(&self, step: run::Step) {
+        if let Some(bar) = &self.0 {
+            bar.set_length(step.total as u64);
+            bar.set_position(step.done as u64);
+            bar.set_message(step.what);
+        }
+    }
+
+    fn finish(&self) {
+        if let Some(bar) = &self.0 {
+            bar.finish_and_clear();
+        }
+    }
 }
 
 /// What a run would read and write.
@@ -439,11 +561,22 @@ fn colour() -> bool {
 
 /// Reads and checks a recipe; prints its problems; calls `then` with the
 /// plan when there is no error.
-fn with_plan(args: &RecipeArgs, then: impl FnOnce(&RecipeSource, &Plan) -> ExitCode) -> ExitCode {
+fn with_plan(
+    args: &RecipeArgs,
+    kind: &str,
+    then: impl FnOnce(&RecipeSource, &Plan, serde_json::Value) -> ExitCode,
+) -> ExitCode {
     let source = match RecipeSource::read(&args.recipe) {
         Ok(s) => s,
         Err(e) => {
-            eprintln!("error: cannot read recipe `{}`: {e}", args.recipe.display());
+            let message = format!("cannot read recipe `{}`: {e}", args.recipe.display());
+            if args.json {
+                output::json::print(
+                    &json!({"format": kind, "ok": false, "diagnostics": [], "error": {"message": message}}),
+                );
+            } else {
+                eprintln!("error: {message}");
+            }
             return ExitCode::FAILURE;
         }
     };
@@ -451,21 +584,28 @@ fn with_plan(args: &RecipeArgs, then: impl FnOnce(&RecipeSource, &Plan) -> ExitC
         allow_dirs: args.allow_dirs.clone(),
     };
     let checked = check::check_with(&source, &options);
-    if !checked.problems.is_empty() {
+    let diagnostics = output::json::diagnostics(&checked.problems, &source.name(), &source.text);
+    if !checked.problems.is_empty() && !args.json {
         eprint!(
             "{}",
             diagnostic::render(&checked.problems, &source.name(), &source.text, colour())
         );
     }
     match &checked.plan {
-        Some(plan) if !checked.has_errors() => then(&source, plan),
+        Some(plan) if !checked.has_errors() => then(&source, plan, diagnostics),
         _ => {
-            let errors = checked.problems.iter().filter(|p| p.is_error()).count();
-            eprintln!(
-                "{} in `{}`; nothing was run",
-                plural(errors, "error"),
-                source.name()
-            );
+            if args.json {
+                output::json::print(
+                    &json!({"format": kind, "ok": false, "diagnostics": diagnostics}),
+                );
+            } else {
+                let errors = checked.problems.iter().filter(|p| p.is_error()).count();
+                eprintln!(
+                    "{} in `{}`; nothing was run",
+                    plural(errors, "error"),
+                    source.name()
+                );
+            }
             ExitCode::FAILURE
         }
     }

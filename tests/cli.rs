@@ -1307,3 +1307,127 @@ fn a_session_on_the_demo_changes_k_and_scaling_and_saves_a_recipe_that_reruns_th
         "{saved}"
     );
 }
+
+// ----------------------------------------------------- machine output --
+
+/// Parses a `--json` document and checks the keys every document has.
+#[track_caller]
+fn json_doc(run: &Run, format: &str) -> serde_json::Value {
+    let doc: serde_json::Value = serde_json::from_str(&run.stdout())
+        .unwrap_or_else(|e| panic!("not JSON ({e}):\n{}", run.stdout()));
+    assert_eq!(doc["format"], format, "{doc}");
+    assert!(doc["ok"].is_boolean(), "{doc}");
+    doc
+}
+
+#[test]
+fn every_command_speaks_json_as_documented() {
+    // The schema: docs/json.md.
+    let case = Case::demo();
+    let check = json_doc(
+        &case.assort(&["check", "--json", DEMO], &[]).ok(),
+        "assort-check/1",
+    );
+    assert_eq!(check["cut"], "k 2..8");
+    assert!(check["diagnostics"].as_array().unwrap().is_empty());
+
+    let plan = json_doc(
+        &case.assort(&["plan", "--json", DEMO], &[]).ok(),
+        "assort-plan/1",
+    );
+    assert_eq!(plan["plan"]["seed"], 2026);
+
+    let run = json_doc(
+        &case.assort(&["run", "--json", DEMO], &[]).ok(),
+        "assort-result/1",
+    );
+    let result = &run["result"];
+    assert_eq!(result["chosen_k"], 5);
+    assert_eq!(result["sweep"].as_array().unwrap().len(), 7);
+    assert_eq!(result["segments"].as_array().unwrap().len(), 5);
+    assert_eq!(result["features"].as_array().unwrap().len(), 8);
+    for key in [
+        "k",
+        "within_ss",
+        "silhouette",
+        "calinski_harabasz",
+        "davies_bouldin",
+        "gap",
+        "stability",
+        "restarts_at_best",
+    ] {
+        assert!(
+            result["sweep"][0].get(key).is_some(),
+            "sweep rows lack `{key}`"
+        );
+    }
+    assert!(result["written"]
+        .as_array()
+        .unwrap()
+        .last()
+        .unwrap()
+        .as_str()
+        .unwrap()
+        .ends_with(".run.json"));
+
+    let verify = json_doc(
+        &case.assort(&["verify", "--json", DEMO], &[]).ok(),
+        "assort-verify/1",
+    );
+    assert_eq!(verify["differences"].as_array().unwrap().len(), 0);
+
+    let compare = json_doc(
+        &case
+            .assort(
+                &[
+                    "compare",
+                    "--json",
+                    "out/member_segments.csv",
+                    "out/member_segments.csv",
+                ],
+                &[],
+            )
+            .ok(),
+        "assort-compare/1",
+    );
+    assert_eq!(compare["comparison"]["adjusted_rand_index"], 1.0);
+    assert_eq!(compare["comparison"]["in_both"], 6000);
+}
+
+#[test]
+fn json_failures_carry_located_diagnostics() {
+    let case = Case::demo();
+    case.edit(DEMO, "visits_per_month", "vists_per_month");
+    let run = case.assort(&["run", "--json", DEMO], &[]).fails();
+    let doc = json_doc(&run, "assort-result/1");
+    assert_eq!(doc["ok"], false);
+    let d = &doc["diagnostics"][0];
+    assert_eq!(d["code"], "assort::unknown_column");
+    assert_eq!(d["range"]["start"]["line"], 8);
+    assert_eq!(d["help"], "did you mean `visits_per_month`?");
+    assert!(run.stderr().is_empty(), "{}", run.stderr());
+}
+
+#[test]
+fn output_to_a_pipe_has_no_escape_codes_even_without_no_color() {
+    let case = Case::demo();
+    case.edit(DEMO, "scale zscore", "scale zscor");
+    for args in [&["run", DEMO][..], &["check", DEMO]] {
+        let out = Command::new(env!("CARGO_BIN_EXE_assort"))
+            .args(args)
+            .current_dir(case.dir.path())
+            .env_remove("NO_COLOR")
+            .output()
+            .unwrap();
+        let all = [out.stdout, out.stderr].concat();
+        assert!(!all.contains(&0x1b), "escape codes in `{}`", args.join(" "));
+    }
+}
+
+#[test]
+fn quiet_runs_print_nothing_but_still_write() {
+    let case = Case::demo();
+    let run = case.assort(&["run", "--quiet", DEMO], &[]).ok();
+    assert!(run.stdout().is_empty(), "{}", run.stdout());
+    assert!(case.path("out/member_segments.csv").exists());
+}

@@ -5,6 +5,7 @@
 //! so a failed or interrupted run never leaves a partial or clobbered output.
 
 pub mod files;
+pub mod json;
 pub mod record;
 pub mod tables;
 

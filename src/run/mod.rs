@@ -216,6 +216,23 @@ impl DataCache {
 
 /// Runs a plan, reading the data through `cache`.
 pub fn run_cached(plan: &Plan, cache: &mut DataCache) -> Result<Outcome, RunError> {
+    run_with(plan, cache, &|_| {})
+}
+
+/// A stage of a run, for a progress display.
+#[derive(Debug, Clone, Copy)]
+pub struct Step {
+    pub what: &'static str,
+    pub done: usize,
+    pub total: usize,
+}
+
+/// Runs a plan, telling `progress` how far it has got.
+pub fn run_with(
+    plan: &Plan,
+    cache: &mut DataCache,
+    progress: &dyn Fn(Step),
+) -> Result<Outcome, RunError> {
     let table = cache.table(plan)?;
     let prepared = prepare::prepare(plan, table)?;
     let n = prepared.kept.len();
@@ -245,8 +262,13 @@ pub fn run_cached(plan: &Plan, cache: &mut DataCache) -> Result<Outcome, RunErro
         .map(|&i| table.keys[i].as_str())
         .collect();
     let (candidates, tree) = match &plan.method {
-        MethodPlan::KMeans(km) => (fit_kmeans(plan, km, x)?, None),
+        MethodPlan::KMeans(km) => (fit_kmeans(plan, km, x, progress)?, None),
         MethodPlan::Tree(t) => {
+            progress(Step {
+                what: "building the tree",
+                done: 0,
+                total: 1,
+            });
             let (c, tree) = fit_tree(plan, t, x, &keys)?;
             (c, Some(tree))
         }
@@ -254,7 +276,12 @@ pub fn run_cached(plan: &Plan, cache: &mut DataCache) -> Result<Outcome, RunErro
 
     let mut sweep = Vec::with_capacity(candidates.len());
     let mut per_segment_silhouette = Vec::with_capacity(candidates.len());
-    for c in &candidates {
+    for (i, c) in candidates.iter().enumerate() {
+        progress(Step {
+            what: "judging each k",
+            done: i,
+            total: candidates.len(),
+        });
         let k = c.k;
         let sil = criteria::silhouette(x, &c.labels, k, plan.seed, SILHOUETTE_STREAM | k as u64);
         sweep.push(SweepRow {
@@ -273,6 +300,13 @@ pub fn run_cached(plan: &Plan, cache: &mut DataCache) -> Result<Outcome, RunErro
 
     // Evidence that reclusters: reference sets and resamples.
     let recluster = reclusterer(plan);
+    if plan.evidence.gap.is_some() || plan.evidence.stability.is_some() {
+        progress(Step {
+            what: "gap and stability evidence",
+            done: 0,
+            total: 1,
+        });
+    }
     let ks: Vec<usize> = candidates.iter().map(|c| c.k).collect();
     let gaps = plan
         .evidence
@@ -412,10 +446,17 @@ fn fit_kmeans(
     plan: &Plan,
     km: &KMeansPlan,
     x: ArrayView2<'_, f64>,
+    progress: &dyn Fn(Step),
 ) -> Result<Vec<Candidate>, RunError> {
     km.ks
         .iter()
-        .map(|&k| {
+        .enumerate()
+        .map(|(i, &k)| {
+            progress(Step {
+                what: "fitting k-means",
+                done: i,
+                total: km.ks.len(),
+            });
             let settings = kmeans::KMeansSettings {
                 k,
                 restarts: km.restarts,
