@@ -255,3 +255,48 @@ fn the_criteria_of_the_known_classes_match_the_reference() {
         );
     }
 }
+
+#[test]
+fn iris_principal_components_match_the_reference_up_to_sign() {
+    // Reference: scikit-learn 1.9.1 PCA(n_components=2) on the raw Iris
+    // measurements (tests/data/reference.json, `iris_pca`).
+    let r = reference();
+    let (x, _) = read("iris.csv");
+    let pca = assort::engine::pca::principal_components(x.view(), 2);
+    let scores = pca.project(x.view());
+    for c in 0..2 {
+        let theirs: Vec<f64> = r["iris_pca"]["components"][c]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|v| v.as_f64().unwrap())
+            .collect();
+        let sign = if theirs
+            .iter()
+            .zip(&pca.components[c])
+            .map(|(a, b)| a * b)
+            .sum::<f64>()
+            < 0.0
+        {
+            -1.0
+        } else {
+            1.0
+        };
+        for (a, b) in pca.components[c].iter().zip(&theirs) {
+            assert!((sign * a - b).abs() < 1e-9, "component {c}: {a} vs {b}");
+        }
+        assert_rel(
+            pca.variance[c],
+            r["iris_pca"]["explained_variance"][c].as_f64().unwrap(),
+            1e-9,
+            "variance",
+        );
+        for i in 0..5 {
+            let theirs = r["iris_pca"]["first_scores"][i][c].as_f64().unwrap();
+            assert!(
+                (sign * scores[[i, c]] - theirs).abs() < 1e-9,
+                "score {i},{c}"
+            );
+        }
+    }
+}

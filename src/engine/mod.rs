@@ -16,6 +16,7 @@ pub mod compare;
 pub mod criteria;
 pub mod evidence;
 pub mod kmeans;
+pub mod pca;
 pub mod rng;
 pub mod stats;
 pub mod tree;

@@ -119,6 +119,16 @@ def main():
     trees["wine-zscore/ward/euclidean"] = tree_block(z, "ward", "euclidean")
     out["trees"] = trees
 
+    # Principal components of the raw Iris measurements.
+    from sklearn.decomposition import PCA
+    pca = PCA(n_components=2).fit(iris)
+    out["iris_pca"] = {
+        "call": "sklearn.decomposition.PCA(n_components=2).fit(iris)",
+        "components": pca.components_.tolist(),
+        "explained_variance": pca.explained_variance_.tolist(),
+        "first_scores": pca.transform(iris)[:5].tolist(),
+    }
+
     (DATA / "reference.json").write_text(json.dumps(out, indent=2) + "\n")
     print("wrote", DATA / "reference.json")
 
