@@ -377,7 +377,7 @@ fn run_and_render(
     let outcome = run::run_with(plan, &mut run::DataCache::default(), &|step| {
         progress.step(step)
     })?;
-    let mut files = output::files::render_all(&outcome);
+    let mut files = output::files::render_all(&outcome, &source.text);
     let rec = record::build(
         &recipe_shown(source),
         &source.text,

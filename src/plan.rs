@@ -281,6 +281,8 @@ pub enum OutputKind {
     Centroids,
     /// The segment model, for scoring new records (JSON).
     Model,
+    /// The one-file HTML report.
+    Report,
     /// The tree's merge table (CSV).
     Merges,
     /// The tree in Newick format.

@@ -834,7 +834,7 @@ fn the_run_record_holds_digests_of_everything() {
     assert_eq!(rec["chosen_k"], 5);
     assert_eq!(rec["inputs"][0]["records"], 6000);
     assert_eq!(rec["inputs"][1]["role"], "validate");
-    assert_eq!(rec["outputs"].as_array().unwrap().len(), 5);
+    assert_eq!(rec["outputs"].as_array().unwrap().len(), 6);
     assert_eq!(rec["plan"]["method"]["restarts"], 50);
     // The digest of each output is the SHA-256 of its bytes (checked here
     // with an independent count: a 64-digit lowercase hex string that
@@ -1430,4 +1430,96 @@ fn quiet_runs_print_nothing_but_still_write() {
     let run = case.assort(&["run", "--quiet", DEMO], &[]).ok();
     assert!(run.stdout().is_empty(), "{}", run.stdout());
     assert!(case.path("out/member_segments.csv").exists());
+}
+
+// ------------------------------------------------------ charts, report --
+
+/// Parses a document as XML, panicking with the parser's message.
+#[track_caller]
+fn well_formed(text: &str) -> roxmltree::Document<'_> {
+    roxmltree::Document::parse_with_options(
+        text,
+        roxmltree::ParsingOptions {
+            allow_dtd: true,
+            ..Default::default()
+        },
+    )
+    .unwrap_or_else(|e| panic!("not well-formed: {e}"))
+}
+
+#[test]
+fn the_demo_report_is_well_formed_and_holds_every_segment_and_chart() {
+    let case = Case::demo();
+    case.run(DEMO).ok();
+    let html = case.read("out/segment_report.html");
+    let doc = well_formed(&html);
+    let cards = doc
+        .descendants()
+        .filter(|n| n.attribute("class") == Some("card"))
+        .count();
+    assert_eq!(cards, 5);
+    for label in [
+        "weekly fresh regulars",
+        "bulk planners",
+        "online convenience",
+        "coupon-driven",
+        "occasional newcomers",
+    ] {
+        assert!(html.contains(label), "no card for `{label}`");
+    }
+    let svgs: Vec<_> = doc
+        .descendants()
+        .filter(|n| n.tag_name().name() == "svg")
+        .collect();
+    assert_eq!(
+        svgs.len(),
+        5,
+        "criteria, sizes, silhouettes, heat map, projection"
+    );
+    // Self-contained: nothing to fetch, nothing to run.
+    // (The SVG namespace names a URI; nothing is fetched from it.)
+    for fetch in ["<script", " src=", "href=", "@import", "url("] {
+        assert!(!html.contains(fetch), "the report contains `{fetch}`");
+    }
+    assert!(html.contains("may be unlawful or unfair"));
+}
+
+#[test]
+fn every_chart_is_well_formed_svg_for_kmeans_and_tree_recipes() {
+    for method in ["kmeans k 2..5 restarts 5", "tree linkage ward k 2..5"] {
+        let case = Case::demo();
+        case.edit(DEMO, "kmeans k 2..8 restarts 50", method);
+        case.edit(
+            DEMO,
+            "choose k by silhouette",
+            "choose k by silhouette\nevidence gap 3 stability 3",
+        );
+        case.run(DEMO).ok();
+        let html = case.read("out/segment_report.html");
+        let doc = well_formed(&html);
+        let svgs: Vec<_> = doc
+            .descendants()
+            .filter(|n| n.tag_name().name() == "svg")
+            .collect();
+        let expected = if method.starts_with("tree") { 6 } else { 5 };
+        assert_eq!(svgs.len(), expected, "{method}");
+        for svg in svgs {
+            // Each chart stands alone as an SVG document too.
+            let text = &html[svg.range()];
+            let alone = well_formed(text);
+            let root = alone.root_element();
+            assert_eq!(root.tag_name().name(), "svg");
+            assert!(
+                root.descendants().any(|n| n.tag_name().name() == "title"),
+                "a chart without a title"
+            );
+            assert!(
+                root.descendants().filter(|n| n.is_element()).count() > 10,
+                "an empty chart"
+            );
+        }
+        if method.starts_with("tree") {
+            assert!(html.contains("cut: "), "the dendrogram has no cut");
+        }
+    }
 }

@@ -1534,6 +1534,16 @@ impl Checker {
                 ("profiles", "csv") => Some(OutputKind::ProfilesCsv),
                 ("profiles", "json") => Some(OutputKind::ProfilesJson),
                 ("model", "json") => Some(OutputKind::Model),
+                ("report", "html") => Some(OutputKind::Report),
+                ("report", _) => {
+                    self.err(CheckError::OutputFormat {
+                        what: "`save report`".into(),
+                        expected: "`.html`",
+                        path: path.node.clone(),
+                        span: path.span,
+                    });
+                    None
+                }
                 ("model", _) => {
                     self.err(CheckError::OutputFormat {
                         what: "`save model`".into(),
@@ -1586,7 +1596,7 @@ impl Checker {
                         found: other.to_string(),
                         span: what.span,
                         choices:
-                            "`assignments`, `profiles`, `centroids`, `model`, `merges` or `tree`"
+                            "`assignments`, `profiles`, `centroids`, `model`, `report`, `merges` or `tree`"
                                 .into(),
                         help: did_you_mean(
                             &suggestion,

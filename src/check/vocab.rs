@@ -81,7 +81,7 @@ pub const STATEMENTS: &[StatementDoc] = &[
     },
     StatementDoc {
         word: "save",
-        summary: "writes assignments, profiles (.csv or .json), centroids, a segment model, or a tree's merges and tree",
+        summary: "writes assignments, profiles (.csv or .json), centroids, a segment model, a one-file HTML report, or a tree's merges and tree",
         example: r#"save assignments "out/members.csv""#,
     },
     StatementDoc {
@@ -211,10 +211,11 @@ pub const VALIDATE_OPTIONS: &[OptionDoc] = &[OptionDoc {
 }];
 
 /// What `save` can write.
-pub const SAVE_WHAT: [&str; 6] = [
+pub const SAVE_WHAT: [&str; 7] = [
     "assignments",
     "profiles",
     "centroids",
+    "report",
     "model",
     "merges",
     "tree",

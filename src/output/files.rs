@@ -18,11 +18,15 @@ pub struct Rendered {
 }
 
 /// Builds every output the plan names.
-pub fn render_all(o: &Outcome) -> Vec<Rendered> {
-    o.plan.outputs.iter().map(|out| render(o, out)).collect()
+pub fn render_all(o: &Outcome, recipe_text: &str) -> Vec<Rendered> {
+    o.plan
+        .outputs
+        .iter()
+        .map(|out| render(o, out, recipe_text))
+        .collect()
 }
 
-fn render(o: &Outcome, out: &OutputPlan) -> Rendered {
+fn render(o: &Outcome, out: &OutputPlan, recipe_text: &str) -> Rendered {
     let bytes = match out.kind {
         OutputKind::Assignments => assignments(o),
         OutputKind::ProfilesCsv => profiles_csv(o),
@@ -32,6 +36,7 @@ fn render(o: &Outcome, out: &OutputPlan) -> Rendered {
             let sha = super::record::file_sha256(&o.plan.input.resolved).unwrap_or_default();
             crate::run::model::to_bytes(&crate::run::model::from_outcome(o, sha))
         }
+        OutputKind::Report => super::report::render(o, recipe_text),
         OutputKind::Merges => merges(o),
         OutputKind::Newick => newick(o),
     };

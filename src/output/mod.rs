@@ -4,9 +4,11 @@
 //! succeeded, each to a temporary file beside its target and then renamed,
 //! so a failed or interrupted run never leaves a partial or clobbered output.
 
+pub mod charts;
 pub mod files;
 pub mod json;
 pub mod record;
+pub mod report;
 pub mod tables;
 
 /// A number in about four significant digits, for tables.

@@ -1,0 +1,595 @@
+//! Charts of a run as SVG documents, composed with the `svg` crate: the
+//! criteria against k, each segment's silhouette, segment sizes, the profile
+//! heat map, the records on their first two principal components and, for
+//! trees, the top of the dendrogram with the cut drawn.
+//!
+//! Colours are our own: eight segment colours that step through lightness,
+//! so they stay apart in greyscale and for the common colour-vision
+//! deficiencies, each paired with a marker shape in the scatter as a second
+//! cue; the heat map runs from blue through white to amber.
+
+use crate::engine::pca;
+use crate::run::Outcome;
+use svg::node::element::{Circle, Group, Line, Polyline, Rectangle, Text, Title};
+use svg::Document;
+
+/// Segment colours, dark to light alternating so neighbours differ in
+/// lightness as well as hue.
+pub const SEGMENT_COLOURS: [&str; 8] = [
+    "#1f3b63", "#e0942f", "#2f7f6f", "#9ec3e6", "#6b3f80", "#efd35a", "#3d3d3d", "#e6a3a0",
+];
+
+const INK: &str = "#222222";
+const GRID: &str = "#d8d8d8";
+const FONT: &str = "font-family:sans-serif;font-size:11px";
+
+/// A chart with its file-friendly name and its title.
+pub struct Chart {
+    pub name: &'static str,
+    pub title: String,
+    pub svg: String,
+}
+
+/// Every chart that applies to the outcome.
+pub fn all(o: &Outcome) -> Vec<Chart> {
+    let mut out = vec![
+        criteria(o),
+        sizes(o),
+        silhouettes(o),
+        heat_map(o),
+        projection(o),
+    ];
+    if let Some(d) = dendrogram(o) {
+        out.push(d);
+    }
+    out
+}
+
+fn colour(segment: usize) -> &'static str {
+    SEGMENT_COLOURS[segment % SEGMENT_COLOURS.len()]
+}
+
+fn text(x: f64, y: f64, s: impl Into<String>, anchor: &str) -> Text {
+    Text::new(s.into())
+        .set("x", x)
+        .set("y", y)
+        .set("text-anchor", anchor)
+        .set("style", FONT)
+        .set("fill", INK)
+}
+
+fn line(x1: f64, y1: f64, x2: f64, y2: f64, stroke: &str) -> Line {
+    Line::new()
+        .set("x1", x1)
+        .set("y1", y1)
+        .set("x2", x2)
+        .set("y2", y2)
+        .set("stroke", stroke)
+        .set("stroke-width", 1)
+}
+
+fn document(w: f64, h: f64, title: &str) -> Document {
+    Document::new()
+        .set("viewBox", (0, 0, w, h))
+        .set("width", w)
+        .set("height", h)
+        .set("role", "img")
+        .add(Title::new(title.to_string()))
+        .add(
+            Rectangle::new()
+                .set("width", w)
+                .set("height", h)
+                .set("fill", "#ffffff"),
+        )
+        .add(text(w / 2.0, 18.0, title, "middle").set(
+            "style",
+            "font-family:sans-serif;font-size:13px;font-weight:bold",
+        ))
+}
+
+fn fmt(v: f64) -> String {
+    crate::output::short(v)
+}
+
+/// A linear scale from a data range to pixels.
+#[derive(Clone, Copy)]
+struct Scale {
+    lo: f64,
+    hi: f64,
+    from: f64,
+    to: f64,
+}
+
+impl Scale {
+    fn new(lo: f64, hi: f64, from: f64, to: f64) -> Scale {
+        let (lo, hi) = if hi > lo {
+            (lo, hi)
+        } else {
+            (lo - 0.5, lo + 0.5)
+        };
+        Scale { lo, hi, from, to }
+    }
+
+    fn at(&self, v: f64) -> f64 {
+        self.from + (v - self.lo) / (self.hi - self.lo) * (self.to - self.from)
+    }
+}
+
+fn range(values: impl Iterator<Item = f64>) -> (f64, f64) {
+    values
+        .filter(|v| v.is_finite())
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| {
+            (a.min(v), b.max(v))
+        })
+}
+
+/// Each criterion against k, one small panel each, the chosen k marked.
+pub fn criteria(o: &Outcome) -> Chart {
+    type Pick = fn(&crate::run::SweepRow) -> Option<f64>;
+    let mut panels: Vec<(&str, Pick)> = vec![
+        ("within SS (lower fits closer)", |r| Some(r.within_ss)),
+        ("silhouette (higher is better)", |r| Some(r.silhouette)),
+        ("Calinski-Harabasz (higher)", |r| Some(r.calinski_harabasz)),
+        ("Davies-Bouldin (lower)", |r| Some(r.davies_bouldin)),
+    ];
+    if o.sweep.iter().any(|r| r.gap.is_some()) {
+        panels.push(("gap statistic (1-SE rule)", |r| r.gap.map(|g| g.0)));
+    }
+    if o.sweep.iter().any(|r| r.stability.is_some()) {
+        panels.push(("stability (higher)", |r| r.stability));
+    }
+    let (pw, ph) = (300.0, 170.0);
+    let cols = 2.0;
+    let rows = (panels.len() as f64 / cols).ceil();
+    let (w, h) = (pw * cols + 20.0, ph * rows + 40.0);
+    let title = format!("evidence for k (chosen: k = {})", o.chosen);
+    let mut doc = document(w, h, &title);
+    let ks: Vec<f64> = o.sweep.iter().map(|r| r.k as f64).collect();
+    let (k0, k1) = range(ks.iter().copied());
+    for (i, (name, pick)) in panels.iter().enumerate() {
+        let ox = 10.0 + (i as f64 % cols) * pw;
+        let oy = 30.0 + (i as f64 / cols).floor() * ph;
+        let vals: Vec<Option<f64>> = o.sweep.iter().map(pick).collect();
+        let (v0, v1) = range(vals.iter().flatten().copied());
+        let xs = Scale::new(k0, k1, ox + 50.0, ox + pw - 20.0);
+        let ys = Scale::new(v0, v1, oy + ph - 35.0, oy + 25.0);
+        let mut g = Group::new()
+            .add(text(ox + pw / 2.0, oy + 14.0, *name, "middle"))
+            .add(line(xs.from, ys.from, xs.to, ys.from, INK))
+            .add(line(xs.from, ys.from, xs.from, ys.to, INK))
+            .add(text(xs.from - 4.0, ys.from, fmt(v0), "end"))
+            .add(text(xs.from - 4.0, ys.to + 8.0, fmt(v1), "end"));
+        for &k in &ks {
+            g = g.add(text(xs.at(k), ys.from + 14.0, format!("{k}"), "middle"));
+        }
+        let chosen_x = xs.at(o.chosen as f64);
+        g = g.add(line(chosen_x, ys.from, chosen_x, ys.to, GRID).set("stroke-dasharray", "4 3"));
+        let points: Vec<(f64, f64)> = ks
+            .iter()
+            .zip(&vals)
+            .filter_map(|(&k, v)| v.filter(|v| v.is_finite()).map(|v| (xs.at(k), ys.at(v))))
+            .collect();
+        let pts: String = points
+            .iter()
+            .map(|(x, y)| format!("{x:.1},{y:.1}"))
+            .collect::<Vec<_>>()
+            .join(" ");
+        g = g.add(
+            Polyline::new()
+                .set("points", pts)
+                .set("fill", "none")
+                .set("stroke", SEGMENT_COLOURS[0])
+                .set("stroke-width", 2),
+        );
+        for (r, v) in o.sweep.iter().zip(&vals) {
+            if let Some(v) = v.filter(|v| v.is_finite()) {
+                let chosen = r.k == o.chosen;
+                g = g.add(
+                    Circle::new()
+                        .set("cx", xs.at(r.k as f64))
+                        .set("cy", ys.at(v))
+                        .set("r", if chosen { 5 } else { 3 })
+                        .set(
+                            "fill",
+                            if chosen {
+                                SEGMENT_COLOURS[1]
+                            } else {
+                                SEGMENT_COLOURS[0]
+                            },
+                        )
+                        .add(Title::new(format!("k = {}: {}", r.k, fmt(v)))),
+                );
+            }
+        }
+        doc = doc.add(g);
+    }
+    Chart {
+        name: "criteria",
+        title,
+        svg: doc.to_string(),
+    }
+}
+
+/// Horizontal bars, one per segment, with a value label.
+fn bars(
+    title: &str,
+    name: &'static str,
+    o: &Outcome,
+    value: impl Fn(usize) -> f64,
+    label: impl Fn(usize) -> String,
+    lo: f64,
+    hi: f64,
+) -> Chart {
+    let k = o.profiles.len();
+    let (w, h) = (640.0, 50.0 + 26.0 * k as f64);
+    let mut doc = document(w, h, title);
+    let xs = Scale::new(lo, hi, 190.0, w - 70.0);
+    for (i, p) in o.profiles.iter().enumerate() {
+        let y = 34.0 + 26.0 * i as f64;
+        let v = value(i);
+        let (a, b) = (xs.at(0.0_f64.max(lo)), xs.at(v));
+        let name = format!(
+            "{} {}",
+            p.segment.unwrap_or(i + 1),
+            p.label.clone().unwrap_or_default()
+        );
+        doc = doc
+            .add(text(182.0, y + 13.0, name, "end"))
+            .add(
+                Rectangle::new()
+                    .set("x", a.min(b))
+                    .set("y", y)
+                    .set("width", (b - a).abs().max(1.0))
+                    .set("height", 18)
+                    .set("fill", colour(i)),
+            )
+            .add(text(a.max(b) + 4.0, y + 13.0, label(i), "start"));
+    }
+    Chart {
+        name,
+        title: title.to_string(),
+        svg: doc.to_string(),
+    }
+}
+
+pub fn sizes(o: &Outcome) -> Chart {
+    let most = o.profiles.iter().map(|p| p.size).max().unwrap_or(1) as f64;
+    bars(
+        "segment sizes",
+        "sizes",
+        o,
+        |i| o.profiles[i].size as f64,
+        |i| {
+            format!(
+                "{} ({:.1}%)",
+                o.profiles[i].size,
+                o.profiles[i].share * 100.0
+            )
+        },
+        0.0,
+        most,
+    )
+}
+
+pub fn silhouettes(o: &Outcome) -> Chart {
+    let lo = o
+        .profiles
+        .iter()
+        .filter_map(|p| p.silhouette)
+        .fold(0.0, f64::min);
+    bars(
+        "mean silhouette of each segment (1: well apart, 0: on a border)",
+        "silhouettes",
+        o,
+        |i| o.profiles[i].silhouette.unwrap_or(0.0),
+        |i| format!("{:.3}", o.profiles[i].silhouette.unwrap_or(0.0)),
+        lo,
+        1.0,
+    )
+}
+
+/// Blue (below) through white to amber (above), by standardised difference
+/// clamped at ±2.
+fn diverging(v: f64) -> String {
+    let t = (v / 2.0).clamp(-1.0, 1.0);
+    let (r, g, b) = if t < 0.0 {
+        (44.0, 111.0, 176.0)
+    } else {
+        (224.0, 148.0, 47.0)
+    };
+    let a = t.abs();
+    let mix = |c: f64| (255.0 + (c - 255.0) * a).round() as u8;
+    format!("#{:02x}{:02x}{:02x}", mix(r), mix(g), mix(b))
+}
+
+pub fn heat_map(o: &Outcome) -> Chart {
+    let features: Vec<&str> = o
+        .prepared
+        .features
+        .iter()
+        .map(|f| f.column.as_str())
+        .collect();
+    let (cw, ch) = (64.0, 26.0);
+    let (left, top) = (170.0, 110.0);
+    let w = left + cw * features.len() as f64 + 20.0;
+    let h = top + ch * o.profiles.len() as f64 + 40.0;
+    let title = "how segments differ (standardised difference from all records)";
+    let mut doc = document(w.max(520.0), h, title);
+    for (j, f) in features.iter().enumerate() {
+        let x = left + cw * j as f64 + cw / 2.0;
+        doc = doc.add(
+            text(x, top - 8.0, *f, "start")
+                .set("transform", format!("rotate(-40 {x} {})", top - 8.0)),
+        );
+    }
+    for (i, p) in o.profiles.iter().enumerate() {
+        let y = top + ch * i as f64;
+        let name = format!(
+            "{} {}",
+            p.segment.unwrap_or(i + 1),
+            p.label.clone().unwrap_or_default()
+        );
+        doc = doc.add(text(left - 6.0, y + 17.0, name, "end"));
+        for (j, fs) in p.features.iter().enumerate() {
+            let x = left + cw * j as f64;
+            doc = doc
+                .add(
+                    Rectangle::new()
+                        .set("x", x)
+                        .set("y", y)
+                        .set("width", cw - 2.0)
+                        .set("height", ch - 2.0)
+                        .set("fill", diverging(fs.std_diff))
+                        .add(Title::new(format!(
+                            "{}: mean {} ({:+.2} sd)",
+                            features[j],
+                            fmt(fs.mean),
+                            fs.std_diff
+                        ))),
+                )
+                .add(text(
+                    x + cw / 2.0,
+                    y + 17.0,
+                    format!("{:+.1}", fs.std_diff),
+                    "middle",
+                ));
+        }
+    }
+    doc = doc.add(text(
+        left,
+        h - 12.0,
+        "blue: below the average of all records; amber: above",
+        "start",
+    ));
+    Chart {
+        name: "heat-map",
+        title: title.to_string(),
+        svg: doc.to_string(),
+    }
+}
+
+/// Records on their first two principal components (of the clustered
+/// space), coloured and shaped by segment; at most `MAX_POINTS` records,
+/// every n-th in record order.
+pub fn projection(o: &Outcome) -> Chart {
+    const MAX_POINTS: usize = 3000;
+    let x = o.prepared.matrix.view();
+    let p = pca::principal_components(x, 2);
+    let scores = p.project(x);
+    let n = scores.nrows();
+    let step = n.div_ceil(MAX_POINTS).max(1);
+    let total_var: f64 = (0..x.ncols())
+        .map(|f| crate::engine::stats::sd_population(&x.column(f).to_vec()).map_or(0.0, |s| s * s))
+        .sum();
+    let share = |c: usize| {
+        p.variance
+            .get(c)
+            .map_or(0.0, |v| v / total_var.max(1e-300) * 100.0)
+    };
+    let (w, h) = (780.0, 480.0);
+    let title = format!(
+        "records on their first two principal components ({} of {n} shown)",
+        n.div_ceil(step)
+    );
+    let mut doc = document(w, h, &title);
+    let cx = |i| {
+        if scores.ncols() > 0 {
+            scores[[i, 0]]
+        } else {
+            0.0
+        }
+    };
+    let cy = |i| {
+        if scores.ncols() > 1 {
+            scores[[i, 1]]
+        } else {
+            0.0
+        }
+    };
+    let (x0, x1) = range((0..n).map(cx));
+    let (y0, y1) = range((0..n).map(cy));
+    let xs = Scale::new(x0, x1, 60.0, w - 230.0);
+    let ys = Scale::new(y0, y1, h - 50.0, 40.0);
+    doc = doc
+        .add(line(xs.from, ys.from, xs.to, ys.from, INK))
+        .add(line(xs.from, ys.from, xs.from, ys.to, INK))
+        .add(text(
+            (xs.from + xs.to) / 2.0,
+            h - 15.0,
+            format!("first component ({:.0}% of the variance)", share(0)),
+            "middle",
+        ))
+        .add(
+            text(
+                18.0,
+                (ys.from + ys.to) / 2.0,
+                format!("second component ({:.0}%)", share(1)),
+                "middle",
+            )
+            .set(
+                "transform",
+                format!("rotate(-90 18 {})", (ys.from + ys.to) / 2.0),
+            ),
+        );
+    let mut points = Group::new().set("fill-opacity", 0.75);
+    for (i, a) in o.assignments.iter().enumerate().step_by(step) {
+        let s = a.segment - 1;
+        points = points.add(marker(s, xs.at(cx(i)), ys.at(cy(i)), 2.6));
+    }
+    doc = doc.add(points);
+    for (s, prof) in o.profiles.iter().enumerate() {
+        let y = 50.0 + 20.0 * s as f64;
+        doc = doc.add(marker(s, w - 200.0, y - 4.0, 4.0)).add(text(
+            w - 191.0,
+            y,
+            format!("{} {}", s + 1, prof.label.clone().unwrap_or_default()),
+            "start",
+        ));
+    }
+    Chart {
+        name: "projection",
+        title,
+        svg: doc.to_string(),
+    }
+}
+
+/// A segment's marker: its colour and one of four shapes.
+fn marker(segment: usize, x: f64, y: f64, r: f64) -> Group {
+    let fill = colour(segment);
+    let shape = match segment % 4 {
+        0 => svg::node::element::Element::from(Circle::new().set("cx", x).set("cy", y).set("r", r)),
+        1 => Rectangle::new()
+            .set("x", x - r)
+            .set("y", y - r)
+            .set("width", 2.0 * r)
+            .set("height", 2.0 * r)
+            .into(),
+        2 => svg::node::element::Polygon::new()
+            .set(
+                "points",
+                format!(
+                    "{x:.1},{:.1} {:.1},{:.1} {:.1},{:.1}",
+                    y - r * 1.2,
+                    x - r * 1.1,
+                    y + r * 0.9,
+                    x + r * 1.1,
+                    y + r * 0.9
+                ),
+            )
+            .into(),
+        _ => svg::node::element::Polygon::new()
+            .set(
+                "points",
+                format!(
+                    "{x:.1},{:.1} {:.1},{y:.1} {x:.1},{:.1} {:.1},{y:.1}",
+                    y - r * 1.3,
+                    x + r * 1.3,
+                    y + r * 1.3,
+                    x - r * 1.3
+                ),
+            )
+            .into(),
+    };
+    Group::new().set("fill", fill).add(shape)
+}
+
+/// The top of the tree: its last merges, the groups below them drawn as
+/// leaves with their record counts, and the cut at the chosen k.
+pub fn dendrogram(o: &Outcome) -> Option<Chart> {
+    let t = o.tree.as_ref()?;
+    let d = &t.dendrogram;
+    let n = d.n;
+    let shown = d.merges.len().min(40);
+    if shown == 0 {
+        return None;
+    }
+    let first = d.merges.len() - shown;
+    // Groups formed by the merges below the shown ones are leaves here.
+    let mut size = vec![1usize; n];
+    size.extend(d.merges.iter().map(|m| m.size));
+    let is_leaf = |id: usize| id < n + first;
+    // Leaf order: depth first from the root, the first-named side first.
+    let mut order = Vec::new();
+    let mut stack = vec![n + d.merges.len() - 1];
+    while let Some(id) = stack.pop() {
+        if is_leaf(id) {
+            order.push(id);
+        } else {
+            let m = &d.merges[id - n];
+            stack.push(m.b);
+            stack.push(m.a);
+        }
+    }
+    let (w, h) = (40.0 + 22.0 * order.len() as f64 + 40.0, 420.0);
+    let w = w.max(520.0);
+    let title = format!(
+        "the top {shown} merges of the tree ({} linkage), cut into {} segments",
+        t.linkage.name(),
+        o.chosen
+    );
+    let mut doc = document(w, h, &title);
+    let top = d.merges.last().map_or(1.0, |m| m.height);
+    let base = d
+        .merges
+        .get(first.saturating_sub(1))
+        .map_or(0.0, |m| m.height)
+        .min(top);
+    let ys = Scale::new(base, top, h - 60.0, 40.0);
+    let xs = |pos: usize| 50.0 + 22.0 * pos as f64;
+    let mut x_of = std::collections::HashMap::new();
+    let mut y_of = std::collections::HashMap::new();
+    for (pos, &id) in order.iter().enumerate() {
+        x_of.insert(id, xs(pos));
+        y_of.insert(id, ys.from);
+        doc = doc.add(
+            text(xs(pos), h - 44.0, format!("{}", size[id]), "middle")
+                .set("transform", format!("rotate(-60 {} {})", xs(pos), h - 44.0)),
+        );
+    }
+    for (i, m) in d.merges.iter().enumerate().skip(first) {
+        let id = n + i;
+        let (xa, xb) = (x_of[&m.a], x_of[&m.b]);
+        let (ya, yb) = (y_of[&m.a], y_of[&m.b]);
+        let y = ys.at(m.height);
+        doc = doc.add(
+            Polyline::new()
+                .set(
+                    "points",
+                    format!("{xa:.1},{ya:.1} {xa:.1},{y:.1} {xb:.1},{y:.1} {xb:.1},{yb:.1}"),
+                )
+                .set("fill", "none")
+                .set("stroke", SEGMENT_COLOURS[0])
+                .set("stroke-width", 1.5),
+        );
+        x_of.insert(id, (xa + xb) / 2.0);
+        y_of.insert(id, y);
+    }
+    // The cut: between the last merge kept and the first undone.
+    let k = o.chosen;
+    if k >= 2 && k <= d.merges.len() + 1 {
+        let kept = d
+            .merges
+            .get(d.merges.len() + 1 - k - 1)
+            .map_or(base, |m| m.height);
+        let undone = d.merges[d.merges.len() + 1 - k].height;
+        let y = ys.at(((kept + undone) / 2.0).clamp(base, top));
+        doc = doc
+            .add(
+                line(30.0, y, w - 20.0, y, SEGMENT_COLOURS[1])
+                    .set("stroke-dasharray", "6 4")
+                    .set("stroke-width", 2),
+            )
+            .add(text(w - 20.0, y - 4.0, format!("cut: {k} segments"), "end"));
+    }
+    doc = doc.add(text(
+        50.0,
+        h - 8.0,
+        "leaves: groups below the merges shown, with their record counts",
+        "start",
+    ));
+    Some(Chart {
+        name: "dendrogram",
+        title,
+        svg: doc.to_string(),
+    })
+}

@@ -1,0 +1,348 @@
+//! The report: one self-contained HTML file (no scripts, nothing fetched)
+//! that a manager can read in two minutes: what was segmented and how, why
+//! this k, a card per segment in plain words, the charts, where the run
+//! came from, and the cautions. The markup is well-formed XML as well as
+//! HTML, so it can be checked by any XML parser.
+
+// Markup is written a piece at a time, each ending its own line; the line
+// breaks belong to the markup, so `write!` with a final `\n` is intended.
+#![allow(clippy::write_with_newline)]
+
+use super::charts;
+use super::record::{input_digests, sha256_hex};
+use crate::plan::{MethodPlan, MissingRule, Transform};
+use crate::run::Outcome;
+use std::fmt::Write;
+
+const STYLE: &str = "body{font-family:sans-serif;max-width:980px;margin:2em auto;padding:0 1em;color:#222;line-height:1.45}\
+h1{font-size:1.6em;margin-bottom:.2em}h2{font-size:1.2em;border-bottom:1px solid #ccc;padding-bottom:.2em;margin-top:1.8em}\
+.lead{font-size:1.05em;color:#444}.cards{display:flex;flex-wrap:wrap;gap:12px}\
+.card{border:1px solid #ccc;border-left:8px solid #999;border-radius:4px;padding:.6em .9em;width:262px}\
+.card h3{margin:.1em 0 .4em 0;font-size:1.05em}.card ul{padding-left:1.1em;margin:.3em 0}.small{font-size:.9em;color:#555}\
+table{border-collapse:collapse;font-size:.92em}td,th{border-bottom:1px solid #e3e3e3;padding:.25em .6em;text-align:right}\
+th:first-child,td:first-child{text-align:left}.chosen{font-weight:bold;background:#fff4e0}\
+figure{margin:1.2em 0}figcaption{font-size:.9em;color:#555}.caution{background:#fbf6e8;border:1px solid #e8d9a8;padding:.6em .9em}\
+code{font-size:.95em}";
+
+/// Escapes text for HTML.
+fn esc(s: &str) -> String {
+    s.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+        .replace('"', "&quot;")
+}
+
+fn short(v: f64) -> String {
+    crate::output::short(v)
+}
+
+/// How far a standardised difference is from the average, in words.
+fn degree(d: f64) -> &'static str {
+    match d {
+        d if d >= 1.0 => "well above",
+        d if d >= 0.5 => "above",
+        d if d >= 0.25 => "slightly above",
+        d if d <= -1.0 => "well below",
+        d if d <= -0.5 => "below",
+        d if d <= -0.25 => "slightly below",
+        _ => "close to",
+    }
+}
+
+/// The report's bytes. `recipe_text` is the recipe the run came from.
+pub fn render(o: &Outcome, recipe_text: &str) -> Vec<u8> {
+    let mut h = String::new();
+    let plan = &o.plan;
+    let _ = write!(
+        h,
+        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"/><title>Segments: {}</title><style>{STYLE}</style></head><body>\n",
+        esc(&plan.name)
+    );
+    let method = match &plan.method {
+        MethodPlan::KMeans(k) => format!("k-means ({} restarts per k)", k.restarts),
+        MethodPlan::Tree(t) => format!(
+            "an agglomerative tree ({} linkage, {} distance{})",
+            t.linkage.name(),
+            t.distance.name(),
+            t.micro
+                .as_ref()
+                .map(|m| format!(", over {} k-means micro-segments", m.segments))
+                .unwrap_or_default()
+        ),
+    };
+    let _ = write!(
+        h,
+        "<h1>Segments: {}</h1>\n<p class=\"lead\">{} of {} records from <code>{}</code> were put into <b>{} segments</b> by {}.</p>\n",
+        esc(&plan.name),
+        o.prepared.kept.len(),
+        o.records,
+        esc(&plan.input.path),
+        o.chosen,
+        esc(&method)
+    );
+    how(&mut h, o);
+    why(&mut h, o);
+    cards(&mut h, o);
+    let _ = write!(h, "<h2>Charts</h2>\n");
+    for c in charts::all(o) {
+        let _ = write!(
+            h,
+            "<figure>{}<figcaption>{}</figcaption></figure>\n",
+            c.svg,
+            esc(&c.title)
+        );
+    }
+    provenance(&mut h, o, recipe_text);
+    let _ = write!(
+        h,
+        "<h2>Cautions</h2>\n<div class=\"caution\"><p>Segments describe behaviour in the data, not who people are. \
+         Segmenting or targeting people on direct identifiers or protected attributes (age, sex or gender, ethnicity, religion, health, disability and the like) may be unlawful or unfair; \
+         local law and your organisation's privacy practice decide. Segments are found by an algorithm: check that they make sense before acting on them, \
+         and rerun the recipe (<code>assort verify</code>) before relying on numbers copied from this page.</p></div>\n"
+    );
+    let _ = write!(
+        h,
+        "<p class=\"small\">Written by assort {}.</p>\n</body></html>\n",
+        env!("CARGO_PKG_VERSION")
+    );
+    h.into_bytes()
+}
+
+fn how(h: &mut String, o: &Outcome) {
+    let plan = &o.plan;
+    let _ = write!(h, "<h2>What was segmented, and how</h2>\n<ul>\n");
+    let features: Vec<String> = plan
+        .features
+        .iter()
+        .map(|f| {
+            let mut s = format!("<code>{}</code>", esc(&f.column));
+            if f.transform != Transform::None {
+                let _ = write!(s, " ({})", esc(&serde_plain(&f.transform)));
+            }
+            if let Some((lo, hi)) = f.clip {
+                let _ = write!(
+                    s,
+                    " (clipped at the {}% and {}% quantiles)",
+                    lo * 100.0,
+                    hi * 100.0
+                );
+            }
+            if f.weight != 1.0 {
+                let _ = write!(s, " (weight {})", f.weight);
+            }
+            s
+        })
+        .collect();
+    let _ = write!(h, "<li>Behaviour: {}.</li>\n", features.join(", "));
+    if !plan.categories.is_empty() {
+        let cats: Vec<String> = plan
+            .categories
+            .iter()
+            .map(|c| format!("<code>{}</code> (weight {})", esc(&c.column), c.weight))
+            .collect();
+        let _ = write!(h, "<li>Categories: {}.</li>\n", cats.join(", "));
+    }
+    let filled: Vec<String> = o
+        .prepared
+        .features
+        .iter()
+        .filter(|f| f.filled > 0)
+        .map(|f| format!("{} in <code>{}</code>", f.filled, esc(&f.column)))
+        .collect();
+    let rules: Vec<&str> = plan
+        .features
+        .iter()
+        .map(|f| match f.missing {
+            MissingRule::FillMedian => "filled with the median",
+            MissingRule::FillMean => "filled with the mean",
+            MissingRule::FillValue(_) => "filled with a fixed value",
+            MissingRule::DropRow => "records dropped",
+            MissingRule::Refuse => "none allowed",
+        })
+        .collect();
+    let mut rules_d = rules.clone();
+    rules_d.dedup();
+    let _ = write!(
+        h,
+        "<li>Missing values: {}{}; {} records dropped.</li>\n",
+        rules_d.join(", "),
+        if filled.is_empty() {
+            String::new()
+        } else {
+            format!(" ({} filled)", filled.join(", "))
+        },
+        o.prepared.dropped
+    );
+    let _ = write!(h, "<li>Scaling: {}.</li>\n", esc(&serde_plain(&plan.scale)));
+    let _ = write!(
+        h,
+        "<li>Seed {}: rerunning the recipe on the same data gives the same segments.</li>\n</ul>\n",
+        plan.seed
+    );
+}
+
+fn serde_plain<T: serde::Serialize>(v: &T) -> String {
+    serde_json::to_value(v)
+        .ok()
+        .and_then(|v| v.as_str().map(str::to_string))
+        .unwrap_or_default()
+}
+
+fn why(h: &mut String, o: &Outcome) {
+    let _ = write!(
+        h,
+        "<h2>Why {} segments</h2>\n<p>{}.</p>\n",
+        o.chosen,
+        esc(&o.reason)
+    );
+    for s in o.disagreement.iter().chain(&o.notes).chain(&o.advice) {
+        let _ = write!(h, "<p class=\"small\">{}.</p>\n", esc(s));
+    }
+    if let Some(v) = &o.validation {
+        let _ = write!(h, "<p class=\"small\">Against the known grouping <code>{}</code>: adjusted Rand index {:.3}.</p>\n", esc(&v.column), v.adjusted_rand_index);
+    }
+    let _ = write!(h, "<table><tr><th>k</th><th>within SS</th><th>silhouette</th><th>Calinski-Harabasz</th><th>Davies-Bouldin</th>");
+    let gap = o.sweep.iter().any(|r| r.gap.is_some());
+    let stab = o.sweep.iter().any(|r| r.stability.is_some());
+    if gap {
+        let _ = write!(h, "<th>gap (se)</th>");
+    }
+    if stab {
+        let _ = write!(h, "<th>stability</th>");
+    }
+    let _ = write!(h, "</tr>\n");
+    for r in &o.sweep {
+        let class = if r.k == o.chosen {
+            " class=\"chosen\""
+        } else {
+            ""
+        };
+        let _ = write!(
+            h,
+            "<tr{class}><td>{}</td><td>{:.2}</td><td>{:.4}</td><td>{:.1}</td><td>{:.4}</td>",
+            r.k, r.within_ss, r.silhouette, r.calinski_harabasz, r.davies_bouldin
+        );
+        if gap {
+            let _ = write!(
+                h,
+                "<td>{}</td>",
+                r.gap
+                    .map(|(g, s)| format!("{g:.3} ({s:.3})"))
+                    .unwrap_or_default()
+            );
+        }
+        if stab {
+            let _ = write!(
+                h,
+                "<td>{}</td>",
+                r.stability.map(|s| format!("{s:.3}")).unwrap_or_default()
+            );
+        }
+        let _ = write!(h, "</tr>\n");
+    }
+    let _ = write!(h, "</table>\n");
+}
+
+fn cards(h: &mut String, o: &Outcome) {
+    let _ = write!(h, "<h2>The segments</h2>\n<div class=\"cards\">\n");
+    for (i, p) in o.profiles.iter().enumerate() {
+        let seg = p.segment.unwrap_or(i + 1);
+        let name = p
+            .label
+            .clone()
+            .map(|l| format!(": {}", esc(&l)))
+            .unwrap_or_default();
+        let _ = write!(
+            h,
+            "<div class=\"card\" style=\"border-left-color:{}\"><h3>Segment {seg}{name}</h3>\n<p>{} records, {:.1}% of all</p>\n<ul>\n",
+            charts::SEGMENT_COLOURS[i % charts::SEGMENT_COLOURS.len()],
+            p.size,
+            p.share * 100.0
+        );
+        let mut order: Vec<usize> = (0..p.features.len()).collect();
+        order.sort_by(|&a, &b| {
+            p.features[b]
+                .std_diff
+                .abs()
+                .total_cmp(&p.features[a].std_diff.abs())
+        });
+        for &f in order.iter().take(3) {
+            let fs = &p.features[f];
+            let _ = write!(
+                h,
+                "<li><code>{}</code> {} average: {} here, {} over all records</li>\n",
+                esc(&o.prepared.features[f].column),
+                degree(fs.std_diff),
+                short(fs.mean),
+                short(o.overall.features[f].mean)
+            );
+        }
+        let _ = write!(h, "</ul>\n");
+        for (c, cat) in o.prepared.categories.iter().enumerate() {
+            let over: Vec<String> = cat
+                .levels
+                .iter()
+                .enumerate()
+                .filter(|(l, _)| p.categories[c][*l] - o.overall.categories[c][*l] >= 0.05)
+                .map(|(l, name)| {
+                    format!(
+                        "{} {:.0}% ({:.0}% overall)",
+                        esc(name),
+                        p.categories[c][l] * 100.0,
+                        o.overall.categories[c][l] * 100.0
+                    )
+                })
+                .collect();
+            if !over.is_empty() {
+                let _ = write!(
+                    h,
+                    "<p class=\"small\">More often <code>{}</code>: {}.</p>\n",
+                    esc(&cat.column),
+                    over.join("; ")
+                );
+            }
+        }
+        if let Some(s) = p.silhouette {
+            let _ = write!(h, "<p class=\"small\">Silhouette {s:.2}");
+            if let Some(j) = p.stability {
+                let verdict = if j < crate::engine::evidence::UNSTABLE_BELOW {
+                    "unstable"
+                } else {
+                    "stable"
+                };
+                let _ = write!(
+                    h,
+                    "; recovered under resampling with a mean Jaccard of {j:.2} ({verdict})"
+                );
+            }
+            let _ = write!(h, ".</p>\n");
+        }
+        let _ = write!(h, "</div>\n");
+    }
+    let _ = write!(h, "</div>\n");
+}
+
+fn provenance(h: &mut String, o: &Outcome, recipe_text: &str) {
+    let _ = write!(h, "<h2>Where these results come from</h2>\n<table>\n");
+    let _ = write!(
+        h,
+        "<tr><td>recipe</td><td><code>{}</code></td></tr>\n",
+        sha256_hex(recipe_text.as_bytes())
+    );
+    for i in input_digests(o) {
+        let _ = write!(
+            h,
+            "<tr><td>{} <code>{}</code> ({} records)</td><td><code>{}</code></td></tr>\n",
+            esc(&i.role),
+            esc(&i.path),
+            i.records,
+            i.sha256
+        );
+    }
+    let _ = write!(
+        h,
+        "<tr><td>seed, generator</td><td>{}, {}</td></tr>\n</table>\n<p class=\"small\">SHA-256 digests; the run record beside the outputs holds the digest of every file written.</p>\n",
+        o.plan.seed,
+        esc(crate::engine::rng::GENERATOR)
+    );
+}
