@@ -51,6 +51,21 @@ pub struct Silhouette {
     pub per_segment: Vec<f64>,
     /// Records whose silhouette was computed; `n` when exact.
     pub evaluated: usize,
+    /// Each segment's evaluated silhouettes, sorted from highest to lowest
+    /// (for a silhouette chart).
+    pub values: Vec<Vec<f64>>,
+}
+
+/// Sorts each segment's values from highest to lowest.
+fn by_segment(values: impl Iterator<Item = (u32, f64)>, k: usize) -> Vec<Vec<f64>> {
+    let mut out = vec![Vec::new(); k];
+    for (l, v) in values {
+        out[l as usize].push(v);
+    }
+    for v in out.iter_mut() {
+        v.sort_by(|a, b| b.total_cmp(a));
+    }
+    out
 }
 
 fn rows<'a>(data: &ArrayView2<'a, f64>) -> Vec<&'a [f64]> {
@@ -213,6 +228,7 @@ pub fn silhouette(
             mean: s.iter().sum::<f64>() / n as f64,
             per_segment: per,
             evaluated: n,
+            values: by_segment(labels.iter().copied().zip(s.iter().copied()), k),
         };
     }
 
@@ -235,10 +251,12 @@ pub fn silhouette(
     }
     let mut per = vec![0.0; k];
     let mut evaluated = 0;
+    let mut sampled = Vec::new();
     for (c, idx) in chosen.iter().enumerate() {
         let s = silhouettes(idx, &all, labels, &n_of);
         evaluated += s.len();
         per[c] = s.iter().sum::<f64>() / s.len().max(1) as f64;
+        sampled.extend(s.into_iter().map(|v| (c as u32, v)));
     }
     let mean = per
         .iter()
@@ -250,6 +268,7 @@ pub fn silhouette(
         mean,
         per_segment: per,
         evaluated,
+        values: by_segment(sampled.into_iter(), k),
     }
 }
 

@@ -271,21 +271,88 @@ pub fn sizes(o: &Outcome) -> Chart {
     )
 }
 
+/// The silhouette chart: for each segment, its records' silhouettes from
+/// highest to lowest as a filled profile (each segment's height in
+/// proportion to its size), the overall mean as a dashed line.
 pub fn silhouettes(o: &Outcome) -> Chart {
+    let total: usize = o.silhouettes.iter().map(Vec::len).sum::<usize>().max(1);
     let lo = o
-        .profiles
+        .silhouettes
         .iter()
-        .filter_map(|p| p.silhouette)
-        .fold(0.0, f64::min);
-    bars(
-        "mean silhouette of each segment (1: well apart, 0: on a border)",
-        "silhouettes",
-        o,
-        |i| o.profiles[i].silhouette.unwrap_or(0.0),
-        |i| format!("{:.3}", o.profiles[i].silhouette.unwrap_or(0.0)),
-        lo,
-        1.0,
-    )
+        .flatten()
+        .copied()
+        .fold(0.0_f64, f64::min)
+        .max(-1.0);
+    let (w, body) = (700.0, 380.0);
+    let gap = 8.0;
+    let h = 60.0 + body + gap * o.silhouettes.len() as f64;
+    let title = "silhouette of every record, by segment (1: well inside its segment, 0: on a border, below 0: nearer another)";
+    let mut doc = document(w, h, "silhouette of every record, by segment");
+    let xs = Scale::new(lo, 1.0, 200.0, w - 30.0);
+    let zero = xs.at(0.0);
+    let mut y = 36.0;
+    for (s, values) in o.silhouettes.iter().enumerate() {
+        let bh = (body * values.len() as f64 / total as f64).max(10.0);
+        // At most 150 points per profile: evenly spaced ranks.
+        let m = values.len().min(150).max(1);
+        let mut pts = vec![format!("{zero:.1},{y:.1}")];
+        for t in 0..m {
+            let idx = if m == 1 {
+                0
+            } else {
+                t * (values.len() - 1) / (m - 1)
+            };
+            let v = values.get(idx).copied().unwrap_or(0.0);
+            let yy = y + bh * (t as f64 + 0.5) / m as f64;
+            pts.push(format!("{:.1},{yy:.1}", xs.at(v)));
+        }
+        pts.push(format!("{zero:.1},{:.1}", y + bh));
+        let mean = o.profiles.get(s).and_then(|p| p.silhouette).unwrap_or(0.0);
+        let name = format!(
+            "{} {}",
+            s + 1,
+            o.profiles
+                .get(s)
+                .and_then(|p| p.label.clone())
+                .unwrap_or_default()
+        );
+        doc = doc
+            .add(
+                svg::node::element::Polygon::new()
+                    .set("points", pts.join(" "))
+                    .set("fill", colour(s))
+                    .add(Title::new(format!("{name}: mean {mean:.3}"))),
+            )
+            .add(text(
+                192.0,
+                y + bh / 2.0 + 4.0,
+                format!("{name} ({mean:.2})"),
+                "end",
+            ));
+        y += bh + gap;
+    }
+    doc = doc.add(line(zero, 30.0, zero, y, INK));
+    if let Some(r) = o.sweep.iter().find(|r| r.k == o.chosen) {
+        let mx = xs.at(r.silhouette);
+        doc = doc
+            .add(line(mx, 30.0, mx, y, SEGMENT_COLOURS[1]).set("stroke-dasharray", "5 3"))
+            .add(text(
+                mx + 4.0,
+                30.0,
+                format!("mean {:.3}", r.silhouette),
+                "start",
+            ));
+    }
+    for v in [lo, 0.0, 0.5, 1.0] {
+        if v >= lo && (v == 0.0 || (v - 0.0).abs() > 0.1) {
+            doc = doc.add(text(xs.at(v), h - 6.0, fmt(v), "middle"));
+        }
+    }
+    Chart {
+        name: "silhouettes",
+        title: title.to_string(),
+        svg: doc.to_string(),
+    }
 }
 
 /// Blue (below) through white to amber (above), by standardised difference

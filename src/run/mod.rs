@@ -155,6 +155,8 @@ pub struct Outcome {
     pub centres: Array2<f64>,
     /// The comparison with an earlier segmentation, when asked for.
     pub comparison: Option<comparison::Comparison>,
+    /// For the chosen k, each segment's silhouettes, highest first.
+    pub silhouettes: Vec<Vec<f64>>,
 }
 
 /// Runs a plan.
@@ -276,6 +278,7 @@ pub fn run_with(
 
     let mut sweep = Vec::with_capacity(candidates.len());
     let mut per_segment_silhouette = Vec::with_capacity(candidates.len());
+    let mut silhouette_values = Vec::with_capacity(candidates.len());
     for (i, c) in candidates.iter().enumerate() {
         progress(Step {
             what: "judging each k",
@@ -296,6 +299,7 @@ pub fn run_with(
             stability: None,
         });
         per_segment_silhouette.push(sil.per_segment);
+        silhouette_values.push(sil.values);
     }
 
     // Evidence that reclusters: reference sets and resamples.
@@ -430,6 +434,7 @@ pub fn run_with(
         tree,
         centres: candidates[at].centres.clone(),
         comparison,
+        silhouettes: silhouette_values.swap_remove(at),
     })
 }
 
