@@ -294,7 +294,7 @@ pub fn silhouettes(o: &Outcome) -> Chart {
     for (s, values) in o.silhouettes.iter().enumerate() {
         let bh = (body * values.len() as f64 / total as f64).max(10.0);
         // At most 150 points per profile: evenly spaced ranks.
-        let m = values.len().min(150).max(1);
+        let m = values.len().clamp(1, 150);
         let mut pts = vec![format!("{zero:.1},{y:.1}")];
         for t in 0..m {
             let idx = if m == 1 {
