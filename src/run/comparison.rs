@@ -40,11 +40,7 @@ pub fn read_assignments(path: &std::path::Path, shown: &str) -> Result<Vec<Assig
         file: shown.to_string(),
         reason: e.to_string(),
     })?;
-    let malformed = |e: csv::Error| RunError::Malformed {
-        file: shown.to_string(),
-        line: e.position().map_or(1, |p| p.line()),
-        reason: e.to_string(),
-    };
+    let malformed = |e: csv::Error| super::load::malformed(shown, &e);
     let header = reader.headers().map_err(malformed)?.clone();
     let seg = header
         .iter()

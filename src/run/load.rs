@@ -132,7 +132,8 @@ pub fn load(
     Ok(table)
 }
 
-fn malformed(file: &str, e: &csv::Error) -> RunError {
+/// A CSV reading error as a located run error.
+pub(crate) fn malformed(file: &str, e: &csv::Error) -> RunError {
     let line = e.position().map(|p| p.line()).unwrap_or(1);
     let reason = match e.kind() {
         csv::ErrorKind::UnequalLengths {

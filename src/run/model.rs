@@ -242,11 +242,7 @@ pub fn read_for_scoring(
     let mut reader = csv::ReaderBuilder::new()
         .delimiter(model.separator as u8)
         .from_reader(std::io::BufReader::new(file));
-    let malformed = |e: csv::Error| RunError::Malformed {
-        file: shown.to_string(),
-        line: e.position().map_or(1, |p| p.line()),
-        reason: e.to_string(),
-    };
+    let malformed = |e: csv::Error| super::load::malformed(shown, &e);
     let header = reader.headers().map_err(malformed)?.clone();
     let index_of = |name: &str| {
         header
