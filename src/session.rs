@@ -207,7 +207,7 @@ impl Session {
 
     /// The recipe in canonical layout, as `save` writes it.
     pub fn formatted(&self) -> String {
-        crate::syntax::format::format(&self.text()).unwrap_or_else(|_| self.text())
+        check::format(&self.text()).unwrap_or_else(|| self.text())
     }
 
     /// Saves the recipe, formatted, to `path`. Paths inside it stay
