@@ -10,10 +10,10 @@
 //! already read while the file and the columns asked for are unchanged, so
 //! changing k does not read the file again.
 
+use crate::check::Span;
 use crate::check::{self, diagnostic, vocab, CheckOptions, Checked, RecipeSource};
 use crate::output::tables;
 use crate::run::{self, DataCache, Outcome};
-use crate::syntax::ast::Span;
 use miette::Diagnostic;
 use std::path::{Path, PathBuf};
 

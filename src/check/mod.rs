@@ -6,6 +6,9 @@
 //! names and kinds, never the whole file. All problems are collected, not
 //! only the first.
 
+/// Byte spans, as the front ends see them.
+pub use crate::syntax::ast::Span;
+
 pub mod caution;
 pub mod complete;
 pub mod diagnostic;
