@@ -1523,3 +1523,37 @@ fn every_chart_is_well_formed_svg_for_kmeans_and_tree_recipes() {
         }
     }
 }
+
+#[test]
+fn on_a_terminal_colour_shows_unless_no_color_is_set() {
+    // `script` (util-linux, an essential Debian package) runs the command
+    // under a pseudo-terminal, as a person at a terminal would.
+    let case = Case::demo();
+    case.edit(DEMO, "scale zscore", "scale zscor");
+    let under_terminal = |no_color: bool| {
+        let mut cmd = Command::new("script");
+        cmd.args([
+            "-qec",
+            &format!("{} check {DEMO}", env!("CARGO_BIN_EXE_assort")),
+            "/dev/null",
+        ])
+        .current_dir(case.dir.path())
+        .env_remove("NO_COLOR");
+        if no_color {
+            cmd.env("NO_COLOR", "1");
+        }
+        let out = cmd
+            .output()
+            .expect("`script` runs the command under a terminal");
+        String::from_utf8_lossy(&out.stdout).into_owned()
+    };
+    let coloured = under_terminal(false);
+    assert!(coloured.contains("unknown scale method"), "{coloured}");
+    assert!(coloured.contains('\u{1b}'), "no colour on a terminal");
+    let plain = under_terminal(true);
+    assert!(plain.contains("unknown scale method"), "{plain}");
+    assert!(
+        !plain.contains('\u{1b}'),
+        "escape codes despite NO_COLOR:\n{plain}"
+    );
+}
