@@ -229,6 +229,10 @@ pub fn linkage_weighted(
     Ok(label_steps(n, &sizes, steps, sorted))
 }
 
+/// Active clusters above which a chain step's scan and update are split
+/// across threads.
+const PARALLEL_SCAN_MIN: usize = 4096;
+
 /// A merge of the clusters held in two slots, before ids are assigned.
 type Step = (usize, usize, f64);
 
@@ -321,7 +325,7 @@ trait ChainSpace {
     /// Distance between the clusters in slots x and y.
     fn distance(&self, x: usize, y: usize) -> f64;
     /// Merges slot `a` into slot `b` (a < b); `a` is retired afterwards.
-    fn merge(&mut self, active: &[bool], a: usize, b: usize);
+    fn merge(&mut self, alive: &[usize], a: usize, b: usize);
 }
 
 /// The nearest-neighbour chain (Müllner 2011, algorithm NN-chain-linkage):
@@ -329,15 +333,13 @@ trait ChainSpace {
 /// them into the higher slot, and goes on from the rest of the chain. The
 /// previous chain element wins a tie, then the lowest slot.
 fn chain<S: ChainSpace + Sync>(n: usize, space: &mut S) -> Vec<Step> {
-    let mut active = vec![true; n];
+    // The clusters still active, ascending; scans shrink as merges proceed.
+    let mut alive: Vec<usize> = (0..n).collect();
     let mut steps = Vec::with_capacity(n.saturating_sub(1));
     let mut stack: Vec<usize> = Vec::new();
-    let mut remaining = n;
-    while remaining > 1 {
+    while alive.len() > 1 {
         if stack.is_empty() {
-            if let Some(first) = (0..n).find(|&i| active[i]) {
-                stack.push(first);
-            }
+            stack.push(alive[0]);
         }
         let x = stack[stack.len() - 1];
         let prev = if stack.len() >= 2 {
@@ -346,20 +348,28 @@ fn chain<S: ChainSpace + Sync>(n: usize, space: &mut S) -> Vec<Step> {
             None
         };
         let sp: &S = space;
-        let found = (0..n)
-            .into_par_iter()
-            .filter(|&j| j != x && active[j])
-            .map(|j| (j, sp.distance(x, j)))
-            .reduce(
-                || (usize::MAX, f64::INFINITY),
-                |p, q| {
-                    if q.1 < p.1 || (q.1 == p.1 && q.0 < p.0) {
-                        q
-                    } else {
-                        p
-                    }
-                },
-            );
+        let better = |p: (usize, f64), q: (usize, f64)| {
+            if q.1 < p.1 || (q.1 == p.1 && q.0 < p.0) {
+                q
+            } else {
+                p
+            }
+        };
+        let none = (usize::MAX, f64::INFINITY);
+        // Threads pay off only on long scans.
+        let found = if alive.len() >= PARALLEL_SCAN_MIN {
+            alive
+                .par_iter()
+                .filter(|&&j| j != x)
+                .map(|&j| (j, sp.distance(x, j)))
+                .reduce(|| none, better)
+        } else {
+            alive
+                .iter()
+                .filter(|&&j| j != x)
+                .map(|&j| (j, sp.distance(x, j)))
+                .fold(none, better)
+        };
         let (y, h) = match prev {
             // The previous element wins ties, which keeps the chain finite.
             Some(p) if space.distance(x, p) <= found.1 => (p, space.distance(x, p)),
@@ -370,9 +380,10 @@ fn chain<S: ChainSpace + Sync>(n: usize, space: &mut S) -> Vec<Step> {
             stack.pop();
             let (a, b) = (x.min(y), x.max(y));
             steps.push((a, b, h));
-            space.merge(&active, a, b);
-            active[a] = false;
-            remaining -= 1;
+            space.merge(&alive, a, b);
+            if let Ok(at) = alive.binary_search(&a) {
+                alive.remove(at);
+            }
         } else {
             stack.push(y);
         }
@@ -393,18 +404,35 @@ impl ChainSpace for MatrixSpace {
         self.m.get(x, y)
     }
 
-    fn merge(&mut self, active: &[bool], a: usize, b: usize) {
+    fn merge(&mut self, alive: &[usize], a: usize, b: usize) {
         let (sa, sb) = (self.size[a], self.size[b]);
-        for i in 0..active.len() {
-            if !active[i] || i == a || i == b {
-                continue;
-            }
-            let (da, db) = (self.m.get(a, i), self.m.get(b, i));
-            let v = match self.linkage {
+        let m = &self.m;
+        let linkage = self.linkage;
+        // New distances are computed in parallel (reads only), then written
+        // in order; each value depends only on its own inputs.
+        let update = |&i: &usize| {
+            let (da, db) = (m.get(a, i), m.get(b, i));
+            let v = match linkage {
                 Linkage::Complete => da.max(db),
                 Linkage::Average => (sa * da + sb * db) / (sa + sb),
                 _ => (da + db) / 2.0,
             };
+            (i, v)
+        };
+        let updates: Vec<(usize, f64)> = if alive.len() >= PARALLEL_SCAN_MIN {
+            alive
+                .par_iter()
+                .filter(|&&i| i != a && i != b)
+                .map(update)
+                .collect()
+        } else {
+            alive
+                .iter()
+                .filter(|&&i| i != a && i != b)
+                .map(update)
+                .collect()
+        };
+        for (i, v) in updates {
             self.m.set(b, i, v);
         }
         self.size[b] = sa + sb;
@@ -437,7 +465,7 @@ impl ChainSpace for WardSpace {
         (2.0 * sx * sy / (sx + sy) * dist2(&self.centre[x], &self.centre[y])).sqrt()
     }
 
-    fn merge(&mut self, _active: &[bool], a: usize, b: usize) {
+    fn merge(&mut self, _alive: &[usize], a: usize, b: usize) {
         let (sa, sb) = (self.size[a], self.size[b]);
         let merged: Vec<f64> = self.centre[a]
             .iter()
