@@ -152,7 +152,7 @@ fn main() -> ExitCode {
                     ExitCode::FAILURE
                 };
                 let progress = Progress::new(recipe.quiet || recipe.json);
-                let (outcome, files) = match run_and_render(source, plan, &progress) {
+                let (outcome, files, _) = match run_and_render(source, plan, &progress) {
                     Ok(x) => x,
                     Err(e) => return fail(&e),
                 };
@@ -367,22 +367,29 @@ fn score_summary(s: &run::model::ScoreSummary) -> String {
     out
 }
 
-/// Runs a plan and renders its files, the run record last; reports a run
-/// error and returns `None` on failure.
+/// Runs a plan and renders its files, the run record last; the record is
+/// also returned, so `verify` compares it without hashing anything again.
 fn run_and_render(
     source: &RecipeSource,
     plan: &Plan,
     progress: &Progress,
-) -> Result<(Outcome, Vec<Rendered>), run::RunError> {
+) -> Result<(Outcome, Vec<Rendered>, record::RunRecord), run::RunError> {
     let outcome = run::run_with(plan, &mut run::DataCache::default(), &|step| {
         progress.step(step)
     })?;
-    let mut files = output::files::render_all(&outcome, &source.text);
+    // Each data file is hashed once; the model, the report and the record
+    // all take the digests from here.
+    let inputs = record::input_digests(&outcome);
+    let sources = output::files::Sources {
+        recipe_text: &source.text,
+        inputs: &inputs,
+    };
+    let mut files = output::files::render_all(&outcome, &sources);
     let rec = record::build(
         &recipe_shown(source),
         &source.text,
         &outcome,
-        record::input_digests(&outcome),
+        inputs.clone(),
         &files,
     );
     let path = record_path(source, plan);
@@ -391,7 +398,7 @@ fn run_and_render(
         path,
         bytes: record::to_bytes(&rec),
     });
-    Ok((outcome, files))
+    Ok((outcome, files, rec))
 }
 
 fn record_path(source: &RecipeSource, plan: &Plan) -> PathBuf {
@@ -442,8 +449,9 @@ fn verify(
         }
     };
     let progress = Progress::new(args.quiet || args.json);
-    let (outcome, files) = match run_and_render(source, plan, &progress) {
-        Ok(x) => x,
+    // The rerun's record, built as a run builds it, is what is compared.
+    let now = match run_and_render(source, plan, &progress) {
+        Ok((_, _, rec)) => rec,
         Err(e) => {
             if args.json {
                 report(false, Vec::new(), Some(output::json::error(&e)));
@@ -454,13 +462,6 @@ fn verify(
         }
     };
     progress.finish();
-    let now = record::build(
-        &recipe_shown(source),
-        &source.text,
-        &outcome,
-        record::input_digests(&outcome),
-        &files[..files.len() - 1],
-    );
     let on_disk: Vec<(String, Option<String>)> = plan
         .outputs
         .iter()

@@ -18,25 +18,37 @@ pub struct Rendered {
 }
 
 /// Builds every output the plan names.
-pub fn render_all(o: &Outcome, recipe_text: &str) -> Vec<Rendered> {
+/// What the outputs say about where a run came from: the recipe's text and
+/// the digests of the data it read, computed once per run.
+pub struct Sources<'a> {
+    pub recipe_text: &'a str,
+    pub inputs: &'a [super::record::InputDigest],
+}
+
+pub fn render_all(o: &Outcome, sources: &Sources<'_>) -> Vec<Rendered> {
     o.plan
         .outputs
         .iter()
-        .map(|out| render(o, out, recipe_text))
+        .map(|out| render(o, out, sources))
         .collect()
 }
 
-fn render(o: &Outcome, out: &OutputPlan, recipe_text: &str) -> Rendered {
+fn render(o: &Outcome, out: &OutputPlan, sources: &Sources<'_>) -> Rendered {
     let bytes = match out.kind {
         OutputKind::Assignments => assignments(o),
         OutputKind::ProfilesCsv => profiles_csv(o),
         OutputKind::ProfilesJson => profiles_json(o),
         OutputKind::Centroids => centroids(o),
         OutputKind::Model => {
-            let sha = super::record::file_sha256(&o.plan.input.resolved).unwrap_or_default();
+            let sha = sources
+                .inputs
+                .iter()
+                .find(|i| i.role == "input")
+                .map(|i| i.sha256.clone())
+                .unwrap_or_default();
             crate::run::model::to_bytes(&crate::run::model::from_outcome(o, sha))
         }
-        OutputKind::Report => super::report::render(o, recipe_text),
+        OutputKind::Report => super::report::render(o, sources),
         OutputKind::Merges => merges(o),
         OutputKind::Newick => newick(o),
     };

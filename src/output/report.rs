@@ -9,7 +9,8 @@
 #![allow(clippy::write_with_newline)]
 
 use super::charts;
-use super::record::{input_digests, sha256_hex};
+use super::files::Sources;
+use super::record::sha256_hex;
 use crate::plan::{MethodPlan, MissingRule, Transform};
 use crate::run::Outcome;
 use std::fmt::Write;
@@ -49,8 +50,8 @@ fn degree(d: f64) -> &'static str {
     }
 }
 
-/// The report's bytes. `recipe_text` is the recipe the run came from.
-pub fn render(o: &Outcome, recipe_text: &str) -> Vec<u8> {
+/// The report's bytes.
+pub fn render(o: &Outcome, sources: &Sources<'_>) -> Vec<u8> {
     let mut h = String::new();
     let plan = &o.plan;
     let _ = write!(
@@ -92,7 +93,7 @@ pub fn render(o: &Outcome, recipe_text: &str) -> Vec<u8> {
             esc(&c.title)
         );
     }
-    provenance(&mut h, o, recipe_text);
+    provenance(&mut h, o, sources);
     let _ = write!(
         h,
         "<h2>Cautions</h2>\n<div class=\"caution\"><p>Segments describe behaviour in the data, not who people are. \
@@ -322,14 +323,14 @@ fn cards(h: &mut String, o: &Outcome) {
     let _ = write!(h, "</div>\n");
 }
 
-fn provenance(h: &mut String, o: &Outcome, recipe_text: &str) {
+fn provenance(h: &mut String, o: &Outcome, sources: &Sources<'_>) {
     let _ = write!(h, "<h2>Where these results come from</h2>\n<table>\n");
     let _ = write!(
         h,
         "<tr><td>recipe</td><td><code>{}</code></td></tr>\n",
-        sha256_hex(recipe_text.as_bytes())
+        sha256_hex(sources.recipe_text.as_bytes())
     );
-    for i in input_digests(o) {
+    for i in sources.inputs {
         let _ = write!(
             h,
             "<tr><td>{} <code>{}</code> ({} records)</td><td><code>{}</code></td></tr>\n",
