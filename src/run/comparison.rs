@@ -36,19 +36,15 @@ pub struct Comparison {
 /// Reads an assignments file (as `assort run` or `assort assign` write):
 /// the first column is the key, and a `segment` column must exist.
 pub fn read_assignments(path: &std::path::Path, shown: &str) -> Result<Vec<Assigned>, RunError> {
-    let mut reader = csv::Reader::from_path(path).map_err(|e| RunError::Unreadable {
-        file: shown.to_string(),
-        reason: e.to_string(),
-    })?;
+    let opened = super::load::Opened::new(path, shown, ',')?;
     let malformed = |e: csv::Error| super::load::malformed(shown, &e);
-    let header = reader.headers().map_err(malformed)?.clone();
-    let seg = header
-        .iter()
-        .position(|h| h.trim() == "segment")
+    let seg = opened
+        .position("segment")
         .ok_or_else(|| RunError::NotAssignments {
             file: shown.to_string(),
         })?;
-    let label = header.iter().position(|h| h.trim() == "label");
+    let label = opened.position("label");
+    let mut reader = opened.reader;
     let mut out = Vec::new();
     let mut record = csv::StringRecord::new();
     while reader.read_record(&mut record).map_err(malformed)? {

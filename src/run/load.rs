@@ -14,6 +14,8 @@ pub struct Table {
     pub lines: Vec<u64>,
     /// One vector per numeric column asked for; `None` where blank.
     pub numeric: Vec<Vec<Option<f64>>>,
+    /// The 1-based field number of each numeric column, for messages.
+    pub fields: Vec<usize>,
     /// One vector per text column asked for, trimmed.
     pub text: Vec<Vec<String>>,
 }
@@ -25,6 +27,32 @@ pub struct Columns<'a> {
     pub text: &'a [String],
 }
 
+/// A CSV file opened for reading, with its header.
+pub(crate) struct Opened {
+    pub reader: csv::Reader<std::io::BufReader<std::fs::File>>,
+    pub header: csv::StringRecord,
+}
+
+impl Opened {
+    /// Opens `path` (shown as `shown` in messages) and reads its header.
+    pub fn new(path: &Path, shown: &str, separator: char) -> Result<Opened, RunError> {
+        let file = std::fs::File::open(path).map_err(|e| RunError::Unreadable {
+            file: shown.to_string(),
+            reason: e.to_string(),
+        })?;
+        let mut reader = csv::ReaderBuilder::new()
+            .delimiter(separator as u8)
+            .from_reader(std::io::BufReader::new(file));
+        let header = reader.headers().map_err(|e| malformed(shown, &e))?.clone();
+        Ok(Opened { reader, header })
+    }
+
+    /// The 0-based field of a column, by its trimmed header name.
+    pub fn position(&self, name: &str) -> Option<usize> {
+        self.header.iter().position(|h| h.trim() == name)
+    }
+}
+
 /// Reads `path` (shown as `shown` in messages). Keys must be present and
 /// unique; numeric fields must be blank or finite numbers.
 pub fn load(
@@ -33,14 +61,7 @@ pub fn load(
     separator: char,
     cols: &Columns<'_>,
 ) -> Result<Table, RunError> {
-    let file = std::fs::File::open(path).map_err(|e| RunError::Unreadable {
-        file: shown.to_string(),
-        reason: e.to_string(),
-    })?;
-    let mut reader = csv::ReaderBuilder::new()
-        .delimiter(separator as u8)
-        .from_reader(std::io::BufReader::new(file));
-    let header = reader.headers().map_err(|e| malformed(shown, &e))?.clone();
+    let Opened { mut reader, header } = Opened::new(path, shown, separator)?;
     let index_of = |name: &str| {
         header
             .iter()
@@ -63,6 +84,7 @@ pub fn load(
         .collect::<Result<Vec<_>, _>>()?;
 
     let mut table = Table {
+        fields: num_at.iter().map(|i| i + 1).collect(),
         keys: Vec::new(),
         lines: Vec::new(),
         numeric: vec![Vec::new(); num_at.len()],

@@ -235,19 +235,11 @@ pub fn read_for_scoring(
     shown: &str,
     model: &SegmentModel,
 ) -> Result<Table, RunError> {
-    let file = std::fs::File::open(path).map_err(|e| RunError::Unreadable {
-        file: shown.to_string(),
-        reason: e.to_string(),
-    })?;
-    let mut reader = csv::ReaderBuilder::new()
-        .delimiter(model.separator as u8)
-        .from_reader(std::io::BufReader::new(file));
+    let opened = super::load::Opened::new(path, shown, model.separator)?;
     let malformed = |e: csv::Error| super::load::malformed(shown, &e);
-    let header = reader.headers().map_err(malformed)?.clone();
     let index_of = |name: &str| {
-        header
-            .iter()
-            .position(|h| h.trim() == name)
+        opened
+            .position(name)
             .ok_or_else(|| RunError::ModelColumnMissing {
                 file: shown.to_string(),
                 column: name.to_string(),
@@ -264,6 +256,7 @@ pub fn read_for_scoring(
         .iter()
         .map(|c| index_of(&c.column))
         .collect::<Result<Vec<_>, _>>()?;
+    let mut reader = opened.reader;
     let mut table = Table {
         keys: Vec::new(),
         numeric_raw: vec![Vec::new(); num_at.len()],

@@ -261,29 +261,9 @@ fn located(plan: &Plan, table: &Table, row: usize, f: usize) -> Place {
     Place {
         file: plan.input.path.clone(),
         line: table.lines[row],
-        column: table_column(plan, f),
+        column: table.fields.get(f).copied().unwrap_or(0),
         name: plan.features[f].column.clone(),
     }
-}
-
-/// The 1-based field number of feature `f`, from the header the run read.
-fn table_column(plan: &Plan, f: usize) -> usize {
-    header_index(
-        &plan.input.resolved,
-        plan.input.separator,
-        &plan.features[f].column,
-    )
-    .map(|i| i + 1)
-    .unwrap_or(0)
-}
-
-fn header_index(path: &std::path::Path, sep: char, name: &str) -> Option<usize> {
-    let mut r = csv::ReaderBuilder::new()
-        .delimiter(sep as u8)
-        .from_path(path)
-        .ok()?;
-    let h = r.headers().ok()?;
-    h.iter().position(|c| c.trim() == name)
 }
 
 pub(crate) fn transform(t: Transform, x: f64) -> Result<f64, (&'static str, &'static str)> {
