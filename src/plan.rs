@@ -176,7 +176,13 @@ pub struct MicroPlan {
     pub segments: usize,
     pub restarts: usize,
     pub rounds: usize,
+    pub tolerance: f64,
 }
+
+/// Records above which a tree over every record is refused (the two-stage
+/// route takes over): the checker enforces it from a count or an estimate,
+/// the run from the records it actually read.
+pub const TREE_DIRECT_LIMIT: usize = 20_000;
 
 #[derive(Debug, Clone, Serialize)]
 pub struct KMeansPlan {

@@ -238,8 +238,7 @@ fn explain_syntax(mut e: syntax::SyntaxError) -> syntax::SyntaxError {
 pub const MAX_K: i64 = 1_000_000;
 pub const MAX_K_SPAN: i64 = 500;
 
-/// Records above which a tree over every record is advised against.
-pub const TREE_DIRECT_LIMIT: usize = 20_000;
+pub use crate::plan::TREE_DIRECT_LIMIT;
 
 /// Statements that may appear once, by word.
 const SINGLE: [&str; 11] = [
@@ -1113,6 +1112,7 @@ impl Checker {
                     segments: m,
                     restarts: defaults::MICRO_RESTARTS,
                     rounds: defaults::ROUNDS,
+                    tolerance: defaults::TOLERANCE,
                 })
             }
         };

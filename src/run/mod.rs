@@ -249,10 +249,10 @@ pub fn run_with(
     if let MethodPlan::Tree(TreePlan { micro: None, .. }) = &plan.method {
         // The checker refuses this from a count or an estimate; the run
         // holds the line for an estimate that fell short.
-        if n > crate::check::TREE_DIRECT_LIMIT {
+        if n > crate::plan::TREE_DIRECT_LIMIT {
             return Err(RunError::TreeTooLarge {
                 n,
-                limit: crate::check::TREE_DIRECT_LIMIT,
+                limit: crate::plan::TREE_DIRECT_LIMIT,
             });
         }
     }
@@ -537,7 +537,7 @@ fn build_tree(t: &TreePlan, x: ArrayView2<'_, f64>, seed: u64) -> Result<BuiltTr
                 k: m.segments,
                 restarts: m.restarts,
                 max_rounds: m.rounds,
-                tolerance: crate::check::defaults::TOLERANCE,
+                tolerance: m.tolerance,
                 seeding: kmeans::Seeding::KMeansPlusPlus,
                 seed,
             };
