@@ -56,6 +56,9 @@ enum Command {
         /// A folder outside the recipe's own that it may read and write.
         #[arg(long = "allow-dir", value_name = "FOLDER")]
         allow_dirs: Vec<PathBuf>,
+        /// Accept an `--allow-dir` that is the whole disk or a home folder.
+        #[arg(long = "allow-wide")]
+        allow_wide: bool,
     },
     /// The language server, over standard input and output: diagnostics,
     /// hover help, completion, go to definition, symbols and formatting
@@ -91,6 +94,11 @@ struct RecipeArgs {
     /// (repeatable).
     #[arg(long = "allow-dir", value_name = "FOLDER")]
     allow_dirs: Vec<PathBuf>,
+    /// Accept an `--allow-dir` that is the whole disk or a home folder
+    /// (refused otherwise: a recipe from someone else could then read and
+    /// write anything there).
+    #[arg(long = "allow-wide")]
+    allow_wide: bool,
     /// Print one JSON document on standard output instead of text (see
     /// docs/json.md).
     #[arg(long)]
@@ -161,14 +169,20 @@ fn main() -> ExitCode {
                     return fail(&e);
                 }
                 let written: Vec<String> = files.iter().map(|f| shown(&f.path)).collect();
+                let defused: usize = files.iter().map(|f| f.defused).sum();
                 if recipe.json {
+                    let mut result = output::json::run(&outcome, &written);
+                    result["cells_made_text"] = json!(defused);
                     output::json::print(
-                        &json!({"format": "assort-result/1", "ok": true, "diagnostics": diagnostics, "result": output::json::run(&outcome, &written)}),
+                        &json!({"format": "assort-result/1", "ok": true, "diagnostics": diagnostics, "result": result}),
                     );
                 } else if !recipe.quiet {
                     print!("{}", output::tables::report(&outcome));
                     for w in &written {
                         println!("wrote {w}");
+                    }
+                    if defused > 0 {
+                        println!("{}", defused_note(defused));
                     }
                 }
                 ExitCode::SUCCESS
@@ -188,7 +202,14 @@ fn main() -> ExitCode {
                 ExitCode::FAILURE
             }
         },
-        Command::Repl { recipe, allow_dirs } => {
+        Command::Repl {
+            recipe,
+            allow_dirs,
+            allow_wide,
+        } => {
+            if !allowed_folders_ok(&allow_dirs, allow_wide, false) {
+                return ExitCode::FAILURE;
+            }
             let code = assort::repl::run(recipe.as_deref(), CheckOptions { allow_dirs });
             ExitCode::from(u8::try_from(code).unwrap_or(1))
         }
@@ -253,13 +274,14 @@ fn assign(model_path: &Path, data: &Path, out: Option<&Path>) -> ExitCode {
             .and_then(|m| m.label.clone())
             .unwrap_or_default()
     };
-    let bytes = output::files::assignments_csv(&model.key, &assignments, label);
+    let (bytes, defused) = output::files::assignments_csv(&model.key, &assignments, label);
     match out {
         Some(path) => {
             let file = Rendered {
                 path: path.to_path_buf(),
                 shown: shown(path),
                 bytes,
+                defused,
             };
             if let Err(e) = output::files::write_all(std::slice::from_ref(&file)) {
                 return fail(e);
@@ -273,6 +295,9 @@ fn assign(model_path: &Path, data: &Path, out: Option<&Path>) -> ExitCode {
         }
     }
     eprint!("{}", score_summary(&summary));
+    if defused > 0 {
+        eprintln!("{}", defused_note(defused));
+    }
     ExitCode::SUCCESS
 }
 
@@ -304,11 +329,7 @@ fn fmt(check_only: bool, files: &[PathBuf]) -> ExitCode {
                 failed = true;
             }
             Ok(formatted) => {
-                let file = Rendered {
-                    path: path.clone(),
-                    shown: source.name(),
-                    bytes: formatted.into_bytes(),
-                };
+                let file = Rendered::plain(path.clone(), source.name(), formatted.into_bytes());
                 if let Err(e) = output::files::write_all(std::slice::from_ref(&file)) {
                     eprint!("{}", diagnostic::render_bare(&e, colour()));
                     failed = true;
@@ -393,11 +414,11 @@ fn run_and_render(
         &files,
     );
     let path = record_path(source, plan);
-    files.push(Rendered {
-        shown: shown(&path),
-        path,
-        bytes: record::to_bytes(&rec),
-    });
+    files.push(Rendered::plain(
+        path.clone(),
+        shown(&path),
+        record::to_bytes(&rec),
+    ));
     Ok((outcome, files, rec))
 }
 
@@ -555,6 +576,41 @@ fn shown(path: &Path) -> String {
     path.strip_prefix(".").unwrap_or(path).display().to_string()
 }
 
+/// Says how many output cells were written so that a spreadsheet shows
+/// them as text instead of running them as formulas.
+fn defused_note(n: usize) -> String {
+    format!(
+        "note: {} that a spreadsheet would run as a formula {} written with a leading `'` so {} as text",
+        plural(n, "cell"),
+        if n == 1 { "was" } else { "were" },
+        if n == 1 { "it shows" } else { "they show" }
+    )
+}
+
+/// Refuses `--allow-dir` folders that open the whole disk or a home folder
+/// unless `--allow-wide` is given, and says on standard error which
+/// folders besides its own the recipe may touch.
+fn allowed_folders_ok(allowed: &[PathBuf], wide: bool, quiet: bool) -> bool {
+    let home = std::env::var_os("HOME").map(PathBuf::from);
+    if let Err(why) = check::paths::judge_allowed(allowed, home.as_deref()) {
+        if !wide {
+            eprintln!(
+                "error: {why}\n  help: name the one folder the recipe needs (its data or its outputs), or add `--allow-wide` if you trust the recipe with all of it"
+            );
+            return false;
+        }
+    }
+    if !quiet {
+        for f in check::paths::real_folders(allowed) {
+            eprintln!(
+                "note: besides its own folder, this recipe may read and write under `{}`",
+                f.display()
+            );
+        }
+    }
+    true
+}
+
 /// Colour on a terminal, unless NO_COLOR is set (any value).
 fn colour() -> bool {
     std::env::var_os("NO_COLOR").is_none() && std::io::stderr().is_terminal()
@@ -581,6 +637,9 @@ fn with_plan(
             return ExitCode::FAILURE;
         }
     };
+    if !allowed_folders_ok(&args.allow_dirs, args.allow_wide, args.quiet || args.json) {
+        return ExitCode::FAILURE;
+    }
     let options = CheckOptions {
         allow_dirs: args.allow_dirs.clone(),
     };

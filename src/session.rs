@@ -221,11 +221,11 @@ impl Session {
                 self.path.parent().unwrap_or(Path::new(".")).display()
             ));
         }
-        let file = crate::output::files::Rendered {
-            path: path.to_path_buf(),
-            shown: path.display().to_string(),
-            bytes: self.formatted().into_bytes(),
-        };
+        let file = crate::output::files::Rendered::plain(
+            path.to_path_buf(),
+            path.display().to_string(),
+            self.formatted().into_bytes(),
+        );
         crate::output::files::write_all(std::slice::from_ref(&file)).map_err(|e| e.to_string())
     }
 

@@ -869,6 +869,99 @@ fn a_symbolic_link_out_of_the_folder_is_refused_unless_allowed() {
     assert!(case.path("out/a.csv").exists());
 }
 
+/// Regression: a link inside the folder followed by `..` escaped the
+/// sandbox, because paths were normalised as text before links were
+/// followed (`lnk -> ../outside/deep`, then `lnk/../secret.csv`).
+#[cfg(unix)]
+#[test]
+fn a_link_followed_by_dot_dot_cannot_read_or_write_outside() {
+    let top = tempfile::tempdir().unwrap();
+    let recipes = top.path().join("recipes");
+    std::fs::create_dir_all(top.path().join("outside/deep")).unwrap();
+    std::fs::create_dir_all(&recipes).unwrap();
+    let data = "id,a\n1,1\n2,2\n3,3\n4,9\n";
+    std::fs::write(top.path().join("outside/secret.csv"), data).unwrap();
+    std::fs::write(recipes.join("secret.csv"), data).unwrap();
+    std::os::unix::fs::symlink("../outside/deep", recipes.join("lnk")).unwrap();
+    let run = |recipe: &str| {
+        std::fs::write(recipes.join("r.assort"), recipe).unwrap();
+        let out = Command::new(env!("CARGO_BIN_EXE_assort"))
+            .args(["run", "r.assort"])
+            .current_dir(&recipes)
+            .env("NO_COLOR", "1")
+            .output()
+            .unwrap();
+        Run(out)
+    };
+    run("input \"lnk/../secret.csv\" key id\nfeatures a\nkmeans k 2\n")
+        .fails()
+        .stderr_has("path `lnk/../secret.csv` leads outside the recipe's folder");
+    run("input \"secret.csv\" key id\nfeatures a\nkmeans k 2\nsave assignments \"lnk/../stolen.csv\"\n")
+        .fails()
+        .stderr_has("path `lnk/../stolen.csv` leads outside the recipe's folder");
+    let left: Vec<_> = std::fs::read_dir(top.path().join("outside"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().into_string().unwrap())
+        .collect();
+    assert_eq!(left.len(), 2, "nothing new outside: {left:?}");
+}
+
+#[test]
+fn allowing_the_whole_disk_is_refused_unless_forced_and_allowed_folders_are_named() {
+    let case = Case::empty();
+    case.write("d.csv", "id,a\n1,1\n2,2\n3,3\n4,9\n").write(
+        "r.assort",
+        "input \"d.csv\" key id\nfeatures a\nkmeans k 2\n",
+    );
+    case.assort(&["check", "--allow-dir", "/", "r.assort"], &[])
+        .fails()
+        .stderr_has("`--allow-dir /` would let the recipe read and write anywhere on this machine")
+        .stderr_has("--allow-wide");
+    let home = case.path("home");
+    std::fs::create_dir_all(home.join("work")).unwrap();
+    let home_s = home.to_string_lossy().into_owned();
+    case.assort(
+        &["check", "--allow-dir", "home", "r.assort"],
+        &[("HOME", &home_s)],
+    )
+    .fails()
+    .stderr_has("anywhere in a home folder");
+    case.assort(
+        &["check", "--allow-dir", "home/work", "r.assort"],
+        &[("HOME", &home_s)],
+    )
+    .ok()
+    .stderr_has("this recipe may read and write under `");
+    case.assort(
+        &["check", "--allow-dir", "/", "--allow-wide", "r.assort"],
+        &[],
+    )
+    .ok();
+}
+
+#[test]
+fn keys_that_look_like_formulas_are_written_as_text_and_counted() {
+    let case = Case::empty();
+    case.write(
+        "d.csv",
+        "id,a\n=HYPERLINK(\"http://x\"),1\n@SUM(A1),2\n-7,3\nplain,9\n",
+    )
+    .write(
+        "r.assort",
+        "input \"d.csv\" key id\nfeatures a\nkmeans k 2\nsave assignments \"out/a.csv\"\n",
+    );
+    case.run("r.assort").ok().stdout_has(
+        "note: 2 cells that a spreadsheet would run as a formula were written with a leading `'`",
+    );
+    let written = case.read("out/a.csv");
+    assert!(
+        written.contains("\"'=HYPERLINK(\"\"http://x\"\")\","),
+        "{written}"
+    );
+    assert!(written.contains("\n'@SUM(A1),"), "{written}");
+    assert!(written.contains("\n-7,"), "{written}");
+}
+
 #[test]
 fn an_output_may_not_overwrite_the_known_grouping_either() {
     let case = Case::demo();

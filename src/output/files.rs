@@ -15,6 +15,21 @@ pub struct Rendered {
     pub path: PathBuf,
     pub shown: String,
     pub bytes: Vec<u8>,
+    /// Cells written with a leading apostrophe because a spreadsheet
+    /// would otherwise run them as a formula (see [`spreadsheet_safe`]).
+    pub defused: usize,
+}
+
+impl Rendered {
+    /// A file with nothing defused (not a CSV built from data cells).
+    pub fn plain(path: PathBuf, shown: String, bytes: Vec<u8>) -> Rendered {
+        Rendered {
+            path,
+            shown,
+            bytes,
+            defused: 0,
+        }
+    }
 }
 
 /// Builds every output the plan names.
@@ -34,11 +49,25 @@ pub fn render_all(o: &Outcome, sources: &Sources<'_>) -> Vec<Rendered> {
 }
 
 fn render(o: &Outcome, out: &OutputPlan, sources: &Sources<'_>) -> Rendered {
-    let bytes = match out.kind {
+    let (bytes, defused) = match out.kind {
         OutputKind::Assignments => assignments(o),
         OutputKind::ProfilesCsv => profiles_csv(o),
-        OutputKind::ProfilesJson => profiles_json(o),
         OutputKind::Centroids => centroids(o),
+        OutputKind::Merges => merges(o),
+        other => (render_other(o, other, sources), 0),
+    };
+    Rendered {
+        path: out.resolved.clone(),
+        shown: out.path.clone(),
+        bytes,
+        defused,
+    }
+}
+
+/// The outputs that are not CSV tables.
+fn render_other(o: &Outcome, kind: OutputKind, sources: &Sources<'_>) -> Vec<u8> {
+    match kind {
+        OutputKind::ProfilesJson => profiles_json(o),
         OutputKind::Model => {
             let sha = sources
                 .inputs
@@ -49,13 +78,12 @@ fn render(o: &Outcome, out: &OutputPlan, sources: &Sources<'_>) -> Rendered {
             crate::run::model::to_bytes(&crate::run::model::from_outcome(o, sha))
         }
         OutputKind::Report => super::report::render(o, sources),
-        OutputKind::Merges => merges(o),
         OutputKind::Newick => newick(o),
-    };
-    Rendered {
-        path: out.resolved.clone(),
-        shown: out.path.clone(),
-        bytes,
+        // The CSV kinds are rendered by `render`.
+        OutputKind::Assignments
+        | OutputKind::ProfilesCsv
+        | OutputKind::Centroids
+        | OutputKind::Merges => Vec::new(),
     }
 }
 
@@ -67,22 +95,60 @@ fn f6(v: f64) -> String {
     }
 }
 
-fn csv_bytes(rows: Vec<Vec<String>>) -> Vec<u8> {
+/// A CSV file's bytes, with every cell made [`spreadsheet_safe`], and how
+/// many cells that changed.
+fn csv_bytes(rows: Vec<Vec<String>>) -> (Vec<u8>, usize) {
     let mut w = csv::WriterBuilder::new()
         .terminator(csv::Terminator::Any(b'\n'))
         .from_writer(Vec::new());
+    let mut defused = 0;
     for r in rows {
+        let cells: Vec<std::borrow::Cow<'_, str>> = r
+            .iter()
+            .map(|c| {
+                let safe = spreadsheet_safe(c);
+                defused += usize::from(matches!(safe, std::borrow::Cow::Owned(_)));
+                safe
+            })
+            .collect();
         // Writing to memory cannot fail.
-        let _ = w.write_record(&r);
+        let _ = w.write_record(cells.iter().map(|c| c.as_bytes()));
     }
-    w.into_inner().unwrap_or_default()
+    (w.into_inner().unwrap_or_default(), defused)
+}
+
+/// A cell a spreadsheet will show as text. Spreadsheets run a cell that
+/// starts with `=`, `+`, `-` or `@` (and some a tab or carriage return) as
+/// a formula, so a key such as `=HYPERLINK(...)` copied from a customer
+/// file would run on the marketing team's machine. Common practice (the
+/// usual advice on CSV formula injection) is a leading apostrophe, which
+/// spreadsheets hide and which keeps the text readable; plain numbers such
+/// as `-0.5` are left alone.
+pub fn spreadsheet_safe(cell: &str) -> std::borrow::Cow<'_, str> {
+    let risky = cell
+        .chars()
+        .next()
+        .is_some_and(|c| matches!(c, '=' | '+' | '-' | '@' | '\t' | '\r'));
+    if risky && !is_plain_number(cell) {
+        std::borrow::Cow::Owned(format!("'{cell}"))
+    } else {
+        std::borrow::Cow::Borrowed(cell)
+    }
+}
+
+/// Digits with an optional sign, point and exponent: what a spreadsheet
+/// reads as a number, never as a formula.
+fn is_plain_number(cell: &str) -> bool {
+    cell.chars()
+        .all(|c| c.is_ascii_digit() || matches!(c, '.' | '-' | '+' | 'e' | 'E'))
+        && cell.parse::<f64>().is_ok()
 }
 
 fn label_of(o: &Outcome, segment: usize) -> String {
     o.plan.labels.get(&segment).cloned().unwrap_or_default()
 }
 
-fn assignments(o: &Outcome) -> Vec<u8> {
+fn assignments(o: &Outcome) -> (Vec<u8>, usize) {
     assignments_csv(&o.plan.input.key, &o.assignments, |s| label_of(o, s))
 }
 
@@ -92,7 +158,7 @@ pub fn assignments_csv(
     key: &str,
     assignments: &[Assignment],
     label: impl Fn(usize) -> String,
-) -> Vec<u8> {
+) -> (Vec<u8>, usize) {
     let mut rows = vec![[key, "segment", "label", "distance", "margin"]
         .iter()
         .map(|s| s.to_string())
@@ -122,7 +188,7 @@ fn level_shares(p: &Profile) -> Vec<String> {
     p.categories.iter().flatten().map(|&v| f6(v)).collect()
 }
 
-fn profiles_csv(o: &Outcome) -> Vec<u8> {
+fn profiles_csv(o: &Outcome) -> (Vec<u8>, usize) {
     let mut header: Vec<String> = [
         "segment",
         "label",
@@ -165,7 +231,7 @@ fn profiles_csv(o: &Outcome) -> Vec<u8> {
     csv_bytes(rows)
 }
 
-fn centroids(o: &Outcome) -> Vec<u8> {
+fn centroids(o: &Outcome) -> (Vec<u8>, usize) {
     let mut header = vec!["segment".to_string(), "label".to_string()];
     header.extend(o.prepared.features.iter().map(|f| f.column.clone()));
     header.extend(level_names(o));
@@ -183,8 +249,10 @@ fn centroids(o: &Outcome) -> Vec<u8> {
 /// The tree's merge table, one row per merge in order: the step, the two
 /// groups joined (a leaf by its name, an earlier merge as `#step`), the
 /// height and the size of the new group.
-fn merges(o: &Outcome) -> Vec<u8> {
-    let Some(t) = &o.tree else { return Vec::new() };
+fn merges(o: &Outcome) -> (Vec<u8>, usize) {
+    let Some(t) = &o.tree else {
+        return (Vec::new(), 0);
+    };
     let n = t.dendrogram.n;
     let name = |id: usize| {
         if id < n {
@@ -210,7 +278,9 @@ fn merges(o: &Outcome) -> Vec<u8> {
 }
 
 fn newick(o: &Outcome) -> Vec<u8> {
-    let Some(t) = &o.tree else { return Vec::new() };
+    let Some(t) = &o.tree else {
+        return Vec::new();
+    };
     let mut text = t.dendrogram.newick(&t.leaf_names);
     text.push('\n');
     text.into_bytes()
@@ -329,4 +399,41 @@ fn temp_path(target: &Path) -> PathBuf {
         .unwrap_or_default();
     name.push(format!(".{}.tmp-assort", std::process::id()));
     target.with_file_name(name)
+}
+
+#[cfg(test)]
+mod spreadsheet_tests {
+    use super::*;
+
+    #[test]
+    fn formulas_get_an_apostrophe_and_numbers_do_not() {
+        for risky in [
+            "=HYPERLINK(\"x\")",
+            "+1+1",
+            "-2+3",
+            "@SUM(A1)",
+            "\tx",
+            "\rx",
+            "-",
+            "-inf",
+        ] {
+            assert_eq!(spreadsheet_safe(risky), format!("'{risky}"), "{risky:?}");
+        }
+        for plain in ["-0.5", "+12", "-1e-3", "M-0001", "weekly fresh", ""] {
+            assert_eq!(spreadsheet_safe(plain), plain, "{plain:?}");
+        }
+    }
+
+    #[test]
+    fn a_csv_counts_the_cells_it_defused() {
+        let (bytes, n) = csv_bytes(vec![
+            vec!["key".into(), "segment".into()],
+            vec!["=1+1".into(), "-0.25".into()],
+        ]);
+        assert_eq!(n, 1);
+        assert_eq!(
+            String::from_utf8(bytes).unwrap(),
+            "key,segment\n'=1+1,-0.25\n"
+        );
+    }
 }
