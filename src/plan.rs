@@ -260,6 +260,29 @@ pub struct EvidencePlan {
     pub stability: Option<usize>,
     /// Restarts when k-means reclusters a reference set or a resample.
     pub restarts: usize,
+    /// How the silhouette is obtained on data above the exact limit.
+    pub silhouette: SilhouetteMode,
+}
+
+/// The silhouette on large data: estimated from a sample with its standard
+/// error (the default), or exact over every pair of records.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum SilhouetteMode {
+    Estimate,
+    Exact,
+}
+
+impl SilhouetteMode {
+    pub const NAMES: [&'static str; 2] = ["estimate", "exact"];
+
+    pub fn parse(word: &str) -> Option<SilhouetteMode> {
+        match word {
+            "estimate" => Some(SilhouetteMode::Estimate),
+            "exact" => Some(SilhouetteMode::Exact),
+            _ => None,
+        }
+    }
 }
 
 #[derive(Debug, Clone, Serialize)]

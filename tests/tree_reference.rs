@@ -12,6 +12,8 @@ use ndarray::Array2;
 use serde_json::Value;
 use std::path::Path;
 
+mod common;
+
 fn reference() -> Value {
     let text = std::fs::read_to_string(
         Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/reference.json"),
@@ -21,26 +23,7 @@ fn reference() -> Value {
 }
 
 fn read(name: &str, zscore: bool) -> Array2<f64> {
-    let text = std::fs::read_to_string(
-        Path::new(env!("CARGO_MANIFEST_DIR"))
-            .join("tests/data")
-            .join(name),
-    )
-    .unwrap();
-    let rows: Vec<Vec<f64>> = text
-        .lines()
-        .skip(1)
-        .map(|l| {
-            let f: Vec<&str> = l.split(',').collect();
-            f[..f.len() - 1]
-                .iter()
-                .map(|v| v.parse().unwrap())
-                .collect()
-        })
-        .collect();
-    let d = rows[0].len();
-    let mut x =
-        Array2::from_shape_vec((rows.len(), d), rows.into_iter().flatten().collect()).unwrap();
+    let mut x = common::measurements(name);
     if zscore {
         for mut col in x.columns_mut() {
             let v = col.to_vec();

@@ -1339,6 +1339,7 @@ impl Checker {
             gap: None,
             stability: None,
             restarts: defaults::EVIDENCE_RESTARTS,
+            silhouette: SilhouetteMode::Estimate,
         };
         if let Some(Statement {
             kind: StatementKind::Evidence { options },
@@ -1352,6 +1353,26 @@ impl Checker {
             if opts.contains_key("stability") {
                 plan.stability =
                     Some(self.whole_option(&opts, "stability", 2, defaults::EVIDENCE_SETS)?);
+            }
+            if let Some(o) = opts.get("silhouette") {
+                plan.silhouette = match &o.value.node {
+                    Value::Word(w) => self.word_choice(
+                        "silhouette",
+                        &Spanned::new(w.clone(), o.value.span),
+                        &SilhouetteMode::NAMES,
+                        SilhouetteMode::parse,
+                    )?,
+                    other => {
+                        self.bad_value(
+                            "silhouette",
+                            other,
+                            "`estimate` or `exact`",
+                            o.value.span,
+                            "the estimate states its standard error; `exact` costs time that grows with the square of the records",
+                        );
+                        return None;
+                    }
+                };
             }
         }
         match choose {

@@ -66,7 +66,7 @@ pub const STATEMENTS: &[StatementDoc] = &[
     },
     StatementDoc {
         word: "evidence",
-        summary: "asks for costlier evidence for k: the gap statistic, bootstrap stability",
+        summary: "asks for costlier evidence for k: the gap statistic, bootstrap stability, the exact silhouette on large data",
         example: "evidence gap 20 stability 30",
     },
     StatementDoc {
@@ -201,6 +201,11 @@ pub const EVIDENCE_OPTIONS: &[OptionDoc] = &[
         name: "stability",
         takes: "a whole number, 2 or more",
         summary: "measure bootstrap stability with this many resamples",
+    },
+    OptionDoc {
+        name: "silhouette",
+        takes: "`estimate` or `exact`",
+        summary: "above 12,000 records the silhouette is estimated from a sample, with its standard error; `exact` measures every pair of records instead (time grows with the square of the records)",
     },
 ];
 

@@ -6,17 +6,8 @@
 //!
 //! - Within-cluster sum of squares: sum of squared Euclidean distances of
 //!   records to their segment mean. O(n d).
-//! - Silhouette (P. J. Rousseeuw, "Silhouettes: a graphical aid to the
-//!   interpretation and validation of cluster analysis", Journal of
-//!   Computational and Applied Mathematics 20, 1987): for record i,
-//!   `s(i) = (b - a) / max(a, b)` with `a` the mean Euclidean distance to the
-//!   other records of its segment and `b` the smallest mean distance to the
-//!   records of another segment; `s(i) = 0` for a record alone in its
-//!   segment. Exact below [`SILHOUETTE_EXACT_LIMIT`] records: O(n² d) time,
-//!   O(n k) memory (no n-by-n matrix is ever held). Above it, a seeded sample
-//!   drawn within each segment, each sampled record's silhouette computed
-//!   exactly against all records, combined weighting each segment by its
-//!   share: O(s n d) for s sampled records.
+//! - Silhouette: exact, or estimated with its standard error; see
+//!   [`super::silhouette`].
 //! - Calinski-Harabasz (T. Caliński and J. Harabasz, "A dendrite method for
 //!   cluster analysis", Communications in Statistics 3(1), 1974):
 //!   `[B / (k - 1)] / [W / (n - k)]` with B and W the between- and
@@ -28,45 +19,13 @@
 //!
 //! Per-record work runs in parallel and is summed in record order.
 
-use super::{dist2, rng::Stream};
+use super::dist2;
 use ndarray::ArrayView2;
-use rayon::prelude::*;
+
+pub use super::silhouette::{silhouette, Silhouette};
 
 /// Records up to which the silhouette is computed exactly.
-pub const SILHOUETTE_EXACT_LIMIT: usize = 12_000;
-
-/// How many records the sampled silhouette draws in all, at least.
-pub const SILHOUETTE_SAMPLE: usize = 12_000;
-
-/// Each segment contributes at least this many sampled records (or all its
-/// records, when it has fewer), so small segments are never missed.
-pub const SILHOUETTE_SAMPLE_PER_SEGMENT: usize = 200;
-
-/// A silhouette, with how it was obtained.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Silhouette {
-    /// Mean silhouette over all records (estimated when sampled).
-    pub mean: f64,
-    /// Mean silhouette of each segment's records (or of its sample).
-    pub per_segment: Vec<f64>,
-    /// Records whose silhouette was computed; `n` when exact.
-    pub evaluated: usize,
-    /// Each segment's evaluated silhouettes, sorted from highest to lowest
-    /// (for a silhouette chart).
-    pub values: Vec<Vec<f64>>,
-}
-
-/// Sorts each segment's values from highest to lowest.
-fn by_segment(values: impl Iterator<Item = (u32, f64)>, k: usize) -> Vec<Vec<f64>> {
-    let mut out = vec![Vec::new(); k];
-    for (l, v) in values {
-        out[l as usize].push(v);
-    }
-    for v in out.iter_mut() {
-        v.sort_by(|a, b| b.total_cmp(a));
-    }
-    out
-}
+pub const SILHOUETTE_EXACT_LIMIT: usize = super::silhouette::EXACT_LIMIT;
 
 fn rows<'a>(data: &ArrayView2<'a, f64>) -> Vec<&'a [f64]> {
     // Callers pass standard-layout matrices (the run stage builds them so);
@@ -161,117 +120,6 @@ pub fn davies_bouldin(data: ArrayView2<'_, f64>, labels: &[u32], k: usize) -> f6
     total / k as f64
 }
 
-/// Silhouette of one record against all records.
-fn silhouette_of(i: usize, all: &[&[f64]], labels: &[u32], n_of: &[usize]) -> f64 {
-    let own = labels[i] as usize;
-    if n_of[own] <= 1 {
-        return 0.0;
-    }
-    let mut sums = vec![0.0; n_of.len()];
-    let xi = all[i];
-    for (xj, &l) in all.iter().zip(labels) {
-        sums[l as usize] += dist2(xi, xj).sqrt();
-    }
-    let a = sums[own] / (n_of[own] - 1) as f64;
-    let b = sums
-        .iter()
-        .zip(n_of)
-        .enumerate()
-        .filter(|&(j, (_, &m))| j != own && m > 0)
-        .map(|(_, (s, &m))| s / m as f64)
-        .fold(f64::INFINITY, f64::min);
-    let top = a.max(b);
-    if top == 0.0 || !b.is_finite() {
-        0.0
-    } else {
-        (b - a) / top
-    }
-}
-
-/// Per-record silhouettes for the listed records, in parallel.
-fn silhouettes(indices: &[usize], all: &[&[f64]], labels: &[u32], n_of: &[usize]) -> Vec<f64> {
-    indices
-        .par_iter()
-        .map(|&i| silhouette_of(i, all, labels, n_of))
-        .collect()
-}
-
-/// Mean silhouette: exact up to [`SILHOUETTE_EXACT_LIMIT`] records, else a
-/// sample drawn within each segment from stream `stream` of `seed`.
-pub fn silhouette(
-    data: ArrayView2<'_, f64>,
-    labels: &[u32],
-    k: usize,
-    seed: u64,
-    stream: u64,
-) -> Silhouette {
-    let n = data.nrows();
-    let all = rows(&data);
-    let n_of = sizes(labels, k);
-    let mut members: Vec<Vec<usize>> = vec![Vec::new(); k];
-    labels
-        .iter()
-        .enumerate()
-        .for_each(|(i, &l)| members[l as usize].push(i));
-
-    if n <= SILHOUETTE_EXACT_LIMIT {
-        let all_idx: Vec<usize> = (0..n).collect();
-        let s = silhouettes(&all_idx, &all, labels, &n_of);
-        let mut per = vec![0.0; k];
-        for (v, &l) in s.iter().zip(labels) {
-            per[l as usize] += v;
-        }
-        for (p, &m) in per.iter_mut().zip(&n_of) {
-            *p /= m.max(1) as f64;
-        }
-        return Silhouette {
-            mean: s.iter().sum::<f64>() / n as f64,
-            per_segment: per,
-            evaluated: n,
-            values: by_segment(labels.iter().copied().zip(s.iter().copied()), k),
-        };
-    }
-
-    // Stratified sample: each segment in proportion to its size, at least
-    // SILHOUETTE_SAMPLE_PER_SEGMENT records (or all of a smaller segment).
-    let mut rng = Stream::new(seed, stream);
-    let mut chosen: Vec<Vec<usize>> = Vec::with_capacity(k);
-    for m in &members {
-        let want = ((m.len() as f64 * SILHOUETTE_SAMPLE as f64 / n as f64).round() as usize)
-            .max(SILHOUETTE_SAMPLE_PER_SEGMENT)
-            .min(m.len());
-        // Partial Fisher-Yates shuffle: the first `want` are a uniform sample.
-        let mut pool = m.clone();
-        for t in 0..want {
-            let pick = t + rng.below(pool.len() - t);
-            pool.swap(t, pick);
-        }
-        pool.truncate(want);
-        chosen.push(pool);
-    }
-    let mut per = vec![0.0; k];
-    let mut evaluated = 0;
-    let mut sampled = Vec::new();
-    for (c, idx) in chosen.iter().enumerate() {
-        let s = silhouettes(idx, &all, labels, &n_of);
-        evaluated += s.len();
-        per[c] = s.iter().sum::<f64>() / s.len().max(1) as f64;
-        sampled.extend(s.into_iter().map(|v| (c as u32, v)));
-    }
-    let mean = per
-        .iter()
-        .zip(&n_of)
-        .map(|(p, &m)| p * m as f64)
-        .sum::<f64>()
-        / n as f64;
-    Silhouette {
-        mean,
-        per_segment: per,
-        evaluated,
-        values: by_segment(sampled.into_iter(), k),
-    }
-}
-
 /// Silhouette computed the slow, obvious way from a full distance matrix:
 /// the oracle the fast version is tested against.
 pub fn silhouette_naive(data: ArrayView2<'_, f64>, labels: &[u32]) -> f64 {
@@ -313,6 +161,7 @@ pub fn silhouette_naive(data: ArrayView2<'_, f64>, labels: &[u32]) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::engine::rng::Stream;
     use ndarray::Array2;
 
     /// Deterministic scattered points in three loose groups.
@@ -342,26 +191,6 @@ mod tests {
             slow
         );
         assert_eq!(fast.evaluated, 90);
-    }
-
-    #[test]
-    fn sampled_silhouette_is_close_and_repeatable() {
-        let (x, labels) = cloud(SILHOUETTE_EXACT_LIMIT + 300);
-        let a = silhouette(x.view(), &labels, 3, 9, 1);
-        let b = silhouette(x.view(), &labels, 3, 9, 1);
-        assert_eq!(a, b);
-        assert!(a.evaluated < x.nrows());
-        // The exact value, computed once on a subset-free basis, is not
-        // cheap here; the estimate must at least be a plausible silhouette
-        // and close to the exact value of a smaller draw of the same cloud.
-        let (x2, l2) = cloud(3000);
-        let exact_small = silhouette(x2.view(), &l2, 3, 0, 0).mean;
-        assert!(
-            (a.mean - exact_small).abs() < 0.02,
-            "{} vs {}",
-            a.mean,
-            exact_small
-        );
     }
 
     #[test]

@@ -45,6 +45,8 @@
 //! segment holding the lowest record index. Two runs that find the same
 //! partition therefore give the same numbers, whatever the restart.
 
+mod hamerly;
+
 use super::{dist2, rng::Stream, EngineError};
 use ndarray::{Array2, ArrayView2};
 use rayon::prelude::*;
@@ -127,6 +129,28 @@ pub fn kmeans(
     data: ArrayView2<'_, f64>,
     settings: &KMeansSettings,
 ) -> Result<KMeansFit, EngineError> {
+    kmeans_with(data, settings, Search::Bounded)
+}
+
+/// How the assignment step finds each record's nearest centre. Both give
+/// the same labels, bit for bit; the exhaustive search is kept as the
+/// oracle the bounded one is tested against.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[non_exhaustive]
+pub enum Search {
+    /// Hamerly's bounds skip records whose centre cannot have changed
+    /// (the default; see `hamerly`).
+    Bounded,
+    /// Every record measured against every centre, every round.
+    Exhaustive,
+}
+
+/// [`kmeans`] with the assignment search chosen.
+pub fn kmeans_with(
+    data: ArrayView2<'_, f64>,
+    settings: &KMeansSettings,
+    search: Search,
+) -> Result<KMeansFit, EngineError> {
     let (n, d) = data.dim();
     let k = settings.k;
     if k == 0 {
@@ -146,7 +170,7 @@ pub fn kmeans(
             &owned
         }
     };
-    let problem = Problem::new(x, n, d, settings);
+    let problem = Problem::new(x, n, d, settings, search);
 
     // Each restart is summarised; only the best is kept in full, by running
     // it again (it is deterministic), so memory stays O(n) per thread.
@@ -261,6 +285,7 @@ struct Problem<'a> {
     n: usize,
     d: usize,
     settings: &'a KMeansSettings,
+    search: Search,
     /// Centre movement below which iterations stop.
     shift_limit: f64,
 }
@@ -275,7 +300,7 @@ struct Restart {
 }
 
 impl<'a> Problem<'a> {
-    fn new(x: &'a [f64], n: usize, d: usize, settings: &'a KMeansSettings) -> Self {
+    fn new(x: &'a [f64], n: usize, d: usize, settings: &'a KMeansSettings, search: Search) -> Self {
         let mut grand = vec![0.0; d];
         for row in x.chunks_exact(d) {
             for (g, v) in grand.iter_mut().zip(row) {
@@ -289,6 +314,7 @@ impl<'a> Problem<'a> {
             n,
             d,
             settings,
+            search,
             shift_limit: settings.tolerance * spread,
         }
     }
@@ -320,8 +346,21 @@ impl<'a> Problem<'a> {
         let mut rounds = 0;
         let mut converged = false;
         let mut first = self.settings.seeding == Seeding::KMeansPlusPlus;
+        let mut bounds = hamerly::Bounds::new(self.n);
+        let mut previous = centroids.clone();
         loop {
-            let changed = self.assign(&centroids, &mut labels, &mut dists);
+            let changed = match self.search {
+                Search::Exhaustive => self.assign(&centroids, &mut labels, &mut dists),
+                Search::Bounded => hamerly::assign(
+                    self.x,
+                    self.d,
+                    &centroids,
+                    &previous,
+                    &mut labels,
+                    &mut bounds,
+                ),
+            };
+            previous.clone_from(&centroids);
             if (changed == 0 && !first) || converged {
                 converged = true;
                 break;
@@ -330,7 +369,18 @@ impl<'a> Problem<'a> {
             if rounds == self.settings.max_rounds {
                 break;
             }
-            let next = self.update(&mut labels, &dists);
+            let next = if self.search == Search::Bounded && has_empty(&labels, k) {
+                // The refill rule reads each record's distance to its
+                // centre, which the bounded step does not keep; it also
+                // moves records, which voids their bounds.
+                self.own_distances(&centroids, &labels, &mut dists);
+                bounds.invalidate();
+                self.update(&mut labels, &dists)
+            } else if self.search == Search::Bounded {
+                self.means(&labels)
+            } else {
+                self.update(&mut labels, &dists)
+            };
             let shift: f64 = centroids
                 .chunks_exact(self.d)
                 .zip(next.chunks_exact(self.d))
@@ -342,6 +392,9 @@ impl<'a> Problem<'a> {
                 // One last assignment against the final centres follows.
                 converged = true;
             }
+        }
+        if self.search == Search::Bounded {
+            self.own_distances(&centroids, &labels, &mut dists);
         }
         // A round cap can stop right after an assignment that emptied a
         // segment; refill and reassign until none is empty. Each pass moves a
@@ -406,6 +459,20 @@ impl<'a> Problem<'a> {
             potential = pot;
         }
         centres
+    }
+
+    /// Each record's squared distance to its own centre, the value the
+    /// exhaustive step leaves in `dists` (the nearest centre's squared
+    /// distance), in parallel over fixed chunks.
+    fn own_distances(&self, centroids: &[f64], labels: &[u32], dists: &mut [f64]) {
+        let d = self.d;
+        dists.par_chunks_mut(4096).enumerate().for_each(|(c, ds)| {
+            for (off, dd) in ds.iter_mut().enumerate() {
+                let i = c * 4096 + off;
+                let own = labels[i] as usize;
+                *dd = dist2(self.row(i), &centroids[own * d..(own + 1) * d]);
+            }
+        });
     }
 
     /// Labels every record with its nearest centre; returns how many changed.

@@ -18,6 +18,7 @@ pub mod evidence;
 pub mod kmeans;
 pub mod pca;
 pub mod rng;
+pub mod silhouette;
 pub mod stats;
 pub mod tree;
 

@@ -74,6 +74,7 @@ pub fn run(o: &Outcome, written: &[String]) -> Value {
             "k": r.k,
             "within_ss": finite(r.within_ss),
             "silhouette": finite(r.silhouette),
+            "silhouette_se": r.silhouette_se,
             "calinski_harabasz": finite(r.calinski_harabasz),
             "davies_bouldin": finite(r.davies_bouldin),
             "gap": r.gap.map(|(g, _)| g),

@@ -220,8 +220,15 @@ fn why(h: &mut String, o: &Outcome) {
         };
         let _ = write!(
             h,
-            "<tr{class}><td>{}</td><td>{:.2}</td><td>{:.4}</td><td>{:.1}</td><td>{:.4}</td>",
-            r.k, r.within_ss, r.silhouette, r.calinski_harabasz, r.davies_bouldin
+            "<tr{class}><td>{}</td><td>{:.2}</td><td>{}</td><td>{:.1}</td><td>{:.4}</td>",
+            r.k,
+            r.within_ss,
+            match r.silhouette_se {
+                Some(se) => format!("{:.4} ± {se:.4}", r.silhouette),
+                None => format!("{:.4}", r.silhouette),
+            },
+            r.calinski_harabasz,
+            r.davies_bouldin
         );
         if gap {
             let _ = write!(

@@ -205,10 +205,13 @@ fn sweep(s: &mut String, o: &Outcome) {
         .iter()
         .find(|r| r.silhouette_evaluated < o.prepared.kept.len());
     if let Some(r) = sampled {
-        let _ = writeln!(
+        wrapped(
             s,
-            "  silhouette estimated from {} records sampled within each segment",
-            r.silhouette_evaluated
+            "  ",
+            &format!(
+                "silhouette estimated from {} records sampled within each segment, its standard error in brackets (a delete-a-group jackknife over the sample); `evidence silhouette exact` measures every pair instead",
+                r.silhouette_evaluated
+            ),
         );
     }
     wrapped(s, "  chosen: ", &o.reason);
@@ -243,10 +246,20 @@ fn sweep_table(s: &mut String, o: &Outcome) {
     type Cell = fn(&crate::run::SweepRow) -> String;
     let mut columns: Vec<(&str, usize, Cell)> = vec![
         ("within SS", 12, |r| format!("{:.3}", r.within_ss)),
-        ("silhouette", 10, |r| format!("{:.4}", r.silhouette)),
         ("C-H", 10, |r| format!("{:.2}", r.calinski_harabasz)),
         ("D-B", 8, |r| format!("{:.4}", r.davies_bouldin)),
     ];
+    if o.sweep.iter().any(|r| r.silhouette_se.is_some()) {
+        columns.insert(
+            1,
+            ("silhouette (se)", 17, |r| match r.silhouette_se {
+                Some(se) => format!("{:.4} ({se:.4})", r.silhouette),
+                None => format!("{:.4}", r.silhouette),
+            }),
+        );
+    } else {
+        columns.insert(1, ("silhouette", 10, |r| format!("{:.4}", r.silhouette)));
+    }
     if o.sweep.iter().any(|r| r.gap.is_some()) {
         columns.push(("gap (se)", 17, |r| {
             r.gap

@@ -11,8 +11,8 @@ pub mod load;
 pub mod model;
 pub mod prepare;
 
-use crate::engine::{self, compare, criteria, evidence, kmeans, tree};
-use crate::plan::{ChooseK, Criterion, KMeansPlan, MethodPlan, Plan, TreePlan};
+use crate::engine::{self, compare, criteria, evidence, kmeans, silhouette, tree};
+use crate::plan::{ChooseK, Criterion, KMeansPlan, MethodPlan, Plan, SilhouetteMode, TreePlan};
 pub use error::RunError;
 use ndarray::{Array2, ArrayView2};
 use prepare::Prepared;
@@ -33,6 +33,8 @@ pub struct SweepRow {
     pub within_ss: f64,
     pub silhouette: f64,
     pub silhouette_evaluated: usize,
+    /// Standard error of an estimated silhouette; `None` when exact.
+    pub silhouette_se: Option<f64>,
     pub calinski_harabasz: f64,
     pub davies_bouldin: f64,
     /// The gap statistic and its standard error, when asked for.
@@ -286,12 +288,18 @@ pub fn run_with(
             total: candidates.len(),
         });
         let k = c.k;
-        let sil = criteria::silhouette(x, &c.labels, k, plan.seed, SILHOUETTE_STREAM | k as u64);
+        let sil = match plan.evidence.silhouette {
+            SilhouetteMode::Exact => silhouette::exact(x, &c.labels, k),
+            SilhouetteMode::Estimate => {
+                silhouette::silhouette(x, &c.labels, k, plan.seed, SILHOUETTE_STREAM | k as u64)
+            }
+        };
         sweep.push(SweepRow {
             k,
             within_ss: criteria::within_ss(x, &c.labels, k),
             silhouette: sil.mean,
             silhouette_evaluated: sil.evaluated,
+            silhouette_se: sil.std_error,
             calinski_harabasz: criteria::calinski_harabasz(x, &c.labels, k),
             davies_bouldin: criteria::davies_bouldin(x, &c.labels, k),
             restarts: c.restarts.clone(),
