@@ -179,10 +179,71 @@ pub struct MicroPlan {
     pub tolerance: f64,
 }
 
-/// Records above which a tree over every record is refused (the two-stage
-/// route takes over): the checker enforces it from a count or an estimate,
-/// the run from the records it actually read.
-pub const TREE_DIRECT_LIMIT: usize = 20_000;
+/// Memory a tree's distance matrix may take: n(n - 1)/2 distances of 8
+/// bytes each.
+pub const TREE_MATRIX_BYTES: u64 = 2 << 30;
+
+/// Records above which a single or Ward tree over every record is refused:
+/// they need no distance matrix (O(n) memory), but their time grows with
+/// the square of the records.
+pub const TREE_LINEAR_MEMORY_LIMIT: usize = 200_000;
+
+/// What bounds a tree over every record, by linkage; the checker enforces
+/// it from the counted records, the run from the records it kept.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct TreeLimit {
+    /// The most records.
+    pub records: usize,
+    /// The matrix's memory at `n` records, for linkages that need one.
+    pub matrix: bool,
+}
+
+impl TreeLimit {
+    pub fn of(linkage: Linkage) -> TreeLimit {
+        match linkage {
+            Linkage::Single | Linkage::Ward => TreeLimit {
+                records: TREE_LINEAR_MEMORY_LIMIT,
+                matrix: false,
+            },
+            _ => {
+                // Largest n with n(n - 1)/2 * 8 <= TREE_MATRIX_BYTES.
+                let pairs = TREE_MATRIX_BYTES / 8;
+                let mut n = ((2.0 * pairs as f64).sqrt() as u64) + 1;
+                while n * (n - 1) / 2 > pairs {
+                    n -= 1;
+                }
+                TreeLimit {
+                    records: n as usize,
+                    matrix: true,
+                }
+            }
+        }
+    }
+
+    /// Why a tree over `records` records is refused, shared by the checker
+    /// and the run: the distance matrix's memory for matrix linkages, the
+    /// time for the others.
+    pub fn reason(self, records: usize, linkage: &str) -> String {
+        if self.matrix {
+            let gib = TreeLimit::matrix_bytes(records) as f64 / (1u64 << 30) as f64;
+            format!(
+                "a `{linkage}` tree over every record would hold a distance matrix of {gib:.1} GiB (at most {} records, 2 GiB)",
+                self.records
+            )
+        } else {
+            format!(
+                "too many for a `{linkage}` tree over every record (at most {}: it needs no distance matrix, but its time grows with the square of the records)",
+                self.records
+            )
+        }
+    }
+
+    /// Bytes of the distance matrix over `n` records.
+    pub fn matrix_bytes(n: usize) -> u64 {
+        let n = n as u64;
+        n * n.saturating_sub(1) / 2 * 8
+    }
+}
 
 #[derive(Debug, Clone, Serialize)]
 pub struct KMeansPlan {

@@ -610,13 +610,13 @@ fn the_two_stage_tree_recovers_the_demo_segments() {
     assert!(ari > 0.9, "adjusted Rand index {ari}");
 }
 
-/// 200,000 records in three planted groups, two features.
-fn many_records() -> String {
+/// `n` records in three planted groups, two features.
+fn many_records(n: usize) -> String {
     let mut s = assort::engine::rng::Stream::new(8, 0);
-    let mut data = String::with_capacity(200_000 * 24);
+    let mut data = String::with_capacity(n * 24);
     data.push_str("id,a,b\n");
     let centres = [(0.0, 0.0), (6.0, 0.0), (3.0, 5.0)];
-    for i in 0..200_000 {
+    for i in 0..n {
         let (cx, cy) = centres[i % 3];
         data.push_str(&format!("{i},{:.4},{:.4}\n", cx + s.unit(), cy + s.unit()));
     }
@@ -626,15 +626,18 @@ fn many_records() -> String {
 #[test]
 fn a_tree_over_200000_records_is_refused_and_the_two_stage_route_runs() {
     let case = Case::empty();
-    case.write("big.csv", &many_records()).write(
+    case.write("big.csv", &many_records(200_000)).write(
         "r.assort",
-        "input \"big.csv\" key id\nfeatures a, b\ntree linkage ward k 2..4\nsave assignments \"out/a.csv\"\n",
+        "input \"big.csv\" key id\nfeatures a, b\ntree linkage average k 2..4\nsave assignments \"out/a.csv\"\n",
     );
+    // 200,000 * 199,999 / 2 distances of 8 bytes: 149.0 GiB.
     case.assort(&["check", "r.assort"], &[])
         .fails()
-        .stderr_has("too many for a tree over every record (at most 20000)")
+        .stderr_has("200000 records: a `average` tree over every record would hold a distance matrix of 149.0 GiB")
+        .stderr_has("(at most 23170 records, 2 GiB)")
         .stderr_has("add `micro 500`");
     assert!(!case.path("out").exists());
+    case.edit("r.assort", "linkage average", "linkage ward");
 
     case.edit("r.assort", "k 2..4", "k 2..4 micro 100");
     case.edit(
@@ -653,6 +656,21 @@ fn a_tree_over_200000_records_is_refused_and_the_two_stage_route_runs() {
         "a header and 99 merges of 100 micro-segments"
     );
     assert!(merges.contains(",micro-"), "{merges}");
+}
+
+/// Regression: the checker estimated the record count from the file's size
+/// (20,283 for this file) and refused a Ward tree over exactly 20,000
+/// records; it now counts them, and Ward needs no distance matrix.
+#[test]
+fn a_ward_tree_over_exactly_20000_records_runs() {
+    let case = Case::empty();
+    case.write("d.csv", &many_records(20_000)).write(
+        "r.assort",
+        "input \"d.csv\" key id\nfeatures a, b\ntree linkage ward k 3\nsave assignments \"out/a.csv\"\n",
+    );
+    case.assort(&["check", "r.assort"], &[]).ok();
+    case.run("r.assort").ok();
+    assert_eq!(case.read("out/a.csv").lines().count(), 20_001);
 }
 
 #[test]

@@ -109,3 +109,19 @@ fn trees_do_not_depend_on_the_thread_count() {
         assert!(build(4) == one, "{link:?}");
     }
 }
+
+#[test]
+fn the_sampled_cophenetic_correlation_is_close_to_the_exact_one() {
+    // Generated data (invented): the estimate over the pairs of 1,000 of
+    // 4,000 leaves against the exact value over all 8 million pairs.
+    let x = generated(12, 4_000, 3);
+    for link in [Linkage::Single, Linkage::Ward, Linkage::Average] {
+        let t = linkage(x.view(), link, Metric::Euclidean).unwrap();
+        let exact = t.cophenetic_correlation(x.view(), Metric::Euclidean);
+        let (est, used) = t.cophenetic_estimate(x.view(), Metric::Euclidean, 1_000, 3, 0);
+        assert_eq!(used, 1_000);
+        assert!((est - exact).abs() < 0.03, "{link:?}: {est} vs {exact}");
+        let (all, used) = t.cophenetic_estimate(x.view(), Metric::Euclidean, 5_000, 3, 0);
+        assert_eq!((all.to_bits(), used), (exact.to_bits(), 4_000));
+    }
+}

@@ -230,14 +230,14 @@ pub enum CheckError {
         linkage_span: Span,
     },
 
-    #[error("about {records} records: too many for a tree over every record (at most {limit})")]
+    #[error("{records} records: {why}")]
     #[diagnostic(
         code(assort::large_tree),
-        help("a tree's time and memory grow with the square of the records; build it over k-means micro-segments instead: add `micro 500` (or more) to `tree`")
+        help("build the tree over k-means micro-segments instead: add `micro 500` (or more) to `tree`; every record still gets a segment")
     )]
     LargeTree {
         records: usize,
-        limit: usize,
+        why: String,
         #[label("one tree over all records")]
         span: Span,
     },
@@ -411,4 +411,20 @@ fn handler(colour: bool) -> GraphicalReportHandler {
         GraphicalTheme::unicode_nocolor()
     };
     GraphicalReportHandler::new_themed(theme).with_width(100)
+}
+
+impl CheckError {
+    /// A tree over too many records, saying what limits this linkage.
+    pub fn large_tree(
+        records: usize,
+        linkage: &str,
+        limit: crate::plan::TreeLimit,
+        span: Span,
+    ) -> CheckError {
+        CheckError::LargeTree {
+            records,
+            why: limit.reason(records, linkage),
+            span,
+        }
+    }
 }

@@ -238,7 +238,7 @@ fn explain_syntax(mut e: syntax::SyntaxError) -> syntax::SyntaxError {
 pub const MAX_K: i64 = 1_000_000;
 pub const MAX_K_SPAN: i64 = 500;
 
-pub use crate::plan::TREE_DIRECT_LIMIT;
+pub use crate::plan::TreeLimit;
 
 /// Statements that may appear once, by word.
 const SINGLE: [&str; 11] = [
@@ -1116,17 +1116,14 @@ impl Checker {
                 })
             }
         };
-        if micro.is_none() {
+        if let (None, Some((l, _))) = (&micro, linkage) {
             let rows = self
                 .probe
                 .as_ref()
                 .and_then(|p| p.rows.or(p.estimated_rows));
-            if let Some(n) = rows.filter(|&n| n > TREE_DIRECT_LIMIT) {
-                self.err(CheckError::LargeTree {
-                    records: n,
-                    limit: TREE_DIRECT_LIMIT,
-                    span: s.keyword.span,
-                });
+            let limit = TreeLimit::of(l);
+            if let Some(n) = rows.filter(|&n| n > limit.records) {
+                self.err(CheckError::large_tree(n, l.name(), limit, s.keyword.span));
             }
         }
         Some(TreePlan {

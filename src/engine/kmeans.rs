@@ -222,12 +222,12 @@ pub fn nearest_with_margin(
     data: ArrayView2<'_, f64>,
     centroids: ArrayView2<'_, f64>,
 ) -> Vec<(u32, f64, f64)> {
-    let rows: Vec<Vec<f64>> = data.outer_iter().map(|r| r.to_vec()).collect();
-    let cents: Vec<Vec<f64>> = centroids.outer_iter().map(|r| r.to_vec()).collect();
-    rows.par_iter()
+    let (x, d) = rows_of(&data);
+    let (c, _) = rows_of(&centroids);
+    x.par_chunks(d.max(1))
         .map(|row| {
             let (mut b1, mut d1, mut d2) = (0u32, f64::INFINITY, f64::INFINITY);
-            for (j, c) in cents.iter().enumerate() {
+            for (j, c) in c.chunks_exact(d.max(1)).enumerate() {
                 let dd = dist2(row, c);
                 if dd < d1 {
                     d2 = d1;
@@ -247,6 +247,16 @@ pub fn nearest_with_margin(
         .collect()
 }
 
+/// A matrix's values in row order, borrowed when it is laid out so (as the
+/// run stage builds them), copied once otherwise; and its row length.
+fn rows_of<'a>(m: &'a ArrayView2<'_, f64>) -> (std::borrow::Cow<'a, [f64]>, usize) {
+    let d = m.ncols();
+    match m.as_slice() {
+        Some(s) => (std::borrow::Cow::Borrowed(s), d),
+        None => (std::borrow::Cow::Owned(m.iter().copied().collect()), d),
+    }
+}
+
 /// For each record: the distance to the centre of its own segment, and the
 /// margin (distance to the nearest other centre minus that distance; zero
 /// with one centre). For k-means labels the own centre is the nearest, so
@@ -257,12 +267,13 @@ pub fn distance_and_margin(
     centroids: ArrayView2<'_, f64>,
     labels: &[u32],
 ) -> Vec<(f64, f64)> {
-    let cents: Vec<Vec<f64>> = centroids.outer_iter().map(|r| r.to_vec()).collect();
-    let rows: Vec<Vec<f64>> = data.outer_iter().map(|r| r.to_vec()).collect();
-    rows.par_iter()
+    let (x, d) = rows_of(&data);
+    let (c, _) = rows_of(&centroids);
+    let cents: Vec<&[f64]> = c.chunks_exact(d.max(1)).collect();
+    x.par_chunks(d.max(1))
         .zip(labels.par_iter())
         .map(|(row, &own)| {
-            let own_d = dist2(row, &cents[own as usize]).sqrt();
+            let own_d = dist2(row, cents[own as usize]).sqrt();
             let other = cents
                 .iter()
                 .enumerate()

@@ -755,11 +755,60 @@ impl Dendrogram {
     /// them). Two passes over all pairs (means, then centred sums): O(n² d)
     /// time, O(n) memory.
     pub fn cophenetic_correlation(&self, data: ArrayView2<'_, f64>, metric: Metric) -> f64 {
-        let rows: Vec<Vec<f64>> = data.outer_iter().map(|r| r.to_vec()).collect();
-        let count = (self.n * self.n.saturating_sub(1) / 2) as f64;
-        let [sx, sy, _] = self.pair_sums(&rows, metric, &|x, y| [x, y, 0.0]);
+        self.cophenetic_over(data, metric, None)
+    }
+
+    /// The cophenetic correlation over the pairs of `sample` records drawn
+    /// uniformly without replacement from stream `stream` of `seed`: an
+    /// estimate whose cost, O(n + s² d), does not grow with the square of
+    /// the records. Returns the correlation and the records used (all of
+    /// them, exactly, when there are no more than `sample`).
+    pub fn cophenetic_estimate(
+        &self,
+        data: ArrayView2<'_, f64>,
+        metric: Metric,
+        sample: usize,
+        seed: u64,
+        stream: u64,
+    ) -> (f64, usize) {
+        if self.n <= sample {
+            return (self.cophenetic_over(data, metric, None), self.n);
+        }
+        let mut rng = super::rng::Stream::new(seed, stream);
+        let mut pool: Vec<usize> = (0..self.n).collect();
+        for t in 0..sample {
+            let pick = t + rng.below(self.n - t);
+            pool.swap(t, pick);
+        }
+        let mut chosen = vec![false; self.n];
+        pool[..sample].iter().for_each(|&i| chosen[i] = true);
+        (self.cophenetic_over(data, metric, Some(&chosen)), sample)
+    }
+
+    /// The correlation over the pairs of the `chosen` leaves (all leaves
+    /// when `None`).
+    fn cophenetic_over(
+        &self,
+        data: ArrayView2<'_, f64>,
+        metric: Metric,
+        chosen: Option<&[bool]>,
+    ) -> f64 {
+        let rows: Vec<&[f64]> = data
+            .as_slice()
+            .map(|x| x.chunks_exact(data.ncols().max(1)).collect())
+            .unwrap_or_default();
+        let owned: Vec<Vec<f64>>;
+        let rows: Vec<&[f64]> = if rows.len() == self.n {
+            rows
+        } else {
+            owned = data.outer_iter().map(|r| r.to_vec()).collect();
+            owned.iter().map(Vec::as_slice).collect()
+        };
+        let leaves = chosen.map_or(self.n, |c| c.iter().filter(|&&b| b).count());
+        let count = (leaves * leaves.saturating_sub(1) / 2) as f64;
+        let [sx, sy, _] = self.pair_sums(&rows, metric, chosen, &|x, y| [x, y, 0.0]);
         let (mx, my) = (sx / count, sy / count);
-        let [sxy, sxx, syy] = self.pair_sums(&rows, metric, &|x, y| {
+        let [sxy, sxx, syy] = self.pair_sums(&rows, metric, chosen, &|x, y| {
             [
                 (x - mx) * (y - my),
                 (x - mx) * (x - mx),
@@ -772,17 +821,26 @@ impl Dendrogram {
         sxy / (sxx.sqrt() * syy.sqrt())
     }
 
-    /// Sums `f(distance, cophenetic distance)` over all pairs of records,
-    /// merge by merge; each merge's pairs are summed in parallel by row and
-    /// the parts added in a fixed order.
+    /// Sums `f(distance, cophenetic distance)` over all pairs of the chosen
+    /// records, merge by merge; each merge's pairs are summed in parallel
+    /// by row and the parts added in a fixed order.
     fn pair_sums(
         &self,
-        rows: &[Vec<f64>],
+        rows: &[&[f64]],
         metric: Metric,
+        chosen: Option<&[bool]>,
         f: &(dyn Fn(f64, f64) -> [f64; 3] + Sync),
     ) -> [f64; 3] {
         let n = self.n;
-        let mut members: Vec<Vec<usize>> = (0..n).map(|i| vec![i]).collect();
+        let mut members: Vec<Vec<usize>> = (0..n)
+            .map(|i| {
+                if chosen.is_none_or(|c| c[i]) {
+                    vec![i]
+                } else {
+                    Vec::new()
+                }
+            })
+            .collect();
         members.resize(n + self.merges.len(), Vec::new());
         let mut total = [0.0; 3];
         for (i, m) in self.merges.iter().enumerate() {
@@ -793,7 +851,7 @@ impl Dendrogram {
                 .map(|&x| {
                     let mut s = [0.0; 3];
                     for &y in &right {
-                        let v = f(metric.distance(&rows[x], &rows[y]), m.height);
+                        let v = f(metric.distance(rows[x], rows[y]), m.height);
                         for (acc, add) in s.iter_mut().zip(v) {
                             *acc += add;
                         }

@@ -192,6 +192,13 @@ fn sweep(s: &mut String, o: &Outcome) {
                 t.distance.name()
             );
             let mut line = format!("cophenetic correlation {:.4}", t.cophenetic);
+            if t.cophenetic_leaves < t.leaves {
+                let _ = write!(
+                    line,
+                    " (estimated over the pairs of {} sampled records)",
+                    t.cophenetic_leaves
+                );
+            }
             if t.inversions > 0 {
                 let _ = write!(line, "; {} inversions (merges lower than the one before: the tree is not monotone, so heights do not order the cuts)", t.inversions);
             }

@@ -132,14 +132,14 @@ pub enum RunError {
     )]
     HeightTooHigh { height: f64, top: f64 },
 
-    #[error("{n} records are too many for a tree over every record (the limit is {limit})")]
+    #[error("{n} records: {why}")]
     #[diagnostic(
         code(assort::run::tree_too_large),
         help(
             "add `micro 500` to `tree`: k-means into micro-segments first, then the tree over them"
         )
     )]
-    TreeTooLarge { n: usize, limit: usize },
+    TreeTooLarge { n: usize, why: String },
 
     #[error("`{file}` has no column `{column}`, which the model needs")]
     #[diagnostic(

@@ -1,23 +1,118 @@
 //! Reading the data: the key, the feature and category columns, with the
 //! line of every record, rejecting what is not data at its location.
+//!
+//! Storage is columnar and compact, because customer files run to millions
+//! of records: each numeric column is plain `f64` values with a separate
+//! missing mask, keys are kept once in one text buffer, and records are
+//! read as raw bytes, only the fields the recipe uses being decoded. A
+//! million records of 16 features take 16 bytes per value less than half
+//! of what one boxed optional value per field would.
 
 use super::error::{Place, RunError};
 use crate::check::probe::{is_blank, parse_number};
-use std::collections::HashMap;
+use rayon::prelude::*;
 use std::path::Path;
 
 /// The columns a plan uses, read from the file.
 #[derive(Debug, Clone)]
 pub struct Table {
-    pub keys: Vec<String>,
+    pub keys: Keys,
     /// 1-based line where each record starts.
     pub lines: Vec<u64>,
-    /// One vector per numeric column asked for; `None` where blank.
-    pub numeric: Vec<Vec<Option<f64>>>,
+    /// One column per numeric column asked for.
+    pub numeric: Vec<NumericColumn>,
     /// The 1-based field number of each numeric column, for messages.
     pub fields: Vec<usize>,
     /// One vector per text column asked for, trimmed.
     pub text: Vec<Vec<String>>,
+}
+
+/// Every record's key, in one buffer.
+#[derive(Debug, Clone, Default)]
+pub struct Keys {
+    text: String,
+    /// End of each key in `text`; key `i` starts where key `i - 1` ends.
+    ends: Vec<usize>,
+}
+
+impl Keys {
+    pub fn push(&mut self, key: &str) {
+        self.text.push_str(key);
+        self.ends.push(self.text.len());
+    }
+
+    pub fn get(&self, i: usize) -> &str {
+        let start = if i == 0 { 0 } else { self.ends[i - 1] };
+        &self.text[start..self.ends[i]]
+    }
+
+    pub fn len(&self) -> usize {
+        self.ends.len()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.ends.is_empty()
+    }
+
+    pub fn iter(&self) -> impl Iterator<Item = &str> + '_ {
+        (0..self.len()).map(|i| self.get(i))
+    }
+
+    /// The first key, in record order, that an earlier record already has:
+    /// (its record, the earlier record). Sorts record numbers by key
+    /// (O(n log n), 4 bytes a record) rather than holding a hash set of
+    /// every key.
+    fn first_repeat(&self) -> Option<(usize, usize)> {
+        let mut order: Vec<u32> = (0..self.len() as u32).collect();
+        order.par_sort_unstable_by(|&a, &b| {
+            self.get(a as usize)
+                .cmp(self.get(b as usize))
+                .then(a.cmp(&b))
+        });
+        order
+            .windows(2)
+            .filter(|w| self.get(w[0] as usize) == self.get(w[1] as usize))
+            // Within a run of equal keys the pairs come in record order, so
+            // the run's first pair names its first two records.
+            .map(|w| (w[1] as usize, w[0] as usize))
+            .fold(
+                None,
+                |best: Option<(usize, usize)>, (later, first)| match best {
+                    Some((b, _)) if b <= later => best,
+                    _ => Some((later, first)),
+                },
+            )
+    }
+}
+
+/// A numeric column: values, and which are missing (their value is 0).
+#[derive(Debug, Clone, Default)]
+pub struct NumericColumn {
+    values: Vec<f64>,
+    missing: Vec<bool>,
+}
+
+impl NumericColumn {
+    pub fn push(&mut self, v: Option<f64>) {
+        self.values.push(v.unwrap_or(0.0));
+        self.missing.push(v.is_none());
+    }
+
+    pub fn get(&self, i: usize) -> Option<f64> {
+        (!self.missing[i]).then(|| self.values[i])
+    }
+
+    pub fn len(&self) -> usize {
+        self.values.len()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.values.is_empty()
+    }
+
+    pub fn iter(&self) -> impl Iterator<Item = Option<f64>> + '_ {
+        (0..self.len()).map(|i| self.get(i))
+    }
 }
 
 /// What to read from a file.
@@ -85,15 +180,14 @@ pub fn load(
 
     let mut table = Table {
         fields: num_at.iter().map(|i| i + 1).collect(),
-        keys: Vec::new(),
+        keys: Keys::default(),
         lines: Vec::new(),
-        numeric: vec![Vec::new(); num_at.len()],
+        numeric: vec![NumericColumn::default(); num_at.len()],
         text: vec![Vec::new(); text_at.len()],
     };
-    let mut first_line: HashMap<String, u64> = HashMap::new();
-    let mut record = csv::StringRecord::new();
+    let mut record = csv::ByteRecord::new();
     loop {
-        match reader.read_record(&mut record) {
+        match reader.read_byte_record(&mut record) {
             Ok(true) => {}
             Ok(false) => break,
             Err(e) => return Err(malformed(shown, &e)),
@@ -105,53 +199,73 @@ pub fn load(
             column: at + 1,
             name: header.get(at).unwrap_or("").trim().to_string(),
         };
-        let key = record.get(key_at).unwrap_or("").trim();
+        // Only the fields the recipe uses are decoded.
+        let field = |at: usize| -> Result<&str, RunError> {
+            std::str::from_utf8(record.get(at).unwrap_or(b"")).map_err(|_| RunError::Malformed {
+                file: shown.to_string(),
+                line,
+                reason: format!(
+                    "field {} (`{}`) is not valid UTF-8 text",
+                    at + 1,
+                    header.get(at).unwrap_or("").trim()
+                ),
+            })
+        };
+        let key = field(key_at)?.trim();
         if key.is_empty() {
             return Err(RunError::BlankKey {
                 place: place(key_at),
             });
         }
-        if let Some(&first) = first_line.get(key) {
-            return Err(RunError::DuplicateKey {
-                place: place(key_at),
-                key: key.to_string(),
-                first_line: first,
-            });
-        }
-        first_line.insert(key.to_string(), line);
         for (col, &at) in table.numeric.iter_mut().zip(&num_at) {
-            let field = record.get(at).unwrap_or("");
-            if is_blank(field) {
+            let text = field(at)?;
+            if is_blank(text) {
                 col.push(None);
                 continue;
             }
-            match parse_number(field) {
+            match parse_number(text) {
                 Some(v) => col.push(Some(v)),
                 None => {
-                    let t = field.trim().to_ascii_lowercase();
-                    let help = if matches!(
-                        t.as_str(),
-                        "nan" | "inf" | "-inf" | "infinity" | "-infinity" | "+inf"
-                    ) {
-                        "values must be finite; leave the field blank to mark a missing value"
-                    } else {
-                        "write numbers with digits and a `.` for decimals; leave the field blank to mark a missing value"
-                    };
                     return Err(RunError::NotANumber {
                         place: place(at),
-                        found: field.trim().to_string(),
-                        help: help.to_string(),
-                    });
+                        found: text.trim().to_string(),
+                        help: number_help(text).to_string(),
+                    })
                 }
             }
         }
         for (col, &at) in table.text.iter_mut().zip(&text_at) {
-            col.push(record.get(at).unwrap_or("").trim().to_string());
+            col.push(field(at)?.trim().to_string());
         }
-        table.keys.push(key.to_string());
+        table.keys.push(key);
         table.lines.push(line);
     }
+    if let Some((later, first)) = table.keys.first_repeat() {
+        return Err(RunError::DuplicateKey {
+            place: Place {
+                file: shown.to_string(),
+                line: table.lines[later],
+                column: key_at + 1,
+                name: header.get(key_at).unwrap_or("").trim().to_string(),
+            },
+            key: table.keys.get(later).to_string(),
+            first_line: table.lines[first],
+        });
+    }
     Ok(table)
+}
+
+/// Help for a field that is not a number.
+fn number_help(field: &str) -> &'static str {
+    let t = field.trim().to_ascii_lowercase();
+    if matches!(
+        t.as_str(),
+        "nan" | "inf" | "-inf" | "infinity" | "-infinity" | "+inf"
+    ) {
+        "values must be finite; leave the field blank to mark a missing value"
+    } else {
+        "write numbers with digits and a `.` for decimals; leave the field blank to mark a missing value"
+    }
 }
 
 /// A CSV reading error as a located run error.

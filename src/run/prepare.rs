@@ -110,7 +110,7 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
     let mut params = Vec::with_capacity(plan.features.len());
     for (f, fp) in plan.features.iter().enumerate() {
         let col = &table.numeric[f];
-        let present: Vec<f64> = kept.iter().filter_map(|&i| col[i]).collect();
+        let present: Vec<f64> = kept.iter().filter_map(|&i| col.get(i)).collect();
         let fill = match fp.missing {
             MissingRule::FillMedian => stats::median(&present),
             MissingRule::FillMean => stats::mean(&present),
@@ -120,7 +120,7 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
         let mut values = Vec::with_capacity(kept.len());
         let mut filled = 0;
         for &i in &kept {
-            match (col[i], fill) {
+            match (col.get(i), fill) {
                 (Some(v), _) => values.push(v),
                 (None, Some(v)) => {
                     filled += 1;

@@ -1,0 +1,130 @@
+"""Side by side: assort against the script an analyst would write, on the
+same seeded files, in one run. Whole-process wall time and peak memory
+(resident set, from the kernel's accounting of each child), medians of
+--repeats runs taken alternately, and the ratio reference / assort.
+
+    python3 benches/side_by_side/run.py                 # every case, 3 runs each
+    python3 benches/side_by_side/run.py --cases sweep100k,trees15k --repeats 5
+
+It builds assort (release), writes the data with the seeded generator
+(examples/bench_data.rs) into target/bench-data, and installs the pinned
+reference (requirements.txt beside this file) into a throwaway virtual
+environment, target/bench-venv. Results go to standard output as a
+Markdown table, ready for docs/performance.md.
+"""
+import argparse
+import os
+import platform
+import statistics
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[2]
+HERE = Path(__file__).resolve().parent
+DATA = ROOT / "target" / "bench-data"
+VENV = ROOT / "target" / "bench-venv"
+ASSORT = ROOT / "target" / "release" / "assort"
+GENERATE = ROOT / "target" / "release" / "examples" / "bench_data"
+
+# name: (records, features, recipe body after `features all`, reference args or None, what)
+CASES = {
+    "sweep100k": (100_000, 8, "scale none\nkmeans k 2..10 restarts 10\nchoose k by silhouette\n",
+                  ["sweep", 2, 10, 10], "sweep k = 2..10, 10 restarts, silhouette, C-H, D-B"),
+    "kmeans1m": (1_000_000, 16, "scale none\nkmeans k 8 restarts 1\n",
+                 ["kmeans", 8], "k-means k = 8, 1 restart, then silhouette, C-H, D-B"),
+    "exact20k": (20_000, 10, "scale none\nkmeans k 8 restarts 1\nevidence silhouette exact\n",
+                 ["exact", 8], "k-means k = 8, 1 restart, exact silhouette"),
+    "ward15k": (15_000, 10, "scale none\ntree linkage ward k 8\n", ["tree", "ward", 8], "Ward tree, cut at 8"),
+    "average15k": (15_000, 10, "scale none\ntree linkage average k 8\n", ["tree", "average", 8], "average-linkage tree, cut at 8"),
+    "single15k": (15_000, 10, "scale none\ntree linkage single k 8\n", ["tree", "single", 8], "single-linkage tree, cut at 8"),
+    "ward100k": (100_000, 10, "scale none\ntree linkage ward k 8\n", None, "Ward tree, cut at 8 (reference cannot hold the matrix)"),
+    "single100k": (100_000, 10, "scale none\ntree linkage single k 8\n", None, "single-linkage tree, cut at 8 (reference cannot hold the matrix)"),
+}
+
+
+def sh(cmd, **kw):
+    subprocess.run(cmd, check=True, **kw)
+
+
+def prepare(cases):
+    sh(["cargo", "build", "--release", "--quiet", "--bin", "assort", "--example", "bench_data"], cwd=ROOT)
+    DATA.mkdir(parents=True, exist_ok=True)
+    for name in cases:
+        n, d = CASES[name][0], CASES[name][1]
+        csv = DATA / f"d{n}_{d}.csv"
+        if not csv.exists():
+            sh([str(GENERATE), str(csv), str(n), str(d)])
+        (DATA / f"{name}.assort").write_text(
+            f'recipe "bench-{name}"\nseed 1\ninput "{csv.name}" key id\nfeatures all\n{CASES[name][2]}'
+        )
+    if any(CASES[c][3] for c in cases):
+        python = VENV / "bin" / "python"
+        if not python.exists():
+            sh([sys.executable, "-m", "venv", str(VENV)])
+            sh([str(python), "-m", "pip", "install", "--quiet", "-r", str(HERE / "requirements.txt")])
+
+
+def timed(cmd):
+    """Wall seconds and peak resident MiB of one child process."""
+    start = time.perf_counter()
+    child = subprocess.Popen(cmd, cwd=DATA, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    _, status, usage = os.wait4(child.pid, 0)
+    wall = time.perf_counter() - start
+    err = child.stderr.read().decode(errors="replace")
+    if os.waitstatus_to_exitcode(status) != 0:
+        raise SystemExit(f"{' '.join(map(str, cmd))} failed:\n{err}")
+    return wall, usage.ru_maxrss / 1024.0
+
+
+def measure(name, repeats):
+    n, d, _, ref, what = CASES[name]
+    csv = DATA / f"d{n}_{d}.csv"
+    ours = [str(ASSORT), "run", "--quiet", f"{name}.assort"]
+    theirs = [str(VENV / "bin" / "python"), str(HERE / "reference.py"), ref[0], str(csv)] + [str(a) for a in ref[1:]] if ref else None
+    a, r = [], []
+    for _ in range(repeats):
+        a.append(timed(ours))
+        if theirs:
+            r.append(timed(theirs))
+    med = lambda runs, i: statistics.median(x[i] for x in runs)
+    row = {"case": name, "what": what, "n": n, "d": d, "assort_s": med(a, 0), "assort_mib": med(a, 1)}
+    if r:
+        row.update(ref_s=med(r, 0), ref_mib=med(r, 1))
+    return row
+
+
+def main():
+    p = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    p.add_argument("--cases", default=",".join(CASES))
+    p.add_argument("--repeats", type=int, default=3)
+    args = p.parse_args()
+    cases = [c for c in args.cases.split(",") if c]
+    unknown = [c for c in cases if c not in CASES]
+    if unknown:
+        raise SystemExit(f"unknown cases: {unknown}; known: {list(CASES)}")
+    prepare(cases)
+    cpu = next((l.split(":", 1)[1].strip() for l in open("/proc/cpuinfo") if l.startswith("model name")), "?")
+    print(f"machine: {platform.machine()}, {os.cpu_count()} cores, {cpu}; {platform.platform()}")
+    print(f"medians of {args.repeats} runs each, taken alternately; ratio = reference / assort\n")
+    print("| case | records x features | assort s | assort MiB | reference s | reference MiB | time ratio | memory ratio |")
+    print("|---|---|---|---|---|---|---|---|")
+    for name in cases:
+        row = measure(name, args.repeats)
+        ref = "ref_s" in row
+        cells = [
+            f"{name}: {row['what']}",
+            f"{row['n']:,} x {row['d']}",
+            f"{row['assort_s']:.2f}",
+            f"{row['assort_mib']:.0f}",
+            f"{row['ref_s']:.2f}" if ref else "–",
+            f"{row['ref_mib']:.0f}" if ref else "–",
+            f"{row['ref_s'] / row['assort_s']:.2f}x" if ref else "–",
+            f"{row['ref_mib'] / row['assort_mib']:.2f}x" if ref else "–",
+        ]
+        print("| " + " | ".join(cells) + " |", flush=True)
+
+
+if __name__ == "__main__":
+    main()
