@@ -373,7 +373,7 @@ pub fn run_with(
         })
         .collect::<Vec<_>>();
 
-    let overall = profile(&prepared, None, None, None, None);
+    let overall = profile(&prepared, table, None, None, None, None);
     let profiles = (0..chosen)
         .map(|s| {
             let members: Vec<usize> = fit
@@ -391,6 +391,7 @@ pub fn run_with(
                 .collect();
             let mut p = profile(
                 &prepared,
+                table,
                 Some(&members),
                 Some(&overall),
                 Some(centre),
@@ -888,6 +889,7 @@ fn advice(sweep: &[SweepRow]) -> Vec<String> {
 /// The profile of some kept records (`None`: all of them).
 fn profile(
     p: &Prepared,
+    table: &load::Table,
     members: Option<&[usize]>,
     overall: Option<&Profile>,
     centre: Option<Vec<f64>>,
@@ -904,15 +906,16 @@ fn profile(
     };
     let size = members.len();
     let features = p
-        .raw
+        .features
         .iter()
         .enumerate()
-        .map(|(f, values)| {
+        .map(|(f, fp)| {
+            let values = prepare::original(table, &p.kept, f, fp.fill);
             let vals: Vec<f64> = members.iter().map(|&i| values[i]).collect();
             let mean = engine::stats::mean(&vals).unwrap_or(0.0);
             let std_diff = match overall {
                 Some(o) => {
-                    let sd = engine::stats::sd_population(values).unwrap_or(0.0);
+                    let sd = engine::stats::sd_population(&values).unwrap_or(0.0);
                     if sd > 0.0 {
                         (mean - o.features[f].mean) / sd
                     } else {

@@ -73,8 +73,6 @@ pub struct Prepared {
     pub matrix: Array2<f64>,
     /// Indices into the table of the records kept.
     pub kept: Vec<usize>,
-    /// Per feature, the kept records' values after filling, original units.
-    pub raw: Vec<Vec<f64>>,
     /// Per category, each kept record's level index.
     pub codes: Vec<Vec<usize>>,
     pub features: Vec<FeatureParams>,
@@ -106,7 +104,6 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
         }
     }
     let kept: Vec<usize> = (0..n).filter(|&i| keep[i]).collect();
-    let mut raw = Vec::with_capacity(plan.features.len());
     let mut params = Vec::with_capacity(plan.features.len());
     for (f, fp) in plan.features.iter().enumerate() {
         let col = &table.numeric[f];
@@ -144,7 +141,7 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
                 }
             }
         }
-        raw.push(values);
+        drop(values);
         params.push(FeatureParams {
             column: fp.column.clone(),
             fill,
@@ -158,12 +155,44 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
         });
     }
 
-    // 2-5. Clip, transform, scale, weight.
+    // 6. Categories.
+    let mut categories = Vec::new();
+    let mut codes = Vec::new();
+    for (c, cp) in plan.categories.iter().enumerate() {
+        let level_of = |s: &str| {
+            if s.is_empty() {
+                BLANK_LEVEL.to_string()
+            } else {
+                s.to_string()
+            }
+        };
+        let mut levels: Vec<String> = kept.iter().map(|&i| level_of(&table.text[c][i])).collect();
+        levels.sort();
+        levels.dedup();
+        let code: Vec<usize> = kept
+            .iter()
+            .map(|&i| {
+                let l = level_of(&table.text[c][i]);
+                // Every kept record's level is in `levels`, built from them.
+                levels.binary_search(&l).unwrap_or(0)
+            })
+            .collect();
+        codes.push(code);
+        categories.push(CategoryParams {
+            column: cp.column.clone(),
+            levels,
+            value: cp.weight.sqrt(),
+        });
+    }
+
     let n_kept = kept.len();
     let width = plan.features.len();
-    let mut columns: Vec<Vec<f64>> = Vec::with_capacity(width);
+    let total_width = width + categories.iter().map(|c| c.levels.len()).sum::<usize>();
+    let mut matrix = Array2::zeros((n_kept, total_width));
+
+    // 2-5. Clip, transform, scale, weight.
     for (f, fp) in plan.features.iter().enumerate() {
-        let mut v = raw[f].clone();
+        let mut v = original(table, &kept, f, params[f].fill);
         if let Some((lo, hi)) = fp.clip {
             let s = stats::sorted(&v);
             let (a, b) = (
@@ -197,46 +226,13 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
         params[f].centre = centre;
         params[f].divisor = divisor;
         params[f].constant = constant;
-        columns.push(v);
-    }
-
-    // 6. Categories.
-    let mut categories = Vec::new();
-    let mut codes = Vec::new();
-    for (c, cp) in plan.categories.iter().enumerate() {
-        let level_of = |s: &str| {
-            if s.is_empty() {
-                BLANK_LEVEL.to_string()
-            } else {
-                s.to_string()
-            }
-        };
-        let mut levels: Vec<String> = kept.iter().map(|&i| level_of(&table.text[c][i])).collect();
-        levels.sort();
-        levels.dedup();
-        let code: Vec<usize> = kept
-            .iter()
-            .map(|&i| {
-                let l = level_of(&table.text[c][i]);
-                // Every kept record's level is in `levels`, built from them.
-                levels.binary_search(&l).unwrap_or(0)
-            })
-            .collect();
-        codes.push(code);
-        categories.push(CategoryParams {
-            column: cp.column.clone(),
-            levels,
-            value: cp.weight.sqrt(),
-        });
-    }
-
-    let total_width = width + categories.iter().map(|c| c.levels.len()).sum::<usize>();
-    let mut matrix = Array2::zeros((n_kept, total_width));
-    for (f, col) in columns.iter().enumerate() {
-        for (r, &v) in col.iter().enumerate() {
-            matrix[[r, f]] = v;
+        // Written into the matrix one column at a time, so preparing
+        // never holds a second copy of every feature.
+        for (r, x) in v.into_iter().enumerate() {
+            matrix[[r, f]] = x;
         }
     }
+
     let mut offset = width;
     for (cat, code) in categories.iter().zip(&codes) {
         for (r, &l) in code.iter().enumerate() {
@@ -248,12 +244,22 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
         matrix,
         dropped: n - n_kept,
         kept,
-        raw,
         codes,
         features: params,
         categories,
         dropped_by,
     })
+}
+
+/// Feature `f`'s values of the kept records after filling, in original
+/// units: what profiles describe. Rebuilt from the table when asked rather
+/// than kept beside the matrix, which on a file of millions of records
+/// would double the memory the features take.
+pub fn original(table: &Table, kept: &[usize], f: usize, fill: Option<f64>) -> Vec<f64> {
+    let col = &table.numeric[f];
+    kept.iter()
+        .map(|&i| col.get(i).or(fill).unwrap_or(0.0))
+        .collect()
 }
 
 /// The place of feature `f` of table row `row`, with its field number.
