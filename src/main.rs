@@ -395,12 +395,19 @@ fn run_and_render(
     plan: &Plan,
     progress: &Progress,
 ) -> Result<(Outcome, Vec<Rendered>, record::RunRecord), run::RunError> {
-    let outcome = run::run_with(plan, &mut run::DataCache::default(), &|step| {
-        progress.step(step)
-    })?;
-    // Each data file is hashed once; the model, the report and the record
-    // all take the digests from here.
-    let inputs = record::input_digests(&outcome);
+    // The input file is hashed on a thread of its own while the run
+    // computes (on a large file it is a pass over every byte); each data
+    // file is hashed once, and the model, the report and the record all
+    // take the digests from here.
+    let (outcome, input_sha256) = std::thread::scope(|scope| {
+        let hashing = scope.spawn(|| record::file_sha256(&plan.input.resolved));
+        let outcome = run::run_with(plan, &mut run::DataCache::default(), &|step| {
+            progress.step(step)
+        });
+        (outcome, hashing.join().ok().flatten())
+    });
+    let outcome = outcome?;
+    let inputs = record::input_digests_with(&outcome, input_sha256);
     let sources = output::files::Sources {
         recipe_text: &source.text,
         inputs: &inputs,

@@ -24,7 +24,8 @@
 //! generator ([`super::rng`]), so its result does not depend on which thread
 //! runs it. A record goes to the nearest centre, ties to the lowest centre
 //! number. The best restart has the lowest within-cluster sum of squares,
-//! ties to the lowest restart number. Sums run in record order.
+//! ties to the lowest restart number. Sums run in record order within fixed
+//! chunks of 8,192 records, the chunks' sums then added in chunk order.
 //!
 //! # Empty clusters
 //! When a centre loses all its records, it is moved onto the record farthest
@@ -112,6 +113,10 @@ pub struct KMeansFit {
 /// Records above which one restart's assignment step is split across
 /// threads. Below it, parallel restarts already keep the cores busy.
 const PARALLEL_ASSIGN_MIN: usize = 16_384;
+
+/// Records per chunk of the segment means: partial sums per chunk, added in
+/// chunk order. Fixed, so the sums' bits never depend on the thread count.
+const MEANS_CHUNK: usize = 8_192;
 
 /// Fits k-means: `settings.restarts` restarts, the best kept.
 ///
@@ -435,10 +440,8 @@ impl<'a> Problem<'a> {
         let mut centres = Vec::with_capacity(k * d);
         let first = stream.below(n);
         centres.extend_from_slice(self.row(first));
-        let mut closest: Vec<f64> = (0..n)
-            .map(|i| dist2(self.row(i), self.row(first)))
-            .collect();
-        let mut potential: f64 = closest.iter().sum();
+        let mut closest = vec![0.0; n];
+        let mut potential = self.nearer(&vec![f64::INFINITY; n], self.row(first), &mut closest);
         let mut candidate = vec![0.0; n];
         let mut best_closest = vec![0.0; n];
         for _ in 1..k {
@@ -451,13 +454,7 @@ impl<'a> Problem<'a> {
                     // any record will do and the empty-cluster rule follows.
                     stream.below(n)
                 };
-                let c = self.row(pick);
-                let mut pot = 0.0;
-                for i in 0..n {
-                    let v = closest[i].min(dist2(self.row(i), c));
-                    candidate[i] = v;
-                    pot += v;
-                }
+                let pot = self.nearer(&closest, self.row(pick), &mut candidate);
                 if best.is_none_or(|(_, p)| pot < p) {
                     best = Some((pick, pot));
                     std::mem::swap(&mut best_closest, &mut candidate);
@@ -470,6 +467,39 @@ impl<'a> Problem<'a> {
             potential = pot;
         }
         centres
+    }
+
+    /// For each record, the smaller of `closest` and its squared distance to
+    /// `c`, written to `out`; returns their sum. In parallel over fixed
+    /// chunks of records, the chunks' sums added in chunk order, so the
+    /// bits do not depend on the thread count (and, below one chunk, equal
+    /// a plain sum in record order).
+    fn nearer(&self, closest: &[f64], c: &[f64], out: &mut [f64]) -> f64 {
+        let work = |(ch, (cl, o)): (usize, (&[f64], &mut [f64]))| {
+            let mut pot = 0.0;
+            for (off, (cv, ov)) in cl.iter().zip(o.iter_mut()).enumerate() {
+                let v = cv.min(dist2(self.row(ch * MEANS_CHUNK + off), c));
+                *ov = v;
+                pot += v;
+            }
+            pot
+        };
+        let parts: Vec<f64> = if self.n >= PARALLEL_ASSIGN_MIN {
+            closest
+                .par_chunks(MEANS_CHUNK)
+                .zip(out.par_chunks_mut(MEANS_CHUNK))
+                .enumerate()
+                .map(work)
+                .collect()
+        } else {
+            closest
+                .chunks(MEANS_CHUNK)
+                .zip(out.chunks_mut(MEANS_CHUNK))
+                .enumerate()
+                .map(work)
+                .collect()
+        };
+        parts.iter().fold(0.0, |a, p| a + p)
     }
 
     /// Each record's squared distance to its own centre, the value the
@@ -527,14 +557,42 @@ impl<'a> Problem<'a> {
     /// Segment means, with no care for empty segments (left at zero).
     fn means(&self, labels: &[u32]) -> Vec<f64> {
         let (d, k) = (self.d, self.settings.k);
+        // Partial sums over fixed chunks of records, in parallel, then
+        // added in chunk order: the chunking never depends on the thread
+        // count, so neither do the bits.
+        let partial = |(c, ls): (usize, &[u32])| {
+            let mut sums = vec![0.0; k * d];
+            let mut counts = vec![0usize; k];
+            for (off, &l) in ls.iter().enumerate() {
+                let l = l as usize;
+                counts[l] += 1;
+                for (s, v) in sums[l * d..(l + 1) * d]
+                    .iter_mut()
+                    .zip(self.row(c * MEANS_CHUNK + off))
+                {
+                    *s += v;
+                }
+            }
+            (sums, counts)
+        };
+        let parts: Vec<(Vec<f64>, Vec<usize>)> = if self.n >= PARALLEL_ASSIGN_MIN {
+            labels
+                .par_chunks(MEANS_CHUNK)
+                .enumerate()
+                .map(partial)
+                .collect()
+        } else {
+            labels
+                .chunks(MEANS_CHUNK)
+                .enumerate()
+                .map(partial)
+                .collect()
+        };
         let mut sums = vec![0.0; k * d];
         let mut counts = vec![0usize; k];
-        for (i, &l) in labels.iter().enumerate() {
-            let l = l as usize;
-            counts[l] += 1;
-            for (s, v) in sums[l * d..(l + 1) * d].iter_mut().zip(self.row(i)) {
-                *s += v;
-            }
+        for (ps, pc) in &parts {
+            sums.iter_mut().zip(ps).for_each(|(s, p)| *s += p);
+            counts.iter_mut().zip(pc).for_each(|(c, p)| *c += p);
         }
         for (j, &c) in counts.iter().enumerate() {
             if c > 0 {

@@ -255,9 +255,14 @@ fn mst_single(rows: &[Vec<f64>], metric: Metric) -> Vec<Step> {
         let row = &rows[from];
         // Update the candidate distances in parallel (each j on its own),
         // then pick the nearest in index order.
+        // Euclidean candidates are compared by squared distance (the same
+        // order, one square root per merge instead of one per pair).
         best.par_iter_mut().enumerate().for_each(|(j, b)| {
             if !in_tree[j] {
-                let dd = metric.distance(row, &rows[j]);
+                let dd = match metric {
+                    Metric::Euclidean => dist2(row, &rows[j]),
+                    other => other.distance(row, &rows[j]),
+                };
                 if dd < b.0 {
                     *b = (dd, from);
                 }
@@ -270,7 +275,11 @@ fn mst_single(rows: &[Vec<f64>], metric: Metric) -> Vec<Step> {
             }
         }
         in_tree[next] = true;
-        steps.push((best[next].1, next, best[next].0));
+        let height = match metric {
+            Metric::Euclidean => best[next].0.sqrt(),
+            _ => best[next].0,
+        };
+        steps.push((best[next].1, next, height));
         current = next;
     }
     steps

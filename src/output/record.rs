@@ -53,9 +53,27 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
         .collect()
 }
 
-/// SHA-256 of a file's bytes, or `None` when it cannot be read.
+/// SHA-256 of a file's bytes, or `None` when it cannot be read. Read in
+/// blocks, so a large data file is never held whole.
 pub fn file_sha256(path: &Path) -> Option<String> {
-    std::fs::read(path).ok().map(|b| sha256_hex(&b))
+    use std::io::Read;
+    let mut file = std::fs::File::open(path).ok()?;
+    let mut hasher = Sha256::new();
+    let mut buf = vec![0u8; 1 << 20];
+    loop {
+        let got = file.read(&mut buf).ok()?;
+        if got == 0 {
+            break;
+        }
+        hasher.update(&buf[..got]);
+    }
+    Some(
+        hasher
+            .finalize()
+            .iter()
+            .map(|b| format!("{b:02x}"))
+            .collect(),
+    )
 }
 
 /// Where a recipe's run record lives: beside its first output, or beside
@@ -74,10 +92,16 @@ pub fn record_path(recipe: &Path, outputs: &[PathBuf]) -> PathBuf {
 
 /// The data files a run read, with their digests and record counts.
 pub fn input_digests(o: &Outcome) -> Vec<InputDigest> {
+    input_digests_with(o, file_sha256(&o.plan.input.resolved))
+}
+
+/// [`input_digests`] with the input file's digest already computed (the
+/// command line hashes it while the run computes).
+pub fn input_digests_with(o: &Outcome, input_sha256: Option<String>) -> Vec<InputDigest> {
     let mut out = vec![InputDigest {
         role: "input".into(),
         path: o.plan.input.path.clone(),
-        sha256: file_sha256(&o.plan.input.resolved).unwrap_or_default(),
+        sha256: input_sha256.unwrap_or_default(),
         records: o.records,
     }];
     if let (Some(c), Some(cmp)) = (&o.plan.compare, &o.comparison) {

@@ -185,60 +185,60 @@ pub fn load(
         numeric: vec![NumericColumn::default(); num_at.len()],
         text: vec![Vec::new(); text_at.len()],
     };
-    let mut record = csv::ByteRecord::new();
+    // Records are read in batches (the CSV syntax is sequential); each
+    // batch's fields are decoded in parallel, then appended in record
+    // order, the first problem in record order reported.
+    let decoder = Decoder {
+        shown,
+        header: &header,
+        key_at,
+        num_at: &num_at,
+        text_at: &text_at,
+    };
+    let width = num_at.len().max(1);
+    let mut batch: Vec<csv::ByteRecord> = Vec::new();
+    let mut values = vec![0.0; BATCH * width];
+    let mut missing = vec![false; BATCH * width];
     loop {
-        match reader.read_byte_record(&mut record) {
-            Ok(true) => {}
-            Ok(false) => break,
-            Err(e) => return Err(malformed(shown, &e)),
-        }
-        let line = record.position().map(|p| p.line()).unwrap_or(0);
-        let place = |at: usize| Place {
-            file: shown.to_string(),
-            line,
-            column: at + 1,
-            name: header.get(at).unwrap_or("").trim().to_string(),
-        };
-        // Only the fields the recipe uses are decoded.
-        let field = |at: usize| -> Result<&str, RunError> {
-            std::str::from_utf8(record.get(at).unwrap_or(b"")).map_err(|_| RunError::Malformed {
-                file: shown.to_string(),
-                line,
-                reason: format!(
-                    "field {} (`{}`) is not valid UTF-8 text",
-                    at + 1,
-                    header.get(at).unwrap_or("").trim()
-                ),
-            })
-        };
-        let key = field(key_at)?.trim();
-        if key.is_empty() {
-            return Err(RunError::BlankKey {
-                place: place(key_at),
-            });
-        }
-        for (col, &at) in table.numeric.iter_mut().zip(&num_at) {
-            let text = field(at)?;
-            if is_blank(text) {
-                col.push(None);
-                continue;
+        let mut filled = 0;
+        let mut fault = None;
+        while filled < BATCH {
+            if batch.len() == filled {
+                batch.push(csv::ByteRecord::new());
             }
-            match parse_number(text) {
-                Some(v) => col.push(Some(v)),
-                None => {
-                    return Err(RunError::NotANumber {
-                        place: place(at),
-                        found: text.trim().to_string(),
-                        help: number_help(text).to_string(),
-                    })
+            match reader.read_byte_record(&mut batch[filled]) {
+                Ok(true) => filled += 1,
+                Ok(false) => break,
+                Err(e) => {
+                    fault = Some(malformed(shown, &e));
+                    break;
                 }
             }
         }
-        for (col, &at) in table.text.iter_mut().zip(&text_at) {
-            col.push(field(at)?.trim().to_string());
+        let decoded: Vec<Result<Decoded, RunError>> = batch[..filled]
+            .par_iter()
+            .zip(values.par_chunks_mut(width))
+            .zip(missing.par_chunks_mut(width))
+            .map(|((record, v), m)| decoder.decode(record, v, m))
+            .collect();
+        for (j, row) in decoded.into_iter().enumerate() {
+            let row = row?;
+            for (f, col) in table.numeric.iter_mut().enumerate() {
+                let at = j * width + f;
+                col.push((!missing[at]).then_some(values[at]));
+            }
+            for (col, t) in table.text.iter_mut().zip(row.texts) {
+                col.push(t);
+            }
+            table.keys.push(&row.key);
+            table.lines.push(row.line);
         }
-        table.keys.push(key);
-        table.lines.push(line);
+        if let Some(e) = fault {
+            return Err(e);
+        }
+        if filled < BATCH {
+            break;
+        }
     }
     if let Some((later, first)) = table.keys.first_repeat() {
         return Err(RunError::DuplicateKey {
@@ -253,6 +253,86 @@ pub fn load(
         });
     }
     Ok(table)
+}
+
+/// Records per batch of the reader.
+const BATCH: usize = 8_192;
+
+/// One record's fields, decoded: its key, text fields and line (numbers go
+/// to the batch's buffers).
+struct Decoded {
+    key: String,
+    texts: Vec<String>,
+    line: u64,
+}
+
+/// What decoding a record needs to know about the file.
+struct Decoder<'a> {
+    shown: &'a str,
+    header: &'a csv::StringRecord,
+    key_at: usize,
+    num_at: &'a [usize],
+    text_at: &'a [usize],
+}
+
+impl Decoder<'_> {
+    /// Decodes the fields the recipe uses, checking them in field order
+    /// (key, numbers, texts) so the first problem is the one a person
+    /// reading the line would meet first.
+    fn decode(
+        &self,
+        record: &csv::ByteRecord,
+        values: &mut [f64],
+        missing: &mut [bool],
+    ) -> Result<Decoded, RunError> {
+        let line = record.position().map(|p| p.line()).unwrap_or(0);
+        let place = |at: usize| Place {
+            file: self.shown.to_string(),
+            line,
+            column: at + 1,
+            name: self.header.get(at).unwrap_or("").trim().to_string(),
+        };
+        let field = |at: usize| -> Result<&str, RunError> {
+            std::str::from_utf8(record.get(at).unwrap_or(b"")).map_err(|_| RunError::Malformed {
+                file: self.shown.to_string(),
+                line,
+                reason: format!(
+                    "field {} (`{}`) is not valid UTF-8 text",
+                    at + 1,
+                    self.header.get(at).unwrap_or("").trim()
+                ),
+            })
+        };
+        let key = field(self.key_at)?.trim();
+        if key.is_empty() {
+            return Err(RunError::BlankKey {
+                place: place(self.key_at),
+            });
+        }
+        for (f, &at) in self.num_at.iter().enumerate() {
+            let text = field(at)?;
+            if is_blank(text) {
+                missing[f] = true;
+                continue;
+            }
+            missing[f] = false;
+            values[f] = parse_number(text).ok_or_else(|| RunError::NotANumber {
+                place: place(at),
+                found: text.trim().to_string(),
+                help: number_help(text).to_string(),
+            })?;
+        }
+        let texts = self
+            .text_at
+            .iter()
+            .map(|&at| Ok(field(at)?.trim().to_string()))
+            .collect::<Result<Vec<_>, RunError>>()?;
+        Ok(Decoded {
+            key: key.to_string(),
+            texts,
+            line,
+        })
+    }
 }
 
 /// Help for a field that is not a number.

@@ -373,7 +373,8 @@ pub fn run_with(
         })
         .collect::<Vec<_>>();
 
-    let overall = profile(&prepared, table, None, None, None, None);
+    let means = FeatureMeans::new(&prepared, table, &fit.labels, chosen);
+    let overall = profile(&prepared, means.overall(), None, None, None);
     let profiles = (0..chosen)
         .map(|s| {
             let members: Vec<usize> = fit
@@ -391,9 +392,8 @@ pub fn run_with(
                 .collect();
             let mut p = profile(
                 &prepared,
-                table,
+                means.segment(s),
                 Some(&members),
-                Some(&overall),
                 Some(centre),
                 per_segment_silhouette[at].get(s).copied(),
             );
@@ -886,12 +886,73 @@ fn advice(sweep: &[SweepRow]) -> Vec<String> {
         .collect()
 }
 
+/// Each feature's mean over all kept records and within each segment, in
+/// original units, and its population standard deviation: one pass per
+/// feature, its values rebuilt from the table one feature at a time (so no
+/// second copy of every feature is held). Sums run in record order, as
+/// [`engine::stats::mean`] sums.
+struct FeatureMeans {
+    overall: Vec<f64>,
+    sd: Vec<f64>,
+    /// `[segment][feature]`.
+    by_segment: Vec<Vec<f64>>,
+}
+
+impl FeatureMeans {
+    fn new(p: &Prepared, table: &load::Table, labels: &[u32], k: usize) -> FeatureMeans {
+        let mut sizes = vec![0usize; k];
+        labels.iter().for_each(|&l| sizes[l as usize] += 1);
+        let mut out = FeatureMeans {
+            overall: Vec::new(),
+            sd: Vec::new(),
+            by_segment: vec![Vec::new(); k],
+        };
+        for (f, fp) in p.features.iter().enumerate() {
+            let values = prepare::original(table, &p.kept, f, fp.fill);
+            out.overall
+                .push(engine::stats::mean(&values).unwrap_or(0.0));
+            out.sd
+                .push(engine::stats::sd_population(&values).unwrap_or(0.0));
+            let mut sums = vec![0.0; k];
+            for (v, &l) in values.iter().zip(labels) {
+                sums[l as usize] += v;
+            }
+            for (s, (sum, &m)) in sums.iter().zip(&sizes).enumerate() {
+                out.by_segment[s].push(if m == 0 { 0.0 } else { sum / m as f64 });
+            }
+        }
+        out
+    }
+
+    /// All records: means, no differences.
+    fn overall(&self) -> Vec<FeatureSummary> {
+        self.overall
+            .iter()
+            .map(|&mean| FeatureSummary {
+                mean,
+                std_diff: 0.0,
+            })
+            .collect()
+    }
+
+    /// Segment `s`: means and standardised differences from all records.
+    fn segment(&self, s: usize) -> Vec<FeatureSummary> {
+        self.by_segment[s]
+            .iter()
+            .zip(self.overall.iter().zip(&self.sd))
+            .map(|(&mean, (&all, &sd))| FeatureSummary {
+                mean,
+                std_diff: if sd > 0.0 { (mean - all) / sd } else { 0.0 },
+            })
+            .collect()
+    }
+}
+
 /// The profile of some kept records (`None`: all of them).
 fn profile(
     p: &Prepared,
-    table: &load::Table,
+    features: Vec<FeatureSummary>,
     members: Option<&[usize]>,
-    overall: Option<&Profile>,
     centre: Option<Vec<f64>>,
     silhouette: Option<f64>,
 ) -> Profile {
@@ -905,28 +966,6 @@ fn profile(
         }
     };
     let size = members.len();
-    let features = p
-        .features
-        .iter()
-        .enumerate()
-        .map(|(f, fp)| {
-            let values = prepare::original(table, &p.kept, f, fp.fill);
-            let vals: Vec<f64> = members.iter().map(|&i| values[i]).collect();
-            let mean = engine::stats::mean(&vals).unwrap_or(0.0);
-            let std_diff = match overall {
-                Some(o) => {
-                    let sd = engine::stats::sd_population(&values).unwrap_or(0.0);
-                    if sd > 0.0 {
-                        (mean - o.features[f].mean) / sd
-                    } else {
-                        0.0
-                    }
-                }
-                None => 0.0,
-            };
-            FeatureSummary { mean, std_diff }
-        })
-        .collect();
     let categories = p
         .categories
         .iter()
