@@ -223,6 +223,46 @@ fn reruns_and_thread_counts_give_byte_identical_outputs() {
     }
 }
 
+/// The demo is smaller than one chunk of the parallel steps; this file is
+/// not: 40,000 records, so the batched reader, the chunked means and
+/// k-means++ potentials, the bounded assignment step and the silhouette
+/// estimate all split their work, and must still give the same bytes.
+#[test]
+fn large_files_give_byte_identical_outputs_on_any_thread_count() {
+    let case = Case::empty();
+    let mut s = assort::engine::rng::Stream::new(21, 0);
+    let mut data = String::from("id,a,b,c\n");
+    for i in 0..40_000 {
+        let g = (i % 4) as f64;
+        data.push_str(&format!(
+            "m{i},{:.3},{:.3},{:.3}\n",
+            g + 2.0 * s.unit(),
+            g * g / 2.0 + 2.0 * s.unit(),
+            3.0 * s.unit()
+        ));
+    }
+    case.write("d.csv", &data).write(
+        "r.assort",
+        "input \"d.csv\" key id\nfeatures a, b, c\nkmeans k 2..5 restarts 3\nchoose k by silhouette\nsave assignments \"out/a.csv\"\nsave profiles \"out/p.json\"\nsave centroids \"out/c.csv\"\n",
+    );
+    let read = || {
+        ["out/a.csv", "out/p.json", "out/c.csv", "out/r.run.json"]
+            .map(|f| std::fs::read(case.path(f)).unwrap())
+    };
+    case.assort(&["run", "r.assort"], &[("RAYON_NUM_THREADS", "1")])
+        .ok()
+        .stdout_has("silhouette (se)");
+    let first = read();
+    for threads in ["2", "8"] {
+        case.assort(&["run", "r.assort"], &[("RAYON_NUM_THREADS", threads)])
+            .ok();
+        assert!(
+            first == read(),
+            "RAYON_NUM_THREADS={threads} changed the outputs"
+        );
+    }
+}
+
 #[test]
 fn a_misspelt_column_is_located_and_the_right_name_suggested() {
     let case = Case::demo();
