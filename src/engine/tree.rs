@@ -134,6 +134,7 @@ impl Metric {
     }
 
     /// The distance between two rows.
+    #[inline]
     pub fn distance(self, a: &[f64], b: &[f64]) -> f64 {
         match self {
             Metric::Euclidean => dist2(a, b).sqrt(),
@@ -246,13 +247,19 @@ fn mst_single(rows: &[Vec<f64>], metric: Metric) -> Vec<Step> {
         return steps;
     }
     // `best[j]`: distance from the tree to j, and the tree node it is from.
+    // One contiguous buffer: the scan below reads every remaining row once
+    // per merge, so rows held as separate vectors would cost a pointer
+    // chase each.
+    let d = rows[0].len();
+    let flat: Vec<f64> = rows.iter().flatten().copied().collect();
+    let row_of = |j: usize| &flat[j * d..(j + 1) * d];
     let mut in_tree = vec![false; n];
     let mut best = vec![(f64::INFINITY, 0usize); n];
     let mut current = 0;
     in_tree[0] = true;
     for _ in 1..n {
         let from = current;
-        let row = &rows[from];
+        let row = row_of(from);
         // Update the candidate distances in parallel (each j on its own),
         // then pick the nearest in index order.
         // Euclidean candidates are compared by squared distance (the same
@@ -260,8 +267,8 @@ fn mst_single(rows: &[Vec<f64>], metric: Metric) -> Vec<Step> {
         best.par_iter_mut().enumerate().for_each(|(j, b)| {
             if !in_tree[j] {
                 let dd = match metric {
-                    Metric::Euclidean => dist2(row, &rows[j]),
-                    other => other.distance(row, &rows[j]),
+                    Metric::Euclidean => dist2(row, row_of(j)),
+                    other => other.distance(row, row_of(j)),
                 };
                 if dd < b.0 {
                     *b = (dd, from);

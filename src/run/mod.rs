@@ -29,7 +29,7 @@ const COPHENETIC_STREAM: u64 = (1 << 63) | (1 << 62);
 /// Leaves up to which the cophenetic correlation is exact (all pairs);
 /// above, it is measured over the pairs of this many sampled leaves, at a
 /// cost that does not grow with the square of the records.
-pub const COPHENETIC_SAMPLE: usize = 8_000;
+pub const COPHENETIC_SAMPLE: usize = 4_000;
 
 /// When fewer than this share of restarts reach the best partition (or only
 /// one does), the run advises more restarts.
