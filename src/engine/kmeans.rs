@@ -227,21 +227,14 @@ pub fn nearest_with_margin(
     data: ArrayView2<'_, f64>,
     centroids: ArrayView2<'_, f64>,
 ) -> Vec<(u32, f64, f64)> {
-    let (x, d) = rows_of(&data);
-    let (c, _) = rows_of(&centroids);
-    x.par_chunks(d.max(1))
+    let (x, c) = (data.as_standard_layout(), centroids.as_standard_layout());
+    let d = data.ncols().max(1);
+    let c = c.as_slice().expect("a standard-layout array is one slice");
+    x.as_slice()
+        .expect("a standard-layout array is one slice")
+        .par_chunks(d)
         .map(|row| {
-            let (mut b1, mut d1, mut d2) = (0u32, f64::INFINITY, f64::INFINITY);
-            for (j, c) in c.chunks_exact(d.max(1)).enumerate() {
-                let dd = dist2(row, c);
-                if dd < d1 {
-                    d2 = d1;
-                    d1 = dd;
-                    b1 = j as u32;
-                } else if dd < d2 {
-                    d2 = dd;
-                }
-            }
+            let (b1, d1, d2) = nearest_two(row, c, d);
             let margin = if d2.is_finite() {
                 d2.sqrt() - d1.sqrt()
             } else {
@@ -252,14 +245,23 @@ pub fn nearest_with_margin(
         .collect()
 }
 
-/// A matrix's values in row order, borrowed when it is laid out so (as the
-/// run stage builds them), copied once otherwise; and its row length.
-fn rows_of<'a>(m: &'a ArrayView2<'_, f64>) -> (std::borrow::Cow<'a, [f64]>, usize) {
-    let d = m.ncols();
-    match m.as_slice() {
-        Some(s) => (std::borrow::Cow::Borrowed(s), d),
-        None => (std::borrow::Cow::Owned(m.iter().copied().collect()), d),
+/// The nearest of the centres (`d` values each, in one slice) by squared
+/// distance, ties to the lowest number; its squared distance and the
+/// second-smallest squared distance (infinite with one centre).
+#[inline]
+pub(crate) fn nearest_two(row: &[f64], centres: &[f64], d: usize) -> (u32, f64, f64) {
+    let (mut best, mut d1, mut d2) = (0u32, f64::INFINITY, f64::INFINITY);
+    for (j, c) in centres.chunks_exact(d).enumerate() {
+        let dd = dist2(row, c);
+        if dd < d1 {
+            d2 = d1;
+            d1 = dd;
+            best = j as u32;
+        } else if dd < d2 {
+            d2 = dd;
+        }
     }
+    (best, d1, d2)
 }
 
 /// For each record: the distance to the centre of its own segment, and the
@@ -272,10 +274,13 @@ pub fn distance_and_margin(
     centroids: ArrayView2<'_, f64>,
     labels: &[u32],
 ) -> Vec<(f64, f64)> {
-    let (x, d) = rows_of(&data);
-    let (c, _) = rows_of(&centroids);
-    let cents: Vec<&[f64]> = c.chunks_exact(d.max(1)).collect();
-    x.par_chunks(d.max(1))
+    let (x, c) = (data.as_standard_layout(), centroids.as_standard_layout());
+    let d = data.ncols().max(1);
+    let c = c.as_slice().expect("a standard-layout array is one slice");
+    let cents: Vec<&[f64]> = c.chunks_exact(d).collect();
+    x.as_slice()
+        .expect("a standard-layout array is one slice")
+        .par_chunks(d)
         .zip(labels.par_iter())
         .map(|(row, &own)| {
             let own_d = dist2(row, cents[own as usize]).sqrt();
@@ -385,18 +390,15 @@ impl<'a> Problem<'a> {
             if rounds == self.settings.max_rounds {
                 break;
             }
-            let next = if self.search == Search::Bounded && has_empty(&labels, k) {
+            if self.search == Search::Bounded && has_empty(&labels, k) {
                 // The refill rule reads each record's distance to its
                 // centre, which the bounded step does not keep; it also
                 // moves records, which voids their bounds.
                 self.own_distances(&centroids, &labels, &mut dists);
                 bounds.invalidate();
-                self.update(&mut labels, &dists)
-            } else if self.search == Search::Bounded {
-                self.means(&labels)
-            } else {
-                self.update(&mut labels, &dists)
-            };
+            }
+            // Without an empty segment `update` is the segment means.
+            let next = self.update(&mut labels, &dists);
             let shift: f64 = centroids
                 .chunks_exact(self.d)
                 .zip(next.chunks_exact(self.d))
@@ -507,13 +509,16 @@ impl<'a> Problem<'a> {
     /// distance), in parallel over fixed chunks.
     fn own_distances(&self, centroids: &[f64], labels: &[u32], dists: &mut [f64]) {
         let d = self.d;
-        dists.par_chunks_mut(4096).enumerate().for_each(|(c, ds)| {
-            for (off, dd) in ds.iter_mut().enumerate() {
-                let i = c * 4096 + off;
-                let own = labels[i] as usize;
-                *dd = dist2(self.row(i), &centroids[own * d..(own + 1) * d]);
-            }
-        });
+        dists
+            .par_chunks_mut(MEANS_CHUNK)
+            .enumerate()
+            .for_each(|(c, ds)| {
+                for (off, dd) in ds.iter_mut().enumerate() {
+                    let i = c * MEANS_CHUNK + off;
+                    let own = labels[i] as usize;
+                    *dd = dist2(self.row(i), &centroids[own * d..(own + 1) * d]);
+                }
+            });
     }
 
     /// Labels every record with its nearest centre; returns how many changed.
@@ -611,6 +616,9 @@ impl<'a> Problem<'a> {
         let mut counts = vec![0usize; k];
         for &l in labels.iter() {
             counts[l as usize] += 1;
+        }
+        if !counts.contains(&0) {
+            return self.means(labels);
         }
         let mut taken = vec![false; self.n];
         for j in 0..k {

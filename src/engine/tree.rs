@@ -809,17 +809,12 @@ impl Dendrogram {
         metric: Metric,
         chosen: Option<&[bool]>,
     ) -> f64 {
-        let rows: Vec<&[f64]> = data
+        let standard = data.as_standard_layout();
+        let rows: Vec<&[f64]> = standard
             .as_slice()
-            .map(|x| x.chunks_exact(data.ncols().max(1)).collect())
-            .unwrap_or_default();
-        let owned: Vec<Vec<f64>>;
-        let rows: Vec<&[f64]> = if rows.len() == self.n {
-            rows
-        } else {
-            owned = data.outer_iter().map(|r| r.to_vec()).collect();
-            owned.iter().map(Vec::as_slice).collect()
-        };
+            .expect("a standard-layout array is one slice")
+            .chunks_exact(data.ncols().max(1))
+            .collect();
         let leaves = chosen.map_or(self.n, |c| c.iter().filter(|&&b| b).count());
         let count = (leaves * leaves.saturating_sub(1) / 2) as f64;
         let [sx, sy, _] = self.pair_sums(&rows, metric, chosen, &|x, y| [x, y, 0.0]);

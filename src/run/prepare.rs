@@ -114,15 +114,13 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
             MissingRule::FillValue(v) => Some(v),
             MissingRule::Refuse | MissingRule::DropRow => None,
         };
-        let mut values = Vec::with_capacity(kept.len());
+        // Only counted and checked here; the values themselves are
+        // rebuilt by `original` when the matrix is filled.
         let mut filled = 0;
         for &i in &kept {
             match (col.get(i), fill) {
-                (Some(v), _) => values.push(v),
-                (None, Some(v)) => {
-                    filled += 1;
-                    values.push(v);
-                }
+                (Some(_), _) => {}
+                (None, Some(_)) => filled += 1,
                 (None, None)
                     if present.is_empty()
                         && matches!(
@@ -141,7 +139,6 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
                 }
             }
         }
-        drop(values);
         params.push(FeatureParams {
             column: fp.column.clone(),
             fill,

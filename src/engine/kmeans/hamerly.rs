@@ -63,9 +63,7 @@ impl Bounds {
 
 /// What the step needs about the centres: their number, how far each moved
 /// since the bounds were set, and half the gap to the nearest other.
-struct Centres<'a> {
-    c: &'a [f64],
-    d: usize,
+struct Centres {
     /// `moved[j]`, widened; zero on the first step.
     moved: Vec<f64>,
     /// The largest and second-largest movement, and the centre of the
@@ -75,12 +73,12 @@ struct Centres<'a> {
     half_gap: Vec<f64>,
 }
 
-impl<'a> Centres<'a> {
-    fn new(c: &'a [f64], previous: &[f64], d: usize) -> Centres<'a> {
+impl Centres {
+    fn new(c: &[f64], previous: &[f64], d: usize) -> Centres {
         let k = c.len() / d;
-        let row = |v: &'a [f64], j: usize| &v[j * d..(j + 1) * d];
+        let row = |j: usize| &c[j * d..(j + 1) * d];
         let moved: Vec<f64> = (0..k)
-            .map(|j| dist2(row(c, j), &previous[j * d..(j + 1) * d]).sqrt() * (1.0 + MARGIN))
+            .map(|j| dist2(row(j), &previous[j * d..(j + 1) * d]).sqrt() * (1.0 + MARGIN))
             .collect();
         let mut top = (0.0, 0.0, usize::MAX);
         for (j, &m) in moved.iter().enumerate() {
@@ -94,14 +92,12 @@ impl<'a> Centres<'a> {
             .map(|j| {
                 let nearest = (0..k)
                     .filter(|&o| o != j)
-                    .map(|o| dist2(row(c, j), row(c, o)))
+                    .map(|o| dist2(row(j), row(o)))
                     .fold(f64::INFINITY, f64::min);
                 0.5 * nearest.sqrt() * (1.0 - MARGIN)
             })
             .collect();
         Centres {
-            c,
-            d,
             moved,
             top,
             half_gap,
@@ -115,23 +111,6 @@ impl<'a> Centres<'a> {
         } else {
             self.top.0
         }
-    }
-
-    /// Nearest centre by squared distance (ties to the lowest number), its
-    /// squared distance and the second-smallest squared distance.
-    fn nearest_two(&self, row: &[f64]) -> (u32, f64, f64) {
-        let (mut best, mut d1, mut d2) = (0u32, f64::INFINITY, f64::INFINITY);
-        for (j, c) in self.c.chunks_exact(self.d).enumerate() {
-            let dd = dist2(row, c);
-            if dd < d1 {
-                d2 = d1;
-                d1 = dd;
-                best = j as u32;
-            } else if dd < d2 {
-                d2 = dd;
-            }
-        }
-        (best, d1, d2)
     }
 }
 
@@ -172,7 +151,7 @@ pub(super) fn assign(
                     continue;
                 }
             }
-            let (best, d1, d2) = centres.nearest_two(row);
+            let (best, d1, d2) = super::nearest_two(row, centroids, d);
             changed += usize::from(*l != best);
             *l = best;
             *u = d1.sqrt() * (1.0 + MARGIN);
