@@ -96,6 +96,7 @@ fn main() {
         tolerance: sklearn_tol / d as f64,
         seeding: kmeans::Seeding::KMeansPlusPlus,
         seed: 1,
+        sample: None,
     };
     let (km_time, fit) = best_of(repeats, || kmeans::kmeans(x.view(), &settings).unwrap());
     let xs = x.slice(ndarray::s![..sil_n, ..]).to_owned();

@@ -14,6 +14,7 @@
 //!   the engine, builds profiles.
 //! - [`engine`]: clustering and criteria; knows nothing of the language.
 //! - [`output`]: terminal tables and output files.
+//! - [`text`]: small formatting helpers shared by messages and outputs.
 
 pub mod check;
 pub mod engine;
@@ -24,3 +25,4 @@ pub mod repl;
 pub mod run;
 pub mod session;
 pub mod syntax;
+pub mod text;

@@ -253,6 +253,9 @@ pub struct KMeansPlan {
     pub rounds: usize,
     pub tolerance: f64,
     pub seeding: Seeding,
+    /// Restarts on a seeded sample of this many records, the best refined
+    /// on every record; `None` runs every restart on every record.
+    pub sample: Option<usize>,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]

@@ -713,6 +713,25 @@ fn a_ward_tree_over_exactly_20000_records_runs() {
     assert_eq!(case.read("out/a.csv").lines().count(), 20_001);
 }
 
+/// `sample` runs the restarts on a sample and says so; the checker wants
+/// room for every segment in it.
+#[test]
+fn kmeans_restarts_on_a_sample_are_announced_and_sized() {
+    let case = Case::empty();
+    case.write("d.csv", &many_records(20_000)).write(
+        "r.assort",
+        "input \"d.csv\" key id\nfeatures a, b\nkmeans k 2..4 sample 2000\nsave assignments \"out/a.csv\"\n",
+    );
+    case.run("r.assort")
+        .ok()
+        .stdout_has("k-means restarts ran on a seeded sample of 2,000 of 20,000 records");
+    assert_eq!(case.read("out/a.csv").lines().count(), 20_001);
+    case.edit("r.assort", "k 2..4 sample 2000", "k 2..150 sample 1000");
+    case.assort(&["check", "r.assort"], &[])
+        .fails()
+        .stderr_has("at least 10 records per segment (1500 at k = 150)");
+}
+
 #[test]
 fn an_iris_tree_cut_by_height_matches_the_reference_cut() {
     // Reference: scipy 1.17.1 average linkage on the raw Iris measurements;

@@ -30,6 +30,7 @@ fn kmeans_at(data: ArrayView2<'_, f64>, ks: &[usize], seed: u64) -> Vec<Vec<u32>
                 tolerance: 0.0,
                 seeding: Seeding::KMeansPlusPlus,
                 seed,
+                sample: None,
             };
             kmeans(data, &settings)
                 .map(|f| f.labels)

@@ -7,7 +7,7 @@
 //! generated sets built to tie (records on a grid, duplicated records,
 //! records exactly halfway between two groups).
 
-use assort::engine::kmeans::{kmeans_with, KMeansFit, KMeansSettings, Search, Seeding};
+use assort::engine::kmeans::{kmeans_with, KMeansSettings, Search, Seeding};
 use assort::engine::rng::Stream;
 use ndarray::Array2;
 
@@ -21,31 +21,14 @@ fn settings(k: usize, seeding: Seeding, seed: u64) -> KMeansSettings {
         tolerance: 0.0,
         seeding,
         seed,
+        sample: None,
     }
-}
-
-#[track_caller]
-fn same(a: &KMeansFit, b: &KMeansFit, what: &str) {
-    assert_eq!(a.labels, b.labels, "{what}: labels");
-    assert_eq!(
-        a.inertia.to_bits(),
-        b.inertia.to_bits(),
-        "{what}: within-SS"
-    );
-    assert_eq!(a.rounds, b.rounds, "{what}: rounds");
-    assert_eq!(a.best_restart, b.best_restart, "{what}: best restart");
-    assert_eq!(
-        a.restarts_at_best, b.restarts_at_best,
-        "{what}: restarts at best"
-    );
-    let bits = |f: &KMeansFit| f.centroids.iter().map(|v| v.to_bits()).collect::<Vec<_>>();
-    assert_eq!(bits(a), bits(b), "{what}: centres");
 }
 
 fn both(x: &Array2<f64>, s: &KMeansSettings, what: &str) {
     let bounded = kmeans_with(x.view(), s, Search::Bounded).unwrap();
     let exhaustive = kmeans_with(x.view(), s, Search::Exhaustive).unwrap();
-    same(&bounded, &exhaustive, what);
+    common::same_fit(&bounded, &exhaustive, what);
 }
 
 #[test]

@@ -72,6 +72,7 @@ fn settings(k: usize, restarts: usize) -> kmeans::KMeansSettings {
         tolerance: 0.0,
         seeding: kmeans::Seeding::KMeansPlusPlus,
         seed: 2026,
+        sample: None,
     }
 }
 

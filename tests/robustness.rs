@@ -123,6 +123,7 @@ fn settings(k: usize, seeding: kmeans::Seeding) -> kmeans::KMeansSettings {
         tolerance: 0.0,
         seeding,
         seed: 3,
+        sample: None,
     }
 }
 

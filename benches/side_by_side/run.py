@@ -13,11 +13,13 @@ environment, target/bench-venv. Results go to standard output as a
 Markdown table, ready for docs/performance.md.
 """
 import argparse
+import json
 import os
 import platform
 import statistics
 import subprocess
 import sys
+import tempfile
 import time
 from pathlib import Path
 
@@ -29,6 +31,8 @@ ASSORT = ROOT / "target" / "release" / "assort"
 GENERATE = ROOT / "target" / "release" / "examples" / "bench_data"
 
 # name: (records, features, recipe body after `features all`, reference args or None, what)
+# Cases without a reference are measured on their own; sweep1m against
+# sweep1m_sampled also prints the within-SS each reaches at every k.
 CASES = {
     "sweep100k": (100_000, 8, "scale none\nkmeans k 2..10 restarts 10\nchoose k by silhouette\n",
                   ["sweep", 2, 10, 10], "sweep k = 2..10, 10 restarts, silhouette, C-H, D-B"),
@@ -39,6 +43,12 @@ CASES = {
     "ward15k": (15_000, 10, "scale none\ntree linkage ward k 8\n", ["tree", "ward", 8], "Ward tree, cut at 8"),
     "average15k": (15_000, 10, "scale none\ntree linkage average k 8\n", ["tree", "average", 8], "average-linkage tree, cut at 8"),
     "single15k": (15_000, 10, "scale none\ntree linkage single k 8\n", ["tree", "single", 8], "single-linkage tree, cut at 8"),
+    "sweep1m": (1_000_000, 16, "scale none\nkmeans k 2..10 restarts 10\nchoose k by silhouette\n", None,
+                "sweep k = 2..10, 10 restarts, every restart on every record (full batch)"),
+    "sweep1m_sampled": (1_000_000, 16, "scale none\nkmeans k 2..10 restarts 10 sample 200000\nchoose k by silhouette\n", None,
+                        "sweep k = 2..10, 10 restarts on a sample of 200,000, best 3 refined on every record"),
+    "sweep10m": (10_000_000, 16, "scale none\nkmeans k 2..10 restarts 10 sample 200000\nchoose k by silhouette\n", None,
+                 "sweep k = 2..10, 10 restarts on a sample of 200,000, best 3 refined on every record"),
     "ward100k": (100_000, 10, "scale none\ntree linkage ward k 8\n", None, "Ward tree, cut at 8 (reference cannot hold the matrix)"),
     "single100k": (100_000, 10, "scale none\ntree linkage single k 8\n", None, "single-linkage tree, cut at 8 (reference cannot hold the matrix)"),
 }
@@ -67,21 +77,23 @@ def prepare(cases):
 
 
 def timed(cmd):
-    """Wall seconds and peak resident MiB of one child process."""
+    """Wall seconds, peak resident MiB and standard output of one child."""
     start = time.perf_counter()
-    child = subprocess.Popen(cmd, cwd=DATA, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
-    _, status, usage = os.wait4(child.pid, 0)
-    wall = time.perf_counter() - start
-    err = child.stderr.read().decode(errors="replace")
-    if os.waitstatus_to_exitcode(status) != 0:
-        raise SystemExit(f"{' '.join(map(str, cmd))} failed:\n{err}")
-    return wall, usage.ru_maxrss / 1024.0
+    with tempfile.TemporaryFile() as out, tempfile.TemporaryFile() as err:
+        child = subprocess.Popen(cmd, cwd=DATA, stdout=out, stderr=err)
+        _, status, usage = os.wait4(child.pid, 0)
+        wall = time.perf_counter() - start
+        out.seek(0)
+        err.seek(0)
+        if os.waitstatus_to_exitcode(status) != 0:
+            raise SystemExit(f"{' '.join(map(str, cmd))} failed:\n{err.read().decode(errors='replace')}")
+        return wall, usage.ru_maxrss / 1024.0, out.read()
 
 
 def measure(name, repeats):
     n, d, _, ref, what = CASES[name]
     csv = DATA / f"d{n}_{d}.csv"
-    ours = [str(ASSORT), "run", "--quiet", f"{name}.assort"]
+    ours = [str(ASSORT), "run", "--json", f"{name}.assort"]
     theirs = [str(VENV / "bin" / "python"), str(HERE / "reference.py"), ref[0], str(csv)] + [str(a) for a in ref[1:]] if ref else None
     a, r = [], []
     for _ in range(repeats):
@@ -89,7 +101,9 @@ def measure(name, repeats):
         if theirs:
             r.append(timed(theirs))
     med = lambda runs, i: statistics.median(x[i] for x in runs)
-    row = {"case": name, "what": what, "n": n, "d": d, "assort_s": med(a, 0), "assort_mib": med(a, 1)}
+    sweep = json.loads(a[-1][2])["result"]["sweep"]
+    row = {"case": name, "what": what, "n": n, "d": d, "assort_s": med(a, 0), "assort_mib": med(a, 1),
+           "within_ss": {r["k"]: r["within_ss"] for r in sweep}}
     if r:
         row.update(ref_s=med(r, 0), ref_mib=med(r, 1))
     return row
@@ -110,6 +124,7 @@ def main():
     print(f"medians of {args.repeats} runs each, taken alternately; ratio = reference / assort\n")
     print("| case | records x features | assort s | assort MiB | reference s | reference MiB | time ratio | memory ratio |")
     print("|---|---|---|---|---|---|---|---|")
+    rows = {}
     for name in cases:
         row = measure(name, args.repeats)
         ref = "ref_s" in row
@@ -124,6 +139,14 @@ def main():
             f"{row['ref_mib'] / row['assort_mib']:.2f}x" if ref else "–",
         ]
         print("| " + " | ".join(cells) + " |", flush=True)
+        rows[name] = row
+    if "sweep1m" in rows and "sweep1m_sampled" in rows:
+        full, sampled = rows["sweep1m"]["within_ss"], rows["sweep1m_sampled"]["within_ss"]
+        print("\nwithin-SS at 1,000,000 x 16: full batch against restarts on a sample of 200,000\n")
+        print("| k | full batch | sampled, refined | sampled / full - 1 |")
+        print("|---|---|---|---|")
+        for k in sorted(full):
+            print(f"| {k} | {full[k]:,.1f} | {sampled[k]:,.1f} | {sampled[k] / full[k] - 1:+.2e} |")
 
 
 if __name__ == "__main__":

@@ -236,6 +236,10 @@ fn explain_syntax(mut e: syntax::SyntaxError) -> syntax::SyntaxError {
 
 /// The largest k a recipe may ask for, and the widest sweep.
 pub const MAX_K: i64 = 1_000_000;
+/// The smallest sample `kmeans ... sample` takes.
+const SMALLEST_SAMPLE: i64 = 1_000;
+/// Records per segment a k-means sample must allow at the largest k.
+const PER_SEGMENT_IN_SAMPLE: usize = 10;
 pub const MAX_K_SPAN: i64 = 500;
 
 pub use crate::plan::TreeLimit;
@@ -1143,6 +1147,30 @@ impl Checker {
         let ks = self.required_ks("kmeans", &opts, s.span);
         let restarts = self.whole_option(&opts, "restarts", 1, defaults::RESTARTS);
         let rounds = self.whole_option(&opts, "rounds", 1, defaults::ROUNDS);
+        let sample = match opts.get("sample") {
+            None => Some(None),
+            Some(o) => match self.whole_option(&opts, "sample", SMALLEST_SAMPLE, 200_000) {
+                Some(v) => {
+                    let most = ks.as_ref().and_then(|k| k.last().copied()).unwrap_or(0);
+                    if v < PER_SEGMENT_IN_SAMPLE * most {
+                        self.bad_value(
+                            "sample",
+                            &o.value.node,
+                            &format!(
+                                "at least {PER_SEGMENT_IN_SAMPLE} records per segment ({} at k = {most})",
+                                PER_SEGMENT_IN_SAMPLE * most
+                            ),
+                            o.value.span,
+                            "a sample of 100,000 to 500,000 records is usual for millions of records",
+                        );
+                        None
+                    } else {
+                        Some(Some(v))
+                    }
+                }
+                None => None,
+            },
+        };
         let tolerance = match opts.get("tolerance") {
             None => Some(defaults::TOLERANCE),
             Some(o) => match &o.value.node {
@@ -1186,6 +1214,7 @@ impl Checker {
             rounds: rounds?,
             tolerance: tolerance?,
             seeding: seeding?,
+            sample: sample?,
         })
     }
 

@@ -161,6 +161,11 @@ pub const KMEANS_OPTIONS: &[OptionDoc] = &[
         takes: "`kmeans++` or `random-partition`",
         summary: "how each start picks its first centres (`kmeans++` unless given)",
     },
+    OptionDoc {
+        name: "sample",
+        takes: "a whole number, 1,000 or more",
+        summary: "run the restarts on a seeded sample of this many records, then refine the best 3 on every record (for millions of records; every record unless given)",
+    },
 ];
 
 pub const TREE_OPTIONS: &[OptionDoc] = &[

@@ -47,6 +47,8 @@
 //! partition therefore give the same numbers, whatever the restart.
 
 mod hamerly;
+mod sampled;
+pub use sampled::REFINED;
 
 use super::{dist2, rng::Stream, EngineError};
 use ndarray::{Array2, ArrayView2};
@@ -87,6 +89,10 @@ pub struct KMeansSettings {
     pub tolerance: f64,
     pub seeding: Seeding,
     pub seed: u64,
+    /// Run the restarts on a seeded sample of this many records and refine
+    /// the best few on every record (see `sampled`); `None`, or a sample
+    /// as large as the data, runs every restart on every record.
+    pub sample: Option<usize>,
 }
 
 /// The best of the restarts, canonically numbered.
@@ -108,6 +114,8 @@ pub struct KMeansFit {
     /// How many restarts reached the same partition as the best.
     pub restarts_at_best: usize,
     pub restarts: usize,
+    /// Records the restarts ran on, when they ran on a sample.
+    pub sampled: Option<usize>,
 }
 
 /// Records above which one restart's assignment step is split across
@@ -124,7 +132,7 @@ const MEANS_CHUNK: usize = 8_192;
 /// ```
 /// use assort::engine::kmeans::{kmeans, KMeansSettings, Seeding};
 /// let x = ndarray::array![[0.0], [0.2], [5.0], [5.1]];
-/// let settings = KMeansSettings { k: 2, restarts: 4, max_rounds: 100, tolerance: 0.0, seeding: Seeding::KMeansPlusPlus, seed: 1 };
+/// let settings = KMeansSettings { k: 2, restarts: 4, max_rounds: 100, tolerance: 0.0, seeding: Seeding::KMeansPlusPlus, seed: 1, sample: None };
 /// let fit = kmeans(x.view(), &settings).unwrap();
 /// // Equal sizes: the segment holding the first record is numbered first.
 /// assert_eq!(fit.labels, vec![0, 0, 1, 1]);
@@ -176,6 +184,9 @@ pub fn kmeans_with(
         }
     };
     let problem = Problem::new(x, n, d, settings, search);
+    if let Some(s) = settings.sample.filter(|&s| s < n) {
+        return sampled::fit(&problem, s);
+    }
 
     // Each restart is summarised; only the best is kept in full, by running
     // it again (it is deterministic), so memory stays O(n) per thread.
@@ -197,6 +208,19 @@ pub fn kmeans_with(
     let restarts_at_best = summaries.iter().filter(|s| s.1 == best_hash).count();
 
     let run = problem.restart(best);
+    finish(run, d, settings, best, restarts_at_best, None)
+}
+
+/// The kept restart, canonically numbered.
+fn finish(
+    run: Restart,
+    d: usize,
+    settings: &KMeansSettings,
+    best_restart: usize,
+    restarts_at_best: usize,
+    sampled: Option<usize>,
+) -> Result<KMeansFit, EngineError> {
+    let k = settings.k;
     if has_empty(&run.labels, k) {
         return Err(EngineError::TooFewDistinct { k });
     }
@@ -214,9 +238,10 @@ pub fn kmeans_with(
         inertia: run.inertia,
         rounds: run.rounds,
         converged: run.converged,
-        best_restart: best,
+        best_restart,
         restarts_at_best,
         restarts: settings.restarts,
+        sampled,
     })
 }
 
@@ -349,7 +374,7 @@ impl<'a> Problem<'a> {
         let mut stream = Stream::new(self.settings.seed, ((k as u64) << 32) | r as u64);
         let mut labels = vec![0u32; self.n];
         let mut dists = vec![0.0; self.n];
-        let mut centroids = match self.settings.seeding {
+        let centroids = match self.settings.seeding {
             Seeding::KMeansPlusPlus => self.plusplus(&mut stream),
             Seeding::RandomPartition => {
                 for l in labels.iter_mut() {
@@ -364,9 +389,23 @@ impl<'a> Problem<'a> {
                 self.update(&mut labels, &dists)
             }
         };
+        let first = self.settings.seeding == Seeding::KMeansPlusPlus;
+        self.lloyd(centroids, labels, dists, first)
+    }
+
+    /// Lloyd's iterations from `centroids` to the end of a restart. `first`
+    /// says the labels are not yet an assignment (so the first step's
+    /// changes do not count as movement).
+    fn lloyd(
+        &self,
+        mut centroids: Vec<f64>,
+        mut labels: Vec<u32>,
+        mut dists: Vec<f64>,
+        mut first: bool,
+    ) -> Restart {
+        let k = self.settings.k;
         let mut rounds = 0;
         let mut converged = false;
-        let mut first = self.settings.seeding == Seeding::KMeansPlusPlus;
         let mut bounds = hamerly::Bounds::new(self.n);
         let mut previous = centroids.clone();
         loop {
@@ -714,6 +753,7 @@ mod tests {
             tolerance: 0.0,
             seeding: Seeding::KMeansPlusPlus,
             seed: 1,
+            sample: None,
         }
     }
 

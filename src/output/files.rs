@@ -6,7 +6,7 @@
 //! the values alone, so identical results give identical bytes.
 
 use crate::plan::{OutputKind, OutputPlan};
-use crate::run::{Assignment, Outcome, Profile, RunError};
+use crate::run::{Assignments, Outcome, Profile, RunError};
 use serde::Serialize;
 use std::path::{Path, PathBuf};
 
@@ -156,16 +156,16 @@ fn assignments(o: &Outcome) -> (Vec<u8>, usize) {
 /// runs and by scoring with a model, so both write the same bytes.
 pub fn assignments_csv(
     key: &str,
-    assignments: &[Assignment],
+    assignments: &Assignments,
     label: impl Fn(usize) -> String,
 ) -> (Vec<u8>, usize) {
     let mut rows = vec![[key, "segment", "label", "distance", "margin"]
         .iter()
         .map(|s| s.to_string())
         .collect::<Vec<_>>()];
-    for a in assignments {
+    for a in assignments.iter() {
         rows.push(vec![
-            a.key.clone(),
+            a.key.to_string(),
             a.segment.to_string(),
             label(a.segment),
             f6(a.distance),

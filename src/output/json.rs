@@ -82,6 +82,7 @@ pub fn run(o: &Outcome, written: &[String]) -> Value {
             "stability": r.stability,
             "restarts_at_best": r.restarts.as_ref().map(|x| x.at_best),
             "restarts": r.restarts.as_ref().map(|x| x.of),
+            "restarts_sample": r.restarts.as_ref().and_then(|x| x.sampled),
         })).collect::<Vec<_>>(),
         "features": features,
         "segments": o.profiles.iter().map(|p| json!({

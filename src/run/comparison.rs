@@ -2,7 +2,7 @@
 //! with last quarter's, or a rerun with the original. Joined on the key.
 
 use super::error::RunError;
-use super::Assignment;
+use super::Assignments;
 use crate::engine::compare::{adjusted_rand_index, Migration};
 use std::collections::HashMap;
 
@@ -62,11 +62,11 @@ pub fn read_assignments(path: &std::path::Path, shown: &str) -> Result<Vec<Assig
 }
 
 /// A run's assignments in the same shape.
-pub fn from_run(assignments: &[Assignment], label: impl Fn(usize) -> String) -> Vec<Assigned> {
+pub fn from_run(assignments: &Assignments, label: impl Fn(usize) -> String) -> Vec<Assigned> {
     assignments
         .iter()
         .map(|a| Assigned {
-            key: a.key.clone(),
+            key: a.key.to_string(),
             segment: a.segment.to_string(),
             label: label(a.segment),
         })

@@ -62,6 +62,9 @@ pub struct Restarts {
     pub of: usize,
     /// Whether the best restart stopped before its round cap.
     pub converged: bool,
+    /// Records the restarts ran on, when they ran on a sample (the best
+    /// then refined on every record).
+    pub sampled: Option<usize>,
 }
 
 /// The tree a `tree` recipe built.
@@ -95,13 +98,66 @@ impl SweepRow {
 }
 
 /// A record's place in the chosen segmentation.
-#[derive(Debug, Clone, Serialize)]
-pub struct Assignment {
-    pub key: String,
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Assignment<'a> {
+    pub key: &'a str,
     /// 1-based segment number.
     pub segment: usize,
     pub distance: f64,
     pub margin: f64,
+}
+
+/// Every segmented record's place, by columns: the keys in one buffer
+/// rather than a string per record (at 10 million records, 24 bytes a
+/// record instead of about 80).
+#[derive(Debug, Clone, Default)]
+pub struct Assignments {
+    keys: load::Keys,
+    /// 1-based segment numbers.
+    segments: Vec<u32>,
+    distances: Vec<f64>,
+    margins: Vec<f64>,
+}
+
+impl Assignments {
+    pub fn with_capacity(n: usize) -> Assignments {
+        Assignments {
+            keys: load::Keys::default(),
+            segments: Vec::with_capacity(n),
+            distances: Vec::with_capacity(n),
+            margins: Vec::with_capacity(n),
+        }
+    }
+
+    pub fn push(&mut self, a: Assignment<'_>) {
+        self.keys.push(a.key);
+        // Segment numbers are at most k, which the checker holds far below
+        // u32::MAX (MAX_K).
+        self.segments.push(a.segment as u32);
+        self.distances.push(a.distance);
+        self.margins.push(a.margin);
+    }
+
+    pub fn len(&self) -> usize {
+        self.segments.len()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.segments.is_empty()
+    }
+
+    pub fn get(&self, i: usize) -> Assignment<'_> {
+        Assignment {
+            key: self.keys.get(i),
+            segment: self.segments[i] as usize,
+            distance: self.distances[i],
+            margin: self.margins[i],
+        }
+    }
+
+    pub fn iter(&self) -> impl Iterator<Item = Assignment<'_>> + '_ {
+        (0..self.len()).map(|i| self.get(i))
+    }
 }
 
 /// A feature's summary within a group of records, in original units.
@@ -159,7 +215,7 @@ pub struct Outcome {
     /// What the evidence says beyond the choice: no structure, unstable
     /// segments.
     pub notes: Vec<String>,
-    pub assignments: Vec<Assignment>,
+    pub assignments: Assignments,
     pub profiles: Vec<Profile>,
     pub overall: Profile,
     pub validation: Option<Validation>,
@@ -278,7 +334,6 @@ pub fn run_with(
     }
 
     let x = prepared.matrix.view();
-    let keys: Vec<&str> = prepared.kept.iter().map(|&i| table.keys.get(i)).collect();
     let (candidates, tree) = match &plan.method {
         MethodPlan::KMeans(km) => (fit_kmeans(plan, km, x, progress)?, None),
         MethodPlan::Tree(t) => {
@@ -287,7 +342,7 @@ pub fn run_with(
                 done: 0,
                 total: 1,
             });
-            let (c, tree) = fit_tree(plan, t, x, &keys)?;
+            let (c, tree) = fit_tree(plan, t, x, table, &prepared.kept)?;
             (c, Some(tree))
         }
     };
@@ -361,17 +416,16 @@ pub fn run_with(
     let fit = &candidates[at];
 
     let measured = kmeans::distance_and_margin(x, fit.centres.view(), &fit.labels);
-    let assignments = keys
-        .iter()
-        .zip(&fit.labels)
-        .zip(&measured)
-        .map(|((key, &seg), &(distance, margin))| Assignment {
-            key: key.to_string(),
+    let mut assignments = Assignments::with_capacity(n);
+    for ((&r, &seg), &(distance, margin)) in prepared.kept.iter().zip(&fit.labels).zip(&measured) {
+        assignments.push(Assignment {
+            key: table.keys.get(r),
             segment: seg as usize + 1,
             distance,
             margin,
-        })
-        .collect::<Vec<_>>();
+        });
+    }
+    drop(measured);
 
     let means = FeatureMeans::new(&prepared, table, &fit.labels, chosen);
     let overall = profile(&prepared, means.overall(), None, None, None);
@@ -406,6 +460,17 @@ pub fn run_with(
         })
         .collect::<Vec<_>>();
     let mut notes = Vec::new();
+    if let Some(s) = candidates
+        .iter()
+        .find_map(|c| c.restarts.as_ref().and_then(|r| r.sampled))
+    {
+        notes.push(format!(
+            "k-means restarts ran on a seeded sample of {} of {} records; for each k the best {} were refined on every record (`sample` in the recipe)",
+            crate::text::thousands(s),
+            crate::text::thousands(n),
+            kmeans::REFINED.min(candidates[0].restarts.as_ref().map_or(1, |r| r.of)),
+        ));
+    }
     if picks.gap == Some(1) && plan.choose != ChooseK::By(Criterion::Gap) {
         notes.push(NO_STRUCTURE.to_string());
     }
@@ -492,6 +557,7 @@ fn fit_kmeans(
                 tolerance: km.tolerance,
                 seeding: km.seeding,
                 seed: plan.seed,
+                sample: km.sample,
             };
             let fit =
                 kmeans::kmeans(x, &settings).map_err(|source| RunError::Engine { k, source })?;
@@ -501,6 +567,7 @@ fn fit_kmeans(
                     at_best: fit.restarts_at_best,
                     of: fit.restarts,
                     converged: fit.converged,
+                    sampled: fit.sampled,
                 }),
                 labels: fit.labels,
                 centres: fit.centroids,
@@ -563,6 +630,7 @@ fn build_tree(t: &TreePlan, x: ArrayView2<'_, f64>, seed: u64) -> Result<BuiltTr
                 tolerance: m.tolerance,
                 seeding: kmeans::Seeding::KMeansPlusPlus,
                 seed,
+                sample: None,
             };
             let engine = |source| RunError::Engine {
                 k: m.segments,
@@ -594,7 +662,8 @@ fn fit_tree(
     plan: &Plan,
     t: &TreePlan,
     x: ArrayView2<'_, f64>,
-    keys: &[&str],
+    table: &load::Table,
+    kept: &[usize],
 ) -> Result<(Vec<Candidate>, TreeResult), RunError> {
     let built = build_tree(t, x, plan.seed)?;
     let ks = match t.height {
@@ -636,7 +705,10 @@ fn fit_tree(
         Some(_) => (1..=built.leaves.nrows())
             .map(|i| format!("micro-{i}"))
             .collect(),
-        None => keys.iter().map(|k| k.to_string()).collect(),
+        None => kept
+            .iter()
+            .map(|&r| table.keys.get(r).to_string())
+            .collect(),
     };
     let (cophenetic, cophenetic_leaves) = built.tree.cophenetic_estimate(
         built.leaves.view(),
@@ -855,6 +927,7 @@ fn reclusterer(plan: &Plan) -> Box<evidence::Recluster<'static>> {
                             tolerance: km.tolerance,
                             seeding: km.seeding,
                             seed,
+                            sample: km.sample,
                         };
                         // A k the draw cannot support (too few distinct
                         // records) counts as a failed recovery.
@@ -997,7 +1070,7 @@ fn profile(
 fn validate(
     plan: &Plan,
     v: &crate::plan::ValidatePlan,
-    assignments: &[Assignment],
+    assignments: &Assignments,
 ) -> Result<Validation, RunError> {
     let cols = [v.column.clone()];
     let known = load::load(
@@ -1017,8 +1090,8 @@ fn validate(
         .collect();
     let mut ours = Vec::new();
     let mut theirs = Vec::new();
-    for a in assignments {
-        if let Some(g) = group_of.get(a.key.as_str()) {
+    for a in assignments.iter() {
+        if let Some(g) = group_of.get(a.key) {
             ours.push(a.segment);
             theirs.push(*g);
         }

@@ -12,7 +12,7 @@
 
 use super::error::RunError;
 use super::prepare::{self, CategoryParams, FeatureParams, BLANK_LEVEL};
-use super::{Assignment, Outcome};
+use super::{Assignment, Assignments, Outcome};
 use crate::check::probe::{is_blank, parse_number};
 use crate::engine::kmeans;
 use ndarray::Array2;
@@ -108,7 +108,7 @@ pub struct ScoreSummary {
 /// Scores a table read with the model's columns (`numeric` in feature
 /// order, `text` in category order). Records that cannot be prepared are
 /// left out and counted.
-pub fn score(model: &SegmentModel, table: &Table) -> (Vec<Assignment>, ScoreSummary) {
+pub fn score(model: &SegmentModel, table: &Table) -> (Assignments, ScoreSummary) {
     let n = table.keys.len();
     let nf = model.features.len();
     let width = nf
@@ -185,16 +185,15 @@ pub fn score(model: &SegmentModel, table: &Table) -> (Vec<Assignment>, ScoreSumm
         model.centres[s].get(f).copied().unwrap_or(0.0)
     });
     let nearest = kmeans::nearest_with_margin(x.view(), centres.view());
-    let assignments = kept
-        .iter()
-        .zip(nearest)
-        .map(|(&r, (seg, distance, margin))| Assignment {
-            key: table.keys[r].clone(),
+    let mut assignments = Assignments::with_capacity(kept.len());
+    for (&r, (seg, distance, margin)) in kept.iter().zip(nearest) {
+        assignments.push(Assignment {
+            key: &table.keys[r],
             segment: seg as usize + 1,
             distance,
             margin,
-        })
-        .collect();
+        });
+    }
     (assignments, summary)
 }
 

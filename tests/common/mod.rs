@@ -27,3 +27,30 @@ pub fn measurements(name: &str) -> Array2<f64> {
     let d = rows[0].len();
     Array2::from_shape_vec((rows.len(), d), rows.into_iter().flatten().collect()).unwrap()
 }
+
+/// Two k-means fits are the same bit for bit: labels, within-SS, rounds,
+/// the best restart and how many reached it, centres.
+#[allow(dead_code)] // not every test crate that shares these helpers uses it
+#[track_caller]
+pub fn same_fit(
+    a: &assort::engine::kmeans::KMeansFit,
+    b: &assort::engine::kmeans::KMeansFit,
+    what: &str,
+) {
+    assert_eq!(a.labels, b.labels, "{what}: labels");
+    assert_eq!(
+        a.inertia.to_bits(),
+        b.inertia.to_bits(),
+        "{what}: within-SS"
+    );
+    assert_eq!(a.rounds, b.rounds, "{what}: rounds");
+    assert_eq!(a.best_restart, b.best_restart, "{what}: best restart");
+    assert_eq!(
+        a.restarts_at_best, b.restarts_at_best,
+        "{what}: restarts at best"
+    );
+    let bits = |f: &assort::engine::kmeans::KMeansFit| {
+        f.centroids.iter().map(|v| v.to_bits()).collect::<Vec<_>>()
+    };
+    assert_eq!(bits(a), bits(b), "{what}: centres");
+}

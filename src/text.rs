@@ -1,0 +1,28 @@
+//! Small text helpers shared by messages, tables and reports.
+
+/// A whole number with a comma between thousands: `1234567` → `1,234,567`.
+pub fn thousands(n: usize) -> String {
+    let digits = n.to_string();
+    let mut out = String::with_capacity(digits.len() + digits.len() / 3);
+    for (i, c) in digits.chars().enumerate() {
+        if i > 0 && (digits.len() - i) % 3 == 0 {
+            out.push(',');
+        }
+        out.push(c);
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::thousands;
+
+    #[test]
+    fn thousands_are_separated_by_commas() {
+        assert_eq!(thousands(0), "0");
+        assert_eq!(thousands(999), "999");
+        assert_eq!(thousands(1000), "1,000");
+        assert_eq!(thousands(10_000_000), "10,000,000");
+        assert_eq!(thousands(123_456), "123,456");
+    }
+}
