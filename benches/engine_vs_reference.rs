@@ -97,6 +97,7 @@ fn main() {
         seeding: kmeans::Seeding::KMeansPlusPlus,
         seed: 1,
         sample: None,
+        start: None,
     };
     let (km_time, fit) = best_of(repeats, || kmeans::kmeans(x.view(), &settings).unwrap());
     let xs = x.slice(ndarray::s![..sil_n, ..]).to_owned();

@@ -29,10 +29,15 @@ pub struct Plan {
     pub choose: ChooseK,
     /// Segment number (1-based) to label.
     pub labels: BTreeMap<usize, String>,
+    /// The recipe line of each label, for messages.
+    #[serde(skip)]
+    pub label_lines: BTreeMap<usize, usize>,
     pub evidence: EvidencePlan,
     pub validate: Option<ValidatePlan>,
     /// An earlier assignments file to compare with.
     pub compare: Option<ComparePlan>,
+    /// Last run's segment model, whose numbers and labels this run keeps.
+    pub previous: Option<PreviousPlan>,
     pub outputs: Vec<OutputPlan>,
 }
 
@@ -363,6 +368,16 @@ pub struct ComparePlan {
     pub path: String,
     #[serde(skip)]
     pub resolved: PathBuf,
+}
+
+/// `previous`: last run's model, and optionally its assignments (then the
+/// segments are matched on the records they share, else on their centres).
+#[derive(Debug, Clone, Serialize)]
+pub struct PreviousPlan {
+    pub path: String,
+    #[serde(skip)]
+    pub resolved: PathBuf,
+    pub assignments: Option<ComparePlan>,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]

@@ -31,6 +31,7 @@ fn kmeans_at(data: ArrayView2<'_, f64>, ks: &[usize], seed: u64) -> Vec<Vec<u32>
                 seeding: Seeding::KMeansPlusPlus,
                 seed,
                 sample: None,
+                start: None,
             };
             kmeans(data, &settings)
                 .map(|f| f.labels)

@@ -22,6 +22,7 @@ fn settings(k: usize, seeding: Seeding, seed: u64) -> KMeansSettings {
         seeding,
         seed,
         sample: None,
+        start: None,
     }
 }
 

@@ -21,6 +21,7 @@ fn settings(k: usize, sample: Option<usize>) -> KMeansSettings {
         seeding: Seeding::KMeansPlusPlus,
         seed: 11,
         sample,
+        start: None,
     }
 }
 

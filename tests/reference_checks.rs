@@ -73,6 +73,7 @@ fn settings(k: usize, restarts: usize) -> kmeans::KMeansSettings {
         seeding: kmeans::Seeding::KMeansPlusPlus,
         seed: 2026,
         sample: None,
+        start: None,
     }
 }
 

@@ -124,6 +124,7 @@ fn settings(k: usize, seeding: kmeans::Seeding) -> kmeans::KMeansSettings {
         seeding,
         seed: 3,
         sample: None,
+        start: None,
     }
 }
 

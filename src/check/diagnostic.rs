@@ -367,6 +367,15 @@ pub enum CheckError {
         help: String,
     },
 
+    #[error("the previous model does not fit this recipe: {reason}")]
+    #[diagnostic(code(assort::previous_mismatch), help("{help}"))]
+    PreviousMismatch {
+        reason: String,
+        #[label("this model")]
+        span: Span,
+        help: String,
+    },
+
     #[error("only one k is fitted, so `choose k by {criterion}` has nothing to choose from")]
     #[diagnostic(
         code(assort::nothing_to_choose),

@@ -13,6 +13,7 @@ pub mod caution;
 pub mod complete;
 pub mod diagnostic;
 pub mod paths;
+mod previous;
 pub mod probe;
 pub mod suggest;
 pub mod vocab;
@@ -132,7 +133,21 @@ pub fn check_with(source: &RecipeSource, options: &CheckOptions) -> Checked {
         end: end_span(&source.text),
         category_spans: HashMap::new(),
     };
-    let plan = cx.plan(&tree.statements);
+    let mut plan = cx.plan(&tree.statements);
+    if let Some(plan) = plan.as_mut() {
+        // Where each label was given, for messages about labels at run time.
+        for st in &tree.statements {
+            if let StatementKind::Label { segment, .. } = &st.kind {
+                if let Some(n) = segment.node.as_whole() {
+                    let line = source.text[..st.span.start.min(source.text.len())]
+                        .matches('\n')
+                        .count()
+                        + 1;
+                    plan.label_lines.entry(n as usize).or_insert(line);
+                }
+            }
+        }
+    }
     let errors = cx.problems.iter().any(Problem::is_error);
     Checked {
         plan: if errors { None } else { plan },
@@ -245,9 +260,9 @@ pub const MAX_K_SPAN: i64 = 500;
 pub use crate::plan::TreeLimit;
 
 /// Statements that may appear once, by word.
-const SINGLE: [&str; 11] = [
+const SINGLE: [&str; 12] = [
     "recipe", "seed", "input", "features", "scale", "kmeans", "tree", "evidence", "choose",
-    "validate", "compare",
+    "validate", "compare", "previous",
 ];
 
 struct Checker {
@@ -328,7 +343,28 @@ impl Checker {
             MethodPlan::Tree(t) => t.ks.clone(),
         });
         let choose = self.choose(find("choose"), ks.as_deref());
-        let labels = self.labels(stmts, ks.as_deref());
+        let previous = {
+            let numeric: Option<Vec<String>> = features
+                .as_ref()
+                .map(|f| f.iter().map(|f| f.column.clone()).collect());
+            let cats: Option<Vec<String>> = categories
+                .as_ref()
+                .map(|c| c.iter().map(|c| c.column.clone()).collect());
+            let key = input.as_ref().map(|i| i.plan.key.clone());
+            self.previous(
+                find("previous"),
+                numeric.as_deref(),
+                cats.as_deref(),
+                key.as_deref(),
+            )
+        };
+        // With a previous model, segments keep its numbers and new ones
+        // follow its highest, so labels may go that far beyond k.
+        let label_room = previous
+            .as_ref()
+            .and_then(|p| p.as_ref())
+            .map_or(0, |p| p.highest);
+        let labels = self.labels(stmts, ks.as_deref(), label_room);
         let evidence = self.evidence(find("evidence"), choose);
         let validate = self.validate(find("validate"), input.as_ref());
         let compare = self.compare(find("compare"));
@@ -357,7 +393,9 @@ impl Checker {
             evidence: evidence?,
             validate: validate?,
             compare: compare?,
+            previous: previous?.map(|p| p.plan),
             outputs: outputs?,
+            label_lines: BTreeMap::new(),
         })
     }
 
@@ -1417,8 +1455,9 @@ impl Checker {
         &mut self,
         stmts: &[Statement],
         fitted: Option<&[usize]>,
+        room: usize,
     ) -> Option<BTreeMap<usize, String>> {
-        let most = fitted.and_then(|k| k.last().copied());
+        let most = fitted.and_then(|k| k.last().copied()).map(|m| m + room);
         let mut out = BTreeMap::new();
         let mut spans: HashMap<usize, Span> = HashMap::new();
         let mut ok = true;

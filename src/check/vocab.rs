@@ -95,6 +95,11 @@ pub const STATEMENTS: &[StatementDoc] = &[
         example: r#"compare with "out/last_quarter.csv""#,
     },
     StatementDoc {
+        word: "previous",
+        summary: "last run's segment model: matched segments keep their numbers and labels, and the run says what changed",
+        example: r#"previous "out/last_quarter.model" assignments "out/last_quarter.csv""#,
+    },
+    StatementDoc {
         word: "validate",
         summary: "compares the segments with a known grouping of the same records",
         example: r#"validate against "data/known.csv" column group"#,
@@ -220,6 +225,12 @@ pub const VALIDATE_OPTIONS: &[OptionDoc] = &[OptionDoc {
     summary: "the column holding the known grouping (required)",
 }];
 
+pub const PREVIOUS_OPTIONS: &[OptionDoc] = &[OptionDoc {
+    name: "assignments",
+    takes: "a quoted path",
+    summary: "the previous run's assignments: segments are then matched on the members they share, not only on their centres",
+}];
+
 /// What `save` can write.
 pub const SAVE_WHAT: [&str; 7] = [
     "assignments",
@@ -243,6 +254,7 @@ pub fn options_for(word: &str) -> &'static [OptionDoc] {
         "tree" => TREE_OPTIONS,
         "evidence" => EVIDENCE_OPTIONS,
         "validate" => VALIDATE_OPTIONS,
+        "previous" => PREVIOUS_OPTIONS,
         _ => &[],
     }
 }

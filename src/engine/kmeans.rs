@@ -93,6 +93,11 @@ pub struct KMeansSettings {
     /// the best few on every record (see `sampled`); `None`, or a sample
     /// as large as the data, runs every restart on every record.
     pub sample: Option<usize>,
+    /// Centres to start one more restart from (k rows of d values,
+    /// row-major), besides the seeded ones: last run's segments, say. It
+    /// counts as restart number `restarts`; ignored unless it holds k x d
+    /// finite values.
+    pub start: Option<Vec<f64>>,
 }
 
 /// The best of the restarts, canonically numbered.
@@ -116,6 +121,8 @@ pub struct KMeansFit {
     pub restarts: usize,
     /// Records the restarts ran on, when they ran on a sample.
     pub sampled: Option<usize>,
+    /// Whether the kept result grew from the given start.
+    pub from_start: bool,
 }
 
 /// Records above which one restart's assignment step is split across
@@ -132,7 +139,7 @@ const MEANS_CHUNK: usize = 8_192;
 /// ```
 /// use assort::engine::kmeans::{kmeans, KMeansSettings, Seeding};
 /// let x = ndarray::array![[0.0], [0.2], [5.0], [5.1]];
-/// let settings = KMeansSettings { k: 2, restarts: 4, max_rounds: 100, tolerance: 0.0, seeding: Seeding::KMeansPlusPlus, seed: 1, sample: None };
+/// let settings = KMeansSettings { k: 2, restarts: 4, max_rounds: 100, tolerance: 0.0, seeding: Seeding::KMeansPlusPlus, seed: 1, sample: None, start: None };
 /// let fit = kmeans(x.view(), &settings).unwrap();
 /// // Equal sizes: the segment holding the first record is numbered first.
 /// assert_eq!(fit.labels, vec![0, 0, 1, 1]);
@@ -190,7 +197,7 @@ pub fn kmeans_with(
 
     // Each restart is summarised; only the best is kept in full, by running
     // it again (it is deterministic), so memory stays O(n) per thread.
-    let summaries: Vec<(f64, u64)> = (0..settings.restarts)
+    let summaries: Vec<(f64, u64)> = (0..problem.starts())
         .into_par_iter()
         .map(|r| {
             let run = problem.restart(r);
@@ -242,6 +249,7 @@ fn finish(
         restarts_at_best,
         restarts: settings.restarts,
         sampled,
+        from_start: best_restart == settings.restarts,
     })
 }
 
@@ -369,7 +377,25 @@ impl<'a> Problem<'a> {
         &self.x[i * self.d..(i + 1) * self.d]
     }
 
+    /// The given start, when it fits: k x d finite values.
+    fn given_start(&self) -> Option<&[f64]> {
+        self.settings
+            .start
+            .as_deref()
+            .filter(|c| c.len() == self.settings.k * self.d && c.iter().all(|v| v.is_finite()))
+    }
+
+    /// The restarts to run: the seeded ones, and the given start if any.
+    fn starts(&self) -> usize {
+        self.settings.restarts + usize::from(self.given_start().is_some())
+    }
+
     fn restart(&self, r: usize) -> Restart {
+        if r == self.settings.restarts {
+            if let Some(c) = self.given_start() {
+                return self.lloyd(c.to_vec(), vec![0u32; self.n], vec![0.0; self.n], true);
+            }
+        }
         let k = self.settings.k;
         let mut stream = Stream::new(self.settings.seed, ((k as u64) << 32) | r as u64);
         let mut labels = vec![0u32; self.n];
@@ -754,6 +780,7 @@ mod tests {
             seeding: Seeding::KMeansPlusPlus,
             seed: 1,
             sample: None,
+            start: None,
         }
     }
 

@@ -16,6 +16,7 @@ pub mod compare;
 pub mod criteria;
 pub mod evidence;
 pub mod kmeans;
+pub mod matching;
 pub mod pca;
 pub mod rng;
 pub mod silhouette;

@@ -310,7 +310,7 @@ pub fn silhouettes(o: &Outcome) -> Chart {
         let mean = o.profiles.get(s).and_then(|p| p.silhouette).unwrap_or(0.0);
         let name = format!(
             "{} {}",
-            s + 1,
+            o.profiles.get(s).and_then(|p| p.segment).unwrap_or(s + 1),
             o.profiles
                 .get(s)
                 .and_then(|p| p.label.clone())
@@ -499,19 +499,24 @@ pub fn projection(o: &Outcome) -> Chart {
             ),
         );
     let mut points = Group::new().set("fill-opacity", 0.75);
+    // Markers follow the segment's number, so a segment kept from last
+    // run keeps its colour and shape.
     for (i, a) in o.assignments.iter().enumerate().step_by(step) {
-        let s = a.segment - 1;
+        let s = a.segment.saturating_sub(1);
         points = points.add(marker(s, xs.at(cx(i)), ys.at(cy(i)), 2.6));
     }
     doc = doc.add(points);
     for (s, prof) in o.profiles.iter().enumerate() {
         let y = 50.0 + 20.0 * s as f64;
-        doc = doc.add(marker(s, w - 200.0, y - 4.0, 4.0)).add(text(
-            w - 191.0,
-            y,
-            format!("{} {}", s + 1, prof.label.clone().unwrap_or_default()),
-            "start",
-        ));
+        let number = prof.segment.unwrap_or(s + 1);
+        doc = doc
+            .add(marker(number - 1, w - 200.0, y - 4.0, 4.0))
+            .add(text(
+                w - 191.0,
+                y,
+                format!("{number} {}", prof.label.clone().unwrap_or_default()),
+                "start",
+            ));
     }
     Chart {
         name: "projection",

@@ -84,6 +84,7 @@ pub fn run(o: &Outcome, written: &[String]) -> Value {
             "restarts": r.restarts.as_ref().map(|x| x.of),
             "restarts_sample": r.restarts.as_ref().and_then(|x| x.sampled),
         })).collect::<Vec<_>>(),
+        "changes": super::changes::Changes::of(o),
         "features": features,
         "segments": o.profiles.iter().map(|p| json!({
             "segment": p.segment,

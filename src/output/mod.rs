@@ -4,6 +4,7 @@
 //! succeeded, each to a temporary file beside its target and then renamed,
 //! so a failed or interrupted run never leaves a partial or clobbered output.
 
+pub mod changes;
 pub mod charts;
 pub mod files;
 pub mod json;

@@ -42,6 +42,9 @@ pub struct RunRecord {
     /// version that changes a default cannot change a result unnoticed.
     pub plan: serde_json::Value,
     pub chosen_k: usize,
+    /// With `previous`: how the segments were matched with last run's.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub matching: Option<serde_json::Value>,
     pub outputs: Vec<FileDigest>,
 }
 
@@ -112,6 +115,14 @@ pub fn input_digests_with(o: &Outcome, input_sha256: Option<String>) -> Vec<Inpu
             records: cmp.both + cmp.only_old,
         });
     }
+    for d in o.then.iter().flat_map(|t| &t.digests) {
+        out.push(InputDigest {
+            role: d.role.into(),
+            path: d.path.clone(),
+            sha256: d.sha256.clone(),
+            records: d.records,
+        });
+    }
     if let (Some(v), Some(val)) = (&o.plan.validate, &o.validation) {
         out.push(InputDigest {
             role: "validate".into(),
@@ -143,6 +154,10 @@ pub fn build(
         generator: crate::engine::rng::GENERATOR.into(),
         plan: serde_json::to_value(&o.plan).unwrap_or(serde_json::Value::Null),
         chosen_k: o.chosen,
+        matching: o
+            .matching
+            .as_ref()
+            .and_then(|m| serde_json::to_value(m).ok()),
         outputs: files
             .iter()
             .map(|f| FileDigest {

@@ -84,6 +84,9 @@ pub fn render(o: &Outcome, sources: &Sources<'_>) -> Vec<u8> {
     how(&mut h, o);
     why(&mut h, o);
     cards(&mut h, o);
+    if let Some(c) = super::changes::Changes::of(o) {
+        changed(&mut h, &c, o);
+    }
     let _ = write!(h, "<h2>Charts</h2>\n");
     for c in charts::all(o) {
         let _ = write!(
@@ -353,4 +356,107 @@ fn provenance(h: &mut String, o: &Outcome, sources: &Sources<'_>) {
         o.plan.seed,
         esc(crate::engine::rng::GENERATOR)
     );
+}
+
+/// "What changed since last run": sizes and shares then and now, the
+/// migration of shared members by name, and the means then and now.
+fn changed(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
+    use crate::text::thousands;
+    let _ = write!(
+        h,
+        "<h2>What changed since last run</h2>\n<p>Segments were matched one to one with those of <code>{}</code> ({} records then, {} now) on their {}; a matched segment keeps its number and name.</p>\n",
+        esc(&c.model),
+        thousands(c.records_then),
+        thousands(c.records_now),
+        esc(c.basis)
+    );
+    let _ = write!(
+        h,
+        "<table class=\"changes\"><tr><th>segment</th><th>then</th><th>now</th><th>change</th></tr>\n"
+    );
+    let cell = |size: Option<usize>, share: Option<f64>| match (size, share) {
+        (Some(n), Some(s)) => format!("{} ({:.1}%)", thousands(n), 100.0 * s),
+        _ => "&ndash;".to_string(),
+    };
+    for ch in &c.segments {
+        let change = match ch.status {
+            "new" => "new segment".to_string(),
+            "gone" => "gone".to_string(),
+            _ => format!(
+                "{:+.1} points",
+                100.0 * (ch.share_now.unwrap_or(0.0) - ch.share_then.unwrap_or(0.0))
+            ),
+        };
+        let _ = write!(
+            h,
+            "<tr><td>{}</td><td>{}</td><td>{}</td><td>{}{}</td></tr>\n",
+            esc(&super::changes::named(ch.number, ch.label.as_deref())),
+            cell(ch.size_then, ch.share_then),
+            cell(ch.size_now, ch.share_now),
+            esc(&change),
+            ch.weak
+                .as_ref()
+                .map(|w| format!("<br/><b>weak match</b>: {}", esc(w)))
+                .unwrap_or_default()
+        );
+    }
+    let _ = write!(h, "</table>\n");
+    if let Some(cmp) = &o.comparison {
+        let name =
+            |labels: &std::collections::HashMap<String, String>, seg: &str| match labels.get(seg) {
+                Some(l) => format!("{seg} {l}"),
+                None => seg.to_string(),
+            };
+        let _ = write!(
+            h,
+            "<p>Where last run's members went ({} in both runs):</p>\n<table class=\"changes\"><tr><th>last run</th>",
+            thousands(cmp.both)
+        );
+        for t in &cmp.migration.to {
+            let _ = write!(h, "<th>{}</th>", esc(&name(&cmp.new_labels, t)));
+        }
+        let _ = write!(h, "</tr>\n");
+        for (i, f) in cmp.migration.from.iter().enumerate() {
+            let _ = write!(h, "<tr><td>{}</td>", esc(&name(&cmp.old_labels, f)));
+            for n in &cmp.migration.counts[i] {
+                let _ = write!(h, "<td>{}</td>", thousands(*n));
+            }
+            let _ = write!(h, "</tr>\n");
+        }
+        let _ = write!(h, "</table>\n");
+    }
+    let with_means: Vec<&super::changes::Change> = c
+        .segments
+        .iter()
+        .filter(|ch| ch.means_then.is_some() && ch.means_now.is_some())
+        .collect();
+    if !with_means.is_empty() {
+        let _ = write!(
+            h,
+            "<p>Means in original units, then &rarr; now:</p>\n<table class=\"changes\"><tr><th>feature</th>"
+        );
+        for ch in &with_means {
+            let _ = write!(
+                h,
+                "<th>{}</th>",
+                esc(&super::changes::named(ch.number, ch.label.as_deref()))
+            );
+        }
+        let _ = write!(h, "</tr>\n");
+        for (f, name) in c.features.iter().enumerate() {
+            let _ = write!(h, "<tr><td>{}</td>", esc(name));
+            for ch in &with_means {
+                let then = ch.means_then.as_ref().and_then(|m| m.get(f)).copied();
+                let now = ch.means_now.as_ref().and_then(|m| m.get(f)).copied();
+                let _ = write!(
+                    h,
+                    "<td>{} &rarr; {}</td>",
+                    then.map(short).unwrap_or_default(),
+                    now.map(short).unwrap_or_default()
+                );
+            }
+            let _ = write!(h, "</tr>\n");
+        }
+        let _ = write!(h, "</table>\n");
+    }
 }

@@ -19,6 +19,10 @@ pub fn report(o: &Outcome) -> String {
     sweep(&mut s, o);
     s.push('\n');
     profiles(&mut s, o);
+    if let Some(c) = super::changes::Changes::of(o) {
+        s.push('\n');
+        s.push_str(&super::changes::terminal(&c));
+    }
     if let Some(c) = &o.comparison {
         s.push_str(&comparison(c));
         s.push('\n');
@@ -457,7 +461,7 @@ fn wrapped_items(s: &mut String, lead: &str, items: &[String], sep: char) {
 }
 
 /// Shortens text to `w` characters, marking the cut.
-fn clip(text: &str, w: usize) -> String {
+pub(super) fn clip(text: &str, w: usize) -> String {
     if text.chars().count() <= w {
         text.to_string()
     } else {

@@ -162,6 +162,10 @@ pub enum RunError {
     )]
     NotAssignments { file: String },
 
+    #[error("labels would move to other segments, {moves}")]
+    #[diagnostic(code(assort::run::labels_moved), help("{help}"))]
+    LabelsMoved { moves: String, help: String },
+
     #[error("cannot write `{path}`: {reason}")]
     #[diagnostic(
         code(assort::run::write),

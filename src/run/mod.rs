@@ -10,6 +10,7 @@ pub mod error;
 pub mod load;
 pub mod model;
 pub mod prepare;
+pub mod previous;
 
 use crate::engine::{self, compare, criteria, evidence, kmeans, silhouette, tree};
 use crate::plan::{ChooseK, Criterion, KMeansPlan, MethodPlan, Plan, SilhouetteMode, TreePlan};
@@ -227,6 +228,10 @@ pub struct Outcome {
     pub comparison: Option<comparison::Comparison>,
     /// For the chosen k, each segment's silhouettes, highest first.
     pub silhouettes: Vec<Vec<f64>>,
+    /// With `previous`: how this run's segments were matched with last
+    /// run's, and last run's segments as the model recorded them.
+    pub matching: Option<previous::Matching>,
+    pub then: Option<previous::Then>,
 }
 
 /// Runs a plan.
@@ -334,8 +339,12 @@ pub fn run_with(
     }
 
     let x = prepared.matrix.view();
+    let last = match &plan.previous {
+        Some(p) => Some(previous::PreviousRun::read(p, &prepared)?),
+        None => None,
+    };
     let (candidates, tree) = match &plan.method {
-        MethodPlan::KMeans(km) => (fit_kmeans(plan, km, x, progress)?, None),
+        MethodPlan::KMeans(km) => (fit_kmeans(plan, km, x, last.as_ref(), progress)?, None),
         MethodPlan::Tree(t) => {
             progress(Step {
                 what: "building the tree",
@@ -413,14 +422,41 @@ pub fn run_with(
     let disagreement = disagreement(&picks);
     let advice = advice(&sweep);
     let at = candidates.iter().position(|c| c.k == chosen).unwrap_or(0);
-    let fit = &candidates[at];
+    // Segment numbers: 1..k by size, or, with a previous model, the
+    // numbers of the segments matched. `order[i]` is the size-ordered
+    // segment that comes i-th by number.
+    let matching = last.as_ref().map(|prev| {
+        let c = &candidates[at];
+        previous::match_segments(
+            prev,
+            &c.labels,
+            c.centres.view(),
+            prepared.kept.iter().map(|&r| table.keys.get(r)),
+        )
+    });
+    let (order, numbers) = match &matching {
+        Some(m) => m.order(),
+        None => ((0..chosen).collect(), (1..=chosen).collect()),
+    };
+    let fit = &candidates[at].renumbered(&order);
+    let label_of = |number: usize| -> Option<String> {
+        plan.labels.get(&number).cloned().or_else(|| {
+            let prev = last.as_ref()?;
+            let matched = matching
+                .as_ref()?
+                .pairs
+                .iter()
+                .any(|p| p.previous == Some(number));
+            matched.then(|| prev.label_of(number)).flatten()
+        })
+    };
 
     let measured = kmeans::distance_and_margin(x, fit.centres.view(), &fit.labels);
     let mut assignments = Assignments::with_capacity(n);
     for ((&r, &seg), &(distance, margin)) in prepared.kept.iter().zip(&fit.labels).zip(&measured) {
         assignments.push(Assignment {
             key: table.keys.get(r),
-            segment: seg as usize + 1,
+            segment: numbers[seg as usize],
             distance,
             margin,
         });
@@ -449,13 +485,13 @@ pub fn run_with(
                 means.segment(s),
                 Some(&members),
                 Some(centre),
-                per_segment_silhouette[at].get(s).copied(),
+                per_segment_silhouette[at].get(order[s]).copied(),
             );
-            p.segment = Some(s + 1);
-            p.label = plan.labels.get(&(s + 1)).cloned();
+            p.segment = Some(numbers[s]);
+            p.label = label_of(numbers[s]);
             p.stability = stability
                 .as_ref()
-                .and_then(|st| st[at].jaccard.get(s).copied());
+                .and_then(|st| st[at].jaccard.get(order[s]).copied());
             p
         })
         .collect::<Vec<_>>();
@@ -497,13 +533,26 @@ pub fn run_with(
     let comparison = match &plan.compare {
         Some(c) => {
             let old = comparison::read_assignments(&c.resolved, &c.path)?;
-            let new = comparison::from_run(&assignments, |s| {
-                plan.labels.get(&s).cloned().unwrap_or_default()
-            });
+            let new = comparison::from_run(&assignments, |s| label_of(s).unwrap_or_default());
             Some(comparison::compare(&c.path, &old, "this run", &new))
         }
-        None => None,
+        // Last run's assignments, given with `previous`, show the migration.
+        None => match last.as_ref().and_then(|l| l.assignments.as_ref()) {
+            Some((path, old)) => {
+                let new = comparison::from_run(&assignments, |s| label_of(s).unwrap_or_default());
+                Some(comparison::compare(path, old, "this run", &new))
+            }
+            None => None,
+        },
     };
+
+    previous::check_labels_stay(
+        plan,
+        &assignments,
+        &prepared,
+        &fit.labels,
+        fit.centres.view(),
+    )?;
 
     Ok(Outcome {
         plan: plan.clone(),
@@ -520,9 +569,14 @@ pub fn run_with(
         overall,
         validation,
         tree,
-        centres: candidates[at].centres.clone(),
+        centres: fit.centres.clone(),
         comparison,
-        silhouettes: silhouette_values.swap_remove(at),
+        silhouettes: {
+            let mut per = silhouette_values.swap_remove(at);
+            order.iter().map(|&s| std::mem::take(&mut per[s])).collect()
+        },
+        then: last.as_ref().map(|l| l.then()),
+        matching,
     })
 }
 
@@ -535,10 +589,27 @@ struct Candidate {
     restarts: Option<Restarts>,
 }
 
+impl Candidate {
+    /// The same segmentation with segment `order[i]` numbered `i`.
+    fn renumbered(&self, order: &[usize]) -> Candidate {
+        let mut new_of = vec![0u32; order.len()];
+        for (i, &s) in order.iter().enumerate() {
+            new_of[s] = i as u32;
+        }
+        Candidate {
+            k: self.k,
+            labels: self.labels.iter().map(|&l| new_of[l as usize]).collect(),
+            centres: self.centres.select(ndarray::Axis(0), order),
+            restarts: self.restarts.clone(),
+        }
+    }
+}
+
 fn fit_kmeans(
     plan: &Plan,
     km: &KMeansPlan,
     x: ArrayView2<'_, f64>,
+    last: Option<&previous::PreviousRun>,
     progress: &dyn Fn(Step),
 ) -> Result<Vec<Candidate>, RunError> {
     km.ks
@@ -558,6 +629,8 @@ fn fit_kmeans(
                 seeding: km.seeding,
                 seed: plan.seed,
                 sample: km.sample,
+                // Last run's centres start one more restart at its k.
+                start: last.filter(|l| l.k() == k).map(|l| l.start()),
             };
             let fit =
                 kmeans::kmeans(x, &settings).map_err(|source| RunError::Engine { k, source })?;
@@ -631,6 +704,7 @@ fn build_tree(t: &TreePlan, x: ArrayView2<'_, f64>, seed: u64) -> Result<BuiltTr
                 seeding: kmeans::Seeding::KMeansPlusPlus,
                 seed,
                 sample: None,
+                start: None,
             };
             let engine = |source| RunError::Engine {
                 k: m.segments,
@@ -928,6 +1002,7 @@ fn reclusterer(plan: &Plan) -> Box<evidence::Recluster<'static>> {
                             seeding: km.seeding,
                             seed,
                             sample: km.sample,
+                            start: None,
                         };
                         // A k the draw cannot support (too few distinct
                         // records) counts as a failed recovery.

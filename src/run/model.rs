@@ -1,11 +1,12 @@
 //! Segment models: everything needed to score new records exactly as the
 //! run prepared its own, and the scoring itself.
 //!
-//! A model is our own versioned JSON format (`assort-model/1`): the key and
+//! A model is our own versioned JSON format (`assort-model/2`): the key and
 //! separator, each feature's fill value, clip bounds, transform, scaling and
 //! weight, each category's levels and weight, the segments' centres in the
-//! clustered space, their numbers and labels, and where the model came
-//! from. Scoring puts each record with its nearest centre (ties to the lower
+//! clustered space, their numbers, labels, sizes and feature means, and
+//! where the model came from. Version 1 (no means) still loads and scores
+//! exactly as before. Scoring puts each record with its nearest centre (ties to the lower
 //! number), so on the training data of a k-means recipe it reproduces the
 //! run's assignments; a tree's segments are scored by their means, so a
 //! border record the tree put elsewhere may move.
@@ -18,7 +19,11 @@ use crate::engine::kmeans;
 use ndarray::Array2;
 use serde::{Deserialize, Serialize};
 
-pub const MODEL_FORMAT: &str = "assort-model/1";
+pub const MODEL_FORMAT: &str = "assort-model/2";
+
+/// Formats this assort reads: version 1 lacks the segments' means, which
+/// only "what changed" uses; it scores exactly as before.
+pub const MODEL_FORMATS_READ: [&str; 2] = ["assort-model/1", MODEL_FORMAT];
 
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct SegmentModel {
@@ -49,6 +54,9 @@ pub struct ModelSegment {
     pub segment: usize,
     pub label: Option<String>,
     pub size: usize,
+    /// The segment's feature means in original units (format 2 on).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub means: Option<Vec<f64>>,
 }
 
 /// The model of a run's chosen segmentation.
@@ -83,6 +91,7 @@ pub fn from_outcome(o: &Outcome, input_sha256: String) -> SegmentModel {
                 segment: p.segment.unwrap_or(0),
                 label: p.label.clone(),
                 size: p.size,
+                means: Some(p.features.iter().map(|f| f.mean).collect()),
             })
             .collect(),
     }
@@ -203,7 +212,7 @@ fn count_slots<'a>(names: impl Iterator<Item = &'a String>) -> Vec<(String, usiz
 
 /// A raw value prepared exactly as the run prepared its own: clip, the
 /// transform, scaling, weight. `None` outside the transform's range.
-fn prepared_value(fp: &FeatureParams, x: f64) -> Option<f64> {
+pub(crate) fn prepared_value(fp: &FeatureParams, x: f64) -> Option<f64> {
     let x = match fp.clip {
         Some((a, b)) => x.clamp(a, b),
         None => x,
@@ -301,12 +310,13 @@ pub fn read_model(path: &std::path::Path) -> Result<SegmentModel, RunError> {
         file: shown.clone(),
         reason: e.to_string(),
     })?;
-    if model.format != MODEL_FORMAT {
+    if !MODEL_FORMATS_READ.contains(&model.format.as_str()) {
         return Err(RunError::BadModel {
             file: shown,
             reason: format!(
-                "its format is `{}`, this assort reads `{MODEL_FORMAT}`",
-                model.format
+                "its format is `{}`, this assort reads {}",
+                model.format,
+                MODEL_FORMATS_READ.map(|f| format!("`{f}`")).join(" and ")
             ),
         });
     }

@@ -195,6 +195,12 @@ pub enum StatementKind {
     Compare {
         path: Spanned<String>,
     },
+    /// `previous "model" [assignments "file"]`: last run's segments, whose
+    /// numbers and labels this run keeps.
+    Previous {
+        path: Spanned<String>,
+        options: Vec<OptionPair>,
+    },
     Acknowledge {
         columns: Vec<Column>,
         reason: Spanned<String>,

@@ -231,6 +231,10 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
             // rest[0] is the fixed word `with`.
             path: text_of(&rest[1], off),
         },
+        Rule::previous_stmt => StatementKind::Previous {
+            path: text_of(&rest[0], off),
+            options: options_of(&rest[1..], off),
+        },
         _ => StatementKind::Unknown {
             word: keyword.clone(),
         },

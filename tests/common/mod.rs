@@ -1,5 +1,9 @@
 //! Helpers shared by the integration tests that read the public data sets
-//! in tests/data (Iris and Wine, UCI; see tests/data/ATTRIBUTION.md).
+//! in tests/data (Iris and Wine, UCI; see tests/data/ATTRIBUTION.md), and
+//! the end-to-end harness ([`case`]).
+#![allow(dead_code)] // each test crate uses its own part of these helpers
+
+pub mod case;
 
 use ndarray::Array2;
 use std::path::Path;
@@ -30,7 +34,6 @@ pub fn measurements(name: &str) -> Array2<f64> {
 
 /// Two k-means fits are the same bit for bit: labels, within-SS, rounds,
 /// the best restart and how many reached it, centres.
-#[allow(dead_code)] // not every test crate that shares these helpers uses it
 #[track_caller]
 pub fn same_fit(
     a: &assort::engine::kmeans::KMeansFit,

@@ -28,6 +28,9 @@
 //! run in parallel. Memory: the sample's rows (s d values) beside the data,
 //! and O(n) per refinement.
 //!
+//! A given start (last run's centres) is refined on every record too,
+//! after the sample's best.
+//!
 //! # What is reported
 //! `restarts_at_best` counts the restarts that reached, on the sample, the
 //! same partition of the sample as the restart whose refinement was kept;
@@ -72,9 +75,16 @@ pub(super) fn fit(whole: &Problem<'_>, s: usize) -> Result<super::KMeansFit, Eng
     ranked.sort_by(|&a, &b| tried[a].0.total_cmp(&tried[b].0).then(a.cmp(&b)));
     ranked.truncate(REFINED);
 
-    let refined: Vec<Restart> = ranked
+    // A given start is refined on every record directly, after the best
+    // sample restarts (so ties go to them).
+    let starts: Vec<(usize, Vec<f64>)> = ranked
+        .iter()
+        .map(|&r| (r, tried[r].2.clone()))
+        .chain(whole.given_start().map(|c| (settings.restarts, c.to_vec())))
+        .collect();
+    let refined: Vec<Restart> = starts
         .par_iter()
-        .map(|&r| whole.lloyd(tried[r].2.clone(), vec![0u32; n], vec![0.0; n], true))
+        .map(|(_, c)| whole.lloyd(c.clone(), vec![0u32; n], vec![0.0; n], true))
         .collect();
     let mut best = 0;
     for (i, run) in refined.iter().enumerate() {
@@ -82,8 +92,12 @@ pub(super) fn fit(whole: &Problem<'_>, s: usize) -> Result<super::KMeansFit, Eng
             best = i;
         }
     }
-    let restart = ranked[best];
-    let at_best = tried.iter().filter(|t| t.1 == tried[restart].1).count();
+    let restart = starts[best].0;
+    let at_best = match tried.get(restart) {
+        Some(kept) => tried.iter().filter(|t| t.1 == kept.1).count(),
+        // The given start won; it was not run on the sample.
+        None => 1,
+    };
     let run = refined
         .into_iter()
         .nth(best)

@@ -1,0 +1,247 @@
+//! "What changed" since the previous run (`previous` in the recipe): each
+//! segment by number and name, its size and share then and now, its means
+//! then and now, new and gone segments, and how the segments were matched.
+//! One view, rendered for the terminal, the JSON result and the report.
+
+use super::short;
+use crate::run::Outcome;
+use crate::text::thousands;
+use serde::Serialize;
+use std::fmt::Write;
+
+/// One segment's change.
+#[derive(Debug, Clone, Serialize)]
+pub struct Change {
+    pub number: usize,
+    pub label: Option<String>,
+    /// `kept`, `new` or `gone`.
+    pub status: &'static str,
+    pub size_then: Option<usize>,
+    pub share_then: Option<f64>,
+    pub size_now: Option<usize>,
+    pub share_now: Option<f64>,
+    /// Why the match is weak, when it is.
+    pub weak: Option<String>,
+    /// Feature means in original units, in the order of `Changes::features`
+    /// (then: only from models of format 2 on).
+    pub means_then: Option<Vec<f64>>,
+    pub means_now: Option<Vec<f64>>,
+}
+
+/// Every segment's change, in number order.
+#[derive(Debug, Clone, Serialize)]
+pub struct Changes {
+    pub model: String,
+    pub basis: &'static str,
+    pub records_then: usize,
+    pub records_now: usize,
+    pub features: Vec<String>,
+    pub segments: Vec<Change>,
+    /// The matching's total cost (squared centre distances, or members
+    /// shared by matched pairs).
+    pub cost: f64,
+}
+
+impl Changes {
+    /// The view, when the run had a previous model.
+    pub fn of(o: &Outcome) -> Option<Changes> {
+        let (m, then) = (o.matching.as_ref()?, o.then.as_ref()?);
+        let features: Vec<String> = o
+            .prepared
+            .features
+            .iter()
+            .map(|f| f.column.clone())
+            .collect();
+        // The model's means, in this run's feature order.
+        let means_then = |number: usize| -> Option<Vec<f64>> {
+            let seg = then.segments.iter().find(|s| s.number == number)?;
+            let means = seg.means.as_ref()?;
+            features
+                .iter()
+                .map(|f| {
+                    let at = then.features.iter().position(|t| t == f)?;
+                    means.get(at).copied()
+                })
+                .collect()
+        };
+        let mut segments: Vec<Change> = o
+            .profiles
+            .iter()
+            .filter_map(|p| {
+                let number = p.segment?;
+                let pair = m.pairs.iter().find(|x| x.number == number)?;
+                let before = pair
+                    .previous
+                    .and_then(|n| then.segments.iter().find(|s| s.number == n));
+                Some(Change {
+                    number,
+                    label: p.label.clone(),
+                    status: if pair.previous.is_some() {
+                        "kept"
+                    } else {
+                        "new"
+                    },
+                    size_then: before.map(|b| b.size),
+                    share_then: before.map(|b| b.share),
+                    size_now: Some(p.size),
+                    share_now: Some(p.share),
+                    weak: pair.why_weak.clone(),
+                    means_then: pair.previous.and_then(means_then),
+                    means_now: Some(p.features.iter().map(|f| f.mean).collect()),
+                })
+            })
+            .collect();
+        for g in &m.gone {
+            segments.push(Change {
+                number: g.number,
+                label: g.label.clone(),
+                status: "gone",
+                size_then: Some(g.size),
+                share_then: then
+                    .segments
+                    .iter()
+                    .find(|s| s.number == g.number)
+                    .map(|s| s.share),
+                size_now: None,
+                share_now: None,
+                weak: None,
+                means_then: means_then(g.number),
+                means_now: None,
+            });
+        }
+        segments.sort_by_key(|c| c.number);
+        Some(Changes {
+            model: m.model.clone(),
+            basis: m.basis,
+            records_then: then.records,
+            records_now: o.prepared.kept.len(),
+            features,
+            segments,
+            cost: m.cost,
+        })
+    }
+
+    /// The segment that grew most in share, and by how many points.
+    pub fn grew_most(&self) -> Option<(&Change, f64)> {
+        self.segments
+            .iter()
+            .filter_map(|c| {
+                let grew = c.share_now? - c.share_then.unwrap_or(0.0);
+                Some((c, grew))
+            })
+            .filter(|(_, g)| *g > 0.0)
+            .max_by(|a, b| a.1.total_cmp(&b.1).then(b.0.number.cmp(&a.0.number)))
+    }
+}
+
+/// A segment's name for text: `2 "bulk planners"`, or `2`.
+pub fn named(number: usize, label: Option<&str>) -> String {
+    match label {
+        Some(l) if !l.is_empty() => format!("{number} \"{l}\""),
+        _ => number.to_string(),
+    }
+}
+
+fn size_share(size: Option<usize>, share: Option<f64>) -> String {
+    match (size, share) {
+        (Some(n), Some(s)) => format!("{:>9} {:>5.1}%", thousands(n), 100.0 * s),
+        _ => format!("{:>16}", "-"),
+    }
+}
+
+/// The terminal section.
+pub fn terminal(c: &Changes) -> String {
+    let mut s = String::new();
+    let _ = writeln!(
+        s,
+        "what changed since `{}` ({} records then, {} now; segments matched on their {})",
+        c.model,
+        thousands(c.records_then),
+        thousands(c.records_now),
+        c.basis
+    );
+    let matched = c.segments.iter().filter(|ch| ch.status == "kept").count();
+    let _ = writeln!(
+        s,
+        "  {matched} matched one to one (Hungarian method); {}",
+        if c.basis == "centres" {
+            format!(
+                "summed squared distance between matched centres {}",
+                short(c.cost)
+            )
+        } else {
+            format!(
+                "{} members shared by matched segments",
+                thousands(c.cost as usize)
+            )
+        }
+    );
+    let _ = writeln!(
+        s,
+        "  {:<32} {:>16} {:>16}  change",
+        "segment", "then", "now"
+    );
+    for ch in &c.segments {
+        let name = named(ch.number, ch.label.as_deref());
+        let change = match ch.status {
+            "new" => "new".to_string(),
+            "gone" => "gone".to_string(),
+            _ => {
+                let pts = 100.0 * (ch.share_now.unwrap_or(0.0) - ch.share_then.unwrap_or(0.0));
+                let size = ch.size_now.unwrap_or(0) as i64 - ch.size_then.unwrap_or(0) as i64;
+                format!("{size:+} ({pts:+.1} points)")
+            }
+        };
+        let _ = writeln!(
+            s,
+            "  {:<32} {} {}  {change}",
+            super::tables::clip(&name, 32),
+            size_share(ch.size_then, ch.share_then),
+            size_share(ch.size_now, ch.share_now),
+        );
+    }
+    if let Some((g, pts)) = c.grew_most() {
+        let _ = writeln!(
+            s,
+            "  segment {} grew most: {:+.1} points of the records",
+            named(g.number, g.label.as_deref()),
+            100.0 * pts
+        );
+    }
+    for ch in c.segments.iter().filter(|ch| ch.weak.is_some()) {
+        let _ = writeln!(
+            s,
+            "  warning: segment {} is a weak match: {}; check its profile before reusing its name",
+            named(ch.number, ch.label.as_deref()),
+            ch.weak.as_deref().unwrap_or("")
+        );
+    }
+    let _ = writeln!(s, "  means, then -> now:");
+    for ch in &c.segments {
+        let (Some(then), Some(now)) = (&ch.means_then, &ch.means_now) else {
+            continue;
+        };
+        let parts: Vec<String> = c
+            .features
+            .iter()
+            .zip(then.iter().zip(now))
+            .map(|(f, (a, b))| format!("{f} {} -> {}", short(*a), short(*b)))
+            .collect();
+        let _ = writeln!(
+            s,
+            "    {}: {}",
+            named(ch.number, ch.label.as_deref()),
+            parts.join(", ")
+        );
+    }
+    if c.segments
+        .iter()
+        .any(|ch| ch.status == "kept" && ch.means_then.is_none())
+    {
+        let _ = writeln!(
+            s,
+            "    (the previous model predates means in models; rerun last quarter's recipe to see them)"
+        );
+    }
+    s
+}

@@ -1,0 +1,127 @@
+//! A scratch folder holding a recipe and its data, and a way to run the
+//! `assort` binary on it: the harness of the end-to-end tests.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+/// A scratch folder holding a recipe and its data, and a way to run
+/// `assort` on it.
+pub struct Case {
+    pub dir: tempfile::TempDir,
+}
+
+impl Case {
+    /// A copy of the shipped demo (recipe and data).
+    pub fn demo() -> Case {
+        let case = Case::empty();
+        let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("recipes");
+        case.copy(&root.join("coop-members.assort"), "coop-members.assort");
+        for f in ["coop_members.csv", "coop_members_planted.csv"] {
+            case.copy(&root.join("data").join(f), &format!("data/{f}"));
+        }
+        case
+    }
+
+    pub fn empty() -> Case {
+        Case {
+            dir: tempfile::tempdir().unwrap(),
+        }
+    }
+
+    pub fn path(&self, rel: &str) -> PathBuf {
+        self.dir.path().join(rel)
+    }
+
+    pub fn copy(&self, from: &Path, to: &str) {
+        let to = self.path(to);
+        std::fs::create_dir_all(to.parent().unwrap()).unwrap();
+        std::fs::copy(from, to).unwrap();
+    }
+
+    pub fn write(&self, rel: &str, text: &str) -> &Case {
+        let p = self.path(rel);
+        std::fs::create_dir_all(p.parent().unwrap()).unwrap();
+        std::fs::write(p, text).unwrap();
+        self
+    }
+
+    pub fn read(&self, rel: &str) -> String {
+        std::fs::read_to_string(self.path(rel)).unwrap()
+    }
+
+    /// Replaces the first occurrence of `from` in a file.
+    pub fn edit(&self, rel: &str, from: &str, to: &str) -> &Case {
+        let text = self.read(rel);
+        assert!(text.contains(from), "`{from}` not in {rel}");
+        self.write(rel, &text.replacen(from, to, 1))
+    }
+
+    pub fn assort(&self, args: &[&str], env: &[(&str, &str)]) -> Run {
+        let mut cmd = Command::new(env!("CARGO_BIN_EXE_assort"));
+        cmd.args(args)
+            .current_dir(self.dir.path())
+            .env("NO_COLOR", "1");
+        for (k, v) in env {
+            cmd.env(k, v);
+        }
+        Run(cmd.output().unwrap())
+    }
+
+    pub fn run(&self, recipe: &str) -> Run {
+        self.assort(&["run", recipe], &[])
+    }
+}
+
+pub struct Run(pub Output);
+
+impl Run {
+    pub fn stdout(&self) -> String {
+        String::from_utf8_lossy(&self.0.stdout).into_owned()
+    }
+
+    pub fn stderr(&self) -> String {
+        String::from_utf8_lossy(&self.0.stderr).into_owned()
+    }
+
+    #[track_caller]
+    pub fn ok(self) -> Run {
+        assert!(
+            self.0.status.success(),
+            "expected success, got {:?}\nstdout:\n{}\nstderr:\n{}",
+            self.0.status,
+            self.stdout(),
+            self.stderr()
+        );
+        self
+    }
+
+    #[track_caller]
+    pub fn fails(self) -> Run {
+        assert!(
+            !self.0.status.success(),
+            "expected failure\nstdout:\n{}",
+            self.stdout()
+        );
+        self
+    }
+
+    #[track_caller]
+    pub fn stderr_has(self, text: &str) -> Run {
+        assert!(
+            self.stderr().contains(text),
+            "stderr lacks `{text}`:\n{}",
+            self.stderr()
+        );
+        self
+    }
+
+    #[track_caller]
+    pub fn stdout_has(self, text: &str) -> Run {
+        assert!(
+            self.stdout().contains(text),
+            "stdout lacks `{text}`:\n{}",
+            self.stdout()
+        );
+        self
+    }
+}
