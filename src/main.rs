@@ -385,6 +385,9 @@ fn score_summary(s: &run::model::ScoreSummary) -> String {
             out.push_str(&format!("  {what}: {detail}\n"));
         }
     }
+    if let Some(d) = &s.drift {
+        out.push_str(&output::changes::drift_lines(d));
+    }
     out
 }
 

@@ -72,7 +72,8 @@ fn with_last_quarters_model_every_name_stays_on_its_members() {
     case.run(DEMO)
         .ok()
         .stdout_has("what changed since `out/segment_model.json`")
-        .stdout_has("segment 5 \"occasional newcomers\" grew most: +5.3 points");
+        .stdout_has("segment 5 \"occasional newcomers\" grew most: +5.3 points")
+        .stdout_has("population stability index tenure_months");
     let now = assigned(&case.read("out/member_segments.csv"));
     // Every returning member keeps segment number and name.
     for (key, (seg, label)) in &last {
@@ -93,6 +94,31 @@ fn with_last_quarters_model_every_name_stays_on_its_members() {
     let record = case.read("out/coop-members.run.json");
     assert!(record.contains("\"previous model\""));
     assert!(record.contains("\"matching\""));
+}
+
+#[test]
+fn with_the_model_alone_segments_are_matched_on_their_centres() {
+    let case = last_quarter_then_next();
+    let last = assigned(&case.read("out/member_segments.csv"));
+    case.edit(
+        DEMO,
+        "scale zscore",
+        "previous \"out/segment_model.json\"\nscale zscore",
+    );
+    case.run(DEMO)
+        .ok()
+        .stdout_has("segments matched on their centres")
+        .stdout_has("5 matched one to one");
+    let now = assigned(&case.read("out/member_segments.csv"));
+    // Centres carry the names: each label still names most of last
+    // quarter's members it named (the newcomers' segment grew, so some
+    // border members may move; nearly all stay).
+    let stayed = last.iter().filter(|(k, v)| &now[*k] == *v).count();
+    assert!(
+        stayed as f64 > 0.98 * last.len() as f64,
+        "{stayed} of {}",
+        last.len()
+    );
 }
 
 #[test]
@@ -194,4 +220,102 @@ fn a_version_1_model_still_scores_exactly_as_before() {
         case.read("out/v1.csv"),
         case.read("out/member_segments.csv")
     );
+}
+
+/// The demo data with every tenure 12 months longer and every fresh-food
+/// share times 0.7, as tests/reference/drift.py builds it.
+fn shifted_demo(data: &str) -> String {
+    let mut lines = data.lines();
+    let header = lines.next().unwrap();
+    let names: Vec<&str> = header.split(',').collect();
+    let at = |n: &str| names.iter().position(|h| *h == n).unwrap();
+    let (tenure, fresh) = (at("tenure_months"), at("share_fresh"));
+    let mut out = vec![header.to_string()];
+    for l in lines {
+        let mut f: Vec<String> = l.split(',').map(String::from).collect();
+        f[tenure] = format!("{}", f[tenure].parse::<f64>().unwrap() + 12.0);
+        f[fresh] = format!("{}", f[fresh].parse::<f64>().unwrap() * 0.7);
+        out.push(f.join(","));
+    }
+    out.join("\n") + "\n"
+}
+
+/// Scores `data` with the demo run's model, through the library.
+fn drift_of(case: &Case, data: &str) -> assort::run::model::Drift {
+    let model = assort::run::model::read_model(&case.path("out/segment_model.json")).unwrap();
+    let table = assort::run::model::read_for_scoring(&case.path(data), data, &model).unwrap();
+    assort::run::model::score(&model, &table).1.drift.unwrap()
+}
+
+#[test]
+fn drift_matches_an_independent_computation_and_warns_only_when_shifted() {
+    // Reference: tests/data/drift_reference.json, computed with numpy by
+    // tests/reference/drift.py on the raw demo values.
+    let reference: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(
+            std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+                .join("tests/data/drift_reference.json"),
+        )
+        .unwrap(),
+    )
+    .unwrap();
+    let case = Case::demo();
+    case.run(DEMO).ok();
+    case.write(
+        "data/shifted.csv",
+        &shifted_demo(&case.read("data/coop_members.csv")),
+    );
+    let same = drift_of(&case, "data/coop_members.csv");
+    let moved = drift_of(&case, "data/shifted.csv");
+    for f in ["tenure_months", "share_fresh", "share_bulk"] {
+        let psi =
+            |d: &assort::run::model::Drift| d.features.iter().find(|x| x.column == f).unwrap().psi;
+        let want = reference[f]["shifted"].as_f64().unwrap();
+        assert!(
+            (psi(&moved) - want).abs() < 1e-9,
+            "{f}: {} against {want}",
+            psi(&moved)
+        );
+        assert_eq!(
+            psi(&same),
+            reference[f]["unshifted"].as_f64().unwrap(),
+            "{f}"
+        );
+    }
+    // The training data itself, scored with the model read back from its
+    // file (every value bit for bit): every index exactly 0, about 1 % far
+    // (the 99th percentile's definition), no warning.
+    assert!(same.features.iter().all(|f| f.psi == 0.0));
+    assert!(same.far_share <= 0.011, "{}", same.far_share);
+    assert!(same.warnings.is_empty(), "{:?}", same.warnings);
+    assert!(moved
+        .warnings
+        .iter()
+        .any(|w| w.contains("tenure_months") && w.contains("share_fresh")));
+    // And on the command line.
+    case.assort(
+        &[
+            "assign",
+            "out/segment_model.json",
+            "data/shifted.csv",
+            "--out",
+            "s.csv",
+        ],
+        &[],
+    )
+    .ok()
+    .stderr_has("warning: the data has moved since the segments were built");
+    let plain = case
+        .assort(
+            &[
+                "assign",
+                "out/segment_model.json",
+                "data/coop_members.csv",
+                "--out",
+                "p.csv",
+            ],
+            &[],
+        )
+        .ok();
+    assert!(!plain.stderr().contains("warning"), "{}", plain.stderr());
 }

@@ -14,6 +14,7 @@
 
 pub mod compare;
 pub mod criteria;
+pub mod drift;
 pub mod evidence;
 pub mod kmeans;
 pub mod matching;

@@ -40,6 +40,9 @@ pub struct Changes {
     /// The matching's total cost (squared centre distances, or members
     /// shared by matched pairs).
     pub cost: f64,
+    /// This run's data against last run's training data (models of format
+    /// 2 on).
+    pub drift: Option<crate::run::model::Drift>,
 }
 
 impl Changes {
@@ -118,6 +121,7 @@ impl Changes {
             features,
             segments,
             cost: m.cost,
+            drift: o.drift.clone(),
         })
     }
 
@@ -234,6 +238,9 @@ pub fn terminal(c: &Changes) -> String {
             parts.join(", ")
         );
     }
+    if let Some(d) = &c.drift {
+        s.push_str(&drift_lines(d));
+    }
     if c.segments
         .iter()
         .any(|ch| ch.status == "kept" && ch.means_then.is_none())
@@ -242,6 +249,31 @@ pub fn terminal(c: &Changes) -> String {
             s,
             "    (the previous model predates means in models; rerun last quarter's recipe to see them)"
         );
+    }
+    s
+}
+
+/// Lines on how far new data is from the training data: each feature's
+/// population stability index, the far share, and any warning.
+pub fn drift_lines(d: &crate::run::model::Drift) -> String {
+    let mut s = String::new();
+    let parts: Vec<String> = d
+        .features
+        .iter()
+        .map(|f| format!("{} {:.3} ({})", f.column, f.psi, f.reading))
+        .collect();
+    let _ = writeln!(
+        s,
+        "  data against the training data: population stability index {}",
+        parts.join(", ")
+    );
+    let _ = writeln!(
+        s,
+        "  {:.1} % of records are farther from every centre than 99 % of the training records were (about 1 % expected)",
+        100.0 * d.far_share
+    );
+    for w in &d.warnings {
+        let _ = writeln!(s, "  warning: {w}");
     }
     s
 }

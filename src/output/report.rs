@@ -425,6 +425,22 @@ fn changed(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
         }
         let _ = write!(h, "</table>\n");
     }
+    if let Some(d) = &c.drift {
+        let parts: Vec<String> = d
+            .features
+            .iter()
+            .map(|f| format!("{} {:.3} ({})", esc(&f.column), f.psi, f.reading))
+            .collect();
+        let _ = write!(
+            h,
+            "<p>Does this data still look like last run's? Population stability index of each feature (below 0.1 stable, 0.1 to 0.25 some shift, above 0.25 a major shift; a rule of thumb of the trade): {}. {:.1} % of the records are farther from every centre than 99 % of last run's records were (about 1 % is expected).</p>\n",
+            parts.join(", "),
+            100.0 * d.far_share
+        );
+        for w in &d.warnings {
+            let _ = write!(h, "<div class=\"caution\"><p>{}</p></div>\n", esc(w));
+        }
+    }
     let with_means: Vec<&super::changes::Change> = c
         .segments
         .iter()

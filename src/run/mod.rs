@@ -232,6 +232,8 @@ pub struct Outcome {
     /// run's, and last run's segments as the model recorded them.
     pub matching: Option<previous::Matching>,
     pub then: Option<previous::Then>,
+    /// With `previous`: this run's data against last run's training data.
+    pub drift: Option<model::Drift>,
 }
 
 /// Runs a plan.
@@ -553,6 +555,7 @@ pub fn run_with(
         &fit.labels,
         fit.centres.view(),
     )?;
+    let drift = last.as_ref().and_then(|l| l.drift(&prepared));
 
     Ok(Outcome {
         plan: plan.clone(),
@@ -576,6 +579,7 @@ pub fn run_with(
             order.iter().map(|&s| std::mem::take(&mut per[s])).collect()
         },
         then: last.as_ref().map(|l| l.then()),
+        drift,
         matching,
     })
 }

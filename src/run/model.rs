@@ -15,8 +15,8 @@ use super::error::RunError;
 use super::prepare::{self, CategoryParams, FeatureParams, BLANK_LEVEL};
 use super::{Assignment, Assignments, Outcome};
 use crate::check::probe::{is_blank, parse_number};
-use crate::engine::kmeans;
-use ndarray::Array2;
+use crate::engine::{drift, kmeans};
+use ndarray::{Array2, ArrayView2};
 use serde::{Deserialize, Serialize};
 
 pub const MODEL_FORMAT: &str = "assort-model/2";
@@ -37,6 +37,125 @@ pub struct SegmentModel {
     /// One row per segment, in the clustered space.
     pub centres: Vec<Vec<f64>>,
     pub segments: Vec<ModelSegment>,
+    /// The training data's distribution, to tell later whether new data
+    /// still looks like it (format 2 on).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub drift: Option<DriftReference>,
+}
+
+/// What the training data looked like, in the model's clustered space:
+/// each numeric feature's deciles and the nearest-centre distance that 99 %
+/// of training records were within (see [`crate::engine::drift`]).
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct DriftReference {
+    pub features: Vec<drift::Distribution>,
+    pub far_distance: f64,
+}
+
+/// New data measured against a model's [`DriftReference`].
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Drift {
+    /// Per numeric feature: its name, the population stability index and
+    /// its reading.
+    pub features: Vec<FeatureDrift>,
+    /// Share of records farther from every centre than 99 % of training
+    /// records were.
+    pub far_share: f64,
+    pub far_distance: f64,
+    /// Plain-words warnings, when a threshold is passed.
+    pub warnings: Vec<String>,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FeatureDrift {
+    pub column: String,
+    pub psi: f64,
+    pub reading: &'static str,
+}
+
+/// The far share above which the segments are said not to fit: five times
+/// the 1 % expected of data like the training data (our rule).
+pub const FAR_SHARE_WARNING: f64 = 0.05;
+
+/// The reference of a clustered matrix `x` (model space) and its centres.
+pub fn drift_reference(
+    x: ArrayView2<'_, f64>,
+    centres: ArrayView2<'_, f64>,
+    features: usize,
+) -> DriftReference {
+    let distributions = (0..features)
+        .filter_map(|f| drift::Distribution::of(&x.column(f).to_vec()))
+        .collect();
+    let distances: Vec<f64> = kmeans::nearest_with_margin(x, centres)
+        .into_iter()
+        .map(|(_, d, _)| d)
+        .collect();
+    DriftReference {
+        features: distributions,
+        far_distance: crate::engine::stats::quantile_sorted(
+            &crate::engine::stats::sorted(&distances),
+            drift::FAR_QUANTILE,
+        )
+        .unwrap_or(0.0),
+    }
+}
+
+/// Measures `x` (records in the model's clustered space) against the
+/// model's reference; `None` for models without one (format 1).
+pub fn measure_drift(model: &SegmentModel, x: ArrayView2<'_, f64>) -> Option<Drift> {
+    let reference = model.drift.as_ref()?;
+    if x.nrows() == 0 {
+        return None;
+    }
+    let width = x.ncols();
+    let k = model.centres.len();
+    let centres = Array2::from_shape_fn((k, width), |(s, f)| {
+        model.centres[s].get(f).copied().unwrap_or(0.0)
+    });
+    let features: Vec<FeatureDrift> = model
+        .features
+        .iter()
+        .zip(&reference.features)
+        .enumerate()
+        .map(|(f, (fp, d))| {
+            let psi = d.psi(&x.column(f).to_vec());
+            FeatureDrift {
+                column: fp.column.clone(),
+                psi,
+                reading: drift::reading(psi),
+            }
+        })
+        .collect();
+    let distances: Vec<f64> = kmeans::nearest_with_margin(x, centres.view())
+        .into_iter()
+        .map(|(_, d, _)| d)
+        .collect();
+    let far_share = drift::share_above(&distances, reference.far_distance);
+    let mut warnings = Vec::new();
+    let moved: Vec<String> = features
+        .iter()
+        .filter(|f| f.psi > drift::PSI_MAJOR_SHIFT)
+        .map(|f| format!("{} ({:.2})", f.column, f.psi))
+        .collect();
+    if !moved.is_empty() {
+        warnings.push(format!(
+            "the data has moved since the segments were built: a major shift in {} (population stability index above {}); the segments may no longer fit, so review them before acting on them",
+            moved.join(", "),
+            drift::PSI_MAJOR_SHIFT
+        ));
+    }
+    if far_share > FAR_SHARE_WARNING {
+        warnings.push(format!(
+            "{:.1} % of the records are farther from every segment's centre than 99 % of the training records were (about 1 % is expected); the segments may no longer fit these records",
+            100.0 * far_share
+        ));
+    }
+    Some(Drift {
+        features,
+        far_share,
+        far_distance: reference.far_distance,
+        warnings,
+    })
 }
 
 #[derive(Debug, Clone, Serialize, Deserialize)]
@@ -94,11 +213,16 @@ pub fn from_outcome(o: &Outcome, input_sha256: String) -> SegmentModel {
                 means: Some(p.features.iter().map(|f| f.mean).collect()),
             })
             .collect(),
+        drift: Some(drift_reference(
+            o.prepared.matrix.view(),
+            o.centres.view(),
+            o.prepared.features.len(),
+        )),
     }
 }
 
 /// Why a record was left unassigned, or what was done to it.
-#[derive(Debug, Clone, Default, PartialEq, Eq)]
+#[derive(Debug, Clone, Default, PartialEq)]
 pub struct ScoreSummary {
     pub records: usize,
     pub assigned: usize,
@@ -112,6 +236,8 @@ pub struct ScoreSummary {
     pub out_of_range: Vec<(String, usize)>,
     /// Category values not seen in training, by column (scored as no level).
     pub unseen_levels: Vec<(String, usize)>,
+    /// How far the records are from the training data (format 2 models).
+    pub drift: Option<Drift>,
 }
 
 /// Scores a table read with the model's columns (`numeric` in feature
@@ -193,6 +319,7 @@ pub fn score(model: &SegmentModel, table: &Table) -> (Assignments, ScoreSummary)
     let centres = Array2::from_shape_fn((k, width), |(s, f)| {
         model.centres[s].get(f).copied().unwrap_or(0.0)
     });
+    summary.drift = measure_drift(model, x.view());
     let nearest = kmeans::nearest_with_margin(x.view(), centres.view());
     let mut assignments = Assignments::with_capacity(kept.len());
     for (&r, (seg, distance, margin)) in kept.iter().zip(nearest) {

@@ -117,6 +117,46 @@ impl PreviousRun {
             .and_then(|s| s.label.clone())
     }
 
+    /// This run's records against last run's training data: each record
+    /// taken into the model's clustered space (features back to original
+    /// units, then prepared as the model prepares; category levels by
+    /// name), then measured ([`model::measure_drift`]).
+    pub fn drift(&self, prepared: &Prepared) -> Option<model::Drift> {
+        let m = &self.model;
+        let width = m.features.len() + m.categories.iter().map(|c| c.levels.len()).sum::<usize>();
+        let n = prepared.matrix.nrows();
+        let mut x = Array2::zeros((n, width));
+        for (f, theirs) in m.features.iter().enumerate() {
+            let at = prepared
+                .features
+                .iter()
+                .position(|o| o.column == theirs.column)?;
+            let ours = &prepared.features[at];
+            for i in 0..n {
+                let original = ours.to_original(prepared.matrix[[i, at]]);
+                x[[i, f]] = model::prepared_value(theirs, original).unwrap_or(0.0);
+            }
+        }
+        let mut offset = m.features.len();
+        for theirs in &m.categories {
+            if let Some(c) = prepared
+                .categories
+                .iter()
+                .position(|o| o.column == theirs.column)
+            {
+                let ours = &prepared.categories[c];
+                for (i, &code) in prepared.codes[c].iter().enumerate() {
+                    let level = &ours.levels[code];
+                    if let Some(l) = theirs.levels.iter().position(|t| t == level) {
+                        x[[i, offset + l]] = theirs.value;
+                    }
+                }
+            }
+            offset += theirs.levels.len();
+        }
+        model::measure_drift(m, x.view())
+    }
+
     /// Last run's segments, as the model recorded them.
     pub fn then(&self) -> Then {
         let records = self.model.provenance.records;
