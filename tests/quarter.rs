@@ -292,6 +292,28 @@ fn drift_matches_an_independent_computation_and_warns_only_when_shifted() {
         .warnings
         .iter()
         .any(|w| w.contains("tenure_months") && w.contains("share_fresh")));
+    // The far share, from a fixed snapshot of the demo's model, against
+    // numpy's count with the same model (tests/reference/drift.py).
+    let snapshot = case.path("snapshot.json");
+    std::fs::copy(
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/demo_model.json"),
+        &snapshot,
+    )
+    .unwrap();
+    for (data, which) in [
+        ("data/coop_members.csv", "unshifted"),
+        ("data/shifted.csv", "shifted"),
+    ] {
+        let model = assort::run::model::read_model(&snapshot).unwrap();
+        let table = assort::run::model::read_for_scoring(&case.path(data), data, &model).unwrap();
+        let d = assort::run::model::score(&model, &table).1.drift.unwrap();
+        let want = reference["far_share"][which].as_f64().unwrap();
+        assert!(
+            (d.far_share - want).abs() < 1e-12,
+            "{which}: {} against {want}",
+            d.far_share
+        );
+    }
     // And on the command line.
     case.assort(
         &[

@@ -149,6 +149,13 @@ mod tests {
     }
 
     #[test]
+    fn the_far_share_counts_strictly_beyond_the_limit() {
+        // Worked by hand: of 0.5, 1.0, 1.5 and 2.0, two lie beyond 1.0.
+        assert_eq!(share_above(&[0.5, 1.0, 1.5, 2.0], 1.0), 0.5);
+        assert_eq!(share_above(&[], 1.0), 0.0);
+    }
+
+    #[test]
     fn bins_are_right_closed() {
         assert_eq!(
             shares(&[1.0, 2.0], &[1.0, 1.5, 2.0, 3.0]),
