@@ -215,9 +215,12 @@ fn main() -> ExitCode {
         }
         Command::Compare { old, new, json } => {
             let read = |p: &Path| run::comparison::read_assignments(p, &shown(p));
-            match (read(&old), read(&new)) {
-                (Ok(a), Ok(b)) => {
-                    let c = run::comparison::compare(&shown(&old), &a, &shown(&new), &b);
+            let compared = read(&old).and_then(|a| {
+                let b = read(&new)?;
+                run::comparison::compare(&shown(&old), &a, &shown(&new), &b)
+            });
+            match compared {
+                Ok(c) => {
                     if json {
                         output::json::print(
                             &json!({"format": "assort-compare/1", "ok": true, "comparison": output::json::comparison(&c)}),
@@ -227,7 +230,7 @@ fn main() -> ExitCode {
                     }
                     ExitCode::SUCCESS
                 }
-                (Err(e), _) | (_, Err(e)) => {
+                Err(e) => {
                     if json {
                         output::json::print(
                             &json!({"format": "assort-compare/1", "ok": false, "error": output::json::error(&e)}),

@@ -1097,7 +1097,8 @@ fn compare_gives_the_reference_adjusted_rand_index() {
         .stdout_has("adjusted Rand index 0.3911 ");
     let read = |n: &str| assort::run::comparison::read_assignments(&case.path(n), n).unwrap();
     let c =
-        assort::run::comparison::compare("truth", &read("truth.csv"), "pred", &read("pred.csv"));
+        assort::run::comparison::compare("truth", &read("truth.csv"), "pred", &read("pred.csv"))
+            .unwrap();
     let expected = t["ari_truth_vs_pred"].as_f64().unwrap();
     assert!(
         (c.adjusted_rand_index - expected).abs() < 1e-12,

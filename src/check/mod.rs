@@ -251,6 +251,10 @@ fn explain_syntax(mut e: syntax::SyntaxError) -> syntax::SyntaxError {
 
 /// The largest k a recipe may ask for, and the widest sweep.
 pub const MAX_K: i64 = 1_000_000;
+/// The most restarts and rounds `kmeans` takes: far beyond any useful
+/// value, short of a run that would not end.
+const MOST_RESTARTS: usize = 10_000;
+const MOST_ROUNDS: usize = 100_000;
 /// The smallest sample `kmeans ... sample` takes.
 const SMALLEST_SAMPLE: i64 = 1_000;
 /// Records per segment a k-means sample must allow at the largest k.
@@ -281,6 +285,15 @@ struct Checker {
     /// Every file the recipe reads (real path, span), so no output can
     /// overwrite one.
     reads: Vec<(PathBuf, Span)>,
+}
+
+/// `text` cut to at most `max` characters, with `…` when cut: data can put
+/// megabytes in one field, and a message should not repeat them.
+pub fn clipped(text: &str, max: usize) -> String {
+    match text.char_indices().nth(max) {
+        Some((at, _)) => format!("{}…", &text[..at]),
+        None => text.to_string(),
+    }
 }
 
 /// The span of the last non-blank character of the text.
@@ -471,8 +484,58 @@ impl Checker {
         let resolved = self.read_path(path)?;
         self.input_file = path.node.clone();
         let separator = separator?;
-        match probe::probe(&resolved, separator as u8) {
-            Ok(p) => self.probe = Some(p),
+        let probed = probe::probe(&resolved, separator as u8);
+        if let (Err(ProbeError::Malformed { .. }), Some(sep)) =
+            (&probed, probe::header_separator(&resolved, separator))
+        {
+            // Fields of unequal count under a header with another common
+            // separator in it (decimal commas, say): name the separator.
+            let shown = if sep == '\t' {
+                "\\t".to_string()
+            } else {
+                sep.to_string()
+            };
+            self.err(CheckError::FileUnreadable {
+                path: path.node.clone(),
+                reason: format!("its header line is separated by `{shown}`, not `{separator}`"),
+                span: path.span,
+                help: format!("add `separator \"{shown}\"` to the `input` statement"),
+            });
+            return None;
+        }
+        match probed {
+            Ok(p) => {
+                if let Some(sep) = p.likely_separator().filter(|&c| c != separator) {
+                    let shown = if sep == '\t' {
+                        "\\t".to_string()
+                    } else {
+                        sep.to_string()
+                    };
+                    self.err(CheckError::FileUnreadable {
+                        path: path.node.clone(),
+                        reason: format!(
+                            "its header is one column, `{}`: the fields seem separated by `{shown}`, not `{separator}`",
+                            clipped(&p.columns[0].name, 60)
+                        ),
+                        span: path.span,
+                        help: format!("add `separator \"{shown}\"` to the `input` statement"),
+                    });
+                    return None;
+                }
+                if let Some((name, a, b)) = p.repeated_name() {
+                    self.err(CheckError::FileUnreadable {
+                        path: path.node.clone(),
+                        reason: format!(
+                            "its header names `{}` twice (fields {a} and {b}), so a recipe cannot say which is meant",
+                            clipped(name, 60)
+                        ),
+                        span: path.span,
+                        help: "rename one of the two columns in the data file".into(),
+                    });
+                    return None;
+                }
+                self.probe = Some(p)
+            }
             Err(e) => {
                 self.file_problem(path, &e);
                 return None;
@@ -724,7 +787,7 @@ impl Checker {
                                 line: info.text_line.unwrap_or(0),
                                 column: at + 1,
                                 name: info.name.clone(),
-                                found: info.text_example.clone().unwrap_or_default(),
+                                found: clipped(&info.text_example.clone().unwrap_or_default(), 60),
                                 span: col.span,
                             });
                             ok = false;
@@ -732,7 +795,7 @@ impl Checker {
                         Some(info) if info.kind == ColumnKind::Text => {
                             self.err(CheckError::TextFeature {
                                 column: col.node.clone(),
-                                example: info.text_example.unwrap_or_default(),
+                                example: clipped(&info.text_example.unwrap_or_default(), 60),
                                 span: col.span,
                             });
                             ok = false;
@@ -1150,6 +1213,39 @@ impl Checker {
                         return None;
                     }
                 }
+                let rows = self.probe.as_ref().and_then(|p| p.rows);
+                if let Some(n) = rows.filter(|&n| m > n) {
+                    self.err(CheckError::ImpossibleK {
+                        reason: format!("{m} micro-segments from {n} records"),
+                        span: o.value.span,
+                        help: format!("each micro-segment needs a record of its own; with {n} records, a tree over every record (no `micro`) is the better route"),
+                    });
+                    return None;
+                }
+                // The tree is built over the micro-segments, so they are
+                // held to the linkage's limit like records are.
+                if let Some((l, _)) = linkage {
+                    let limit = TreeLimit::of(l);
+                    if m > limit.records {
+                        let why = limit
+                            .reason(m, l.name())
+                            .replace("every record", "every micro-segment");
+                        self.bad_value(
+                            "micro",
+                            &o.value.node,
+                            &format!(
+                                "at most {} for `{}` linkage",
+                                crate::text::thousands(limit.records),
+                                l.name()
+                            ),
+                            o.value.span,
+                            &format!(
+                                "{why}; a few hundred to a few thousand micro-segments are usual"
+                            ),
+                        );
+                        return None;
+                    }
+                }
                 Some(MicroPlan {
                     segments: m,
                     restarts: defaults::MICRO_RESTARTS,
@@ -1183,8 +1279,12 @@ impl Checker {
         };
         let opts = self.options("kmeans", options, vocab::KMEANS_OPTIONS);
         let ks = self.required_ks("kmeans", &opts, s.span);
-        let restarts = self.whole_option(&opts, "restarts", 1, defaults::RESTARTS);
-        let rounds = self.whole_option(&opts, "rounds", 1, defaults::ROUNDS);
+        let restarts = self
+            .whole_option(&opts, "restarts", 1, defaults::RESTARTS)
+            .and_then(|r| self.at_most(&opts, "restarts", r, MOST_RESTARTS, "each restart is a whole k-means fit; 10 to 100 restarts find the best partition in practice"));
+        let rounds = self
+            .whole_option(&opts, "rounds", 1, defaults::ROUNDS)
+            .and_then(|r| self.at_most(&opts, "rounds", r, MOST_ROUNDS, "k-means converges in tens to hundreds of rounds; a cap this high only hides a run that does not converge"));
         let sample = match opts.get("sample") {
             None => Some(None),
             Some(o) => match self.whole_option(&opts, "sample", SMALLEST_SAMPLE, 200_000) {
@@ -1764,6 +1864,31 @@ impl Checker {
             out.insert(doc.name, o);
         }
         out
+    }
+
+    /// `value` of option `name` when it is at most `most`; else an error
+    /// at the option's value, with `why` as help.
+    fn at_most(
+        &mut self,
+        opts: &HashMap<&'static str, &OptionPair>,
+        name: &str,
+        value: usize,
+        most: usize,
+        why: &str,
+    ) -> Option<usize> {
+        if value <= most {
+            return Some(value);
+        }
+        if let Some(o) = opts.get(name) {
+            self.bad_value(
+                name,
+                &o.value.node,
+                &format!("a whole number up to {}", crate::text::thousands(most)),
+                o.value.span,
+                why,
+            );
+        }
+        None
     }
 
     fn whole_option(

@@ -66,6 +66,28 @@ impl Probe {
         self.columns.iter().find(|c| c.name == name)
     }
 
+    /// The first header name given to two columns: the name and the two
+    /// 1-based field numbers.
+    pub fn repeated_name(&self) -> Option<(&str, usize, usize)> {
+        self.columns.iter().enumerate().find_map(|(j, c)| {
+            let first = self.columns[..j]
+                .iter()
+                .position(|e| !c.name.is_empty() && e.name == c.name)?;
+            Some((c.name.as_str(), first + 1, j + 1))
+        })
+    }
+
+    /// When the header is one column whose name holds another common
+    /// separator, that separator: the file is likely separated by it.
+    pub fn likely_separator(&self) -> Option<char> {
+        match self.columns.as_slice() {
+            [only] => [';', '\t', '|']
+                .into_iter()
+                .find(|&c| only.name.contains(c)),
+            _ => None,
+        }
+    }
+
     pub fn names(&self) -> impl Iterator<Item = &str> {
         self.columns.iter().map(|c| c.name.as_str())
     }
@@ -82,6 +104,22 @@ pub enum ProbeError {
         reason: String,
     },
     NoHeader,
+}
+
+/// When the file's first line does not hold `separator` but does hold
+/// another common one (`;`, tab, `|`), that one.
+pub fn header_separator(path: &Path, separator: char) -> Option<char> {
+    use std::io::{BufRead, Read};
+    let file = File::open(path).ok()?;
+    let mut line = String::new();
+    // The first 64 KiB are enough for any header.
+    std::io::BufReader::new(file.take(64 * 1024))
+        .read_line(&mut line)
+        .ok()?;
+    if line.contains(separator) {
+        return None;
+    }
+    [';', '\t', '|'].into_iter().find(|&c| line.contains(c))
 }
 
 /// Whether a field counts as missing: blank after trimming.

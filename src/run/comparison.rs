@@ -44,10 +44,29 @@ pub fn read_assignments(path: &std::path::Path, shown: &str) -> Result<Vec<Assig
             file: shown.to_string(),
         })?;
     let label = opened.position("label");
+    let key_name = opened.header.get(0).unwrap_or("").trim().to_string();
     let mut reader = opened.reader;
     let mut out = Vec::new();
+    // First line of each key, to refuse a key given twice (it would be
+    // counted twice in every table).
+    let mut seen: HashMap<String, u64> = HashMap::new();
     let mut record = csv::StringRecord::new();
     while reader.read_record(&mut record).map_err(malformed)? {
+        let line = record.position().map_or(0, |p| p.line());
+        let key = record.get(0).unwrap_or("").trim();
+        if let Some(&first_line) = seen.get(key) {
+            return Err(RunError::DuplicateKey {
+                place: super::error::Place {
+                    file: shown.to_string(),
+                    line,
+                    column: 1,
+                    name: key_name,
+                },
+                key: crate::check::clipped(key, 60),
+                first_line,
+            });
+        }
+        seen.insert(key.to_string(), line);
         out.push(Assigned {
             key: record.get(0).unwrap_or("").trim().to_string(),
             segment: record.get(seg).unwrap_or("").trim().to_string(),
@@ -73,8 +92,14 @@ pub fn from_run(assignments: &Assignments, label: impl Fn(usize) -> String) -> V
         .collect()
 }
 
-/// Joins two segmentations on the key and compares them.
-pub fn compare(old_name: &str, old: &[Assigned], new_name: &str, new: &[Assigned]) -> Comparison {
+/// Joins two segmentations on the key and compares them. Two files with
+/// no key in common have nothing to compare: an error naming a key of each.
+pub fn compare(
+    old_name: &str,
+    old: &[Assigned],
+    new_name: &str,
+    new: &[Assigned],
+) -> Result<Comparison, RunError> {
     let new_by_key: HashMap<&str, &Assigned> = new.iter().map(|a| (a.key.as_str(), a)).collect();
     let mut a = Vec::new();
     let mut b = Vec::new();
@@ -85,6 +110,18 @@ pub fn compare(old_name: &str, old: &[Assigned], new_name: &str, new: &[Assigned
         }
     }
     let both = a.len();
+    if both == 0 {
+        let example = |v: &[Assigned]| {
+            v.first()
+                .map_or("(none)".to_string(), |x| crate::check::clipped(&x.key, 40))
+        };
+        return Err(RunError::NothingInCommon {
+            old: old_name.to_string(),
+            new: new_name.to_string(),
+            old_key: example(old),
+            new_key: example(new),
+        });
+    }
     let old_keys: std::collections::HashSet<&str> = old.iter().map(|o| o.key.as_str()).collect();
     let only_new = new
         .iter()
@@ -97,7 +134,7 @@ pub fn compare(old_name: &str, old: &[Assigned], new_name: &str, new: &[Assigned
             .map(|x| (x.segment.clone(), x.label.clone()))
             .collect()
     };
-    Comparison {
+    Ok(Comparison {
         old_name: old_name.to_string(),
         new_name: new_name.to_string(),
         both,
@@ -108,5 +145,5 @@ pub fn compare(old_name: &str, old: &[Assigned], new_name: &str, new: &[Assigned
         migration,
         old_labels: labels(old),
         new_labels: labels(new),
-    }
+    })
 }

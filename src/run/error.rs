@@ -162,6 +162,25 @@ pub enum RunError {
     )]
     NotAssignments { file: String },
 
+    #[error("`{old}` and `{new}` have no key in common, so there is nothing to compare")]
+    #[diagnostic(
+        code(assort::run::nothing_in_common),
+        help("the first keys are `{old_key}` and `{new_key}`: compare assignments of the same records, keyed by the same column")
+    )]
+    NothingInCommon {
+        old: String,
+        new: String,
+        old_key: String,
+        new_key: String,
+    },
+
+    #[error("`{column}` holds values too large to scale (up to {biggest:e}): the sums overflow")]
+    #[diagnostic(
+        code(assort::run::too_large_to_scale),
+        help("check the column for corrupt values; if they are real, `reshape {column} log1p` or `clip 0..0.99` brings them within range")
+    )]
+    TooLargeToScale { column: String, biggest: f64 },
+
     #[error("labels would move to other segments, {moves}")]
     #[diagnostic(code(assort::run::labels_moved), help("{help}"))]
     LabelsMoved { moves: String, help: String },

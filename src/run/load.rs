@@ -139,6 +139,26 @@ impl Opened {
             .delimiter(separator as u8)
             .from_reader(std::io::BufReader::new(file));
         let header = reader.headers().map_err(|e| malformed(shown, &e))?.clone();
+        // A name given twice would silently mean its first column.
+        for (j, h) in header.iter().enumerate() {
+            let h = h.trim();
+            if let Some(first) = header
+                .iter()
+                .take(j)
+                .position(|e| !h.is_empty() && e.trim() == h)
+            {
+                return Err(RunError::Malformed {
+                    file: shown.to_string(),
+                    line: 1,
+                    reason: format!(
+                        "the header names `{}` twice (fields {} and {}); rename one of them",
+                        crate::check::clipped(h, 60),
+                        first + 1,
+                        j + 1
+                    ),
+                });
+            }
+        }
         Ok(Opened { reader, header })
     }
 
@@ -318,7 +338,7 @@ impl Decoder<'_> {
             missing[f] = false;
             values[f] = parse_number(text).ok_or_else(|| RunError::NotANumber {
                 place: place(at),
-                found: text.trim().to_string(),
+                found: crate::check::clipped(text.trim(), 60),
                 help: number_help(text).to_string(),
             })?;
         }

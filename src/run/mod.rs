@@ -536,13 +536,13 @@ pub fn run_with(
         Some(c) => {
             let old = comparison::read_assignments(&c.resolved, &c.path)?;
             let new = comparison::from_run(&assignments, |s| label_of(s).unwrap_or_default());
-            Some(comparison::compare(&c.path, &old, "this run", &new))
+            Some(comparison::compare(&c.path, &old, "this run", &new)?)
         }
         // Last run's assignments, given with `previous`, show the migration.
         None => match last.as_ref().and_then(|l| l.assignments.as_ref()) {
             Some((path, old)) => {
                 let new = comparison::from_run(&assignments, |s| label_of(s).unwrap_or_default());
-                Some(comparison::compare(path, old, "this run", &new))
+                Some(comparison::compare(path, old, "this run", &new)?)
             }
             None => None,
         },

@@ -459,7 +459,96 @@ pub fn read_model(path: &std::path::Path) -> Result<SegmentModel, RunError> {
             reason: "its centres do not match its columns".into(),
         });
     }
+    if let Some(reason) = inconsistency(&model) {
+        return Err(RunError::BadModel {
+            file: shown,
+            reason,
+        });
+    }
     Ok(model)
+}
+
+/// The first value in a model that no run could have written (a model is
+/// JSON, and may have been edited by hand): every number finite, divisors
+/// and weights positive, clip bounds in order, category levels sorted and
+/// distinct, one centre per segment, segment numbers distinct and from 1,
+/// the drift reference shaped like the features.
+fn inconsistency(m: &SegmentModel) -> Option<String> {
+    for f in &m.features {
+        let col = &f.column;
+        let finite = [f.centre, f.divisor, f.multiplier]
+            .into_iter()
+            .chain(f.fill)
+            .chain(f.clip.map(|c| c.0))
+            .chain(f.clip.map(|c| c.1))
+            .all(f64::is_finite);
+        if !finite {
+            return Some(format!(
+                "feature `{col}` holds a value that is not a finite number"
+            ));
+        }
+        if f.divisor <= 0.0 || f.multiplier <= 0.0 {
+            return Some(format!(
+                "feature `{col}` has divisor {} and multiplier {}; both must be above 0",
+                f.divisor, f.multiplier
+            ));
+        }
+        if f.clip.is_some_and(|(a, b)| a > b) {
+            return Some(format!(
+                "feature `{col}` has clip bounds in the wrong order"
+            ));
+        }
+    }
+    for c in &m.categories {
+        if !(c.value.is_finite() && c.value > 0.0) {
+            return Some(format!(
+                "category `{}` has weight value {}; it must be above 0",
+                c.column, c.value
+            ));
+        }
+        if c.levels.windows(2).any(|w| w[0] >= w[1]) {
+            return Some(format!(
+                "category `{}` lists its levels out of order or twice",
+                c.column
+            ));
+        }
+    }
+    if let Some(v) = m
+        .centres
+        .iter()
+        .flatten()
+        .find(|v| !v.is_finite() || v.abs() > 1e150)
+    {
+        return Some(format!(
+            "a centre holds {v:e}, which no prepared record could be near"
+        ));
+    }
+    if m.segments.len() != m.centres.len() {
+        return Some(format!(
+            "it has {} centres for {} segments",
+            m.centres.len(),
+            m.segments.len()
+        ));
+    }
+    let mut numbers: Vec<usize> = m.segments.iter().map(|s| s.segment).collect();
+    numbers.sort_unstable();
+    if numbers.first() == Some(&0) || numbers.windows(2).any(|w| w[0] == w[1]) {
+        return Some("its segment numbers must be distinct and start from 1".into());
+    }
+    if let Some(d) = &m.drift {
+        let shaped = d.features.len() == m.features.len()
+            && d.far_distance.is_finite()
+            && d.far_distance >= 0.0
+            && d.features.iter().all(|x| {
+                x.shares.len() == x.edges.len() + 1
+                    && x.edges.windows(2).all(|w| w[0] < w[1])
+                    && x.shares.iter().all(|s| s.is_finite() && *s >= 0.0)
+            });
+        if !shaped {
+            return Some("its record of the training data's distribution is damaged".into());
+        }
+    }
+    None
 }
 
 /// The model as the bytes of its file.

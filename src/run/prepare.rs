@@ -220,6 +220,17 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
                 (*x - centre) / divisor * m
             }
         });
+        // Values near the largest a number can hold (1e308) overflow the
+        // sums of scaling; they would flatten the feature without a word.
+        if !(centre.is_finite() && divisor.is_finite()) || v.iter().any(|x| !x.is_finite()) {
+            let biggest = original(table, &kept, f, params[f].fill)
+                .into_iter()
+                .fold(0.0f64, |a, x| a.max(x.abs()));
+            return Err(RunError::TooLargeToScale {
+                column: fp.column.clone(),
+                biggest,
+            });
+        }
         params[f].centre = centre;
         params[f].divisor = divisor;
         params[f].constant = constant;

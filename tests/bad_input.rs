@@ -1,0 +1,184 @@
+//! Bad input, each case named: a clear message naming the file (and line
+//! or option), a non-zero exit, and no output written. Cases found by
+//! trying the tool as a hostile but realistic user would.
+
+mod common;
+
+use common::case::Case;
+
+const RECIPE: &str = "r.assort";
+
+fn data(rows: &[&str]) -> String {
+    let mut s = String::from("id,a,b\n");
+    for r in rows {
+        s.push_str(r);
+        s.push('\n');
+    }
+    s
+}
+
+/// Twelve ordinary records in two groups.
+fn ordinary() -> Vec<String> {
+    (0..12)
+        .map(|i| format!("k{i},{},{}", (i % 2) * 5 + i / 6, (i % 3) as f64 * 0.5))
+        .collect()
+}
+
+fn case_with(data_text: &str, body: &str) -> Case {
+    let case = Case::empty();
+    case.write("d.csv", data_text).write(
+        RECIPE,
+        &format!("input \"d.csv\" key id\n{body}\nsave assignments \"out/a.csv\"\n"),
+    );
+    case
+}
+
+fn nothing_written(case: &Case) {
+    assert!(!case.path("out").exists(), "an output was written");
+}
+
+#[test]
+fn a_header_naming_a_column_twice_is_refused() {
+    let rows = ordinary();
+    let text =
+        data(&rows.iter().map(String::as_str).collect::<Vec<_>>()).replacen("id,a,b", "id,a,a", 1);
+    let case = case_with(&text, "features a\nkmeans k 2");
+    case.assort(&["check", RECIPE], &[])
+        .fails()
+        .stderr_has("its header names `a` twice (fields 2 and 3)");
+    nothing_written(&case);
+}
+
+#[test]
+fn a_semicolon_file_read_with_commas_gets_the_separator_suggestion() {
+    // With decimal commas the field counts disagree first.
+    let case = case_with("id;a;b\nk1;1,5;2\nk2;3,5;4\n", "features a, b\nkmeans k 2");
+    case.assort(&["check", RECIPE], &[])
+        .fails()
+        .stderr_has("its header line is separated by `;`, not `,`")
+        .stderr_has("separator \";\"");
+    // Without them every line is one field.
+    let case = case_with("id;a;b\nk1;1.5;2\nk2;3.5;4\n", "features a, b\nkmeans k 2");
+    case.assort(&["check", RECIPE], &[])
+        .fails()
+        .stderr_has("its header is one column, `id;a;b`")
+        .stderr_has("separator \";\"");
+}
+
+#[test]
+fn values_too_large_to_scale_stop_the_run_instead_of_flattening_the_feature() {
+    let mut rows = ordinary();
+    rows[3] = "k3,1e308,0.5".into();
+    rows[4] = "k4,-1e308,0.5".into();
+    let case = case_with(
+        &data(&rows.iter().map(String::as_str).collect::<Vec<_>>()),
+        "features a, b\nkmeans k 2",
+    );
+    case.run(RECIPE)
+        .fails()
+        .stderr_has("`a` holds values too large to scale");
+    nothing_written(&case);
+}
+
+#[test]
+fn absurd_restarts_rounds_and_micro_segments_are_refused_at_check() {
+    let rows = ordinary();
+    let text = data(&rows.iter().map(String::as_str).collect::<Vec<_>>());
+    case_with(&text, "features a, b\nkmeans k 2 restarts 1000000000")
+        .assort(&["check", RECIPE], &[])
+        .fails()
+        .stderr_has("expected a whole number up to 10,000");
+    case_with(&text, "features a, b\nkmeans k 2 rounds 1000000000")
+        .assort(&["check", RECIPE], &[])
+        .fails()
+        .stderr_has("expected a whole number up to 100,000");
+    // More micro-segments than records: refused before the run, by name.
+    case_with(&text, "features a, b\ntree linkage ward k 2 micro 50")
+        .assort(&["check", RECIPE], &[])
+        .fails()
+        .stderr_has("50 micro-segments from 12 records");
+    // Micro-segments beyond what the linkage's matrix can hold.
+    let many: Vec<String> = (0..25_000)
+        .map(|i| format!("k{i},{},{}", i % 7, i % 3))
+        .collect();
+    let text = data(&many.iter().map(String::as_str).collect::<Vec<_>>());
+    case_with(&text, "features a, b\ntree linkage average k 2 micro 24000")
+        .assort(&["check", RECIPE], &[])
+        .fails()
+        .stderr_has("expected at most 23,170 for `average` linkage");
+}
+
+#[test]
+fn a_huge_field_is_not_echoed_whole() {
+    let mut rows = ordinary();
+    let huge = format!("k5,{},1", "x".repeat(200_000));
+    rows[5] = huge;
+    // Past the checked sample it reaches the run's reader; within it, the
+    // checker: both must clip it.
+    let text = data(&rows.iter().map(String::as_str).collect::<Vec<_>>());
+    let case = case_with(&text, "features a, b\nkmeans k 2");
+    let out = case.assort(&["check", RECIPE], &[]).fails();
+    assert!(
+        out.stderr().len() < 4_000,
+        "{} bytes of message",
+        out.stderr().len()
+    );
+    assert!(out.stderr().contains("xxx…"));
+}
+
+fn edited_model(case: &Case, edit: impl Fn(&mut serde_json::Value)) {
+    let mut m: serde_json::Value = serde_json::from_str(&case.read("out/m.json")).unwrap();
+    edit(&mut m);
+    case.write("edited.json", &serde_json::to_string(&m).unwrap());
+}
+
+#[test]
+fn a_hand_edited_model_is_refused_with_what_is_wrong() {
+    let rows = ordinary();
+    let case = case_with(
+        &data(&rows.iter().map(String::as_str).collect::<Vec<_>>()),
+        "features a, b\nkmeans k 2\nsave model \"out/m.json\"",
+    );
+    case.run(RECIPE).ok();
+    type Edit = fn(&mut serde_json::Value);
+    let cases: [(&str, Edit); 4] = [
+        ("divisor 0", |m| m["features"][0]["divisor"] = 0.0.into()),
+        ("a centre holds 1e308", |m| {
+            m["centres"][0][0] = 1e308.into()
+        }),
+        ("3 centres for 2 segments", |m| {
+            let extra = m["centres"][0].clone();
+            m["centres"].as_array_mut().unwrap().push(extra);
+        }),
+        ("segment numbers must be distinct", |m| {
+            m["segments"][1]["segment"] = 1.into()
+        }),
+    ];
+    for (says, edit) in cases {
+        edited_model(&case, edit);
+        case.assort(
+            &["assign", "edited.json", "d.csv", "--out", "scored.csv"],
+            &[],
+        )
+        .fails()
+        .stderr_has("is not a segment model assort can read")
+        .stderr_has(says);
+        assert!(!case.path("scored.csv").exists());
+    }
+}
+
+#[test]
+fn comparing_files_without_a_key_in_common_or_with_a_key_twice_is_refused() {
+    let case = Case::empty();
+    case.write("old.csv", "id,segment\na1,1\na2,2\n")
+        .write("new.csv", "id,segment\nb1,1\nb2,2\n")
+        .write("dup.csv", "id,segment\na1,1\na2,2\na1,2\n");
+    case.assort(&["compare", "old.csv", "new.csv"], &[])
+        .fails()
+        .stderr_has("have no key in common")
+        .stderr_has("`a1` and `b1`");
+    case.assort(&["compare", "dup.csv", "old.csv"], &[])
+        .fails()
+        .stderr_has("a1")
+        .stderr_has("line 4");
+}
