@@ -296,6 +296,15 @@ pub fn clipped(text: &str, max: usize) -> String {
     }
 }
 
+/// A separator as a recipe writes it (a tab as `\t`).
+fn shown_separator(sep: char) -> String {
+    if sep == '\t' {
+        "\\t".to_string()
+    } else {
+        sep.to_string()
+    }
+}
+
 /// The span of the last non-blank character of the text.
 fn end_span(text: &str) -> Span {
     let t = text.trim_end();
@@ -490,36 +499,25 @@ impl Checker {
         {
             // Fields of unequal count under a header with another common
             // separator in it (decimal commas, say): name the separator.
-            let shown = if sep == '\t' {
-                "\\t".to_string()
-            } else {
-                sep.to_string()
-            };
-            self.err(CheckError::FileUnreadable {
-                path: path.node.clone(),
-                reason: format!("its header line is separated by `{shown}`, not `{separator}`"),
-                span: path.span,
-                help: format!("add `separator \"{shown}\"` to the `input` statement"),
-            });
+            self.wrong_separator(
+                path,
+                sep,
+                format!(
+                    "its header line is separated by `{}`, not `{separator}`",
+                    shown_separator(sep)
+                ),
+            );
             return None;
         }
         match probed {
             Ok(p) => {
                 if let Some(sep) = p.likely_separator().filter(|&c| c != separator) {
-                    let shown = if sep == '\t' {
-                        "\\t".to_string()
-                    } else {
-                        sep.to_string()
-                    };
-                    self.err(CheckError::FileUnreadable {
-                        path: path.node.clone(),
-                        reason: format!(
-                            "its header is one column, `{}`: the fields seem separated by `{shown}`, not `{separator}`",
-                            clipped(&p.columns[0].name, 60)
-                        ),
-                        span: path.span,
-                        help: format!("add `separator \"{shown}\"` to the `input` statement"),
-                    });
+                    let reason = format!(
+                        "its header is one column, `{}`: the fields seem separated by `{}`, not `{separator}`",
+                        clipped(&p.columns[0].name, 60),
+                        shown_separator(sep)
+                    );
+                    self.wrong_separator(path, sep, reason);
                     return None;
                 }
                 if let Some((name, a, b)) = p.repeated_name() {
@@ -552,6 +550,19 @@ impl Checker {
             },
             key_span: key.span,
         })
+    }
+
+    /// The input seems separated by `sep`, not the separator in use.
+    fn wrong_separator(&mut self, path: &Spanned<String>, sep: char, reason: String) {
+        self.err(CheckError::FileUnreadable {
+            path: path.node.clone(),
+            reason,
+            span: path.span,
+            help: format!(
+                "add `separator \"{}\"` to the `input` statement",
+                shown_separator(sep)
+            ),
+        });
     }
 
     fn file_problem(&mut self, path: &Spanned<String>, e: &ProbeError) {
