@@ -159,13 +159,27 @@ fn main() -> ExitCode {
                     }
                     ExitCode::FAILURE
                 };
+                // One run of a recipe at a time; a set a killed run left
+                // half-written is rolled back first.
+                let _lock = match output::set::RunLock::take(&source.path) {
+                    Ok(l) => l,
+                    Err(e) => return fail(&e),
+                };
+                let journal = output::set::journal_path(&source.path);
+                match output::set::recover(&journal) {
+                    Ok(true) if !recipe.quiet && !recipe.json => eprintln!(
+                        "note: an earlier run of this recipe was interrupted while writing; its outputs were put back as they were before it"
+                    ),
+                    Ok(_) => {}
+                    Err(e) => return fail(&e),
+                }
                 let progress = Progress::new(recipe.quiet || recipe.json);
                 let (outcome, files, _) = match run_and_render(source, plan, &progress) {
                     Ok(x) => x,
                     Err(e) => return fail(&e),
                 };
                 progress.finish();
-                if let Err(e) = output::files::write_all(&files) {
+                if let Err(e) = output::files::write_all_journalled(&files, &journal) {
                     return fail(&e);
                 }
                 let written: Vec<String> = files.iter().map(|f| shown(&f.path)).collect();

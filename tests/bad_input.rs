@@ -182,3 +182,48 @@ fn comparing_files_without_a_key_in_common_or_with_a_key_twice_is_refused() {
         .stderr_has("a1")
         .stderr_has("line 4");
 }
+
+#[test]
+fn a_second_run_while_another_holds_the_recipe_is_refused_and_writes_nothing() {
+    let rows = ordinary();
+    let case = case_with(
+        &data(&rows.iter().map(String::as_str).collect::<Vec<_>>()),
+        "features a, b\nkmeans k 2",
+    );
+    // Another run of the recipe, as the kernel sees it: a lock on the file.
+    let held = std::fs::File::open(case.path(RECIPE)).unwrap();
+    held.lock().unwrap();
+    case.run(RECIPE)
+        .fails()
+        .stderr_has("another run of this recipe is writing its outputs");
+    nothing_written(&case);
+    held.unlock().unwrap();
+    case.run(RECIPE).ok();
+}
+
+#[test]
+fn a_set_left_half_written_by_a_killed_run_is_put_back_first() {
+    let rows = ordinary();
+    let case = case_with(
+        &data(&rows.iter().map(String::as_str).collect::<Vec<_>>()),
+        "features a, b\nkmeans k 2",
+    );
+    case.run(RECIPE).ok();
+    let good = case.read("out/a.csv");
+    // What a run killed between its renames leaves: a new file in place,
+    // the old one in its backup, the journal listing both.
+    std::fs::rename(case.path("out/a.csv"), case.path("out/a.csv.99.old-assort")).unwrap();
+    case.write("out/a.csv", "half-written");
+    let journal = serde_json::json!([{
+        "target": case.path("out/a.csv"),
+        "temp": case.path("out/a.csv.99.tmp-assort"),
+        "backup": case.path("out/a.csv.99.old-assort"),
+    }]);
+    case.write(".r.assort.assort-journal", &journal.to_string());
+    case.run(RECIPE)
+        .ok()
+        .stderr_has("an earlier run of this recipe was interrupted while writing");
+    assert_eq!(case.read("out/a.csv"), good);
+    assert!(!case.path(".r.assort.assort-journal").exists());
+    assert!(!case.path("out/a.csv.99.old-assort").exists());
+}

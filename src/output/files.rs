@@ -362,43 +362,22 @@ fn profiles_json(o: &Outcome) -> Vec<u8> {
     bytes
 }
 
-/// Writes every file to a temporary sibling, then renames them all into
-/// place. On any failure the temporaries are removed and no target is
-/// touched (renames happen only once every temporary is complete).
+/// Writes `files` as one set (see [`super::set`]), journalled beside the
+/// first file; for commands that write outside a recipe's run.
 pub fn write_all(files: &[Rendered]) -> Result<(), RunError> {
-    let mut temps: Vec<PathBuf> = Vec::new();
-    let fail = |temps: &[PathBuf], path: &str, e: std::io::Error| {
-        for t in temps {
-            let _ = std::fs::remove_file(t);
-        }
-        RunError::Write {
-            path: path.to_string(),
-            reason: e.to_string(),
-        }
+    let Some(first) = files.first() else {
+        return Ok(());
     };
-    for f in files {
-        if let Some(dir) = f.path.parent() {
-            if !dir.as_os_str().is_empty() {
-                std::fs::create_dir_all(dir).map_err(|e| fail(&temps, &f.shown, e))?;
-            }
-        }
-        let tmp = temp_path(&f.path);
-        std::fs::write(&tmp, &f.bytes).map_err(|e| fail(&temps, &f.shown, e))?;
-        temps.push(tmp);
-    }
-    for (f, tmp) in files.iter().zip(&temps) {
-        std::fs::rename(tmp, &f.path).map_err(|e| fail(&temps, &f.shown, e))?;
-    }
-    Ok(())
+    write_all_journalled(files, &super::set::journal_path(&first.path))
 }
 
-fn temp_path(target: &Path) -> PathBuf {
-    let mut name = target
-        .file_name()
-        .map(|n| n.to_os_string())
-        .unwrap_or_default();
-    name.push(format!(".{}.tmp-assort", std::process::id()));
-    target.with_file_name(name)
+/// Writes `files` as one set, journalled at `journal`.
+pub fn write_all_journalled(files: &[Rendered], journal: &Path) -> Result<(), RunError> {
+    let set: Vec<(&Path, &str, &[u8])> = files
+        .iter()
+        .map(|f| (f.path.as_path(), f.shown.as_str(), f.bytes.as_slice()))
+        .collect();
+    super::set::write_set(&set, journal)
 }
 
 #[cfg(test)]

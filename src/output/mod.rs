@@ -10,6 +10,7 @@ pub mod files;
 pub mod json;
 pub mod record;
 pub mod report;
+pub mod set;
 pub mod tables;
 
 /// A number in about four significant digits, for tables.

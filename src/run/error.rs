@@ -185,10 +185,19 @@ pub enum RunError {
     #[diagnostic(code(assort::run::labels_moved), help("{help}"))]
     LabelsMoved { moves: String, help: String },
 
+    #[error("cannot run `{recipe}` now: {reason}")]
+    #[diagnostic(
+        code(assort::run::busy),
+        help("wait for the other run to finish, then run again; two runs of one recipe at once would mix their outputs")
+    )]
+    Busy { recipe: String, reason: String },
+
     #[error("cannot write `{path}`: {reason}")]
     #[diagnostic(
         code(assort::run::write),
-        help("check that the folder can be written; earlier outputs were left as they were")
+        help(
+            "check that the folder can be written; every output was left as it was before this run"
+        )
     )]
     Write { path: String, reason: String },
 }

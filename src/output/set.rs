@@ -1,0 +1,322 @@
+//! Outputs as one set: after a run, every output is the new one or every
+//! output is the old one, never a mix, and no temporary is left behind,
+//! whatever fails and even when the process is killed.
+//!
+//! # How
+//! A run holds an exclusive lock on its recipe file (`flock`, released by
+//! the kernel when the process ends, however it ends), so two runs of one
+//! recipe never interleave. Writing a set:
+//!
+//! 1. every file is written to a temporary sibling (`NAME.PID.tmp-assort`);
+//! 2. a journal beside the recipe (`.RECIPE.assort-journal`, itself written
+//!    to a temporary and renamed) lists each target, its temporary and,
+//!    when the target exists, the backup it will be moved to
+//!    (`NAME.PID.old-assort`);
+//! 3. existing targets are renamed to their backups, then every temporary
+//!    to its target;
+//! 4. the journal is removed: the commit point; then the backups.
+//!
+//! A failure in step 3 undoes what was done (backups renamed back, new
+//! targets removed). A run that finds a journal (its predecessor was killed
+//! between 2 and 4) rolls it back the same way before anything else, and
+//! removes leftover temporaries and backups of its own targets. Renames
+//! within one folder are atomic on the file systems assort supports.
+
+use crate::run::RunError;
+use serde::{Deserialize, Serialize};
+use std::fs::File;
+use std::path::{Path, PathBuf};
+
+/// The exclusive lock of one recipe's runs; released when dropped.
+pub struct RunLock {
+    _file: File,
+}
+
+impl RunLock {
+    /// Takes the lock on `recipe`, or says that another run holds it.
+    pub fn take(recipe: &Path) -> Result<RunLock, RunError> {
+        let busy = |reason: String| RunError::Busy {
+            recipe: recipe.display().to_string(),
+            reason,
+        };
+        let file = File::open(recipe).map_err(|e| busy(e.to_string()))?;
+        match file.try_lock() {
+            Ok(()) => Ok(RunLock { _file: file }),
+            Err(std::fs::TryLockError::WouldBlock) => Err(busy(
+                "another run of this recipe is writing its outputs".into(),
+            )),
+            Err(std::fs::TryLockError::Error(e)) => Err(busy(e.to_string())),
+        }
+    }
+}
+
+/// One file of a set in the journal.
+#[derive(Debug, Serialize, Deserialize)]
+struct Entry {
+    target: PathBuf,
+    temp: PathBuf,
+    backup: Option<PathBuf>,
+}
+
+/// The journal of `recipe`'s output sets.
+pub fn journal_path(recipe: &Path) -> PathBuf {
+    let name = recipe
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    recipe.with_file_name(format!(".{name}.assort-journal"))
+}
+
+/// Rolls back a set a killed run left half-written (see the module
+/// documentation); returns whether there was one. Call with the lock held.
+pub fn recover(journal: &Path) -> Result<bool, RunError> {
+    let Ok(bytes) = std::fs::read(journal) else {
+        return Ok(false);
+    };
+    let entries: Vec<Entry> = serde_json::from_slice(&bytes).map_err(|e| RunError::Write {
+        path: journal.display().to_string(),
+        reason: format!("the journal of an interrupted run cannot be read ({e}); restore the outputs from version control, then remove it"),
+    })?;
+    roll_back(&entries);
+    remove(journal);
+    Ok(true)
+}
+
+/// Undoes steps 3 of a set: every target back to its backup, or removed
+/// when it had none; temporaries removed.
+fn roll_back(entries: &[Entry]) {
+    for e in entries.iter().rev() {
+        match &e.backup {
+            Some(b) if b.exists() => {
+                let _ = std::fs::rename(b, &e.target);
+            }
+            Some(_) => {}
+            // The target did not exist before the set: whatever is there
+            // now came from the set.
+            None => {
+                if !e.temp.exists() {
+                    remove(&e.target);
+                }
+            }
+        }
+        remove(&e.temp);
+    }
+}
+
+fn remove(p: &Path) {
+    let _ = std::fs::remove_file(p);
+}
+
+/// Leftover temporaries and backups of `target` from killed runs.
+fn clear_leftovers(target: &Path) {
+    let (Some(dir), Some(name)) = (target.parent(), target.file_name()) else {
+        return;
+    };
+    let dir = if dir.as_os_str().is_empty() {
+        Path::new(".")
+    } else {
+        dir
+    };
+    let prefix = format!("{}.", name.to_string_lossy());
+    let Ok(list) = std::fs::read_dir(dir) else {
+        return;
+    };
+    for e in list.flatten() {
+        let n = e.file_name().to_string_lossy().into_owned();
+        if n.starts_with(&prefix) && (n.ends_with(".tmp-assort") || n.ends_with(".old-assort")) {
+            remove(&e.path());
+        }
+    }
+}
+
+fn sibling(target: &Path, kind: &str) -> PathBuf {
+    let mut name = target
+        .file_name()
+        .map(|n| n.to_os_string())
+        .unwrap_or_default();
+    name.push(format!(".{}.{kind}-assort", std::process::id()));
+    target.with_file_name(name)
+}
+
+/// Writes `files` (target, shown name, bytes) as one set, journalled in
+/// `journal`. On error every target is as it was and nothing is left over.
+pub fn write_set(files: &[(&Path, &str, &[u8])], journal: &Path) -> Result<(), RunError> {
+    let fail = |shown: &str, e: std::io::Error| RunError::Write {
+        path: shown.to_string(),
+        reason: e.to_string(),
+    };
+    let mut entries: Vec<Entry> = Vec::with_capacity(files.len());
+    // 1. Temporaries.
+    for (target, shown, bytes) in files {
+        if target.is_dir() {
+            roll_back(&entries);
+            return Err(fail(
+                shown,
+                std::io::Error::other("a folder of that name is in the way"),
+            ));
+        }
+        clear_leftovers(target);
+        let written = (|| {
+            if let Some(dir) = target.parent().filter(|d| !d.as_os_str().is_empty()) {
+                std::fs::create_dir_all(dir)?;
+            }
+            let temp = sibling(target, "tmp");
+            std::fs::write(&temp, bytes)?;
+            Ok::<PathBuf, std::io::Error>(temp)
+        })();
+        match written {
+            Ok(temp) => entries.push(Entry {
+                target: target.to_path_buf(),
+                temp,
+                backup: target.exists().then(|| sibling(target, "old")),
+            }),
+            Err(e) => {
+                roll_back(&entries);
+                remove(&sibling(target, "tmp"));
+                return Err(fail(shown, e));
+            }
+        }
+    }
+    // 2. The journal.
+    let journal_temp = sibling(journal, "tmp");
+    let journalled = serde_json::to_vec(&entries)
+        .map_err(std::io::Error::other)
+        .and_then(|b| std::fs::write(&journal_temp, b))
+        .and_then(|()| std::fs::rename(&journal_temp, journal));
+    if let Err(e) = journalled {
+        remove(&journal_temp);
+        roll_back(&entries);
+        return Err(fail(&journal.display().to_string(), e));
+    }
+    // 3. Backups, then the new files.
+    let moved = (|| {
+        for (e, (_, shown, _)) in entries.iter().zip(files) {
+            if let Some(b) = &e.backup {
+                std::fs::rename(&e.target, b).map_err(|err| (shown.to_string(), err))?;
+            }
+        }
+        for (e, (_, shown, _)) in entries.iter().zip(files) {
+            std::fs::rename(&e.temp, &e.target).map_err(|err| (shown.to_string(), err))?;
+        }
+        Ok::<(), (String, std::io::Error)>(())
+    })();
+    if let Err((shown, e)) = moved {
+        roll_back(&entries);
+        remove(journal);
+        return Err(fail(&shown, e));
+    }
+    // 4. Commit, then tidy.
+    remove(journal);
+    for e in &entries {
+        if let Some(b) = &e.backup {
+            remove(b);
+        }
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn read(p: &Path) -> String {
+        std::fs::read_to_string(p).unwrap()
+    }
+
+    #[test]
+    fn a_set_replaces_every_file_and_leaves_nothing_else() {
+        let dir = tempfile::tempdir().unwrap();
+        let (a, b) = (dir.path().join("a.csv"), dir.path().join("sub/b.csv"));
+        std::fs::write(&a, "old a").unwrap();
+        let journal = dir.path().join(".r.assort-journal");
+        write_set(
+            &[(&a, "a.csv", b"new a"), (&b, "sub/b.csv", b"new b")],
+            &journal,
+        )
+        .unwrap();
+        assert_eq!((read(&a), read(&b)), ("new a".into(), "new b".into()));
+        let names: Vec<String> = std::fs::read_dir(dir.path())
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .collect();
+        assert!(
+            names.iter().all(|n| n == "a.csv" || n == "sub"),
+            "{names:?}"
+        );
+    }
+
+    #[test]
+    fn a_folder_in_the_way_leaves_every_file_as_it_was() {
+        let dir = tempfile::tempdir().unwrap();
+        let (a, b) = (dir.path().join("a.csv"), dir.path().join("b.csv"));
+        std::fs::write(&a, "old a").unwrap();
+        std::fs::create_dir(&b).unwrap();
+        let journal = dir.path().join(".r.assort-journal");
+        let e = write_set(
+            &[(&a, "a.csv", b"new a"), (&b, "b.csv", b"new b")],
+            &journal,
+        );
+        assert!(e.is_err());
+        assert_eq!(read(&a), "old a");
+        assert_eq!(
+            std::fs::read_dir(dir.path()).unwrap().count(),
+            2,
+            "a.csv and the folder only"
+        );
+    }
+
+    #[test]
+    fn a_set_killed_halfway_is_rolled_back_by_the_next_run() {
+        // The state a run killed in step 3 leaves: `a` already new with its
+        // old version in its backup, `b` new with no old version, `c` not
+        // yet renamed from its temporary.
+        let dir = tempfile::tempdir().unwrap();
+        let p = |n: &str| dir.path().join(n);
+        std::fs::write(p("a.csv"), "new a").unwrap();
+        std::fs::write(p("a.csv.7.old-assort"), "old a").unwrap();
+        std::fs::write(p("b.csv"), "new b").unwrap();
+        std::fs::write(p("c.csv"), "old c").unwrap();
+        std::fs::write(p("c.csv.7.tmp-assort"), "new c").unwrap();
+        let entries = vec![
+            Entry {
+                target: p("a.csv"),
+                temp: p("a.csv.7.tmp-assort"),
+                backup: Some(p("a.csv.7.old-assort")),
+            },
+            Entry {
+                target: p("b.csv"),
+                temp: p("b.csv.7.tmp-assort"),
+                backup: None,
+            },
+            Entry {
+                target: p("c.csv"),
+                temp: p("c.csv.7.tmp-assort"),
+                backup: Some(p("c.csv.7.old-assort")),
+            },
+        ];
+        let journal = p(".r.assort-journal");
+        std::fs::write(&journal, serde_json::to_vec(&entries).unwrap()).unwrap();
+        assert!(recover(&journal).unwrap());
+        assert_eq!(read(&p("a.csv")), "old a");
+        assert!(!p("b.csv").exists(), "b did not exist before the set");
+        assert_eq!(read(&p("c.csv")), "old c");
+        let mut names: Vec<String> = std::fs::read_dir(dir.path())
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .collect();
+        names.sort();
+        assert_eq!(names, ["a.csv", "c.csv"]);
+        assert!(!recover(&journal).unwrap(), "nothing left to recover");
+    }
+
+    #[test]
+    fn a_second_run_of_the_same_recipe_is_refused_while_the_first_holds_the_lock() {
+        let dir = tempfile::tempdir().unwrap();
+        let recipe = dir.path().join("r.assort");
+        std::fs::write(&recipe, "").unwrap();
+        let first = RunLock::take(&recipe).unwrap();
+        assert!(matches!(RunLock::take(&recipe), Err(RunError::Busy { .. })));
+        drop(first);
+        assert!(RunLock::take(&recipe).is_ok());
+    }
+}
