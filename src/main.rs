@@ -159,6 +159,7 @@ fn main() -> ExitCode {
                     }
                     ExitCode::FAILURE
                 };
+                output::set::on_interrupt();
                 // One run of a recipe at a time; a set a killed run left
                 // half-written is rolled back first.
                 let _lock = match output::set::RunLock::take(&source.path) {
@@ -181,6 +182,12 @@ fn main() -> ExitCode {
                 progress.finish();
                 if let Err(e) = output::files::write_all_journalled(&files, &journal) {
                     return fail(&e);
+                }
+                if output::set::interrupted_while_writing() {
+                    eprintln!(
+                        "interrupted while writing: the outputs were completed first, as one set"
+                    );
+                    return ExitCode::from(130);
                 }
                 let written: Vec<String> = files.iter().map(|f| shown(&f.path)).collect();
                 let defused: usize = files.iter().map(|f| f.defused).sum();

@@ -214,11 +214,11 @@ fn a_set_left_half_written_by_a_killed_run_is_put_back_first() {
     // the old one in its backup, the journal listing both.
     std::fs::rename(case.path("out/a.csv"), case.path("out/a.csv.99.old-assort")).unwrap();
     case.write("out/a.csv", "half-written");
-    let journal = serde_json::json!([{
+    let journal = serde_json::json!({"committed": false, "entries": [{
         "target": case.path("out/a.csv"),
         "temp": case.path("out/a.csv.99.tmp-assort"),
         "backup": case.path("out/a.csv.99.old-assort"),
-    }]);
+    }]});
     case.write(".r.assort.assort-journal", &journal.to_string());
     case.run(RECIPE)
         .ok()

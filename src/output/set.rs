@@ -7,25 +7,84 @@
 //! the kernel when the process ends, however it ends), so two runs of one
 //! recipe never interleave. Writing a set:
 //!
-//! 1. every file is written to a temporary sibling (`NAME.PID.tmp-assort`);
-//! 2. a journal beside the recipe (`.RECIPE.assort-journal`, itself written
-//!    to a temporary and renamed) lists each target, its temporary and,
-//!    when the target exists, the backup it will be moved to
-//!    (`NAME.PID.old-assort`);
+//! 1. a journal beside the recipe (`.RECIPE.assort-journal`, itself written
+//!    to a temporary and renamed) lists each target, its temporary sibling
+//!    (`NAME.PID.tmp-assort`) and, when the target exists, the backup it
+//!    will be moved to (`NAME.PID.old-assort`);
+//! 2. every file is written to its temporary;
 //! 3. existing targets are renamed to their backups, then every temporary
 //!    to its target;
-//! 4. the journal is removed: the commit point; then the backups.
+//! 4. the journal is marked committed (rewritten atomically): the commit
+//!    point; then the backups are removed, then the journal.
 //!
-//! A failure in step 3 undoes what was done (backups renamed back, new
-//! targets removed). A run that finds a journal (its predecessor was killed
-//! between 2 and 4) rolls it back the same way before anything else, and
-//! removes leftover temporaries and backups of its own targets. Renames
+//! A failure in steps 2 or 3 undoes what was done (backups renamed back, new
+//! targets removed). A run that finds a journal (its predecessor was
+//! killed) first rolls an uncommitted set back the same way, or removes a
+//! committed set's remaining backups, and removes leftover temporaries and
+//! backups of its own targets. Renames
 //! within one folder are atomic on the file systems assort supports.
 
 use crate::run::RunError;
 use serde::{Deserialize, Serialize};
 use std::fs::File;
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering};
+
+/// Set while a set is being written: an interrupt then waits for the set
+/// to be complete (see [`on_interrupt`]).
+static WRITING: AtomicBool = AtomicBool::new(false);
+/// Set when an interrupt arrived while writing.
+static INTERRUPTED: AtomicBool = AtomicBool::new(false);
+
+/// What a command that writes a set does on Ctrl-C (SIGINT) or SIGTERM:
+/// before writing, stop at once (nothing was written, no temporary
+/// exists); while writing, finish the set first, so the folder holds the
+/// whole new set and no temporary. Returns whether a handler is in place.
+pub fn on_interrupt() -> bool {
+    ctrlc::set_handler(|| {
+        if WRITING.load(Ordering::SeqCst) {
+            INTERRUPTED.store(true, Ordering::SeqCst);
+        } else {
+            eprintln!("interrupted: nothing was written");
+            std::process::exit(130);
+        }
+    })
+    .is_ok()
+}
+
+/// Whether an interrupt arrived while the last set was written.
+pub fn interrupted_while_writing() -> bool {
+    INTERRUPTED.load(Ordering::SeqCst)
+}
+
+/// A test hook: with `ASSORT_TEST_WRITE_PAUSE_MS` set, each step of
+/// writing a set is announced on standard error and followed by a pause,
+/// so tests can interrupt or kill a run at a known point.
+fn step(name: &str) {
+    if let Some(ms) = std::env::var("ASSORT_TEST_WRITE_PAUSE_MS")
+        .ok()
+        .and_then(|v| v.parse::<u64>().ok())
+    {
+        eprintln!("assort-test: {name}");
+        std::thread::sleep(std::time::Duration::from_millis(ms));
+    }
+}
+
+/// Marks the writing phase for the interrupt handler; cleared on drop.
+struct Writing;
+
+impl Writing {
+    fn start() -> Writing {
+        WRITING.store(true, Ordering::SeqCst);
+        Writing
+    }
+}
+
+impl Drop for Writing {
+    fn drop(&mut self) {
+        WRITING.store(false, Ordering::SeqCst);
+    }
+}
 
 /// The exclusive lock of one recipe's runs; released when dropped.
 pub struct RunLock {
@@ -58,6 +117,27 @@ struct Entry {
     backup: Option<PathBuf>,
 }
 
+/// A set's journal: its files and whether it was committed.
+#[derive(Debug, Serialize, Deserialize)]
+struct Journal {
+    /// Set once every new file is in place: recovery then only tidies.
+    committed: bool,
+    entries: Vec<Entry>,
+}
+
+/// Writes the journal atomically (a temporary renamed over it).
+fn write_journal(path: &Path, journal: &Journal) -> std::io::Result<()> {
+    let temp = sibling(path, "tmp");
+    let done = serde_json::to_vec(journal)
+        .map_err(std::io::Error::other)
+        .and_then(|b| std::fs::write(&temp, b))
+        .and_then(|()| std::fs::rename(&temp, path));
+    if done.is_err() {
+        remove(&temp);
+    }
+    done
+}
+
 /// The journal of `recipe`'s output sets.
 pub fn journal_path(recipe: &Path) -> PathBuf {
     let name = recipe
@@ -70,14 +150,25 @@ pub fn journal_path(recipe: &Path) -> PathBuf {
 /// Rolls back a set a killed run left half-written (see the module
 /// documentation); returns whether there was one. Call with the lock held.
 pub fn recover(journal: &Path) -> Result<bool, RunError> {
+    // A journal's own temporary, from a run killed while writing it.
+    clear_leftovers(journal);
     let Ok(bytes) = std::fs::read(journal) else {
         return Ok(false);
     };
-    let entries: Vec<Entry> = serde_json::from_slice(&bytes).map_err(|e| RunError::Write {
+    let j: Journal = serde_json::from_slice(&bytes).map_err(|e| RunError::Write {
         path: journal.display().to_string(),
         reason: format!("the journal of an interrupted run cannot be read ({e}); restore the outputs from version control, then remove it"),
     })?;
-    roll_back(&entries);
+    if j.committed {
+        // Every new file was in place: only the backups remain to go.
+        for e in &j.entries {
+            if let Some(b) = &e.backup {
+                remove(b);
+            }
+        }
+    } else {
+        roll_back(&j.entries);
+    }
     remove(journal);
     Ok(true)
 }
@@ -145,73 +236,84 @@ pub fn write_set(files: &[(&Path, &str, &[u8])], journal: &Path) -> Result<(), R
         path: shown.to_string(),
         reason: e.to_string(),
     };
+    let _writing = Writing::start();
+    // 1. The plan: each target's temporary and, when it exists, its backup.
     let mut entries: Vec<Entry> = Vec::with_capacity(files.len());
-    // 1. Temporaries.
-    for (target, shown, bytes) in files {
+    for (target, shown, _) in files {
         if target.is_dir() {
-            roll_back(&entries);
             return Err(fail(
                 shown,
                 std::io::Error::other("a folder of that name is in the way"),
             ));
         }
         clear_leftovers(target);
-        let written = (|| {
-            if let Some(dir) = target.parent().filter(|d| !d.as_os_str().is_empty()) {
-                std::fs::create_dir_all(dir)?;
-            }
-            let temp = sibling(target, "tmp");
-            std::fs::write(&temp, bytes)?;
-            Ok::<PathBuf, std::io::Error>(temp)
-        })();
-        match written {
-            Ok(temp) => entries.push(Entry {
-                target: target.to_path_buf(),
-                temp,
-                backup: target.exists().then(|| sibling(target, "old")),
-            }),
-            Err(e) => {
-                roll_back(&entries);
-                remove(&sibling(target, "tmp"));
-                return Err(fail(shown, e));
-            }
-        }
+        // Absolute, so the journal means the same from any folder.
+        let target = std::path::absolute(target).map_err(|e| fail(shown, e))?;
+        entries.push(Entry {
+            temp: sibling(&target, "tmp"),
+            backup: target.exists().then(|| sibling(&target, "old")),
+            target,
+        });
     }
-    // 2. The journal.
-    let journal_temp = sibling(journal, "tmp");
-    let journalled = serde_json::to_vec(&entries)
-        .map_err(std::io::Error::other)
-        .and_then(|b| std::fs::write(&journal_temp, b))
-        .and_then(|()| std::fs::rename(&journal_temp, journal));
-    if let Err(e) = journalled {
-        remove(&journal_temp);
-        roll_back(&entries);
+    // 2. The journal, before anything else is written, so a run killed
+    // from here on is rolled back by the next.
+    let mut j = Journal {
+        committed: false,
+        entries,
+    };
+    if let Err(e) = write_journal(journal, &j) {
         return Err(fail(&journal.display().to_string(), e));
     }
-    // 3. Backups, then the new files.
+    let entries = &j.entries;
+    step("journal");
+    // 3. Temporaries.
+    for (e, (_, shown, bytes)) in entries.iter().zip(files) {
+        let written = (|| {
+            if let Some(dir) = e.target.parent().filter(|d| !d.as_os_str().is_empty()) {
+                std::fs::create_dir_all(dir)?;
+            }
+            std::fs::write(&e.temp, bytes)
+        })();
+        if let Err(err) = written {
+            roll_back(entries);
+            remove(journal);
+            return Err(fail(shown, err));
+        }
+    }
+    step("temporaries");
+    // 4. Backups, then the new files.
     let moved = (|| {
-        for (e, (_, shown, _)) in entries.iter().zip(files) {
+        for (i, (e, (_, shown, _))) in entries.iter().zip(files).enumerate() {
             if let Some(b) = &e.backup {
                 std::fs::rename(&e.target, b).map_err(|err| (shown.to_string(), err))?;
+                step(&format!("backup {i}"));
             }
         }
-        for (e, (_, shown, _)) in entries.iter().zip(files) {
+        for (i, (e, (_, shown, _))) in entries.iter().zip(files).enumerate() {
             std::fs::rename(&e.temp, &e.target).map_err(|err| (shown.to_string(), err))?;
+            step(&format!("rename {i}"));
         }
         Ok::<(), (String, std::io::Error)>(())
     })();
     if let Err((shown, e)) = moved {
-        roll_back(&entries);
+        roll_back(entries);
         remove(journal);
         return Err(fail(&shown, e));
     }
-    // 4. Commit, then tidy.
-    remove(journal);
-    for e in &entries {
+    // 5. Commit (the journal says so), then tidy.
+    j.committed = true;
+    if write_journal(journal, &j).is_err() {
+        // Every new file is in place; without the mark a recovery would put
+        // the old set back, so finish the tidying here and now.
+        remove(journal);
+    }
+    step("committed");
+    for e in &j.entries {
         if let Some(b) = &e.backup {
             remove(b);
         }
     }
+    remove(journal);
     Ok(())
 }
 
@@ -295,7 +397,11 @@ mod tests {
             },
         ];
         let journal = p(".r.assort-journal");
-        std::fs::write(&journal, serde_json::to_vec(&entries).unwrap()).unwrap();
+        let j = Journal {
+            committed: false,
+            entries,
+        };
+        std::fs::write(&journal, serde_json::to_vec(&j).unwrap()).unwrap();
         assert!(recover(&journal).unwrap());
         assert_eq!(read(&p("a.csv")), "old a");
         assert!(!p("b.csv").exists(), "b did not exist before the set");
