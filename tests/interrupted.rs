@@ -13,6 +13,14 @@ use std::io::{BufRead, BufReader};
 use std::process::{Command, Stdio};
 
 const RECIPE: &str = "r.assort";
+/// The folder's files when the set is whole and nothing is left over.
+const WHOLE: [&str; 5] = [
+    "d.csv",
+    "out/a.csv",
+    "out/p.csv",
+    "out/r.run.json",
+    "r.assort",
+];
 const OUTPUTS: [&str; 3] = ["out/a.csv", "out/p.csv", "out/r.run.json"];
 
 fn recipe(k: usize) -> String {
@@ -133,17 +141,7 @@ fn a_killed_run_leaves_the_old_or_the_new_set_after_recovery_and_no_temporary() 
             now == old || now == new,
             "{at}: a mix of old and new outputs"
         );
-        assert_eq!(
-            files(&case),
-            [
-                "d.csv",
-                "out/a.csv",
-                "out/p.csv",
-                "out/r.run.json",
-                "r.assort"
-            ],
-            "{at}"
-        );
+        assert_eq!(files(&case), WHOLE, "{at}");
         // And the next run completes the new set.
         case.run(RECIPE).ok();
         assert_eq!(set_of(&case), new, "{at}");
@@ -157,16 +155,6 @@ fn an_interrupted_run_completes_the_set_it_began_and_leaves_no_temporary() {
         let status = signal_at(&case, at, "-INT");
         assert_eq!(status.code(), Some(130), "{at}");
         assert_eq!(set_of(&case), new, "{at}");
-        assert_eq!(
-            files(&case),
-            [
-                "d.csv",
-                "out/a.csv",
-                "out/p.csv",
-                "out/r.run.json",
-                "r.assort"
-            ],
-            "{at}"
-        );
+        assert_eq!(files(&case), WHOLE, "{at}");
     }
 }
