@@ -554,12 +554,32 @@ fn verify(
 
 /// A progress bar on standard error for long runs: shown only on a
 /// terminal, never with `--quiet` or `--json`.
-struct Progress(Option<indicatif::ProgressBar>);
+/// Progress of a long run on standard error: a bar on a terminal; when
+/// standard error is a pipe or a file (a scheduled job, a log), a plain
+/// line at most every [`PROGRESS_EVERY`], so a long run is never silent.
+enum Progress {
+    Silent,
+    Bar(indicatif::ProgressBar),
+    Lines {
+        started: std::time::Instant,
+        last: std::sync::Mutex<std::time::Instant>,
+    },
+}
+
+/// The least time between two progress lines when not on a terminal.
+const PROGRESS_EVERY: std::time::Duration = std::time::Duration::from_secs(5);
 
 impl Progress {
     fn new(silent: bool) -> Progress {
-        if silent || !std::io::stderr().is_terminal() {
-            return Progress(None);
+        if silent {
+            return Progress::Silent;
+        }
+        if !std::io::stderr().is_terminal() {
+            let now = std::time::Instant::now();
+            return Progress::Lines {
+                started: now,
+                last: std::sync::Mutex::new(now),
+            };
         }
         let bar = indicatif::ProgressBar::new(0);
         let style = indicatif::ProgressStyle::with_template("  {msg:<28} [{bar:30}] {pos}/{len}")
@@ -567,19 +587,37 @@ impl Progress {
         if let Ok(style) = style {
             bar.set_style(style);
         }
-        Progress(Some(bar))
+        Progress::Bar(bar)
     }
 
     fn step(&self, step: run::Step) {
-        if let Some(bar) = &self.0 {
-            bar.set_length(step.total as u64);
-            bar.set_position(step.done as u64);
-            bar.set_message(step.what);
+        match self {
+            Progress::Silent => {}
+            Progress::Bar(bar) => {
+                bar.set_length(step.total as u64);
+                bar.set_position(step.done as u64);
+                bar.set_message(step.what);
+            }
+            Progress::Lines { started, last } => {
+                // A poisoned lock only means another thread panicked while
+                // printing; progress is not worth a second panic.
+                let Ok(mut last) = last.lock() else { return };
+                if last.elapsed() >= PROGRESS_EVERY {
+                    eprintln!(
+                        "  {}: {} of {} done ({} s so far)",
+                        step.what,
+                        step.done,
+                        step.total,
+                        started.elapsed().as_secs()
+                    );
+                    *last = std::time::Instant::now();
+                }
+            }
         }
     }
 
     fn finish(&self) {
-        if let Some(bar) = &self.0 {
+        if let Progress::Bar(bar) = self {
             bar.finish_and_clear();
         }
     }

@@ -227,3 +227,21 @@ fn a_set_left_half_written_by_a_killed_run_is_put_back_first() {
     assert!(!case.path(".r.assort.assort-journal").exists());
     assert!(!case.path("out/a.csv.99.old-assort").exists());
 }
+
+#[test]
+fn a_latin1_byte_is_named_as_an_encoding_problem_with_the_fix() {
+    let case = Case::empty();
+    // `Café` saved in Latin-1: 0xE9 is no UTF-8 text.
+    let mut bytes = b"id,a,b\nk1,1,2\nk2,3,4\nk3,5,6\n".to_vec();
+    bytes.extend_from_slice(b"Caf\xe9,7,8\n");
+    std::fs::write(case.path("d.csv"), bytes).unwrap();
+    case.write(
+        RECIPE,
+        "input \"d.csv\" key id\nfeatures a, b\nkmeans k 2\n",
+    );
+    case.assort(&["check", RECIPE], &[])
+        .fails()
+        .stderr_has("line 5 is not UTF-8 text")
+        .stderr_has("save it as UTF-8")
+        .stderr_has("iconv");
+}

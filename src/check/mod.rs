@@ -296,6 +296,9 @@ pub fn clipped(text: &str, max: usize) -> String {
     }
 }
 
+/// How to mend a data file in another encoding.
+pub const NOT_UTF8_HELP: &str = "the file holds a byte that is not UTF-8, likely an accented letter saved in Latin-1 or Windows-1252; save it as UTF-8 (in a spreadsheet: \"CSV UTF-8\"), or convert it with `iconv -f latin1 -t utf-8 old.csv > new.csv`";
+
 /// A separator as a recipe writes it (a tab as `\t`).
 fn shown_separator(sep: char) -> String {
     if sep == '\t' {
@@ -587,6 +590,10 @@ impl Checker {
             ProbeError::NoHeader => (
                 "it has no header line".to_string(),
                 "the first line must name the columns".to_string(),
+            ),
+            ProbeError::NotUtf8 { line } => (
+                format!("line {line} is not UTF-8 text"),
+                NOT_UTF8_HELP.to_string(),
             ),
         };
         self.err(CheckError::FileUnreadable {

@@ -104,6 +104,10 @@ pub enum ProbeError {
         reason: String,
     },
     NoHeader,
+    /// Bytes that are not UTF-8 text at a 1-based line.
+    NotUtf8 {
+        line: u64,
+    },
 }
 
 /// When the file's first line does not hold `separator` but does hold
@@ -287,10 +291,7 @@ fn csv_problem(e: &csv::Error) -> ProbeError {
     let line = e.position().map(|p| p.line()).unwrap_or(1);
     match e.kind() {
         csv::ErrorKind::Io(io) => ProbeError::Unreadable(io.to_string()),
-        csv::ErrorKind::Utf8 { .. } => ProbeError::Malformed {
-            line,
-            reason: "the text is not valid UTF-8".into(),
-        },
+        csv::ErrorKind::Utf8 { .. } => ProbeError::NotUtf8 { line },
         csv::ErrorKind::UnequalLengths {
             expected_len, len, ..
         } => ProbeError::Malformed {

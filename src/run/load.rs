@@ -317,9 +317,10 @@ impl Decoder<'_> {
                 file: self.shown.to_string(),
                 line,
                 reason: format!(
-                    "field {} (`{}`) is not valid UTF-8 text",
+                    "field {} (`{}`) is not UTF-8 text; {}",
                     at + 1,
-                    self.header.get(at).unwrap_or("").trim()
+                    self.header.get(at).unwrap_or("").trim(),
+                    crate::check::NOT_UTF8_HELP
                 ),
             })
         };
@@ -377,7 +378,9 @@ pub(crate) fn malformed(file: &str, e: &csv::Error) -> RunError {
         } => {
             format!("found {len} fields, expected {expected_len} as in the header")
         }
-        csv::ErrorKind::Utf8 { .. } => "the text is not valid UTF-8".to_string(),
+        csv::ErrorKind::Utf8 { .. } => {
+            format!("the text is not UTF-8; {}", crate::check::NOT_UTF8_HELP)
+        }
         csv::ErrorKind::Io(io) => {
             return RunError::Unreadable {
                 file: file.to_string(),
