@@ -254,11 +254,19 @@ fn infinity_in_the_data_is_refused_at_its_place() {
 
 #[test]
 fn a_missing_value_without_a_rule_is_located_and_a_rule_suggested() {
+    // In the checked sample: the checker says so before any run.
     let case = Case::empty();
     small(&case, "id,a,b\n1,1.0,2.0\n2,,2.5\n3,2.0,3.0\n4,9.0,9.0\n");
     case.run("r.assort")
         .fails()
-        .stderr_has("`data.csv` line 3, column 2 (`a`)")
+        .stderr_has("`a` has 1 blank values in the first 4 records, and no rule for them")
+        .stderr_has("missing fill median for a");
+    // Past the sample: the run stops at its place.
+    let case = Case::empty();
+    small(&case, &long_data_with(",2.5"));
+    case.run("r.assort")
+        .fails()
+        .stderr_has("line 1202, column 2 (`a`)")
         .stderr_has("missing fill median");
 }
 

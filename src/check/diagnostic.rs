@@ -25,7 +25,12 @@ impl Problem {
     pub fn is_incomplete(&self) -> bool {
         matches!(
             self,
-            Problem::Check(CheckError::MissingStatement { .. } | CheckError::NoMethod { .. })
+            Problem::Check(
+                CheckError::MissingStatement { .. }
+                    | CheckError::NoMethod { .. }
+                    // A `missing` rule entered next settles it.
+                    | CheckError::GapsWithoutRule { .. }
+            )
         )
     }
 
@@ -365,6 +370,21 @@ pub enum CheckError {
         #[label("selects nothing")]
         span: Span,
         help: String,
+    },
+
+    #[error(
+        "`{column}` has {blanks} blank values in the first {sampled} records, and no rule for them"
+    )]
+    #[diagnostic(
+        code(assort::gaps_without_rule),
+        help("say what a gap means: `missing fill median for {column}`, `missing drop for {column}`, or one `missing` rule for every column")
+    )]
+    GapsWithoutRule {
+        column: String,
+        blanks: usize,
+        sampled: usize,
+        #[label("has gaps")]
+        span: Span,
     },
 
     #[error("the previous model does not fit this recipe: {reason}")]

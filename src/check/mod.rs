@@ -1015,6 +1015,27 @@ impl Checker {
                 }
             }
         }
+        // Gaps the sample already shows, with no rule to handle them: the
+        // run would stop at the first; say so now.
+        for (p, (_, span)) in plans.iter().zip(&features) {
+            if p.missing != MissingRule::Refuse {
+                continue;
+            }
+            let blanks = self
+                .probe
+                .as_ref()
+                .and_then(|pr| pr.column(&p.column))
+                .map_or(0, |c| c.blanks);
+            if blanks > 0 {
+                let sampled = self.probe.as_ref().map_or(0, |pr| pr.sampled);
+                self.err(CheckError::GapsWithoutRule {
+                    column: p.column.clone(),
+                    blanks,
+                    sampled,
+                    span: *span,
+                });
+            }
+        }
         plans
     }
 
