@@ -245,3 +245,17 @@ fn a_latin1_byte_is_named_as_an_encoding_problem_with_the_fix() {
         .stderr_has("save it as UTF-8")
         .stderr_has("iconv");
 }
+
+#[test]
+fn a_key_repeated_in_the_sample_is_refused_at_check() {
+    let mut rows = ordinary();
+    rows[4] = "k2,9,9".into();
+    let case = case_with(
+        &data(&rows.iter().map(String::as_str).collect::<Vec<_>>()),
+        "features a, b\nkmeans k 2",
+    );
+    case.assort(&["check", RECIPE], &[])
+        .fails()
+        .stderr_has("key `k2` appears twice in `d.csv`: lines 4 and 6");
+    nothing_written(&case);
+}

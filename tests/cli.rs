@@ -287,9 +287,16 @@ fn a_duplicate_key_is_named_with_both_lines() {
         &case,
         "id,a,b\n1,1.0,2.0\n2,1.5,2.5\n1,2.0,3.0\n4,9.0,9.0\n",
     );
+    // In the checked sample: the checker names both lines.
     case.run("r.assort")
         .fails()
-        .stderr_has("line 4, column 1 (`id`): key `1` appears again (first on line 2)");
+        .stderr_has("key `1` appears twice in `data.csv`: lines 2 and 4");
+    // Past the sample: the run does, at the repeat's place.
+    let case = Case::empty();
+    small(&case, &long_data_with("1.0,2.0").replace("9999,", "3,"));
+    case.run("r.assort")
+        .fails()
+        .stderr_has("line 1202, column 1 (`id`): key `3` appears again (first on line 5)");
 }
 
 #[test]

@@ -387,6 +387,21 @@ pub enum CheckError {
         span: Span,
     },
 
+    #[error("key `{key}` appears twice in `{file}`: lines {first} and {again}")]
+    #[diagnostic(
+        code(assort::repeated_key),
+        help("each record needs a key of its own in `{column}`; remove the repeated record, or key the file by another column")
+    )]
+    RepeatedKey {
+        column: String,
+        key: String,
+        file: String,
+        first: u64,
+        again: u64,
+        #[label("this key column")]
+        span: Span,
+    },
+
     #[error("the previous model does not fit this recipe: {reason}")]
     #[diagnostic(code(assort::previous_mismatch), help("{help}"))]
     PreviousMismatch {

@@ -544,6 +544,18 @@ impl Checker {
         }
         let key = key?;
         self.known_column(&key)?;
+        if let Some((k, first, again)) = probe::repeated_key(&resolved, separator as u8, &key.node)
+        {
+            self.err(CheckError::RepeatedKey {
+                column: key.node.clone(),
+                key: clipped(&k, 40),
+                file: path.node.clone(),
+                first,
+                again,
+                span: key.span,
+            });
+            return None;
+        }
         Some(CheckedInput {
             plan: InputPlan {
                 path: path.node.clone(),

@@ -126,6 +126,37 @@ pub fn header_separator(path: &Path, separator: char) -> Option<char> {
     [';', '\t', '|'].into_iter().find(|&c| line.contains(c))
 }
 
+/// The first key repeated within the sample: (the key, the line it first
+/// appeared on, the line it appears again). Reads the first
+/// [`SAMPLE_ROWS`] records again, only the key column.
+pub fn repeated_key(path: &Path, separator: u8, key: &str) -> Option<(String, u64, u64)> {
+    let mut reader = csv::ReaderBuilder::new()
+        .delimiter(separator)
+        .from_reader(File::open(path).ok()?);
+    let at = reader
+        .headers()
+        .ok()?
+        .iter()
+        .position(|h| h.trim() == key)?;
+    let mut seen: std::collections::HashMap<String, u64> = std::collections::HashMap::new();
+    let mut record = csv::StringRecord::new();
+    for _ in 0..SAMPLE_ROWS {
+        if !reader.read_record(&mut record).ok()? {
+            break;
+        }
+        let line = record.position().map_or(0, |p| p.line());
+        let k = record.get(at).unwrap_or("").trim();
+        if k.is_empty() {
+            continue;
+        }
+        if let Some(&first) = seen.get(k) {
+            return Some((k.to_string(), first, line));
+        }
+        seen.insert(k.to_string(), line);
+    }
+    None
+}
+
 /// Whether a field counts as missing: blank after trimming.
 pub fn is_blank(field: &str) -> bool {
     field.trim().is_empty()
