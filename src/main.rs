@@ -238,7 +238,13 @@ fn main() -> ExitCode {
             let read = |p: &Path| run::comparison::read_assignments(p, &shown(p));
             let compared = read(&old).and_then(|a| {
                 let b = read(&new)?;
-                run::comparison::compare(&shown(&old), &a, &shown(&new), &b)
+                run::comparison::compare(&shown(&old), &a, &shown(&new), &b).map(|c| {
+                    let (ka, kb) = (
+                        run::comparison::key_name(&old),
+                        run::comparison::key_name(&new),
+                    );
+                    c.with_key_names(ka.as_deref(), kb.as_deref())
+                })
             });
             match compared {
                 Ok(c) => {

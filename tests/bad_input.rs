@@ -177,6 +177,11 @@ fn comparing_files_without_a_key_in_common_or_with_a_key_twice_is_refused() {
         .fails()
         .stderr_has("have no key in common")
         .stderr_has("`a1` and `b1`");
+    // Key columns named differently: joined, and said so.
+    case.write("renamed.csv", "member,segment\na1,1\na2,1\n");
+    case.assort(&["compare", "old.csv", "renamed.csv"], &[])
+        .ok()
+        .stdout_has("keyed by different columns, `id` and `member`");
     case.assort(&["compare", "dup.csv", "old.csv"], &[])
         .fails()
         .stderr_has("a1")

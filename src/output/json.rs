@@ -112,6 +112,7 @@ pub fn comparison(c: &Comparison) -> Value {
         "only_old": c.only_old,
         "only_new": c.only_new,
         "adjusted_rand_index": c.adjusted_rand_index,
+        "key_note": c.key_note,
         "old_segments": c.migration.from,
         "new_segments": c.migration.to,
         "counts": c.migration.counts,

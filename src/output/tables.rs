@@ -46,6 +46,9 @@ pub fn comparison(c: &crate::run::comparison::Comparison) -> String {
         "  {} in both; {} only in the old; {} only in the new",
         c.both, c.only_old, c.only_new
     );
+    if let Some(note) = &c.key_note {
+        let _ = writeln!(s, "  {note}");
+    }
     let _ = writeln!(
         s,
         "  adjusted Rand index {:.4} (1: the same segments; about 0: no more alike than chance)",

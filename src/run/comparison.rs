@@ -31,6 +31,29 @@ pub struct Comparison {
     /// Labels by segment, as each file gives them.
     pub old_labels: HashMap<String, String>,
     pub new_labels: HashMap<String, String>,
+    /// Said when the two key columns have different names: the join is on
+    /// their values all the same.
+    pub key_note: Option<String>,
+}
+
+/// The name of an assignments file's key column (its first).
+pub fn key_name(path: &std::path::Path) -> Option<String> {
+    let mut reader = csv::Reader::from_path(path).ok()?;
+    Some(reader.headers().ok()?.get(0)?.trim().to_string())
+}
+
+impl Comparison {
+    /// Notes that the key columns are named differently, when they are.
+    pub fn with_key_names(mut self, old: Option<&str>, new: Option<&str>) -> Comparison {
+        if let (Some(a), Some(b)) = (old, new) {
+            if a != b {
+                self.key_note = Some(format!(
+                    "note: the files are keyed by different columns, `{a}` and `{b}`; records were joined on their values, so check that both columns hold the same identifiers"
+                ));
+            }
+        }
+        self
+    }
 }
 
 /// Reads an assignments file (as `assort run` or `assort assign` write):
@@ -145,5 +168,6 @@ pub fn compare(
         migration,
         old_labels: labels(old),
         new_labels: labels(new),
+        key_note: None,
     })
 }

@@ -536,7 +536,12 @@ pub fn run_with(
         Some(c) => {
             let old = comparison::read_assignments(&c.resolved, &c.path)?;
             let new = comparison::from_run(&assignments, |s| label_of(s).unwrap_or_default());
-            Some(comparison::compare(&c.path, &old, "this run", &new)?)
+            Some(
+                comparison::compare(&c.path, &old, "this run", &new)?.with_key_names(
+                    comparison::key_name(&c.resolved).as_deref(),
+                    Some(&plan.input.key),
+                ),
+            )
         }
         // Last run's assignments, given with `previous`, show the migration.
         None => match last.as_ref().and_then(|l| l.assignments.as_ref()) {
