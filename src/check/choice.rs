@@ -1,0 +1,272 @@
+//! How k is chosen and defended, and what the segments are named and
+//! compared with: `choose`, `evidence`, `label`, `validate`, `compare`.
+
+use super::*;
+
+impl Checker {
+    pub(super) fn choose(
+        &mut self,
+        stmt: Option<&Statement>,
+        fitted: Option<&[usize]>,
+    ) -> Option<ChooseK> {
+        let Some(Statement {
+            kind: StatementKind::Choose(rule),
+            ..
+        }) = stmt
+        else {
+            // A single k is fixed; a range is judged by silhouette unless
+            // the recipe says otherwise.
+            return Some(match fitted {
+                Some([k]) => ChooseK::Fixed(*k),
+                _ => ChooseK::By(Criterion::Silhouette),
+            });
+        };
+        match rule {
+            ChooseRule::By(word) => {
+                let c = self.word_choice("criterion", word, &Criterion::NAMES, Criterion::parse)?;
+                if let Some([k]) = fitted {
+                    self.err(CheckError::NothingToChoose {
+                        criterion: word.node.clone(),
+                        span: word.span,
+                    });
+                    return Some(ChooseK::Fixed(*k));
+                }
+                Some(ChooseK::By(c))
+            }
+            ChooseRule::Fixed(n) => {
+                let Some(k) = n.node.as_whole() else {
+                    self.bad_value(
+                        "choose k",
+                        &Value::Number(n.node.clone()),
+                        "a whole number",
+                        n.span,
+                        "for example `choose k 5`",
+                    );
+                    return None;
+                };
+                let ks = fitted.map(<[usize]>::to_vec).unwrap_or_default();
+                if !ks.is_empty() && !ks.contains(&(k.max(0) as usize)) {
+                    self.err(CheckError::ImpossibleK {
+                        reason: format!(
+                            "k {k} is not among the k fitted ({}..{})",
+                            ks[0],
+                            ks[ks.len() - 1]
+                        ),
+                        span: n.span,
+                        help: "choose one of the k that `kmeans` fits".into(),
+                    });
+                    return None;
+                }
+                Some(ChooseK::Fixed(k as usize))
+            }
+        }
+    }
+
+    /// The `evidence` statement; a choice by gap or stability turns that
+    /// evidence on with its default size.
+    pub(super) fn evidence(
+        &mut self,
+        stmt: Option<&Statement>,
+        choose: Option<ChooseK>,
+    ) -> Option<EvidencePlan> {
+        let mut plan = EvidencePlan {
+            gap: None,
+            stability: None,
+            restarts: defaults::EVIDENCE_RESTARTS,
+            silhouette: SilhouetteMode::Estimate,
+        };
+        if let Some(Statement {
+            kind: StatementKind::Evidence { options },
+            ..
+        }) = stmt
+        {
+            let opts = self.options("evidence", options, vocab::EVIDENCE_OPTIONS);
+            if opts.contains_key("gap") {
+                plan.gap = Some(self.whole_option(&opts, "gap", 2, defaults::EVIDENCE_SETS)?);
+            }
+            if opts.contains_key("stability") {
+                plan.stability =
+                    Some(self.whole_option(&opts, "stability", 2, defaults::EVIDENCE_SETS)?);
+            }
+            if let Some(o) = opts.get("silhouette") {
+                plan.silhouette = match &o.value.node {
+                    Value::Word(w) => self.word_choice(
+                        "silhouette",
+                        &Spanned::new(w.clone(), o.value.span),
+                        &SilhouetteMode::NAMES,
+                        SilhouetteMode::parse,
+                    )?,
+                    other => {
+                        self.bad_value(
+                            "silhouette",
+                            other,
+                            "`estimate` or `exact`",
+                            o.value.span,
+                            "the estimate states its standard error; `exact` costs time that grows with the square of the records",
+                        );
+                        return None;
+                    }
+                };
+            }
+        }
+        match choose {
+            Some(ChooseK::By(Criterion::Gap)) => {
+                plan.gap.get_or_insert(defaults::EVIDENCE_SETS);
+            }
+            Some(ChooseK::By(Criterion::Stability)) => {
+                plan.stability.get_or_insert(defaults::EVIDENCE_SETS);
+            }
+            _ => {}
+        }
+        Some(plan)
+    }
+
+    pub(super) fn labels(
+        &mut self,
+        stmts: &[Statement],
+        fitted: Option<&[usize]>,
+        room: usize,
+    ) -> Option<BTreeMap<usize, String>> {
+        let most = fitted.and_then(|k| k.last().copied()).map(|m| m + room);
+        let mut out = BTreeMap::new();
+        let mut spans: HashMap<usize, Span> = HashMap::new();
+        let mut ok = true;
+        for s in stmts {
+            let StatementKind::Label { segment, text } = &s.kind else {
+                continue;
+            };
+            let n = match segment.node.as_whole() {
+                Some(n) if n >= 1 => n,
+                _ => {
+                    self.bad_value(
+                        "label",
+                        &Value::Number(segment.node.clone()),
+                        "a segment number, 1 or more",
+                        segment.span,
+                        "segments are numbered 1 to k, largest first",
+                    );
+                    ok = false;
+                    continue;
+                }
+            };
+            if let Some(m) = most {
+                if n as usize > m {
+                    self.err(CheckError::LabelOutOfRange {
+                        segment: n,
+                        most: m,
+                        span: segment.span,
+                    });
+                    ok = false;
+                    continue;
+                }
+            }
+            if let Some(first) = spans.get(&(n as usize)) {
+                self.err(CheckError::Conflict {
+                    what: format!("a label for segment {n}"),
+                    span: segment.span,
+                    first: *first,
+                });
+                ok = false;
+                continue;
+            }
+            spans.insert(n as usize, segment.span);
+            out.insert(n as usize, text.node.clone());
+        }
+        ok.then_some(out)
+    }
+
+    pub(super) fn validate(
+        &mut self,
+        stmt: Option<&Statement>,
+        input: Option<&CheckedInput>,
+    ) -> Option<Option<ValidatePlan>> {
+        let Some(
+            s @ Statement {
+                kind: StatementKind::Validate { path, options },
+                ..
+            },
+        ) = stmt
+        else {
+            return Some(None);
+        };
+        let opts = self.options("validate", options, vocab::VALIDATE_OPTIONS);
+        let column = match opts.get("column") {
+            Some(o) => self.column_name("column", o),
+            None => {
+                self.err(CheckError::MissingOption {
+                    statement: "validate",
+                    option: "column",
+                    span: s.span,
+                    help: "name the column that holds the known grouping, such as `column planted_segment`".into(),
+                });
+                None
+            }
+        };
+        let resolved = self.read_path(path)?;
+        let column = column?;
+        let separator = input
+            .map(|i| i.plan.separator)
+            .unwrap_or(defaults::SEPARATOR);
+        match probe::probe(&resolved, separator as u8) {
+            Ok(p) => {
+                // Columns of the known grouping are checked against its own
+                // header, so swap it in for the lookup.
+                let saved = self.probe.replace(p);
+                let saved_file = std::mem::replace(&mut self.input_file, path.node.clone());
+                let found = self.known_column(&column).is_some();
+                let key_found = match input {
+                    Some(i) => self
+                        .known_column(&Spanned::new(i.plan.key.clone(), i.key_span))
+                        .is_some(),
+                    None => false,
+                };
+                self.probe = saved;
+                self.input_file = saved_file;
+                (found && key_found).then(|| {
+                    Some(ValidatePlan {
+                        path: path.node.clone(),
+                        resolved,
+                        column: column.node.clone(),
+                    })
+                })
+            }
+            Err(e) => {
+                self.file_problem(path, &e);
+                None
+            }
+        }
+    }
+
+    /// The `compare with` statement: an earlier assignments file, which
+    /// must exist and have a `segment` column.
+    pub(super) fn compare(&mut self, stmt: Option<&Statement>) -> Option<Option<ComparePlan>> {
+        let Some(Statement {
+            kind: StatementKind::Compare { path },
+            ..
+        }) = stmt
+        else {
+            return Some(None);
+        };
+        let resolved = self.read_path(path)?;
+        match probe::probe(&resolved, b',') {
+            Ok(p) if p.column("segment").is_some() => Some(Some(ComparePlan {
+                path: path.node.clone(),
+                resolved,
+            })),
+            Ok(_) => {
+                self.err(CheckError::FileUnreadable {
+                    path: path.node.clone(),
+                    reason: "it has no `segment` column".into(),
+                    span: path.span,
+                    help: "compare with a file written by `save assignments` or `assort assign`"
+                        .into(),
+                });
+                None
+            }
+            Err(e) => {
+                self.file_problem(path, &e);
+                None
+            }
+        }
+    }
+}

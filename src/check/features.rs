@@ -1,0 +1,442 @@
+//! What is clustered: `categories`, `features`, and the rules per feature
+//! (`missing`, `reshape`, `weight`), with the cautions on personal data.
+
+use super::*;
+
+impl Checker {
+    pub(super) fn categories(
+        &mut self,
+        stmts: &[Statement],
+        input: Option<&CheckedInput>,
+    ) -> Option<Vec<CategoryPlan>> {
+        let mut out = Vec::new();
+        let mut seen: HashMap<String, Span> = HashMap::new();
+        let mut ok = true;
+        for s in stmts {
+            let StatementKind::Categories { columns, options } = &s.kind else {
+                continue;
+            };
+            let opts = self.options("categories", options, vocab::CATEGORIES_OPTIONS);
+            let weight = match opts.get("weight") {
+                Some(o) => self.positive("weight", &o.value),
+                None => Some(defaults::WEIGHT),
+            };
+            ok &= weight.is_some();
+            for col in columns {
+                if let Some(prev) = seen.get(&col.node) {
+                    self.err(CheckError::DuplicateColumn {
+                        column: col.node.clone(),
+                        span: col.span,
+                        first: *prev,
+                    });
+                    ok = false;
+                    continue;
+                }
+                seen.insert(col.node.clone(), col.span);
+                self.category_spans.insert(col.node.clone(), col.span);
+                if input.is_some_and(|i| i.plan.key == col.node) {
+                    self.key_clustered(col);
+                    ok = false;
+                    continue;
+                }
+                if self.probe.is_some() && self.known_column(col).is_none() {
+                    ok = false;
+                    continue;
+                }
+                out.push(CategoryPlan {
+                    column: col.node.clone(),
+                    weight: weight.unwrap_or(defaults::WEIGHT),
+                });
+            }
+        }
+        ok.then_some(out)
+    }
+
+    pub(super) fn key_clustered(&mut self, col: &Column) {
+        self.err(CheckError::KeyClustered {
+            column: col.node.clone(),
+            span: col.span,
+        });
+    }
+
+    /// The feature columns, in order, with default rules.
+    pub(super) fn features(
+        &mut self,
+        stmt: Option<&Statement>,
+        input: Option<&CheckedInput>,
+        categories: &Option<Vec<CategoryPlan>>,
+    ) -> Option<Vec<(String, Span)>> {
+        let Some(
+            s @ Statement {
+                kind: StatementKind::Features(choice),
+                ..
+            },
+        ) = stmt
+        else {
+            self.err(CheckError::MissingStatement {
+                span: self.end,
+                keyword: "features",
+                help: "list the numeric columns to segment on, such as `features visits_per_month, basket_value`, or write `features all`".into(),
+            });
+            return None;
+        };
+        let key = input.map(|i| i.plan.key.clone());
+        let cats: Vec<String> = categories
+            .iter()
+            .flatten()
+            .map(|c| c.column.clone())
+            .collect();
+        let mut out: Vec<(String, Span)> = Vec::new();
+        let mut ok = true;
+        match choice {
+            FeatureChoice::Listed(cols) => {
+                for col in cols {
+                    if let Some((_, first)) = out.iter().find(|(n, _)| *n == col.node) {
+                        self.err(CheckError::DuplicateColumn {
+                            column: col.node.clone(),
+                            span: col.span,
+                            first: *first,
+                        });
+                        ok = false;
+                        continue;
+                    }
+                    if key.as_deref() == Some(col.node.as_str()) {
+                        self.key_clustered(col);
+                        ok = false;
+                        continue;
+                    }
+                    if let Some(&first) = self.category_spans.get(&col.node) {
+                        self.err(CheckError::DuplicateColumn {
+                            column: col.node.clone(),
+                            span: col.span,
+                            first,
+                        });
+                        ok = false;
+                        continue;
+                    }
+                    match self.known_column(col) {
+                        Some(info) if info.mostly_numeric() => {
+                            let at = self
+                                .probe
+                                .as_ref()
+                                .and_then(|p| p.columns.iter().position(|c| c.name == info.name))
+                                .unwrap_or(0);
+                            self.err(CheckError::NotANumberInData {
+                                file: self.input_file.clone(),
+                                line: info.text_line.unwrap_or(0),
+                                column: at + 1,
+                                name: info.name.clone(),
+                                found: clipped(&info.text_example.clone().unwrap_or_default(), 60),
+                                span: col.span,
+                            });
+                            ok = false;
+                        }
+                        Some(info) if info.kind == ColumnKind::Text => {
+                            self.err(CheckError::TextFeature {
+                                column: col.node.clone(),
+                                example: clipped(&info.text_example.unwrap_or_default(), 60),
+                                span: col.span,
+                            });
+                            ok = false;
+                        }
+                        Some(_) => out.push((col.node.clone(), col.span)),
+                        None => ok = false,
+                    }
+                }
+            }
+            FeatureChoice::AllNumeric { except } => {
+                for col in except {
+                    ok &= self.known_column(col).is_some();
+                }
+                let probe = self.probe.as_ref()?;
+                for c in &probe.columns {
+                    let excluded = except.iter().any(|e| e.node == c.name)
+                        || key.as_deref() == Some(c.name.as_str())
+                        || cats.contains(&c.name);
+                    if !excluded && c.kind == ColumnKind::Numeric {
+                        out.push((c.name.clone(), s.span));
+                    }
+                }
+            }
+        }
+        if ok && out.is_empty() && self.probe.is_some() {
+            self.err(CheckError::NoFeatures {
+                span: s.span,
+                help: "name at least one numeric column".into(),
+            });
+            return None;
+        }
+        ok.then_some(out)
+    }
+
+    /// Warns about clustered columns whose names suggest personal data,
+    /// unless the recipe acknowledges them.
+    pub(super) fn cautions(
+        &mut self,
+        stmts: &[Statement],
+        features: Option<&[(String, Span)]>,
+        categories: Option<&[CategoryPlan]>,
+    ) {
+        let mut acknowledged: Vec<&str> = Vec::new();
+        for s in stmts {
+            if let StatementKind::Acknowledge { columns, reason } = &s.kind {
+                if reason.node.trim().is_empty() {
+                    self.err(CheckError::EmptyReason { span: reason.span });
+                    continue;
+                }
+                acknowledged.extend(columns.iter().map(|c| c.node.as_str()));
+            }
+        }
+        let mut used: Vec<(String, Span)> = features.unwrap_or_default().to_vec();
+        for c in categories.unwrap_or_default() {
+            let span = self
+                .category_spans
+                .get(&c.column)
+                .copied()
+                .unwrap_or_default();
+            used.push((c.column.clone(), span));
+        }
+        for (column, span) in used {
+            if acknowledged.contains(&column.as_str()) {
+                continue;
+            }
+            if let Some((kind, word)) = caution::sensitive(&column) {
+                self.err(CheckError::PersonalData {
+                    column,
+                    kind: kind.describe(),
+                    word,
+                    span,
+                });
+            }
+        }
+    }
+
+    /// Applies `missing`, `reshape` and `weight` statements to the features.
+    pub(super) fn feature_rules(
+        &mut self,
+        stmts: &[Statement],
+        features: Vec<(String, Span)>,
+    ) -> Vec<FeaturePlan> {
+        let mut plans: Vec<FeaturePlan> = features
+            .iter()
+            .map(|(name, _)| FeaturePlan {
+                column: name.clone(),
+                missing: MissingRule::Refuse,
+                clip: None,
+                transform: Transform::None,
+                weight: defaults::WEIGHT,
+            })
+            .collect();
+        let mut missing_set: HashMap<String, Span> = HashMap::new();
+        let mut transform_set: HashMap<String, Span> = HashMap::new();
+        let mut clip_set: HashMap<String, Span> = HashMap::new();
+        let mut weight_set: HashMap<String, Span> = HashMap::new();
+        let mut global_missing: Option<(MissingRule, Span)> = None;
+
+        for s in stmts {
+            match &s.kind {
+                StatementKind::Missing { action, columns } => {
+                    let Some(rule) = self.missing_rule(action) else {
+                        continue;
+                    };
+                    match columns {
+                        None => {
+                            if let Some((_, first)) = global_missing {
+                                self.err(CheckError::Conflict {
+                                    what: "a rule for missing values in all columns".into(),
+                                    span: s.span,
+                                    first,
+                                });
+                            } else {
+                                global_missing = Some((rule, s.span));
+                            }
+                        }
+                        Some(cols) => {
+                            for col in cols {
+                                if let Some(f) = self.feature_of(&mut plans, col, "missing") {
+                                    if self.once(
+                                        &mut missing_set,
+                                        col,
+                                        "a missing-value rule for this column",
+                                    ) {
+                                        f_mut(&mut plans, f).missing = rule;
+                                    }
+                                }
+                            }
+                        }
+                    }
+                }
+                StatementKind::Reshape { columns, action } => {
+                    for col in columns {
+                        let Some(f) = self.feature_of(&mut plans, col, "reshape") else {
+                            continue;
+                        };
+                        match action {
+                            ReshapeAction::Clip(range) => {
+                                let (lo, hi) = (&range.node.0, &range.node.1);
+                                if !(0.0..=1.0).contains(&lo.value)
+                                    || !(0.0..=1.0).contains(&hi.value)
+                                    || lo.value >= hi.value
+                                {
+                                    self.err(CheckError::BadValue {
+                                        option: "clip".into(),
+                                        found: format!("`{}..{}`", lo.raw, hi.raw),
+                                        expected:
+                                            "two quantile fractions from 0 to 1, the lower first"
+                                                .into(),
+                                        span: range.span,
+                                        help: "for example `clip 0.01..0.99` keeps the middle 98%"
+                                            .into(),
+                                    });
+                                    break;
+                                }
+                                if self.once(&mut clip_set, col, "a clip for this column") {
+                                    f_mut(&mut plans, f).clip = Some((lo.value, hi.value));
+                                }
+                            }
+                            ReshapeAction::Named(word) => {
+                                let Some(t) = self.word_choice(
+                                    "reshaping",
+                                    word,
+                                    &Transform::NAMES,
+                                    Transform::parse,
+                                ) else {
+                                    break;
+                                };
+                                if self.once(&mut transform_set, col, "a transform for this column")
+                                {
+                                    f_mut(&mut plans, f).transform = t;
+                                }
+                            }
+                        }
+                    }
+                }
+                StatementKind::Weight { columns, value } => {
+                    let Some(w) = self.positive(
+                        "weight",
+                        &Spanned::new(Value::Number(value.node.clone()), value.span),
+                    ) else {
+                        continue;
+                    };
+                    for col in columns {
+                        if let Some(f) = self.feature_of(&mut plans, col, "weight") {
+                            if self.once(&mut weight_set, col, "a weight for this column") {
+                                f_mut(&mut plans, f).weight = w;
+                            }
+                        }
+                    }
+                }
+                _ => {}
+            }
+        }
+        if let Some((rule, _)) = global_missing {
+            for p in plans.iter_mut() {
+                if !missing_set.contains_key(&p.column) {
+                    p.missing = rule;
+                }
+            }
+        }
+        // Gaps the sample already shows, with no rule to handle them: the
+        // run would stop at the first; say so now.
+        for (p, (_, span)) in plans.iter().zip(&features) {
+            if p.missing != MissingRule::Refuse {
+                continue;
+            }
+            let blanks = self
+                .probe
+                .as_ref()
+                .and_then(|pr| pr.column(&p.column))
+                .map_or(0, |c| c.blanks);
+            if blanks > 0 {
+                let sampled = self.probe.as_ref().map_or(0, |pr| pr.sampled);
+                self.err(CheckError::GapsWithoutRule {
+                    column: p.column.clone(),
+                    blanks,
+                    sampled,
+                    span: *span,
+                });
+            }
+        }
+        plans
+    }
+
+    /// Records that `col` got a rule of this kind; a second one conflicts.
+    pub(super) fn once(
+        &mut self,
+        set: &mut HashMap<String, Span>,
+        col: &Column,
+        what: &str,
+    ) -> bool {
+        if let Some(first) = set.get(&col.node) {
+            self.err(CheckError::Conflict {
+                what: format!("{what} (`{}`)", col.node),
+                span: col.span,
+                first: *first,
+            });
+            return false;
+        }
+        set.insert(col.node.clone(), col.span);
+        true
+    }
+
+    /// Index of the feature `col` names, or a diagnostic.
+    pub(super) fn feature_of(
+        &mut self,
+        plans: &mut [FeaturePlan],
+        col: &Column,
+        statement: &str,
+    ) -> Option<usize> {
+        if let Some(i) = plans.iter().position(|p| p.column == col.node) {
+            return Some(i);
+        }
+        // Report unknown columns as such; known ones as not features.
+        self.probe.as_ref()?;
+        self.known_column(col)?;
+        self.err(CheckError::NotAFeature {
+            column: col.node.clone(),
+            span: col.span,
+            help: format!(
+                "`{statement}` applies to the columns listed in `features`; add `{}` there first",
+                col.node
+            ),
+        });
+        None
+    }
+
+    pub(super) fn missing_rule(&mut self, action: &Spanned<MissingAction>) -> Option<MissingRule> {
+        match &action.node {
+            MissingAction::DropRows => Some(MissingRule::DropRow),
+            MissingAction::Fill(v) => match &v.node {
+                Value::Number(n) if n.value.is_finite() => Some(MissingRule::FillValue(n.value)),
+                Value::Word(w) if w == "median" => Some(MissingRule::FillMedian),
+                Value::Word(w) if w == "mean" => Some(MissingRule::FillMean),
+                Value::Word(w) => {
+                    let suggestion = suggest::nearest(w, vocab::FILL_WORDS);
+                    self.err(CheckError::UnknownWord {
+                        what: "fill",
+                        found: w.clone(),
+                        span: v.span,
+                        choices: "`median`, `mean` or a number".into(),
+                        help: did_you_mean(
+                            &suggestion,
+                            "fill with the column's median, its mean, or a number you choose",
+                        ),
+                    });
+                    None
+                }
+                other => {
+                    self.err(CheckError::BadValue {
+                        option: "fill".into(),
+                        found: format!("`{other}`"),
+                        expected: "`median`, `mean` or a finite number".into(),
+                        span: v.span,
+                        help: "for example `missing fill 0 for coupon_rate`".into(),
+                    });
+                    None
+                }
+            },
+        }
+    }
+
+    // ----------------------------------------------------------- method --
+}

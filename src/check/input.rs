@@ -1,0 +1,253 @@
+//! The `input` statement and the paths and columns it leads to: the data file
+//! probed, a separator or a header that gives the file away, paths judged
+//! by the sandbox, columns looked up with a "did you mean".
+
+use super::*;
+
+impl Checker {
+    pub(super) fn input(&mut self, stmt: Option<&Statement>) -> Option<CheckedInput> {
+        let Some(
+            s @ Statement {
+                kind: StatementKind::Input { path, options },
+                ..
+            },
+        ) = stmt
+        else {
+            self.err(CheckError::MissingStatement {
+                span: self.end,
+                keyword: "input",
+                help: r#"name the data file and its key, such as `input "data/members.csv" key member_id`"#.into(),
+            });
+            return None;
+        };
+        let opts = self.options("input", options, vocab::INPUT_OPTIONS);
+        let separator = match opts.get("separator") {
+            None => Some(defaults::SEPARATOR),
+            Some(o) => match &o.value.node {
+                Value::Text(t) if t.chars().count() == 1 && t.is_ascii() => t.chars().next(),
+                other => {
+                    self.err(CheckError::BadValue {
+                        option: "separator".into(),
+                        found: other.to_string(),
+                        expected: "one quoted ASCII character".into(),
+                        span: o.value.span,
+                        help: r#"for example `separator ";"`"#.into(),
+                    });
+                    None
+                }
+            },
+        };
+        let key = match opts.get("key") {
+            Some(o) => self.column_name("key", o),
+            None => {
+                self.err(CheckError::MissingOption {
+                    statement: "input",
+                    option: "key",
+                    span: s.span,
+                    help: "the key column identifies each record in the outputs, such as `key member_id`".into(),
+                });
+                None
+            }
+        };
+        let resolved = self.read_path(path)?;
+        self.input_file = path.node.clone();
+        let separator = separator?;
+        let probed = probe::probe(&resolved, separator as u8);
+        if let (Err(ProbeError::Malformed { .. }), Some(sep)) =
+            (&probed, probe::header_separator(&resolved, separator))
+        {
+            // Fields of unequal count under a header with another common
+            // separator in it (decimal commas, say): name the separator.
+            self.wrong_separator(
+                path,
+                sep,
+                format!(
+                    "its header line is separated by `{}`, not `{separator}`",
+                    shown_separator(sep)
+                ),
+            );
+            return None;
+        }
+        match probed {
+            Ok(p) => {
+                if let Some(sep) = p.likely_separator().filter(|&c| c != separator) {
+                    let reason = format!(
+                        "its header is one column, `{}`: the fields seem separated by `{}`, not `{separator}`",
+                        clipped(&p.columns[0].name, 60),
+                        shown_separator(sep)
+                    );
+                    self.wrong_separator(path, sep, reason);
+                    return None;
+                }
+                if let Some((name, a, b)) = p.repeated_name() {
+                    self.err(CheckError::FileUnreadable {
+                        path: path.node.clone(),
+                        reason: format!(
+                            "its header names `{}` twice (fields {a} and {b}), so a recipe cannot say which is meant",
+                            clipped(name, 60)
+                        ),
+                        span: path.span,
+                        help: "rename one of the two columns in the data file".into(),
+                    });
+                    return None;
+                }
+                self.probe = Some(p)
+            }
+            Err(e) => {
+                self.file_problem(path, &e);
+                return None;
+            }
+        }
+        let key = key?;
+        self.known_column(&key)?;
+        if let Some((k, first, again)) = probe::repeated_key(&resolved, separator as u8, &key.node)
+        {
+            self.err(CheckError::RepeatedKey {
+                column: key.node.clone(),
+                key: clipped(&k, 40),
+                file: path.node.clone(),
+                first,
+                again,
+                span: key.span,
+            });
+            return None;
+        }
+        Some(CheckedInput {
+            plan: InputPlan {
+                path: path.node.clone(),
+                resolved,
+                key: key.node.clone(),
+                separator,
+            },
+            key_span: key.span,
+        })
+    }
+
+    /// The input seems separated by `sep`, not the separator in use.
+    pub(super) fn wrong_separator(&mut self, path: &Spanned<String>, sep: char, reason: String) {
+        self.err(CheckError::FileUnreadable {
+            path: path.node.clone(),
+            reason,
+            span: path.span,
+            help: format!(
+                "add `separator \"{}\"` to the `input` statement",
+                shown_separator(sep)
+            ),
+        });
+    }
+
+    pub(super) fn file_problem(&mut self, path: &Spanned<String>, e: &ProbeError) {
+        let (reason, help) = match e {
+            ProbeError::NotFound => {
+                let help = match self.nearest_file(&path.node) {
+                    Some(f) => format!("did you mean `{f}`?"),
+                    None => format!("paths are read relative to the recipe's folder, here `{}`", self.folder.display()),
+                };
+                self.err(CheckError::FileNotFound {
+                    path: path.node.clone(),
+                    span: path.span,
+                    help,
+                });
+                return;
+            }
+            ProbeError::Unreadable(r) => (r.clone(), "check the file's permissions".to_string()),
+            ProbeError::Malformed { line, reason } => (
+                format!("line {line}: {reason}"),
+                "every line needs as many fields as the header; quote fields that hold the separator".to_string(),
+            ),
+            ProbeError::NoHeader => (
+                "it has no header line".to_string(),
+                "the first line must name the columns".to_string(),
+            ),
+            ProbeError::NotUtf8 { line } => (
+                format!("line {line} is not UTF-8 text"),
+                NOT_UTF8_HELP.to_string(),
+            ),
+        };
+        self.err(CheckError::FileUnreadable {
+            path: path.node.clone(),
+            reason,
+            span: path.span,
+            help,
+        });
+    }
+
+    /// The file beside a missing one whose name is closest to it.
+    pub(super) fn nearest_file(&self, written: &str) -> Option<String> {
+        let p = Path::new(written);
+        let name = p.file_name()?.to_str()?;
+        let dir = self.folder.join(p.parent().unwrap_or(Path::new("")));
+        let mut names: Vec<String> = std::fs::read_dir(dir)
+            .ok()?
+            .filter_map(|e| e.ok()?.file_name().into_string().ok())
+            .collect();
+        names.sort();
+        let best = suggest::nearest(name, names.iter().map(String::as_str))?;
+        Some(p.with_file_name(best).to_string_lossy().into_owned())
+    }
+
+    /// Resolves a recipe path against the recipe's folder, refusing paths
+    /// that lead outside it.
+    pub(super) fn safe_path(&mut self, path: &Spanned<String>) -> Option<PathBuf> {
+        let resolved = self.sandbox.resolve(&path.node);
+        if resolved.is_none() {
+            self.err(CheckError::PathOutside {
+                path: path.node.clone(),
+                span: path.span,
+            });
+        }
+        resolved
+    }
+
+    /// A path the recipe reads: checked like any path, and remembered.
+    pub(super) fn read_path(&mut self, path: &Spanned<String>) -> Option<PathBuf> {
+        let resolved = self.safe_path(path)?;
+        self.reads
+            .push((paths::Sandbox::real_path(&resolved), path.span));
+        Some(resolved)
+    }
+
+    // ---------------------------------------------------------- columns --
+
+    /// The column's header entry, or an `unknown column` diagnostic. When
+    /// the header could not be read, no column can be judged and `None`
+    /// comes back silently (the file's own problem was reported).
+    pub(super) fn known_column(&mut self, col: &Column) -> Option<probe::ColumnInfo> {
+        let probe = self.probe.as_ref()?;
+        if let Some(info) = probe.column(&col.node) {
+            return Some(info.clone());
+        }
+        let suggestion = suggest::nearest(&col.node, probe.names());
+        let names: Vec<&str> = probe.names().collect();
+        let listing = if names.len() <= 12 {
+            format!("its columns are {}", names.join(", "))
+        } else {
+            format!("its columns include {}, ...", names[..12].join(", "))
+        };
+        self.err(CheckError::UnknownColumn {
+            column: col.node.clone(),
+            file: self.input_file.clone(),
+            span: col.span,
+            help: did_you_mean(&suggestion, &listing),
+        });
+        None
+    }
+
+    /// An option value that names a column.
+    pub(super) fn column_name(&mut self, option: &str, o: &OptionPair) -> Option<Column> {
+        match &o.value.node {
+            Value::Word(w) | Value::Text(w) => Some(Spanned::new(w.clone(), o.value.span)),
+            other => {
+                self.err(CheckError::BadValue {
+                    option: option.into(),
+                    found: other.kind_name().into(),
+                    expected: "a column name".into(),
+                    span: o.value.span,
+                    help: "write the column's name as in the header, quoted if it has spaces"
+                        .into(),
+                });
+                None
+            }
+        }
+    }
+}

@@ -1,0 +1,368 @@
+//! The method: `kmeans` or `tree`, their options and the values of k.
+
+use super::*;
+
+impl Checker {
+    /// The one method statement: `kmeans` or `tree`.
+    pub(super) fn method(
+        &mut self,
+        kmeans: Option<&Statement>,
+        tree: Option<&Statement>,
+    ) -> Option<MethodPlan> {
+        match (kmeans, tree) {
+            (Some(a), Some(b)) => {
+                let (first, second) = if a.span.start < b.span.start {
+                    (a, b)
+                } else {
+                    (b, a)
+                };
+                self.err(CheckError::Conflict {
+                    what: "a method (`kmeans` or `tree`)".into(),
+                    span: second.keyword.span,
+                    first: first.keyword.span,
+                });
+                None
+            }
+            (Some(s), None) => self.kmeans(s).map(MethodPlan::KMeans),
+            (None, Some(s)) => self.tree(s).map(MethodPlan::Tree),
+            (None, None) => {
+                self.err(CheckError::NoMethod { span: self.end });
+                None
+            }
+        }
+    }
+
+    /// The required `k` option of a method statement.
+    pub(super) fn required_ks(
+        &mut self,
+        statement: &'static str,
+        opts: &HashMap<&'static str, &OptionPair>,
+        span: Span,
+    ) -> Option<Vec<usize>> {
+        match opts.get("k") {
+            None => {
+                self.err(CheckError::MissingOption {
+                    statement,
+                    option: "k",
+                    span,
+                    help:
+                        "a number of segments such as `k 5`, or a range to compare such as `k 2..9`"
+                            .into(),
+                });
+                None
+            }
+            Some(o) => self.ks(&o.value),
+        }
+    }
+
+    pub(super) fn tree(&mut self, s: &Statement) -> Option<TreePlan> {
+        let StatementKind::Tree { options } = &s.kind else {
+            return None;
+        };
+        let opts = self.options("tree", options, vocab::TREE_OPTIONS);
+        let height = match (opts.get("height"), opts.get("k")) {
+            (Some(h), Some(k)) => {
+                self.err(CheckError::Conflict {
+                    what: "where to cut the tree (`k` or `height`)".into(),
+                    span: h.name.span,
+                    first: k.name.span,
+                });
+                return None;
+            }
+            (Some(h), None) => Some(self.positive("height", &h.value)?),
+            (None, _) => None,
+        };
+        let ks = match height {
+            Some(_) => Some(Vec::new()),
+            None => self.required_ks("tree", &opts, s.span),
+        };
+        let word = |o: &OptionPair| match &o.value.node {
+            Value::Word(w) => Some(Spanned::new(w.clone(), o.value.span)),
+            _ => None,
+        };
+        let linkage = match opts.get("linkage") {
+            None => Some((Linkage::Ward, None)),
+            Some(o) => match word(o) {
+                Some(w) => self
+                    .word_choice("linkage", &w, &Linkage::NAMES, Linkage::parse)
+                    .map(|l| (l, Some(o.value.span))),
+                None => {
+                    self.bad_value(
+                        "linkage",
+                        &o.value.node,
+                        "a linkage name",
+                        o.value.span,
+                        "for example `linkage ward`",
+                    );
+                    None
+                }
+            },
+        };
+        let distance = match opts.get("distance") {
+            None => Some((Metric::Euclidean, None)),
+            Some(o) => match word(o) {
+                Some(w) => self
+                    .word_choice("distance", &w, &Metric::NAMES, Metric::parse)
+                    .map(|m| (m, Some(o.value.span))),
+                None => {
+                    self.bad_value(
+                        "distance",
+                        &o.value.node,
+                        "a distance name",
+                        o.value.span,
+                        "for example `distance manhattan`",
+                    );
+                    None
+                }
+            },
+        };
+        if let (Some((l, l_span)), Some((m, Some(m_span)))) = (linkage, distance) {
+            if l.needs_euclidean() && m != Metric::Euclidean {
+                self.err(CheckError::NeedsEuclidean {
+                    linkage: l.name(),
+                    distance: m.name(),
+                    span: m_span,
+                    linkage_span: l_span.unwrap_or(s.keyword.span),
+                });
+                return None;
+            }
+        }
+        let micro = match opts.get("micro") {
+            None => None,
+            Some(o) => {
+                let m = self.whole_option(&opts, "micro", 2, 500)?;
+                if let Some(most) = ks.as_ref().and_then(|k| k.last()) {
+                    if m <= *most {
+                        self.err(CheckError::ImpossibleK {
+                            reason: format!("{m} micro-segments cannot be cut into {most} segments"),
+                            span: o.value.span,
+                            help: "micro-segments are the tree's leaves; use many more than the largest k, such as `micro 500`".into(),
+                        });
+                        return None;
+                    }
+                }
+                let rows = self.probe.as_ref().and_then(|p| p.rows);
+                if let Some(n) = rows.filter(|&n| m > n) {
+                    self.err(CheckError::ImpossibleK {
+                        reason: format!("{m} micro-segments from {n} records"),
+                        span: o.value.span,
+                        help: format!("each micro-segment needs a record of its own; with {n} records, a tree over every record (no `micro`) is the better route"),
+                    });
+                    return None;
+                }
+                // The tree is built over the micro-segments, so they are
+                // held to the linkage's limit like records are.
+                if let Some((l, _)) = linkage {
+                    let limit = TreeLimit::of(l);
+                    if m > limit.records {
+                        let why = limit
+                            .reason(m, l.name())
+                            .replace("every record", "every micro-segment");
+                        self.bad_value(
+                            "micro",
+                            &o.value.node,
+                            &format!(
+                                "at most {} for `{}` linkage",
+                                crate::text::thousands(limit.records),
+                                l.name()
+                            ),
+                            o.value.span,
+                            &format!(
+                                "{why}; a few hundred to a few thousand micro-segments are usual"
+                            ),
+                        );
+                        return None;
+                    }
+                }
+                Some(MicroPlan {
+                    segments: m,
+                    restarts: defaults::MICRO_RESTARTS,
+                    rounds: defaults::ROUNDS,
+                    tolerance: defaults::TOLERANCE,
+                })
+            }
+        };
+        if let (None, Some((l, _))) = (&micro, linkage) {
+            let rows = self
+                .probe
+                .as_ref()
+                .and_then(|p| p.rows.or(p.estimated_rows));
+            let limit = TreeLimit::of(l);
+            if let Some(n) = rows.filter(|&n| n > limit.records) {
+                self.err(CheckError::large_tree(n, l.name(), limit, s.keyword.span));
+            }
+        }
+        Some(TreePlan {
+            ks: ks?,
+            height,
+            linkage: linkage?.0,
+            distance: distance?.0,
+            micro,
+        })
+    }
+
+    pub(super) fn kmeans(&mut self, s: &Statement) -> Option<KMeansPlan> {
+        let StatementKind::KMeans { options } = &s.kind else {
+            return None;
+        };
+        let opts = self.options("kmeans", options, vocab::KMEANS_OPTIONS);
+        let ks = self.required_ks("kmeans", &opts, s.span);
+        let restarts = self
+            .whole_option(&opts, "restarts", 1, defaults::RESTARTS)
+            .and_then(|r| self.at_most(&opts, "restarts", r, MOST_RESTARTS, "each restart is a whole k-means fit; 10 to 100 restarts find the best partition in practice"));
+        let rounds = self
+            .whole_option(&opts, "rounds", 1, defaults::ROUNDS)
+            .and_then(|r| self.at_most(&opts, "rounds", r, MOST_ROUNDS, "k-means converges in tens to hundreds of rounds; a cap this high only hides a run that does not converge"));
+        let sample = match opts.get("sample") {
+            None => Some(None),
+            Some(o) => match self.whole_option(&opts, "sample", SMALLEST_SAMPLE, 200_000) {
+                Some(v) => {
+                    let most = ks.as_ref().and_then(|k| k.last().copied()).unwrap_or(0);
+                    if v < PER_SEGMENT_IN_SAMPLE * most {
+                        self.bad_value(
+                            "sample",
+                            &o.value.node,
+                            &format!(
+                                "at least {PER_SEGMENT_IN_SAMPLE} records per segment ({} at k = {most})",
+                                PER_SEGMENT_IN_SAMPLE * most
+                            ),
+                            o.value.span,
+                            "a sample of 100,000 to 500,000 records is usual for millions of records",
+                        );
+                        None
+                    } else {
+                        Some(Some(v))
+                    }
+                }
+                None => None,
+            },
+        };
+        let tolerance = match opts.get("tolerance") {
+            None => Some(defaults::TOLERANCE),
+            Some(o) => match &o.value.node {
+                Value::Number(n) if n.value.is_finite() && n.value >= 0.0 => Some(n.value),
+                other => {
+                    self.bad_value(
+                        "tolerance",
+                        other,
+                        "a number, 0 or more",
+                        o.value.span,
+                        "for example `tolerance 1e-6`; 0 runs until no record moves",
+                    );
+                    None
+                }
+            },
+        };
+        let seeding = match opts.get("seeding") {
+            None => Some(Seeding::KMeansPlusPlus),
+            Some(o) => match &o.value.node {
+                Value::Word(w) => self.word_choice(
+                    "seeding",
+                    &Spanned::new(w.clone(), o.value.span),
+                    &Seeding::NAMES,
+                    Seeding::parse,
+                ),
+                other => {
+                    self.bad_value(
+                        "seeding",
+                        other,
+                        "`kmeans++` or `random-partition`",
+                        o.value.span,
+                        "k-means++ spreads the first centres out; it is the usual choice",
+                    );
+                    None
+                }
+            },
+        };
+        Some(KMeansPlan {
+            ks: ks?,
+            restarts: restarts?,
+            rounds: rounds?,
+            tolerance: tolerance?,
+            seeding: seeding?,
+            sample: sample?,
+        })
+    }
+
+    /// The values of k, checked against each other and the record count.
+    pub(super) fn ks(&mut self, value: &Spanned<Value>) -> Option<Vec<usize>> {
+        let rows = self.probe.as_ref().and_then(|p| p.rows);
+        let impossible = |reason: String, help: &str| CheckError::ImpossibleK {
+            reason,
+            span: value.span,
+            help: help.to_string(),
+        };
+        let (lo, hi) = match &value.node {
+            Value::Number(n) => match n.as_whole() {
+                Some(k) => (k, k),
+                None => {
+                    self.bad_value(
+                        "k",
+                        &value.node,
+                        "a whole number or a range",
+                        value.span,
+                        "for example `k 5` or `k 2..9`",
+                    );
+                    return None;
+                }
+            },
+            Value::Range(a, b) => match (a.as_whole(), b.as_whole()) {
+                (Some(a), Some(b)) => (a, b),
+                _ => {
+                    self.bad_value(
+                        "k",
+                        &value.node,
+                        "a range of whole numbers",
+                        value.span,
+                        "for example `k 2..9`",
+                    );
+                    return None;
+                }
+            },
+            other => {
+                self.bad_value(
+                    "k",
+                    other,
+                    "a whole number or a range",
+                    value.span,
+                    "for example `k 5` or `k 2..9`",
+                );
+                return None;
+            }
+        };
+        if hi > MAX_K || hi - lo > MAX_K_SPAN {
+            self.err(impossible(
+                format!("assort fits k up to {MAX_K} and at most {} values of k in one sweep, found {lo}..{hi}", MAX_K_SPAN + 1),
+                "narrow the range; a sweep is for comparing a handful of candidate k",
+            ));
+            return None;
+        }
+        if lo > hi {
+            self.err(impossible(
+                format!("the range {lo}..{hi} is empty"),
+                "write the smaller number first, such as `k 2..9`",
+            ));
+            return None;
+        }
+        if lo < 2 {
+            self.err(impossible(
+                format!("k must be at least 2, found {lo}"),
+                "one segment is the whole data; segmenting starts at two",
+            ));
+            return None;
+        }
+        if let Some(n) = rows {
+            if hi as usize > n {
+                self.err(impossible(
+                    format!(
+                        "k {hi} is more than the {n} records in `{}`",
+                        self.input_file
+                    ),
+                    "each segment needs at least one record",
+                ));
+                return None;
+            }
+        }
+        Some((lo as usize..=hi as usize).collect())
+    }
+}
