@@ -532,19 +532,23 @@ pub fn run_with(
         Some(v) => Some(validate(plan, v, &assignments)?),
         None => None,
     };
-    let comparison = match &plan.compare {
-        Some(c) => {
-            let old = comparison::read_assignments(&c.resolved, &c.path)?;
+    // The `compare with` file, read once for the comparison and the guard.
+    let compared_with = match &plan.compare {
+        Some(c) => Some(comparison::read_assignments(&c.resolved, &c.path)?),
+        None => None,
+    };
+    let comparison = match (&plan.compare, &compared_with) {
+        (Some(c), Some(old)) => {
             let new = comparison::from_run(&assignments, |s| label_of(s).unwrap_or_default());
             Some(
-                comparison::compare(&c.path, &old, "this run", &new)?.with_key_names(
+                comparison::compare(&c.path, old, "this run", &new)?.with_key_names(
                     comparison::key_name(&c.resolved).as_deref(),
                     Some(&plan.input.key),
                 ),
             )
         }
         // Last run's assignments, given with `previous`, show the migration.
-        None => match last.as_ref().and_then(|l| l.assignments.as_ref()) {
+        _ => match last.as_ref().and_then(|l| l.assignments.as_ref()) {
             Some((path, old)) => {
                 let new = comparison::from_run(&assignments, |s| label_of(s).unwrap_or_default());
                 Some(comparison::compare(path, old, "this run", &new)?)
@@ -555,6 +559,7 @@ pub fn run_with(
 
     previous::check_labels_stay(
         plan,
+        compared_with.as_deref(),
         &assignments,
         &prepared,
         &fit.labels,

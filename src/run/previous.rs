@@ -220,6 +220,13 @@ fn mapped_centres(model: &SegmentModel, prepared: &Prepared) -> Array2<f64> {
     let width = prepared.matrix.ncols();
     let nf = model.features.len();
     let mut out = Array2::zeros((model.centres.len(), width));
+    // Where each of the model's categories starts among its columns.
+    let mut their_offsets = HashMap::new();
+    let mut their_offset = nf;
+    for c in &model.categories {
+        their_offsets.insert(c.column.as_str(), (their_offset, c));
+        their_offset += c.levels.len();
+    }
     for (s, centre) in model.centres.iter().enumerate() {
         for (f, ours) in prepared.features.iter().enumerate() {
             let Some(at) = model.features.iter().position(|m| m.column == ours.column) else {
@@ -227,12 +234,6 @@ fn mapped_centres(model: &SegmentModel, prepared: &Prepared) -> Array2<f64> {
             };
             let original = model.features[at].to_original(centre[at]);
             out[[s, f]] = model::prepared_value(ours, original).unwrap_or(0.0);
-        }
-        let mut their_offset = nf;
-        let mut their_offsets = HashMap::new();
-        for c in &model.categories {
-            their_offsets.insert(c.column.as_str(), (their_offset, c));
-            their_offset += c.levels.len();
         }
         let mut offset = prepared.features.len();
         for ours in &prepared.categories {
@@ -438,6 +439,7 @@ pub fn match_segments<'k>(
 /// run gave segment n, the run stops before writing anything.
 pub fn check_labels_stay(
     plan: &crate::plan::Plan,
+    compared_with: Option<&[Assigned]>,
     assignments: &super::Assignments,
     prepared: &Prepared,
     labels: &[u32],
@@ -454,16 +456,24 @@ pub fn check_labels_stay(
     };
     let mut moves = Vec::new();
     let source;
-    let old_assignments = match &plan.compare {
-        Some(c) => Some((c.path.clone(), c.resolved.clone())),
-        None => saved(OutputKind::Assignments).map(|o| (o.path.clone(), o.resolved.clone())),
+    // The `compare with` file, already read by the run; else the
+    // assignments this recipe saved last time.
+    let saved_old;
+    let old_assignments: Option<(&str, &[Assigned])> = match (&plan.compare, compared_with) {
+        (Some(c), Some(old)) => Some((c.path.as_str(), old)),
+        _ => match saved(OutputKind::Assignments) {
+            // A file that cannot be read as assignments proves nothing here.
+            Some(o) => match super::comparison::read_assignments(&o.resolved, &o.path) {
+                Ok(v) => {
+                    saved_old = v;
+                    Some((o.path.as_str(), saved_old.as_slice()))
+                }
+                Err(_) => return Ok(()),
+            },
+            None => None,
+        },
     };
-    if let Some((shown, path)) = old_assignments {
-        // A file that cannot be read as assignments proves nothing here;
-        // `compare` itself reports it.
-        let Ok(old) = super::comparison::read_assignments(&path, &shown) else {
-            return Ok(());
-        };
+    if let Some((shown, old)) = old_assignments {
         source = format!("`{shown}`");
         let now: HashMap<&str, usize> = assignments.iter().map(|a| (a.key, a.segment)).collect();
         for (&n, label) in &plan.labels {
