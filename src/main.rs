@@ -388,7 +388,7 @@ fn score_summary(s: &run::model::ScoreSummary) -> String {
     let mut out = format!(
         "assigned {} of {}\n",
         plural(s.assigned, "record"),
-        s.records
+        assort::text::thousands(s.records)
     );
     let lines = [
         (&s.filled, "values filled with the training fill value"),
@@ -750,9 +750,5 @@ fn with_plan(
 }
 
 fn plural(n: usize, word: &str) -> String {
-    if n == 1 {
-        format!("1 {word}")
-    } else {
-        format!("{n} {word}s")
-    }
+    assort::text::count(n, word)
 }

@@ -50,6 +50,8 @@ pub struct InputPlan {
     pub resolved: PathBuf,
     pub key: String,
     pub separator: char,
+    /// The decimal mark of the data's numbers.
+    pub decimal: crate::check::probe::DecimalMark,
 }
 
 #[derive(Debug, Clone, Serialize)]

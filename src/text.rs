@@ -1,7 +1,8 @@
 //! Small text helpers shared by messages, tables and reports.
 
 /// A whole number with a comma between thousands: `1234567` → `1,234,567`.
-pub fn thousands(n: usize) -> String {
+/// Takes any unsigned integer type.
+pub fn thousands(n: impl Unsigned) -> String {
     let digits = n.to_string();
     let mut out = String::with_capacity(digits.len() + digits.len() / 3);
     for (i, c) in digits.chars().enumerate() {
@@ -13,16 +14,43 @@ pub fn thousands(n: usize) -> String {
     out
 }
 
+/// The unsigned integer types [`thousands`] takes.
+pub trait Unsigned: std::fmt::Display {}
+impl Unsigned for usize {}
+impl Unsigned for u64 {}
+impl Unsigned for u128 {}
+
+/// A count with its noun, singular for one: `count(1, "value")` → `1 value`,
+/// `count(1200, "value")` → `1,200 values`.
+pub fn count(n: usize, noun: &str) -> String {
+    if n == 1 {
+        format!("1 {noun}")
+    } else {
+        format!("{} {noun}s", thousands(n))
+    }
+}
+
 #[cfg(test)]
 mod tests {
-    use super::thousands;
+    use super::{count, thousands};
+
+    #[test]
+    fn counts_take_the_singular_for_one() {
+        assert_eq!(count(1, "blank value"), "1 blank value");
+        assert_eq!(count(0, "record"), "0 records");
+        assert_eq!(count(12_000, "record"), "12,000 records");
+    }
 
     #[test]
     fn thousands_are_separated_by_commas() {
-        assert_eq!(thousands(0), "0");
-        assert_eq!(thousands(999), "999");
-        assert_eq!(thousands(1000), "1,000");
-        assert_eq!(thousands(10_000_000), "10,000,000");
-        assert_eq!(thousands(123_456), "123,456");
+        assert_eq!(thousands(0usize), "0");
+        assert_eq!(thousands(999usize), "999");
+        assert_eq!(thousands(1000usize), "1,000");
+        assert_eq!(thousands(10_000_000u64), "10,000,000");
+        assert_eq!(thousands(123_456usize), "123,456");
+        assert_eq!(
+            thousands(9_000_000_000_000_000_000_000u128),
+            "9,000,000,000,000,000,000,000"
+        );
     }
 }

@@ -66,6 +66,40 @@ fn a_semicolon_file_read_with_commas_gets_the_separator_suggestion() {
 }
 
 #[test]
+fn a_decimal_comma_is_named_at_its_data_line_and_read_when_declared() {
+    let rows = ordinary();
+    let points = data(&rows.iter().map(String::as_str).collect::<Vec<_>>());
+    let commas = points.replace(',', ";").replace('.', ",");
+    let case = case_with(&commas, "features a, b\nkmeans k 2 restarts 3");
+    case.edit(RECIPE, "key id", "key id separator \";\"");
+    // Undeclared: the message points at the data line, not at categories.
+    case.assort(&["check", RECIPE], &[])
+        .fails()
+        .stderr_has("`d.csv` line 3, column 3 (`b`): found `0,5`, expected a number")
+        .stderr_has("give `input` the option `decimal \",\"`");
+    nothing_written(&case);
+    // Declared: the same numbers as the file written with points, so the
+    // same segments, byte for byte.
+    case.edit(RECIPE, "separator \";\"", "separator \";\" decimal \",\"");
+    case.assort(&["run", RECIPE], &[]).ok();
+    let with_points = case_with(&points, "features a, b\nkmeans k 2 restarts 3");
+    with_points.assort(&["run", RECIPE], &[]).ok();
+    assert_eq!(case.read("out/a.csv"), with_points.read("out/a.csv"));
+    // A point in a decimal-comma file is refused at its line, not guessed.
+    let mixed = commas.replacen("0,5", "0.5", 1);
+    case.write("d.csv", &mixed);
+    case.assort(&["run", RECIPE], &[])
+        .fails()
+        .stderr_has("found `0.5`, expected a number")
+        .stderr_has("written with a decimal `.` while the file is read with `,`");
+    // The decimal mark cannot be the separator.
+    case.edit(RECIPE, "separator \";\"", "separator \",\"");
+    case.assort(&["check", RECIPE], &[])
+        .fails()
+        .stderr_has("expected a mark other than the separator");
+}
+
+#[test]
 fn values_too_large_to_scale_stop_the_run_instead_of_flattening_the_feature() {
     let mut rows = ordinary();
     rows[3] = "k3,1e308,0.5".into();
@@ -87,7 +121,8 @@ fn absurd_restarts_rounds_and_micro_segments_are_refused_at_check() {
     case_with(&text, "features a, b\nkmeans k 2 restarts 1000000000")
         .assort(&["check", RECIPE], &[])
         .fails()
-        .stderr_has("expected a whole number up to 10,000");
+        .stderr_has("expected a whole number up to 10,000")
+        .stderr_has("1,000,000,000 k-means fits of 12 records");
     case_with(&text, "features a, b\nkmeans k 2 rounds 1000000000")
         .assort(&["check", RECIPE], &[])
         .fails()
@@ -96,9 +131,21 @@ fn absurd_restarts_rounds_and_micro_segments_are_refused_at_check() {
     case_with(&text, "features a, b\ntree linkage ward k 2 micro 50")
         .assort(&["check", RECIPE], &[])
         .fails()
-        .stderr_has("50 micro-segments from 12 records");
-    // Micro-segments beyond what the linkage's matrix can hold.
+        .stderr_has("12 records are too few for more than 2 micro-")
+        .stderr_has("a tree over every record (no `micro`) is the better route");
+    // Micro-segments of about one record each cost a k-means fit with k
+    // near n and summarise nothing: the predicted cost is in the message.
     let many: Vec<String> = (0..25_000)
+        .map(|i| format!("k{i},{},{}", i % 7, i % 3))
+        .collect();
+    let text = data(&many.iter().map(String::as_str).collect::<Vec<_>>());
+    case_with(&text, "features a, b\ntree linkage ward k 2 micro 24000")
+        .assort(&["check", RECIPE], &[])
+        .fails()
+        .stderr_has("expected at most 5,000 for 25,000 records")
+        .stderr_has("600,000,000 distance measurements a round");
+    // Micro-segments beyond what the linkage's matrix can hold.
+    let many: Vec<String> = (0..150_000)
         .map(|i| format!("k{i},{},{}", i % 7, i % 3))
         .collect();
     let text = data(&many.iter().map(String::as_str).collect::<Vec<_>>());

@@ -259,7 +259,7 @@ fn a_missing_value_without_a_rule_is_located_and_a_rule_suggested() {
     small(&case, "id,a,b\n1,1.0,2.0\n2,,2.5\n3,2.0,3.0\n4,9.0,9.0\n");
     case.run("r.assort")
         .fails()
-        .stderr_has("`a` has 1 blank values in the first 4 records, and no rule for them")
+        .stderr_has("`a` has 1 blank value in the first 4 records, and no rule for them")
         .stderr_has("missing fill median for a");
     // Past the sample: the run stops at its place.
     let case = Case::empty();
@@ -349,7 +349,7 @@ fn log_of_zero_is_refused_at_its_place() {
     )
     .write(
         "r.assort",
-        "input \"data.csv\" key id\nfeatures a, b\nreshape a log\nkmeans k 2\n",
+        "input \"data.csv\" key id\nfeatures a, b\ntransform a log\nkmeans k 2\n",
     );
     case.run("r.assort")
         .fails()
@@ -968,7 +968,7 @@ fn assigning_the_training_data_with_the_model_reproduces_the_run() {
         &[],
     )
     .ok()
-    .stderr_has("assigned 6000 records of 6000")
+    .stderr_has("assigned 6,000 records of 6,000")
     .stderr_has("values filled with the training fill value: basket_value 81");
     assert_eq!(
         std::fs::read(case.path("out/again.csv")).unwrap(),
@@ -1256,7 +1256,7 @@ fn a_piped_session_builds_runs_varies_and_saves_a_recipe() {
                   features tenure_months, visits_per_month, basket_value,\n\
                   \x20        share_fresh, share_bulk, share_prepared\n\
                   missing fill median\n\
-                  reshape basket_value log1p\n\
+                  transform basket_value log1p\n\
                   kmeans k 2..5 restarts 5\n\
                   :run\n\
                   kmeans k 4 restarts 5\n\

@@ -266,7 +266,7 @@ fn mangled_data_files_are_checked_and_run_without_panic() {
     let recipe_path = dir.path().join("r.assort");
     std::fs::write(
         &recipe_path,
-        "input \"d.csv\" key id\nfeatures a, b\ncategories c\nmissing fill median\nreshape a log1p\nreshape b clip 0.1..0.9\nkmeans k 2..3 restarts 2\n",
+        "input \"d.csv\" key id\nfeatures a, b\ncategories c\nmissing fill median\ntransform a log1p\ntransform b clip 0.1..0.9\nkmeans k 2..3 restarts 2\n",
     )
     .unwrap();
     let clean =

@@ -68,6 +68,7 @@ impl Checker {
         &mut self,
         stmt: Option<&Statement>,
         choose: Option<ChooseK>,
+        ks: Option<&[usize]>,
     ) -> Option<EvidencePlan> {
         let mut plan = EvidencePlan {
             gap: None,
@@ -81,12 +82,24 @@ impl Checker {
         }) = stmt
         {
             let opts = self.options("evidence", options, vocab::EVIDENCE_OPTIONS);
-            if opts.contains_key("gap") {
-                plan.gap = Some(self.whole_option(&opts, "gap", 2, defaults::EVIDENCE_SETS)?);
-            }
-            if opts.contains_key("stability") {
-                plan.stability =
-                    Some(self.whole_option(&opts, "stability", 2, defaults::EVIDENCE_SETS)?);
+            let values_of_k = ks.map_or(1, <[usize]>::len) as u128;
+            for (name, what) in [("gap", "reference sets"), ("stability", "resamples")] {
+                if !opts.contains_key(name) {
+                    continue;
+                }
+                let sets = self.whole_option(&opts, name, 2, defaults::EVIDENCE_SETS)?;
+                let fits = sets as u128 * values_of_k * defaults::EVIDENCE_RESTARTS as u128;
+                let why = format!(
+                    "{} {what} for {values_of_k} values of k with {} restarts each is {}; 20 to 100 are usual",
+                    crate::text::thousands(sets),
+                    defaults::EVIDENCE_RESTARTS,
+                    self.fits_cost(fits, "reclusterings")
+                );
+                let sets = self.at_most(&opts, name, sets, MOST_EVIDENCE_SETS, &why)?;
+                match name {
+                    "gap" => plan.gap = Some(sets),
+                    _ => plan.stability = Some(sets),
+                }
             }
             if let Some(o) = opts.get("silhouette") {
                 plan.silhouette = match &o.value.node {
@@ -207,7 +220,8 @@ impl Checker {
         let separator = input
             .map(|i| i.plan.separator)
             .unwrap_or(defaults::SEPARATOR);
-        match probe::probe(&resolved, separator as u8) {
+        let decimal = input.map(|i| i.plan.decimal).unwrap_or_default();
+        match probe::probe(&resolved, separator as u8, decimal) {
             Ok(p) => {
                 // Columns of the known grouping are checked against its own
                 // header, so swap it in for the lookup.
@@ -248,7 +262,7 @@ impl Checker {
             return Some(None);
         };
         let resolved = self.read_path(path)?;
-        match probe::probe(&resolved, b',') {
+        match probe::probe(&resolved, b',', DecimalMark::Point) {
             Ok(p) if p.column("segment").is_some() => Some(Some(ComparePlan {
                 path: path.node.clone(),
                 resolved,

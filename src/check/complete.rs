@@ -75,7 +75,7 @@ fn after(first: &str, prev: &str, count: usize, columns: &[String]) -> Vec<Strin
         "missing" if count == 1 => owned(&["drop", "fill"]),
         "missing" if prev == "fill" => owned(&vocab::FILL_WORDS),
         "missing" => owned(&["for"]),
-        "reshape" if count >= 2 => {
+        "transform" if count >= 2 => {
             let mut c = owned(&Transform::NAMES);
             c.push("clip".into());
             c.extend(columns.iter().cloned());

@@ -120,10 +120,7 @@ pub enum CheckError {
     #[error(
         "`{file}` line {line}, column {column} (`{name}`): found `{found}`, expected a number"
     )]
-    #[diagnostic(
-        code(assort::not_a_number),
-        help("mend the value in the data; leave a field blank to mark a value as missing, and write numbers with digits")
-    )]
+    #[diagnostic(code(assort::not_a_number), help("{help}"))]
     NotANumberInData {
         file: String,
         line: u64,
@@ -132,6 +129,7 @@ pub enum CheckError {
         found: String,
         #[label("this feature")]
         span: Span,
+        help: String,
     },
 
     #[error("`{column}` is the key column, so it cannot also be clustered on")]
@@ -372,16 +370,15 @@ pub enum CheckError {
         help: String,
     },
 
-    #[error(
-        "`{column}` has {blanks} blank values in the first {sampled} records, and no rule for them"
-    )]
+    #[error("`{column}` has {blanks} in the first {sampled} records, and no rule for them")]
     #[diagnostic(
         code(assort::gaps_without_rule),
         help("say what a gap means: `missing fill median for {column}`, `missing drop for {column}`, or one `missing` rule for every column")
     )]
     GapsWithoutRule {
         column: String,
-        blanks: usize,
+        /// "1 blank value", "3 blank values".
+        blanks: String,
         sampled: usize,
         #[label("has gaps")]
         span: Span,

@@ -1,5 +1,5 @@
 //! What is clustered: `categories`, `features`, and the rules per feature
-//! (`missing`, `reshape`, `weight`), with the cautions on personal data.
+//! (`missing`, `transform`, `weight`), with the cautions on personal data.
 
 use super::*;
 
@@ -115,20 +115,13 @@ impl Checker {
                         continue;
                     }
                     match self.known_column(col) {
-                        Some(info) if info.mostly_numeric() => {
-                            let at = self
-                                .probe
-                                .as_ref()
-                                .and_then(|p| p.columns.iter().position(|c| c.name == info.name))
-                                .unwrap_or(0);
-                            self.err(CheckError::NotANumberInData {
-                                file: self.input_file.clone(),
-                                line: info.text_line.unwrap_or(0),
-                                column: at + 1,
-                                name: info.name.clone(),
-                                found: clipped(&info.text_example.clone().unwrap_or_default(), 60),
-                                span: col.span,
-                            });
+                        // Numbers with a stray value, or numbers written
+                        // with a decimal comma: the data line is at fault.
+                        Some(info)
+                            if info.mostly_numeric()
+                                || info.comma_numbers == info.texts && info.texts > 0 =>
+                        {
+                            self.not_a_number_in_data(&info, col.span);
                             ok = false;
                         }
                         Some(info) if info.kind == ColumnKind::Text => {
@@ -211,7 +204,37 @@ impl Checker {
         }
     }
 
-    /// Applies `missing`, `reshape` and `weight` statements to the features.
+    /// A sampled value of a numeric column that is not a number, located
+    /// in the data, with a decimal comma named as such.
+    fn not_a_number_in_data(&mut self, info: &probe::ColumnInfo, span: Span) {
+        let at = self
+            .probe
+            .as_ref()
+            .and_then(|p| p.columns.iter().position(|c| c.name == info.name))
+            .unwrap_or(0);
+        let found = info.text_example.clone().unwrap_or_default();
+        let help = if info.comma_numbers == info.texts {
+            format!(
+                "of the sampled values of `{}`, {} written with a decimal comma, such as `{}`: give `input` the option `decimal \",\"`",
+                info.name,
+                if info.texts == 1 { "1 is".to_string() } else { format!("{} are", crate::text::thousands(info.texts)) },
+                clipped(&found, 20)
+            )
+        } else {
+            probe::number_help(&found, self.decimal)
+        };
+        self.err(CheckError::NotANumberInData {
+            file: self.input_file.clone(),
+            line: info.text_line.unwrap_or(0),
+            column: at + 1,
+            name: info.name.clone(),
+            found: clipped(&found, 60),
+            span,
+            help,
+        });
+    }
+
+    /// Applies `missing`, `transform` and `weight` statements to the features.
     pub(super) fn feature_rules(
         &mut self,
         stmts: &[Statement],
@@ -266,13 +289,13 @@ impl Checker {
                         }
                     }
                 }
-                StatementKind::Reshape { columns, action } => {
+                StatementKind::Transform { columns, action } => {
                     for col in columns {
-                        let Some(f) = self.feature_of(&mut plans, col, "reshape") else {
+                        let Some(f) = self.feature_of(&mut plans, col, "transform") else {
                             continue;
                         };
                         match action {
-                            ReshapeAction::Clip(range) => {
+                            TransformAction::Clip(range) => {
                                 let (lo, hi) = (&range.node.0, &range.node.1);
                                 if !(0.0..=1.0).contains(&lo.value)
                                     || !(0.0..=1.0).contains(&hi.value)
@@ -294,7 +317,7 @@ impl Checker {
                                     f_mut(&mut plans, f).clip = Some((lo.value, hi.value));
                                 }
                             }
-                            ReshapeAction::Named(word) => {
+                            TransformAction::Named(word) => {
                                 let Some(t) = self.word_choice(
                                     "reshaping",
                                     word,
@@ -351,7 +374,7 @@ impl Checker {
                 let sampled = self.probe.as_ref().map_or(0, |pr| pr.sampled);
                 self.err(CheckError::GapsWithoutRule {
                     column: p.column.clone(),
-                    blanks,
+                    blanks: crate::text::count(blanks, "blank value"),
                     sampled,
                     span: *span,
                 });

@@ -21,22 +21,8 @@ impl Checker {
             return None;
         };
         let opts = self.options("input", options, vocab::INPUT_OPTIONS);
-        let separator = match opts.get("separator") {
-            None => Some(defaults::SEPARATOR),
-            Some(o) => match &o.value.node {
-                Value::Text(t) if t.chars().count() == 1 && t.is_ascii() => t.chars().next(),
-                other => {
-                    self.err(CheckError::BadValue {
-                        option: "separator".into(),
-                        found: other.to_string(),
-                        expected: "one quoted ASCII character".into(),
-                        span: o.value.span,
-                        help: r#"for example `separator ";"`"#.into(),
-                    });
-                    None
-                }
-            },
-        };
+        let separator = self.separator(&opts);
+        let decimal = self.decimal(&opts, separator);
         let key = match opts.get("key") {
             Some(o) => self.column_name("key", o),
             None => {
@@ -51,53 +37,9 @@ impl Checker {
         };
         let resolved = self.read_path(path)?;
         self.input_file = path.node.clone();
-        let separator = separator?;
-        let probed = probe::probe(&resolved, separator as u8);
-        if let (Err(ProbeError::Malformed { .. }), Some(sep)) =
-            (&probed, probe::header_separator(&resolved, separator))
-        {
-            // Fields of unequal count under a header with another common
-            // separator in it (decimal commas, say): name the separator.
-            self.wrong_separator(
-                path,
-                sep,
-                format!(
-                    "its header line is separated by `{}`, not `{separator}`",
-                    shown_separator(sep)
-                ),
-            );
-            return None;
-        }
-        match probed {
-            Ok(p) => {
-                if let Some(sep) = p.likely_separator().filter(|&c| c != separator) {
-                    let reason = format!(
-                        "its header is one column, `{}`: the fields seem separated by `{}`, not `{separator}`",
-                        clipped(&p.columns[0].name, 60),
-                        shown_separator(sep)
-                    );
-                    self.wrong_separator(path, sep, reason);
-                    return None;
-                }
-                if let Some((name, a, b)) = p.repeated_name() {
-                    self.err(CheckError::FileUnreadable {
-                        path: path.node.clone(),
-                        reason: format!(
-                            "its header names `{}` twice (fields {a} and {b}), so a recipe cannot say which is meant",
-                            clipped(name, 60)
-                        ),
-                        span: path.span,
-                        help: "rename one of the two columns in the data file".into(),
-                    });
-                    return None;
-                }
-                self.probe = Some(p)
-            }
-            Err(e) => {
-                self.file_problem(path, &e);
-                return None;
-            }
-        }
+        let (separator, decimal) = (separator?, decimal?);
+        self.decimal = decimal;
+        self.probe_input(path, &resolved, separator, decimal)?;
         let key = key?;
         self.known_column(&key)?;
         if let Some((k, first, again)) = probe::repeated_key(&resolved, separator as u8, &key.node)
@@ -118,9 +60,124 @@ impl Checker {
                 resolved,
                 key: key.node.clone(),
                 separator,
+                decimal,
             },
             key_span: key.span,
         })
+    }
+
+    /// The `separator` option: one ASCII character, `,` unless given.
+    fn separator(&mut self, opts: &HashMap<&'static str, &OptionPair>) -> Option<char> {
+        let Some(o) = opts.get("separator") else {
+            return Some(defaults::SEPARATOR);
+        };
+        match &o.value.node {
+            Value::Text(t) if t.chars().count() == 1 && t.is_ascii() => t.chars().next(),
+            other => {
+                self.bad_value(
+                    "separator",
+                    other,
+                    "one quoted ASCII character",
+                    o.value.span,
+                    r#"for example `separator ";"`"#,
+                );
+                None
+            }
+        }
+    }
+
+    /// The `decimal` option: `"."` (unless given) or `","`, which the
+    /// separator must then not be.
+    fn decimal(
+        &mut self,
+        opts: &HashMap<&'static str, &OptionPair>,
+        separator: Option<char>,
+    ) -> Option<DecimalMark> {
+        let Some(o) = opts.get("decimal") else {
+            return Some(DecimalMark::Point);
+        };
+        let mark = match &o.value.node {
+            Value::Text(t) if t == "." => DecimalMark::Point,
+            Value::Text(t) if t == "," => DecimalMark::Comma,
+            other => {
+                self.bad_value(
+                    "decimal",
+                    other,
+                    r#"`"."` or `","`"#,
+                    o.value.span,
+                    r#"the mark between whole and fraction in the data: `decimal ","` for values written like `1,5`"#,
+                );
+                return None;
+            }
+        };
+        if separator == Some(mark.char()) {
+            self.bad_value(
+                "decimal",
+                &o.value.node,
+                "a mark other than the separator",
+                o.value.span,
+                r#"files with decimal commas separate fields by another character, most often `;`: add `separator ";"`"#,
+            );
+            return None;
+        }
+        Some(mark)
+    }
+
+    /// Reads the input's header and sample into `self.probe`, naming a
+    /// separator or header the file gives away.
+    fn probe_input(
+        &mut self,
+        path: &Spanned<String>,
+        resolved: &Path,
+        separator: char,
+        decimal: DecimalMark,
+    ) -> Option<()> {
+        let probed = probe::probe(resolved, separator as u8, decimal);
+        if let (Err(ProbeError::Malformed { .. }), Some(sep)) =
+            (&probed, probe::header_separator(resolved, separator))
+        {
+            // Fields of unequal count under a header with another common
+            // separator in it (decimal commas, say): name the separator.
+            self.wrong_separator(
+                path,
+                sep,
+                format!(
+                    "its header line is separated by `{}`, not `{separator}`",
+                    shown_separator(sep)
+                ),
+            );
+            return None;
+        }
+        let p = match probed {
+            Ok(p) => p,
+            Err(e) => {
+                self.file_problem(path, &e);
+                return None;
+            }
+        };
+        if let Some(sep) = p.likely_separator().filter(|&c| c != separator) {
+            let reason = format!(
+                "its header is one column, `{}`: the fields seem separated by `{}`, not `{separator}`",
+                clipped(&p.columns[0].name, 60),
+                shown_separator(sep)
+            );
+            self.wrong_separator(path, sep, reason);
+            return None;
+        }
+        if let Some((name, a, b)) = p.repeated_name() {
+            self.err(CheckError::FileUnreadable {
+                path: path.node.clone(),
+                reason: format!(
+                    "its header names `{}` twice (fields {a} and {b}), so a recipe cannot say which is meant",
+                    clipped(name, 60)
+                ),
+                span: path.span,
+                help: "rename one of the two columns in the data file".into(),
+            });
+            return None;
+        }
+        self.probe = Some(p);
+        Some(())
     }
 
     /// The input seems separated by `sep`, not the separator in use.

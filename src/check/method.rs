@@ -141,13 +141,32 @@ impl Checker {
                         return None;
                     }
                 }
-                let rows = self.probe.as_ref().and_then(|p| p.rows);
-                if let Some(n) = rows.filter(|&n| m > n) {
-                    self.err(CheckError::ImpossibleK {
-                        reason: format!("{m} micro-segments from {n} records"),
-                        span: o.value.span,
-                        help: format!("each micro-segment needs a record of its own; with {n} records, a tree over every record (no `micro`) is the better route"),
-                    });
+                // Micro-segments of a record or two cost a k-means fit
+                // with k near n (time n² a round) and summarise nothing.
+                if let Some(n) = self.records().filter(|&n| m * PER_MICRO_SEGMENT > n) {
+                    let most = n / PER_MICRO_SEGMENT;
+                    let tree = match linkage.map(|(l, _)| TreeLimit::of(l)) {
+                        Some(limit) if n <= limit.records => format!("with {} records, a tree over every record (no `micro`) is the better route", crate::text::thousands(n)),
+                        _ => "use fewer micro-segments, such as `micro 500`".to_string(),
+                    };
+                    let largest_k = ks.as_ref().and_then(|k| k.last().copied()).unwrap_or(1);
+                    let expected = if most > largest_k {
+                        format!("at most {} for {} records ({PER_MICRO_SEGMENT} records per micro-segment on average)", crate::text::thousands(most), crate::text::thousands(n))
+                    } else {
+                        format!("no `micro` here: {} records are too few for more than {largest_k} micro-segments of {PER_MICRO_SEGMENT} records on average", crate::text::thousands(n))
+                    };
+                    self.bad_value(
+                        "micro",
+                        &o.value.node,
+                        &expected,
+                        o.value.span,
+                        &format!(
+                            "{} micro-segments cost a k-means fit with k = {m}: {} distance measurements a round, {} restarts; {tree}",
+                            crate::text::thousands(m),
+                            crate::text::thousands(m as u128 * n as u128),
+                            defaults::MICRO_RESTARTS
+                        ),
+                    );
                     return None;
                 }
                 // The tree is built over the micro-segments, so they are
@@ -207,12 +226,25 @@ impl Checker {
         };
         let opts = self.options("kmeans", options, vocab::KMEANS_OPTIONS);
         let ks = self.required_ks("kmeans", &opts, s.span);
+        let values_of_k = ks.as_ref().map_or(1, Vec::len) as u128;
         let restarts = self
             .whole_option(&opts, "restarts", 1, defaults::RESTARTS)
-            .and_then(|r| self.at_most(&opts, "restarts", r, MOST_RESTARTS, "each restart is a whole k-means fit; 10 to 100 restarts find the best partition in practice"));
+            .and_then(|r| {
+                let cost = self.fits_cost(r as u128 * values_of_k, "k-means fits");
+                let why = format!("that is {cost}, one per restart and value of k; 10 to 100 restarts find the best partition in practice");
+                self.at_most(&opts, "restarts", r, MOST_RESTARTS, &why)
+            });
         let rounds = self
             .whole_option(&opts, "rounds", 1, defaults::ROUNDS)
-            .and_then(|r| self.at_most(&opts, "rounds", r, MOST_ROUNDS, "k-means converges in tens to hundreds of rounds; a cap this high only hides a run that does not converge"));
+            .and_then(|r| {
+                let most_k = ks.as_ref().and_then(|k| k.last().copied()).unwrap_or(2);
+                let per_round = match self.records() {
+                    Some(n) => format!("each measuring {} records against up to {most_k} centres", crate::text::thousands(n)),
+                    None => format!("each measuring every record against up to {most_k} centres"),
+                };
+                let why = format!("a fit could then take {} rounds, {per_round}; k-means converges in tens to hundreds of rounds, and a cap this high only hides a run that does not converge", crate::text::thousands(r));
+                self.at_most(&opts, "rounds", r, MOST_ROUNDS, &why)
+            });
         let sample = match opts.get("sample") {
             None => Some(None),
             Some(o) => match self.whole_option(&opts, "sample", SMALLEST_SAMPLE, 200_000) {

@@ -27,7 +27,7 @@ pub mod vocab;
 use crate::plan::*;
 use crate::syntax::{self, ast::*};
 use diagnostic::{did_you_mean, CheckError, Problem};
-use probe::{ColumnKind, Probe, ProbeError};
+use probe::{ColumnKind, DecimalMark, Probe, ProbeError};
 use std::collections::{BTreeMap, HashMap};
 use std::path::{Component, Path, PathBuf};
 
@@ -136,6 +136,7 @@ pub fn check_with(source: &RecipeSource, options: &CheckOptions) -> Checked {
             .collect(),
         probe: None,
         input_file: String::new(),
+        decimal: DecimalMark::Point,
         end: end_span(&source.text),
         category_spans: HashMap::new(),
     };
@@ -261,6 +262,10 @@ pub const MAX_K: i64 = 1_000_000;
 /// value, short of a run that would not end.
 const MOST_RESTARTS: usize = 10_000;
 const MOST_ROUNDS: usize = 100_000;
+/// The fewest records a micro-segment of `tree ... micro` holds on average.
+const PER_MICRO_SEGMENT: usize = 5;
+/// The most reference sets or resamples `evidence` takes.
+const MOST_EVIDENCE_SETS: usize = 1_000;
 /// The smallest sample `kmeans ... sample` takes.
 const SMALLEST_SAMPLE: i64 = 1_000;
 /// Records per segment a k-means sample must allow at the largest k.
@@ -282,6 +287,8 @@ struct Checker {
     /// The input's header and sample, once read.
     probe: Option<Probe>,
     input_file: String,
+    /// The input's decimal mark, once `input` is checked.
+    decimal: DecimalMark,
     /// The recipe's last character, where a missing statement is reported.
     end: Span,
     /// Where each category column was named.
@@ -332,12 +339,23 @@ impl Checker {
         let mut first: HashMap<&str, &Statement> = HashMap::new();
         for s in stmts {
             if let StatementKind::Unknown { word } = &s.kind {
-                let suggestion = suggest::nearest(&word.node, vocab::statement_words());
-                let all: Vec<_> = vocab::statement_words().collect();
+                let help = match vocab::renamed_statement(&word.node) {
+                    Some((new, why)) => {
+                        format!(
+                            "`{}` is now called `{new}`: {why}; did you mean `{new}`?",
+                            word.node
+                        )
+                    }
+                    None => {
+                        let suggestion = suggest::nearest(&word.node, vocab::statement_words());
+                        let all: Vec<_> = vocab::statement_words().collect();
+                        did_you_mean(&suggestion, &format!("statements are {}", all.join(", ")))
+                    }
+                };
                 self.err(CheckError::UnknownStatement {
                     word: word.node.clone(),
                     span: word.span,
-                    help: did_you_mean(&suggestion, &format!("statements are {}", all.join(", "))),
+                    help,
                 });
                 continue;
             }
@@ -396,7 +414,7 @@ impl Checker {
             .and_then(|p| p.as_ref())
             .map_or(0, |p| p.highest);
         let labels = self.labels(stmts, ks.as_deref(), label_room);
-        let evidence = self.evidence(find("evidence"), choose);
+        let evidence = self.evidence(find("evidence"), choose, ks.as_deref());
         let validate = self.validate(find("validate"), input.as_ref());
         let compare = self.compare(find("compare"));
         let is_tree = matches!(method, Some(MethodPlan::Tree(_)));

@@ -170,7 +170,7 @@ impl Checker {
         key: Option<&str>,
     ) -> Option<ComparePlan> {
         let resolved = self.safe_path(file)?;
-        match probe::probe(&resolved, b',') {
+        match probe::probe(&resolved, b',', crate::check::probe::DecimalMark::Point) {
             Ok(p) => {
                 let lacks: Vec<String> = ["segment"]
                     .into_iter()

@@ -21,6 +21,30 @@ pub enum ColumnKind {
     Blank,
 }
 
+/// How a data file writes the decimal mark: `1.5` or `1,5`.
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, Hash, Default, serde::Serialize, serde::Deserialize,
+)]
+#[serde(rename_all = "lowercase")]
+pub enum DecimalMark {
+    #[default]
+    Point,
+    Comma,
+}
+
+impl DecimalMark {
+    pub fn char(self) -> char {
+        match self {
+            DecimalMark::Point => '.',
+            DecimalMark::Comma => ',',
+        }
+    }
+
+    pub fn is_point(&self) -> bool {
+        *self == DecimalMark::Point
+    }
+}
+
 #[derive(Debug, Clone)]
 pub struct ColumnInfo {
     pub name: String,
@@ -34,6 +58,9 @@ pub struct ColumnInfo {
     pub texts: usize,
     /// Blank values in the sample.
     pub blanks: usize,
+    /// Sampled text values that are numbers written with a decimal comma
+    /// (`1,5`), when the file is read with a decimal point.
+    pub comma_numbers: usize,
     /// Smallest, largest and sum of the sampled numbers.
     pub min: f64,
     pub max: f64,
@@ -162,15 +189,56 @@ pub fn is_blank(field: &str) -> bool {
     field.trim().is_empty()
 }
 
-/// Parses a data field as a finite number.
+/// Parses a data field as a finite number written with a decimal point.
 pub fn parse_number(field: &str) -> Option<f64> {
+    parse_number_in(field, DecimalMark::Point)
+}
+
+/// Parses a data field as a finite number written with the given decimal
+/// mark. With a decimal comma, a point is refused rather than guessed at
+/// (`1.234,5` writes thousands with points in some countries, a decimal in
+/// others).
+pub fn parse_number_in(field: &str, mark: DecimalMark) -> Option<f64> {
     let t = field.trim();
+    if mark == DecimalMark::Comma {
+        if t.contains('.') || t.matches(',').count() > 1 {
+            return None;
+        }
+        return parse_number_in(&t.replace(',', "."), DecimalMark::Point);
+    }
     // Rust's parser also accepts words like `inf` and `NaN`; data values
     // must be written as digits.
     if !t.bytes().any(|b| b.is_ascii_digit()) {
         return None;
     }
     t.parse::<f64>().ok().filter(|v| v.is_finite())
+}
+
+/// What to do about a field that is not a number, read with `decimal`.
+pub fn number_help(field: &str, decimal: DecimalMark) -> String {
+    let t = field.trim().to_ascii_lowercase();
+    let other = match decimal {
+        DecimalMark::Point => DecimalMark::Comma,
+        DecimalMark::Comma => DecimalMark::Point,
+    };
+    if matches!(
+        t.as_str(),
+        "nan" | "inf" | "-inf" | "infinity" | "-infinity" | "+inf"
+    ) {
+        "values must be finite; leave the field blank to mark a missing value".into()
+    } else if parse_number_in(&t, other).is_some() {
+        format!(
+            "the value is written with a decimal `{}` while the file is read with `{}`: give `input` the option `decimal \"{}\"` if the whole file writes numbers so, else mend this value",
+            other.char(),
+            decimal.char(),
+            other.char()
+        )
+    } else {
+        format!(
+            "write numbers with digits and a `{}` for decimals; leave the field blank to mark a missing value",
+            decimal.char()
+        )
+    }
 }
 
 /// Probes already made, by file, separator, size and modification time:
@@ -182,6 +250,7 @@ static CACHE: std::sync::Mutex<Vec<(ProbeKey, Probe)>> = std::sync::Mutex::new(V
 struct ProbeKey {
     path: std::path::PathBuf,
     separator: u8,
+    decimal: DecimalMark,
     len: u64,
     modified: Option<std::time::SystemTime>,
 }
@@ -191,11 +260,12 @@ const CACHE_SIZE: usize = 16;
 
 /// Reads the header and a sample of `path`, or takes them from the cache
 /// when the file has not changed.
-pub fn probe(path: &Path, separator: u8) -> Result<Probe, ProbeError> {
+pub fn probe(path: &Path, separator: u8, decimal: DecimalMark) -> Result<Probe, ProbeError> {
     let meta = std::fs::metadata(path).ok();
     let key = meta.as_ref().map(|m| ProbeKey {
         path: path.to_path_buf(),
         separator,
+        decimal,
         len: m.len(),
         modified: m.modified().ok(),
     });
@@ -208,7 +278,7 @@ pub fn probe(path: &Path, separator: u8) -> Result<Probe, ProbeError> {
             }
         }
     }
-    let fresh = probe_file(path, separator)?;
+    let fresh = probe_file(path, separator, decimal)?;
     if let (Some(k), Ok(mut cache)) = (key, CACHE.lock()) {
         if cache.len() >= CACHE_SIZE {
             cache.remove(0);
@@ -218,15 +288,33 @@ pub fn probe(path: &Path, separator: u8) -> Result<Probe, ProbeError> {
     Ok(fresh)
 }
 
-fn probe_file(path: &Path, separator: u8) -> Result<Probe, ProbeError> {
+fn probe_file(path: &Path, separator: u8, decimal: DecimalMark) -> Result<Probe, ProbeError> {
     let file = File::open(path).map_err(|e| match e.kind() {
         std::io::ErrorKind::NotFound => ProbeError::NotFound,
         _ => ProbeError::Unreadable(e.to_string()),
     })?;
+    let size = file.metadata().ok().map(|m| m.len());
+    probe_reader(file, size, separator, decimal)
+}
+
+/// Probes CSV text in memory: what the checker makes of a data file, for
+/// the fuzz target and tests.
+pub fn probe_bytes(data: &[u8], separator: u8, decimal: DecimalMark) -> Result<Probe, ProbeError> {
+    probe_reader(data, Some(data.len() as u64), separator, decimal)
+}
+
+/// Reads the header and a sample from `input`, whose size in bytes (when
+/// known) scales the record estimate of a file too long to count.
+fn probe_reader<R: std::io::Read>(
+    input: R,
+    size: Option<u64>,
+    separator: u8,
+    decimal: DecimalMark,
+) -> Result<Probe, ProbeError> {
     let mut reader = csv::ReaderBuilder::new()
         .delimiter(separator)
         .has_headers(true)
-        .from_reader(file);
+        .from_reader(input);
     let header = reader.headers().map_err(|e| csv_problem(&e))?.clone();
     if header.is_empty() || header.iter().all(is_blank) {
         return Err(ProbeError::NoHeader);
@@ -241,6 +329,7 @@ fn probe_file(path: &Path, separator: u8) -> Result<Probe, ProbeError> {
             numbers: 0,
             texts: 0,
             blanks: 0,
+            comma_numbers: 0,
             min: f64::INFINITY,
             max: f64::NEG_INFINITY,
             sum: 0.0,
@@ -265,7 +354,7 @@ fn probe_file(path: &Path, separator: u8) -> Result<Probe, ProbeError> {
                 col.blanks += 1;
                 continue;
             }
-            if let Some(v) = parse_number(field) {
+            if let Some(v) = parse_number_in(field, decimal) {
                 col.numbers += 1;
                 col.min = col.min.min(v);
                 col.max = col.max.max(v);
@@ -276,6 +365,9 @@ fn probe_file(path: &Path, separator: u8) -> Result<Probe, ProbeError> {
             } else {
                 col.texts += 1;
                 col.kind = ColumnKind::Text;
+                if decimal.is_point() && parse_number_in(field, DecimalMark::Comma).is_some() {
+                    col.comma_numbers += 1;
+                }
                 if col.text_example.is_none() {
                     col.text_example = Some(field.trim().to_string());
                     col.text_line = Some(line);
@@ -305,9 +397,7 @@ fn probe_file(path: &Path, separator: u8) -> Result<Probe, ProbeError> {
         None
     } else {
         let read = reader.position().byte().max(1) as f64;
-        let size = std::fs::metadata(path)
-            .map(|m| m.len() as f64)
-            .unwrap_or(read);
+        let size = size.map_or(read, |s| s as f64);
         Some((size / read * sampled as f64).round() as usize)
     };
     Ok(Probe {

@@ -65,6 +65,23 @@ impl Checker {
         None
     }
 
+    /// The records the sample counted or estimated, when known.
+    pub(super) fn records(&self) -> Option<usize> {
+        self.probe
+            .as_ref()
+            .and_then(|p| p.rows.or(p.estimated_rows))
+    }
+
+    /// A predicted cost in words for a limit's message: "9,000,000 k-means
+    /// fits of 25,000 records".
+    pub(super) fn fits_cost(&self, fits: u128, what: &str) -> String {
+        let fits = crate::text::thousands(fits);
+        match self.records() {
+            Some(n) => format!("{fits} {what} of {} records", crate::text::thousands(n)),
+            None => format!("{fits} {what}"),
+        }
+    }
+
     pub(super) fn whole_option(
         &mut self,
         opts: &HashMap<&'static str, &OptionPair>,

@@ -8,6 +8,22 @@ pub struct StatementDoc {
     pub example: &'static str,
 }
 
+/// Statement words the language used to have, with the word that replaced
+/// them and why, so an old recipe gets a precise fix instead of a list.
+pub const RENAMED_STATEMENTS: &[(&str, &str, &str)] = &[(
+    "reshape",
+    "transform",
+    "it changes values (log, square root, clipping), not the table's shape",
+)];
+
+/// The word that replaced a retired statement word, with the reason.
+pub fn renamed_statement(word: &str) -> Option<(&'static str, &'static str)> {
+    RENAMED_STATEMENTS
+        .iter()
+        .find(|(old, _, _)| *old == word)
+        .map(|(_, new, why)| (*new, *why))
+}
+
 pub const STATEMENTS: &[StatementDoc] = &[
     StatementDoc {
         word: "recipe",
@@ -40,9 +56,9 @@ pub const STATEMENTS: &[StatementDoc] = &[
         example: "missing fill median",
     },
     StatementDoc {
-        word: "reshape",
+        word: "transform",
         summary: "tames skew: log1p, log, sqrt, or clip at quantiles",
-        example: "reshape basket_value log1p",
+        example: "transform basket_value log1p",
     },
     StatementDoc {
         word: "scale",
@@ -131,6 +147,11 @@ pub const INPUT_OPTIONS: &[OptionDoc] = &[
         name: "separator",
         takes: "one quoted character",
         summary: r#"the field separator, `","` unless given"#,
+    },
+    OptionDoc {
+        name: "decimal",
+        takes: r#"`"."` or `","`"#,
+        summary: r#"the decimal mark of the data's numbers, `"."` unless given; `","` reads `1,5` as one and a half"#,
     },
 ];
 

@@ -177,7 +177,7 @@ pub enum RunError {
     #[error("`{column}` holds values too large to scale (up to {biggest:e}): the sums overflow")]
     #[diagnostic(
         code(assort::run::too_large_to_scale),
-        help("check the column for corrupt values; if they are real, `reshape {column} log1p` or `clip 0..0.99` brings them within range")
+        help("check the column for corrupt values; if they are real, `transform {column} log1p` or `clip 0..0.99` brings them within range")
     )]
     TooLargeToScale { column: String, biggest: f64 },
 

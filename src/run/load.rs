@@ -9,7 +9,7 @@
 //! of what one boxed optional value per field would.
 
 use super::error::{Place, RunError};
-use crate::check::probe::{is_blank, parse_number};
+use crate::check::probe::{is_blank, number_help, parse_number_in, DecimalMark};
 use rayon::prelude::*;
 use std::path::Path;
 
@@ -120,11 +120,13 @@ pub struct Columns<'a> {
     pub key: &'a str,
     pub numeric: &'a [String],
     pub text: &'a [String],
+    /// How the numeric columns write their decimals.
+    pub decimal: DecimalMark,
 }
 
 /// A CSV file opened for reading, with its header.
-pub(crate) struct Opened {
-    pub reader: csv::Reader<std::io::BufReader<std::fs::File>>,
+pub(crate) struct Opened<R = std::fs::File> {
+    pub reader: csv::Reader<std::io::BufReader<R>>,
     pub header: csv::StringRecord,
 }
 
@@ -135,9 +137,16 @@ impl Opened {
             file: shown.to_string(),
             reason: e.to_string(),
         })?;
+        Opened::from_reader(file, shown, separator)
+    }
+}
+
+impl<R: std::io::Read> Opened<R> {
+    /// Reads the header of CSV text from `input`, shown as `shown`.
+    pub fn from_reader(input: R, shown: &str, separator: char) -> Result<Opened<R>, RunError> {
         let mut reader = csv::ReaderBuilder::new()
             .delimiter(separator as u8)
-            .from_reader(std::io::BufReader::new(file));
+            .from_reader(std::io::BufReader::new(input));
         let header = reader.headers().map_err(|e| malformed(shown, &e))?.clone();
         // A name given twice would silently mean its first column.
         for (j, h) in header.iter().enumerate() {
@@ -176,7 +185,26 @@ pub fn load(
     separator: char,
     cols: &Columns<'_>,
 ) -> Result<Table, RunError> {
-    let Opened { mut reader, header } = Opened::new(path, shown, separator)?;
+    read_table(Opened::new(path, shown, separator)?, shown, cols)
+}
+
+/// Reads CSV text from `input` (shown as `shown` in messages), as [`load`]
+/// reads a file.
+pub fn load_from<R: std::io::Read>(
+    input: R,
+    shown: &str,
+    separator: char,
+    cols: &Columns<'_>,
+) -> Result<Table, RunError> {
+    read_table(Opened::from_reader(input, shown, separator)?, shown, cols)
+}
+
+fn read_table<R: std::io::Read>(
+    opened: Opened<R>,
+    shown: &str,
+    cols: &Columns<'_>,
+) -> Result<Table, RunError> {
+    let Opened { mut reader, header } = opened;
     let index_of = |name: &str| {
         header
             .iter()
@@ -214,6 +242,7 @@ pub fn load(
         key_at,
         num_at: &num_at,
         text_at: &text_at,
+        decimal: cols.decimal,
     };
     let width = num_at.len().max(1);
     let mut batch: Vec<csv::ByteRecord> = Vec::new();
@@ -293,6 +322,7 @@ struct Decoder<'a> {
     key_at: usize,
     num_at: &'a [usize],
     text_at: &'a [usize],
+    decimal: DecimalMark,
 }
 
 impl Decoder<'_> {
@@ -337,11 +367,12 @@ impl Decoder<'_> {
                 continue;
             }
             missing[f] = false;
-            values[f] = parse_number(text).ok_or_else(|| RunError::NotANumber {
-                place: place(at),
-                found: crate::check::clipped(text.trim(), 60),
-                help: number_help(text).to_string(),
-            })?;
+            values[f] =
+                parse_number_in(text, self.decimal).ok_or_else(|| RunError::NotANumber {
+                    place: place(at),
+                    found: crate::check::clipped(text.trim(), 60),
+                    help: number_help(text, self.decimal),
+                })?;
         }
         let texts = self
             .text_at
@@ -357,18 +388,6 @@ impl Decoder<'_> {
 }
 
 /// Help for a field that is not a number.
-fn number_help(field: &str) -> &'static str {
-    let t = field.trim().to_ascii_lowercase();
-    if matches!(
-        t.as_str(),
-        "nan" | "inf" | "-inf" | "infinity" | "-infinity" | "+inf"
-    ) {
-        "values must be finite; leave the field blank to mark a missing value"
-    } else {
-        "write numbers with digits and a `.` for decimals; leave the field blank to mark a missing value"
-    }
-}
-
 /// A CSV reading error as a located run error.
 pub(crate) fn malformed(file: &str, e: &csv::Error) -> RunError {
     let line = e.position().map(|p| p.line()).unwrap_or(1);

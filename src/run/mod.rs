@@ -255,6 +255,7 @@ pub struct DataCache {
 struct CacheKey {
     path: std::path::PathBuf,
     separator: char,
+    decimal: crate::check::probe::DecimalMark,
     key: String,
     numeric: Vec<String>,
     text: Vec<String>,
@@ -268,6 +269,7 @@ impl DataCache {
         let key = CacheKey {
             path: plan.input.resolved.clone(),
             separator: plan.input.separator,
+            decimal: plan.input.decimal,
             key: plan.input.key.clone(),
             numeric: plan.features.iter().map(|f| f.column.clone()).collect(),
             text: plan.categories.iter().map(|c| c.column.clone()).collect(),
@@ -283,6 +285,7 @@ impl DataCache {
                     key: &key.key,
                     numeric: &key.numeric,
                     text: &key.text,
+                    decimal: plan.input.decimal,
                 },
             )?;
             self.loads += 1;
@@ -1170,6 +1173,7 @@ fn validate(
             key: &plan.input.key,
             numeric: &[],
             text: &cols,
+            decimal: plan.input.decimal,
         },
     )?;
     let group_of: HashMap<&str, &str> = known

@@ -14,7 +14,7 @@
 use super::error::RunError;
 use super::prepare::{self, CategoryParams, FeatureParams, BLANK_LEVEL};
 use super::{Assignment, Assignments, Outcome};
-use crate::check::probe::{is_blank, parse_number};
+use crate::check::probe::{is_blank, parse_number_in, DecimalMark};
 use crate::engine::{drift, kmeans};
 use ndarray::{Array2, ArrayView2};
 use serde::{Deserialize, Serialize};
@@ -32,6 +32,10 @@ pub struct SegmentModel {
     pub provenance: Provenance,
     pub key: String,
     pub separator: char,
+    /// The decimal mark of the data's numbers; absent in models written
+    /// before it could be chosen, which read decimal points.
+    #[serde(default, skip_serializing_if = "DecimalMark::is_point")]
+    pub decimal: DecimalMark,
     pub features: Vec<FeatureParams>,
     pub categories: Vec<CategoryParams>,
     /// One row per segment, in the clustered space.
@@ -200,6 +204,7 @@ pub fn from_outcome(o: &Outcome, input_sha256: String) -> SegmentModel {
         },
         key: o.plan.input.key.clone(),
         separator: o.plan.input.separator,
+        decimal: o.plan.input.decimal,
         features: o.prepared.features.clone(),
         categories: o.prepared.categories.clone(),
         centres: o.centres.outer_iter().map(|r| r.to_vec()).collect(),
@@ -277,7 +282,7 @@ pub fn score(model: &SegmentModel, table: &Table) -> (Assignments, ScoreSummary)
                         continue 'records;
                     }
                 },
-                Some(text) => match parse_number(text) {
+                Some(text) => match parse_number_in(text, model.decimal) {
                     Some(v) => v,
                     None => {
                         summary.not_numbers[f].1 += 1;

@@ -126,7 +126,7 @@ pub enum MissingAction {
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize)]
-pub enum ReshapeAction {
+pub enum TransformAction {
     Clip(Spanned<(Number, Number)>),
     Named(Spanned<String>),
 }
@@ -159,9 +159,9 @@ pub enum StatementKind {
         action: Spanned<MissingAction>,
         columns: Option<Vec<Column>>,
     },
-    Reshape {
+    Transform {
         columns: Vec<Column>,
-        action: ReshapeAction,
+        action: TransformAction,
     },
     Scale {
         method: Spanned<String>,

@@ -153,7 +153,7 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
                 columns,
             }
         }
-        Rule::reshape_stmt => {
+        Rule::transform_stmt => {
             let action = &rest[1];
             let action = if action.as_rule() == Rule::clip_range {
                 let range = action
@@ -164,18 +164,19 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
                     Some(Spanned {
                         node: Value::Range(lo, hi),
                         span,
-                    }) => ReshapeAction::Clip(Spanned::new((lo, hi), span)),
-                    _ => {
-                        ReshapeAction::Named(Spanned::new("clip".to_string(), span_of(action, off)))
-                    }
+                    }) => TransformAction::Clip(Spanned::new((lo, hi), span)),
+                    _ => TransformAction::Named(Spanned::new(
+                        "clip".to_string(),
+                        span_of(action, off),
+                    )),
                 }
             } else {
-                ReshapeAction::Named(Spanned::new(
+                TransformAction::Named(Spanned::new(
                     action.as_str().to_string(),
                     span_of(action, off),
                 ))
             };
-            StatementKind::Reshape {
+            StatementKind::Transform {
                 columns: columns_of(&rest[0], off),
                 action,
             }

@@ -108,7 +108,7 @@ impl Run {
     #[track_caller]
     pub fn stderr_has(self, text: &str) -> Run {
         assert!(
-            self.stderr().contains(text),
+            self.stderr().contains(text) || unwrapped(&self.stderr()).contains(text),
             "stderr lacks `{text}`:\n{}",
             self.stderr()
         );
@@ -124,4 +124,18 @@ impl Run {
         );
         self
     }
+}
+
+/// Diagnostic text with the renderer's line wrapping undone: a break and
+/// the indent or frame (`│`) that follows it read as one space.
+pub fn unwrapped(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    for (i, line) in text.lines().enumerate() {
+        let line = line.trim_start().trim_start_matches('│').trim();
+        if i > 0 {
+            out.push(' ');
+        }
+        out.push_str(line);
+    }
+    out
 }
