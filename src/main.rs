@@ -281,7 +281,7 @@ fn assign(model_path: &Path, data: &Path, out: Option<&Path>) -> ExitCode {
         let real = |p: &Path| check::paths::Sandbox::real_path(p);
         if real(o) == real(data) || real(o) == real(model_path) {
             eprintln!(
-                "error: `--out {}` would overwrite one of the inputs",
+                "error: `--out {}` would overwrite one of the inputs\n  help: write the segments to a file of their own, such as `--out scored.csv`",
                 o.display()
             );
             return ExitCode::FAILURE;
@@ -337,7 +337,8 @@ fn fmt(check_only: bool, files: &[PathBuf]) -> ExitCode {
         let source = match RecipeSource::read(path) {
             Ok(s) => s,
             Err(e) => {
-                eprintln!("error: cannot read recipe `{}`: {e}", path.display());
+                let (message, help) = RecipeSource::unreadable(path, &e);
+                eprintln!("error: {message}\n  help: {help}");
                 failed = true;
                 continue;
             }
@@ -489,19 +490,29 @@ fn verify(
             &json!({"format": "assort-verify/1", "ok": ok, "diagnostics": diagnostics, "differences": differences, "error": error}),
         );
     };
-    let recorded: record::RunRecord = match std::fs::read(&path)
-        .map_err(|e| e.to_string())
-        .and_then(|b| serde_json::from_slice(&b).map_err(|e| e.to_string()))
-    {
+    let recorded: Result<record::RunRecord, (String, &str)> = match std::fs::read(&path) {
+        Err(e) => Err((
+            e.to_string(),
+            "run the recipe once (`assort run`) to write its record, then verify",
+        )),
+        Ok(b) => serde_json::from_slice(&b).map_err(|e| {
+            (
+                e.to_string(),
+                "the record was edited or damaged; take the committed copy from version control, or run the recipe again to write a new one",
+            )
+        }),
+    };
+    let recorded = match recorded {
         Ok(r) => r,
-        Err(e) => {
+        Err((e, help)) => {
             let message = format!("cannot read the run record `{}`: {e}", shown(&path));
-            let help = "run the recipe once (`assort run`) to write its record";
             if args.json {
                 report(
                     false,
                     Vec::new(),
-                    Some(json!({"message": message, "help": help})),
+                    Some(
+                        json!({"code": "assort::record_unreadable", "severity": "error", "message": message, "help": help}),
+                    ),
                 );
             } else {
                 eprintln!("error: {message}\n  help: {help}");
@@ -528,10 +539,8 @@ fn verify(
         .iter()
         .map(|o| (o.path.clone(), record::file_sha256(&o.resolved)))
         .collect();
-    let differences: Vec<String> = record::differences(&recorded, &now, &on_disk)
-        .iter()
-        .map(ToString::to_string)
-        .collect();
+    let found = record::differences(&recorded, &now, &on_disk);
+    let differences: Vec<String> = found.iter().map(ToString::to_string).collect();
     if args.json {
         report(differences.is_empty(), differences.clone(), None);
     } else if differences.is_empty() {
@@ -547,8 +556,8 @@ fn verify(
             recipe_shown(source),
             shown(&path)
         );
-        for d in &differences {
-            eprintln!("  - {d}");
+        for d in &found {
+            eprintln!("  - {d}\n    help: {}", d.advice());
         }
     }
     if differences.is_empty() {
@@ -704,13 +713,14 @@ fn with_plan(
     let source = match RecipeSource::read(&args.recipe) {
         Ok(s) => s,
         Err(e) => {
-            let message = format!("cannot read recipe `{}`: {e}", args.recipe.display());
+            let (message, help) = RecipeSource::unreadable(&args.recipe, &e);
             if args.json {
+                let error = json!({"code": "assort::recipe_unreadable", "severity": "error", "message": message, "help": help});
                 output::json::print(
-                    &json!({"format": kind, "ok": false, "diagnostics": [], "error": {"message": message}}),
+                    &json!({"format": kind, "ok": false, "diagnostics": [], "error": error}),
                 );
             } else {
-                eprintln!("error: {message}");
+                eprintln!("error: {message}\n  help: {help}");
             }
             return ExitCode::FAILURE;
         }
@@ -737,7 +747,7 @@ fn with_plan(
                     &json!({"format": kind, "ok": false, "diagnostics": diagnostics}),
                 );
             } else {
-                let errors = checked.problems.iter().filter(|p| p.is_error()).count();
+                let errors = checked.error_count();
                 eprintln!(
                     "{} in `{}`; nothing was run",
                     plural(errors, "error"),

@@ -110,7 +110,7 @@ fn values_too_large_to_scale_stop_the_run_instead_of_flattening_the_feature() {
     );
     case.run(RECIPE)
         .fails()
-        .stderr_has("`a` holds values too large to scale");
+        .stderr_has("`d.csv` line 5, column 2 (`a`): 1e308 is too large to scale");
     nothing_written(&case);
 }
 
@@ -189,8 +189,10 @@ fn a_hand_edited_model_is_refused_with_what_is_wrong() {
     case.run(RECIPE).ok();
     type Edit = fn(&mut serde_json::Value);
     let cases: [(&str, Edit); 4] = [
-        ("divisor 0", |m| m["features"][0]["divisor"] = 0.0.into()),
-        ("a centre holds 1e308", |m| {
+        ("field `features[0].divisor` (feature `a`) is 0", |m| {
+            m["features"][0]["divisor"] = 0.0.into()
+        }),
+        ("field `centres[0][0]` holds 1e308", |m| {
             m["centres"][0][0] = 1e308.into()
         }),
         ("3 centres for 2 segments", |m| {

@@ -404,7 +404,8 @@ fn a_missing_recipe_file_is_an_error_not_a_panic() {
     let case = Case::empty();
     case.assort(&["run", "nope.assort"], &[])
         .fails()
-        .stderr_has("cannot read recipe `nope.assort`");
+        .stderr_has("recipe `nope.assort` not found")
+        .stderr_has("help: give the path of a recipe file");
 }
 
 // ------------------------------------------------ outside reference --

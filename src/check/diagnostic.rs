@@ -5,7 +5,7 @@
 //! backticks, no trailing period, "found X, expected Y".
 
 use crate::syntax::{ast::Span, SyntaxError};
-use miette::{Diagnostic, GraphicalReportHandler, GraphicalTheme, NamedSource};
+use miette::{Diagnostic, GraphicalReportHandler, GraphicalTheme};
 use thiserror::Error;
 
 /// Any problem found in a recipe: syntax or meaning.
@@ -384,6 +384,31 @@ pub enum CheckError {
         span: Span,
     },
 
+    #[error("{count} more problems not shown, {errors} of them errors")]
+    #[diagnostic(
+        code(assort::more_problems),
+        help("mend the problems above and check again; a recipe with this many problems is best rebuilt from a smaller one that checks")
+    )]
+    MoreProblems {
+        count: String,
+        errors: String,
+        hidden_errors: usize,
+        #[label("checked to here")]
+        span: Span,
+    },
+
+    #[error("{count} more warnings not shown")]
+    #[diagnostic(
+        code(assort::more_warnings),
+        severity(Warning),
+        help("mend the warnings above and check again to see the rest")
+    )]
+    MoreWarnings {
+        count: String,
+        #[label("checked to here")]
+        span: Span,
+    },
+
     #[error("key `{key}` appears twice in `{file}`: lines {first} and {again}")]
     #[diagnostic(
         code(assort::repeated_key),
@@ -427,10 +452,8 @@ pub fn render(problems: &[Problem], name: &str, text: &str, colour: bool) -> Str
     let handler = handler(colour);
     let mut out = String::new();
     for p in problems {
-        let report = miette::Report::new(p.clone())
-            .with_source_code(NamedSource::new(name, text.to_string()));
         // Writing into a String cannot fail.
-        let _ = handler.render_report(&mut out, report.as_ref());
+        let _ = handler.render_report(&mut out, &super::shown::Shown::new(p, name, text));
         out.push('\n');
     }
     out
@@ -440,7 +463,7 @@ pub fn render(problems: &[Problem], name: &str, text: &str, colour: bool) -> Str
 /// problem), in the same style.
 pub fn render_bare(diag: &dyn Diagnostic, colour: bool) -> String {
     let mut out = String::new();
-    let _ = handler(colour).render_report(&mut out, diag);
+    let _ = handler(colour).render_report(&mut out, &super::shown::Shown::new(diag, "", ""));
     out
 }
 

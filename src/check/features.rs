@@ -234,10 +234,72 @@ impl Checker {
         });
     }
 
-    /// Applies `missing`, `transform` and `weight` statements to the features.
+    /// Checks the values of every `missing`, `transform` and `weight`
+    /// statement on their own, so a misspelt fill or transform is reported
+    /// even when the feature list has problems of its own.
+    pub(super) fn rules<'s>(&mut self, stmts: &'s [Statement]) -> Vec<CheckedRule<'s>> {
+        let mut out = Vec::new();
+        for s in stmts {
+            let (rule, columns) = match &s.kind {
+                StatementKind::Missing { action, columns } => (
+                    self.missing_rule(action).map(Rule::Missing),
+                    columns.as_deref(),
+                ),
+                StatementKind::Transform { columns, action } => {
+                    (self.transform_action(action), Some(columns.as_slice()))
+                }
+                StatementKind::Weight { columns, value } => {
+                    let w = self.positive(
+                        "weight",
+                        &Spanned::new(Value::Number(value.node.clone()), value.span),
+                    );
+                    (w.map(Rule::Weight), Some(columns.as_slice()))
+                }
+                _ => continue,
+            };
+            if let Some(rule) = rule {
+                out.push(CheckedRule {
+                    rule,
+                    columns,
+                    span: s.span,
+                });
+            }
+        }
+        out
+    }
+
+    /// A `transform` statement's action: a known transform word, or clip
+    /// fractions in order.
+    fn transform_action(&mut self, action: &TransformAction) -> Option<Rule> {
+        match action {
+            TransformAction::Clip(range) => {
+                let (lo, hi) = (&range.node.0, &range.node.1);
+                if (0.0..=1.0).contains(&lo.value)
+                    && (0.0..=1.0).contains(&hi.value)
+                    && lo.value < hi.value
+                {
+                    return Some(Rule::Clip(lo.value, hi.value));
+                }
+                self.err(CheckError::BadValue {
+                    option: "clip".into(),
+                    found: format!("`{}..{}`", lo.raw, hi.raw),
+                    expected: "two quantile fractions from 0 to 1, the lower first".into(),
+                    span: range.span,
+                    help: "for example `clip 0.01..0.99` keeps the middle 98%".into(),
+                });
+                None
+            }
+            TransformAction::Named(word) => self
+                .word_choice("transform", word, &Transform::NAMES, Transform::parse)
+                .map(Rule::Transform),
+        }
+    }
+
+    /// Applies the checked rules to the features: each column's rule of a
+    /// kind given once, a rule for every column under the ones per column.
     pub(super) fn feature_rules(
         &mut self,
-        stmts: &[Statement],
+        rules: &[CheckedRule<'_>],
         features: Vec<(String, Span)>,
     ) -> Vec<FeaturePlan> {
         let mut plans: Vec<FeaturePlan> = features
@@ -250,111 +312,42 @@ impl Checker {
                 weight: defaults::WEIGHT,
             })
             .collect();
-        let mut missing_set: HashMap<String, Span> = HashMap::new();
-        let mut transform_set: HashMap<String, Span> = HashMap::new();
-        let mut clip_set: HashMap<String, Span> = HashMap::new();
-        let mut weight_set: HashMap<String, Span> = HashMap::new();
+        let mut given: HashMap<(&'static str, String), Span> = HashMap::new();
         let mut global_missing: Option<(MissingRule, Span)> = None;
-
-        for s in stmts {
-            match &s.kind {
-                StatementKind::Missing { action, columns } => {
-                    let Some(rule) = self.missing_rule(action) else {
-                        continue;
-                    };
-                    match columns {
-                        None => {
-                            if let Some((_, first)) = global_missing {
-                                self.err(CheckError::Conflict {
-                                    what: "a rule for missing values in all columns".into(),
-                                    span: s.span,
-                                    first,
-                                });
-                            } else {
-                                global_missing = Some((rule, s.span));
-                            }
-                        }
-                        Some(cols) => {
-                            for col in cols {
-                                if let Some(f) = self.feature_of(&mut plans, col, "missing") {
-                                    if self.once(
-                                        &mut missing_set,
-                                        col,
-                                        "a missing-value rule for this column",
-                                    ) {
-                                        f_mut(&mut plans, f).missing = rule;
-                                    }
-                                }
-                            }
-                        }
-                    }
+        for r in rules {
+            let Some(columns) = r.columns else {
+                // `missing` without `for`: every column.
+                if let (Rule::Missing(rule), None) = (r.rule, global_missing) {
+                    global_missing = Some((rule, r.span));
+                } else if let Some((_, first)) = global_missing {
+                    self.err(CheckError::Conflict {
+                        what: "a rule for missing values in all columns".into(),
+                        span: r.span,
+                        first,
+                    });
                 }
-                StatementKind::Transform { columns, action } => {
-                    for col in columns {
-                        let Some(f) = self.feature_of(&mut plans, col, "transform") else {
-                            continue;
-                        };
-                        match action {
-                            TransformAction::Clip(range) => {
-                                let (lo, hi) = (&range.node.0, &range.node.1);
-                                if !(0.0..=1.0).contains(&lo.value)
-                                    || !(0.0..=1.0).contains(&hi.value)
-                                    || lo.value >= hi.value
-                                {
-                                    self.err(CheckError::BadValue {
-                                        option: "clip".into(),
-                                        found: format!("`{}..{}`", lo.raw, hi.raw),
-                                        expected:
-                                            "two quantile fractions from 0 to 1, the lower first"
-                                                .into(),
-                                        span: range.span,
-                                        help: "for example `clip 0.01..0.99` keeps the middle 98%"
-                                            .into(),
-                                    });
-                                    break;
-                                }
-                                if self.once(&mut clip_set, col, "a clip for this column") {
-                                    f_mut(&mut plans, f).clip = Some((lo.value, hi.value));
-                                }
-                            }
-                            TransformAction::Named(word) => {
-                                let Some(t) = self.word_choice(
-                                    "reshaping",
-                                    word,
-                                    &Transform::NAMES,
-                                    Transform::parse,
-                                ) else {
-                                    break;
-                                };
-                                if self.once(&mut transform_set, col, "a transform for this column")
-                                {
-                                    f_mut(&mut plans, f).transform = t;
-                                }
-                            }
-                        }
-                    }
+                continue;
+            };
+            let (kind, what, statement) = r.rule.kind();
+            for col in columns {
+                let Some(f) = self.feature_of(&mut plans, col, statement) else {
+                    continue;
+                };
+                if let Some(&first) = given.get(&(kind, col.node.clone())) {
+                    self.err(CheckError::Conflict {
+                        what: format!("{what} (`{}`)", col.node),
+                        span: col.span,
+                        first,
+                    });
+                    continue;
                 }
-                StatementKind::Weight { columns, value } => {
-                    let Some(w) = self.positive(
-                        "weight",
-                        &Spanned::new(Value::Number(value.node.clone()), value.span),
-                    ) else {
-                        continue;
-                    };
-                    for col in columns {
-                        if let Some(f) = self.feature_of(&mut plans, col, "weight") {
-                            if self.once(&mut weight_set, col, "a weight for this column") {
-                                f_mut(&mut plans, f).weight = w;
-                            }
-                        }
-                    }
-                }
-                _ => {}
+                given.insert((kind, col.node.clone()), col.span);
+                r.rule.apply(&mut plans[f]);
             }
         }
         if let Some((rule, _)) = global_missing {
             for p in plans.iter_mut() {
-                if !missing_set.contains_key(&p.column) {
+                if !given.contains_key(&("missing", p.column.clone())) {
                     p.missing = rule;
                 }
             }
@@ -381,25 +374,6 @@ impl Checker {
             }
         }
         plans
-    }
-
-    /// Records that `col` got a rule of this kind; a second one conflicts.
-    pub(super) fn once(
-        &mut self,
-        set: &mut HashMap<String, Span>,
-        col: &Column,
-        what: &str,
-    ) -> bool {
-        if let Some(first) = set.get(&col.node) {
-            self.err(CheckError::Conflict {
-                what: format!("{what} (`{}`)", col.node),
-                span: col.span,
-                first: *first,
-            });
-            return false;
-        }
-        set.insert(col.node.clone(), col.span);
-        true
     }
 
     /// Index of the feature `col` names, or a diagnostic.
@@ -462,4 +436,41 @@ impl Checker {
     }
 
     // ----------------------------------------------------------- method --
+}
+
+/// The action of a `missing`, `transform` or `weight` statement, checked.
+#[derive(Debug, Clone, Copy)]
+pub(super) enum Rule {
+    Missing(MissingRule),
+    Clip(f64, f64),
+    Transform(Transform),
+    Weight(f64),
+}
+
+impl Rule {
+    /// (kind, what a second one of the kind for a column is, statement).
+    fn kind(self) -> (&'static str, &'static str, &'static str) {
+        match self {
+            Rule::Missing(_) => ("missing", "a missing-value rule for this column", "missing"),
+            Rule::Clip(..) => ("clip", "a clip for this column", "transform"),
+            Rule::Transform(_) => ("transform", "a transform for this column", "transform"),
+            Rule::Weight(_) => ("weight", "a weight for this column", "weight"),
+        }
+    }
+
+    fn apply(self, plan: &mut FeaturePlan) {
+        match self {
+            Rule::Missing(m) => plan.missing = m,
+            Rule::Clip(lo, hi) => plan.clip = Some((lo, hi)),
+            Rule::Transform(t) => plan.transform = t,
+            Rule::Weight(w) => plan.weight = w,
+        }
+    }
+}
+
+/// A checked rule with the columns it names (`None`: every column).
+pub(super) struct CheckedRule<'s> {
+    pub rule: Rule,
+    pub columns: Option<&'s [Column]>,
+    pub span: Span,
 }

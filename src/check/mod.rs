@@ -20,6 +20,7 @@ mod outputs;
 pub mod paths;
 mod previous;
 pub mod probe;
+pub mod shown;
 pub mod suggest;
 mod values;
 pub mod vocab;
@@ -70,6 +71,33 @@ impl RecipeSource {
         })
     }
 
+    /// Why a recipe could not be read, and what to do: (message, help).
+    /// Bytes that are not UTF-8 are located by line.
+    pub fn unreadable(path: &Path, e: &std::io::Error) -> (String, String) {
+        let shown = path.display();
+        match e.kind() {
+            std::io::ErrorKind::NotFound => (
+                format!("recipe `{shown}` not found"),
+                "give the path of a recipe file, relative to this folder or absolute, such as `recipes/coop-members.assort`".into(),
+            ),
+            std::io::ErrorKind::InvalidData => {
+                let line = std::fs::read(path).ok().and_then(|bytes| {
+                    let valid = std::str::from_utf8(&bytes).err()?.valid_up_to();
+                    Some(bytes[..valid].iter().filter(|&&b| b == b'\n').count() + 1)
+                });
+                let at = line.map_or(String::new(), |l| format!(" at line {l}"));
+                (
+                    format!("recipe `{shown}` is not UTF-8 text{at}"),
+                    "recipes are UTF-8 text; save it again as UTF-8 (most editors offer the encoding in their save dialog)".into(),
+                )
+            }
+            _ => (
+                format!("cannot read recipe `{shown}`: {e}"),
+                "check the file's permissions".into(),
+            ),
+        }
+    }
+
     /// The folder every path in the recipe is relative to.
     pub fn folder(&self) -> PathBuf {
         match self.path.parent() {
@@ -100,6 +128,18 @@ pub struct Checked {
 impl Checked {
     pub fn has_errors(&self) -> bool {
         self.problems.iter().any(Problem::is_error)
+    }
+
+    /// Errors found, those past [`MOST_PROBLEMS`] included.
+    pub fn error_count(&self) -> usize {
+        self.problems
+            .iter()
+            .map(|p| match p {
+                Problem::Check(CheckError::MoreProblems { hidden_errors, .. }) => *hidden_errors,
+                p if p.is_error() => 1,
+                _ => 0,
+            })
+            .sum()
     }
 }
 
@@ -137,6 +177,19 @@ pub fn check_with(source: &RecipeSource, options: &CheckOptions) -> Checked {
         probe: None,
         input_file: String::new(),
         decimal: DecimalMark::Point,
+        unparsed: tree
+            .errors
+            .iter()
+            .filter_map(|e| e.statement_word.clone())
+            .chain(tree.statements.iter().filter_map(|s| {
+                match &s.kind {
+                    StatementKind::Unknown { word } => vocab::renamed_statement(&word.node)
+                        .map(|(new, _)| new.to_string())
+                        .or_else(|| suggest::nearest(&word.node, vocab::statement_words())),
+                    _ => None,
+                }
+            }))
+            .collect(),
         end: end_span(&source.text),
         category_spans: HashMap::new(),
     };
@@ -156,6 +209,7 @@ pub fn check_with(source: &RecipeSource, options: &CheckOptions) -> Checked {
         }
     }
     let errors = cx.problems.iter().any(Problem::is_error);
+    limit_problems(&mut cx.problems, cx.end);
     Checked {
         plan: if errors { None } else { plan },
         problems: cx.problems,
@@ -289,6 +343,9 @@ struct Checker {
     input_file: String,
     /// The input's decimal mark, once `input` is checked.
     decimal: DecimalMark,
+    /// Statement words of statements that did not parse, and the words
+    /// misspelt statement words most likely meant.
+    unparsed: Vec<String>,
     /// The recipe's last character, where a missing statement is reported.
     end: Span,
     /// Where each category column was named.
@@ -298,6 +355,31 @@ struct Checker {
     /// Every file the recipe reads (real path, span), so no output can
     /// overwrite one.
     reads: Vec<(PathBuf, Span)>,
+}
+
+/// The most problems a check reports; a pasted list of thousands of
+/// unknown columns would otherwise print thousands of messages.
+pub const MOST_PROBLEMS: usize = 100;
+
+/// Keeps the first [`MOST_PROBLEMS`] problems and counts the rest in one
+/// last problem, an error when any of the rest is one.
+fn limit_problems(problems: &mut Vec<Problem>, end: Span) {
+    if problems.len() <= MOST_PROBLEMS {
+        return;
+    }
+    let rest = problems.split_off(MOST_PROBLEMS);
+    let errors = rest.iter().filter(|p| p.is_error()).count();
+    let count = crate::text::thousands(rest.len());
+    problems.push(Problem::Check(if errors > 0 {
+        CheckError::MoreProblems {
+            count,
+            errors: crate::text::thousands(errors),
+            hidden_errors: errors,
+            span: end,
+        }
+    } else {
+        CheckError::MoreWarnings { count, span: end }
+    }));
 }
 
 /// `text` cut to at most `max` characters, with `…` when cut: data can put
@@ -330,7 +412,20 @@ fn end_span(text: &str) -> Span {
 
 impl Checker {
     fn err(&mut self, e: CheckError) {
-        self.problems.push(Problem::Check(e));
+        // A statement that is there but did not parse (or is misspelt) is
+        // reported as such; "the recipe has no ..." would only mislead.
+        let follows = match &e {
+            CheckError::MissingStatement { keyword, .. } => {
+                self.unparsed.iter().any(|w| w == keyword)
+            }
+            CheckError::NoMethod { .. } => {
+                self.unparsed.iter().any(|w| w == "kmeans" || w == "tree")
+            }
+            _ => false,
+        };
+        if !follows {
+            self.problems.push(Problem::Check(e));
+        }
     }
 
     /// Builds the plan, collecting problems on the way. Returns a plan only
@@ -378,7 +473,8 @@ impl Checker {
         let categories = self.categories(stmts, input.as_ref());
         let features = self.features(find("features"), input.as_ref(), &categories);
         self.cautions(stmts, features.as_deref(), categories.as_deref());
-        let features = features.map(|f| self.feature_rules(stmts, f));
+        let rules = self.rules(stmts);
+        let features = features.map(|f| self.feature_rules(&rules, f));
         let scale = match find("scale") {
             Some(Statement {
                 kind: StatementKind::Scale { method },
@@ -478,10 +574,6 @@ impl Checker {
 struct CheckedInput {
     plan: InputPlan,
     key_span: Span,
-}
-
-fn f_mut(plans: &mut [FeaturePlan], i: usize) -> &mut FeaturePlan {
-    &mut plans[i]
 }
 
 /// The statement word as a `'static` string; every word that reaches here

@@ -68,9 +68,10 @@ pub fn diagnostic(p: &Problem, index: &LineIndex<'_>) -> Diagnostic {
     } else {
         DiagnosticSeverity::WARNING
     };
-    let mut message = p.to_string();
+    use crate::check::shown::clip_quotes;
+    let mut message = clip_quotes(&p.to_string());
     if let Some(help) = p.help() {
-        message.push_str(&format!("\nhelp: {help}"));
+        message.push_str(&format!("\nhelp: {}", clip_quotes(&help.to_string())));
     }
     Diagnostic {
         range: index.range(start, end),

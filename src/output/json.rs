@@ -3,6 +3,7 @@
 //! `format` naming its kind and version, and `ok`.
 
 use crate::check::diagnostic::Problem;
+use crate::check::shown::clip_quotes;
 use crate::run::comparison::Comparison;
 use crate::run::Outcome;
 use miette::Diagnostic;
@@ -25,8 +26,8 @@ pub fn diagnostic(p: &Problem, file: &str, text: &str) -> Value {
     json!({
         "code": p.code().map(|c| c.to_string()),
         "severity": if p.is_error() { "error" } else { "warning" },
-        "message": p.to_string(),
-        "help": p.help().map(|h| h.to_string()),
+        "message": clip_quotes(&p.to_string()),
+        "help": p.help().map(|h| clip_quotes(&h.to_string())),
         "file": file,
         "range": range,
     })
@@ -41,8 +42,8 @@ pub fn error(e: &dyn Diagnostic) -> Value {
     json!({
         "code": e.code().map(|c| c.to_string()),
         "severity": "error",
-        "message": e.to_string(),
-        "help": e.help().map(|h| h.to_string()),
+        "message": clip_quotes(&e.to_string()),
+        "help": e.help().map(|h| clip_quotes(&h.to_string())),
     })
 }
 

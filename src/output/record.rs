@@ -183,6 +183,7 @@ pub enum Difference {
     DataChanged { path: String, detail: String },
     ResultsDiffer { path: String },
     OutputEdited { path: String },
+    OutputMissing { path: String },
     ChosenKChanged { recorded: usize, now: usize },
 }
 
@@ -206,10 +207,28 @@ impl std::fmt::Display for Difference {
                 f,
                 "output edited: `{path}` on disk is not the file the run wrote"
             ),
+            Difference::OutputMissing { path } => write!(
+                f,
+                "output missing: `{path}` is not on disk, though the run wrote it"
+            ),
             Difference::ChosenKChanged { recorded, now } => write!(
                 f,
                 "results differ: the rerun chose k = {now}, the record k = {recorded}"
             ),
+        }
+    }
+}
+
+impl Difference {
+    /// What to do about it, in plain words.
+    pub fn advice(&self) -> String {
+        match self {
+            Difference::RecipeChanged => "the recipe was edited after the run: compare it with the version that ran (in version control), or run it again to record the new one".into(),
+            Difference::VersionChanged { recorded, .. } => format!("verify with assort {recorded}, the version that ran, or run again to record this version's results"),
+            Difference::DataChanged { path, .. } => format!("the run read another `{path}`: restore that file to verify, or run again on the new data and keep the new record"),
+            Difference::ResultsDiffer { .. } | Difference::ChosenKChanged { .. } => "expected when the recipe, data or version changed (see above); if nothing else differs, keep both files and report it: reruns are meant to be identical".into(),
+            Difference::OutputEdited { path } => format!("`{path}` was changed after the run: keep the edited copy under another name if it matters, then run again to write it afresh"),
+            Difference::OutputMissing { path } => format!("`{path}` was deleted or moved after the run: run the recipe again to write it"),
         }
     }
 }
@@ -272,10 +291,14 @@ pub fn differences(
             .iter()
             .find(|(p, _)| *p == old.path)
             .and_then(|(_, d)| d.clone());
-        if disk.as_deref() != Some(old.sha256.as_str()) {
-            out.push(Difference::OutputEdited {
+        match disk {
+            None => out.push(Difference::OutputMissing {
                 path: old.path.clone(),
-            });
+            }),
+            Some(d) if d != old.sha256 => out.push(Difference::OutputEdited {
+                path: old.path.clone(),
+            }),
+            Some(_) => {}
         }
     }
     out

@@ -246,6 +246,21 @@ pub fn write_set(files: &[(&Path, &str, &[u8])], journal: &Path) -> Result<(), R
                 std::io::Error::other("a folder of that name is in the way"),
             ));
         }
+        // A file where a folder should be (`data/members.csv/a.csv`).
+        let in_the_way = target
+            .ancestors()
+            .skip(1)
+            .zip(Path::new(shown).ancestors().skip(1))
+            .find(|(real, named)| !named.as_os_str().is_empty() && real.is_file());
+        if let Some((_, named)) = in_the_way {
+            return Err(fail(
+                shown,
+                std::io::Error::other(format!(
+                    "`{}` is a file, so it cannot hold another",
+                    named.display()
+                )),
+            ));
+        }
         clear_leftovers(target);
         // Absolute, so the journal means the same from any folder.
         let target = std::path::absolute(target).map_err(|e| fail(shown, e))?;

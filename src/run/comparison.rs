@@ -138,9 +138,14 @@ pub fn compare(
             v.first()
                 .map_or("(none)".to_string(), |x| crate::check::clipped(&x.key, 40))
         };
+        // A file is named in backticks; this run's records in words.
+        let named = |n: &str| match n {
+            "this run" => "the records of this run".to_string(),
+            file => format!("`{file}`"),
+        };
         return Err(RunError::NothingInCommon {
-            old: old_name.to_string(),
-            new: new_name.to_string(),
+            old: named(old_name),
+            new: named(new_name),
             old_key: example(old),
             new_key: example(new),
         });

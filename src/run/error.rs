@@ -151,7 +151,7 @@ pub enum RunError {
     #[error("`{file}` is not a segment model assort can read: {reason}")]
     #[diagnostic(
         code(assort::run::bad_model),
-        help("models are written by a recipe's `save model \"out/model.json\"`")
+        help("a model is written whole by a recipe's `save model` line and read as it was written; if it was edited or damaged, rerun the recipe that saved it")
     )]
     BadModel { file: String, reason: String },
 
@@ -162,7 +162,7 @@ pub enum RunError {
     )]
     NotAssignments { file: String },
 
-    #[error("`{old}` and `{new}` have no key in common, so there is nothing to compare")]
+    #[error("{old} and {new} have no key in common, so there is nothing to compare")]
     #[diagnostic(
         code(assort::run::nothing_in_common),
         help("the first keys are `{old_key}` and `{new_key}`: compare assignments of the same records, keyed by the same column")
@@ -174,12 +174,12 @@ pub enum RunError {
         new_key: String,
     },
 
-    #[error("`{column}` holds values too large to scale (up to {biggest:e}): the sums overflow")]
+    #[error("{place}: {biggest:e} is too large to scale; the feature's sums would overflow")]
     #[diagnostic(
         code(assort::run::too_large_to_scale),
-        help("check the column for corrupt values; if they are real, `transform {column} log1p` or `clip 0..0.99` brings them within range")
+        help("values near 1e308 are beyond what the method can handle; check the column for corrupt values, and if they are real, `transform {} log1p` or `clip 0..0.99` brings them within range", place.name)
     )]
-    TooLargeToScale { column: String, biggest: f64 },
+    TooLargeToScale { place: Place, biggest: f64 },
 
     #[error("labels would move to other segments, {moves}")]
     #[diagnostic(code(assort::run::labels_moved), help("{help}"))]

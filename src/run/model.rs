@@ -446,7 +446,7 @@ pub fn read_model(path: &std::path::Path) -> Result<SegmentModel, RunError> {
         return Err(RunError::BadModel {
             file: shown,
             reason: format!(
-                "its format is `{}`, this assort reads {}",
+                "field `format` is `{}`, this assort reads {}",
                 model.format,
                 MODEL_FORMATS_READ.map(|f| format!("`{f}`")).join(" and ")
             ),
@@ -461,7 +461,7 @@ pub fn read_model(path: &std::path::Path) -> Result<SegmentModel, RunError> {
     if model.centres.is_empty() || model.centres.iter().any(|c| c.len() != width) {
         return Err(RunError::BadModel {
             file: shown,
-            reason: "its centres do not match its columns".into(),
+            reason: "field `centres` does not match the model's columns".into(),
         });
     }
     if let Some(reason) = inconsistency(&model) {
@@ -479,7 +479,7 @@ pub fn read_model(path: &std::path::Path) -> Result<SegmentModel, RunError> {
 /// distinct, one centre per segment, segment numbers distinct and from 1,
 /// the drift reference shaped like the features.
 fn inconsistency(m: &SegmentModel) -> Option<String> {
-    for f in &m.features {
+    for (i, f) in m.features.iter().enumerate() {
         let col = &f.column;
         let finite = [f.centre, f.divisor, f.multiplier]
             .into_iter()
@@ -489,48 +489,54 @@ fn inconsistency(m: &SegmentModel) -> Option<String> {
             .all(f64::is_finite);
         if !finite {
             return Some(format!(
-                "feature `{col}` holds a value that is not a finite number"
+                "field `features[{i}]` (feature `{col}`) holds a value that is not a finite number"
             ));
         }
         if f.divisor <= 0.0 || f.multiplier <= 0.0 {
+            let field = if f.divisor <= 0.0 {
+                "divisor"
+            } else {
+                "multiplier"
+            };
             return Some(format!(
-                "feature `{col}` has divisor {} and multiplier {}; both must be above 0",
-                f.divisor, f.multiplier
+                "field `features[{i}].{field}` (feature `{col}`) is {}; divisors and multipliers must be above 0",
+                if f.divisor <= 0.0 { f.divisor } else { f.multiplier }
             ));
         }
         if f.clip.is_some_and(|(a, b)| a > b) {
             return Some(format!(
-                "feature `{col}` has clip bounds in the wrong order"
+                "field `features[{i}].clip` (feature `{col}`) has its bounds in the wrong order"
             ));
         }
     }
-    for c in &m.categories {
+    for (i, c) in m.categories.iter().enumerate() {
         if !(c.value.is_finite() && c.value > 0.0) {
             return Some(format!(
-                "category `{}` has weight value {}; it must be above 0",
+                "field `categories[{i}].value` (category `{}`) is {}; it must be above 0",
                 c.column, c.value
             ));
         }
         if c.levels.windows(2).any(|w| w[0] >= w[1]) {
             return Some(format!(
-                "category `{}` lists its levels out of order or twice",
+                "field `categories[{i}].levels` (category `{}`) lists levels out of order or twice",
                 c.column
             ));
         }
     }
-    if let Some(v) = m
-        .centres
-        .iter()
-        .flatten()
-        .find(|v| !v.is_finite() || v.abs() > 1e150)
-    {
-        return Some(format!(
-            "a centre holds {v:e}, which no prepared record could be near"
-        ));
+    for (i, centre) in m.centres.iter().enumerate() {
+        if let Some((j, v)) = centre
+            .iter()
+            .enumerate()
+            .find(|(_, v)| !v.is_finite() || v.abs() > 1e150)
+        {
+            return Some(format!(
+                "field `centres[{i}][{j}]` holds {v:e}, which no prepared record could be near"
+            ));
+        }
     }
     if m.segments.len() != m.centres.len() {
         return Some(format!(
-            "it has {} centres for {} segments",
+            "fields `centres` and `segments` disagree: {} centres for {} segments",
             m.centres.len(),
             m.segments.len()
         ));
@@ -538,7 +544,7 @@ fn inconsistency(m: &SegmentModel) -> Option<String> {
     let mut numbers: Vec<usize> = m.segments.iter().map(|s| s.segment).collect();
     numbers.sort_unstable();
     if numbers.first() == Some(&0) || numbers.windows(2).any(|w| w[0] == w[1]) {
-        return Some("its segment numbers must be distinct and start from 1".into());
+        return Some("field `segments`: segment numbers must be distinct and start from 1".into());
     }
     if let Some(d) = &m.drift {
         let shaped = d.features.len() == m.features.len()
@@ -550,7 +556,7 @@ fn inconsistency(m: &SegmentModel) -> Option<String> {
                     && x.shares.iter().all(|s| s.is_finite() && *s >= 0.0)
             });
         if !shaped {
-            return Some("its record of the training data's distribution is damaged".into());
+            return Some("field `drift` (the training data's distribution) is damaged".into());
         }
     }
     None

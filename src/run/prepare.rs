@@ -223,11 +223,16 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
         // Values near the largest a number can hold (1e308) overflow the
         // sums of scaling; they would flatten the feature without a word.
         if !(centre.is_finite() && divisor.is_finite()) || v.iter().any(|x| !x.is_finite()) {
-            let biggest = original(table, &kept, f, params[f].fill)
-                .into_iter()
-                .fold(0.0f64, |a, x| a.max(x.abs()));
+            let values = original(table, &kept, f, params[f].fill);
+            let (at, biggest) = values
+                .iter()
+                .enumerate()
+                .fold(
+                    (0, 0.0f64),
+                    |(i, a), (j, x)| if x.abs() > a { (j, x.abs()) } else { (i, a) },
+                );
             return Err(RunError::TooLargeToScale {
-                column: fp.column.clone(),
+                place: located(plan, table, kept[at], f),
                 biggest,
             });
         }
