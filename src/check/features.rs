@@ -91,48 +91,8 @@ impl Checker {
         match choice {
             FeatureChoice::Listed(cols) => {
                 for col in cols {
-                    if let Some((_, first)) = out.iter().find(|(n, _)| *n == col.node) {
-                        self.err(CheckError::DuplicateColumn {
-                            column: col.node.clone(),
-                            span: col.span,
-                            first: *first,
-                        });
-                        ok = false;
-                        continue;
-                    }
-                    if key.as_deref() == Some(col.node.as_str()) {
-                        self.key_clustered(col);
-                        ok = false;
-                        continue;
-                    }
-                    if let Some(&first) = self.category_spans.get(&col.node) {
-                        self.err(CheckError::DuplicateColumn {
-                            column: col.node.clone(),
-                            span: col.span,
-                            first,
-                        });
-                        ok = false;
-                        continue;
-                    }
-                    match self.known_column(col) {
-                        // Numbers with a stray value, or numbers written
-                        // with a decimal comma: the data line is at fault.
-                        Some(info)
-                            if info.mostly_numeric()
-                                || info.comma_numbers == info.texts && info.texts > 0 =>
-                        {
-                            self.not_a_number_in_data(&info, col.span);
-                            ok = false;
-                        }
-                        Some(info) if info.kind == ColumnKind::Text => {
-                            self.err(CheckError::TextFeature {
-                                column: col.node.clone(),
-                                example: clipped(&info.text_example.unwrap_or_default(), 60),
-                                span: col.span,
-                            });
-                            ok = false;
-                        }
-                        Some(_) => out.push((col.node.clone(), col.span)),
+                    match self.listed_feature(col, &out, key.as_deref()) {
+                        Some(f) => out.push(f),
                         None => ok = false,
                     }
                 }
@@ -160,6 +120,50 @@ impl Checker {
             return None;
         }
         ok.then_some(out)
+    }
+
+    /// One column listed in `features`: named once, not the key, not a
+    /// category, in the header, and numeric in the sample.
+    fn listed_feature(
+        &mut self,
+        col: &Column,
+        so_far: &[(String, Span)],
+        key: Option<&str>,
+    ) -> Option<(String, Span)> {
+        let first = so_far
+            .iter()
+            .find(|(n, _)| *n == col.node)
+            .map(|(_, s)| *s)
+            .or_else(|| self.category_spans.get(&col.node).copied());
+        if let Some(first) = first {
+            self.err(CheckError::DuplicateColumn {
+                column: col.node.clone(),
+                span: col.span,
+                first,
+            });
+            return None;
+        }
+        if key == Some(col.node.as_str()) {
+            self.key_clustered(col);
+            return None;
+        }
+        match self.known_column(col)? {
+            // Numbers with a stray value, or numbers written with a decimal
+            // comma: the data line is at fault.
+            info if info.mostly_numeric() || info.comma_numbers == info.texts && info.texts > 0 => {
+                self.not_a_number_in_data(&info, col.span);
+                None
+            }
+            info if info.kind == ColumnKind::Text => {
+                self.err(CheckError::TextFeature {
+                    column: col.node.clone(),
+                    example: clipped(&info.text_example.unwrap_or_default(), 60),
+                    span: col.span,
+                });
+                None
+            }
+            _ => Some((col.node.clone(), col.span)),
+        }
     }
 
     /// Warns about clustered columns whose names suggest personal data,

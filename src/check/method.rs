@@ -76,46 +76,24 @@ impl Checker {
             Some(_) => Some(Vec::new()),
             None => self.required_ks("tree", &opts, s.span),
         };
-        let word = |o: &OptionPair| match &o.value.node {
-            Value::Word(w) => Some(Spanned::new(w.clone(), o.value.span)),
-            _ => None,
-        };
-        let linkage = match opts.get("linkage") {
-            None => Some((Linkage::Ward, None)),
-            Some(o) => match word(o) {
-                Some(w) => self
-                    .word_choice("linkage", &w, &Linkage::NAMES, Linkage::parse)
-                    .map(|l| (l, Some(o.value.span))),
-                None => {
-                    self.bad_value(
-                        "linkage",
-                        &o.value.node,
-                        "a linkage name",
-                        o.value.span,
-                        "for example `linkage ward`",
-                    );
-                    None
-                }
-            },
-        };
-        let distance = match opts.get("distance") {
-            None => Some((Metric::Euclidean, None)),
-            Some(o) => match word(o) {
-                Some(w) => self
-                    .word_choice("distance", &w, &Metric::NAMES, Metric::parse)
-                    .map(|m| (m, Some(o.value.span))),
-                None => {
-                    self.bad_value(
-                        "distance",
-                        &o.value.node,
-                        "a distance name",
-                        o.value.span,
-                        "for example `distance manhattan`",
-                    );
-                    None
-                }
-            },
-        };
+        let linkage = self.word_option(
+            &opts,
+            "linkage",
+            Linkage::Ward,
+            &Linkage::NAMES,
+            Linkage::parse,
+            "a linkage name",
+            "for example `linkage ward`",
+        );
+        let distance = self.word_option(
+            &opts,
+            "distance",
+            Metric::Euclidean,
+            &Metric::NAMES,
+            Metric::parse,
+            "a distance name",
+            "for example `distance manhattan`",
+        );
         if let (Some((l, l_span)), Some((m, Some(m_span)))) = (linkage, distance) {
             if l.needs_euclidean() && m != Metric::Euclidean {
                 self.err(CheckError::NeedsEuclidean {
@@ -127,96 +105,96 @@ impl Checker {
                 return None;
             }
         }
+        let linkage = linkage.map(|(l, _)| l);
         let micro = match opts.get("micro") {
             None => None,
-            Some(o) => {
-                let m = self.whole_option(&opts, "micro", 2, 500)?;
-                if let Some(most) = ks.as_ref().and_then(|k| k.last()) {
-                    if m <= *most {
-                        self.err(CheckError::ImpossibleK {
-                            reason: format!("{m} micro-segments cannot be cut into {most} segments"),
-                            span: o.value.span,
-                            help: "micro-segments are the tree's leaves; use many more than the largest k, such as `micro 500`".into(),
-                        });
-                        return None;
-                    }
-                }
-                // Micro-segments of a record or two cost a k-means fit
-                // with k near n (time n² a round) and summarise nothing.
-                if let Some(n) = self.records().filter(|&n| m * PER_MICRO_SEGMENT > n) {
-                    let most = n / PER_MICRO_SEGMENT;
-                    let tree = match linkage.map(|(l, _)| TreeLimit::of(l)) {
-                        Some(limit) if n <= limit.records => format!("with {} records, a tree over every record (no `micro`) is the better route", crate::text::thousands(n)),
-                        _ => "use fewer micro-segments, such as `micro 500`".to_string(),
-                    };
-                    let largest_k = ks.as_ref().and_then(|k| k.last().copied()).unwrap_or(1);
-                    let expected = if most > largest_k {
-                        format!("at most {} for {} records ({PER_MICRO_SEGMENT} records per micro-segment on average)", crate::text::thousands(most), crate::text::thousands(n))
-                    } else {
-                        format!("no `micro` here: {} records are too few for more than {largest_k} micro-segments of {PER_MICRO_SEGMENT} records on average", crate::text::thousands(n))
-                    };
-                    self.bad_value(
-                        "micro",
-                        &o.value.node,
-                        &expected,
-                        o.value.span,
-                        &format!(
-                            "{} micro-segments cost a k-means fit with k = {m}: {} distance measurements a round, {} restarts; {tree}",
-                            crate::text::thousands(m),
-                            crate::text::thousands(m as u128 * n as u128),
-                            defaults::MICRO_RESTARTS
-                        ),
-                    );
-                    return None;
-                }
-                // The tree is built over the micro-segments, so they are
-                // held to the linkage's limit like records are.
-                if let Some((l, _)) = linkage {
-                    let limit = TreeLimit::of(l);
-                    if m > limit.records {
-                        let why = limit
-                            .reason(m, l.name())
-                            .replace("every record", "every micro-segment");
-                        self.bad_value(
-                            "micro",
-                            &o.value.node,
-                            &format!(
-                                "at most {} for `{}` linkage",
-                                crate::text::thousands(limit.records),
-                                l.name()
-                            ),
-                            o.value.span,
-                            &format!(
-                                "{why}; a few hundred to a few thousand micro-segments are usual"
-                            ),
-                        );
-                        return None;
-                    }
-                }
-                Some(MicroPlan {
-                    segments: m,
-                    restarts: defaults::MICRO_RESTARTS,
-                    rounds: defaults::ROUNDS,
-                    tolerance: defaults::TOLERANCE,
-                })
-            }
+            Some(o) => Some(self.micro(&opts, o, ks.as_deref(), linkage)?),
         };
-        if let (None, Some((l, _))) = (&micro, linkage) {
-            let rows = self
-                .probe
-                .as_ref()
-                .and_then(|p| p.rows.or(p.estimated_rows));
+        if let (None, Some(l)) = (&micro, linkage) {
             let limit = TreeLimit::of(l);
-            if let Some(n) = rows.filter(|&n| n > limit.records) {
+            if let Some(n) = self.records().filter(|&n| n > limit.records) {
                 self.err(CheckError::large_tree(n, l.name(), limit, s.keyword.span));
             }
         }
         Some(TreePlan {
             ks: ks?,
             height,
-            linkage: linkage?.0,
+            linkage: linkage?,
             distance: distance?.0,
             micro,
+        })
+    }
+
+    /// The `micro` option of `tree`: more micro-segments than the largest
+    /// k, about [`PER_MICRO_SEGMENT`] records or more each, and no more
+    /// than the linkage's tree limit, each refusal with its predicted cost.
+    fn micro(
+        &mut self,
+        opts: &HashMap<&'static str, &OptionPair>,
+        o: &OptionPair,
+        ks: Option<&[usize]>,
+        linkage: Option<Linkage>,
+    ) -> Option<MicroPlan> {
+        let m = self.whole_option(opts, "micro", 2, 500)?;
+        let largest_k = ks.and_then(|k| k.last().copied());
+        if let Some(most) = largest_k.filter(|&most| m <= most) {
+            self.err(CheckError::ImpossibleK {
+                reason: format!("{m} micro-segments cannot be cut into {most} segments"),
+                span: o.value.span,
+                help: "micro-segments are the tree's leaves; use many more than the largest k, such as `micro 500`".into(),
+            });
+            return None;
+        }
+        // Micro-segments of a record or two cost a k-means fit with k near
+        // n (time n² a round) and summarise nothing.
+        if let Some(n) = self.records().filter(|&n| m * PER_MICRO_SEGMENT > n) {
+            let most = n / PER_MICRO_SEGMENT;
+            let tree = match linkage.map(TreeLimit::of) {
+                Some(limit) if n <= limit.records => format!(
+                    "with {} records, a tree over every record (no `micro`) is the better route",
+                    crate::text::thousands(n)
+                ),
+                _ => "use fewer micro-segments, such as `micro 500`".to_string(),
+            };
+            let largest_k = largest_k.unwrap_or(1);
+            let expected = if most > largest_k {
+                format!("at most {} for {} records ({PER_MICRO_SEGMENT} records per micro-segment on average)", crate::text::thousands(most), crate::text::thousands(n))
+            } else {
+                format!("no `micro` here: {} records are too few for more than {largest_k} micro-segments of {PER_MICRO_SEGMENT} records on average", crate::text::thousands(n))
+            };
+            let cost = format!(
+                "{} micro-segments cost a k-means fit with k = {m}: {} distance measurements a round, {} restarts; {tree}",
+                crate::text::thousands(m),
+                crate::text::thousands(m as u128 * n as u128),
+                defaults::MICRO_RESTARTS
+            );
+            self.bad_value("micro", &o.value.node, &expected, o.value.span, &cost);
+            return None;
+        }
+        // The tree is built over the micro-segments, so they are held to
+        // the linkage's limit like records are.
+        if let Some(l) = linkage {
+            let limit = TreeLimit::of(l);
+            if m > limit.records {
+                let why = limit
+                    .reason(m, l.name())
+                    .replace("every record", "every micro-segment");
+                let expected = format!(
+                    "at most {} for `{}` linkage",
+                    crate::text::thousands(limit.records),
+                    l.name()
+                );
+                let why =
+                    format!("{why}; a few hundred to a few thousand micro-segments are usual");
+                self.bad_value("micro", &o.value.node, &expected, o.value.span, &why);
+                return None;
+            }
+        }
+        Some(MicroPlan {
+            segments: m,
+            restarts: defaults::MICRO_RESTARTS,
+            rounds: defaults::ROUNDS,
+            tolerance: defaults::TOLERANCE,
         })
     }
 
@@ -247,27 +225,7 @@ impl Checker {
             });
         let sample = match opts.get("sample") {
             None => Some(None),
-            Some(o) => match self.whole_option(&opts, "sample", SMALLEST_SAMPLE, 200_000) {
-                Some(v) => {
-                    let most = ks.as_ref().and_then(|k| k.last().copied()).unwrap_or(0);
-                    if v < PER_SEGMENT_IN_SAMPLE * most {
-                        self.bad_value(
-                            "sample",
-                            &o.value.node,
-                            &format!(
-                                "at least {PER_SEGMENT_IN_SAMPLE} records per segment ({} at k = {most})",
-                                PER_SEGMENT_IN_SAMPLE * most
-                            ),
-                            o.value.span,
-                            "a sample of 100,000 to 500,000 records is usual for millions of records",
-                        );
-                        None
-                    } else {
-                        Some(Some(v))
-                    }
-                }
-                None => None,
-            },
+            Some(o) => self.sample(&opts, o, ks.as_deref()).map(Some),
         };
         let tolerance = match opts.get("tolerance") {
             None => Some(defaults::TOLERANCE),
@@ -285,27 +243,17 @@ impl Checker {
                 }
             },
         };
-        let seeding = match opts.get("seeding") {
-            None => Some(Seeding::KMeansPlusPlus),
-            Some(o) => match &o.value.node {
-                Value::Word(w) => self.word_choice(
-                    "seeding",
-                    &Spanned::new(w.clone(), o.value.span),
-                    &Seeding::NAMES,
-                    Seeding::parse,
-                ),
-                other => {
-                    self.bad_value(
-                        "seeding",
-                        other,
-                        "`kmeans++` or `random-partition`",
-                        o.value.span,
-                        "k-means++ spreads the first centres out; it is the usual choice",
-                    );
-                    None
-                }
-            },
-        };
+        let seeding = self
+            .word_option(
+                &opts,
+                "seeding",
+                Seeding::KMeansPlusPlus,
+                &Seeding::NAMES,
+                Seeding::parse,
+                "`kmeans++` or `random-partition`",
+                "k-means++ spreads the first centres out; it is the usual choice",
+            )
+            .map(|(s, _)| s);
         Some(KMeansPlan {
             ks: ks?,
             restarts: restarts?,
@@ -314,6 +262,32 @@ impl Checker {
             seeding: seeding?,
             sample: sample?,
         })
+    }
+
+    /// The `sample` option of `kmeans`: at least [`SMALLEST_SAMPLE`]
+    /// records, and [`PER_SEGMENT_IN_SAMPLE`] per segment at the largest k.
+    fn sample(
+        &mut self,
+        opts: &HashMap<&'static str, &OptionPair>,
+        o: &OptionPair,
+        ks: Option<&[usize]>,
+    ) -> Option<usize> {
+        let v = self.whole_option(opts, "sample", SMALLEST_SAMPLE, 200_000)?;
+        let most = ks.and_then(|k| k.last().copied()).unwrap_or(0);
+        if v >= PER_SEGMENT_IN_SAMPLE * most {
+            return Some(v);
+        }
+        self.bad_value(
+            "sample",
+            &o.value.node,
+            &format!(
+                "at least {PER_SEGMENT_IN_SAMPLE} records per segment ({} at k = {most})",
+                PER_SEGMENT_IN_SAMPLE * most
+            ),
+            o.value.span,
+            "a sample of 100,000 to 500,000 records is usual for millions of records",
+        );
+        None
     }
 
     /// The values of k, checked against each other and the record count.

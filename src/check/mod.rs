@@ -21,6 +21,8 @@ pub mod paths;
 mod previous;
 pub mod probe;
 pub mod shown;
+use shown::limit_problems;
+pub use shown::{clipped, MOST_PROBLEMS};
 pub mod suggest;
 mod values;
 pub mod vocab;
@@ -357,40 +359,6 @@ struct Checker {
     reads: Vec<(PathBuf, Span)>,
 }
 
-/// The most problems a check reports; a pasted list of thousands of
-/// unknown columns would otherwise print thousands of messages.
-pub const MOST_PROBLEMS: usize = 100;
-
-/// Keeps the first [`MOST_PROBLEMS`] problems and counts the rest in one
-/// last problem, an error when any of the rest is one.
-fn limit_problems(problems: &mut Vec<Problem>, end: Span) {
-    if problems.len() <= MOST_PROBLEMS {
-        return;
-    }
-    let rest = problems.split_off(MOST_PROBLEMS);
-    let errors = rest.iter().filter(|p| p.is_error()).count();
-    let count = crate::text::thousands(rest.len());
-    problems.push(Problem::Check(if errors > 0 {
-        CheckError::MoreProblems {
-            count,
-            errors: crate::text::thousands(errors),
-            hidden_errors: errors,
-            span: end,
-        }
-    } else {
-        CheckError::MoreWarnings { count, span: end }
-    }));
-}
-
-/// `text` cut to at most `max` characters, with `…` when cut: data can put
-/// megabytes in one field, and a message should not repeat them.
-pub fn clipped(text: &str, max: usize) -> String {
-    match text.char_indices().nth(max) {
-        Some((at, _)) => format!("{}…", &text[..at]),
-        None => text.to_string(),
-    }
-}
-
 /// How to mend a data file in another encoding.
 pub const NOT_UTF8_HELP: &str = "the file holds a byte that is not UTF-8, likely an accented letter saved in Latin-1 or Windows-1252; save it as UTF-8 (in a spreadsheet: \"CSV UTF-8\"), or convert it with `iconv -f latin1 -t utf-8 old.csv > new.csv`";
 
@@ -428,45 +396,63 @@ impl Checker {
         }
     }
 
-    /// Builds the plan, collecting problems on the way. Returns a plan only
-    /// when every required part could be settled.
-    fn plan(&mut self, stmts: &[Statement]) -> Option<Plan> {
-        let mut first: HashMap<&str, &Statement> = HashMap::new();
+    /// The statement of each word that may appear once, reporting unknown
+    /// statement words and second statements of such a word.
+    fn statements_once<'s>(
+        &mut self,
+        stmts: &'s [Statement],
+    ) -> HashMap<&'static str, &'s Statement> {
+        let mut first: HashMap<&'static str, &Statement> = HashMap::new();
         for s in stmts {
             if let StatementKind::Unknown { word } = &s.kind {
-                let help = match vocab::renamed_statement(&word.node) {
-                    Some((new, why)) => {
-                        format!(
-                            "`{}` is now called `{new}`: {why}; did you mean `{new}`?",
-                            word.node
-                        )
-                    }
-                    None => {
-                        let suggestion = suggest::nearest(&word.node, vocab::statement_words());
-                        let all: Vec<_> = vocab::statement_words().collect();
-                        did_you_mean(&suggestion, &format!("statements are {}", all.join(", ")))
-                    }
-                };
-                self.err(CheckError::UnknownStatement {
-                    word: word.node.clone(),
-                    span: word.span,
-                    help,
-                });
+                self.unknown_statement(word);
                 continue;
             }
             let word = s.keyword.node.as_str();
-            if SINGLE.contains(&word) {
-                if let Some(prev) = first.get(word) {
-                    self.err(CheckError::DuplicateStatement {
-                        keyword: word.to_string(),
-                        span: s.keyword.span,
-                        first: prev.keyword.span,
-                    });
-                    continue;
+            if !SINGLE.contains(&word) {
+                continue;
+            }
+            match first.get(word) {
+                Some(prev) => self.err(CheckError::DuplicateStatement {
+                    keyword: word.to_string(),
+                    span: s.keyword.span,
+                    first: prev.keyword.span,
+                }),
+                None => {
+                    first.insert(word_static(word), s);
                 }
-                first.insert(word_static(word), s);
             }
         }
+        first
+    }
+
+    /// A line whose first word is no statement word: a retired word gets
+    /// its new name, a misspelt one the nearest word.
+    fn unknown_statement(&mut self, word: &Spanned<String>) {
+        let help = match vocab::renamed_statement(&word.node) {
+            Some((new, why)) => {
+                format!(
+                    "`{}` is now called `{new}`: {why}; did you mean `{new}`?",
+                    word.node
+                )
+            }
+            None => {
+                let suggestion = suggest::nearest(&word.node, vocab::statement_words());
+                let all: Vec<_> = vocab::statement_words().collect();
+                did_you_mean(&suggestion, &format!("statements are {}", all.join(", ")))
+            }
+        };
+        self.err(CheckError::UnknownStatement {
+            word: word.node.clone(),
+            span: word.span,
+            help,
+        });
+    }
+
+    /// Builds the plan, collecting problems on the way. Returns a plan only
+    /// when every required part could be settled.
+    fn plan(&mut self, stmts: &[Statement]) -> Option<Plan> {
+        let first = self.statements_once(stmts);
         let find = |w: &str| first.get(w).copied();
 
         let input = self.input(find("input"));

@@ -2,6 +2,29 @@
 
 use super::*;
 
+/// What each `save` word writes, by file ending, and the endings in words.
+type Endings = &'static [(&'static str, OutputKind)];
+const FORMATS: [(&str, Endings, &str); 7] = [
+    ("assignments", &[("csv", OutputKind::Assignments)], "`.csv`"),
+    ("centroids", &[("csv", OutputKind::Centroids)], "`.csv`"),
+    (
+        "profiles",
+        &[
+            ("csv", OutputKind::ProfilesCsv),
+            ("json", OutputKind::ProfilesJson),
+        ],
+        "`.csv` or `.json`",
+    ),
+    ("model", &[("json", OutputKind::Model)], "`.json`"),
+    ("report", &[("html", OutputKind::Report)], "`.html`"),
+    ("merges", &[("csv", OutputKind::Merges)], "`.csv`"),
+    (
+        "tree",
+        &[("nwk", OutputKind::Newick), ("newick", OutputKind::Newick)],
+        "`.nwk` or `.newick`",
+    ),
+];
+
 impl Checker {
     pub(super) fn outputs(
         &mut self,
@@ -19,89 +42,7 @@ impl Checker {
                 ok = false;
                 continue;
             };
-            let ext = Path::new(&path.node)
-                .extension()
-                .and_then(|e| e.to_str())
-                .unwrap_or("")
-                .to_ascii_lowercase();
-            let kind = match (what.node.as_str(), ext.as_str()) {
-                ("assignments", "csv") => Some(OutputKind::Assignments),
-                ("centroids", "csv") => Some(OutputKind::Centroids),
-                ("profiles", "csv") => Some(OutputKind::ProfilesCsv),
-                ("profiles", "json") => Some(OutputKind::ProfilesJson),
-                ("model", "json") => Some(OutputKind::Model),
-                ("report", "html") => Some(OutputKind::Report),
-                ("report", _) => {
-                    self.err(CheckError::OutputFormat {
-                        what: "`save report`".into(),
-                        expected: "`.html`",
-                        path: path.node.clone(),
-                        span: path.span,
-                    });
-                    None
-                }
-                ("model", _) => {
-                    self.err(CheckError::OutputFormat {
-                        what: "`save model`".into(),
-                        expected: "`.json`",
-                        path: path.node.clone(),
-                        span: path.span,
-                    });
-                    None
-                }
-                ("merges" | "tree", _) if !is_tree => {
-                    self.err(CheckError::NeedsTree {
-                        what: what.node.clone(),
-                        span: what.span,
-                    });
-                    None
-                }
-                ("merges", "csv") => Some(OutputKind::Merges),
-                ("tree", "nwk" | "newick") => Some(OutputKind::Newick),
-                ("tree", _) => {
-                    self.err(CheckError::OutputFormat {
-                        what: "`save tree`".into(),
-                        expected: "`.nwk` or `.newick`",
-                        path: path.node.clone(),
-                        span: path.span,
-                    });
-                    None
-                }
-                ("assignments" | "centroids" | "merges", _) => {
-                    self.err(CheckError::OutputFormat {
-                        what: format!("`save {}`", what.node),
-                        expected: "`.csv`",
-                        path: path.node.clone(),
-                        span: path.span,
-                    });
-                    None
-                }
-                ("profiles", _) => {
-                    self.err(CheckError::OutputFormat {
-                        what: "`save profiles`".into(),
-                        expected: "`.csv` or `.json`",
-                        path: path.node.clone(),
-                        span: path.span,
-                    });
-                    None
-                }
-                (other, _) => {
-                    let suggestion = suggest::nearest(other, vocab::SAVE_WHAT);
-                    self.err(CheckError::UnknownWord {
-                        what: "output",
-                        found: other.to_string(),
-                        span: what.span,
-                        choices:
-                            "`assignments`, `profiles`, `centroids`, `model`, `report`, `merges` or `tree`"
-                                .into(),
-                        help: did_you_mean(
-                            &suggestion,
-                            "save assignments, profiles, centroids, or a tree's merges and tree",
-                        ),
-                    });
-                    None
-                }
-            };
+            let kind = self.output_kind(what, path, is_tree);
             let Some(kind) = kind else {
                 ok = false;
                 continue;
@@ -133,6 +74,56 @@ impl Checker {
             });
         }
         ok.then_some(out)
+    }
+
+    /// What a `save` statement writes, from its word and its file's
+    /// ending; merges and the tree only from the `tree` method.
+    fn output_kind(
+        &mut self,
+        what: &Spanned<String>,
+        path: &Spanned<String>,
+        is_tree: bool,
+    ) -> Option<OutputKind> {
+        let ext = Path::new(&path.node)
+            .extension()
+            .and_then(|e| e.to_str())
+            .unwrap_or("")
+            .to_ascii_lowercase();
+        let Some((_, endings, expected)) = FORMATS.iter().find(|(w, _, _)| *w == what.node) else {
+            let suggestion = suggest::nearest(&what.node, vocab::SAVE_WHAT);
+            self.err(CheckError::UnknownWord {
+                what: "output",
+                found: what.node.clone(),
+                span: what.span,
+                choices:
+                    "`assignments`, `profiles`, `centroids`, `model`, `report`, `merges` or `tree`"
+                        .into(),
+                help: did_you_mean(
+                    &suggestion,
+                    "save assignments, profiles, centroids, or a tree's merges and tree",
+                ),
+            });
+            return None;
+        };
+        if matches!(what.node.as_str(), "merges" | "tree") && !is_tree {
+            self.err(CheckError::NeedsTree {
+                what: what.node.clone(),
+                span: what.span,
+            });
+            return None;
+        }
+        match endings.iter().find(|(e, _)| *e == ext) {
+            Some((_, kind)) => Some(*kind),
+            None => {
+                self.err(CheckError::OutputFormat {
+                    what: format!("`save {}`", what.node),
+                    expected,
+                    path: path.node.clone(),
+                    span: path.span,
+                });
+                None
+            }
+        }
     }
 
     // ---------------------------------------------------------- helpers --

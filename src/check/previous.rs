@@ -14,8 +14,8 @@ use crate::plan::{ComparePlan, PreviousPlan};
 use crate::syntax::ast::{Spanned, Statement, StatementKind, Value};
 use serde::Deserialize;
 
-/// Model formats the run can carry numbers from.
-const FORMATS: [&str; 2] = ["assort-model/1", "assort-model/2"];
+/// The model formats `previous` reads: those `assort assign` reads.
+use crate::run::model::MODEL_FORMATS_READ as FORMATS;
 
 /// What the checker reads of a model file.
 #[derive(Deserialize)]
@@ -83,12 +83,35 @@ impl Checker {
         // Not registered as a read: last run's outputs are meant to be read
         // here and replaced by this run's (see `safe_path`).
         let resolved = self.safe_path(path)?;
+        let model = self.previous_model(path, &resolved)?;
+        let ok = self.same_columns(path, &model, features, categories);
+        let highest = model.segments.iter().map(|s| s.segment).max().unwrap_or(0);
+        let assignments = assignments?;
+        ok.then(|| {
+            Some(Previous {
+                plan: PreviousPlan {
+                    path: path.node.clone(),
+                    resolved,
+                    assignments,
+                },
+                highest,
+            })
+        })
+    }
+
+    /// Last run's model file, read and parsed, in a format this assort
+    /// reads.
+    fn previous_model(
+        &mut self,
+        path: &Spanned<String>,
+        resolved: &std::path::Path,
+    ) -> Option<ModelView> {
         let unfit = |reason: String, help: &str| CheckError::PreviousMismatch {
             reason,
             span: path.span,
             help: help.to_string(),
         };
-        let bytes = match std::fs::read(&resolved) {
+        let bytes = match std::fs::read(resolved) {
             Ok(b) => b,
             Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
                 self.file_problem(path, &probe::ProbeError::NotFound);
@@ -116,6 +139,23 @@ impl Checker {
             ));
             return None;
         }
+        Some(model)
+    }
+
+    /// Whether the model clustered on this recipe's columns, reporting
+    /// each side's extra columns when not.
+    fn same_columns(
+        &mut self,
+        path: &Spanned<String>,
+        model: &ModelView,
+        features: Option<&[String]>,
+        categories: Option<&[String]>,
+    ) -> bool {
+        let unfit = |reason: String, help: &str| CheckError::PreviousMismatch {
+            reason,
+            span: path.span,
+            help: help.to_string(),
+        };
         let mut ok = true;
         for (what, theirs, ours) in [
             ("numeric features", &model.features, features),
@@ -148,18 +188,7 @@ impl Checker {
                 ok = false;
             }
         }
-        let highest = model.segments.iter().map(|s| s.segment).max().unwrap_or(0);
-        let assignments = assignments?;
-        ok.then(|| {
-            Some(Previous {
-                plan: PreviousPlan {
-                    path: path.node.clone(),
-                    resolved,
-                    assignments,
-                },
-                highest,
-            })
-        })
+        ok
     }
 
     /// The previous assignments file: readable, with the key and a

@@ -68,6 +68,48 @@ pub struct ColumnInfo {
 }
 
 impl ColumnInfo {
+    /// A column named `header`, before any value is seen.
+    fn new(header: &str) -> ColumnInfo {
+        ColumnInfo {
+            name: header.trim().to_string(),
+            kind: ColumnKind::Blank,
+            text_example: None,
+            text_line: None,
+            numbers: 0,
+            texts: 0,
+            blanks: 0,
+            comma_numbers: 0,
+            min: f64::INFINITY,
+            max: f64::NEG_INFINITY,
+            sum: 0.0,
+        }
+    }
+
+    /// Counts one sampled field, on 1-based `line`, read with `decimal`.
+    fn observe(&mut self, field: &str, line: u64, decimal: DecimalMark) {
+        if is_blank(field) {
+            self.blanks += 1;
+        } else if let Some(v) = parse_number_in(field, decimal) {
+            self.numbers += 1;
+            self.min = self.min.min(v);
+            self.max = self.max.max(v);
+            self.sum += v;
+            if self.kind == ColumnKind::Blank {
+                self.kind = ColumnKind::Numeric;
+            }
+        } else {
+            self.texts += 1;
+            self.kind = ColumnKind::Text;
+            if decimal.is_point() && parse_number_in(field, DecimalMark::Comma).is_some() {
+                self.comma_numbers += 1;
+            }
+            if self.text_example.is_none() {
+                self.text_example = Some(field.trim().to_string());
+                self.text_line = Some(line);
+            }
+        }
+    }
+
     /// A column of numbers with a few stray values: more numbers than text
     /// in the sample. Such a column is meant to be numeric, and the stray
     /// values are data errors rather than a sign of a text column.
@@ -319,22 +361,7 @@ fn probe_reader<R: std::io::Read>(
     if header.is_empty() || header.iter().all(is_blank) {
         return Err(ProbeError::NoHeader);
     }
-    let mut columns: Vec<ColumnInfo> = header
-        .iter()
-        .map(|h| ColumnInfo {
-            name: h.trim().to_string(),
-            kind: ColumnKind::Blank,
-            text_example: None,
-            text_line: None,
-            numbers: 0,
-            texts: 0,
-            blanks: 0,
-            comma_numbers: 0,
-            min: f64::INFINITY,
-            max: f64::NEG_INFINITY,
-            sum: 0.0,
-        })
-        .collect();
+    let mut columns: Vec<ColumnInfo> = header.iter().map(ColumnInfo::new).collect();
     let mut sampled = 0;
     let mut record = csv::StringRecord::new();
     let mut complete = false;
@@ -350,29 +377,7 @@ fn probe_reader<R: std::io::Read>(
         sampled += 1;
         let line = record.position().map(|p| p.line()).unwrap_or(0);
         for (col, field) in columns.iter_mut().zip(record.iter()) {
-            if is_blank(field) {
-                col.blanks += 1;
-                continue;
-            }
-            if let Some(v) = parse_number_in(field, decimal) {
-                col.numbers += 1;
-                col.min = col.min.min(v);
-                col.max = col.max.max(v);
-                col.sum += v;
-                if col.kind == ColumnKind::Blank {
-                    col.kind = ColumnKind::Numeric;
-                }
-            } else {
-                col.texts += 1;
-                col.kind = ColumnKind::Text;
-                if decimal.is_point() && parse_number_in(field, DecimalMark::Comma).is_some() {
-                    col.comma_numbers += 1;
-                }
-                if col.text_example.is_none() {
-                    col.text_example = Some(field.trim().to_string());
-                    col.text_line = Some(line);
-                }
-            }
+            col.observe(field, line, decimal);
         }
     }
     // The records past the sample are counted, not estimated: limits that

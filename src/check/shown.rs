@@ -34,12 +34,46 @@ pub fn clip_quotes(text: &str) -> String {
     for (i, part) in parts.enumerate() {
         out.push('`');
         if i % 2 == 0 {
-            out.push_str(&super::clipped(part, QUOTE_CHARS));
+            out.push_str(&clipped(part, QUOTE_CHARS));
         } else {
             out.push_str(part);
         }
     }
     out
+}
+
+/// The most problems a check reports; a pasted list of thousands of
+/// unknown columns would otherwise print thousands of messages.
+pub const MOST_PROBLEMS: usize = 100;
+
+/// Keeps the first [`MOST_PROBLEMS`] problems and counts the rest in one
+/// last problem, an error when any of the rest is one.
+pub(super) fn limit_problems(problems: &mut Vec<super::diagnostic::Problem>, end: super::Span) {
+    if problems.len() <= MOST_PROBLEMS {
+        return;
+    }
+    let rest = problems.split_off(MOST_PROBLEMS);
+    let errors = rest.iter().filter(|p| p.is_error()).count();
+    let count = crate::text::thousands(rest.len());
+    problems.push(super::diagnostic::Problem::Check(if errors > 0 {
+        super::diagnostic::CheckError::MoreProblems {
+            count,
+            errors: crate::text::thousands(errors),
+            hidden_errors: errors,
+            span: end,
+        }
+    } else {
+        super::diagnostic::CheckError::MoreWarnings { count, span: end }
+    }));
+}
+
+/// `text` cut to at most `max` characters, with `…` when cut: data can put
+/// megabytes in one field, and a message should not repeat them.
+pub fn clipped(text: &str, max: usize) -> String {
+    match text.char_indices().nth(max) {
+        Some((at, _)) => format!("{}…", &text[..at]),
+        None => text.to_string(),
+    }
 }
 
 /// A diagnostic ready to render: its message and help clipped, and, when

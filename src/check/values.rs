@@ -157,6 +157,33 @@ impl Checker {
     }
 
     /// A word from a fixed list, with a suggestion when it is not.
+    /// An option that takes one of a list of words, with its default
+    /// when absent; the span is the value's, when given.
+    #[allow(clippy::too_many_arguments)]
+    pub(super) fn word_option<T>(
+        &mut self,
+        opts: &HashMap<&'static str, &OptionPair>,
+        name: &'static str,
+        default: T,
+        names: &[&'static str],
+        parse: fn(&str) -> Option<T>,
+        expected: &str,
+        example: &str,
+    ) -> Option<(T, Option<Span>)> {
+        let Some(o) = opts.get(name) else {
+            return Some((default, None));
+        };
+        match &o.value.node {
+            Value::Word(w) => self
+                .word_choice(name, &Spanned::new(w.clone(), o.value.span), names, parse)
+                .map(|v| (v, Some(o.value.span))),
+            other => {
+                self.bad_value(name, other, expected, o.value.span, example);
+                None
+            }
+        }
+    }
+
     pub(super) fn word_choice<T>(
         &mut self,
         what: &'static str,
