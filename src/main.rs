@@ -109,6 +109,7 @@ struct RecipeArgs {
 }
 
 fn main() -> ExitCode {
+    quiet_broken_pipe();
     let cli = Cli::parse();
     match cli.command {
         Command::Check(args) => with_plan(&args, "assort-check/1", |_, plan, diagnostics| {
@@ -146,7 +147,11 @@ fn main() -> ExitCode {
         Command::Run { recipe, dry_run } => {
             with_plan(&recipe, "assort-result/1", |source, plan, diagnostics| {
                 if dry_run {
-                    print!("{}", dry_run_listing(source, plan));
+                    if recipe.json {
+                        output::json::print(&dry_run_json(source, plan, diagnostics));
+                    } else {
+                        print!("{}", dry_run_listing(source, plan));
+                    }
                     return ExitCode::SUCCESS;
                 }
                 let fail = |e: &dyn miette::Diagnostic| {
@@ -658,6 +663,24 @@ fn dry_run_listing(source: &RecipeSource, plan: &Plan) -> String {
     s
 }
 
+/// What a run would read and write, as `assort-dry-run/1`.
+fn dry_run_json(
+    source: &RecipeSource,
+    plan: &Plan,
+    diagnostics: serde_json::Value,
+) -> serde_json::Value {
+    let reads: Vec<String> = std::iter::once(shown(&plan.input.resolved))
+        .chain(plan.validate.iter().map(|v| shown(&v.resolved)))
+        .collect();
+    let writes: Vec<String> = plan
+        .outputs
+        .iter()
+        .map(|o| shown(&o.resolved))
+        .chain(std::iter::once(shown(&record_path(source, plan))))
+        .collect();
+    json!({"format": "assort-dry-run/1", "ok": true, "diagnostics": diagnostics, "reads": reads, "writes": writes})
+}
+
 /// A path as the user would type it from here (no leading `./`).
 fn shown(path: &Path) -> String {
     path.strip_prefix(".").unwrap_or(path).display().to_string()
@@ -756,6 +779,20 @@ fn with_plan(
             }
             ExitCode::FAILURE
         }
+    }
+}
+
+/// `assort plan RECIPE | head -1`: when the reader of standard output
+/// goes away, end quietly as other command-line tools do, instead of
+/// panicking on the next print. Rust ignores SIGPIPE by default; this
+/// restores the system's default action. Outputs are files written as one
+/// journalled set, so an end mid-run is recovered like any interruption.
+fn quiet_broken_pipe() {
+    #[cfg(unix)]
+    // SAFETY: called first thing in `main`, before any thread starts;
+    // setting a signal's action to its default is async-signal-safe.
+    unsafe {
+        libc::signal(libc::SIGPIPE, libc::SIG_DFL);
     }
 }
 

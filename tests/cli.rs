@@ -1609,3 +1609,35 @@ fn on_a_terminal_colour_shows_unless_no_color_is_set() {
         "escape codes despite NO_COLOR:\n{plain}"
     );
 }
+
+// ------------------------------------------------------------ pipes --
+
+#[test]
+fn a_reader_that_stops_early_ends_the_command_quietly() {
+    let case = Case::demo();
+    // `assort plan RECIPE | head -1`: the reader goes before the end.
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_assort"))
+        .args(["plan", DEMO])
+        .current_dir(case.dir.path())
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    // Gone before assort prints (checking the demo takes milliseconds).
+    drop(child.stdout.take());
+    let out = child.wait_with_output().unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(!stderr.contains("panicked"), "{stderr}");
+    assert_ne!(out.status.code(), Some(101), "{stderr}");
+}
+
+#[test]
+fn a_dry_run_with_json_lists_reads_and_writes_as_json() {
+    let case = Case::demo();
+    let run = case.assort(&["run", DEMO, "--dry-run", "--json"], &[]).ok();
+    let doc: serde_json::Value = serde_json::from_str(&run.stdout()).unwrap();
+    assert_eq!(doc["format"], "assort-dry-run/1");
+    assert_eq!(doc["reads"][0], "data/coop_members.csv");
+    assert_eq!(doc["writes"].as_array().unwrap().len(), 7);
+    assert!(!case.path("out").exists(), "a dry run wrote something");
+}

@@ -21,6 +21,23 @@ pub struct Pca {
     pub variance: Vec<f64>,
 }
 
+/// The data's total variance: the sum of its columns' variances, with the
+/// components' divisor (n - 1), so the shares of all d components add up
+/// to exactly 1 (the trace of the covariance matrix). O(n d).
+pub fn total_variance(data: ArrayView2<'_, f64>) -> f64 {
+    let (n, d) = data.dim();
+    if n < 2 {
+        return 0.0;
+    }
+    (0..d)
+        .map(|f| {
+            let col = data.column(f);
+            let mean = col.sum() / n as f64;
+            col.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / (n - 1) as f64
+        })
+        .sum()
+}
+
 /// The first `m` principal components (fewer when d is smaller).
 pub fn principal_components(data: ArrayView2<'_, f64>, m: usize) -> Pca {
     let (n, d) = data.dim();
@@ -68,5 +85,25 @@ impl Pca {
                 .map(|f| (data[[i, f]] - self.mean[f]) * self.components[c][f])
                 .sum()
         })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_shares_of_all_components_add_up_to_the_whole() {
+        // Small n, where dividing by n or by n - 1 differs most.
+        let x = ndarray::array![
+            [1.0, 2.0, 0.5],
+            [2.0, 1.0, 0.1],
+            [4.0, 3.0, 0.9],
+            [0.5, 5.0, 0.3]
+        ];
+        let p = principal_components(x.view(), 3);
+        let total = total_variance(x.view());
+        let shares: f64 = p.variance.iter().sum::<f64>() / total;
+        assert!((shares - 1.0).abs() < 1e-12, "shares add up to {shares}");
     }
 }

@@ -445,9 +445,8 @@ pub fn projection(o: &Outcome) -> Chart {
     let scores = p.project(x);
     let n = scores.nrows();
     let step = n.div_ceil(MAX_POINTS).max(1);
-    let total_var: f64 = (0..x.ncols())
-        .map(|f| crate::engine::stats::sd_population(&x.column(f).to_vec()).map_or(0.0, |s| s * s))
-        .sum();
+    // Same divisor as the components' variances, so the shares add up.
+    let total_var = pca::total_variance(x);
     let share = |c: usize| {
         p.variance
             .get(c)
