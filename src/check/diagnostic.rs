@@ -424,6 +424,19 @@ pub enum CheckError {
         span: Span,
     },
 
+    #[error("`{file}` line {line}: the key `{column}` is blank")]
+    #[diagnostic(
+        code(assort::blank_key),
+        help("every record needs a key, so it can be found in the outputs; fill it in, or remove the record")
+    )]
+    BlankKey {
+        column: String,
+        file: String,
+        line: u64,
+        #[label("this key column")]
+        span: Span,
+    },
+
     #[error("the previous model does not fit this recipe: {reason}")]
     #[diagnostic(code(assort::previous_mismatch), help("{help}"))]
     PreviousMismatch {

@@ -393,13 +393,21 @@ impl Checker {
         // Report unknown columns as such; known ones as not features.
         self.probe.as_ref()?;
         self.known_column(col)?;
+        let help = if self.category_spans.contains_key(&col.node) {
+            match statement {
+                "missing" => format!("`{}` is a category column: a blank category is a level of its own, `(blank)`; `missing` rules are for the numeric columns listed in `features`", col.node),
+                _ => format!("`{}` is a category column, whose weight is set by `categories {} weight ...`; `{statement}` is for the numeric columns listed in `features`", col.node, col.node),
+            }
+        } else {
+            format!(
+                "`{statement}` applies to the columns listed in `features`; add `{}` there first",
+                col.node
+            )
+        };
         self.err(CheckError::NotAFeature {
             column: col.node.clone(),
             span: col.span,
-            help: format!(
-                "`{statement}` applies to the columns listed in `features`; add `{}` there first",
-                col.node
-            ),
+            help,
         });
         None
     }

@@ -42,17 +42,28 @@ impl Checker {
         self.probe_input(path, &resolved, separator, decimal)?;
         let key = key?;
         self.known_column(&key)?;
-        if let Some((k, first, again)) = probe::repeated_key(&resolved, separator as u8, &key.node)
-        {
-            self.err(CheckError::RepeatedKey {
-                column: key.node.clone(),
-                key: clipped(&k, 40),
-                file: path.node.clone(),
-                first,
-                again,
-                span: key.span,
-            });
-            return None;
+        match probe::key_problem(&resolved, separator as u8, &key.node) {
+            Some(probe::KeyProblem::Repeated(k, first, again)) => {
+                self.err(CheckError::RepeatedKey {
+                    column: key.node.clone(),
+                    key: clipped(&k, 40),
+                    file: path.node.clone(),
+                    first,
+                    again,
+                    span: key.span,
+                });
+                return None;
+            }
+            Some(probe::KeyProblem::Blank(line)) => {
+                self.err(CheckError::BlankKey {
+                    column: key.node.clone(),
+                    file: path.node.clone(),
+                    line,
+                    span: key.span,
+                });
+                return None;
+            }
+            None => {}
         }
         Some(CheckedInput {
             plan: InputPlan {

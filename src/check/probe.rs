@@ -195,10 +195,19 @@ pub fn header_separator(path: &Path, separator: char) -> Option<char> {
     [';', '\t', '|'].into_iter().find(|&c| line.contains(c))
 }
 
-/// The first key repeated within the sample: (the key, the line it first
-/// appeared on, the line it appears again). Reads the first
-/// [`SAMPLE_ROWS`] records again, only the key column.
-pub fn repeated_key(path: &Path, separator: u8, key: &str) -> Option<(String, u64, u64)> {
+/// A key problem the sample shows.
+#[derive(Debug, Clone, PartialEq)]
+pub enum KeyProblem {
+    /// A key given again: (the key, the line it first appeared on, the
+    /// line it appears again).
+    Repeated(String, u64, u64),
+    /// A record with a blank key, at this line.
+    Blank(u64),
+}
+
+/// The first key problem within the sample: a blank or repeated key.
+/// Reads the first [`SAMPLE_ROWS`] records again, only the key column.
+pub fn key_problem(path: &Path, separator: u8, key: &str) -> Option<KeyProblem> {
     let mut reader = csv::ReaderBuilder::new()
         .delimiter(separator)
         .from_reader(File::open(path).ok()?);
@@ -216,10 +225,10 @@ pub fn repeated_key(path: &Path, separator: u8, key: &str) -> Option<(String, u6
         let line = record.position().map_or(0, |p| p.line());
         let k = record.get(at).unwrap_or("").trim();
         if k.is_empty() {
-            continue;
+            return Some(KeyProblem::Blank(line));
         }
         if let Some(&first) = seen.get(k) {
-            return Some((k.to_string(), first, line));
+            return Some(KeyProblem::Repeated(k.to_string(), first, line));
         }
         seen.insert(k.to_string(), line);
     }
