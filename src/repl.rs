@@ -69,11 +69,24 @@ fn piped(session: &mut Session, path: &Path, colour: bool, options: &CheckOption
         let Ok(line) = line else { break };
         if let Some(done) = gather(&mut pending, &line) {
             if !handle(session, &mut path, &done, colour, options) {
+                warn_unsaved(session);
                 return 0;
             }
         }
     }
+    warn_unsaved(session);
     i32::from(!pending.trim().is_empty())
+}
+
+/// Piped input never waits for an answer: leaving with unsaved changes
+/// is said on standard error instead.
+fn warn_unsaved(session: &Session) {
+    if session.unsaved() {
+        eprintln!(
+            "note: left with unsaved changes to `{}` (`:save` keeps them)",
+            session.path().display()
+        );
+    }
 }
 
 fn interactive(session: &mut Session, path: &Path, colour: bool, options: &CheckOptions) -> i32 {
@@ -100,23 +113,89 @@ fn interactive(session: &mut Session, path: &Path, colour: bool, options: &Check
         } else {
             "    ... "
         };
-        let Ok(line) = editor.readline(prompt) else {
-            break;
+        let line = match editor.readline(prompt) {
+            Ok(line) => line,
+            // Ctrl-C clears the line or the statement being continued;
+            // the session and its statements stay.
+            Err(rustyline::error::ReadlineError::Interrupted) => {
+                let what = if pending.is_empty() {
+                    "line"
+                } else {
+                    "statement"
+                };
+                pending.clear();
+                println!("(Ctrl-C cleared the {what}; `:quit` or Ctrl-D leaves)");
+                continue;
+            }
+            Err(_) => {
+                if leave_asking(&mut editor, session) {
+                    break;
+                }
+                continue;
+            }
         };
         let _ = editor.add_history_entry(line.as_str());
-        if let Some(done) = gather(&mut pending, &line) {
-            if !handle(session, &mut path, &done, colour, options) {
-                break;
+        // A paste arrives as one entry with line breaks: each line is
+        // entered in turn, as if typed.
+        let mut leaving = false;
+        for part in line.split('\n') {
+            let part = part.strip_suffix('\r').unwrap_or(part);
+            if let Some(done) = gather(&mut pending, part) {
+                if !handle(session, &mut path, &done, colour, options)
+                    && leave_asking(&mut editor, session)
+                {
+                    leaving = true;
+                    break;
+                }
             }
-            if let Some(h) = editor.helper_mut() {
-                h.columns = session.check().columns;
-            }
+        }
+        if let Some(h) = editor.helper_mut() {
+            h.columns = session.check().columns;
+        }
+        if leaving {
+            break;
         }
     }
     if let Some(h) = &history {
         let _ = editor.save_history(h);
     }
     0
+}
+
+/// Whether to leave: at once when nothing would be lost, else after
+/// asking whether to save (`y`), leave without saving (`n`) or stay.
+fn leave_asking(
+    editor: &mut rustyline::Editor<Assist, rustyline::history::DefaultHistory>,
+    session: &mut Session,
+) -> bool {
+    if !session.unsaved() {
+        return true;
+    }
+    let path = session.path().to_path_buf();
+    let question = format!(
+        "`{}` has unsaved changes: save them before leaving? [y]es, [n]o, anything else stays: ",
+        path.display()
+    );
+    match editor
+        .readline(&question)
+        .map(|a| a.trim().to_ascii_lowercase())
+    {
+        Ok(a) if a == "y" || a == "yes" => match session.save(&path) {
+            Ok(()) => {
+                println!("saved {}", path.display());
+                true
+            }
+            Err(e) => {
+                println!("not saved: {e}; still here");
+                false
+            }
+        },
+        Ok(a) if a == "n" || a == "no" => true,
+        _ => {
+            println!("still here");
+            false
+        }
+    }
 }
 
 /// Adds a line to a statement being gathered; returns the whole statement

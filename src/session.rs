@@ -26,6 +26,9 @@ pub struct Session {
     cache: DataCache,
     options: CheckOptions,
     last: Option<Outcome>,
+    /// The recipe as last read or saved (canonical layout), to tell
+    /// whether there is work to lose.
+    saved: String,
 }
 
 enum Undo {
@@ -55,6 +58,7 @@ impl Session {
             cache: DataCache::default(),
             options,
             last: None,
+            saved: String::new(),
         }
     }
 
@@ -63,7 +67,20 @@ impl Session {
         let source = RecipeSource::read(path)?;
         let mut s = Session::new(path, options);
         s.statements = check::statements_of(&source.text);
+        s.saved = s.formatted();
         Ok(s)
+    }
+
+    /// Whether the recipe differs from the file it was read from or last
+    /// saved to (an empty new session has nothing to lose).
+    pub fn unsaved(&self) -> bool {
+        let now = self.formatted();
+        now != self.saved && !(self.saved.is_empty() && now.trim().is_empty())
+    }
+
+    /// The recipe file the session reads and saves by default.
+    pub fn path(&self) -> &Path {
+        &self.path
     }
 
     /// The recipe as text, one statement per line.
@@ -212,7 +229,7 @@ impl Session {
 
     /// Saves the recipe, formatted, to `path`. Paths inside it stay
     /// relative to the session's folder, so saving elsewhere is refused.
-    pub fn save(&self, path: &Path) -> Result<(), String> {
+    pub fn save(&mut self, path: &Path) -> Result<(), String> {
         let folder =
             |p: &Path| check::paths::Sandbox::real_path(p.parent().unwrap_or(Path::new(".")));
         if folder(path) != folder(&self.path) {
@@ -226,7 +243,11 @@ impl Session {
             path.display().to_string(),
             self.formatted().into_bytes(),
         );
-        crate::output::files::write_all(std::slice::from_ref(&file)).map_err(|e| e.to_string())
+        crate::output::files::write_all(std::slice::from_ref(&file)).map_err(|e| e.to_string())?;
+        if check::paths::Sandbox::real_path(path) == check::paths::Sandbox::real_path(&self.path) {
+            self.saved = self.formatted();
+        }
+        Ok(())
     }
 
     /// Completions for the statement being typed, `before` being its text

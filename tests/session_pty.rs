@@ -1,0 +1,212 @@
+//! The interactive session in a pseudo-terminal, driven as a person at a
+//! keyboard would: Ctrl-C on a half-typed line and inside a continued
+//! statement keeps the session and its statements; a three-line paste
+//! (bracketed, as terminals send it) enters three statements; leaving with
+//! unsaved changes asks, and staying or leaving without saving both work.
+
+#![cfg(unix)]
+
+mod common;
+
+use common::case::Case;
+use std::fs::File;
+use std::io::{Read, Write};
+use std::os::fd::{FromRawFd, OwnedFd};
+use std::process::{Child, Command, Stdio};
+use std::sync::mpsc::{channel, Receiver};
+use std::time::{Duration, Instant};
+
+/// `assort repl RECIPE` on the slave side of a new pseudo-terminal; the
+/// master side to type into, and what the session prints.
+struct Terminal {
+    child: Child,
+    keys: File,
+    screen: Receiver<Vec<u8>>,
+    seen: String,
+}
+
+impl Terminal {
+    fn start(case: &Case, recipe: &str) -> Terminal {
+        let (mut master, mut slave) = (0, 0);
+        // SAFETY: openpty writes two new descriptors into the locals; null
+        // name, termios and window size ask for the defaults.
+        let made = unsafe {
+            libc::openpty(
+                &mut master,
+                &mut slave,
+                std::ptr::null_mut(),
+                std::ptr::null(),
+                std::ptr::null(),
+            )
+        };
+        assert_eq!(made, 0, "no pseudo-terminal");
+        // SAFETY: both descriptors were just opened and are owned here only.
+        let (master, slave) =
+            unsafe { (OwnedFd::from_raw_fd(master), OwnedFd::from_raw_fd(slave)) };
+        let slave = File::from(slave);
+        let child = Command::new(env!("CARGO_BIN_EXE_assort"))
+            .args(["repl", recipe])
+            .current_dir(case.dir.path())
+            .env("NO_COLOR", "1")
+            .env("HOME", case.dir.path())
+            .env("TERM", "xterm")
+            .stdin(Stdio::from(slave.try_clone().unwrap()))
+            .stdout(Stdio::from(slave.try_clone().unwrap()))
+            .stderr(Stdio::from(slave))
+            .spawn()
+            .unwrap();
+        let master = File::from(master);
+        let mut reader = master.try_clone().unwrap();
+        let (tx, screen) = channel();
+        std::thread::spawn(move || {
+            let mut buf = [0u8; 4096];
+            while let Ok(n) = reader.read(&mut buf) {
+                if n == 0 || tx.send(buf[..n].to_vec()).is_err() {
+                    break;
+                }
+            }
+        });
+        Terminal {
+            child,
+            keys: master,
+            screen,
+            seen: String::new(),
+        }
+    }
+
+    /// Waits until the screen shows `text` (after what was awaited before).
+    #[track_caller]
+    fn wait_for(&mut self, text: &str) {
+        let deadline = Instant::now() + Duration::from_secs(20);
+        loop {
+            if let Some(at) = self.seen.find(text) {
+                self.seen.drain(..at + text.len());
+                return;
+            }
+            let left = deadline.saturating_duration_since(Instant::now());
+            match self.screen.recv_timeout(left) {
+                Ok(bytes) => self.seen.push_str(&String::from_utf8_lossy(&bytes)),
+                Err(_) => panic!(
+                    "the session never showed `{text}`; it showed:\n{}",
+                    self.seen
+                ),
+            }
+        }
+    }
+
+    /// Waits for a prompt and then for the screen to fall quiet, so the
+    /// line editor is reading keys (not the terminal's cooked mode) when
+    /// the next ones come.
+    #[track_caller]
+    fn wait_for_prompt(&mut self, prompt: &str) {
+        self.wait_for(prompt);
+        while let Ok(bytes) = self.screen.recv_timeout(Duration::from_millis(300)) {
+            self.seen.push_str(&String::from_utf8_lossy(&bytes));
+        }
+        self.seen.clear();
+    }
+
+    fn type_keys(&mut self, keys: &str) {
+        self.keys.write_all(keys.as_bytes()).unwrap();
+        self.keys.flush().unwrap();
+    }
+
+    fn finish(mut self) -> std::process::ExitStatus {
+        let deadline = Instant::now() + Duration::from_secs(20);
+        loop {
+            if let Some(status) = self.child.try_wait().unwrap() {
+                return status;
+            }
+            assert!(
+                Instant::now() < deadline,
+                "the session did not end:\n{}",
+                self.seen
+            );
+            std::thread::sleep(Duration::from_millis(20));
+        }
+    }
+}
+
+fn case() -> Case {
+    let case = Case::empty();
+    case.write(
+        "data/members.csv",
+        "member_id,tenure_months,visits_per_month\nM1,12,4.5\nM2,40,1.2\nM3,3,0.8\nM4,55,9.1\n",
+    );
+    case
+}
+
+#[test]
+fn ctrl_c_clears_the_line_and_a_paste_enters_each_statement() {
+    let case = case();
+    let mut t = Terminal::start(&case, "new.assort");
+    t.wait_for_prompt("assort> ");
+    t.type_keys("input \"data/members.csv\" key member_id\r");
+    t.wait_for_prompt("assort> ");
+    // Ctrl-C on a half-typed line.
+    t.type_keys("features tenure_mon\x03");
+    t.wait_for("Ctrl-C cleared the line");
+    t.wait_for_prompt("assort> ");
+    // Ctrl-C inside a statement continued after a comma.
+    t.type_keys("features tenure_months,\r");
+    t.wait_for_prompt("... ");
+    t.type_keys("\x03");
+    t.wait_for("Ctrl-C cleared the statement");
+    t.wait_for_prompt("assort> ");
+    // Three lines pasted at once, as a terminal sends a paste.
+    t.type_keys("\x1b[200~features tenure_months\nkmeans k 2\nseed 3\x1b[201~\r");
+    t.wait_for_prompt("assort> ");
+    t.type_keys(":recipe\r");
+    t.wait_for("input \"data/members.csv\" key member_id");
+    t.wait_for("features tenure_months");
+    t.wait_for("kmeans k 2");
+    t.wait_for("seed 3");
+    // Leaving with unsaved changes asks; anything but y or n stays.
+    t.type_keys("\x04");
+    t.wait_for_prompt("has unsaved changes");
+    t.type_keys("c\r");
+    t.wait_for("still here");
+    t.wait_for_prompt("assort> ");
+    // `y` saves, then leaves.
+    t.type_keys(":quit\r");
+    t.wait_for_prompt("has unsaved changes");
+    t.type_keys("y\r");
+    t.wait_for("saved new.assort");
+    assert!(t.finish().success());
+    let saved = case.read("new.assort");
+    for line in [
+        "input \"data/members.csv\" key member_id",
+        "features tenure_months",
+        "kmeans k 2",
+        "seed 3",
+    ] {
+        assert!(saved.contains(line), "`{line}` not saved:\n{saved}");
+    }
+    assert!(
+        !saved.contains("tenure_mon\n"),
+        "a cleared line was kept:\n{saved}"
+    );
+}
+
+#[test]
+fn leaving_a_saved_session_asks_nothing_and_no_leaves_without_saving() {
+    let case = case();
+    case.write("kept.assort", "input \"data/members.csv\" key member_id\n");
+    let mut t = Terminal::start(&case, "kept.assort");
+    t.wait_for_prompt("assort> ");
+    t.type_keys(":quit\r");
+    assert!(t.finish().success(), "a session with nothing to lose asked");
+
+    let mut t = Terminal::start(&case, "kept.assort");
+    t.wait_for_prompt("assort> ");
+    t.type_keys("features tenure_months\r");
+    t.wait_for_prompt("assort> ");
+    t.type_keys(":quit\r");
+    t.wait_for_prompt("has unsaved changes");
+    t.type_keys("n\r");
+    assert!(t.finish().success());
+    assert_eq!(
+        case.read("kept.assort"),
+        "input \"data/members.csv\" key member_id\n"
+    );
+}
