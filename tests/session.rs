@@ -66,3 +66,24 @@ fn completion_knows_statements_options_and_columns() {
         ["coupon_rate"]
     );
 }
+
+#[test]
+fn saving_keeps_the_authors_blank_lines_and_comments() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("kept.assort");
+    let text = "input \"d.csv\" key id\n\n# what we cluster on\nfeatures a, b\n\nkmeans k 2  # two to start\n";
+    std::fs::write(&path, text).unwrap();
+    let mut session = Session::open(&path, CheckOptions::default()).unwrap();
+    assert!(
+        !session.unsaved(),
+        "a session just opened has nothing to lose"
+    );
+    session.enter("seed 4", false);
+    assert!(session.unsaved());
+    session.save(&path).unwrap();
+    assert!(!session.unsaved());
+    assert_eq!(
+        std::fs::read_to_string(&path).unwrap(),
+        "input \"d.csv\" key id\n\n# what we cluster on\nfeatures a, b\n\nkmeans k 2  # two to start\nseed 4\n"
+    );
+}

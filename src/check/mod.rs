@@ -248,12 +248,23 @@ pub fn statements_of(text: &str) -> Vec<String> {
             continue;
         }
         prefix.push(t.to_string());
-        out.push(prefix.join("\n").trim_start_matches('\n').to_string());
+        let entry = prefix.join("\n");
+        // The author's blank line before a statement stays with it; only
+        // blank lines at the very top of the recipe go.
+        out.push(if out.is_empty() {
+            entry.trim_start_matches('\n').to_string()
+        } else {
+            entry
+        });
         prefix.clear();
     }
     let rest = prefix.join("\n");
     if !rest.trim().is_empty() {
-        out.push(rest.trim_start_matches('\n').to_string());
+        out.push(if out.is_empty() {
+            rest.trim_start_matches('\n').to_string()
+        } else {
+            rest
+        });
     }
     out
 }
