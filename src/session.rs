@@ -116,6 +116,8 @@ impl Session {
             return (Entered::Nothing, String::new());
         }
         let word = statement.split_whitespace().next().unwrap_or("");
+        // Warnings already standing are not news; new ones elsewhere are.
+        let standing: Vec<String> = self.check().problems.iter().map(problem_key).collect();
         let existing = if check::single_statement(word) {
             self.statements
                 .iter()
@@ -148,16 +150,24 @@ impl Session {
         let source = self.source();
         let range = self.range_of(at);
         let checked = check::check_with(&source, &self.options);
-        let mine: Vec<diagnostic::Problem> = checked
+        let (mine, others): (Vec<_>, Vec<_>) = checked
             .problems
             .into_iter()
-            .filter(|p| !p.is_incomplete() && touches(p, range))
-            .collect();
-        let rendered = diagnostic::render(&mine, &source.name(), &source.text, colour);
+            .filter(|p| !p.is_incomplete())
+            .partition(|p| touches(p, range));
         if mine.iter().any(diagnostic::Problem::is_error) {
+            let rendered = diagnostic::render(&mine, &source.name(), &source.text, colour);
             self.undo();
             return (Entered::Rejected, rendered);
         }
+        // A change can raise a warning at another statement (`choose` with
+        // one k left to fit): shown as `check` would show it.
+        let caused: Vec<diagnostic::Problem> = others
+            .into_iter()
+            .filter(|p| !p.is_error() && !standing.contains(&problem_key(p)))
+            .collect();
+        let shown: Vec<diagnostic::Problem> = mine.into_iter().chain(caused).collect();
+        let rendered = diagnostic::render(&shown, &source.name(), &source.text, colour);
         let what = match existing {
             Some(_) => Entered::Replaced(word.to_string()),
             None => Entered::Added,
@@ -255,6 +265,15 @@ impl Session {
     pub fn complete(&self, before: &str) -> Vec<String> {
         check::complete::complete(before, &self.check().columns)
     }
+}
+
+/// A problem by its code and message, to tell standing ones from new.
+fn problem_key(p: &diagnostic::Problem) -> String {
+    use miette::Diagnostic;
+    format!(
+        "{}: {p}",
+        p.code().map(|c| c.to_string()).unwrap_or_default()
+    )
 }
 
 /// Whether a problem points into `range`.

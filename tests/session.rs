@@ -87,3 +87,24 @@ fn saving_keeps_the_authors_blank_lines_and_comments() {
         "input \"d.csv\" key id\n\n# what we cluster on\nfeatures a, b\n\nkmeans k 2  # two to start\nseed 4\n"
     );
 }
+
+#[test]
+fn a_warning_a_change_causes_elsewhere_is_shown_once() {
+    let mut session = demo_folder_session();
+    for s in [
+        "input \"data/coop_members.csv\" key member_id",
+        "features tenure_months, basket_value",
+        "missing fill median",
+        "kmeans k 2..4",
+        "choose k by silhouette",
+    ] {
+        let (what, _) = session.enter(s, false);
+        assert_ne!(what, Entered::Rejected, "{s}");
+    }
+    // One k left: the `choose` statement, not the one entered, is warned.
+    let (_, shown) = session.enter("kmeans k 3", false);
+    assert!(shown.contains("has nothing to choose from"), "{shown}");
+    // Standing warnings are not repeated at every later entry.
+    let (_, shown) = session.enter("seed 5", false);
+    assert!(!shown.contains("has nothing to choose from"), "{shown}");
+}

@@ -94,14 +94,33 @@ impl Terminal {
         }
     }
 
-    /// Waits for a prompt and then for the screen to fall quiet, so the
-    /// line editor is reading keys (not the terminal's cooked mode) when
-    /// the next ones come.
+    /// Waits until the line editor is reading keys at `prompt`: the last
+    /// bracketed-paste switch it sent turns pasting on (it does so when a
+    /// line starts and off when one ends), the prompt follows, and the
+    /// screen then stays quiet. Keys sent earlier would meet the terminal's
+    /// cooked mode instead.
     #[track_caller]
     fn wait_for_prompt(&mut self, prompt: &str) {
-        self.wait_for(prompt);
-        while let Ok(bytes) = self.screen.recv_timeout(Duration::from_millis(300)) {
-            self.seen.push_str(&String::from_utf8_lossy(&bytes));
+        const ON: &str = "\x1b[?2004h";
+        const OFF: &str = "\x1b[?2004l";
+        let deadline = Instant::now() + Duration::from_secs(20);
+        loop {
+            let reading = self.seen.rfind(ON).is_some_and(|on| {
+                self.seen.rfind(OFF).is_none_or(|off| off < on) && self.seen[on..].contains(prompt)
+            });
+            let wait = if reading {
+                Duration::from_millis(200)
+            } else {
+                deadline.saturating_duration_since(Instant::now())
+            };
+            match self.screen.recv_timeout(wait) {
+                Ok(bytes) => self.seen.push_str(&String::from_utf8_lossy(&bytes)),
+                Err(_) if reading => break,
+                Err(_) => panic!(
+                    "the session never waited at `{prompt}`; it showed:\n{}",
+                    self.seen
+                ),
+            }
         }
         self.seen.clear();
     }
@@ -161,6 +180,7 @@ fn ctrl_c_clears_the_line_and_a_paste_enters_each_statement() {
     t.wait_for("features tenure_months");
     t.wait_for("kmeans k 2");
     t.wait_for("seed 3");
+    t.wait_for_prompt("assort> ");
     // Leaving with unsaved changes asks; anything but y or n stays.
     t.type_keys("\x04");
     t.wait_for_prompt("has unsaved changes");
