@@ -24,7 +24,11 @@ pub const COMMANDS: &[(&str, &str)] = &[
         ":again",
         "show a table of the last run again: `:again sweep`, `profiles` or `comparison`",
     ),
-    (":undo", "take back the last statement entered"),
+    (":undo", "take back the last statement entered or removed"),
+    (
+        ":drop",
+        "remove the statement that begins so: `:drop label 3`, `:drop transform basket_value`",
+    ),
     (
         ":save",
         "save the recipe, formatted: `:save` (to the file opened) or `:save FILE`",
@@ -246,6 +250,12 @@ fn handle(
             "again" => session
                 .table(arg.unwrap_or("sweep"))
                 .unwrap_or_else(|| "nothing to show: `:run` first, then `:again sweep`, `profiles` or `comparison`\n".into()),
+            "drop" => {
+                let start = command.trim_start().strip_prefix("drop").unwrap_or("");
+                match session.drop_statement(start) {
+                    Ok(done) | Err(done) => done + "\n",
+                }
+            }
             "undo" => session.undo().map(|u| u + "\n").unwrap_or_else(|| "nothing to undo\n".into()),
             "save" => {
                 let target = arg.map(PathBuf::from).unwrap_or_else(|| path.clone());

@@ -34,6 +34,7 @@ pub struct Session {
 enum Undo {
     Added(usize),
     Replaced { at: usize, old: String },
+    Dropped { at: usize, old: String },
 }
 
 /// What entering a statement did.
@@ -118,10 +119,17 @@ impl Session {
         let word = statement.split_whitespace().next().unwrap_or("");
         // Warnings already standing are not news; new ones elsewhere are.
         let standing: Vec<String> = self.check().problems.iter().map(problem_key).collect();
+        // A statement given once per recipe, or once per segment (`label
+        // 3`), replaces the one already there.
         let existing = if check::single_statement(word) {
             self.statements
                 .iter()
                 .position(|s| check::statement_word(s) == word)
+        } else if word == "label" {
+            let slot = words_of(statement).take(2).collect::<Vec<_>>();
+            self.statements
+                .iter()
+                .position(|s| words_of(code_of(s)).take(2).collect::<Vec<_>>() == slot)
         } else {
             None
         };
@@ -181,9 +189,50 @@ impl Session {
         Span::new(start, start + self.statements[i].len())
     }
 
+    /// Removes the one statement that begins with `start`, word for word
+    /// (`label 3`, `transform basket_value`); says what was removed, or
+    /// why nothing was.
+    pub fn drop_statement(&mut self, start: &str) -> Result<String, String> {
+        let want: Vec<&str> = words_of(start).collect();
+        if want.is_empty() {
+            return Err("`:drop` takes the start of a statement, such as `:drop label 3`".into());
+        }
+        let found: Vec<usize> = (0..self.statements.len())
+            .filter(|&i| {
+                let have: Vec<&str> = words_of(code_of(&self.statements[i])).collect();
+                have.len() >= want.len() && have[..want.len()] == want[..]
+            })
+            .collect();
+        match found[..] {
+            [at] => {
+                let old = self.statements.remove(at);
+                let shown = code_of(&old).to_string();
+                self.undo.push(Undo::Dropped { at, old });
+                Ok(format!("removed `{shown}`"))
+            }
+            [] => Err(format!(
+                "no statement begins `{start}`; `:recipe` shows them"
+            )),
+            _ => Err(format!(
+                "{} statements begin `{start}`: {}; say more of the one to remove",
+                found.len(),
+                found
+                    .iter()
+                    .map(|&i| format!("`{}`", code_of(&self.statements[i])))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            )),
+        }
+    }
+
     /// Takes back the last statement entered; says what was undone.
     pub fn undo(&mut self) -> Option<String> {
         match self.undo.pop()? {
+            Undo::Dropped { at, old } => {
+                let shown = code_of(&old).to_string();
+                self.statements.insert(at.min(self.statements.len()), old);
+                Some(format!("put back `{shown}`"))
+            }
             Undo::Added(i) => Some(format!("removed `{}`", self.statements.remove(i))),
             Undo::Replaced { at, old } => {
                 let new = std::mem::replace(&mut self.statements[at], old.clone());
@@ -265,6 +314,24 @@ impl Session {
     pub fn complete(&self, before: &str) -> Vec<String> {
         check::complete::complete(before, &self.check().columns)
     }
+}
+
+/// An entry's statement without the comments and blank lines before it.
+fn code_of(entry: &str) -> &str {
+    entry
+        .lines()
+        .find(|l| !l.trim().is_empty() && !l.trim().starts_with('#'))
+        .map_or("", str::trim)
+}
+
+/// The words of a statement, commas and a trailing comment aside.
+fn words_of(statement: &str) -> impl Iterator<Item = &str> {
+    statement
+        .split('#')
+        .next()
+        .unwrap_or("")
+        .split(|c: char| c.is_whitespace() || c == ',')
+        .filter(|w| !w.is_empty())
 }
 
 /// A problem by its code and message, to tell standing ones from new.

@@ -108,3 +108,35 @@ fn a_warning_a_change_causes_elsewhere_is_shown_once() {
     let (_, shown) = session.enter("seed 5", false);
     assert!(!shown.contains("has nothing to choose from"), "{shown}");
 }
+
+#[test]
+fn a_label_is_changed_by_entering_it_again_and_any_statement_can_be_dropped() {
+    let mut session = demo_folder_session();
+    for s in [
+        "input \"data/coop_members.csv\" key member_id",
+        "features tenure_months, basket_value",
+        "missing fill median",
+        "transform basket_value log1p",
+        "kmeans k 3",
+        "label 3 \"night owls\"",
+    ] {
+        let (what, shown) = session.enter(s, false);
+        assert_ne!(what, Entered::Rejected, "{s}: {shown}");
+    }
+    let (what, _) = session.enter("label 3 \"late shoppers\"", false);
+    assert_eq!(what, Entered::Replaced("label".into()));
+    assert!(session.text().contains("label 3 \"late shoppers\""));
+    assert!(!session.text().contains("night owls"));
+
+    assert_eq!(
+        session.drop_statement("transform basket_value"),
+        Ok("removed `transform basket_value log1p`".into())
+    );
+    assert!(!session.text().contains("transform"));
+    assert!(session.drop_statement("label 9").is_err());
+    // Undo puts a dropped statement back where it was.
+    session.undo();
+    assert!(session
+        .text()
+        .contains("missing fill median\ntransform basket_value log1p\nkmeans k 3"));
+}
