@@ -406,3 +406,12 @@ pub struct OutputPlan {
     #[serde(skip)]
     pub resolved: PathBuf,
 }
+
+/// The segment model's file format, written by `save model`; kept here so
+/// the checker (`previous`) and the run (`assign`) share it without the
+/// checker reaching into the run.
+pub const MODEL_FORMAT: &str = "assort-model/2";
+
+/// Formats this assort reads: version 1 lacks the segments' means, which
+/// only "what changed" uses; it scores exactly as before.
+pub const MODEL_FORMATS_READ: [&str; 2] = ["assort-model/1", MODEL_FORMAT];

@@ -15,7 +15,7 @@ use crate::syntax::ast::{Spanned, Statement, StatementKind, Value};
 use serde::Deserialize;
 
 /// The model formats `previous` reads: those `assort assign` reads.
-use crate::run::model::MODEL_FORMATS_READ as FORMATS;
+use crate::plan::MODEL_FORMATS_READ as FORMATS;
 
 /// What the checker reads of a model file.
 #[derive(Deserialize)]

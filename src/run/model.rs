@@ -19,11 +19,7 @@ use crate::engine::{drift, kmeans};
 use ndarray::{Array2, ArrayView2};
 use serde::{Deserialize, Serialize};
 
-pub const MODEL_FORMAT: &str = "assort-model/2";
-
-/// Formats this assort reads: version 1 lacks the segments' means, which
-/// only "what changed" uses; it scores exactly as before.
-pub const MODEL_FORMATS_READ: [&str; 2] = ["assort-model/1", MODEL_FORMAT];
+pub use crate::plan::{MODEL_FORMAT, MODEL_FORMATS_READ};
 
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct SegmentModel {
