@@ -1,9 +1,10 @@
 //! The `assort` command line: a thin front end over check, run and output.
 
 use assort::check::{self, diagnostic, CheckOptions, RecipeSource};
+use assort::output::deliver::{self, recipe_shown, record_path, shown};
 use assort::output::{self, files::Rendered, record};
 use assort::plan::Plan;
-use assort::run::{self, Outcome};
+use assort::run;
 use clap::{Args, Parser, Subcommand};
 use serde_json::json;
 use std::io::IsTerminal;
@@ -167,25 +168,27 @@ fn main() -> ExitCode {
                 output::set::on_interrupt();
                 // One run of a recipe at a time; a set a killed run left
                 // half-written is rolled back first.
-                let _lock = match output::set::RunLock::take(&source.path) {
-                    Ok(l) => l,
+                let lock = match deliver::lock(source) {
+                    Ok((lock, recovered)) => {
+                        if recovered && !recipe.quiet && !recipe.json {
+                            eprintln!("{}", deliver::RECOVERED_NOTE);
+                        }
+                        lock
+                    }
                     Err(e) => return fail(&e),
                 };
-                let journal = output::set::journal_path(&source.path);
-                match output::set::recover(&journal) {
-                    Ok(true) if !recipe.quiet && !recipe.json => eprintln!(
-                        "note: an earlier run of this recipe was interrupted while writing; its outputs were put back as they were before it"
-                    ),
-                    Ok(_) => {}
-                    Err(e) => return fail(&e),
-                }
                 let progress = Progress::new(recipe.quiet || recipe.json);
-                let (outcome, files, _) = match run_and_render(source, plan, &progress) {
+                let (outcome, files, _) = match deliver::run_and_render(
+                    source,
+                    plan,
+                    &mut run::DataCache::default(),
+                    &|step| progress.step(step),
+                ) {
                     Ok(x) => x,
                     Err(e) => return fail(&e),
                 };
                 progress.finish();
-                if let Err(e) = output::files::write_all_journalled(&files, &journal) {
+                if let Err(e) = deliver::write(source, &files, &lock) {
                     return fail(&e);
                 }
                 if output::set::interrupted_while_writing() {
@@ -429,60 +432,6 @@ fn score_summary(s: &run::model::ScoreSummary) -> String {
 
 /// Runs a plan and renders its files, the run record last; the record is
 /// also returned, so `verify` compares it without hashing anything again.
-fn run_and_render(
-    source: &RecipeSource,
-    plan: &Plan,
-    progress: &Progress,
-) -> Result<(Outcome, Vec<Rendered>, record::RunRecord), run::RunError> {
-    // The input file is hashed on a thread of its own while the run
-    // computes (on a large file it is a pass over every byte); each data
-    // file is hashed once, and the model, the report and the record all
-    // take the digests from here.
-    let (outcome, input_sha256) = std::thread::scope(|scope| {
-        let hashing = scope.spawn(|| record::file_sha256(&plan.input.resolved));
-        let outcome = run::run_with(plan, &mut run::DataCache::default(), &|step| {
-            progress.step(step)
-        });
-        (outcome, hashing.join().ok().flatten())
-    });
-    let outcome = outcome?;
-    let inputs = record::input_digests_with(&outcome, input_sha256);
-    let sources = output::files::Sources {
-        recipe_text: &source.text,
-        inputs: &inputs,
-    };
-    let mut files = output::files::render_all(&outcome, &sources);
-    let rec = record::build(
-        &recipe_shown(source),
-        &source.text,
-        &outcome,
-        inputs.clone(),
-        &files,
-    );
-    let path = record_path(source, plan);
-    files.push(Rendered::plain(
-        path.clone(),
-        shown(&path),
-        record::to_bytes(&rec),
-    ));
-    Ok((outcome, files, rec))
-}
-
-fn record_path(source: &RecipeSource, plan: &Plan) -> PathBuf {
-    let outputs: Vec<PathBuf> = plan.outputs.iter().map(|o| o.resolved.clone()).collect();
-    record::record_path(&source.path, &outputs)
-}
-
-/// The recipe's file name, as the record names it (its folder is where
-/// every other path starts).
-fn recipe_shown(source: &RecipeSource) -> String {
-    source
-        .path
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_default()
-}
-
 fn verify(
     args: &RecipeArgs,
     source: &RecipeSource,
@@ -527,7 +476,9 @@ fn verify(
     };
     let progress = Progress::new(args.quiet || args.json);
     // The rerun's record, built as a run builds it, is what is compared.
-    let now = match run_and_render(source, plan, &progress) {
+    let now = match deliver::run_and_render(source, plan, &mut run::DataCache::default(), &|step| {
+        progress.step(step)
+    }) {
         Ok((_, _, rec)) => rec,
         Err(e) => {
             if args.json {
@@ -682,10 +633,6 @@ fn dry_run_json(
 }
 
 /// A path as the user would type it from here (no leading `./`).
-fn shown(path: &Path) -> String {
-    path.strip_prefix(".").unwrap_or(path).display().to_string()
-}
-
 /// Says how many output cells were written so that a spreadsheet shows
 /// them as text instead of running them as formulas.
 fn defused_note(n: usize) -> String {

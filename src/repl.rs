@@ -19,7 +19,10 @@ pub const COMMANDS: &[(&str, &str)] = &[
     (":recipe", "show the recipe as it stands, formatted"),
     (":check", "show every problem of the recipe as it stands"),
     (":plan", "show the checked plan (JSON)"),
-    (":run", "run the recipe and show the sweep and profiles"),
+    (
+        ":run",
+        "run the recipe and show the sweep and profiles; `:run write` also writes its outputs (Ctrl-C stops a run)",
+    ),
     (
         ":again",
         "show a table of the last run again: `:again sweep`, `profiles` or `comparison`",
@@ -246,7 +249,11 @@ fn handle(
                 Some(plan) => serde_json::to_string_pretty(&plan).unwrap_or_default() + "\n",
                 None => session.problems(colour),
             },
-            "run" => session.run(colour).unwrap_or_else(|e| e),
+            "run" => match arg {
+                None => run_stoppable(session, colour, false),
+                Some("write") => run_stoppable(session, colour, true),
+                Some(other) => format!("`:run` or `:run write`, not `:run {other}`\n"),
+            },
             "again" => session
                 .table(arg.unwrap_or("sweep"))
                 .unwrap_or_else(|| "nothing to show: `:run` first, then `:again sweep`, `profiles` or `comparison`\n".into()),
@@ -310,6 +317,59 @@ fn handle(
     }
     true
 }
+
+/// Runs the recipe so that Ctrl-C stops the run, not the session: the
+/// interrupt handler (installed once, shared with writing sets) asks the
+/// engine to stop, and the run ends with nothing written.
+fn run_stoppable(session: &mut Session, colour: bool, write: bool) -> String {
+    crate::engine::stop::clear();
+    let previous = stop_on_interrupt();
+    if previous.is_some() {
+        println!("running (Ctrl-C stops the run)");
+        let _ = std::io::stdout().flush();
+    }
+    let shown = session.run(colour, write).unwrap_or_else(|e| e);
+    restore_interrupt(previous);
+    crate::engine::stop::clear();
+    shown
+}
+
+/// While a run lasts, SIGINT asks the engine to stop instead of ending the
+/// process (a set being written is finished first: writing does not look
+/// at the request). Returns the action to put back.
+#[cfg(unix)]
+fn stop_on_interrupt() -> Option<libc::sigaction> {
+    extern "C" fn asked(_: libc::c_int) {
+        crate::engine::stop::request();
+    }
+    // SAFETY: sigaction with a zeroed, then filled, action struct; the
+    // handler only stores to an atomic, which is async-signal-safe.
+    unsafe {
+        let mut action: libc::sigaction = std::mem::zeroed();
+        action.sa_sigaction = asked as extern "C" fn(libc::c_int) as libc::sighandler_t;
+        libc::sigemptyset(&mut action.sa_mask);
+        let mut old: libc::sigaction = std::mem::zeroed();
+        (libc::sigaction(libc::SIGINT, &action, &mut old) == 0).then_some(old)
+    }
+}
+
+#[cfg(unix)]
+fn restore_interrupt(previous: Option<libc::sigaction>) {
+    if let Some(old) = previous {
+        // SAFETY: puts back the action `stop_on_interrupt` saved.
+        unsafe {
+            libc::sigaction(libc::SIGINT, &old, std::ptr::null_mut());
+        }
+    }
+}
+
+#[cfg(not(unix))]
+fn stop_on_interrupt() -> Option<()> {
+    None
+}
+
+#[cfg(not(unix))]
+fn restore_interrupt(_: Option<()>) {}
 
 /// Completion and hints for the line editor.
 struct Assist {

@@ -12,8 +12,9 @@
 
 use crate::check::Span;
 use crate::check::{self, diagnostic, vocab, CheckOptions, Checked, RecipeSource};
-use crate::output::tables;
+use crate::output::{deliver, tables};
 use crate::run::{self, DataCache, Outcome};
+use crate::text;
 use miette::Diagnostic;
 use std::path::{Path, PathBuf};
 
@@ -119,20 +120,14 @@ impl Session {
         let word = statement.split_whitespace().next().unwrap_or("");
         // Warnings already standing are not news; new ones elsewhere are.
         let standing: Vec<String> = self.check().problems.iter().map(problem_key).collect();
-        // A statement given once per recipe, or once per segment (`label
-        // 3`), replaces the one already there.
-        let existing = if check::single_statement(word) {
+        // A statement given once per recipe, per segment (`label 3`) or per
+        // column (`weight`, `transform`, `missing ... for`) replaces the
+        // one already there for the same segment or columns.
+        let existing = slot(statement).and_then(|new| {
             self.statements
                 .iter()
-                .position(|s| check::statement_word(s) == word)
-        } else if word == "label" {
-            let slot = words_of(statement).take(2).collect::<Vec<_>>();
-            self.statements
-                .iter()
-                .position(|s| words_of(code_of(s)).take(2).collect::<Vec<_>>() == slot)
-        } else {
-            None
-        };
+                .position(|s| slot(s).is_some_and(|old| old.taken_by(&new)))
+        });
         let at = match existing {
             Some(i) => {
                 // The replaced statement's comments stay above the new one.
@@ -176,9 +171,12 @@ impl Session {
             .collect();
         let shown: Vec<diagnostic::Problem> = mine.into_iter().chain(caused).collect();
         let rendered = diagnostic::render(&shown, &source.name(), &source.text, colour);
-        let what = match existing {
-            Some(_) => Entered::Replaced(word.to_string()),
-            None => Entered::Added,
+        let what = match (existing, &self.undo.last()) {
+            (Some(_), Some(Undo::Replaced { old, .. })) if !check::single_statement(word) => {
+                Entered::Replaced(code_of(old).to_string())
+            }
+            (Some(_), _) => Entered::Replaced(word.to_string()),
+            (None, _) => Entered::Added,
         };
         (what, rendered)
     }
@@ -241,8 +239,13 @@ impl Session {
         }
     }
 
-    /// Runs the recipe: the report, or the problems that stop it.
-    pub fn run(&mut self, colour: bool) -> Result<String, String> {
+    /// Runs the recipe: the report, or the problems that stop it. With
+    /// `write`, the recipe's outputs and its run record are written as one
+    /// set, as `assort run` writes them; without, the report says that
+    /// nothing was written. A stop asked for (Ctrl-C, see
+    /// [`crate::engine::stop`]) ends the run with nothing written and the
+    /// session's statements as they were.
+    pub fn run(&mut self, colour: bool, write: bool) -> Result<String, String> {
         let checked = self.check();
         let Some(plan) = checked
             .plan
@@ -250,14 +253,40 @@ impl Session {
         else {
             return Err(self.problems(colour));
         };
-        match run::run_cached(&plan, &mut self.cache) {
-            Ok(outcome) => {
-                let report = tables::report(&outcome);
-                self.last = Some(outcome);
-                Ok(report)
-            }
-            Err(e) => Err(diagnostic::render_bare(&e, colour)),
+        let failed = |e: &dyn Diagnostic| diagnostic::render_bare(e, colour);
+        if !write {
+            let outcome = run::run_cached(&plan, &mut self.cache).map_err(|e| failed(&e))?;
+            let mut report = tables::report(&outcome);
+            self.last = Some(outcome);
+            report.push_str(&match plan.outputs.len() {
+                0 => "nothing to write: the recipe has no `save` statement\n".to_string(),
+                n => format!(
+                    "not written: the {} the recipe saves (`:run write` writes them and the run record)\n",
+                    text::count(n, "file")
+                ),
+            });
+            return Ok(report);
         }
+        let source = self.source();
+        let (lock, recovered) = deliver::lock(&source).map_err(|e| failed(&e))?;
+        let (outcome, files, _) = deliver::run_and_render(&source, &plan, &mut self.cache, &|_| {})
+            .map_err(|e| failed(&e))?;
+        deliver::write(&source, &files, &lock).map_err(|e| failed(&e))?;
+        let mut report = tables::report(&outcome);
+        self.last = Some(outcome);
+        if recovered {
+            report.push_str(deliver::RECOVERED_NOTE);
+            report.push('\n');
+        }
+        for f in &files {
+            report.push_str(&format!("wrote {}\n", deliver::shown(&f.path)));
+        }
+        if self.unsaved() {
+            report.push_str(
+                "note: the recipe has unsaved changes; the run record holds the recipe as run, so `:save` it for `assort verify` to agree\n",
+            );
+        }
+        Ok(report)
     }
 
     /// A table of the last run again: `sweep` or `profiles`.
@@ -314,6 +343,47 @@ impl Session {
     pub fn complete(&self, before: &str) -> Vec<String> {
         check::complete::complete(before, &self.check().columns)
     }
+}
+
+/// What a statement sets, for replacing it by entering another: the
+/// statement word (with the segment number for `label`, `for` for a
+/// per-column `missing`) and the columns it names, if any. `None` for
+/// statements a recipe may hold many of (`save`, `categories`...).
+#[derive(Debug, PartialEq)]
+struct Slot {
+    what: String,
+    columns: Vec<String>,
+}
+
+impl Slot {
+    /// Whether `new` takes this statement's place: the same kind, and
+    /// every column this one names is named again (a statement naming
+    /// other columns as well stays, and the check reports the overlap).
+    fn taken_by(&self, new: &Slot) -> bool {
+        self.what == new.what && self.columns.iter().all(|c| new.columns.contains(c))
+    }
+}
+
+fn slot(entry: &str) -> Option<Slot> {
+    use crate::syntax::ast::StatementKind as K;
+    let parsed = crate::syntax::parse(entry);
+    let [statement] = &parsed.statements[..] else {
+        return None;
+    };
+    let word = statement.keyword.node.clone();
+    let names = |cols: &[crate::syntax::ast::Column]| cols.iter().map(|c| c.node.clone()).collect();
+    let (what, columns) = match &statement.kind {
+        K::Label { segment, .. } => (format!("label {}", segment.node.value), Vec::new()),
+        K::Weight { columns, .. } | K::Transform { columns, .. } => (word, names(columns)),
+        K::Missing {
+            columns: Some(columns),
+            ..
+        } => ("missing for".to_string(), names(columns)),
+        K::Missing { columns: None, .. } => (word, Vec::new()),
+        _ if check::single_statement(&word) => (word, Vec::new()),
+        _ => return None,
+    };
+    Some(Slot { what, columns })
 }
 
 /// An entry's statement without the comments and blank lines before it.

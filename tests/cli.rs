@@ -1308,6 +1308,34 @@ fn a_piped_session_builds_runs_varies_and_saves_a_recipe() {
 }
 
 #[test]
+fn a_session_run_says_it_wrote_nothing_and_run_write_writes_what_assort_run_writes() {
+    let case = Case::demo();
+    let script = "kmeans k 3..5 restarts 5\n:run\n:save\n:run write\n:quit\n";
+    let out = case.assort_piped(&["repl", DEMO], script).ok().stdout();
+    assert!(
+        out.contains("not written: the 6 files the recipe saves (`:run write` writes them"),
+        "{out}"
+    );
+    assert!(out.contains("wrote out/member_segments.csv"), "{out}");
+    assert!(out.contains("wrote out/segment_report.html"), "{out}");
+    assert!(out.contains("wrote out/coop-members.run.json"), "{out}");
+    let from_session: Vec<Vec<u8>> = ["out/member_segments.csv", "out/segment_centroids.csv"]
+        .iter()
+        .map(|f| std::fs::read(case.path(f)).unwrap())
+        .collect();
+    // The record the session wrote is the one `assort verify` checks.
+    case.assort(&["verify", DEMO], &[]).ok();
+    std::fs::remove_dir_all(case.path("out")).unwrap();
+    case.run(DEMO).ok();
+    for (f, bytes) in ["out/member_segments.csv", "out/segment_centroids.csv"]
+        .iter()
+        .zip(&from_session)
+    {
+        assert_eq!(&std::fs::read(case.path(f)).unwrap(), bytes, "{f} differs");
+    }
+}
+
+#[test]
 fn a_session_explains_unknown_commands_and_helps() {
     let case = Case::empty();
     let out = case
@@ -1338,7 +1366,7 @@ fn a_session_on_the_demo_changes_k_and_scaling_and_saves_a_recipe_that_reruns_th
     // recipe runs to.
     let section = |text: &str| -> String {
         let start = text.find("k-means sweep").unwrap();
-        let end = ["\nwrote ", "\nsaved "]
+        let end = ["\nwrote ", "\nsaved ", "\nnot written: "]
             .iter()
             .filter_map(|m| text[start..].find(m))
             .min()

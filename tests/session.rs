@@ -20,13 +20,13 @@ fn changing_k_does_not_read_the_data_again() {
     ] {
         assert_eq!(s.enter(line, false).0, Entered::Added, "{line}");
     }
-    s.run(false).unwrap();
+    s.run(false, false).unwrap();
     assert_eq!(
         s.enter("kmeans k 4 restarts 2", false).0,
         Entered::Replaced("kmeans".into())
     );
     assert_eq!(s.enter("scale robust", false).0, Entered::Added);
-    s.run(false).unwrap();
+    s.run(false, false).unwrap();
     assert_eq!(s.last().unwrap().chosen, 4);
     assert_eq!(s.data_loads(), 1, "the file was read again");
     // Asking for another column reads it again.
@@ -38,7 +38,7 @@ fn changing_k_does_not_read_the_data_again() {
         .0,
         Entered::Replaced("features".into())
     );
-    s.run(false).unwrap();
+    s.run(false, false).unwrap();
     assert_eq!(s.data_loads(), 2);
 }
 
@@ -124,7 +124,7 @@ fn a_label_is_changed_by_entering_it_again_and_any_statement_can_be_dropped() {
         assert_ne!(what, Entered::Rejected, "{s}: {shown}");
     }
     let (what, _) = session.enter("label 3 \"late shoppers\"", false);
-    assert_eq!(what, Entered::Replaced("label".into()));
+    assert_eq!(what, Entered::Replaced("label 3 \"night owls\"".into()));
     assert!(session.text().contains("label 3 \"late shoppers\""));
     assert!(!session.text().contains("night owls"));
 
@@ -139,4 +139,56 @@ fn a_label_is_changed_by_entering_it_again_and_any_statement_can_be_dropped() {
     assert!(session
         .text()
         .contains("missing fill median\ntransform basket_value log1p\nkmeans k 3"));
+}
+
+#[test]
+fn a_weight_transform_or_missing_rule_for_the_same_columns_is_replaced_by_entering_it_again() {
+    let mut session = demo_folder_session();
+    for s in [
+        "input \"data/coop_members.csv\" key member_id",
+        "features tenure_months, basket_value, share_fresh",
+        "missing fill median",
+        "missing drop for share_fresh",
+        "transform basket_value log1p",
+        "weight tenure_months 2",
+        "kmeans k 3",
+    ] {
+        let (what, shown) = session.enter(s, false);
+        assert_ne!(what, Entered::Rejected, "{s}: {shown}");
+    }
+    let replaced = [
+        (
+            "transform basket_value clip 0..0.99",
+            "transform basket_value log1p",
+        ),
+        ("weight tenure_months 3", "weight tenure_months 2"),
+        (
+            "missing fill 0 for share_fresh",
+            "missing drop for share_fresh",
+        ),
+        // The rule for every column is one statement too.
+        ("missing fill mean", "missing fill median"),
+        // A statement naming more columns takes over the ones it covers.
+        (
+            "weight tenure_months, basket_value 0.5",
+            "weight tenure_months 3",
+        ),
+    ];
+    for (entered, old) in replaced {
+        let (what, shown) = session.enter(entered, false);
+        assert_eq!(what, Entered::Replaced(old.into()), "{entered}: {shown}");
+        assert!(session.text().contains(entered), "{}", session.text());
+        assert!(!session.text().contains(old), "{}", session.text());
+    }
+    // A statement that names only some of an earlier one's columns does not
+    // silently take them over: the check refuses the overlap.
+    let (what, shown) = session.enter("weight basket_value 4", false);
+    assert_eq!(what, Entered::Rejected);
+    assert!(shown.contains("given twice"), "{shown}");
+    // Undo puts the replaced statement back.
+    session.undo();
+    assert!(session.text().contains("weight tenure_months 3"));
+    assert!(!session
+        .text()
+        .contains("weight tenure_months, basket_value 0.5"));
 }

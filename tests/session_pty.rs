@@ -44,7 +44,21 @@ impl Terminal {
         let (master, slave) =
             unsafe { (OwnedFd::from_raw_fd(master), OwnedFd::from_raw_fd(slave)) };
         let slave = File::from(slave);
-        let child = Command::new(env!("CARGO_BIN_EXE_assort"))
+        let mut command = Command::new(env!("CARGO_BIN_EXE_assort"));
+        // The terminal becomes the session's controlling terminal, as a
+        // shell's would be, so Ctrl-C typed while the line editor is not
+        // reading keys (during a run) arrives as SIGINT.
+        // SAFETY: setsid and ioctl are async-signal-safe, as pre_exec asks.
+        unsafe {
+            use std::os::unix::process::CommandExt;
+            command.pre_exec(|| {
+                if libc::setsid() < 0 || libc::ioctl(0, libc::TIOCSCTTY as _, 0) < 0 {
+                    return Err(std::io::Error::last_os_error());
+                }
+                Ok(())
+            });
+        }
+        let child = command
             .args(["repl", recipe])
             .current_dir(case.dir.path())
             .env("NO_COLOR", "1")
@@ -229,4 +243,40 @@ fn leaving_a_saved_session_asks_nothing_and_no_leaves_without_saving() {
         case.read("kept.assort"),
         "input \"data/members.csv\" key member_id\n"
     );
+}
+
+#[test]
+fn ctrl_c_during_a_run_stops_the_run_and_keeps_the_session() {
+    let case = Case::demo();
+    // Seventy thousand k-means fits of 6,000 members: far longer than the
+    // test waits before pressing Ctrl-C.
+    case.edit(
+        "coop-members.assort",
+        "kmeans k 2..8 restarts 50",
+        "kmeans k 2..8 restarts 10000",
+    );
+    let mut t = Terminal::start(&case, "coop-members.assort");
+    t.wait_for_prompt("assort> ");
+    t.type_keys(":run write\r");
+    t.wait_for("running (Ctrl-C stops the run)");
+    std::thread::sleep(Duration::from_millis(300));
+    t.type_keys("\x03");
+    t.wait_for("the run was stopped (Ctrl-C)");
+    t.wait_for_prompt("assort> ");
+    // The session and its statements are all still there.
+    t.type_keys(":recipe\r");
+    t.wait_for("kmeans k 2..8 restarts 10000");
+    t.wait_for("label 5 \"occasional newcomers\"");
+    t.wait_for_prompt("assort> ");
+    // A run that is not stopped goes to its end.
+    t.type_keys("kmeans k 5..6 restarts 5\r");
+    t.wait_for_prompt("assort> ");
+    t.type_keys(":run\r");
+    t.wait_for("not written: the 6 files the recipe saves");
+    t.wait_for_prompt("assort> ");
+    t.type_keys(":quit\r");
+    t.wait_for_prompt("has unsaved changes");
+    t.type_keys("n\r");
+    assert!(t.finish().success());
+    assert!(!case.path("out").exists(), "the stopped run wrote outputs");
 }

@@ -50,7 +50,7 @@ mod hamerly;
 mod sampled;
 pub use sampled::REFINED;
 
-use super::{dist2, rng::Stream, EngineError};
+use super::{dist2, rng::Stream, stop, EngineError};
 use ndarray::{Array2, ArrayView2};
 use rayon::prelude::*;
 use serde::Serialize;
@@ -200,11 +200,17 @@ pub fn kmeans_with(
     let summaries: Vec<(f64, u64)> = (0..problem.starts())
         .into_par_iter()
         .map(|r| {
+            if stop::requested() {
+                return (f64::INFINITY, 0);
+            }
             let run = problem.restart(r);
             let labels = canonical(&run.labels, k).0;
             (run.inertia, partition_hash(&labels))
         })
         .collect();
+    if stop::requested() {
+        return Err(EngineError::Stopped);
+    }
     let mut best = 0;
     for (r, s) in summaries.iter().enumerate() {
         if s.0 < summaries[best].0 {
@@ -215,6 +221,9 @@ pub fn kmeans_with(
     let restarts_at_best = summaries.iter().filter(|s| s.1 == best_hash).count();
 
     let run = problem.restart(best);
+    if stop::requested() {
+        return Err(EngineError::Stopped);
+    }
     finish(run, d, settings, best, restarts_at_best, None)
 }
 
@@ -452,7 +461,7 @@ impl<'a> Problem<'a> {
                 break;
             }
             first = false;
-            if rounds == self.settings.max_rounds {
+            if rounds == self.settings.max_rounds || stop::requested() {
                 break;
             }
             if self.search == Search::Bounded && has_empty(&labels, k) {

@@ -22,6 +22,7 @@ pub mod pca;
 pub mod rng;
 pub mod silhouette;
 pub mod stats;
+pub mod stop;
 pub mod tree;
 
 use thiserror::Error;
@@ -40,6 +41,8 @@ pub enum EngineError {
     BadK { k: usize },
     #[error("the data has no columns to cluster on")]
     NoFeatures,
+    #[error("stopped on request before the result was complete")]
+    Stopped,
 }
 
 /// Squared Euclidean distance between two equally long rows.

@@ -6,6 +6,7 @@
 
 pub mod changes;
 pub mod charts;
+pub mod deliver;
 pub mod files;
 pub mod json;
 pub mod record;

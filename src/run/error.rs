@@ -112,6 +112,13 @@ pub enum RunError {
     )]
     TooFewRecords { k: usize, n: usize },
 
+    #[error("the run was stopped (Ctrl-C) {during}; nothing was written")]
+    #[diagnostic(
+        code(assort::run::stopped),
+        help("run again to finish it; a stopped run changes nothing")
+    )]
+    Stopped { during: &'static str },
+
     #[error("k-means for k {k}: {source}")]
     #[diagnostic(
         code(assort::run::engine),

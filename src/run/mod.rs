@@ -12,7 +12,7 @@ pub mod model;
 pub mod prepare;
 pub mod previous;
 
-use crate::engine::{self, compare, criteria, evidence, kmeans, silhouette, tree};
+use crate::engine::{self, compare, criteria, evidence, kmeans, silhouette, tree, EngineError};
 use crate::plan::{ChooseK, Criterion, KMeansPlan, MethodPlan, Plan, SilhouetteMode, TreePlan};
 pub use error::RunError;
 use ndarray::{Array2, ArrayView2};
@@ -301,6 +301,26 @@ pub fn run_cached(plan: &Plan, cache: &mut DataCache) -> Result<Outcome, RunErro
     run_with(plan, cache, &|_| {})
 }
 
+/// An engine error as the run reports it: a stop on request is no fault
+/// of the data.
+fn engine_error(k: usize, source: EngineError) -> RunError {
+    match source {
+        EngineError::Stopped => RunError::Stopped {
+            during: "while fitting k-means",
+        },
+        source => RunError::Engine { k, source },
+    }
+}
+
+/// Fails with [`RunError::Stopped`] when a stop was asked for.
+fn go_on(during: &'static str) -> Result<(), RunError> {
+    if crate::engine::stop::requested() {
+        Err(RunError::Stopped { during })
+    } else {
+        Ok(())
+    }
+}
+
 /// A stage of a run, for a progress display.
 #[derive(Debug, Clone, Copy)]
 pub struct Step {
@@ -361,6 +381,7 @@ pub fn run_with(
         }
     };
 
+    go_on("after fitting")?;
     let mut sweep = Vec::with_capacity(candidates.len());
     let mut per_segment_silhouette = Vec::with_capacity(candidates.len());
     let mut silhouette_values = Vec::with_capacity(candidates.len());
@@ -370,6 +391,7 @@ pub fn run_with(
             done: i,
             total: candidates.len(),
         });
+        go_on("while judging each k")?;
         let k = c.k;
         let sil = match plan.evidence.silhouette {
             SilhouetteMode::Exact => silhouette::exact(x, &c.labels, k),
@@ -421,6 +443,7 @@ pub fn run_with(
             row.stability = Some(s.mean_ari);
         }
     }
+    go_on("while gathering the evidence for k")?;
     let picks = Picks::new(&sweep, gaps.as_deref());
 
     let (chosen, reason) = choose(plan, &sweep, &picks);
@@ -649,8 +672,7 @@ fn fit_kmeans(
                 // Last run's centres start one more restart at its k.
                 start: last.filter(|l| l.k() == k).map(|l| l.start()),
             };
-            let fit =
-                kmeans::kmeans(x, &settings).map_err(|source| RunError::Engine { k, source })?;
+            let fit = kmeans::kmeans(x, &settings).map_err(|source| engine_error(k, source))?;
             Ok(Candidate {
                 k,
                 restarts: Some(Restarts {
@@ -723,10 +745,7 @@ fn build_tree(t: &TreePlan, x: ArrayView2<'_, f64>, seed: u64) -> Result<BuiltTr
                 sample: None,
                 start: None,
             };
-            let engine = |source| RunError::Engine {
-                k: m.segments,
-                source,
-            };
+            let engine = |source| engine_error(m.segments, source);
             let fit = kmeans::kmeans(x, &settings).map_err(engine)?;
             let mut sizes = vec![0usize; m.segments];
             fit.labels.iter().for_each(|&l| sizes[l as usize] += 1);

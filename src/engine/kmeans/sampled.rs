@@ -38,7 +38,7 @@
 //! refinement's.
 
 use super::{canonical, finish, partition_hash, Problem, Restart};
-use crate::engine::{rng::Stream, EngineError};
+use crate::engine::{rng::Stream, stop, EngineError};
 use rayon::prelude::*;
 
 /// How many of the best sample restarts are refined on every record.
@@ -66,6 +66,9 @@ pub(super) fn fit(whole: &Problem<'_>, s: usize) -> Result<super::KMeansFit, Eng
     let tried: Vec<(f64, u64, Vec<f64>)> = (0..settings.restarts)
         .into_par_iter()
         .map(|r| {
+            if stop::requested() {
+                return (f64::INFINITY, 0, Vec::new());
+            }
             let run = sample.restart(r);
             let labels = canonical(&run.labels, k).0;
             (run.inertia, partition_hash(&labels), run.centroids)
@@ -86,6 +89,9 @@ pub(super) fn fit(whole: &Problem<'_>, s: usize) -> Result<super::KMeansFit, Eng
         .par_iter()
         .map(|(_, c)| whole.lloyd(c.clone(), vec![0u32; n], vec![0.0; n], true))
         .collect();
+    if stop::requested() {
+        return Err(EngineError::Stopped);
+    }
     let mut best = 0;
     for (i, run) in refined.iter().enumerate() {
         if run.inertia < refined[best].inertia {

@@ -1,0 +1,93 @@
+//! Running a recipe to its outputs: the run, every file it names plus the
+//! run record, written as one set under the recipe's lock. `assort run`
+//! and the session's `:run save` both come through here, so a set is
+//! written the same way whoever asks.
+
+use super::files::{self, Rendered};
+use super::{record, set};
+use crate::check::RecipeSource;
+use crate::plan::Plan;
+use crate::run::{self, DataCache, Outcome, RunError, Step};
+use std::path::{Path, PathBuf};
+
+/// A path as messages show it (without a leading `./`).
+pub fn shown(path: &Path) -> String {
+    path.strip_prefix(".").unwrap_or(path).display().to_string()
+}
+
+/// The recipe's file name, as the record names it (its folder is where
+/// every other path starts).
+pub fn recipe_shown(source: &RecipeSource) -> String {
+    source
+        .path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default()
+}
+
+/// Where the run record of a recipe with these outputs goes.
+pub fn record_path(source: &RecipeSource, plan: &Plan) -> PathBuf {
+    let outputs: Vec<PathBuf> = plan.outputs.iter().map(|o| o.resolved.clone()).collect();
+    record::record_path(&source.path, &outputs)
+}
+
+/// Runs the plan and renders every output and the run record, writing
+/// nothing.
+pub fn run_and_render(
+    source: &RecipeSource,
+    plan: &Plan,
+    cache: &mut DataCache,
+    progress: &dyn Fn(Step),
+) -> Result<(Outcome, Vec<Rendered>, record::RunRecord), RunError> {
+    // The input file is hashed on a thread of its own while the run
+    // computes (on a large file it is a pass over every byte); each data
+    // file is hashed once, and the model, the report and the record all
+    // take the digests from here.
+    let (outcome, input_sha256) = std::thread::scope(|scope| {
+        let hashing = scope.spawn(|| record::file_sha256(&plan.input.resolved));
+        let outcome = run::run_with(plan, cache, progress);
+        (outcome, hashing.join().ok().flatten())
+    });
+    let outcome = outcome?;
+    let inputs = record::input_digests_with(&outcome, input_sha256);
+    let sources = files::Sources {
+        recipe_text: &source.text,
+        inputs: &inputs,
+    };
+    let mut rendered = files::render_all(&outcome, &sources);
+    let rec = record::build(
+        &recipe_shown(source),
+        &source.text,
+        &outcome,
+        inputs.clone(),
+        &rendered,
+    );
+    let path = record_path(source, plan);
+    rendered.push(Rendered::plain(
+        path.clone(),
+        shown(&path),
+        record::to_bytes(&rec),
+    ));
+    Ok((outcome, rendered, rec))
+}
+
+/// Takes the recipe's lock, rolls back a set an earlier run left
+/// half-written, and returns the lock with whether it rolled one back.
+pub fn lock(source: &RecipeSource) -> Result<(set::RunLock, bool), RunError> {
+    let lock = set::RunLock::take(&source.path)?;
+    let recovered = set::recover(&set::journal_path(&source.path))?;
+    Ok((lock, recovered))
+}
+
+/// Writes rendered files as one set (all new or all old), under a lock
+/// taken with [`lock`].
+pub fn write(
+    source: &RecipeSource,
+    rendered: &[Rendered],
+    _lock: &set::RunLock,
+) -> Result<(), RunError> {
+    files::write_all_journalled(rendered, &set::journal_path(&source.path))
+}
+
+/// The note about a recovered set, as both front ends say it.
+pub const RECOVERED_NOTE: &str = "note: an earlier run of this recipe was interrupted while writing; its outputs were put back as they were before it";
