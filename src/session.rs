@@ -365,7 +365,7 @@ impl Slot {
 }
 
 fn slot(entry: &str) -> Option<Slot> {
-    use crate::syntax::ast::StatementKind as K;
+    use crate::syntax::ast::{StatementKind as K, TransformAction};
     let parsed = crate::syntax::parse(entry);
     let [statement] = &parsed.statements[..] else {
         return None;
@@ -374,7 +374,13 @@ fn slot(entry: &str) -> Option<Slot> {
     let names = |cols: &[crate::syntax::ast::Column]| cols.iter().map(|c| c.node.clone()).collect();
     let (what, columns) = match &statement.kind {
         K::Label { segment, .. } => (format!("label {}", segment.node.value), Vec::new()),
-        K::Weight { columns, .. } | K::Transform { columns, .. } => (word, names(columns)),
+        K::Weight { columns, .. } => (word, names(columns)),
+        // A column may have one clip and one other transform.
+        K::Transform {
+            columns,
+            action: TransformAction::Clip(_),
+        } => ("transform clip".to_string(), names(columns)),
+        K::Transform { columns, .. } => (word, names(columns)),
         K::Missing {
             columns: Some(columns),
             ..

@@ -158,7 +158,7 @@ fn a_weight_transform_or_missing_rule_for_the_same_columns_is_replaced_by_enteri
     }
     let replaced = [
         (
-            "transform basket_value clip 0..0.99",
+            "transform basket_value sqrt",
             "transform basket_value log1p",
         ),
         ("weight tenure_months 3", "weight tenure_months 2"),
@@ -191,4 +191,13 @@ fn a_weight_transform_or_missing_rule_for_the_same_columns_is_replaced_by_enteri
     assert!(!session
         .text()
         .contains("weight tenure_months, basket_value 0.5"));
+    // A clip is a transform of its own: it goes beside the other one.
+    let (what, shown) = session.enter("transform basket_value clip 0..0.99", false);
+    assert_eq!(what, Entered::Added, "{shown}");
+    assert!(session.text().contains("transform basket_value sqrt"));
+    let (what, _) = session.enter("transform basket_value clip 0.01..0.99", false);
+    assert_eq!(
+        what,
+        Entered::Replaced("transform basket_value clip 0..0.99".into())
+    );
 }
