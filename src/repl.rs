@@ -101,9 +101,7 @@ fn interactive(session: &mut Session, path: &Path, colour: bool, options: &Check
         Ok(e) => e,
         Err(_) => return piped(session, path, colour, options),
     };
-    editor.set_helper(Some(Assist {
-        columns: session.check().columns,
-    }));
+    editor.set_helper(Some(Assist::of(session, "")));
     let history = std::env::var_os("HOME").map(|h| PathBuf::from(h).join(".assort_history"));
     if let Some(h) = &history {
         let _ = editor.load_history(h);
@@ -131,6 +129,9 @@ fn interactive(session: &mut Session, path: &Path, colour: bool, options: &Check
                     "statement"
                 };
                 pending.clear();
+                if let Some(h) = editor.helper_mut() {
+                    h.pending.clear();
+                }
                 println!("(Ctrl-C cleared the {what}; `:quit` or Ctrl-D leaves)");
                 continue;
             }
@@ -157,7 +158,7 @@ fn interactive(session: &mut Session, path: &Path, colour: bool, options: &Check
             }
         }
         if let Some(h) = editor.helper_mut() {
-            h.columns = session.check().columns;
+            *h = Assist::of(session, &pending);
         }
         if leaving {
             break;
@@ -371,25 +372,69 @@ fn stop_on_interrupt() -> Option<()> {
 #[cfg(not(unix))]
 fn restore_interrupt(_: Option<()>) {}
 
-/// Completion and hints for the line editor.
+/// Completion and hints for the line editor: a snapshot of what
+/// completion needs, taken after each entry (the editor's helper cannot
+/// borrow the session while the session changes).
 struct Assist {
-    columns: Vec<String>,
+    columns: Vec<crate::check::probe::ColumnInfo>,
+    sampled: usize,
+    key: Option<String>,
+    folder: PathBuf,
+    /// The lines of a statement being continued, before this one.
+    pending: String,
+}
+
+impl Assist {
+    fn of(session: &Session, pending: &str) -> Assist {
+        let checked = session.check();
+        let folder = session
+            .path()
+            .parent()
+            .filter(|p| !p.as_os_str().is_empty())
+            .unwrap_or(Path::new("."));
+        Assist {
+            columns: checked.column_info,
+            sampled: checked.sampled,
+            key: complete::key_of(&session.text()),
+            folder: folder.to_path_buf(),
+            pending: pending.to_string(),
+        }
+    }
 }
 
 impl Completer for Assist {
-    type Candidate = String;
+    type Candidate = rustyline::completion::Pair;
 
     fn complete(
         &self,
         line: &str,
         pos: usize,
         _: &Context<'_>,
-    ) -> rustyline::Result<(usize, Vec<String>)> {
-        let before = &line[..pos];
-        let start = before
-            .rfind(|c: char| c.is_whitespace() || c == ',')
-            .map_or(0, |i| i + 1);
-        Ok((start, complete::complete(before, &self.columns)))
+    ) -> rustyline::Result<(usize, Vec<rustyline::completion::Pair>)> {
+        // A continued statement is completed as a whole.
+        let lead = if self.pending.is_empty() {
+            String::new()
+        } else {
+            format!("{}\n", self.pending)
+        };
+        let before = format!("{lead}{}", &line[..pos]);
+        let data = complete::DataView {
+            columns: &self.columns,
+            sampled: self.sampled,
+            key: self.key.as_deref(),
+            folder: &self.folder,
+        };
+        let found = complete::complete(&before, &data);
+        let start = found.start.saturating_sub(lead.len());
+        let pairs = found
+            .items
+            .into_iter()
+            .map(|i| rustyline::completion::Pair {
+                display: i.label,
+                replacement: i.insert,
+            })
+            .collect();
+        Ok((start, pairs))
     }
 }
 

@@ -340,8 +340,21 @@ impl Session {
 
     /// Completions for the statement being typed, `before` being its text
     /// up to the cursor.
-    pub fn complete(&self, before: &str) -> Vec<String> {
-        check::complete::complete(before, &self.check().columns)
+    pub fn complete(&self, before: &str) -> check::complete::Completion {
+        let checked = self.check();
+        let key = check::complete::key_of(&self.text());
+        let folder = self.path.parent().unwrap_or(Path::new("."));
+        let data = check::complete::DataView {
+            columns: &checked.column_info,
+            sampled: checked.sampled,
+            key: key.as_deref(),
+            folder: if folder.as_os_str().is_empty() {
+                Path::new(".")
+            } else {
+                folder
+            },
+        };
+        check::complete::complete(before, &data)
     }
 }
 

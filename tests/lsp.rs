@@ -17,6 +17,12 @@ struct Server {
 
 impl Server {
     fn start() -> Server {
+        Server::start_with(json!({"capabilities": {}}))
+    }
+
+    /// A server initialised with these parameters (client capabilities,
+    /// workspace folder).
+    fn start_with(init_params: Value) -> Server {
         let mut child = Command::new(env!("CARGO_BIN_EXE_assort"))
             .arg("lsp")
             .stdin(Stdio::piped())
@@ -56,7 +62,7 @@ impl Server {
             messages: rx,
             next_id: 1,
         };
-        let init = s.request("initialize", json!({"capabilities": {}}));
+        let init = s.request("initialize", init_params);
         assert!(
             init["result"]["capabilities"]["hoverProvider"]
                 .as_bool()
@@ -87,6 +93,19 @@ impl Server {
                 .recv_timeout(Duration::from_secs(20))
                 .expect("the server answers");
             if m["id"] == json!(id) {
+                return m;
+            }
+        }
+    }
+
+    /// The next message that satisfies `wanted`.
+    fn wait_for(&mut self, what: &str, wanted: impl Fn(&Value) -> bool) -> Value {
+        loop {
+            let m = self
+                .messages
+                .recv_timeout(Duration::from_secs(20))
+                .unwrap_or_else(|_| panic!("never received {what}"));
+            if wanted(&m) {
                 return m;
             }
         }
@@ -260,5 +279,447 @@ fn a_burst_of_half_typed_edits_does_not_crash_the_server() {
     assert!(h.get("error").is_none(), "{h}");
     let unknown = s.request("textDocument/rename", json!({"textDocument": {"uri": uri}, "position": {"line": 0, "character": 0}, "newName": "x"}));
     assert_eq!(unknown["error"]["code"], -32601);
+    s.stop();
+}
+
+// ---- Context-aware completion, quick fixes, following the data, hover on
+// ---- values, semantic tokens: what an editor user meets (issue 12).
+
+/// Completion items at the end of `text` (opened as the demo recipe, so its
+/// paths read the demo data).
+fn items_at_end(s: &mut Server, text: &str) -> Vec<Value> {
+    let (uri, _) = demo_uri();
+    s.notify(
+        "textDocument/didChange",
+        json!({"textDocument": {"uri": uri, "version": 9}, "contentChanges": [{"text": text}]}),
+    );
+    let line = text.matches('\n').count();
+    let character = text.len() - text.rfind('\n').map_or(0, |i| i + 1);
+    let c = s.request(
+        "textDocument/completion",
+        json!({"textDocument": {"uri": uri}, "position": {"line": line, "character": character}}),
+    );
+    c["result"].as_array().unwrap().clone()
+}
+
+fn labels_of(items: &[Value]) -> Vec<&str> {
+    items.iter().map(|i| i["label"].as_str().unwrap()).collect()
+}
+
+#[test]
+fn completion_offers_only_what_the_checker_accepts_there() {
+    let mut s = Server::start();
+    let (uri, demo) = demo_uri();
+    open(&mut s, &uri, &demo);
+    s.diagnostics(&uri);
+    let with = |line: &str| format!("{demo}{line}");
+
+    let features = items_at_end(&mut s, &with("features "));
+    let labels = labels_of(&features);
+    assert!(labels.contains(&"visits_per_month"), "{labels:?}");
+    assert!(!labels.contains(&"member_id"), "the key: {labels:?}");
+    assert!(
+        !labels.contains(&"home_branch"),
+        "a text column: {labels:?}"
+    );
+    let visits = features
+        .iter()
+        .find(|i| i["label"] == "visits_per_month")
+        .unwrap();
+    assert_eq!(visits["kind"], 5, "a field");
+    assert!(
+        visits["detail"]
+            .as_str()
+            .unwrap()
+            .starts_with("numeric column: min "),
+        "{visits}"
+    );
+
+    assert_eq!(
+        labels_of(&items_at_end(&mut s, &with("categories "))),
+        ["home_branch"]
+    );
+    let kmeans = items_at_end(&mut s, &with("kmeans k 2..8 "));
+    assert!(!labels_of(&kmeans).contains(&"k"), "k is given");
+    assert!(labels_of(&kmeans).contains(&"restarts"));
+    assert_eq!(
+        labels_of(&items_at_end(&mut s, &with("transform basket_value "))),
+        ["clip", "log", "log1p", "sqrt"]
+    );
+    let save = items_at_end(&mut s, &with("save "));
+    let tree = save.iter().find(|i| i["label"] == "tree").unwrap();
+    assert!(
+        tree["detail"].as_str().unwrap().contains("Newick"),
+        "{tree}"
+    );
+
+    // A word with a dash is replaced whole, from its start.
+    let text = with("choose k by calinski-h");
+    let c = items_at_end(&mut s, &text);
+    assert_eq!(labels_of(&c), ["calinski-harabasz"]);
+    let line = text.matches('\n').count();
+    assert_eq!(
+        c[0]["textEdit"]["range"]["start"],
+        json!({"line": line, "character": "choose k by ".len()})
+    );
+    assert_eq!(c[0]["textEdit"]["newText"], "calinski-harabasz");
+
+    // Quoted paths complete relative to the recipe's folder.
+    let text = with("validate against \"data/coop_members_p");
+    let c = items_at_end(&mut s, &text);
+    assert_eq!(labels_of(&c), ["data/coop_members_planted.csv"]);
+    assert_eq!(
+        c[0]["textEdit"]["range"]["start"],
+        json!({"line": line, "character": "validate against \"".len()})
+    );
+    assert_eq!(c[0]["kind"], 17, "a file");
+    s.stop();
+}
+
+/// A folder holding a small members file whose `basket_value` has a gap.
+fn small_case() -> tempfile::TempDir {
+    let dir = tempfile::tempdir().unwrap();
+    let mut csv = String::from("member_id,visits_per_month,basket_value\n");
+    for i in 0..40 {
+        let basket = if i == 7 {
+            String::new()
+        } else {
+            format!("{}", 20 + (i * 7) % 50)
+        };
+        csv.push_str(&format!("M{i},{}.5,{basket}\n", i % 9));
+    }
+    std::fs::write(dir.path().join("members.csv"), csv).unwrap();
+    dir
+}
+
+fn uri_of(dir: &tempfile::TempDir, name: &str) -> String {
+    format!("file://{}", dir.path().join(name).display())
+}
+
+/// The quick fixes offered for the diagnostic with `code`.
+fn fixes_for(s: &mut Server, uri: &str, diags: &[Value], code: &str) -> Vec<Value> {
+    let d = diags
+        .iter()
+        .find(|d| d["code"] == code)
+        .unwrap_or_else(|| panic!("no {code} in {diags:?}"));
+    let r = s.request(
+        "textDocument/codeAction",
+        json!({"textDocument": {"uri": uri}, "range": d["range"], "context": {"diagnostics": [d]}}),
+    );
+    r["result"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|a| a["diagnostics"][0]["code"] == code)
+        .cloned()
+        .collect()
+}
+
+fn edit_of(action: &Value, uri: &str) -> (Value, String) {
+    let e = &action["edit"]["changes"][uri][0];
+    (
+        e["range"].clone(),
+        e["newText"].as_str().unwrap().to_string(),
+    )
+}
+
+#[test]
+fn every_suggestion_is_a_quick_fix_and_applying_them_clears_the_errors() {
+    let dir = small_case();
+    let uri = uri_of(&dir, "fix.assort");
+    let text = "input \"members.csv\" key member_id\nfeatures vists_per_month, basket_value\nreshape basket_value log1p\nscale zscor\nkmeans k 2 restart 5\n";
+    let mut s = Server::start();
+    open(&mut s, &uri, text);
+    let diags = s.diagnostics(&uri);
+
+    let column = fixes_for(&mut s, &uri, &diags, "assort::unknown_column");
+    assert_eq!(
+        column[0]["title"],
+        "replace `vists_per_month` with `visits_per_month`"
+    );
+    assert_eq!(column[0]["kind"], "quickfix");
+    assert_eq!(column[0]["isPreferred"], true);
+    assert_eq!(
+        edit_of(&column[0], &uri),
+        (
+            json!({"start": pos(text, "vists", 0), "end": pos(text, "vists_per_month", 15)}),
+            "visits_per_month".to_string()
+        )
+    );
+    let statement = fixes_for(&mut s, &uri, &diags, "assort::unknown_statement");
+    assert_eq!(edit_of(&statement[0], &uri).1, "transform");
+    let option = fixes_for(&mut s, &uri, &diags, "assort::unknown_option");
+    assert_eq!(edit_of(&option[0], &uri).1, "restarts");
+    let word = diags
+        .iter()
+        .find(|d| d["message"].as_str().unwrap().contains("zscor"))
+        .unwrap_or_else(|| panic!("{diags:?}"))["code"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    let word = fixes_for(&mut s, &uri, &diags, &word);
+    assert_eq!(edit_of(&word[0], &uri).1, "zscore");
+
+    // Applying every preferred fix (from the last in the text to the
+    // first, so the earlier positions still hold) leaves a recipe whose
+    // only remaining problem is the gap, which has fixes of its own.
+    let mut fixed = text.to_string();
+    let mut edits: Vec<(usize, usize, String)> = [column, statement, option, word]
+        .iter()
+        .map(|a| {
+            let (range, new) = edit_of(&a[0], &uri);
+            (
+                offset(text, &range["start"]),
+                offset(text, &range["end"]),
+                new,
+            )
+        })
+        .collect();
+    edits.sort_by_key(|e| std::cmp::Reverse(e.0));
+    for (start, end, new) in edits {
+        fixed.replace_range(start..end, &new);
+    }
+    s.notify(
+        "textDocument/didChange",
+        json!({"textDocument": {"uri": uri, "version": 2}, "contentChanges": [{"text": fixed}]}),
+    );
+    let diags = s.diagnostics(&uri);
+    assert_eq!(diags.len(), 1, "{fixed}\n{diags:?}");
+    let gaps = fixes_for(&mut s, &uri, &diags, "assort::gaps_without_rule");
+    let titles: Vec<&str> = gaps.iter().map(|a| a["title"].as_str().unwrap()).collect();
+    assert_eq!(
+        titles,
+        [
+            "add `missing fill median for basket_value`",
+            "add `missing drop for basket_value`"
+        ]
+    );
+    // The rule goes on the line after the statement that names the column.
+    let (range, new) = edit_of(&gaps[0], &uri);
+    assert_eq!(range["start"], json!({"line": 2, "character": 0}));
+    let start = offset(&fixed, &range["start"]);
+    fixed.insert_str(start, &new);
+    s.notify(
+        "textDocument/didChange",
+        json!({"textDocument": {"uri": uri, "version": 3}, "contentChanges": [{"text": fixed}]}),
+    );
+    assert!(s.diagnostics(&uri).is_empty(), "{fixed}");
+    s.stop();
+}
+
+/// The byte offset of an LSP position (ASCII text).
+fn offset(text: &str, p: &Value) -> usize {
+    let line = p["line"].as_u64().unwrap() as usize;
+    let start: usize = text.split_inclusive('\n').take(line).map(str::len).sum();
+    start + p["character"].as_u64().unwrap() as usize
+}
+
+#[test]
+fn a_tree_over_too_many_records_gets_micro_500_as_a_fix() {
+    let dir = tempfile::tempdir().unwrap();
+    // More records than an average-linkage tree's distance matrix allows
+    // (23,170 in 2 GiB).
+    let mut csv = String::from("id,x\n");
+    for i in 0..23_500 {
+        csv.push_str(&format!("r{i},{}\n", i % 97));
+    }
+    std::fs::write(dir.path().join("big.csv"), csv).unwrap();
+    let uri = uri_of(&dir, "big.assort");
+    let text = "input \"big.csv\" key id\nfeatures x\ntree linkage average k 2..4  # try it\n";
+    let mut s = Server::start();
+    open(&mut s, &uri, text);
+    let diags = s.diagnostics(&uri);
+    let micro = fixes_for(&mut s, &uri, &diags, "assort::large_tree");
+    let (range, new) = edit_of(&micro[0], &uri);
+    assert_eq!(new, " micro 500");
+    // At the end of the statement, before its comment.
+    assert_eq!(range["start"], pos(text, "  # try it", 0));
+    let mut fixed = text.to_string();
+    fixed.insert_str(offset(text, &range["start"]), &new);
+    s.notify(
+        "textDocument/didChange",
+        json!({"textDocument": {"uri": uri, "version": 2}, "contentChanges": [{"text": fixed}]}),
+    );
+    let after = s.diagnostics(&uri);
+    assert!(
+        after.iter().all(|d| d["code"] != "assort::large_tree"),
+        "{after:?}"
+    );
+    s.stop();
+}
+
+#[test]
+fn a_data_file_changed_on_disk_is_checked_again_without_a_keystroke() {
+    let dir = small_case();
+    let uri = uri_of(&dir, "follow.assort");
+    let text = "input \"members.csv\" key member_id\nfeatures visits_per_month, basket_value\nmissing fill median\nkmeans k 2\n";
+    // A client that does not watch files: the server looks by itself.
+    let mut s = Server::start();
+    open(&mut s, &uri, text);
+    assert!(s.diagnostics(&uri).is_empty());
+    let csv = std::fs::read_to_string(dir.path().join("members.csv")).unwrap();
+    std::fs::write(
+        dir.path().join("members.csv"),
+        csv.replacen("basket_value", "basket_total", 1),
+    )
+    .unwrap();
+    let diags = s.diagnostics(&uri);
+    assert!(
+        diags.iter().any(|d| d["code"] == "assort::unknown_column"
+            && d["message"].as_str().unwrap().contains("basket_value")),
+        "{diags:?}"
+    );
+    s.stop();
+
+    // A client that watches files for the server: the server asks it to,
+    // and re-checks when told of a change.
+    let mut s = Server::start_with(
+        json!({"capabilities": {"workspace": {"didChangeWatchedFiles": {"dynamicRegistration": true}}}}),
+    );
+    let register = s.wait_for("a watch registration", |m| {
+        m["method"] == "client/registerCapability"
+    });
+    assert_eq!(
+        register["params"]["registrations"][0]["method"],
+        "workspace/didChangeWatchedFiles"
+    );
+    s.send(json!({"jsonrpc": "2.0", "id": register["id"], "result": null}));
+    open(&mut s, &uri, text);
+    assert!(!s.diagnostics(&uri).is_empty(), "still renamed");
+    std::fs::write(dir.path().join("members.csv"), &csv).unwrap();
+    s.notify(
+        "workspace/didChangeWatchedFiles",
+        json!({"changes": [{"uri": uri_of(&dir, "members.csv"), "type": 2}]}),
+    );
+    assert!(s.diagnostics(&uri).is_empty());
+    s.stop();
+}
+
+#[test]
+fn closing_a_recipe_clears_its_diagnostics() {
+    let dir = small_case();
+    let uri = uri_of(&dir, "closed.assort");
+    let mut s = Server::start();
+    open(
+        &mut s,
+        &uri,
+        "input \"members.csv\" key member_id\nfeatures nope\n",
+    );
+    assert!(!s.diagnostics(&uri).is_empty());
+    s.notify(
+        "textDocument/didClose",
+        json!({"textDocument": {"uri": uri}}),
+    );
+    assert!(s.diagnostics(&uri).is_empty());
+    s.stop();
+}
+
+#[test]
+fn an_untitled_recipe_resolves_paths_against_the_workspace_folder() {
+    let dir = small_case();
+    let mut s = Server::start_with(json!({"capabilities": {}, "rootUri": uri_of(&dir, "")}));
+    let uri = "untitled:Untitled-1";
+    open(
+        &mut s,
+        uri,
+        "input \"members.csv\" key member_id\nfeatures visits_per_mnth\nkmeans k 2\n",
+    );
+    let diags = s.diagnostics(uri);
+    // The file was found and its header read: only the misspelt column.
+    let codes: Vec<&str> = diags.iter().map(|d| d["code"].as_str().unwrap()).collect();
+    assert_eq!(codes, ["assort::unknown_column"], "{diags:?}");
+    s.stop();
+}
+
+#[test]
+fn hover_explains_the_values_analysts_ask_about() {
+    let mut s = Server::start();
+    let (uri, text) = demo_uri();
+    let text = format!("{text}missing fill median for share_bulk\nsave report \"out/r.html\"\n");
+    open(&mut s, &uri, &text);
+    s.diagnostics(&uri);
+    let mut hover = |needle: &str, shift: usize| -> String {
+        let h = s.request(
+            "textDocument/hover",
+            json!({"textDocument": {"uri": uri}, "position": pos(&text, needle, shift)}),
+        );
+        h["result"]["contents"]["value"]
+            .as_str()
+            .unwrap_or("")
+            .to_string()
+    };
+    for (needle, shift, expected) in [
+        (
+            "scale zscore",
+            7,
+            "**zscore** (in `scale`): subtracts the mean",
+        ),
+        ("log1p", 1, "**log1p** (in `transform`): log(1 + x)"),
+        ("clip 0..", 1, "**clip** (in `transform`)"),
+        ("fill median\n", 1, "**fill** (in `missing`)"),
+        ("fill median for", 6, "**median** (in `missing`)"),
+        (
+            "by silhouette",
+            4,
+            "**silhouette** (a value of `by` in `choose`)",
+        ),
+        ("save assignments", 6, "**assignments** (in `save`)"),
+        (
+            "save report \"out/r",
+            6,
+            "**report** (in `save`): one self-contained HTML page",
+        ),
+    ] {
+        let got = hover(needle, shift);
+        assert!(got.starts_with(expected), "{needle}: {got}");
+    }
+    s.stop();
+}
+
+#[test]
+fn semantic_tokens_colour_the_demo_recipe() {
+    let mut s = Server::start();
+    let (uri, text) = demo_uri();
+    open(&mut s, &uri, &text);
+    s.diagnostics(&uri);
+    let r = s.request(
+        "textDocument/semanticTokens/full",
+        json!({"textDocument": {"uri": uri}}),
+    );
+    let data: Vec<u64> = r["result"]["data"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_u64().unwrap())
+        .collect();
+    assert_eq!(data.len() % 5, 0);
+    // Decode (line, column, length, type) and read each token's text.
+    let lines: Vec<&str> = text.lines().collect();
+    let (mut line, mut col) = (0u64, 0u64);
+    let mut tokens = Vec::new();
+    for t in data.chunks(5) {
+        if t[0] > 0 {
+            col = 0;
+        }
+        line += t[0];
+        col += t[1];
+        let l = lines[line as usize];
+        tokens.push((l[col as usize..(col + t[2]) as usize].to_string(), t[3]));
+    }
+    // The legend's order: keyword, property, enumMember, variable,
+    // number, string, comment.
+    let kind_of = |w: &str| tokens.iter().find(|t| t.0 == w).map(|t| t.1);
+    assert_eq!(
+        tokens[0].1, 6,
+        "the first line is a comment: {:?}",
+        tokens[0]
+    );
+    assert_eq!(kind_of("recipe"), Some(0));
+    assert_eq!(kind_of("\"data/coop_members.csv\""), Some(5));
+    assert_eq!(kind_of("key"), Some(1));
+    assert_eq!(kind_of("member_id"), Some(3));
+    assert_eq!(kind_of("zscore"), Some(2));
+    assert_eq!(kind_of("2..8"), Some(4));
+    assert_eq!(kind_of("share_prepared"), Some(3), "on a continued line");
     s.stop();
 }

@@ -59,11 +59,22 @@ fn a_statement_with_an_error_is_not_kept() {
 fn completion_knows_statements_options_and_columns() {
     let mut s = demo_folder_session();
     s.enter("input \"data/coop_members.csv\" key member_id", false);
-    assert_eq!(s.complete("kme"), ["kmeans"]);
-    assert_eq!(s.complete("kmeans k 3 see"), ["seeding"]);
+    assert_eq!(s.complete("kme").labels(), ["kmeans"]);
+    assert_eq!(s.complete("kmeans k 3 see").labels(), ["seeding"]);
     assert_eq!(
-        s.complete("features visits_per_month, coup"),
+        s.complete("features visits_per_month, coup").labels(),
         ["coupon_rate"]
+    );
+    // On the demo's data: the key and the text column are not features.
+    let offered = s.complete("features ");
+    assert!(!offered.labels().contains(&"member_id"));
+    assert!(!offered.labels().contains(&"home_branch"));
+    assert_eq!(s.complete("categories ").labels(), ["home_branch"]);
+    // Paths are relative to the recipe's folder.
+    assert_eq!(
+        s.complete("validate against \"data/coop_members_p")
+            .labels(),
+        ["data/coop_members_planted.csv"]
     );
 }
 

@@ -42,10 +42,14 @@ impl Problem {
     }
 }
 
+/// How a suggestion is written in a help line, before and after it; the
+/// quick fixes read it back (see [`super::fixes`]).
+pub(crate) const DID_YOU_MEAN: (&str, &str) = ("did you mean `", "`?");
+
 /// "did you mean `x`?" or a fallback sentence.
 pub(crate) fn did_you_mean(suggestion: &Option<String>, otherwise: &str) -> String {
     match suggestion {
-        Some(s) => format!("did you mean `{s}`?"),
+        Some(s) => format!("{}{s}{}", DID_YOU_MEAN.0, DID_YOU_MEAN.1),
         None => otherwise.to_string(),
     }
 }

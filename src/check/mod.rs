@@ -14,6 +14,7 @@ mod choice;
 pub mod complete;
 pub mod diagnostic;
 mod features;
+pub mod fixes;
 mod input;
 mod method;
 mod outputs;

@@ -69,7 +69,7 @@ pub struct ColumnInfo {
 
 impl ColumnInfo {
     /// A column named `header`, before any value is seen.
-    fn new(header: &str) -> ColumnInfo {
+    pub(crate) fn new(header: &str) -> ColumnInfo {
         ColumnInfo {
             name: header.trim().to_string(),
             kind: ColumnKind::Blank,
@@ -86,7 +86,7 @@ impl ColumnInfo {
     }
 
     /// Counts one sampled field, on 1-based `line`, read with `decimal`.
-    fn observe(&mut self, field: &str, line: u64, decimal: DecimalMark) {
+    pub(crate) fn observe(&mut self, field: &str, line: u64, decimal: DecimalMark) {
         if is_blank(field) {
             self.blanks += 1;
         } else if let Some(v) = parse_number_in(field, decimal) {

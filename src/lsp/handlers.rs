@@ -4,9 +4,11 @@
 use super::convert::LineIndex;
 use crate::check::{self, complete, probe::ColumnKind, vocab, CheckOptions, RecipeSource};
 use lsp_types::{
-    CompletionItem, CompletionItemKind, DocumentSymbol, GotoDefinitionResponse, Hover,
-    HoverContents, Location, MarkupContent, MarkupKind, Position, Range, SymbolKind, TextEdit, Uri,
+    CodeAction, CodeActionKind, CompletionItem, CompletionItemKind, CompletionTextEdit,
+    DocumentSymbol, GotoDefinitionResponse, Hover, HoverContents, Location, MarkupContent,
+    MarkupKind, Position, Range, SymbolKind, TextEdit, Uri, WorkspaceEdit,
 };
+use std::collections::HashMap;
 
 /// What every handler gets.
 pub struct Context<'a> {
@@ -74,6 +76,13 @@ pub fn hover(ctx: &Context<'_>, p: Position) -> Option<Hover> {
                 o.name, o.takes, o.summary
             ));
         }
+        if let Some(v) = vocab::value(st, word) {
+            let place = match v.option {
+                Some(o) => format!("a value of `{o}` in `{st}`"),
+                None => format!("in `{st}`"),
+            };
+            return markdown(format!("**{}** ({place}): {}", v.word, v.summary));
+        }
     }
     let checked = check::check_with(&ctx.source, &CheckOptions::default());
     let info = checked.column_info.iter().find(|c| c.name == word)?;
@@ -121,25 +130,85 @@ pub fn completion(ctx: &Context<'_>, p: Position) -> Vec<CompletionItem> {
     }
     let before = &ctx.text[start..offset];
     let checked = check::check_with(&ctx.source, &CheckOptions::default());
-    complete::complete(before, &checked.columns)
+    let key = complete::key_of(ctx.text);
+    let folder = ctx
+        .source
+        .path
+        .parent()
+        .filter(|p| !p.as_os_str().is_empty())
+        .unwrap_or(std::path::Path::new("."));
+    let data = complete::DataView {
+        columns: &checked.column_info,
+        sampled: checked.sampled,
+        key: key.as_deref(),
+        folder,
+    };
+    let found = complete::complete(before, &data);
+    let range = index.range(start + found.start, offset);
+    found
+        .items
         .into_iter()
-        .map(|label| {
-            let kind = if checked.columns.contains(&label) {
-                CompletionItemKind::FIELD
-            } else if vocab::statement(&label).is_some() && before.split_whitespace().count() <= 1 {
-                CompletionItemKind::KEYWORD
-            } else {
-                CompletionItemKind::VALUE
-            };
-            let detail = vocab::statement(&label).map(|d| d.summary.to_string());
-            CompletionItem {
-                label,
-                kind: Some(kind),
-                detail,
-                ..Default::default()
-            }
+        .map(|i| CompletionItem {
+            kind: Some(match i.kind {
+                complete::ItemKind::Statement => CompletionItemKind::KEYWORD,
+                complete::ItemKind::Option => CompletionItemKind::PROPERTY,
+                complete::ItemKind::Value => CompletionItemKind::ENUM_MEMBER,
+                complete::ItemKind::Column => CompletionItemKind::FIELD,
+                complete::ItemKind::Path => CompletionItemKind::FILE,
+            }),
+            detail: Some(i.detail),
+            filter_text: Some(i.insert.clone()),
+            text_edit: Some(CompletionTextEdit::Edit(TextEdit {
+                range,
+                new_text: i.insert,
+            })),
+            label: i.label,
+            ..Default::default()
         })
         .collect()
+}
+
+/// Quick fixes for the problems in `range`: each suggestion a diagnostic
+/// makes, as an edit (see [`check::fixes`]).
+pub fn code_actions(ctx: &Context<'_>, range: Range) -> Vec<CodeAction> {
+    let index = LineIndex::new(ctx.text);
+    let (from, to) = (index.offset(range.start), index.offset(range.end));
+    let Ok(uri) = ctx.uri.parse::<Uri>() else {
+        return Vec::new();
+    };
+    let checked = check::check_with(&ctx.source, &CheckOptions::default());
+    let mut actions = Vec::new();
+    for problem in &checked.problems {
+        let diagnostic = super::convert::diagnostic(problem, &index);
+        let (start, end) = (
+            index.offset(diagnostic.range.start),
+            index.offset(diagnostic.range.end),
+        );
+        if end < from || start > to {
+            continue;
+        }
+        for (i, fix) in check::fixes::fixes(problem, ctx.text)
+            .into_iter()
+            .enumerate()
+        {
+            let edit = TextEdit {
+                range: index.range(fix.span.start, fix.span.end),
+                new_text: fix.new_text,
+            };
+            actions.push(CodeAction {
+                title: fix.title,
+                kind: Some(CodeActionKind::QUICKFIX),
+                diagnostics: Some(vec![diagnostic.clone()]),
+                edit: Some(WorkspaceEdit {
+                    changes: Some(HashMap::from([(uri.clone(), vec![edit])])),
+                    ..Default::default()
+                }),
+                is_preferred: Some(i == 0),
+                ..Default::default()
+            });
+        }
+    }
+    actions
 }
 
 pub fn definition(ctx: &Context<'_>, p: Position) -> Option<GotoDefinitionResponse> {

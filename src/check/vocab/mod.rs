@@ -1,5 +1,8 @@
 //! The language's vocabulary: statement words and their options, with the
-//! one-line help the checker, the docs and (later) the editor support share.
+//! one-line help the checker, the docs, the session and the editor share.
+
+mod values;
+pub use values::{value, values_of, ValueDoc, VALUES};
 
 /// A statement word with a one-line summary and an example.
 pub struct StatementDoc {
