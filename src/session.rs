@@ -123,10 +123,10 @@ impl Session {
         // A statement given once per recipe, per segment (`label 3`) or per
         // column (`weight`, `transform`, `missing ... for`) replaces the
         // one already there for the same segment or columns.
-        let existing = slot(statement).and_then(|new| {
+        let existing = check::shape::slot(statement).and_then(|new| {
             self.statements
                 .iter()
-                .position(|s| slot(s).is_some_and(|old| old.taken_by(&new)))
+                .position(|s| check::shape::slot(s).is_some_and(|old| old.taken_by(&new)))
         });
         let at = match existing {
             Some(i) => {
@@ -356,53 +356,6 @@ impl Session {
         };
         check::complete::complete(before, &data)
     }
-}
-
-/// What a statement sets, for replacing it by entering another: the
-/// statement word (with the segment number for `label`, `for` for a
-/// per-column `missing`) and the columns it names, if any. `None` for
-/// statements a recipe may hold many of (`save`, `categories`...).
-#[derive(Debug, PartialEq)]
-struct Slot {
-    what: String,
-    columns: Vec<String>,
-}
-
-impl Slot {
-    /// Whether `new` takes this statement's place: the same kind, and
-    /// every column this one names is named again (a statement naming
-    /// other columns as well stays, and the check reports the overlap).
-    fn taken_by(&self, new: &Slot) -> bool {
-        self.what == new.what && self.columns.iter().all(|c| new.columns.contains(c))
-    }
-}
-
-fn slot(entry: &str) -> Option<Slot> {
-    use crate::syntax::ast::{StatementKind as K, TransformAction};
-    let parsed = crate::syntax::parse(entry);
-    let [statement] = &parsed.statements[..] else {
-        return None;
-    };
-    let word = statement.keyword.node.clone();
-    let names = |cols: &[crate::syntax::ast::Column]| cols.iter().map(|c| c.node.clone()).collect();
-    let (what, columns) = match &statement.kind {
-        K::Label { segment, .. } => (format!("label {}", segment.node.value), Vec::new()),
-        K::Weight { columns, .. } => (word, names(columns)),
-        // A column may have one clip and one other transform.
-        K::Transform {
-            columns,
-            action: TransformAction::Clip(_),
-        } => ("transform clip".to_string(), names(columns)),
-        K::Transform { columns, .. } => (word, names(columns)),
-        K::Missing {
-            columns: Some(columns),
-            ..
-        } => ("missing for".to_string(), names(columns)),
-        K::Missing { columns: None, .. } => (word, Vec::new()),
-        _ if check::single_statement(&word) => (word, Vec::new()),
-        _ => return None,
-    };
-    Some(Slot { what, columns })
 }
 
 /// An entry's statement without the comments and blank lines before it.

@@ -52,3 +52,47 @@ fn every_output_and_criterion_is_named() {
         );
     }
 }
+
+#[test]
+fn every_word_the_checker_accepts_has_hover_help_and_a_place_in_the_docs() {
+    use assort::plan::{Criterion, Linkage, Metric, Scale, Seeding, SilhouetteMode, Transform};
+    let cases: &[(&str, &[&str])] = &[
+        ("transform", &Transform::NAMES),
+        ("scale", &Scale::NAMES),
+        ("choose", &Criterion::NAMES),
+        ("tree", &Linkage::NAMES),
+        ("tree", &Metric::NAMES),
+        ("kmeans", &Seeding::NAMES),
+        ("evidence", &SilhouetteMode::NAMES),
+        ("save", &vocab::SAVE_WHAT),
+        ("missing", &vocab::FILL_WORDS),
+    ];
+    for (statement, words) in cases {
+        for w in *words {
+            assert!(
+                vocab::value(statement, w).is_some(),
+                "`{w}` in `{statement}` has no hover help in check::vocab::values"
+            );
+        }
+    }
+    // And every word with help is explained in the language reference.
+    let doc = language_md();
+    for v in vocab::VALUES {
+        assert!(
+            mentions(&doc, v.word),
+            "docs/language.md does not mention `{}` of `{}`",
+            v.word,
+            v.statement
+        );
+    }
+}
+
+/// Whether `word` stands in `doc` as a whole word (`-` and `+` belong to
+/// words, as in `kmeans++` and `calinski-harabasz`).
+fn mentions(doc: &str, word: &str) -> bool {
+    let part = |c: char| c.is_ascii_alphanumeric() || matches!(c, '_' | '-' | '+');
+    doc.match_indices(word).any(|(at, _)| {
+        !doc[..at].chars().next_back().is_some_and(part)
+            && !doc[at + word.len()..].chars().next().is_some_and(part)
+    })
+}

@@ -1,8 +1,11 @@
 //! The interactive session in a pseudo-terminal, driven as a person at a
 //! keyboard would: Ctrl-C on a half-typed line and inside a continued
-//! statement keeps the session and its statements; a three-line paste
-//! (bracketed, as terminals send it) enters three statements; leaving with
-//! unsaved changes asks, and staying or leaving without saving both work.
+//! statement keeps the session and its statements, and during a run stops
+//! the run (a real SIGINT: the terminal is the session's controlling
+//! terminal) and keeps them too; a three-line paste (bracketed, as
+//! terminals send it) enters three statements; Tab completes in context;
+//! leaving with unsaved changes asks, and staying or leaving without saving
+//! both work.
 
 #![cfg(unix)]
 
@@ -273,6 +276,12 @@ fn ctrl_c_during_a_run_stops_the_run_and_keeps_the_session() {
     t.wait_for_prompt("assort> ");
     t.type_keys(":run\r");
     t.wait_for("not written: the 6 files the recipe saves");
+    t.wait_for_prompt("assort> ");
+    // Tab completes what the checker accepts: the one text column.
+    t.type_keys("categories \t");
+    t.wait_for("categories home_branch");
+    t.type_keys("\x03");
+    t.wait_for("Ctrl-C cleared the line");
     t.wait_for_prompt("assort> ");
     t.type_keys(":quit\r");
     t.wait_for_prompt("has unsaved changes");

@@ -21,6 +21,7 @@ mod outputs;
 pub mod paths;
 mod previous;
 pub mod probe;
+pub mod shape;
 pub mod shown;
 use shown::limit_problems;
 pub use shown::{clipped, MOST_PROBLEMS};

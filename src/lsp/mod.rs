@@ -241,7 +241,7 @@ fn publish(store: &mut Store, uri: &str) -> Notification {
     let diagnostics = store.docs.get_mut(uri).map(|doc| {
         let source = source(uri, &doc.text, root.as_deref());
         let checked = check::check_with(&source, &CheckOptions::default());
-        doc.reads = data_files(&doc.text, &source.path)
+        doc.reads = check::shape::data_files(&doc.text, &source.path)
             .into_iter()
             .map(|p| {
                 let s = stamp(&p);
@@ -263,31 +263,6 @@ fn publish(store: &mut Store, uri: &str) -> Notification {
         version: store.docs.get(uri).map(|d| d.version),
     };
     Notification::new("textDocument/publishDiagnostics".into(), params)
-}
-
-/// The data files a recipe reads (input, validation, comparison and the
-/// previous run's files), resolved against its folder.
-fn data_files(text: &str, recipe: &Path) -> Vec<PathBuf> {
-    use crate::syntax::ast::{StatementKind as K, Value as V};
-    let folder = recipe.parent().unwrap_or(Path::new("."));
-    let mut out = Vec::new();
-    for s in crate::syntax::parse(text).statements {
-        match s.kind {
-            K::Input { path, .. } | K::Validate { path, .. } | K::Compare { path } => {
-                out.push(folder.join(path.node));
-            }
-            K::Previous { path, options } => {
-                out.push(folder.join(path.node));
-                for o in options {
-                    if let V::Text(p) = o.value.node {
-                        out.push(folder.join(p));
-                    }
-                }
-            }
-            _ => {}
-        }
-    }
-    out
 }
 
 /// A document as the checker sees it: its file path gives the folder its
