@@ -379,14 +379,15 @@ fn completion_offers_only_what_the_checker_accepts_there() {
 /// A folder holding a small members file whose `basket_value` has a gap.
 fn small_case() -> tempfile::TempDir {
     let dir = tempfile::tempdir().unwrap();
-    let mut csv = String::from("member_id,visits_per_month,basket_value\n");
+    let mut csv = String::from("member_id,visits_per_month,basket_value,branch\n");
     for i in 0..40 {
         let basket = if i == 7 {
             String::new()
         } else {
             format!("{}", 20 + (i * 7) % 50)
         };
-        csv.push_str(&format!("M{i},{}.5,{basket}\n", i % 9));
+        let branch = ["north", "harbour", "old town"][i % 3];
+        csv.push_str(&format!("M{i},{}.5,{basket},{branch}\n", i % 9));
     }
     std::fs::write(dir.path().join("members.csv"), csv).unwrap();
     dir
@@ -504,6 +505,96 @@ fn every_suggestion_is_a_quick_fix_and_applying_them_clears_the_errors() {
         json!({"textDocument": {"uri": uri, "version": 3}, "contentChanges": [{"text": fixed}]}),
     );
     assert!(s.diagnostics(&uri).is_empty(), "{fixed}");
+    s.stop();
+}
+
+/// Applies every edit of the first (preferred) fix of each action list.
+fn apply_first(text: &str, uri: &str, fixes: &[Vec<Value>]) -> String {
+    let mut edits: Vec<(usize, usize, String)> = fixes
+        .iter()
+        .flat_map(|a| a[0]["edit"]["changes"][uri].as_array().unwrap().clone())
+        .map(|e| {
+            (
+                offset(text, &e["range"]["start"]),
+                offset(text, &e["range"]["end"]),
+                e["newText"].as_str().unwrap().to_string(),
+            )
+        })
+        .collect();
+    edits.sort_by_key(|e| std::cmp::Reverse(e.0));
+    let mut out = text.to_string();
+    for (start, end, new) in edits {
+        out.replace_range(start..end, &new);
+    }
+    out
+}
+
+#[test]
+fn fixes_for_separators_decimal_marks_text_features_rules_and_distances() {
+    let dir = small_case();
+    let csv = std::fs::read_to_string(dir.path().join("members.csv")).unwrap();
+    // The same members written the continental way.
+    let semi = csv.replace(',', ";").replace(".5;", ",5;");
+    std::fs::write(dir.path().join("semi.csv"), semi).unwrap();
+    let mut s = Server::start();
+
+    // Read with the wrong separator, then with the wrong decimal mark.
+    let uri = uri_of(&dir, "semi.assort");
+    let text = "input \"semi.csv\" key member_id\nfeatures visits_per_month\nkmeans k 2\n";
+    open(&mut s, &uri, text);
+    let diags = s.diagnostics(&uri);
+    let code = diags[0]["code"].as_str().unwrap().to_string();
+    let sep = fixes_for(&mut s, &uri, &diags, &code);
+    assert_eq!(sep[0]["title"], "add `separator \";\"` to `input`");
+    let text = apply_first(text, &uri, &[sep]);
+    assert!(
+        text.starts_with("input \"semi.csv\" key member_id separator \";\"\n"),
+        "{text}"
+    );
+    s.notify(
+        "textDocument/didChange",
+        json!({"textDocument": {"uri": uri, "version": 2}, "contentChanges": [{"text": text}]}),
+    );
+    let diags = s.diagnostics(&uri);
+    let dec = fixes_for(&mut s, &uri, &diags, "assort::not_a_number");
+    assert_eq!(dec[0]["title"], "add `decimal \",\"` to `input`");
+    let text = apply_first(&text, &uri, &[dec]);
+    s.notify(
+        "textDocument/didChange",
+        json!({"textDocument": {"uri": uri, "version": 3}, "contentChanges": [{"text": text}]}),
+    );
+    assert!(s.diagnostics(&uri).is_empty(), "{text}");
+
+    // A text column among the features, a weight for a column that is not
+    // one, a linkage that needs Euclidean distances.
+    let uri = uri_of(&dir, "mixed.assort");
+    let text = "input \"members.csv\" key member_id\nfeatures visits_per_month, branch\nweight basket_value 2\nmissing fill median\ntree linkage ward distance manhattan k 2..3\n";
+    open(&mut s, &uri, text);
+    let diags = s.diagnostics(&uri);
+    let moved = fixes_for(&mut s, &uri, &diags, "assort::text_feature");
+    assert_eq!(moved[0]["title"], "move `branch` to `categories`");
+    let euclid = fixes_for(&mut s, &uri, &diags, "assort::needs_euclidean");
+    assert_eq!(edit_of(&euclid[0], &uri).1, "euclidean");
+    let fixed = apply_first(text, &uri, &[moved, euclid]);
+    s.notify(
+        "textDocument/didChange",
+        json!({"textDocument": {"uri": uri, "version": 2}, "contentChanges": [{"text": fixed}]}),
+    );
+    // With the features mended, the weight's column is judged.
+    let diags = s.diagnostics(&uri);
+    let added = fixes_for(&mut s, &uri, &diags, "assort::not_a_feature");
+    assert_eq!(added[0]["title"], "add `basket_value` to `features`");
+    let fixed = apply_first(&fixed, &uri, &[added]);
+    assert_eq!(
+        fixed,
+        "input \"members.csv\" key member_id\nfeatures visits_per_month, basket_value\ncategories branch\nweight basket_value 2\nmissing fill median\ntree linkage ward distance euclidean k 2..3\n"
+    );
+    s.notify(
+        "textDocument/didChange",
+        json!({"textDocument": {"uri": uri, "version": 3}, "contentChanges": [{"text": fixed}]}),
+    );
+    let after = s.diagnostics(&uri);
+    assert!(after.iter().all(|d| d["severity"] != 1), "{after:?}");
     s.stop();
 }
 

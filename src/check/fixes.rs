@@ -1,55 +1,70 @@
-//! Quick fixes: the edit each suggestion in a diagnostic stands for, so an
-//! editor can apply it. A misspelt statement word, option, value, column,
-//! output kind or file gets its "did you mean" as a replacement; a column
-//! with gaps and no rule gets the two `missing` rules its help names; a
-//! tree over too many records gets `micro 500`.
+//! Quick fixes: the edits each suggestion in a diagnostic stands for, so
+//! an editor can apply them. A misspelt statement word, option, value,
+//! column, output kind or file gets its "did you mean" as a replacement; a
+//! column with gaps and no rule gets the two `missing` rules its help
+//! names; a tree over too many records gets `micro 500`; a file read with
+//! the wrong separator or decimal mark gets the `input` option its help
+//! names; a text column among the features moves to `categories`; a rule
+//! for a column that is not a feature adds it to `features`; a linkage
+//! that needs Euclidean distances gets `distance euclidean`.
 
 use super::diagnostic::{CheckError, Problem, DID_YOU_MEAN};
 use super::Span;
 use miette::Diagnostic;
 
-/// One edit: replace `span` of the recipe with `new_text` (an empty span
-/// inserts).
+/// One fix: edits to the recipe, each replacing a span (an empty span
+/// inserts), applied together.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Fix {
     /// What the editor's menu shows.
     pub title: String,
-    pub span: Span,
-    pub new_text: String,
+    pub edits: Vec<(Span, String)>,
+}
+
+impl Fix {
+    fn one(title: String, span: Span, new_text: impl Into<String>) -> Fix {
+        Fix {
+            title,
+            edits: vec![(span, new_text.into())],
+        }
+    }
 }
 
 /// The fixes a problem suggests, in the order its help gives them; the
 /// first is the one to prefer.
 pub fn fixes(problem: &Problem, text: &str) -> Vec<Fix> {
-    match problem {
-        Problem::Check(CheckError::GapsWithoutRule { column, span, .. }) => {
-            let at = after_statement(text, span.start);
+    let Problem::Check(e) = problem else {
+        return replacement(problem, text).into_iter().collect();
+    };
+    match e {
+        CheckError::GapsWithoutRule { column, span, .. } => {
             let column = super::complete::written_column(column);
             ["fill median", "drop"]
                 .iter()
-                .map(|rule| {
-                    let line = format!("missing {rule} for {column}");
-                    Fix {
-                        title: format!("add `{line}`"),
-                        span: Span::new(at, at),
-                        new_text: if at == text.len() && !text.ends_with('\n') && !text.is_empty() {
-                            format!("\n{line}\n")
-                        } else {
-                            format!("{line}\n")
-                        },
-                    }
-                })
+                .map(|rule| add_line(text, span.start, &format!("missing {rule} for {column}")))
                 .collect()
         }
-        Problem::Check(CheckError::LargeTree { span, .. }) => {
+        CheckError::LargeTree { span, .. } => {
             let end = statement_end(text, span.start);
-            vec![Fix {
-                title: "add `micro 500` to `tree` (a tree over k-means micro-segments)".into(),
-                span: Span::new(end, end),
-                new_text: " micro 500".into(),
-            }]
+            vec![Fix::one(
+                "add `micro 500` to `tree` (a tree over k-means micro-segments)".into(),
+                Span::new(end, end),
+                " micro 500",
+            )]
         }
-        _ => replacement(problem, text).into_iter().collect(),
+        CheckError::NeedsEuclidean { span, .. } => vec![Fix::one(
+            "use `distance euclidean`".into(),
+            *span,
+            "euclidean",
+        )],
+        CheckError::TextFeature { column, span, .. } => move_to_categories(text, column, *span),
+        CheckError::NotAFeature { column, help, .. } if help.contains("add `") => {
+            add_feature(text, column)
+        }
+        _ => input_option(problem, text)
+            .or_else(|| replacement(problem, text))
+            .into_iter()
+            .collect(),
     }
 }
 
@@ -58,8 +73,7 @@ pub fn fixes(problem: &Problem, text: &str) -> Vec<Fix> {
 fn replacement(problem: &Problem, text: &str) -> Option<Fix> {
     let help = problem.help()?.to_string();
     let suggested = suggestion_in(&help)?;
-    let label = problem.labels()?.next()?;
-    let span = Span::new(label.offset(), label.offset() + label.len());
+    let span = first_label(problem)?;
     let old = text.get(span.start..span.end)?;
     // A quoted original (a path, a quoted column) stays quoted.
     let new_text = if old.starts_with('"') && !suggested.starts_with('"') {
@@ -70,11 +84,16 @@ fn replacement(problem: &Problem, text: &str) -> Option<Fix> {
     if new_text == old {
         return None;
     }
-    Some(Fix {
-        title: format!("replace `{}` with `{suggested}`", old.trim_matches('"')),
+    Some(Fix::one(
+        format!("replace `{}` with `{suggested}`", old.trim_matches('"')),
         span,
         new_text,
-    })
+    ))
+}
+
+fn first_label(problem: &Problem) -> Option<Span> {
+    let label = problem.labels()?.next()?;
+    Some(Span::new(label.offset(), label.offset() + label.len()))
 }
 
 /// The word a help line suggests, as [`super::diagnostic::did_you_mean`]
@@ -84,6 +103,84 @@ pub fn suggestion_in(help: &str) -> Option<&str> {
     let start = help.find(before)? + before.len();
     let len = help[start..].find(after)?;
     Some(&help[start..start + len])
+}
+
+/// A help that names an `input` option to add (`separator ";"`,
+/// `decimal ","`): the option, added at the end of the `input` statement.
+fn input_option(problem: &Problem, text: &str) -> Option<Fix> {
+    let help = problem.help()?.to_string();
+    let option = ["separator \"", "decimal \""].iter().find_map(|name| {
+        let start = help.find(&format!("`{name}"))? + 1;
+        let len = help[start..].find('`')?;
+        Some(help[start..start + len].to_string())
+    })?;
+    let input = super::outline(text)
+        .statements
+        .into_iter()
+        .find(|(word, _)| word == "input")?
+        .1;
+    Some(Fix::one(
+        format!("add `{option}` to `input`"),
+        Span::new(input.end, input.end),
+        format!(" {option}"),
+    ))
+}
+
+/// A text column listed among the features, moved to a `categories`
+/// statement of its own.
+fn move_to_categories(text: &str, column: &str, span: Span) -> Vec<Fix> {
+    let mut fix = add_line(
+        text,
+        span.start,
+        &format!("categories {}", super::complete::written_column(column)),
+    );
+    fix.title = format!("move `{column}` to `categories`");
+    fix.edits.insert(0, (list_item(text, span), String::new()));
+    vec![fix]
+}
+
+/// A column added at the end of the `features` list.
+fn add_feature(text: &str, column: &str) -> Vec<Fix> {
+    let Some((_, features)) = super::outline(text)
+        .statements
+        .into_iter()
+        .find(|(word, _)| word == "features")
+    else {
+        return Vec::new();
+    };
+    vec![Fix::one(
+        format!("add `{column}` to `features`"),
+        Span::new(features.end, features.end),
+        format!(", {}", super::complete::written_column(column)),
+    )]
+}
+
+/// The span of a list item with the comma and blanks that tie it to its
+/// neighbour, so removing it leaves a well-formed list.
+fn list_item(text: &str, item: Span) -> Span {
+    let after = &text[item.end..];
+    let trailing = after.len() - after.trim_start_matches([' ', '\t']).len();
+    if after[trailing..].starts_with(',') {
+        let rest = &after[trailing + 1..];
+        let blanks = rest.len() - rest.trim_start_matches([' ', '\t']).len();
+        return Span::new(item.start, item.end + trailing + 1 + blanks);
+    }
+    let before = text[..item.start].trim_end_matches([' ', '\t']);
+    match before.strip_suffix(',') {
+        Some(kept) => Span::new(kept.trim_end_matches([' ', '\t']).len(), item.end),
+        None => item,
+    }
+}
+
+/// A new line after the statement holding `offset`.
+fn add_line(text: &str, offset: usize, line: &str) -> Fix {
+    let at = after_statement(text, offset);
+    let new_text = if at == text.len() && !text.is_empty() && !text.ends_with('\n') {
+        format!("\n{line}\n")
+    } else {
+        format!("{line}\n")
+    };
+    Fix::one(format!("add `{line}`"), Span::new(at, at), new_text)
 }
 
 /// Where the statement holding `offset` ends (before a trailing comment).
@@ -111,5 +208,21 @@ mod tests {
         let help = did_you_mean(&Some("calinski-harabasz".into()), "");
         assert_eq!(suggestion_in(&help), Some("calinski-harabasz"));
         assert_eq!(suggestion_in("criteria are a, b"), None);
+    }
+
+    #[test]
+    fn a_list_item_goes_with_the_comma_that_ties_it() {
+        let text = "features a, b, c\n";
+        let at = |w: &str| {
+            let s = text.find(&format!(" {w}")).unwrap() + 1;
+            Span::new(s, s + w.len())
+        };
+        let cut = |w: &str| {
+            let s = list_item(text, at(w));
+            format!("{}{}", &text[..s.start], &text[s.end..])
+        };
+        assert_eq!(cut("a"), "features b, c\n");
+        assert_eq!(cut("b"), "features a, c\n");
+        assert_eq!(cut("c"), "features a, b\n");
     }
 }

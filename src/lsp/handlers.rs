@@ -191,16 +191,20 @@ pub fn code_actions(ctx: &Context<'_>, range: Range) -> Vec<CodeAction> {
             .into_iter()
             .enumerate()
         {
-            let edit = TextEdit {
-                range: index.range(fix.span.start, fix.span.end),
-                new_text: fix.new_text,
-            };
+            let edits = fix
+                .edits
+                .into_iter()
+                .map(|(span, new_text)| TextEdit {
+                    range: index.range(span.start, span.end),
+                    new_text,
+                })
+                .collect();
             actions.push(CodeAction {
                 title: fix.title,
                 kind: Some(CodeActionKind::QUICKFIX),
                 diagnostics: Some(vec![diagnostic.clone()]),
                 edit: Some(WorkspaceEdit {
-                    changes: Some(HashMap::from([(uri.clone(), vec![edit])])),
+                    changes: Some(HashMap::from([(uri.clone(), edits)])),
                     ..Default::default()
                 }),
                 is_preferred: Some(i == 0),
