@@ -380,7 +380,8 @@ pub fn heat_map(o: &Outcome) -> Chart {
     let (left, top) = (170.0, 110.0);
     let w = left + cw * features.len() as f64 + 20.0;
     let h = top + ch * o.profiles.len() as f64 + 40.0;
-    let title = "how segments differ (standardised difference from all records)";
+    let title =
+        "how segments differ (standardised difference from all records, after the transform)";
     let mut doc = document(w.max(520.0), h, title);
     for (j, f) in features.iter().enumerate() {
         let x = left + cw * j as f64 + cw / 2.0;

@@ -201,8 +201,9 @@ fn profiles_csv(o: &Outcome) -> (Vec<u8>, usize) {
     .map(|s| s.to_string())
     .collect();
     for f in &o.prepared.features {
-        header.push(format!("{}_mean", f.column));
-        header.push(format!("{}_std_diff", f.column));
+        for part in ["mean", "median", "q1", "q3", "std_diff"] {
+            header.push(format!("{}_{part}", f.column));
+        }
     }
     header.extend(level_names(o));
     let mut rows = vec![header];
@@ -218,7 +219,7 @@ fn profiles_csv(o: &Outcome) -> (Vec<u8>, usize) {
             p.stability.map(f6).unwrap_or_default(),
         ];
         for fs in &p.features {
-            r.push(f6(fs.mean));
+            r.extend([fs.mean, fs.median, fs.q1, fs.q3].map(f6));
             r.push(if p.segment.is_some() {
                 f6(fs.std_diff)
             } else {
@@ -312,6 +313,8 @@ struct JsonProfile<'a> {
     silhouette: Option<f64>,
     stability: Option<f64>,
     means: Vec<f64>,
+    medians: Vec<f64>,
+    quartiles: Vec<[f64; 2]>,
     std_diffs: Option<Vec<f64>>,
     centre: Option<&'a [f64]>,
     level_shares: &'a [Vec<f64>],
@@ -326,6 +329,8 @@ fn json_profile(p: &Profile) -> JsonProfile<'_> {
         silhouette: p.silhouette,
         stability: p.stability,
         means: p.features.iter().map(|f| f.mean).collect(),
+        medians: p.features.iter().map(|f| f.median).collect(),
+        quartiles: p.features.iter().map(|f| [f.q1, f.q3]).collect(),
         std_diffs: p
             .segment
             .map(|_| p.features.iter().map(|f| f.std_diff).collect()),

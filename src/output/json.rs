@@ -95,6 +95,8 @@ pub fn run(o: &Outcome, written: &[String]) -> Value {
             "silhouette": p.silhouette,
             "stability": p.stability,
             "means": p.features.iter().map(|f| f.mean).collect::<Vec<_>>(),
+            "medians": p.features.iter().map(|f| f.median).collect::<Vec<_>>(),
+            "quartiles": p.features.iter().map(|f| [f.q1, f.q3]).collect::<Vec<_>>(),
             "std_diffs": p.features.iter().map(|f| f.std_diff).collect::<Vec<_>>(),
         })).collect::<Vec<_>>(),
         "validation": o.validation.as_ref().map(|v| json!({"column": v.column, "adjusted_rand_index": v.adjusted_rand_index, "matched": v.matched})),

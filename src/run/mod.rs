@@ -161,11 +161,22 @@ impl Assignments {
     }
 }
 
-/// A feature's summary within a group of records, in original units.
+/// A feature's summary within a group of records: the mean, median and
+/// quartiles in original units (gaps filled as the recipe fills them), and
+/// the standardised difference measured where the segments were made.
 #[derive(Debug, Clone, Serialize)]
 pub struct FeatureSummary {
     pub mean: f64,
-    /// (group mean - overall mean) / overall standard deviation.
+    pub median: f64,
+    /// First and third quartiles (Hyndman and Fan's definition 7).
+    pub q1: f64,
+    pub q3: f64,
+    /// In the clustered space (after clipping, the transform, scaling and
+    /// weight): (group mean - overall mean) / overall standard deviation of
+    /// the feature's clustered values. Scaling and weights multiply and
+    /// shift, which this ratio ignores, so it is the difference the
+    /// transform leaves: for a log-transformed feature, the difference on
+    /// the log scale that drove the segments, not on the raw scale.
     pub std_diff: f64,
 }
 
@@ -1070,65 +1081,66 @@ fn advice(sweep: &[SweepRow]) -> Vec<String> {
         .collect()
 }
 
-/// Each feature's mean over all kept records and within each segment, in
-/// original units, and its population standard deviation: one pass per
-/// feature, its values rebuilt from the table one feature at a time (so no
-/// second copy of every feature is held). Sums run in record order, as
-/// [`engine::stats::mean`] sums.
+/// Each feature's mean, median and quartiles over all kept records and
+/// within each segment, in original units, and its standardised difference
+/// in the clustered space: one pass per feature, its original values
+/// rebuilt from the table one feature at a time (so no second copy of
+/// every feature is held), its clustered values read from the matrix.
+/// Sums run in record order, as [`engine::stats::mean`] sums.
 struct FeatureMeans {
-    overall: Vec<f64>,
-    sd: Vec<f64>,
+    overall: Vec<FeatureSummary>,
     /// `[segment][feature]`.
-    by_segment: Vec<Vec<f64>>,
+    by_segment: Vec<Vec<FeatureSummary>>,
 }
 
 impl FeatureMeans {
     fn new(p: &Prepared, table: &load::Table, labels: &[u32], k: usize) -> FeatureMeans {
-        let mut sizes = vec![0usize; k];
-        labels.iter().for_each(|&l| sizes[l as usize] += 1);
         let mut out = FeatureMeans {
             overall: Vec::new(),
-            sd: Vec::new(),
             by_segment: vec![Vec::new(); k],
         };
         for (f, fp) in p.features.iter().enumerate() {
             let values = prepare::original(table, &p.kept, f, fp.fill);
-            out.overall
-                .push(engine::stats::mean(&values).unwrap_or(0.0));
-            out.sd
-                .push(engine::stats::sd_population(&values).unwrap_or(0.0));
-            let mut sums = vec![0.0; k];
-            for (v, &l) in values.iter().zip(labels) {
-                sums[l as usize] += v;
+            let clustered = p.matrix.column(f).to_vec();
+            let centre = engine::stats::mean(&clustered).unwrap_or(0.0);
+            let sd = engine::stats::sd_population(&clustered).unwrap_or(0.0);
+            out.overall.push(summary(&values, 0.0));
+            let mut groups: Vec<(Vec<f64>, Vec<f64>)> = vec![(Vec::new(), Vec::new()); k];
+            for ((v, c), &l) in values.iter().zip(&clustered).zip(labels) {
+                groups[l as usize].0.push(*v);
+                groups[l as usize].1.push(*c);
             }
-            for (s, (sum, &m)) in sums.iter().zip(&sizes).enumerate() {
-                out.by_segment[s].push(if m == 0 { 0.0 } else { sum / m as f64 });
+            for (s, (vals, clus)) in groups.iter().enumerate() {
+                let mean = engine::stats::mean(clus).unwrap_or(centre);
+                let diff = if sd > 0.0 { (mean - centre) / sd } else { 0.0 };
+                out.by_segment[s].push(summary(vals, diff));
             }
         }
         out
     }
 
-    /// All records: means, no differences.
+    /// All records: no differences.
     fn overall(&self) -> Vec<FeatureSummary> {
-        self.overall
-            .iter()
-            .map(|&mean| FeatureSummary {
-                mean,
-                std_diff: 0.0,
-            })
-            .collect()
+        self.overall.clone()
     }
 
-    /// Segment `s`: means and standardised differences from all records.
+    /// Segment `s`.
     fn segment(&self, s: usize) -> Vec<FeatureSummary> {
-        self.by_segment[s]
-            .iter()
-            .zip(self.overall.iter().zip(&self.sd))
-            .map(|(&mean, (&all, &sd))| FeatureSummary {
-                mean,
-                std_diff: if sd > 0.0 { (mean - all) / sd } else { 0.0 },
-            })
-            .collect()
+        self.by_segment[s].clone()
+    }
+}
+
+/// Mean, median and quartiles of some values, with a standardised
+/// difference measured elsewhere.
+fn summary(values: &[f64], std_diff: f64) -> FeatureSummary {
+    let sorted = engine::stats::sorted(values);
+    let q = |at| engine::stats::quantile_sorted(&sorted, at).unwrap_or(0.0);
+    FeatureSummary {
+        mean: engine::stats::mean(values).unwrap_or(0.0),
+        median: q(0.5),
+        q1: q(0.25),
+        q3: q(0.75),
+        std_diff,
     }
 }
 
