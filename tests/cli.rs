@@ -60,7 +60,7 @@ fn the_demo_prints_the_sweep_and_profiles_and_writes_every_output() {
     let mut lines = assignments.lines();
     assert_eq!(
         lines.next(),
-        Some("member_id,segment,label,distance,margin")
+        Some("member_id,segment,label,distance,nearer_by")
     );
     // Every member is assigned (gaps are filled, none dropped).
     assert_eq!(lines.count(), 6000);

@@ -159,7 +159,7 @@ pub fn assignments_csv(
     assignments: &Assignments,
     label: impl Fn(usize) -> String,
 ) -> (Vec<u8>, usize) {
-    let mut rows = vec![[key, "segment", "label", "distance", "margin"]
+    let mut rows = vec![[key, "segment", "label", "distance", "nearer_by"]
         .iter()
         .map(|s| s.to_string())
         .collect::<Vec<_>>()];

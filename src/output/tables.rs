@@ -325,7 +325,7 @@ fn sweep_table(s: &mut String, o: &Outcome) {
 }
 
 fn profiles(s: &mut String, o: &Outcome) {
-    let _ = writeln!(s, "segments at k = {} (means in original units, each with its standardised difference from all, measured where the segments were made: after the transform)", o.chosen);
+    let _ = writeln!(s, "segments at k = {} (means in original units; beside each, its standardised difference from\nall records, measured where the segments were made: after clipping and the transform)", o.chosen);
     let labels: Vec<String> = o
         .profiles
         .iter()
