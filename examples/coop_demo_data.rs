@@ -8,6 +8,13 @@
 //! planted segment of each member goes to a separate file, so the demo can
 //! report how well a recipe recovers it.
 //!
+//! Two value columns that are not behaviour to cluster on follow: a
+//! member's spend over the last twelve months (visits x basket x 12, with
+//! some noise) and whether the member agreed to be contacted (0 or 1, more
+//! often for members who shop online). They come from a second random
+//! stream, so the behavioural columns stay what they were before these
+//! were added.
+//!
 //! Run: `cargo run --example coop_demo_data` (writes `recipes/data/`). The
 //! generator is seeded, so the files are the same on every machine.
 
@@ -17,6 +24,9 @@ use std::fmt::Write as _;
 const MEMBERS: usize = 6000;
 const SEED: u64 = 20260401;
 const BRANCHES: [&str; 4] = ["Riverside", "Old Mill", "Hilltop", "Harbour"];
+
+/// Share of each planted segment's members who agreed to be contacted.
+const CONTACTABLE: [f64; 5] = [0.62, 0.55, 0.88, 0.74, 0.35];
 
 /// A planted segment: its share of members and the centre and spread of
 /// each behaviour.
@@ -129,9 +139,10 @@ fn pick(s: &mut Stream, weights: &[f64]) -> usize {
 
 fn main() -> std::io::Result<()> {
     let mut s = Stream::new(SEED, 0);
+    let mut v = Stream::new(SEED, 1);
     let shares: Vec<f64> = PLANTED.iter().map(|p| p.share).collect();
     let mut members = String::from(
-        "member_id,home_branch,tenure_months,visits_per_month,basket_value,share_fresh,share_bulk,share_prepared,online_ratio,coupon_rate\n",
+        "member_id,home_branch,tenure_months,visits_per_month,basket_value,share_fresh,share_bulk,share_prepared,online_ratio,coupon_rate,spend_12m,contactable\n",
     );
     let mut planted = String::from("member_id,planted_segment\n");
     for i in 0..MEMBERS {
@@ -167,9 +178,12 @@ fn main() -> std::io::Result<()> {
         let online_txt = blank_or(&mut s, 0.03, format!("{online:.3}"));
         let basket_txt = blank_or(&mut s, 0.015, format!("{basket:.2}"));
         let coupon_txt = blank_or(&mut s, 0.02, format!("{coupon:.3}"));
+        let spend = visits * basket * 12.0 * (0.15 * normal(&mut v)).exp();
+        let spend_txt = blank_or(&mut v, 0.005, format!("{spend:.2}"));
+        let contactable = u8::from(v.unit() < CONTACTABLE[seg]);
         let _ = writeln!(
             members,
-            "{id},{branch},{tenure},{visits:.2},{basket_txt},{fresh:.3},{bulk:.3},{prepared:.3},{online_txt},{coupon_txt}"
+            "{id},{branch},{tenure},{visits:.2},{basket_txt},{fresh:.3},{bulk:.3},{prepared:.3},{online_txt},{coupon_txt},{spend_txt},{contactable}"
         );
         let _ = writeln!(planted, "{id},{}", p.name);
     }

@@ -39,6 +39,48 @@ pub struct Plan {
     /// Last run's segment model, whose numbers and labels this run keeps.
     pub previous: Option<PreviousPlan>,
     pub outputs: Vec<OutputPlan>,
+    /// Columns profiled per segment but not clustered (`describe`), read
+    /// as numbers after the features.
+    pub describe: Vec<String>,
+    /// How people see a column (`call`), by column name.
+    pub display: BTreeMap<String, Display>,
+}
+
+/// A column's name and number format for people (`call`).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Display {
+    pub name: String,
+    pub format: NumberFormat,
+    /// Written after a number or count (`visits`), before money (`€`).
+    pub unit: Option<String>,
+}
+
+/// How a column's numbers are shown to people.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum NumberFormat {
+    /// Up to two decimals, thousands separated.
+    Number,
+    /// A fraction shown as a percentage: 0.21 as 21 %.
+    Percent,
+    /// Two decimals, thousands separated, the unit (a currency) before.
+    Money,
+    /// Whole numbers, thousands separated.
+    Count,
+}
+
+impl NumberFormat {
+    pub const NAMES: [&'static str; 4] = ["number", "percent", "money", "count"];
+
+    pub fn parse(word: &str) -> Option<NumberFormat> {
+        match word {
+            "number" => Some(NumberFormat::Number),
+            "percent" => Some(NumberFormat::Percent),
+            "money" => Some(NumberFormat::Money),
+            "count" => Some(NumberFormat::Count),
+            _ => None,
+        }
+    }
 }
 
 #[derive(Debug, Clone, Serialize)]

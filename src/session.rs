@@ -68,7 +68,7 @@ impl Session {
     pub fn open(path: &Path, options: CheckOptions) -> std::io::Result<Session> {
         let source = RecipeSource::read(path)?;
         let mut s = Session::new(path, options);
-        s.statements = check::statements_of(&source.text);
+        s.statements = check::shape::statements_of(&source.text);
         s.saved = s.formatted();
         Ok(s)
     }

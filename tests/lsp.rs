@@ -795,7 +795,10 @@ fn semantic_tokens_colour_the_demo_recipe() {
         line += t[0];
         col += t[1];
         let l = lines[line as usize];
-        tokens.push((l[col as usize..(col + t[2]) as usize].to_string(), t[3]));
+        // Columns count UTF-16 units; the demo's characters (`€`) are one
+        // unit each, so they count as chars.
+        let text: String = l.chars().skip(col as usize).take(t[2] as usize).collect();
+        tokens.push((text, t[3]));
     }
     // The legend's order: keyword, property, enumMember, variable,
     // number, string, comment.
@@ -812,5 +815,7 @@ fn semantic_tokens_colour_the_demo_recipe() {
     assert_eq!(kind_of("zscore"), Some(2));
     assert_eq!(kind_of("2..8"), Some(4));
     assert_eq!(kind_of("share_prepared"), Some(3), "on a continued line");
+    assert_eq!(kind_of("\"€\""), Some(5), "after a wide character");
+    assert_eq!(kind_of("describe"), Some(0));
     s.stop();
 }

@@ -89,3 +89,56 @@ fn a_log_transformed_feature_is_profiled_where_it_was_clustered() {
     assert!((get("basket_value_q1") - quantile(&in_segment, 0.25)).abs() < 1e-6);
     assert!((get("basket_value_q3") - quantile(&in_segment, 0.75)).abs() < 1e-6);
 }
+
+#[test]
+fn a_described_column_gives_each_segments_share_of_the_total() {
+    let case = Case::demo();
+    case.run("coop-members.assort").ok();
+    let data = case.read("data/coop_members.csv");
+    let assigned = case.read("out/member_segments.csv");
+    let profiles = case.read("out/segment_profiles.csv");
+    let label_of: HashMap<String, String> = column(&assigned, "member_id")
+        .into_iter()
+        .zip(column(&assigned, "label"))
+        .collect();
+    let keys = column(&data, "member_id");
+    // Gaps are left out: a blank spend adds nothing and is not counted.
+    let spend: Vec<Option<f64>> = column(&data, "spend_12m")
+        .iter()
+        .map(|v| v.parse().ok())
+        .collect();
+    assert!(
+        spend.iter().any(Option::is_none),
+        "the demo has gaps in spend"
+    );
+    let of = |label: &str| -> Vec<f64> {
+        (0..keys.len())
+            .filter(|&i| label_of[&keys[i]] == label)
+            .filter_map(|i| spend[i])
+            .collect()
+    };
+    let all: Vec<f64> = spend.iter().flatten().copied().collect();
+    let bulk = of("bulk planners");
+    let row = profiles
+        .lines()
+        .position(|l| l.contains(",bulk planners,"))
+        .unwrap();
+    let get = |name: &str| -> f64 { column(&profiles, name)[row - 1].parse().unwrap() };
+    let share = bulk.iter().sum::<f64>() / all.iter().sum::<f64>();
+    assert!((get("spend_12m_share_of_total") - share).abs() < 1e-6);
+    assert!((get("spend_12m_total") - bulk.iter().sum::<f64>()).abs() < 1e-3);
+    assert_eq!(get("spend_12m_known") as usize, bulk.len());
+    let mut sorted = bulk.clone();
+    sorted.sort_by(f64::total_cmp);
+    assert!((get("spend_12m_median") - quantile(&sorted, 0.5)).abs() < 1e-6);
+    // Bulk planners are about a fifth of members and a third of spend.
+    assert!(get("share") < 0.25 && share > 0.3, "{share}");
+    // A 0/1 flag's mean is the share of members who agreed.
+    let flags: Vec<f64> = column(&data, "contactable")
+        .iter()
+        .zip(&keys)
+        .filter(|(_, k)| label_of[*k] == "bulk planners")
+        .map(|(v, _)| v.parse().unwrap())
+        .collect();
+    assert!((get("contactable_mean") - mean(&flags)).abs() < 1e-6);
+}

@@ -162,6 +162,7 @@ fn a_weight_transform_or_missing_rule_for_the_same_columns_is_replaced_by_enteri
         "missing drop for share_fresh",
         "transform basket_value log1p",
         "weight tenure_months 2",
+        "call basket_value \"spend\"",
         "kmeans k 3",
     ] {
         let (what, shown) = session.enter(s, false);
@@ -179,6 +180,10 @@ fn a_weight_transform_or_missing_rule_for_the_same_columns_is_replaced_by_enteri
         ),
         // The rule for every column is one statement too.
         ("missing fill mean", "missing fill median"),
+        (
+            "call basket_value \"basket\" as money",
+            "call basket_value \"spend\"",
+        ),
         // A statement naming more columns takes over the ones it covers.
         (
             "weight tenure_months, basket_value 0.5",

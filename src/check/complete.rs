@@ -251,6 +251,8 @@ fn after(statement: &str, toks: &[Placed<'_>], data: &DataView<'_>) -> Vec<Item>
             words("transform", None)
         }
         "acknowledge" if list_place => cols(Wanted::Any),
+        "describe" if list_place => cols(Wanted::Numeric),
+        "call" if count == 1 => cols(Wanted::Any),
         "categories" if list_place => cols(Wanted::Text),
         "missing" if count == 1 => [fixed("missing", "drop"), fixed("missing", "fill")].concat(),
         "missing" if prev == Some("fill") => {
@@ -296,7 +298,7 @@ fn options(
     else {
         let ready = match statement {
             "input" | "previous" => toks.len() >= 2,
-            "validate" => toks.len() >= 3,
+            "validate" | "call" => toks.len() >= 3,
             "categories" => toks.len() >= 2,
             _ => true,
         };

@@ -237,6 +237,26 @@ pub enum CheckError {
         linkage_span: Span,
     },
 
+    #[error("`{column}` cannot be described: {why}")]
+    #[diagnostic(code(assort::not_describable), help("{help}"))]
+    NotDescribable {
+        column: String,
+        why: String,
+        #[label("not a value column")]
+        span: Span,
+        help: String,
+    },
+
+    #[error("the name given is empty")]
+    #[diagnostic(
+        code(assort::empty_name),
+        help("write the name people should see, such as `call share_fresh \"fresh food share\"`")
+    )]
+    EmptyName {
+        #[label("empty")]
+        span: Span,
+    },
+
     #[error("{records} records: {why}")]
     #[diagnostic(
         code(assort::large_tree),

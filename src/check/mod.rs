@@ -28,6 +28,7 @@ pub use shown::{clipped, MOST_PROBLEMS};
 pub mod suggest;
 mod values;
 pub mod vocab;
+mod words;
 
 use crate::plan::*;
 use crate::syntax::{self, ast::*};
@@ -229,46 +230,6 @@ pub fn check_with(source: &RecipeSource, options: &CheckOptions) -> Checked {
             .unwrap_or_default(),
         sampled: cx.probe.as_ref().map_or(0, |p| p.sampled),
     }
-}
-
-/// The statements of a recipe's text, one string each (continued lists
-/// kept whole), each with the comment lines and the blank line before it;
-/// comments after the last statement make a last entry of their own.
-pub fn statements_of(text: &str) -> Vec<String> {
-    let mut out = Vec::new();
-    let mut prefix: Vec<String> = Vec::new();
-    for (_, line) in syntax::logical_lines(text).unwrap_or_default() {
-        let t = line.trim();
-        if t.is_empty() {
-            if !prefix.last().is_some_and(String::is_empty) {
-                prefix.push(String::new());
-            }
-            continue;
-        }
-        if t.starts_with('#') {
-            prefix.push(t.to_string());
-            continue;
-        }
-        prefix.push(t.to_string());
-        let entry = prefix.join("\n");
-        // The author's blank line before a statement stays with it; only
-        // blank lines at the very top of the recipe go.
-        out.push(if out.is_empty() {
-            entry.trim_start_matches('\n').to_string()
-        } else {
-            entry
-        });
-        prefix.clear();
-    }
-    let rest = prefix.join("\n");
-    if !rest.trim().is_empty() {
-        out.push(if out.is_empty() {
-            rest.trim_start_matches('\n').to_string()
-        } else {
-            rest
-        });
-    }
-    out
 }
 
 /// The statement word of an entry from [`statements_of`] (its first line
@@ -473,6 +434,13 @@ impl Checker {
         let features = self.features(find("features"), input.as_ref(), &categories);
         self.cautions(stmts, features.as_deref(), categories.as_deref());
         let rules = self.rules(stmts);
+        let key = input.as_ref().map(|i| i.plan.key.clone());
+        let describe = self.described(
+            stmts,
+            key.as_deref(),
+            features.as_deref().unwrap_or_default(),
+        );
+        let display = self.display(stmts);
         let features = features.map(|f| self.feature_rules(&rules, f));
         let scale = match find("scale") {
             Some(Statement {
@@ -539,6 +507,8 @@ impl Checker {
             compare: compare?,
             previous: previous?.map(|p| p.plan),
             outputs: outputs?,
+            describe: describe?,
+            display: display?,
             label_lines: BTreeMap::new(),
         })
     }

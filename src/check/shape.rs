@@ -36,6 +36,7 @@ pub fn slot(entry: &str) -> Option<Slot> {
     let (what, columns) = match &statement.kind {
         K::Label { segment, .. } => (format!("label {}", segment.node.value), Vec::new()),
         K::Weight { columns, .. } => (word, names(columns)),
+        K::Call { column, .. } => (word, vec![column.node.clone()]),
         // A column may have one clip and one other transform.
         K::Transform {
             columns,
@@ -74,6 +75,46 @@ pub fn data_files(text: &str, recipe: &Path) -> Vec<PathBuf> {
             }
             _ => {}
         }
+    }
+    out
+}
+
+/// The statements of a recipe's text, one string each (continued lists
+/// kept whole), each with the comment lines and the blank line before it;
+/// comments after the last statement make a last entry of their own.
+pub fn statements_of(text: &str) -> Vec<String> {
+    let mut out = Vec::new();
+    let mut prefix: Vec<String> = Vec::new();
+    for (_, line) in crate::syntax::logical_lines(text).unwrap_or_default() {
+        let t = line.trim();
+        if t.is_empty() {
+            if !prefix.last().is_some_and(String::is_empty) {
+                prefix.push(String::new());
+            }
+            continue;
+        }
+        if t.starts_with('#') {
+            prefix.push(t.to_string());
+            continue;
+        }
+        prefix.push(t.to_string());
+        let entry = prefix.join("\n");
+        // The author's blank line before a statement stays with it; only
+        // blank lines at the very top of the recipe go.
+        out.push(if out.is_empty() {
+            entry.trim_start_matches('\n').to_string()
+        } else {
+            entry
+        });
+        prefix.clear();
+    }
+    let rest = prefix.join("\n");
+    if !rest.trim().is_empty() {
+        out.push(if out.is_empty() {
+            rest.trim_start_matches('\n').to_string()
+        } else {
+            rest
+        });
     }
     out
 }

@@ -206,8 +206,21 @@ fn profiles_csv(o: &Outcome) -> (Vec<u8>, usize) {
         }
     }
     header.extend(level_names(o));
+    for v in &o.values {
+        for part in [
+            "known",
+            "mean",
+            "median",
+            "q1",
+            "q3",
+            "total",
+            "share_of_total",
+        ] {
+            header.push(format!("{}_{part}", v.column));
+        }
+    }
     let mut rows = vec![header];
-    for p in std::iter::once(&o.overall).chain(&o.profiles) {
+    for (i, p) in std::iter::once(&o.overall).chain(&o.profiles).enumerate() {
         let mut r = vec![
             p.segment
                 .map(|s| s.to_string())
@@ -227,6 +240,18 @@ fn profiles_csv(o: &Outcome) -> (Vec<u8>, usize) {
             });
         }
         r.extend(level_shares(p));
+        for v in &o.values {
+            let summary = if i == 0 {
+                &v.overall
+            } else {
+                &v.segments[i - 1]
+            };
+            r.push(summary.known.to_string());
+            let opt = |x: Option<f64>| x.map(f6).unwrap_or_default();
+            r.extend([summary.mean, summary.median, summary.q1, summary.q3].map(opt));
+            r.push(f6(summary.total));
+            r.push(opt(summary.share_of_total));
+        }
         rows.push(r);
     }
     csv_bytes(rows)
@@ -296,6 +321,8 @@ struct JsonProfiles<'a> {
     categories: Vec<JsonCategory<'a>>,
     overall: JsonProfile<'a>,
     segments: Vec<JsonProfile<'a>>,
+    /// The `describe` columns: all records, then each segment.
+    values: &'a [crate::run::values::ValueProfile],
 }
 
 #[derive(Serialize)]
@@ -361,6 +388,7 @@ fn profiles_json(o: &Outcome) -> Vec<u8> {
             .collect(),
         overall: json_profile(&o.overall),
         segments: o.profiles.iter().map(json_profile).collect(),
+        values: &o.values,
     };
     let mut bytes = serde_json::to_vec_pretty(&doc).unwrap_or_default();
     bytes.push(b'\n');

@@ -9,6 +9,7 @@ pub mod charts;
 pub mod deliver;
 pub mod files;
 pub mod json;
+pub mod people;
 pub mod record;
 pub mod report;
 pub mod set;

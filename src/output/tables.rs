@@ -1,7 +1,7 @@
 //! Terminal tables: the run summary, the k sweep and the segment profiles,
 //! laid out to read at 100 columns.
 
-use super::short;
+use super::{people, short};
 use crate::plan::{MethodPlan, Seeding};
 use crate::run::{Outcome, Profile};
 use std::fmt::Write;
@@ -399,11 +399,11 @@ fn profiles(s: &mut String, o: &Outcome) {
                     if p.segment.is_none() {
                         short(fs.mean)
                     } else {
-                        format!("{} {:+.1}", short(fs.mean), fs.std_diff)
+                        format!("{} {}", short(fs.mean), people::signed(fs.std_diff, 1))
                     }
                 })
                 .collect();
-            row(s, &fp.column, cells);
+            row(s, people::name(&o.plan, &fp.column), cells);
         }
         for (c, cat) in o.prepared.categories.iter().enumerate() {
             for (l, level) in cat.levels.iter().enumerate() {
@@ -413,6 +413,37 @@ fn profiles(s: &mut String, o: &Outcome) {
                     .collect();
                 row(s, &format!("{}={}", cat.column, level), cells);
             }
+        }
+        // Columns described, not clustered: what each segment holds.
+        let at = |p: &Profile| -> Option<usize> {
+            let s = p.segment?;
+            o.profiles.iter().position(|q| q.segment == Some(s))
+        };
+        for v in &o.values {
+            let name = people::name(&o.plan, &v.column);
+            let pick = |p: &Profile| match at(p) {
+                Some(i) => &v.segments[i],
+                None => &v.overall,
+            };
+            row(
+                s,
+                &format!("{name} (mean)"),
+                cols.iter()
+                    .map(|p| pick(p).mean.map(short).unwrap_or_default())
+                    .collect(),
+            );
+            row(
+                s,
+                "  share of its total",
+                cols.iter()
+                    .map(|p| {
+                        pick(p)
+                            .share_of_total
+                            .map(people::share)
+                            .unwrap_or_default()
+                    })
+                    .collect(),
+            );
         }
         s.push('\n');
     }

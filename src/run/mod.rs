@@ -11,6 +11,7 @@ pub mod load;
 pub mod model;
 pub mod prepare;
 pub mod previous;
+pub mod values;
 
 use crate::engine::{self, compare, criteria, evidence, kmeans, silhouette, tree, EngineError};
 use crate::plan::{ChooseK, Criterion, KMeansPlan, MethodPlan, Plan, SilhouetteMode, TreePlan};
@@ -245,6 +246,8 @@ pub struct Outcome {
     pub then: Option<previous::Then>,
     /// With `previous`: this run's data against last run's training data.
     pub drift: Option<model::Drift>,
+    /// The `describe` columns, per segment.
+    pub values: Vec<values::ValueProfile>,
 }
 
 /// Runs a plan.
@@ -282,7 +285,12 @@ impl DataCache {
             separator: plan.input.separator,
             decimal: plan.input.decimal,
             key: plan.input.key.clone(),
-            numeric: plan.features.iter().map(|f| f.column.clone()).collect(),
+            numeric: plan
+                .features
+                .iter()
+                .map(|f| f.column.clone())
+                .chain(plan.describe.iter().cloned())
+                .collect(),
             text: plan.categories.iter().map(|c| c.column.clone()).collect(),
             len: meta.as_ref().map_or(0, |m| m.len()),
             modified: meta.and_then(|m| m.modified().ok()),
@@ -603,6 +611,14 @@ pub fn run_with(
         fit.centres.view(),
     )?;
     let drift = last.as_ref().and_then(|l| l.drift(&prepared));
+    let values = values::profiles(
+        table,
+        plan.features.len(),
+        &plan.describe,
+        &prepared.kept,
+        &fit.labels.iter().map(|&l| l as usize).collect::<Vec<_>>(),
+        chosen,
+    );
 
     Ok(Outcome {
         plan: plan.clone(),
@@ -628,6 +644,7 @@ pub fn run_with(
         then: last.as_ref().map(|l| l.then()),
         drift,
         matching,
+        values,
     })
 }
 

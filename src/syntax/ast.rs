@@ -205,6 +205,17 @@ pub enum StatementKind {
         columns: Vec<Column>,
         reason: Spanned<String>,
     },
+    /// `describe COLUMNS`: columns profiled per segment, not clustered.
+    Describe {
+        columns: Vec<Column>,
+    },
+    /// `call COLUMN "name" [as FORMAT] [unit "TEXT"]`: how people see a
+    /// column.
+    Call {
+        column: Column,
+        name: Spanned<String>,
+        options: Vec<OptionPair>,
+    },
     /// A line whose first word is no statement word.
     Unknown {
         word: Spanned<String>,

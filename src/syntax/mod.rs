@@ -224,6 +224,14 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
             path: text_of(&rest[1], off),
             options: options_of(&rest[2..], off),
         },
+        Rule::describe_stmt => StatementKind::Describe {
+            columns: columns_of(&rest[0], off),
+        },
+        Rule::call_stmt => StatementKind::Call {
+            column: column_of(&rest[0], off),
+            name: text_of(&rest[1], off),
+            options: options_of(&rest[2..], off),
+        },
         Rule::acknowledge_stmt => StatementKind::Acknowledge {
             columns: columns_of(&rest[0], off),
             reason: text_of(&rest[1], off),
@@ -321,14 +329,17 @@ fn columns_of(list: &Pair<'_, Rule>, off: usize) -> Vec<Column> {
     list.clone()
         .into_inner()
         .filter(|p| p.as_rule() == Rule::column)
-        .filter_map(|col| {
-            let inner = col.into_inner().next()?;
-            Some(match inner.as_rule() {
-                Rule::text => text_of(&inner, off),
-                _ => Spanned::new(inner.as_str().to_string(), span_of(&inner, off)),
-            })
-        })
+        .map(|col| column_of(&col, off))
         .collect()
+}
+
+/// A column, bare or quoted.
+fn column_of(col: &Pair<'_, Rule>, off: usize) -> Column {
+    match col.clone().into_inner().next() {
+        Some(inner) if inner.as_rule() == Rule::text => text_of(&inner, off),
+        Some(inner) => Spanned::new(inner.as_str().to_string(), span_of(&inner, off)),
+        None => Spanned::new(col.as_str().to_string(), span_of(col, off)),
+    }
 }
 
 // ------------------------------------------------------------------ errors --

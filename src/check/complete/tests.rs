@@ -170,3 +170,17 @@ fn quoted_paths_are_relative_to_the_recipes_folder() {
 fn nothing_inside_a_comment() {
     assert!(labels("kmeans k 3 # res").is_empty());
 }
+
+#[test]
+fn describe_and_call_offer_columns_then_options() {
+    assert_eq!(
+        labels("describe "),
+        ["basket_value", "spend + tips", "visits_per_month"]
+    );
+    assert!(labels("call ").contains(&"home_branch".to_string()));
+    assert_eq!(labels("call basket_value \"basket\" "), ["as", "unit"]);
+    assert_eq!(
+        labels("call basket_value \"basket\" as "),
+        ["count", "money", "number", "percent"]
+    );
+}

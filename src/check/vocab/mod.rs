@@ -119,6 +119,16 @@ pub const STATEMENTS: &[StatementDoc] = &[
         example: r#"previous "out/last_quarter.model" assignments "out/last_quarter.csv""#,
     },
     StatementDoc {
+        word: "describe",
+        summary: "numeric columns to describe per segment without clustering on them: value, revenue, a consent flag (mean, median, quartiles, total and share of the total)",
+        example: "describe spend_12m, contactable",
+    },
+    StatementDoc {
+        word: "call",
+        summary: "the name people see for a column, and how its numbers are shown (percent, money, count)",
+        example: r#"call share_fresh "fresh food share" as percent"#,
+    },
+    StatementDoc {
         word: "validate",
         summary: "compares the segments with a known grouping of the same records",
         example: r#"validate against "data/known.csv" column group"#,
@@ -163,6 +173,19 @@ pub const CATEGORIES_OPTIONS: &[OptionDoc] = &[OptionDoc {
     takes: "a positive number",
     summary: "how much a category counts, 1 unless given (1 = at most one z-scored feature)",
 }];
+
+pub const CALL_OPTIONS: &[OptionDoc] = &[
+    OptionDoc {
+        name: "as",
+        takes: "`number`, `percent`, `money` or `count`",
+        summary: "how the column's numbers are shown; `number` unless given",
+    },
+    OptionDoc {
+        name: "unit",
+        takes: "a quoted text",
+        summary: "written after a number or count (`\"visits\"`), before money (`\"€\"`)",
+    },
+];
 
 pub const KMEANS_OPTIONS: &[OptionDoc] = &[
     OptionDoc {
@@ -274,6 +297,7 @@ pub fn options_for(word: &str) -> &'static [OptionDoc] {
     match word {
         "input" => INPUT_OPTIONS,
         "categories" => CATEGORIES_OPTIONS,
+        "call" => CALL_OPTIONS,
         "kmeans" => KMEANS_OPTIONS,
         "tree" => TREE_OPTIONS,
         "evidence" => EVIDENCE_OPTIONS,

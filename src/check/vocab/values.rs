@@ -84,6 +84,10 @@ pub const VALUES: &[ValueDoc] = &[
     fixed("save", "model", "the segment model (JSON): `assort assign` puts new records in the segments with it"),
     fixed("save", "merges", "a CSV of the tree's merges in order (`tree` only)"),
     fixed("save", "tree", "the tree in Newick format for tree viewers (`tree` only)"),
+    value_of("call", "as", "number", "up to two decimals, thousands separated, the unit after: `4.5 visits`"),
+    value_of("call", "as", "percent", "a fraction shown as a percentage: 0.21 as `21 %`"),
+    value_of("call", "as", "money", "two decimals, thousands separated, the unit before: `€1,250.00`"),
+    value_of("call", "as", "count", "a whole number, thousands separated: `12,480`"),
     fixed("validate", "against", "names the file holding the known grouping, joined on the key"),
     fixed("compare", "with", "names the earlier assignments file, joined on the key"),
 ];

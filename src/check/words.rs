@@ -1,0 +1,160 @@
+//! The words people see: `describe` (columns profiled per segment without
+//! clustering on them: value, revenue, a consent flag) and `call` (the
+//! name and number format a column is shown with).
+
+use super::*;
+use crate::plan::{Display, NumberFormat};
+
+impl Checker {
+    /// The `describe` columns: in the header, numeric in the sample, not
+    /// the key, not clustered already, each named once.
+    pub(super) fn described(
+        &mut self,
+        stmts: &[Statement],
+        key: Option<&str>,
+        clustered: &[(String, Span)],
+    ) -> Option<Vec<String>> {
+        let mut out: Vec<(String, Span)> = Vec::new();
+        let mut ok = true;
+        for s in stmts {
+            let StatementKind::Describe { columns } = &s.kind else {
+                continue;
+            };
+            for col in columns {
+                let again = out.iter().find(|(n, _)| *n == col.node).map(|(_, s)| *s);
+                let is_clustered = clustered.iter().any(|(n, _)| *n == col.node)
+                    || self.category_spans.contains_key(&col.node);
+                if let Some(first) = again {
+                    self.err(CheckError::DuplicateColumn {
+                        column: col.node.clone(),
+                        span: col.span,
+                        first,
+                    });
+                    ok = false;
+                } else if is_clustered {
+                    self.not_describable(col, "it is clustered on already", "its profile is in the segment profiles already; `describe` is for columns the segments were not made from");
+                    ok = false;
+                } else if key == Some(col.node.as_str()) {
+                    self.not_describable(
+                        col,
+                        "it is the key",
+                        "the key names each record; describe the columns that hold values",
+                    );
+                    ok = false;
+                } else if self.probe.is_some() {
+                    match self.known_column(col) {
+                        None => ok = false,
+                        Some(info) if info.kind == ColumnKind::Text => {
+                            let why = format!(
+                                "it holds text (such as `{}`)",
+                                clipped(&info.text_example.unwrap_or_default(), 40)
+                            );
+                            self.not_describable(col, &why, "`describe` sums and averages numbers; write a flag as 0 and 1, or cluster on the text with `categories`");
+                            ok = false;
+                        }
+                        Some(_) => out.push((col.node.clone(), col.span)),
+                    }
+                } else {
+                    out.push((col.node.clone(), col.span));
+                }
+            }
+        }
+        ok.then(|| out.into_iter().map(|(c, _)| c).collect())
+    }
+
+    fn not_describable(&mut self, col: &Column, why: &str, help: &str) {
+        self.err(CheckError::NotDescribable {
+            column: col.node.clone(),
+            why: why.to_string(),
+            span: col.span,
+            help: help.to_string(),
+        });
+    }
+
+    /// The `call` statements: one per column of the header, a known format,
+    /// a quoted unit.
+    pub(super) fn display(&mut self, stmts: &[Statement]) -> Option<BTreeMap<String, Display>> {
+        let mut out = BTreeMap::new();
+        let mut spans: HashMap<String, Span> = HashMap::new();
+        let mut ok = true;
+        for s in stmts {
+            let StatementKind::Call {
+                column,
+                name,
+                options,
+            } = &s.kind
+            else {
+                continue;
+            };
+            let opts = self.options("call", options, vocab::CALL_OPTIONS);
+            let format = match opts.get("as").map(|o| &o.value) {
+                None => Some(NumberFormat::Number),
+                Some(Spanned {
+                    node: Value::Word(w),
+                    span,
+                }) => self.word_choice(
+                    "number format",
+                    &Spanned::new(w.clone(), *span),
+                    &NumberFormat::NAMES,
+                    NumberFormat::parse,
+                ),
+                Some(v) => {
+                    self.bad_value(
+                        "as",
+                        &v.node,
+                        "a word",
+                        v.span,
+                        "write `as percent`, `as money`, `as count` or `as number`",
+                    );
+                    None
+                }
+            };
+            let unit = match opts.get("unit").map(|o| &o.value) {
+                None => Some(None),
+                Some(Spanned {
+                    node: Value::Text(t),
+                    ..
+                }) => Some(Some(t.clone())),
+                Some(v) => {
+                    self.bad_value(
+                        "unit",
+                        &v.node,
+                        "a quoted text",
+                        v.span,
+                        r#"write it in quotes: `unit "visits"`"#,
+                    );
+                    None
+                }
+            };
+            if let Some(first) = spans.get(&column.node) {
+                self.err(CheckError::Conflict {
+                    what: format!("a name for `{}`", column.node),
+                    span: column.span,
+                    first: *first,
+                });
+                ok = false;
+                continue;
+            }
+            spans.insert(column.node.clone(), column.span);
+            let known = self.probe.is_none() || self.known_column(column).is_some();
+            match (format, unit, known, name.node.trim().is_empty()) {
+                (_, _, _, true) => {
+                    self.err(CheckError::EmptyName { span: name.span });
+                    ok = false;
+                }
+                (Some(format), Some(unit), true, false) => {
+                    out.insert(
+                        column.node.clone(),
+                        Display {
+                            name: name.node.clone(),
+                            format,
+                            unit,
+                        },
+                    );
+                }
+                _ => ok = false,
+            }
+        }
+        ok.then_some(out)
+    }
+}
