@@ -435,6 +435,8 @@ pub enum OutputKind {
     Model,
     /// The one-file HTML report.
     Report,
+    /// The segment model as one SQL query (`assort assign` in a database).
+    Scoring,
     /// The tree's merge table (CSV).
     Merges,
     /// The tree in Newick format.

@@ -15,8 +15,9 @@ fn reference_values() -> serde_json::Value {
     let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/reference.json");
     serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap()
 }
-const DEMO_OUTPUTS: [&str; 6] = [
+const DEMO_OUTPUTS: [&str; 7] = [
     "out/segment_model.json",
+    "out/segment_scoring.sql",
     "out/member_segments.csv",
     "out/segment_profiles.csv",
     "out/segment_profiles.json",
@@ -798,7 +799,7 @@ fn the_run_record_holds_digests_of_everything() {
     assert_eq!(rec["chosen_k"], 5);
     assert_eq!(rec["inputs"][0]["records"], 6000);
     assert_eq!(rec["inputs"][1]["role"], "validate");
-    assert_eq!(rec["outputs"].as_array().unwrap().len(), 6);
+    assert_eq!(rec["outputs"].as_array().unwrap().len(), 7);
     assert_eq!(rec["plan"]["method"]["restarts"], 50);
     // The digest of each output is the SHA-256 of its bytes (checked here
     // with an independent count: a 64-digit lowercase hex string that
@@ -1313,7 +1314,7 @@ fn a_session_run_says_it_wrote_nothing_and_run_write_writes_what_assort_run_writ
     let script = "kmeans k 3..5 restarts 5\n:run\n:save\n:run write\n:quit\n";
     let out = case.assort_piped(&["repl", DEMO], script).ok().stdout();
     assert!(
-        out.contains("not written: the 6 files the recipe saves (`:run write` writes them"),
+        out.contains("not written: the 7 files the recipe saves (`:run write` writes them"),
         "{out}"
     );
     assert!(out.contains("wrote out/member_segments.csv"), "{out}");
@@ -1666,6 +1667,49 @@ fn a_dry_run_with_json_lists_reads_and_writes_as_json() {
     let doc: serde_json::Value = serde_json::from_str(&run.stdout()).unwrap();
     assert_eq!(doc["format"], "assort-dry-run/1");
     assert_eq!(doc["reads"][0], "data/coop_members.csv");
-    assert_eq!(doc["writes"].as_array().unwrap().len(), 7);
+    assert_eq!(doc["writes"].as_array().unwrap().len(), 8);
     assert!(!case.path("out").exists(), "a dry run wrote something");
+}
+
+#[test]
+fn assign_gives_the_models_own_segment_numbers_when_they_are_not_in_row_order() {
+    // With `previous`, a segment keeps last run's number wherever it now
+    // ranks by size, so the model's rows need not be numbered 1, 2, 3...
+    // Swap the numbers (and labels) of the first two rows of the demo's
+    // model: members nearest the first row must now get number 2.
+    let case = Case::demo();
+    case.run(DEMO).ok();
+    let before = case.read("out/member_segments.csv");
+    let mut model: serde_json::Value =
+        serde_json::from_str(&case.read("out/segment_model.json")).unwrap();
+    model["segments"][0]["segment"] = 2.into();
+    model["segments"][1]["segment"] = 1.into();
+    case.write("swapped.json", &model.to_string());
+    case.assort(
+        &[
+            "assign",
+            "swapped.json",
+            "data/coop_members.csv",
+            "--out",
+            "swapped.csv",
+        ],
+        &[],
+    )
+    .ok();
+    let after = case.read("swapped.csv");
+    let seg = |text: &str| -> Vec<String> {
+        text.lines()
+            .skip(1)
+            .map(|l| l.split(',').nth(1).unwrap().to_string())
+            .collect()
+    };
+    let swapped: Vec<String> = seg(&before)
+        .into_iter()
+        .map(|s| match s.as_str() {
+            "1" => "2".into(),
+            "2" => "1".into(),
+            _ => s,
+        })
+        .collect();
+    assert_eq!(seg(&after), swapped);
 }

@@ -78,6 +78,13 @@ fn render_other(o: &Outcome, kind: OutputKind, sources: &Sources<'_>) -> Vec<u8>
             crate::run::model::to_bytes(&crate::run::model::from_outcome(o, sha))
         }
         OutputKind::Report => super::report::render(o, sources),
+        OutputKind::Scoring => {
+            let model = crate::run::model::from_outcome(o, String::new());
+            let table = std::path::Path::new(&o.plan.input.path)
+                .file_stem()
+                .map_or("records".into(), |s| s.to_string_lossy().into_owned());
+            super::sql::scoring_query(&model, &table, &o.plan.name).into_bytes()
+        }
         OutputKind::Newick => newick(o),
         // The CSV kinds are rendered by `render`.
         OutputKind::Assignments

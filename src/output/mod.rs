@@ -13,6 +13,7 @@ pub mod people;
 pub mod record;
 pub mod report;
 pub mod set;
+pub mod sql;
 pub mod tables;
 
 /// A number in about four significant digits, for tables.

@@ -326,7 +326,12 @@ pub fn score(model: &SegmentModel, table: &Table) -> (Assignments, ScoreSummary)
     for (&r, (seg, distance, margin)) in kept.iter().zip(nearest) {
         assignments.push(Assignment {
             key: &table.keys[r],
-            segment: seg as usize + 1,
+            // The model's number for the segment: with `previous`, numbers
+            // follow last run's and need not be the row's place.
+            segment: model
+                .segments
+                .get(seg as usize)
+                .map_or(seg as usize + 1, |m| m.segment),
             distance,
             margin,
         });

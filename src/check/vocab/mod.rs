@@ -279,12 +279,13 @@ pub const PREVIOUS_OPTIONS: &[OptionDoc] = &[OptionDoc {
 }];
 
 /// What `save` can write.
-pub const SAVE_WHAT: [&str; 7] = [
+pub const SAVE_WHAT: [&str; 8] = [
     "assignments",
     "profiles",
     "centroids",
     "report",
     "model",
+    "scoring",
     "merges",
     "tree",
 ];
