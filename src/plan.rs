@@ -437,6 +437,8 @@ pub enum OutputKind {
     Report,
     /// The segment model as one SQL query (`assort assign` in a database).
     Scoring,
+    /// Each segment's readable rule as one SQL query.
+    Rules,
     /// The tree's merge table (CSV).
     Merges,
     /// The tree in Newick format.

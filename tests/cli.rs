@@ -15,9 +15,10 @@ fn reference_values() -> serde_json::Value {
     let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/reference.json");
     serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap()
 }
-const DEMO_OUTPUTS: [&str; 7] = [
+const DEMO_OUTPUTS: [&str; 8] = [
     "out/segment_model.json",
     "out/segment_scoring.sql",
+    "out/segment_rules.sql",
     "out/member_segments.csv",
     "out/segment_profiles.csv",
     "out/segment_profiles.json",
@@ -799,7 +800,7 @@ fn the_run_record_holds_digests_of_everything() {
     assert_eq!(rec["chosen_k"], 5);
     assert_eq!(rec["inputs"][0]["records"], 6000);
     assert_eq!(rec["inputs"][1]["role"], "validate");
-    assert_eq!(rec["outputs"].as_array().unwrap().len(), 7);
+    assert_eq!(rec["outputs"].as_array().unwrap().len(), 8);
     assert_eq!(rec["plan"]["method"]["restarts"], 50);
     // The digest of each output is the SHA-256 of its bytes (checked here
     // with an independent count: a 64-digit lowercase hex string that
@@ -1314,7 +1315,7 @@ fn a_session_run_says_it_wrote_nothing_and_run_write_writes_what_assort_run_writ
     let script = "kmeans k 3..5 restarts 5\n:run\n:save\n:run write\n:quit\n";
     let out = case.assort_piped(&["repl", DEMO], script).ok().stdout();
     assert!(
-        out.contains("not written: the 7 files the recipe saves (`:run write` writes them"),
+        out.contains("not written: the 8 files the recipe saves (`:run write` writes them"),
         "{out}"
     );
     assert!(out.contains("wrote out/member_segments.csv"), "{out}");
@@ -1667,7 +1668,7 @@ fn a_dry_run_with_json_lists_reads_and_writes_as_json() {
     let doc: serde_json::Value = serde_json::from_str(&run.stdout()).unwrap();
     assert_eq!(doc["format"], "assort-dry-run/1");
     assert_eq!(doc["reads"][0], "data/coop_members.csv");
-    assert_eq!(doc["writes"].as_array().unwrap().len(), 8);
+    assert_eq!(doc["writes"].as_array().unwrap().len(), 9);
     assert!(!case.path("out").exists(), "a dry run wrote something");
 }
 

@@ -119,3 +119,109 @@ fn the_scoring_query_gives_every_member_the_segment_assort_assign_gives() {
     assert_eq!(near_ties, 0, "no demo member sits on a border within 1e-9");
     assert_eq!(agree, 6000);
 }
+
+/// The demo's columns by name, gaps as `None`.
+fn columns(csv: &str) -> HashMap<String, Vec<Option<f64>>> {
+    let mut lines = csv.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let rows: Vec<Vec<&str>> = lines.map(|l| l.split(',').collect()).collect();
+    header
+        .iter()
+        .enumerate()
+        .map(|(i, h)| {
+            (
+                h.to_string(),
+                rows.iter().map(|r| r[i].parse().ok()).collect(),
+            )
+        })
+        .collect()
+}
+
+#[test]
+fn rules_coverage_and_precision_recomputed_and_the_rules_query_agrees() {
+    let case = Case::demo();
+    let run = case
+        .assort(&["run", "coop-members.assort", "--json"], &[])
+        .ok();
+    let doc: serde_json::Value = serde_json::from_str(&run.stdout()).unwrap();
+    let rules = doc["result"]["rules"].as_array().unwrap().clone();
+    assert_eq!(rules.len(), 5);
+    let data = case.read("data/coop_members.csv");
+    let cols = columns(&data);
+    let keys: Vec<String> = data
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').next().unwrap().to_string())
+        .collect();
+    let segment_of: HashMap<String, String> = case
+        .read("out/member_segments.csv")
+        .lines()
+        .skip(1)
+        .map(|l| {
+            let c: Vec<&str> = l.split(',').collect();
+            (c[0].to_string(), c[1].to_string())
+        })
+        .collect();
+    // A record meets a rule when every condition holds on its value, a gap
+    // taking the recipe's fill (as the rule's `fill` says).
+    let meets = |rule: &serde_json::Value, i: usize| -> bool {
+        rule["conditions"].as_array().unwrap().iter().all(|c| {
+            let v = cols[c["column"].as_str().unwrap()][i].or(c["fill"].as_f64());
+            let t = c["value"].as_f64().unwrap();
+            match (v, c["op"].as_str().unwrap()) {
+                (Some(v), ">") => v > t,
+                (Some(v), "<=") => v <= t,
+                _ => false,
+            }
+        })
+    };
+    for rule in &rules {
+        let conditions = rule["conditions"].as_array().unwrap();
+        assert!(!conditions.is_empty() && conditions.len() <= 3, "{rule}");
+        let seg = rule["segment"].to_string();
+        let size = keys.iter().filter(|k| segment_of[*k] == seg).count();
+        let picked: Vec<usize> = (0..keys.len()).filter(|&i| meets(rule, i)).collect();
+        let hits = picked
+            .iter()
+            .filter(|&&i| segment_of[&keys[i]] == seg)
+            .count();
+        let coverage = hits as f64 / size as f64;
+        let precision = hits as f64 / picked.len() as f64;
+        assert!(
+            (rule["coverage"].as_f64().unwrap() - coverage).abs() < 1e-12,
+            "{rule}"
+        );
+        assert!(
+            (rule["precision"].as_f64().unwrap() - precision).abs() < 1e-12,
+            "{rule}"
+        );
+        // On the demo's planted segments every rule is a good description.
+        assert!(coverage > 0.8 && precision > 0.9, "{rule}");
+    }
+
+    // The rules query, run in SQLite, picks for each member the first rule
+    // (highest precision first) the member meets.
+    let db = Connection::open_in_memory().unwrap();
+    load(&db, "coop_members", &data, &["member_id", "home_branch"]);
+    let query = case.read("out/segment_rules.sql");
+    let mut statement = db.prepare(&query).unwrap();
+    let got: HashMap<String, Option<i64>> = statement
+        .query_map([], |r| Ok((r.get(0)?, r.get(1)?)))
+        .unwrap()
+        .map(Result::unwrap)
+        .collect();
+    let mut ordered = rules.clone();
+    ordered.sort_by(|a, b| {
+        b["precision"]
+            .as_f64()
+            .unwrap()
+            .total_cmp(&a["precision"].as_f64().unwrap())
+    });
+    for (i, key) in keys.iter().enumerate() {
+        let expected = ordered
+            .iter()
+            .find(|r| meets(r, i))
+            .map(|r| r["segment"].as_i64().unwrap());
+        assert_eq!(got[key], expected, "{key}");
+    }
+}

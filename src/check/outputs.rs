@@ -4,7 +4,7 @@ use super::*;
 
 /// What each `save` word writes, by file ending, and the endings in words.
 type Endings = &'static [(&'static str, OutputKind)];
-const FORMATS: [(&str, Endings, &str); 8] = [
+const FORMATS: [(&str, Endings, &str); 9] = [
     ("assignments", &[("csv", OutputKind::Assignments)], "`.csv`"),
     ("centroids", &[("csv", OutputKind::Centroids)], "`.csv`"),
     (
@@ -17,6 +17,7 @@ const FORMATS: [(&str, Endings, &str); 8] = [
     ),
     ("model", &[("json", OutputKind::Model)], "`.json`"),
     ("scoring", &[("sql", OutputKind::Scoring)], "`.sql`"),
+    ("rules", &[("sql", OutputKind::Rules)], "`.sql`"),
     ("report", &[("html", OutputKind::Report)], "`.html`"),
     ("merges", &[("csv", OutputKind::Merges)], "`.csv`"),
     (

@@ -20,6 +20,7 @@ pub mod kmeans;
 pub mod matching;
 pub mod pca;
 pub mod rng;
+pub mod rules;
 pub mod silhouette;
 pub mod stats;
 pub mod stop;

@@ -80,10 +80,11 @@ fn render_other(o: &Outcome, kind: OutputKind, sources: &Sources<'_>) -> Vec<u8>
         OutputKind::Report => super::report::render(o, sources),
         OutputKind::Scoring => {
             let model = crate::run::model::from_outcome(o, String::new());
-            let table = std::path::Path::new(&o.plan.input.path)
-                .file_stem()
-                .map_or("records".into(), |s| s.to_string_lossy().into_owned());
-            super::sql::scoring_query(&model, &table, &o.plan.name).into_bytes()
+            super::sql::scoring_query(&model, &table_name(o), &o.plan.name).into_bytes()
+        }
+        OutputKind::Rules => {
+            super::sql::rules_query(&o.rules, &o.plan.input.key, &table_name(o), &o.plan.name)
+                .into_bytes()
         }
         OutputKind::Newick => newick(o),
         // The CSV kinds are rendered by `render`.
@@ -92,6 +93,13 @@ fn render_other(o: &Outcome, kind: OutputKind, sources: &Sources<'_>) -> Vec<u8>
         | OutputKind::Centroids
         | OutputKind::Merges => Vec::new(),
     }
+}
+
+/// The table the SQL outputs read: named after the input file.
+fn table_name(o: &Outcome) -> String {
+    Path::new(&o.plan.input.path)
+        .file_stem()
+        .map_or("records".into(), |s| s.to_string_lossy().into_owned())
 }
 
 fn f6(v: f64) -> String {

@@ -100,6 +100,7 @@ pub fn run(o: &Outcome, written: &[String]) -> Value {
             "std_diffs": p.features.iter().map(|f| f.std_diff).collect::<Vec<_>>(),
         })).collect::<Vec<_>>(),
         "values": &o.values,
+        "rules": &o.rules,
         "validation": o.validation.as_ref().map(|v| json!({"column": v.column, "adjusted_rand_index": v.adjusted_rand_index, "matched": v.matched})),
         "comparison": o.comparison.as_ref().map(comparison),
         "tree": o.tree.as_ref().map(|t| json!({"linkage": t.linkage.name(), "distance": t.distance.name(), "leaves": t.leaves, "cophenetic_correlation": finite(t.cophenetic), "cophenetic_over": t.cophenetic_leaves, "inversions": t.inversions})),

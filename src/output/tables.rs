@@ -19,6 +19,7 @@ pub fn report(o: &Outcome) -> String {
     sweep(&mut s, o);
     s.push('\n');
     profiles(&mut s, o);
+    rules(&mut s, o);
     if let Some(c) = super::changes::Changes::of(o) {
         s.push('\n');
         s.push_str(&super::changes::terminal(&c));
@@ -161,6 +162,56 @@ pub fn sweep_report(o: &Outcome) -> String {
     let mut s = String::new();
     sweep(&mut s, o);
     s
+}
+
+/// Each segment's rule in words, with its coverage and precision.
+fn rules(s: &mut String, o: &Outcome) {
+    if o.rules.is_empty() {
+        return;
+    }
+    let _ = writeln!(s, "rules (at most three conditions; coverage: share of the segment the rule picks;\nprecision: share of the records it picks that are in the segment)");
+    for r in &o.rules {
+        let name = match &r.label {
+            Some(l) => format!("{} {l}", r.segment),
+            None => r.segment.to_string(),
+        };
+        let text = if r.conditions.is_empty() {
+            "no rule of three conditions sets it apart".to_string()
+        } else {
+            format!(
+                "{}: coverage {}, precision {}",
+                rule_words(o, r),
+                people::share(r.coverage),
+                people::share(r.precision)
+            )
+        };
+        wrapped(s, &format!("  {name}: "), &text);
+    }
+    s.push('\n');
+}
+
+/// A rule's conditions in people's words: `visits a month > 6.94 and ...`.
+pub fn rule_words(o: &Outcome, r: &crate::run::rules::SegmentRule) -> String {
+    r.conditions
+        .iter()
+        .map(|c| {
+            let op = if c.op == ">" { "above" } else { "at most" };
+            // A count's threshold falls between whole numbers (9.5): shown
+            // rounded to a whole it would read as another rule.
+            let is_count = o
+                .plan
+                .display
+                .get(&c.column)
+                .is_some_and(|d| d.format == crate::plan::NumberFormat::Count);
+            let value = if is_count && c.value.fract() != 0.0 {
+                people::decimals(c.value, 1)
+            } else {
+                people::value(&o.plan, &c.column, c.value)
+            };
+            format!("{} {op} {value}", people::name(&o.plan, &c.column))
+        })
+        .collect::<Vec<_>>()
+        .join(" and ")
 }
 
 /// The profiles section alone.

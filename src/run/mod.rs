@@ -11,6 +11,7 @@ pub mod load;
 pub mod model;
 pub mod prepare;
 pub mod previous;
+pub mod rules;
 pub mod values;
 
 use crate::engine::{self, compare, criteria, evidence, kmeans, silhouette, tree, EngineError};
@@ -248,6 +249,8 @@ pub struct Outcome {
     pub drift: Option<model::Drift>,
     /// The `describe` columns, per segment.
     pub values: Vec<values::ValueProfile>,
+    /// Each segment's readable rule, in profile order.
+    pub rules: Vec<rules::SegmentRule>,
 }
 
 /// Runs a plan.
@@ -620,6 +623,17 @@ pub fn run_with(
         chosen,
     );
 
+    let rules = rules::rules(
+        &prepared,
+        table,
+        &fit.labels,
+        &profiles
+            .iter()
+            .map(|p| p.segment.unwrap_or(0))
+            .collect::<Vec<_>>(),
+        &profiles.iter().map(|p| p.label.clone()).collect::<Vec<_>>(),
+    );
+
     Ok(Outcome {
         plan: plan.clone(),
         records: table.keys.len(),
@@ -645,6 +659,7 @@ pub fn run_with(
         drift,
         matching,
         values,
+        rules,
     })
 }
 

@@ -279,13 +279,14 @@ pub const PREVIOUS_OPTIONS: &[OptionDoc] = &[OptionDoc {
 }];
 
 /// What `save` can write.
-pub const SAVE_WHAT: [&str; 8] = [
+pub const SAVE_WHAT: [&str; 9] = [
     "assignments",
     "profiles",
     "centroids",
     "report",
     "model",
     "scoring",
+    "rules",
     "merges",
     "tree",
 ];
