@@ -476,24 +476,25 @@ fn verify(
     };
     let progress = Progress::new(args.quiet || args.json);
     // The rerun's record, built as a run builds it, is what is compared.
-    let now = match deliver::run_and_render(source, plan, &mut run::DataCache::default(), &|step| {
-        progress.step(step)
-    }) {
-        Ok((_, _, rec)) => rec,
-        Err(e) => {
-            if args.json {
-                report(false, Vec::new(), Some(output::json::error(&e)));
-            } else {
-                eprint!("{}", diagnostic::render_bare(&e, colour()));
+    let (now, rendered) =
+        match deliver::run_and_render(source, plan, &mut run::DataCache::default(), &|step| {
+            progress.step(step)
+        }) {
+            Ok((_, files, rec)) => (rec, files),
+            Err(e) => {
+                if args.json {
+                    report(false, Vec::new(), Some(output::json::error(&e)));
+                } else {
+                    eprint!("{}", diagnostic::render_bare(&e, colour()));
+                }
+                return ExitCode::FAILURE;
             }
-            return ExitCode::FAILURE;
-        }
-    };
+        };
     progress.finish();
-    let on_disk: Vec<(String, Option<String>)> = plan
-        .outputs
+    // Every file a run writes, the report's chart files included.
+    let on_disk: Vec<(String, Option<String>)> = rendered
         .iter()
-        .map(|o| (o.path.clone(), record::file_sha256(&o.resolved)))
+        .map(|f| (f.shown.clone(), record::file_sha256(&f.path)))
         .collect();
     let found = record::differences(&recorded, &now, &on_disk);
     let differences: Vec<String> = found.iter().map(ToString::to_string).collect();

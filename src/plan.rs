@@ -18,6 +18,12 @@ pub const PLAN_FORMAT: u32 = 1;
 pub struct Plan {
     pub format: u32,
     pub name: String,
+    /// The report's title and the period the data covers (`recipe ...
+    /// title "..." period "..."`).
+    pub title: Option<String>,
+    pub period: Option<String>,
+    /// What a record is, in the plural (`members`), for the report.
+    pub records_noun: Option<String>,
     pub seed: u64,
     pub input: InputPlan,
     /// Numeric features in the order they are clustered.
@@ -439,6 +445,8 @@ pub enum OutputKind {
     Scoring,
     /// Each segment's readable rule as one SQL query.
     Rules,
+    /// Key and segment name only, for a CRM (CSV).
+    Handoff,
     /// The tree's merge table (CSV).
     Merges,
     /// The tree in Newick format.

@@ -15,7 +15,8 @@ fn reference_values() -> serde_json::Value {
     let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/reference.json");
     serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap()
 }
-const DEMO_OUTPUTS: [&str; 8] = [
+const DEMO_OUTPUTS: [&str; 9] = [
+    "out/crm_segments.csv",
     "out/segment_model.json",
     "out/segment_scoring.sql",
     "out/segment_rules.sql",
@@ -800,7 +801,8 @@ fn the_run_record_holds_digests_of_everything() {
     assert_eq!(rec["chosen_k"], 5);
     assert_eq!(rec["inputs"][0]["records"], 6000);
     assert_eq!(rec["inputs"][1]["role"], "validate");
-    assert_eq!(rec["outputs"].as_array().unwrap().len(), 8);
+    // Nine outputs and the report's five chart files.
+    assert_eq!(rec["outputs"].as_array().unwrap().len(), 14);
     assert_eq!(rec["plan"]["method"]["restarts"], 50);
     // The digest of each output is the SHA-256 of its bytes (checked here
     // with an independent count: a 64-digit lowercase hex string that
@@ -1315,7 +1317,7 @@ fn a_session_run_says_it_wrote_nothing_and_run_write_writes_what_assort_run_writ
     let script = "kmeans k 3..5 restarts 5\n:run\n:save\n:run write\n:quit\n";
     let out = case.assort_piped(&["repl", DEMO], script).ok().stdout();
     assert!(
-        out.contains("not written: the 8 files the recipe saves (`:run write` writes them"),
+        out.contains("not written: the 9 files the recipe saves (`:run write` writes them"),
         "{out}"
     );
     assert!(out.contains("wrote out/member_segments.csv"), "{out}");
@@ -1564,6 +1566,85 @@ fn the_demo_report_is_well_formed_and_holds_every_segment_and_chart() {
         assert!(!html.contains(fetch), "the report contains `{fetch}`");
     }
     assert!(html.contains("may be unlawful or unfair"));
+
+    // Marketing reads it top down: the title and period from the recipe,
+    // the segments first, the analyst's part after, the cautions last.
+    let headings: Vec<String> = doc
+        .descendants()
+        .filter(|n| matches!(n.tag_name().name(), "h1" | "h2"))
+        .map(|n| n.text().unwrap_or("").to_string())
+        .collect();
+    assert_eq!(headings[0], "Co-op member segments");
+    assert!(html.contains("the twelve months to September 2026"));
+    let at = |h: &str| {
+        headings
+            .iter()
+            .position(|x| x == h)
+            .unwrap_or_else(|| panic!("no {h}: {headings:?}"))
+    };
+    assert!(at("The segments") < at("What the analyst should know"));
+    assert!(at("What the analyst should know") < at("Charts"));
+    assert!(at("Charts") < at("Where these results come from"));
+    assert!(at("Where these results come from") < at("Cautions"));
+    assert!(
+        !html.contains("assort verify</code>) before relying"),
+        "no tool talk in the cautions"
+    );
+    // Every card: size in members, value shares, words, a rule with its
+    // coverage and precision.
+    for card in doc
+        .descendants()
+        .filter(|n| n.attribute("class") == Some("card"))
+    {
+        let text: String = card.descendants().filter_map(|n| n.text()).collect();
+        assert!(text.contains(" members"), "{text}");
+        assert!(text.contains("of spend, last 12 months"), "{text}");
+        assert!(
+            text.contains("times the average") || text.contains("below the average"),
+            "{text}"
+        );
+        assert!(
+            text.contains("Rule: ") && text.contains("It picks ") && text.contains(" are in it."),
+            "{text}"
+        );
+    }
+    // The bulk planners' card names their baskets (clustered on a log
+    // scale, where they stand out).
+    assert!(html.contains("average basket: €170.48, 2.6 times the average"));
+    // People's numbers: thousands separators, no minus zero.
+    assert!(html.contains("1,781 members"));
+    let minus_zero = html.match_indices("-0.").any(|(at, _)| {
+        let digits: String = html[at + 3..]
+            .chars()
+            .take_while(char::is_ascii_digit)
+            .collect();
+        !digits.is_empty() && digits.chars().all(|c| c == '0')
+    });
+    assert!(!minus_zero, "a minus zero");
+    // Print: cards, charts and tables are kept whole on a page.
+    assert!(
+        html.contains("@media print")
+            && html.contains(".card{width:auto;margin:0 0 10px 0;break-inside:avoid")
+    );
+    // One SVG file per chart, each a document of its own.
+    let folder = case.path("out/segment_report-charts");
+    let mut files: Vec<String> = std::fs::read_dir(&folder)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    files.sort();
+    assert_eq!(files.len(), svgs.len(), "{files:?}");
+    for f in &files {
+        let text = std::fs::read_to_string(folder.join(f)).unwrap();
+        assert_eq!(well_formed(&text).root_element().tag_name().name(), "svg");
+    }
+    // The CRM hand-off: the key and the segment's name, nothing else.
+    let handoff = case.read("out/crm_segments.csv");
+    assert!(
+        handoff.starts_with("member_id,segment_name\nM10001,weekly fresh regulars\n"),
+        "{}",
+        &handoff[..80]
+    );
 }
 
 #[test]
@@ -1668,7 +1749,7 @@ fn a_dry_run_with_json_lists_reads_and_writes_as_json() {
     let doc: serde_json::Value = serde_json::from_str(&run.stdout()).unwrap();
     assert_eq!(doc["format"], "assort-dry-run/1");
     assert_eq!(doc["reads"][0], "data/coop_members.csv");
-    assert_eq!(doc["writes"].as_array().unwrap().len(), 9);
+    assert_eq!(doc["writes"].as_array().unwrap().len(), 10);
     assert!(!case.path("out").exists(), "a dry run wrote something");
 }
 

@@ -275,7 +275,7 @@ fn ctrl_c_during_a_run_stops_the_run_and_keeps_the_session() {
     t.type_keys("kmeans k 5..6 restarts 5\r");
     t.wait_for_prompt("assort> ");
     t.type_keys(":run\r");
-    t.wait_for("not written: the 8 files the recipe saves");
+    t.wait_for("not written: the 9 files the recipe saves");
     t.wait_for_prompt("assort> ");
     // Tab completes what the checker accepts: the one text column.
     t.type_keys("categories \t");

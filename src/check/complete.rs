@@ -297,7 +297,7 @@ fn options(
         .map(|p| p + 1)
     else {
         let ready = match statement {
-            "input" | "previous" => toks.len() >= 2,
+            "input" | "previous" | "recipe" => toks.len() >= 2,
             "validate" | "call" => toks.len() >= 3,
             "categories" => toks.len() >= 2,
             _ => true,

@@ -483,17 +483,13 @@ impl Checker {
         let is_tree = matches!(method, Some(MethodPlan::Tree(_)));
         let outputs = self.outputs(stmts, is_tree);
         let seed = self.seed(find("seed"));
-        let name = match find("recipe") {
-            Some(Statement {
-                kind: StatementKind::Recipe { name },
-                ..
-            }) => name.node.clone(),
-            _ => self.recipe_stem.clone(),
-        };
-
+        let (name, title, period, records_noun) = self.recipe_names(find("recipe"));
         Some(Plan {
             format: PLAN_FORMAT,
             name,
+            title,
+            period,
+            records_noun,
             seed: seed?,
             input: input?.plan,
             features: features?,

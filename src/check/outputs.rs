@@ -4,7 +4,7 @@ use super::*;
 
 /// What each `save` word writes, by file ending, and the endings in words.
 type Endings = &'static [(&'static str, OutputKind)];
-const FORMATS: [(&str, Endings, &str); 9] = [
+const FORMATS: [(&str, Endings, &str); 10] = [
     ("assignments", &[("csv", OutputKind::Assignments)], "`.csv`"),
     ("centroids", &[("csv", OutputKind::Centroids)], "`.csv`"),
     (
@@ -18,6 +18,7 @@ const FORMATS: [(&str, Endings, &str); 9] = [
     ("model", &[("json", OutputKind::Model)], "`.json`"),
     ("scoring", &[("sql", OutputKind::Scoring)], "`.sql`"),
     ("rules", &[("sql", OutputKind::Rules)], "`.sql`"),
+    ("handoff", &[("csv", OutputKind::Handoff)], "`.csv`"),
     ("report", &[("html", OutputKind::Report)], "`.html`"),
     ("merges", &[("csv", OutputKind::Merges)], "`.csv`"),
     (

@@ -6,6 +6,43 @@ use super::*;
 use crate::plan::{Display, NumberFormat};
 
 impl Checker {
+    /// The recipe's name (its file's stem unless given), and the report's
+    /// title and period.
+    pub(super) fn recipe_names(
+        &mut self,
+        stmt: Option<&Statement>,
+    ) -> (String, Option<String>, Option<String>, Option<String>) {
+        let Some(Statement {
+            kind: StatementKind::Recipe { name, options },
+            ..
+        }) = stmt
+        else {
+            return (self.recipe_stem.clone(), None, None, None);
+        };
+        let opts = self.options("recipe", options, vocab::RECIPE_OPTIONS);
+        let mut text = |o: &str| match opts.get(o).map(|p| &p.value) {
+            Some(Spanned {
+                node: Value::Text(t),
+                ..
+            }) => Some(t.clone()),
+            Some(v) => {
+                self.bad_value(
+                    o,
+                    &v.node,
+                    "a quoted text",
+                    v.span,
+                    r#"write it in quotes: `period "July to September 2026"`"#,
+                );
+                None
+            }
+            None => None,
+        };
+        let title = text("title");
+        let period = text("period");
+        let noun = text("records");
+        (name.node.clone(), title, period, noun)
+    }
+
     /// The `describe` columns: in the header, numeric in the sample, not
     /// the key, not clustered already, each named once.
     pub(super) fn described(

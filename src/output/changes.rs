@@ -193,7 +193,7 @@ pub fn terminal(c: &Changes) -> String {
             _ => {
                 let pts = 100.0 * (ch.share_now.unwrap_or(0.0) - ch.share_then.unwrap_or(0.0));
                 let size = ch.size_now.unwrap_or(0) as i64 - ch.size_then.unwrap_or(0) as i64;
-                format!("{size:+} ({pts:+.1} points)")
+                format!("{size:+} ({} points)", super::people::signed(pts, 1))
             }
         };
         let _ = writeln!(
@@ -207,9 +207,9 @@ pub fn terminal(c: &Changes) -> String {
     if let Some((g, pts)) = c.grew_most() {
         let _ = writeln!(
             s,
-            "  segment {} grew most: {:+.1} points of the records",
+            "  segment {} grew most: {} points of the records",
             named(g.number, g.label.as_deref()),
-            100.0 * pts
+            super::people::signed(100.0 * pts, 1)
         );
     }
     for ch in c.segments.iter().filter(|ch| ch.weak.is_some()) {

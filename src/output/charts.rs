@@ -13,10 +13,12 @@ use crate::run::Outcome;
 use svg::node::element::{Circle, Group, Line, Polyline, Rectangle, Text, Title};
 use svg::Document;
 
-/// Segment colours, dark to light alternating so neighbours differ in
-/// lightness as well as hue.
+/// Segment colours, dark and light alternating so that the first five
+/// (the usual number of segments) differ in lightness by at least 0.12 of
+/// relative luminance, and segments that share a marker shape (four
+/// apart) by at least 0.25: in greyscale no two of them read alike.
 pub const SEGMENT_COLOURS: [&str; 8] = [
-    "#1f3b63", "#e0942f", "#2f7f6f", "#9ec3e6", "#6b3f80", "#efd35a", "#3d3d3d", "#e6a3a0",
+    "#1f3b63", "#efd35a", "#2f7f6f", "#9ec3e6", "#e0942f", "#6b3f80", "#e6a3a0", "#3d3d3d",
 ];
 
 const INK: &str = "#222222";
@@ -409,16 +411,16 @@ pub fn heat_map(o: &Outcome) -> Chart {
                         .set("height", ch - 2.0)
                         .set("fill", diverging(fs.std_diff))
                         .add(Title::new(format!(
-                            "{}: mean {} ({:+.2} sd)",
+                            "{}: mean {} ({} sd)",
                             features[j],
                             fmt(fs.mean),
-                            fs.std_diff
+                            super::people::signed(fs.std_diff, 2)
                         ))),
                 )
                 .add(text(
                     x + cw / 2.0,
                     y + 17.0,
-                    format!("{:+.1}", fs.std_diff),
+                    super::people::signed(fs.std_diff, 1),
                     "middle",
                 ));
         }
@@ -664,4 +666,55 @@ pub fn dendrogram(o: &Outcome) -> Option<Chart> {
         title,
         svg: doc.to_string(),
     })
+}
+
+#[cfg(test)]
+mod greyscale_tests {
+    use super::SEGMENT_COLOURS;
+
+    /// Relative luminance (WCAG 2 definition: sRGB linearised, weighted
+    /// 0.2126, 0.7152, 0.0722), what greyscale printing keeps of a colour.
+    fn luminance(hex: &str) -> f64 {
+        let channel = |i: usize| {
+            let c = u8::from_str_radix(&hex[i..i + 2], 16).unwrap() as f64 / 255.0;
+            if c <= 0.04045 {
+                c / 12.92
+            } else {
+                ((c + 0.055) / 1.055).powf(2.4)
+            }
+        };
+        0.2126 * channel(1) + 0.7152 * channel(3) + 0.0722 * channel(5)
+    }
+
+    #[test]
+    fn segments_stay_apart_in_greyscale() {
+        let l: Vec<f64> = SEGMENT_COLOURS.iter().map(|c| luminance(c)).collect();
+        for a in 0..5 {
+            for b in a + 1..5 {
+                assert!(
+                    (l[a] - l[b]).abs() >= 0.12,
+                    "segments {} and {}",
+                    a + 1,
+                    b + 1
+                );
+            }
+        }
+        // Markers repeat every four segments: those pairs differ strongly.
+        for a in 0..4 {
+            assert!(
+                (l[a] - l[a + 4]).abs() >= 0.25,
+                "segments {} and {}",
+                a + 1,
+                a + 5
+            );
+        }
+        // Any two colours close in lightness have different shapes.
+        for a in 0..8 {
+            for b in a + 1..8 {
+                if (l[a] - l[b]).abs() < 0.1 {
+                    assert_ne!(a % 4, b % 4, "segments {} and {}", a + 1, b + 1);
+                }
+            }
+        }
+    }
 }

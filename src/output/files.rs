@@ -41,10 +41,46 @@ pub struct Sources<'a> {
 }
 
 pub fn render_all(o: &Outcome, sources: &Sources<'_>) -> Vec<Rendered> {
-    o.plan
+    let mut files: Vec<Rendered> = o
+        .plan
         .outputs
         .iter()
         .map(|out| render(o, out, sources))
+        .collect();
+    // Each chart of a report also as an SVG file of its own, for slides:
+    // `REPORT-charts/NN-name.svg` beside the report.
+    for out in o
+        .plan
+        .outputs
+        .iter()
+        .filter(|p| p.kind == OutputKind::Report)
+    {
+        files.extend(chart_files(o, &out.resolved, &out.path));
+    }
+    files
+}
+
+/// The report's charts as files in a folder named after it.
+fn chart_files(o: &Outcome, report: &Path, shown: &str) -> Vec<Rendered> {
+    let stem = report
+        .file_stem()
+        .map_or("report".into(), |s| s.to_string_lossy().into_owned());
+    let folder = report.with_file_name(format!("{stem}-charts"));
+    let shown_folder = Path::new(shown).with_file_name(format!("{stem}-charts"));
+    super::charts::all(o)
+        .into_iter()
+        .enumerate()
+        .map(|(i, c)| {
+            let name = format!("{:02}-{}.svg", i + 1, c.name);
+            let mut bytes = b"<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n".to_vec();
+            bytes.extend(c.svg.into_bytes());
+            bytes.push(b'\n');
+            Rendered::plain(
+                folder.join(&name),
+                shown_folder.join(&name).display().to_string(),
+                bytes,
+            )
+        })
         .collect()
 }
 
@@ -54,6 +90,7 @@ fn render(o: &Outcome, out: &OutputPlan, sources: &Sources<'_>) -> Rendered {
         OutputKind::ProfilesCsv => profiles_csv(o),
         OutputKind::Centroids => centroids(o),
         OutputKind::Merges => merges(o),
+        OutputKind::Handoff => handoff(o),
         other => (render_other(o, other, sources), 0),
     };
     Rendered {
@@ -91,7 +128,8 @@ fn render_other(o: &Outcome, kind: OutputKind, sources: &Sources<'_>) -> Vec<u8>
         OutputKind::Assignments
         | OutputKind::ProfilesCsv
         | OutputKind::Centroids
-        | OutputKind::Merges => Vec::new(),
+        | OutputKind::Merges
+        | OutputKind::Handoff => Vec::new(),
     }
 }
 
@@ -161,6 +199,25 @@ fn is_plain_number(cell: &str) -> bool {
 
 fn label_of(o: &Outcome, segment: usize) -> String {
     o.plan.labels.get(&segment).cloned().unwrap_or_default()
+}
+
+/// The hand-off for a CRM or marketing system: each record's key and its
+/// segment's name (its label, or `segment N`), nothing else.
+fn handoff(o: &Outcome) -> (Vec<u8>, usize) {
+    let name = |s: usize| {
+        o.profiles
+            .iter()
+            .find(|p| p.segment == Some(s))
+            .and_then(|p| p.label.clone())
+            .unwrap_or_else(|| format!("segment {s}"))
+    };
+    let mut rows = vec![vec![o.plan.input.key.clone(), "segment_name".to_string()]];
+    rows.extend(
+        o.assignments
+            .iter()
+            .map(|a| vec![a.key.to_string(), name(a.segment)]),
+    );
+    csv_bytes(rows)
 }
 
 fn assignments(o: &Outcome) -> (Vec<u8>, usize) {

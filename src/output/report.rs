@@ -10,6 +10,7 @@
 
 use super::charts;
 use super::files::Sources;
+use super::people;
 use super::record::sha256_hex;
 use crate::plan::{MethodPlan, MissingRule, Transform};
 use crate::run::Outcome;
@@ -23,7 +24,9 @@ h1{font-size:1.6em;margin-bottom:.2em}h2{font-size:1.2em;border-bottom:1px solid
 table{border-collapse:collapse;font-size:.92em}td,th{border-bottom:1px solid #e3e3e3;padding:.25em .6em;text-align:right}\
 th:first-child,td:first-child{text-align:left}.chosen{font-weight:bold;background:#fff4e0}\
 figure{margin:1.2em 0}figcaption{font-size:.9em;color:#555}.caution{background:#fbf6e8;border:1px solid #e8d9a8;padding:.6em .9em}\
-code{font-size:.95em}";
+code{font-size:.95em}.period{color:#555;margin-top:0}.value{font-weight:bold}.rule{font-size:.92em;background:#f4f4f4;padding:.3em .5em}\
+@media print{body{max-width:none;margin:0}.cards{display:block}.card{width:auto;margin:0 0 10px 0;break-inside:avoid;page-break-inside:avoid}\
+figure,table,.caution{break-inside:avoid;page-break-inside:avoid}h2,h3{break-after:avoid;page-break-after:avoid}.analyst{break-before:page;page-break-before:always}}";
 
 /// Escapes text for HTML.
 fn esc(s: &str) -> String {
@@ -56,8 +59,8 @@ pub fn render(o: &Outcome, sources: &Sources<'_>) -> Vec<u8> {
     let plan = &o.plan;
     let _ = write!(
         h,
-        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"/><title>Segments: {}</title><style>{STYLE}</style></head><body>\n",
-        esc(&plan.name)
+        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"/><title>{}</title><style>{STYLE}</style></head><body>\n",
+        esc(plan.title.as_deref().unwrap_or(&plan.name))
     );
     let method = match &plan.method {
         MethodPlan::KMeans(k) => format!("k-means ({} restarts per k)", k.restarts),
@@ -71,19 +74,29 @@ pub fn render(o: &Outcome, sources: &Sources<'_>) -> Vec<u8> {
                 .unwrap_or_default()
         ),
     };
+    let noun = plan.records_noun.as_deref().unwrap_or("records");
+    let title = plan.title.as_deref().unwrap_or(&plan.name);
+    let _ = write!(h, "<h1>{}</h1>\n", esc(title));
+    if let Some(period) = &plan.period {
+        let _ = write!(h, "<p class=\"period\">{}</p>\n", esc(period));
+    }
     let _ = write!(
         h,
-        "<h1>Segments: {}</h1>\n<p class=\"lead\">{} of {} records from <code>{}</code> were put into <b>{} segments</b> by {}.</p>\n",
-        esc(&plan.name),
+        "<p class=\"lead\">{} {noun} in <b>{} segments</b>.</p>\n",
+        crate::text::thousands(o.prepared.kept.len()),
+        o.chosen,
+    );
+    cards(&mut h, o, noun);
+    let _ = write!(
+        h,
+        "<div class=\"analyst\"><h2>What the analyst should know</h2>\n<p class=\"small\">{} of {} records from <code>{}</code> were segmented by {}.</p>\n",
         o.prepared.kept.len(),
         o.records,
         esc(&plan.input.path),
-        o.chosen,
         esc(&method)
     );
     how(&mut h, o);
     why(&mut h, o);
-    cards(&mut h, o);
     if let Some(c) = super::changes::Changes::of(o) {
         changed(&mut h, &c, o);
     }
@@ -99,10 +112,10 @@ pub fn render(o: &Outcome, sources: &Sources<'_>) -> Vec<u8> {
     provenance(&mut h, o, sources);
     let _ = write!(
         h,
-        "<h2>Cautions</h2>\n<div class=\"caution\"><p>Segments describe behaviour in the data, not who people are. \
+        "</div>\n<h2>Cautions</h2>\n<div class=\"caution\"><p>Segments describe behaviour in the data, not who people are. \
          Segmenting or targeting people on direct identifiers or protected attributes (age, sex or gender, ethnicity, religion, health, disability and the like) may be unlawful or unfair; \
          local law and your organisation's privacy practice decide. Segments are found by an algorithm: check that they make sense before acting on them, \
-         and rerun the recipe (<code>assort verify</code>) before relying on numbers copied from this page.</p></div>\n"
+         and ask the analyst before relying on a number copied from this page.</p></div>\n"
     );
     let _ = write!(
         h,
@@ -199,8 +212,16 @@ fn why(h: &mut String, o: &Outcome) {
         o.chosen,
         esc(&o.reason)
     );
-    for s in o.disagreement.iter().chain(&o.notes).chain(&o.advice) {
+    for s in o.disagreement.iter().chain(&o.notes) {
         let _ = write!(h, "<p class=\"small\">{}.</p>\n", esc(s));
+    }
+    // Restart advice once, not once per k.
+    if let Some(first) = o.advice.first() {
+        let more = match o.advice.len() - 1 {
+            0 => String::new(),
+            n => format!(" (and the same for {n} other values of k; the terminal lists each)"),
+        };
+        let _ = write!(h, "<p class=\"small\">{}{more}.</p>\n", esc(first));
     }
     if let Some(v) = &o.validation {
         let _ = write!(h, "<p class=\"small\">Against the known grouping <code>{}</code>: adjusted Rand index {:.3}.</p>\n", esc(&v.column), v.adjusted_rand_index);
@@ -254,83 +275,128 @@ fn why(h: &mut String, o: &Outcome) {
     let _ = write!(h, "</table>\n");
 }
 
-fn cards(h: &mut String, o: &Outcome) {
+/// One card per segment, for people who act on segments: its name, size
+/// and share, what it holds of the described values, what sets it apart in
+/// words, its rule, and the category levels it over-represents.
+fn cards(h: &mut String, o: &Outcome, noun: &str) {
     let _ = write!(h, "<h2>The segments</h2>\n<div class=\"cards\">\n");
     for (i, p) in o.profiles.iter().enumerate() {
         let seg = p.segment.unwrap_or(i + 1);
-        let name = p
-            .label
-            .clone()
-            .map(|l| format!(": {}", esc(&l)))
-            .unwrap_or_default();
+        let name = match &p.label {
+            Some(l) => esc(l),
+            None => format!("Segment {seg}"),
+        };
         let _ = write!(
             h,
-            "<div class=\"card\" style=\"border-left-color:{}\"><h3>Segment {seg}{name}</h3>\n<p>{} records, {:.1}% of all</p>\n<ul>\n",
+            "<div class=\"card\" style=\"border-left-color:{}\"><h3>{name}</h3>\n<p><span class=\"value\">{} {noun}</span>, {} of all <span class=\"small\">(segment {seg})</span></p>\n",
             charts::SEGMENT_COLOURS[i % charts::SEGMENT_COLOURS.len()],
-            p.size,
-            p.share * 100.0
+            crate::text::thousands(p.size),
+            people::share(p.share),
         );
-        let mut order: Vec<usize> = (0..p.features.len()).collect();
-        order.sort_by(|&a, &b| {
-            p.features[b]
-                .std_diff
-                .abs()
-                .total_cmp(&p.features[a].std_diff.abs())
-        });
-        for &f in order.iter().take(3) {
-            let fs = &p.features[f];
+        for v in &o.values {
+            if let Some(share) = v.segments[i].share_of_total {
+                let _ = write!(
+                    h,
+                    "<p><span class=\"value\">{}</span> of {}</p>\n",
+                    people::share(share),
+                    esc(people::name(&o.plan, &v.column))
+                );
+            }
+        }
+        let words = describe(o, i, noun);
+        if !words.is_empty() {
+            let _ = write!(h, "<ul>\n");
+            for w in words {
+                let _ = write!(h, "<li>{w}</li>\n");
+            }
+            let _ = write!(h, "</ul>\n");
+        }
+        categories_over(h, o, i);
+        if let Some(r) = o.rules.get(i).filter(|r| !r.conditions.is_empty()) {
             let _ = write!(
                 h,
-                "<li><code>{}</code> {} average: {} here, {} over all records</li>\n",
-                esc(&o.prepared.features[f].column),
-                degree(fs.std_diff),
-                short(fs.mean),
-                short(o.overall.features[f].mean)
+                "<p class=\"rule\">Rule: {}. It picks {} of this segment; {} of the {noun} it picks are in it.</p>\n",
+                esc(&super::tables::rule_words(o, r)),
+                people::share(r.coverage),
+                people::share(r.precision)
             );
-        }
-        let _ = write!(h, "</ul>\n");
-        for (c, cat) in o.prepared.categories.iter().enumerate() {
-            let over: Vec<String> = cat
-                .levels
-                .iter()
-                .enumerate()
-                .filter(|(l, _)| p.categories[c][*l] - o.overall.categories[c][*l] >= 0.05)
-                .map(|(l, name)| {
-                    format!(
-                        "{} {:.0}% ({:.0}% overall)",
-                        esc(name),
-                        p.categories[c][l] * 100.0,
-                        o.overall.categories[c][l] * 100.0
-                    )
-                })
-                .collect();
-            if !over.is_empty() {
-                let _ = write!(
-                    h,
-                    "<p class=\"small\">More often <code>{}</code>: {}.</p>\n",
-                    esc(&cat.column),
-                    over.join("; ")
-                );
-            }
-        }
-        if let Some(s) = p.silhouette {
-            let _ = write!(h, "<p class=\"small\">Silhouette {s:.2}");
-            if let Some(j) = p.stability {
-                let verdict = if j < crate::engine::evidence::UNSTABLE_BELOW {
-                    "unstable"
-                } else {
-                    "stable"
-                };
-                let _ = write!(
-                    h,
-                    "; recovered under resampling with a mean Jaccard of {j:.2} ({verdict})"
-                );
-            }
-            let _ = write!(h, ".</p>\n");
         }
         let _ = write!(h, "</div>\n");
     }
     let _ = write!(h, "</div>\n");
+}
+
+/// What sets segment `i` apart, in words: the features whose standardised
+/// difference (in the clustered space) is at least 0.5 either way, largest
+/// first, at most three; each with the segment's mean against all records'
+/// mean, and for positive means the ratio when it is 1.25 or more ("2.6
+/// times the average") or 0.8 or less ("56 % below the average").
+fn describe(o: &Outcome, i: usize, noun: &str) -> Vec<String> {
+    let p = &o.profiles[i];
+    let mut order: Vec<usize> = (0..p.features.len())
+        .filter(|&f| p.features[f].std_diff.abs() >= 0.5)
+        .collect();
+    order.sort_by(|&a, &b| {
+        p.features[b]
+            .std_diff
+            .abs()
+            .total_cmp(&p.features[a].std_diff.abs())
+    });
+    order
+        .into_iter()
+        .take(3)
+        .map(|f| {
+            let column = &o.prepared.features[f].column;
+            let (here, all) = (p.features[f].mean, o.overall.features[f].mean);
+            let ratio = if here > 0.0 && all > 0.0 {
+                here / all
+            } else {
+                1.0
+            };
+            let how = if ratio >= 1.25 {
+                format!("{:.1} times the average", ratio)
+            } else if ratio <= 0.8 {
+                format!("{:.0} % below the average", (1.0 - ratio) * 100.0)
+            } else {
+                format!("{} the average", degree(p.features[f].std_diff))
+            };
+            format!(
+                "{}: {}, {how} ({} for all {noun})",
+                esc(people::name(&o.plan, column)),
+                esc(&people::value(&o.plan, column, here)),
+                esc(&people::value(&o.plan, column, all))
+            )
+        })
+        .collect()
+}
+
+/// Category levels segment `i` holds 5 points or more above all records.
+fn categories_over(h: &mut String, o: &Outcome, i: usize) {
+    let p = &o.profiles[i];
+    for (c, cat) in o.prepared.categories.iter().enumerate() {
+        let over: Vec<String> = cat
+            .levels
+            .iter()
+            .enumerate()
+            .filter(|(l, _)| p.categories[c][*l] - o.overall.categories[c][*l] >= 0.05)
+            .map(|(l, name)| {
+                format!(
+                    "{} {} ({} overall)",
+                    esc(name),
+                    people::share(p.categories[c][l]),
+                    people::share(o.overall.categories[c][l])
+                )
+            })
+            .collect();
+        if !over.is_empty() {
+            let _ = write!(
+                h,
+                "<p class=\"small\">More often {}: {}.</p>\n",
+                esc(people::name(&o.plan, &cat.column)),
+                over.join("; ")
+            );
+        }
+    }
 }
 
 fn provenance(h: &mut String, o: &Outcome, sources: &Sources<'_>) {
@@ -383,8 +449,11 @@ fn changed(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
             "new" => "new segment".to_string(),
             "gone" => "gone".to_string(),
             _ => format!(
-                "{:+.1} points",
-                100.0 * (ch.share_now.unwrap_or(0.0) - ch.share_then.unwrap_or(0.0))
+                "{} points",
+                people::signed(
+                    100.0 * (ch.share_now.unwrap_or(0.0) - ch.share_then.unwrap_or(0.0)),
+                    1
+                )
             ),
         };
         let _ = write!(

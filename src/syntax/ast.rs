@@ -142,6 +142,7 @@ pub enum ChooseRule {
 pub enum StatementKind {
     Recipe {
         name: Spanned<String>,
+        options: Vec<OptionPair>,
     },
     Seed {
         value: Spanned<Number>,

@@ -107,6 +107,7 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
     let kind = match rule {
         Rule::recipe_stmt => StatementKind::Recipe {
             name: text_of(&rest[0], off),
+            options: options_of(&rest[1..], off),
         },
         Rule::seed_stmt => StatementKind::Seed {
             value: number_of(&rest[0], off),

@@ -174,6 +174,24 @@ pub const CATEGORIES_OPTIONS: &[OptionDoc] = &[OptionDoc {
     summary: "how much a category counts, 1 unless given (1 = at most one z-scored feature)",
 }];
 
+pub const RECIPE_OPTIONS: &[OptionDoc] = &[
+    OptionDoc {
+        name: "title",
+        takes: "a quoted text",
+        summary: "the title people see on the report (the recipe's name unless given)",
+    },
+    OptionDoc {
+        name: "period",
+        takes: "a quoted text",
+        summary: "the period the data covers, shown under the title (`\"July to September 2026\"`)",
+    },
+    OptionDoc {
+        name: "records",
+        takes: "a quoted text",
+        summary: "what one record is, in the plural, as the report says it (`\"members\"`; `records` unless given)",
+    },
+];
+
 pub const CALL_OPTIONS: &[OptionDoc] = &[
     OptionDoc {
         name: "as",
@@ -279,7 +297,7 @@ pub const PREVIOUS_OPTIONS: &[OptionDoc] = &[OptionDoc {
 }];
 
 /// What `save` can write.
-pub const SAVE_WHAT: [&str; 9] = [
+pub const SAVE_WHAT: [&str; 10] = [
     "assignments",
     "profiles",
     "centroids",
@@ -287,6 +305,7 @@ pub const SAVE_WHAT: [&str; 9] = [
     "model",
     "scoring",
     "rules",
+    "handoff",
     "merges",
     "tree",
 ];
@@ -300,6 +319,7 @@ pub fn options_for(word: &str) -> &'static [OptionDoc] {
         "input" => INPUT_OPTIONS,
         "categories" => CATEGORIES_OPTIONS,
         "call" => CALL_OPTIONS,
+        "recipe" => RECIPE_OPTIONS,
         "kmeans" => KMEANS_OPTIONS,
         "tree" => TREE_OPTIONS,
         "evidence" => EVIDENCE_OPTIONS,

@@ -84,6 +84,7 @@ pub const VALUES: &[ValueDoc] = &[
     fixed("save", "model", "the segment model (JSON): `assort assign` puts new records in the segments with it"),
     fixed("save", "scoring", "the segment model as one standard SQL query, so the customer database puts records in segments exactly as `assort assign` does (.sql)"),
     fixed("save", "rules", "each segment's readable rule (at most three conditions, with its coverage and precision) as one SQL query for a CRM or marketing system (.sql)"),
+    fixed("save", "handoff", "a CSV for a CRM or marketing system: each record's key and its segment's name, nothing else"),
     fixed("save", "merges", "a CSV of the tree's merges in order (`tree` only)"),
     fixed("save", "tree", "the tree in Newick format for tree viewers (`tree` only)"),
     value_of("call", "as", "number", "up to two decimals, thousands separated, the unit after: `4.5 visits`"),
