@@ -90,8 +90,8 @@ pub fn render(o: &Outcome, sources: &Sources<'_>) -> Vec<u8> {
     let _ = write!(
         h,
         "<div class=\"analyst\"><h2>What the analyst should know</h2>\n<p class=\"small\">{} of {} records from <code>{}</code> were segmented by {}.</p>\n",
-        o.prepared.kept.len(),
-        o.records,
+        crate::text::thousands(o.prepared.kept.len()),
+        crate::text::thousands(o.records),
         esc(&plan.input.path),
         esc(&method)
     );
