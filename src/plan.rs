@@ -45,9 +45,9 @@ pub struct Plan {
     /// Last run's segment model, whose numbers and labels this run keeps.
     pub previous: Option<PreviousPlan>,
     pub outputs: Vec<OutputPlan>,
-    /// Columns profiled per segment but not clustered (`describe`), read
+    /// Columns profiled per segment but not clustered (`tally`), read
     /// as numbers after the features.
-    pub describe: Vec<String>,
+    pub tally: Vec<String>,
     /// How people see a column (`call`), by column name.
     pub display: BTreeMap<String, Display>,
 }

@@ -3,7 +3,12 @@
 /// A whole number with a comma between thousands: `1234567` → `1,234,567`.
 /// Takes any unsigned integer type.
 pub fn thousands(n: impl Unsigned) -> String {
-    let digits = n.to_string();
+    group_digits(&n.to_string())
+}
+
+/// A run of digits with a comma every three from the right: `1234567` as
+/// `1,234,567`.
+pub fn group_digits(digits: &str) -> String {
     let mut out = String::with_capacity(digits.len() + digits.len() / 3);
     for (i, c) in digits.chars().enumerate() {
         if i > 0 && (digits.len() - i).is_multiple_of(3) {

@@ -816,6 +816,6 @@ fn semantic_tokens_colour_the_demo_recipe() {
     assert_eq!(kind_of("2..8"), Some(4));
     assert_eq!(kind_of("share_prepared"), Some(3), "on a continued line");
     assert_eq!(kind_of("\"€\""), Some(5), "after a wide character");
-    assert_eq!(kind_of("describe"), Some(0));
+    assert_eq!(kind_of("tally"), Some(0));
     s.stop();
 }

@@ -251,7 +251,7 @@ fn after(statement: &str, toks: &[Placed<'_>], data: &DataView<'_>) -> Vec<Item>
             words("transform", None)
         }
         "acknowledge" if list_place => cols(Wanted::Any),
-        "describe" if list_place => cols(Wanted::Numeric),
+        "tally" if list_place => cols(Wanted::Numeric),
         "call" if count == 1 => cols(Wanted::Any),
         "categories" if list_place => cols(Wanted::Text),
         "missing" if count == 1 => [fixed("missing", "drop"), fixed("missing", "fill")].concat(),

@@ -237,9 +237,9 @@ pub enum CheckError {
         linkage_span: Span,
     },
 
-    #[error("`{column}` cannot be described: {why}")]
-    #[diagnostic(code(assort::not_describable), help("{help}"))]
-    NotDescribable {
+    #[error("`{column}` cannot be tallied: {why}")]
+    #[diagnostic(code(assort::not_tallied), help("{help}"))]
+    NotTallied {
         column: String,
         why: String,
         #[label("not a value column")]

@@ -435,7 +435,7 @@ impl Checker {
         self.cautions(stmts, features.as_deref(), categories.as_deref());
         let rules = self.rules(stmts);
         let key = input.as_ref().map(|i| i.plan.key.clone());
-        let describe = self.described(
+        let tally = self.tallied(
             stmts,
             key.as_deref(),
             features.as_deref().unwrap_or_default(),
@@ -503,7 +503,7 @@ impl Checker {
             compare: compare?,
             previous: previous?.map(|p| p.plan),
             outputs: outputs?,
-            describe: describe?,
+            tally: tally?,
             display: display?,
             label_lines: BTreeMap::new(),
         })

@@ -1,4 +1,4 @@
-//! The words people see: `describe` (columns profiled per segment without
+//! The words people see: `tally` (columns profiled per segment without
 //! clustering on them: value, revenue, a consent flag) and `call` (the
 //! name and number format a column is shown with).
 
@@ -43,9 +43,9 @@ impl Checker {
         (name.node.clone(), title, period, noun)
     }
 
-    /// The `describe` columns: in the header, numeric in the sample, not
+    /// The `tally` columns: in the header, numeric in the sample, not
     /// the key, not clustered already, each named once.
-    pub(super) fn described(
+    pub(super) fn tallied(
         &mut self,
         stmts: &[Statement],
         key: Option<&str>,
@@ -54,7 +54,7 @@ impl Checker {
         let mut out: Vec<(String, Span)> = Vec::new();
         let mut ok = true;
         for s in stmts {
-            let StatementKind::Describe { columns } = &s.kind else {
+            let StatementKind::Tally { columns } = &s.kind else {
                 continue;
             };
             for col in columns {
@@ -69,13 +69,13 @@ impl Checker {
                     });
                     ok = false;
                 } else if is_clustered {
-                    self.not_describable(col, "it is clustered on already", "its profile is in the segment profiles already; `describe` is for columns the segments were not made from");
+                    self.not_tallied(col, "it is clustered on already", "its profile is in the segment profiles already; `tally` is for columns the segments were not made from");
                     ok = false;
                 } else if key == Some(col.node.as_str()) {
-                    self.not_describable(
+                    self.not_tallied(
                         col,
                         "it is the key",
-                        "the key names each record; describe the columns that hold values",
+                        "the key names each record; tally the columns that hold values",
                     );
                     ok = false;
                 } else if self.probe.is_some() {
@@ -86,7 +86,7 @@ impl Checker {
                                 "it holds text (such as `{}`)",
                                 clipped(&info.text_example.unwrap_or_default(), 40)
                             );
-                            self.not_describable(col, &why, "`describe` sums and averages numbers; write a flag as 0 and 1, or cluster on the text with `categories`");
+                            self.not_tallied(col, &why, "`tally` sums and averages numbers; write a flag as 0 and 1, or cluster on the text with `categories`");
                             ok = false;
                         }
                         Some(_) => out.push((col.node.clone(), col.span)),
@@ -99,8 +99,8 @@ impl Checker {
         ok.then(|| out.into_iter().map(|(c, _)| c).collect())
     }
 
-    fn not_describable(&mut self, col: &Column, why: &str, help: &str) {
-        self.err(CheckError::NotDescribable {
+    fn not_tallied(&mut self, col: &Column, why: &str, help: &str) {
+        self.err(CheckError::NotTallied {
             column: col.node.clone(),
             why: why.to_string(),
             span: col.span,

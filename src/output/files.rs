@@ -393,7 +393,7 @@ struct JsonProfiles<'a> {
     categories: Vec<JsonCategory<'a>>,
     overall: JsonProfile<'a>,
     segments: Vec<JsonProfile<'a>>,
-    /// The `describe` columns: all records, then each segment.
+    /// The `tally` columns: all records, then each segment.
     values: &'a [crate::run::values::ValueProfile],
 }
 

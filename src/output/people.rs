@@ -77,13 +77,7 @@ pub fn signed(v: f64, places: usize) -> String {
 pub fn decimals(v: f64, places: usize) -> String {
     let text = format!("{:.*}", places, v.abs());
     let (whole, frac) = text.split_once('.').unwrap_or((&text, ""));
-    let mut grouped = String::new();
-    for (i, c) in whole.chars().enumerate() {
-        if i > 0 && (whole.len() - i).is_multiple_of(3) {
-            grouped.push(',');
-        }
-        grouped.push(c);
-    }
+    let grouped = crate::text::group_digits(whole);
     let zero = text.chars().all(|c| c == '0' || c == '.');
     let sign = if v < 0.0 && !zero { "-" } else { "" };
     if frac.is_empty() {

@@ -247,7 +247,7 @@ pub struct Outcome {
     pub then: Option<previous::Then>,
     /// With `previous`: this run's data against last run's training data.
     pub drift: Option<model::Drift>,
-    /// The `describe` columns, per segment.
+    /// The `tally` columns, per segment.
     pub values: Vec<values::ValueProfile>,
     /// Each segment's readable rule, in profile order.
     pub rules: Vec<rules::SegmentRule>,
@@ -292,7 +292,7 @@ impl DataCache {
                 .features
                 .iter()
                 .map(|f| f.column.clone())
-                .chain(plan.describe.iter().cloned())
+                .chain(plan.tally.iter().cloned())
                 .collect(),
             text: plan.categories.iter().map(|c| c.column.clone()).collect(),
             len: meta.as_ref().map_or(0, |m| m.len()),
@@ -617,7 +617,7 @@ pub fn run_with(
     let values = values::profiles(
         table,
         plan.features.len(),
-        &plan.describe,
+        &plan.tally,
         &prepared.kept,
         &fit.labels.iter().map(|&l| l as usize).collect::<Vec<_>>(),
         chosen,

@@ -1,4 +1,4 @@
-//! Value columns (`describe`): what each segment holds of columns that
+//! Value columns (`tally`): what each segment holds of columns that
 //! were not clustered on, such as spend or a consent flag. Gaps are left
 //! out, not filled: a member whose spend is unknown adds nothing to a
 //! total and is not counted in a mean.

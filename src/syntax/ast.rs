@@ -206,8 +206,8 @@ pub enum StatementKind {
         columns: Vec<Column>,
         reason: Spanned<String>,
     },
-    /// `describe COLUMNS`: columns profiled per segment, not clustered.
-    Describe {
+    /// `tally COLUMNS`: columns summed and profiled per segment, not clustered.
+    Tally {
         columns: Vec<Column>,
     },
     /// `call COLUMN "name" [as FORMAT] [unit "TEXT"]`: how people see a

@@ -225,7 +225,7 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
             path: text_of(&rest[1], off),
             options: options_of(&rest[2..], off),
         },
-        Rule::describe_stmt => StatementKind::Describe {
+        Rule::tally_stmt => StatementKind::Tally {
             columns: columns_of(&rest[0], off),
         },
         Rule::call_stmt => StatementKind::Call {

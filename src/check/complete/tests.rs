@@ -172,9 +172,9 @@ fn nothing_inside_a_comment() {
 }
 
 #[test]
-fn describe_and_call_offer_columns_then_options() {
+fn tally_and_call_offer_columns_then_options() {
     assert_eq!(
-        labels("describe "),
+        labels("tally "),
         ["basket_value", "spend + tips", "visits_per_month"]
     );
     assert!(labels("call ").contains(&"home_branch".to_string()));

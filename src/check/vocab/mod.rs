@@ -119,9 +119,9 @@ pub const STATEMENTS: &[StatementDoc] = &[
         example: r#"previous "out/last_quarter.model" assignments "out/last_quarter.csv""#,
     },
     StatementDoc {
-        word: "describe",
-        summary: "numeric columns to describe per segment without clustering on them: value, revenue, a consent flag (mean, median, quartiles, total and share of the total)",
-        example: "describe spend_12m, contactable",
+        word: "tally",
+        summary: "numeric columns to tally per segment without clustering on them: value, revenue, a consent flag (mean, median, quartiles, total and share of the total)",
+        example: "tally spend_12m, contactable",
     },
     StatementDoc {
         word: "call",
