@@ -74,7 +74,9 @@ pub fn render(o: &Outcome, sources: &Sources<'_>) -> Vec<u8> {
                 .unwrap_or_default()
         ),
     };
-    let noun = plan.records_noun.as_deref().unwrap_or("records");
+    // The word for a record comes from the recipe: escaped here, once, as
+    // every later use is inside markup.
+    let noun = esc(plan.records_noun.as_deref().unwrap_or("records"));
     let title = plan.title.as_deref().unwrap_or(&plan.name);
     let _ = write!(h, "<h1>{}</h1>\n", esc(title));
     if let Some(period) = &plan.period {
@@ -86,7 +88,7 @@ pub fn render(o: &Outcome, sources: &Sources<'_>) -> Vec<u8> {
         crate::text::thousands(o.prepared.kept.len()),
         o.chosen,
     );
-    cards(&mut h, o, noun);
+    cards(&mut h, o, &noun);
     let _ = write!(
         h,
         "<div class=\"analyst\"><h2>What the analyst should know</h2>\n<p class=\"small\">{} of {} records from <code>{}</code> were segmented by {}.</p>\n",
@@ -442,7 +444,7 @@ fn changed(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
     );
     let cell = |size: Option<usize>, share: Option<f64>| match (size, share) {
         (Some(n), Some(s)) => format!("{} ({:.1}%)", thousands(n), 100.0 * s),
-        _ => "&ndash;".to_string(),
+        _ => "\u{2013}".to_string(),
     };
     for ch in &c.segments {
         let change = match ch.status {
@@ -518,7 +520,7 @@ fn changed(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
     if !with_means.is_empty() {
         let _ = write!(
             h,
-            "<p>Means in original units, then &rarr; now:</p>\n<table class=\"changes\"><tr><th>feature</th>"
+            "<p>Means in original units, then \u{2192} now:</p>\n<table class=\"changes\"><tr><th>feature</th>"
         );
         for ch in &with_means {
             let _ = write!(
@@ -535,7 +537,7 @@ fn changed(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
                 let now = ch.means_now.as_ref().and_then(|m| m.get(f)).copied();
                 let _ = write!(
                     h,
-                    "<td>{} &rarr; {}</td>",
+                    "<td>{} \u{2192} {}</td>",
                     then.map(short).unwrap_or_default(),
                     now.map(short).unwrap_or_default()
                 );
