@@ -33,6 +33,9 @@ pub struct Plan {
     pub scale: Scale,
     pub method: MethodPlan,
     pub choose: ChooseK,
+    /// The smallest segment a chosen k may have (`choose ... floor`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub floor: Option<SizeFloor>,
     /// Segment number (1-based) to label.
     pub labels: BTreeMap<usize, String>,
     /// The recipe line of each label, for messages.
@@ -318,6 +321,41 @@ pub struct KMeansPlan {
 pub enum ChooseK {
     Fixed(usize),
     By(Criterion),
+}
+
+/// The smallest segment a chosen k may have: a number of records, or a
+/// share of the segmented records (`choose ... floor 250`, `floor 0.05`).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum SizeFloor {
+    Records(usize),
+    Share(f64),
+}
+
+impl SizeFloor {
+    /// The floor in records when `n` records are segmented: a share is
+    /// rounded up, so a segment at the floor never holds less than it.
+    pub fn records(self, n: usize) -> usize {
+        match self {
+            SizeFloor::Records(r) => r,
+            SizeFloor::Share(s) => (s * n as f64).ceil() as usize,
+        }
+    }
+
+    /// The floor in words: "250 records", "5 % of the records (300)".
+    pub fn words(self, n: usize) -> String {
+        match self {
+            SizeFloor::Records(r) => format!("{} records", crate::text::thousands(r)),
+            SizeFloor::Share(s) => {
+                let percent = format!("{:.2}", 100.0 * s);
+                let percent = percent.trim_end_matches('0').trim_end_matches('.');
+                format!(
+                    "{percent} % of the records ({})",
+                    crate::text::thousands(self.records(n))
+                )
+            }
+        }
+    }
 }
 
 /// A criterion that can choose k.

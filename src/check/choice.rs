@@ -10,7 +10,7 @@ impl Checker {
         fitted: Option<&[usize]>,
     ) -> Option<ChooseK> {
         let Some(Statement {
-            kind: StatementKind::Choose(rule),
+            kind: StatementKind::Choose { rule, .. },
             ..
         }) = stmt
         else {
@@ -60,6 +60,61 @@ impl Checker {
                 Some(ChooseK::Fixed(k as usize))
             }
         }
+    }
+
+    /// The size floor of `choose ... floor N`: a whole number of records
+    /// (1 or more), or a share of the records (above 0, below 1). `None`
+    /// when the value does not fit; `Some(None)` when no floor is given.
+    pub(super) fn floor(&mut self, stmt: Option<&Statement>) -> Option<Option<SizeFloor>> {
+        let Some(Statement {
+            kind: StatementKind::Choose { options, .. },
+            ..
+        }) = stmt
+        else {
+            return Some(None);
+        };
+        let opts = self.options("choose", options, vocab::CHOOSE_OPTIONS);
+        let Some(o) = opts.get("floor") else {
+            return Some(None);
+        };
+        let floor = match &o.value.node {
+            Value::Number(n) if n.value.is_finite() && n.value > 0.0 && n.value < 1.0 => {
+                Some(SizeFloor::Share(n.value))
+            }
+            Value::Number(n) => n
+                .as_whole()
+                .filter(|&r| r >= 1)
+                .map(|r| SizeFloor::Records(r as usize)),
+            _ => None,
+        };
+        if floor.is_none() {
+            self.bad_value(
+                "floor",
+                &o.value.node,
+                "a whole number of records, or a share between 0 and 1",
+                o.value.span,
+                "for example `floor 250` (records) or `floor 0.05` (5 % of the records)",
+            );
+            return None;
+        }
+        // Only a counted file is held to this; an estimate could be low.
+        let counted = self.probe.as_ref().and_then(|p| p.rows);
+        if let (Some(SizeFloor::Records(r)), Some(n)) = (floor, counted) {
+            if r > n {
+                self.bad_value(
+                    "floor",
+                    &o.value.node,
+                    &format!(
+                        "at most the {} records of the data",
+                        crate::text::thousands(n)
+                    ),
+                    o.value.span,
+                    "no segment can hold more records than the data has",
+                );
+                return None;
+            }
+        }
+        Some(floor)
     }
 
     /// The `evidence` statement; a choice by gap or stability turns that

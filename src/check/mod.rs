@@ -455,6 +455,7 @@ impl Checker {
             MethodPlan::Tree(t) => t.ks.clone(),
         });
         let choose = self.choose(find("choose"), ks.as_deref());
+        let floor = self.floor(find("choose"));
         let previous = {
             let numeric: Option<Vec<String>> = features
                 .as_ref()
@@ -497,6 +498,7 @@ impl Checker {
             scale: scale?,
             method: method?,
             choose: choose?,
+            floor: floor?,
             labels: labels?,
             evidence: evidence?,
             validate: validate?,

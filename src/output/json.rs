@@ -84,6 +84,8 @@ pub fn run(o: &Outcome, written: &[String]) -> Value {
             "restarts_at_best": r.restarts.as_ref().map(|x| x.at_best),
             "restarts": r.restarts.as_ref().map(|x| x.of),
             "restarts_sample": r.restarts.as_ref().and_then(|x| x.sampled),
+            "smallest": r.smallest,
+            "below_floor": r.below_floor,
         })).collect::<Vec<_>>(),
         "changes": super::changes::Changes::of(o),
         "features": features,

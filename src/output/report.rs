@@ -237,7 +237,11 @@ fn why(h: &mut String, o: &Outcome) {
     if stab {
         let _ = write!(h, "<th>stability</th>");
     }
-    let _ = write!(h, "</tr>\n");
+    let restarts = o.sweep.iter().any(|r| r.restarts.is_some());
+    if restarts {
+        let _ = write!(h, "<th>restarts reaching the best</th>");
+    }
+    let _ = write!(h, "<th>smallest segment</th></tr>\n");
     for r in &o.sweep {
         let class = if r.k == o.chosen {
             " class=\"chosen\""
@@ -272,7 +276,26 @@ fn why(h: &mut String, o: &Outcome) {
                 r.stability.map(|s| format!("{s:.3}")).unwrap_or_default()
             );
         }
-        let _ = write!(h, "</tr>\n");
+        if restarts {
+            let best = r.restarts.as_ref().map(|x| {
+                format!(
+                    "{} of {}",
+                    crate::text::thousands(x.at_best),
+                    crate::text::thousands(x.of)
+                )
+            });
+            let _ = write!(h, "<td>{}</td>", best.unwrap_or_default());
+        }
+        let below = if r.below_floor {
+            " (below the floor)"
+        } else {
+            ""
+        };
+        let _ = write!(
+            h,
+            "<td>{}{below}</td></tr>\n",
+            crate::text::thousands(r.smallest)
+        );
     }
     let _ = write!(h, "</table>\n");
 }

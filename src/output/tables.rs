@@ -345,6 +345,12 @@ fn sweep_table(s: &mut String, o: &Outcome) {
                 .unwrap_or_default()
         }));
     }
+    if o.plan.floor.is_some() {
+        columns.push(("smallest", 10, |r| {
+            let mark = if r.below_floor { " *" } else { "" };
+            format!("{}{mark}", crate::text::thousands(r.smallest))
+        }));
+    }
     let mut header = format!("  {:>3}", "k");
     for (name, w, _) in &columns {
         let _ = write!(header, " {name:>w$}");
@@ -371,7 +377,13 @@ fn sweep_table(s: &mut String, o: &Outcome) {
     if o.sweep.iter().any(|r| r.restarts.is_some()) {
         legend.push("best found: restarts that reached the best partition");
     }
-    let legend: Vec<String> = legend.into_iter().map(String::from).collect();
+    let mut legend: Vec<String> = legend.into_iter().map(String::from).collect();
+    if let Some(f) = o.plan.floor {
+        legend.push(format!(
+            "smallest: records in the smallest segment, * below the floor of {}",
+            f.words(o.prepared.kept.len())
+        ));
+    }
     wrapped_items(s, "  ", &legend, ';');
 }
 

@@ -176,3 +176,88 @@ pub fn compare(
         key_note: None,
     })
 }
+
+/// What the run's segments were held against: a known grouping
+/// (`validate against`), an earlier segmentation (`compare with`, or last
+/// run's assignments given with `previous`), and the `compare with` file as
+/// read, for the label guard.
+pub(super) struct Against {
+    pub validation: Option<super::Validation>,
+    pub comparison: Option<Comparison>,
+    pub compared_with: Option<Vec<Assigned>>,
+}
+
+/// The compare stage: each file is read once.
+pub(super) fn against(
+    plan: &crate::plan::Plan,
+    assignments: &Assignments,
+    numbered: &super::number::Numbered,
+    last: Option<&super::previous::PreviousRun>,
+) -> Result<Against, RunError> {
+    let validation = match &plan.validate {
+        Some(v) => Some(validate(plan, v, assignments)?),
+        None => None,
+    };
+    let compared_with = match &plan.compare {
+        Some(c) => Some(read_assignments(&c.resolved, &c.path)?),
+        None => None,
+    };
+    let new = || from_run(assignments, |s| numbered.label(s).unwrap_or_default());
+    let comparison = match (&plan.compare, &compared_with) {
+        (Some(c), Some(old)) => Some(
+            compare(&c.path, old, "this run", &new())?
+                .with_key_names(key_name(&c.resolved).as_deref(), Some(&plan.input.key)),
+        ),
+        // Last run's assignments, given with `previous`, show the migration.
+        _ => match last.and_then(|l| l.assignments.as_ref()) {
+            Some((path, old)) => Some(compare(path, old, "this run", &new())?),
+            None => None,
+        },
+    };
+    Ok(Against {
+        validation,
+        comparison,
+        compared_with,
+    })
+}
+
+/// Joins the segments with the known grouping on the key and scores the
+/// agreement (adjusted Rand index, Hubert and Arabie 1985).
+fn validate(
+    plan: &crate::plan::Plan,
+    v: &crate::plan::ValidatePlan,
+    assignments: &Assignments,
+) -> Result<super::Validation, RunError> {
+    let cols = [v.column.clone()];
+    let known = super::load::load(
+        &v.resolved,
+        &v.path,
+        plan.input.separator,
+        &super::load::Columns {
+            key: &plan.input.key,
+            numeric: &[],
+            text: &cols,
+            decimal: plan.input.decimal,
+        },
+    )?;
+    let group_of: HashMap<&str, &str> = known
+        .keys
+        .iter()
+        .zip(known.text[0].iter().map(String::as_str))
+        .collect();
+    let mut ours = Vec::new();
+    let mut theirs = Vec::new();
+    for a in assignments.iter() {
+        if let Some(g) = group_of.get(a.key) {
+            ours.push(a.segment);
+            theirs.push(*g);
+        }
+    }
+    Ok(super::Validation {
+        column: v.column.clone(),
+        adjusted_rand_index: adjusted_rand_index(&ours, &theirs),
+        matched: ours.len(),
+        unmatched: assignments.len() - ours.len(),
+        records: known.keys.len(),
+    })
+}

@@ -112,6 +112,15 @@ pub enum RunError {
     )]
     TooFewRecords { k: usize, n: usize },
 
+    #[error("no k leaves every segment at or above the floor of {floor}: {smallest}")]
+    #[diagnostic(code(assort::run::below_floor), help("{help}; nothing was written"))]
+    BelowFloor {
+        floor: String,
+        /// Each k with its smallest segment, in words.
+        smallest: String,
+        help: String,
+    },
+
     #[error("the run was stopped (Ctrl-C) {during}; nothing was written")]
     #[diagnostic(
         code(assort::run::stopped),

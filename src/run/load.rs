@@ -205,27 +205,7 @@ fn read_table<R: std::io::Read>(
     cols: &Columns<'_>,
 ) -> Result<Table, RunError> {
     let Opened { mut reader, header } = opened;
-    let index_of = |name: &str| {
-        header
-            .iter()
-            .position(|h| h.trim() == name)
-            .ok_or_else(|| RunError::ColumnGone {
-                file: shown.to_string(),
-                column: name.to_string(),
-            })
-    };
-    let key_at = index_of(cols.key)?;
-    let num_at = cols
-        .numeric
-        .iter()
-        .map(|c| index_of(c))
-        .collect::<Result<Vec<_>, _>>()?;
-    let text_at = cols
-        .text
-        .iter()
-        .map(|c| index_of(c))
-        .collect::<Result<Vec<_>, _>>()?;
-
+    let (key_at, num_at, text_at) = locate(&header, shown, cols)?;
     let mut table = Table {
         fields: num_at.iter().map(|i| i + 1).collect(),
         keys: Keys::default(),
@@ -289,8 +269,48 @@ fn read_table<R: std::io::Read>(
             break;
         }
     }
-    if let Some((later, first)) = table.keys.first_repeat() {
-        return Err(RunError::DuplicateKey {
+    no_repeated_key(&table, &header, key_at, shown)?;
+    Ok(table)
+}
+
+/// Where the key, the numeric and the text columns are in the header.
+fn locate(
+    header: &csv::StringRecord,
+    shown: &str,
+    cols: &Columns<'_>,
+) -> Result<(usize, Vec<usize>, Vec<usize>), RunError> {
+    let index_of = |name: &str| {
+        header
+            .iter()
+            .position(|h| h.trim() == name)
+            .ok_or_else(|| RunError::ColumnGone {
+                file: shown.to_string(),
+                column: name.to_string(),
+            })
+    };
+    let key_at = index_of(cols.key)?;
+    let num_at = cols
+        .numeric
+        .iter()
+        .map(|c| index_of(c))
+        .collect::<Result<Vec<_>, _>>()?;
+    let text_at = cols
+        .text
+        .iter()
+        .map(|c| index_of(c))
+        .collect::<Result<Vec<_>, _>>()?;
+    Ok((key_at, num_at, text_at))
+}
+
+/// Refuses a key that comes twice, at the later line, naming the first.
+fn no_repeated_key(
+    table: &Table,
+    header: &csv::StringRecord,
+    key_at: usize,
+    shown: &str,
+) -> Result<(), RunError> {
+    match table.keys.first_repeat() {
+        Some((later, first)) => Err(RunError::DuplicateKey {
             place: Place {
                 file: shown.to_string(),
                 line: table.lines[later],
@@ -299,9 +319,9 @@ fn read_table<R: std::io::Read>(
             },
             key: table.keys.get(later).to_string(),
             first_line: table.lines[first],
-        });
+        }),
+        None => Ok(()),
     }
-    Ok(table)
 }
 
 /// Records per batch of the reader.

@@ -264,54 +264,12 @@ pub fn score(model: &SegmentModel, table: &Table) -> (Assignments, ScoreSummary)
     };
     let mut rows: Vec<f64> = Vec::with_capacity(n * width);
     let mut kept: Vec<usize> = Vec::with_capacity(n);
-    'records: for r in 0..n {
+    for r in 0..n {
         let mut row = vec![0.0; width];
-        for (f, fp) in model.features.iter().enumerate() {
-            let value = match table.numeric_raw[f][r].as_deref() {
-                None => match fp.fill {
-                    Some(v) => {
-                        summary.filled[f].1 += 1;
-                        v
-                    }
-                    None => {
-                        summary.missing[f].1 += 1;
-                        continue 'records;
-                    }
-                },
-                Some(text) => match parse_number_in(text, model.decimal) {
-                    Some(v) => v,
-                    None => {
-                        summary.not_numbers[f].1 += 1;
-                        continue 'records;
-                    }
-                },
-            };
-            match prepared_value(fp, value) {
-                Some(v) => row[f] = v,
-                None => {
-                    summary.out_of_range[f].1 += 1;
-                    continue 'records;
-                }
-            }
+        if prepare_record(model, table, r, &mut row, &mut summary) {
+            rows.extend(row);
+            kept.push(r);
         }
-        let mut offset = nf;
-        for (c, cat) in model.categories.iter().enumerate() {
-            let raw = &table.text[c][r];
-            let level = if raw.is_empty() {
-                BLANK_LEVEL
-            } else {
-                raw.as_str()
-            };
-            match cat.levels.binary_search_by(|l| l.as_str().cmp(level)) {
-                Ok(at) => row[offset + at] = cat.value,
-                // An unseen level sets no indicator: the record is equally
-                // far from every level's records.
-                Err(_) => summary.unseen_levels[c].1 += 1,
-            }
-            offset += cat.levels.len();
-        }
-        rows.extend(row);
-        kept.push(r);
     }
     summary.assigned = kept.len();
     let x = Array2::from_shape_vec((kept.len(), width), rows)
@@ -337,6 +295,64 @@ pub fn score(model: &SegmentModel, table: &Table) -> (Assignments, ScoreSummary)
         });
     }
     (assignments, summary)
+}
+
+/// Record `r` prepared as in training, into `row`; false (counted in
+/// `summary`) when it cannot be scored: a gap with no fill, a value that is
+/// not a number, a value outside its transform's domain. An unseen
+/// category level is counted but scored.
+fn prepare_record(
+    model: &SegmentModel,
+    table: &Table,
+    r: usize,
+    row: &mut [f64],
+    summary: &mut ScoreSummary,
+) -> bool {
+    for (f, fp) in model.features.iter().enumerate() {
+        let value = match table.numeric_raw[f][r].as_deref() {
+            None => match fp.fill {
+                Some(v) => {
+                    summary.filled[f].1 += 1;
+                    v
+                }
+                None => {
+                    summary.missing[f].1 += 1;
+                    return false;
+                }
+            },
+            Some(text) => match parse_number_in(text, model.decimal) {
+                Some(v) => v,
+                None => {
+                    summary.not_numbers[f].1 += 1;
+                    return false;
+                }
+            },
+        };
+        match prepared_value(fp, value) {
+            Some(v) => row[f] = v,
+            None => {
+                summary.out_of_range[f].1 += 1;
+                return false;
+            }
+        }
+    }
+    let mut offset = model.features.len();
+    for (c, cat) in model.categories.iter().enumerate() {
+        let raw = &table.text[c][r];
+        let level = if raw.is_empty() {
+            BLANK_LEVEL
+        } else {
+            raw.as_str()
+        };
+        match cat.levels.binary_search_by(|l| l.as_str().cmp(level)) {
+            Ok(at) => row[offset + at] = cat.value,
+            // An unseen level sets no indicator: the record is equally far
+            // from every level's records.
+            Err(_) => summary.unseen_levels[c].1 += 1,
+        }
+        offset += cat.levels.len();
+    }
+    true
 }
 
 fn count_slots<'a>(names: impl Iterator<Item = &'a String>) -> Vec<(String, usize)> {
@@ -480,49 +496,21 @@ pub fn read_model(path: &std::path::Path) -> Result<SegmentModel, RunError> {
 /// distinct, one centre per segment, segment numbers distinct and from 1,
 /// the drift reference shaped like the features.
 fn inconsistency(m: &SegmentModel) -> Option<String> {
-    for (i, f) in m.features.iter().enumerate() {
-        let col = &f.column;
-        let finite = [f.centre, f.divisor, f.multiplier]
-            .into_iter()
-            .chain(f.fill)
-            .chain(f.clip.map(|c| c.0))
-            .chain(f.clip.map(|c| c.1))
-            .all(f64::is_finite);
-        if !finite {
-            return Some(format!(
-                "field `features[{i}]` (feature `{col}`) holds a value that is not a finite number"
-            ));
-        }
-        if f.divisor <= 0.0 || f.multiplier <= 0.0 {
-            let field = if f.divisor <= 0.0 {
-                "divisor"
-            } else {
-                "multiplier"
-            };
-            return Some(format!(
-                "field `features[{i}].{field}` (feature `{col}`) is {}; divisors and multipliers must be above 0",
-                if f.divisor <= 0.0 { f.divisor } else { f.multiplier }
-            ));
-        }
-        if f.clip.is_some_and(|(a, b)| a > b) {
-            return Some(format!(
-                "field `features[{i}].clip` (feature `{col}`) has its bounds in the wrong order"
-            ));
-        }
+    if let Some(why) = m
+        .features
+        .iter()
+        .enumerate()
+        .find_map(feature_inconsistency)
+    {
+        return Some(why);
     }
-    for (i, c) in m.categories.iter().enumerate() {
-        if !(c.value.is_finite() && c.value > 0.0) {
-            return Some(format!(
-                "field `categories[{i}].value` (category `{}`) is {}; it must be above 0",
-                c.column, c.value
-            ));
-        }
-        if c.levels.windows(2).any(|w| w[0] >= w[1]) {
-            return Some(format!(
-                "field `categories[{i}].levels` (category `{}`) lists levels out of order or twice",
-                c.column
-            ));
-        }
+    if let Some(why) = m
+        .categories
+        .iter()
+        .enumerate()
+        .find_map(category_inconsistency)
+    {
+        return Some(why);
     }
     for (i, centre) in m.centres.iter().enumerate() {
         if let Some((j, v)) = centre
@@ -559,6 +547,56 @@ fn inconsistency(m: &SegmentModel) -> Option<String> {
         if !shaped {
             return Some("field `drift` (the training data's distribution) is damaged".into());
         }
+    }
+    None
+}
+
+/// What is wrong with feature `i` of a model, if anything.
+fn feature_inconsistency((i, f): (usize, &FeatureParams)) -> Option<String> {
+    let col = &f.column;
+    let finite = [f.centre, f.divisor, f.multiplier]
+        .into_iter()
+        .chain(f.fill)
+        .chain(f.clip.map(|c| c.0))
+        .chain(f.clip.map(|c| c.1))
+        .all(f64::is_finite);
+    if !finite {
+        return Some(format!(
+            "field `features[{i}]` (feature `{col}`) holds a value that is not a finite number"
+        ));
+    }
+    if f.divisor <= 0.0 || f.multiplier <= 0.0 {
+        let field = if f.divisor <= 0.0 {
+            "divisor"
+        } else {
+            "multiplier"
+        };
+        return Some(format!(
+            "field `features[{i}].{field}` (feature `{col}`) is {}; divisors and multipliers must be above 0",
+            if f.divisor <= 0.0 { f.divisor } else { f.multiplier }
+        ));
+    }
+    if f.clip.is_some_and(|(a, b)| a > b) {
+        return Some(format!(
+            "field `features[{i}].clip` (feature `{col}`) has its bounds in the wrong order"
+        ));
+    }
+    None
+}
+
+/// What is wrong with category `i` of a model, if anything.
+fn category_inconsistency((i, c): (usize, &CategoryParams)) -> Option<String> {
+    if !(c.value.is_finite() && c.value > 0.0) {
+        return Some(format!(
+            "field `categories[{i}].value` (category `{}`) is {}; it must be above 0",
+            c.column, c.value
+        ));
+    }
+    if c.levels.windows(2).any(|w| w[0] >= w[1]) {
+        return Some(format!(
+            "field `categories[{i}].levels` (category `{}`) lists levels out of order or twice",
+            c.column
+        ));
     }
     None
 }

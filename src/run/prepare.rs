@@ -87,8 +87,47 @@ pub const BLANK_LEVEL: &str = "(blank)";
 
 pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
     let n = table.keys.len();
+    let (kept, dropped_by) = drop_rows(plan, table);
+    let mut params = plan
+        .features
+        .iter()
+        .enumerate()
+        .map(|(f, fp)| fill(plan, table, &kept, f, fp))
+        .collect::<Result<Vec<_>, _>>()?;
+    let (categories, codes) = encode_categories(plan, table, &kept);
+    let width = plan.features.len();
+    let total_width = width + categories.iter().map(|c| c.levels.len()).sum::<usize>();
+    let mut matrix = Array2::zeros((kept.len(), total_width));
+    for (f, fp) in plan.features.iter().enumerate() {
+        // Written into the matrix one column at a time, so preparing
+        // never holds a second copy of every feature.
+        let v = prepare_feature(plan, table, &kept, f, fp, &mut params[f])?;
+        for (r, x) in v.into_iter().enumerate() {
+            matrix[[r, f]] = x;
+        }
+    }
+    let mut offset = width;
+    for (cat, code) in categories.iter().zip(&codes) {
+        for (r, &l) in code.iter().enumerate() {
+            matrix[[r, offset + l]] = cat.value;
+        }
+        offset += cat.levels.len();
+    }
+    Ok(Prepared {
+        matrix,
+        dropped: n - kept.len(),
+        kept,
+        codes,
+        features: params,
+        categories,
+        dropped_by,
+    })
+}
 
-    // 1. Missing values.
+/// Step 1, missing values that drop records: the records kept, and how
+/// many each `missing drop` column dropped.
+fn drop_rows(plan: &Plan, table: &Table) -> (Vec<usize>, Vec<(String, usize)>) {
+    let n = table.keys.len();
     let mut keep = vec![true; n];
     let mut dropped_by = Vec::new();
     for (f, fp) in plan.features.iter().enumerate() {
@@ -103,56 +142,69 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
             dropped_by.push((fp.column.clone(), count));
         }
     }
-    let kept: Vec<usize> = (0..n).filter(|&i| keep[i]).collect();
-    let mut params = Vec::with_capacity(plan.features.len());
-    for (f, fp) in plan.features.iter().enumerate() {
-        let col = &table.numeric[f];
-        let present: Vec<f64> = kept.iter().filter_map(|&i| col.get(i)).collect();
-        let fill = match fp.missing {
-            MissingRule::FillMedian => stats::median(&present),
-            MissingRule::FillMean => stats::mean(&present),
-            MissingRule::FillValue(v) => Some(v),
-            MissingRule::Refuse | MissingRule::DropRow => None,
-        };
-        // Only counted and checked here; the values themselves are
-        // rebuilt by `original` when the matrix is filled.
-        let mut filled = 0;
-        for &i in &kept {
-            match (col.get(i), fill) {
-                (Some(_), _) => {}
-                (None, Some(_)) => filled += 1,
-                (None, None)
-                    if present.is_empty()
-                        && matches!(
-                            fp.missing,
-                            MissingRule::FillMedian | MissingRule::FillMean
-                        ) =>
-                {
-                    return Err(RunError::NothingToFillFrom {
-                        column: fp.column.clone(),
-                    });
-                }
-                (None, None) => {
-                    return Err(RunError::MissingValue {
-                        place: located(plan, table, i, f),
-                    });
-                }
+    ((0..n).filter(|&i| keep[i]).collect(), dropped_by)
+}
+
+/// Step 1, missing values that are filled: feature `f`'s fill value and
+/// how many gaps it fills among the kept records; a gap nothing fills is
+/// an error at its data line.
+fn fill(
+    plan: &Plan,
+    table: &Table,
+    kept: &[usize],
+    f: usize,
+    fp: &crate::plan::FeaturePlan,
+) -> Result<FeatureParams, RunError> {
+    let col = &table.numeric[f];
+    let present: Vec<f64> = kept.iter().filter_map(|&i| col.get(i)).collect();
+    let fill = match fp.missing {
+        MissingRule::FillMedian => stats::median(&present),
+        MissingRule::FillMean => stats::mean(&present),
+        MissingRule::FillValue(v) => Some(v),
+        MissingRule::Refuse | MissingRule::DropRow => None,
+    };
+    // Only counted and checked here; the values themselves are rebuilt by
+    // `original` when the matrix is filled.
+    let mut filled = 0;
+    for &i in kept {
+        match (col.get(i), fill) {
+            (Some(_), _) => {}
+            (None, Some(_)) => filled += 1,
+            (None, None)
+                if present.is_empty()
+                    && matches!(fp.missing, MissingRule::FillMedian | MissingRule::FillMean) =>
+            {
+                return Err(RunError::NothingToFillFrom {
+                    column: fp.column.clone(),
+                });
+            }
+            (None, None) => {
+                return Err(RunError::MissingValue {
+                    place: located(plan, table, i, f),
+                });
             }
         }
-        params.push(FeatureParams {
-            column: fp.column.clone(),
-            fill,
-            filled,
-            clip: None,
-            transform: fp.transform,
-            centre: 0.0,
-            divisor: 1.0,
-            multiplier: fp.weight.sqrt(),
-            constant: false,
-        });
     }
+    Ok(FeatureParams {
+        column: fp.column.clone(),
+        fill,
+        filled,
+        clip: None,
+        transform: fp.transform,
+        centre: 0.0,
+        divisor: 1.0,
+        multiplier: fp.weight.sqrt(),
+        constant: false,
+    })
+}
 
-    // 6. Categories.
+/// Step 6, categories: each category's levels (sorted; a blank is its own
+/// level) and every kept record's level code.
+fn encode_categories(
+    plan: &Plan,
+    table: &Table,
+    kept: &[usize],
+) -> (Vec<CategoryParams>, Vec<Vec<usize>>) {
     let mut categories = Vec::new();
     let mut codes = Vec::new();
     for (c, cp) in plan.categories.iter().enumerate() {
@@ -181,87 +233,88 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
             value: cp.weight.sqrt(),
         });
     }
+    (categories, codes)
+}
 
-    let n_kept = kept.len();
-    let width = plan.features.len();
-    let total_width = width + categories.iter().map(|c| c.levels.len()).sum::<usize>();
-    let mut matrix = Array2::zeros((n_kept, total_width));
-
-    // 2-5. Clip, transform, scale, weight.
-    for (f, fp) in plan.features.iter().enumerate() {
-        let mut v = original(table, &kept, f, params[f].fill);
-        if let Some((lo, hi)) = fp.clip {
-            let s = stats::sorted(&v);
-            let (a, b) = (
-                stats::quantile_sorted(&s, lo),
-                stats::quantile_sorted(&s, hi),
-            );
-            if let (Some(a), Some(b)) = (a, b) {
-                v.iter_mut().for_each(|x| *x = x.clamp(a, b));
-                params[f].clip = Some((a, b));
-            }
-        }
-        for (j, x) in v.iter_mut().enumerate() {
-            *x = transform(fp.transform, *x).map_err(|(name, help)| RunError::TransformDomain {
-                place: located(plan, table, kept[j], f),
-                transform: name,
-                value: *x,
-                help,
-            })?;
-        }
-        let (centre, divisor) = scale_params(plan.scale, &v);
-        let constant = divisor == 0.0;
-        let divisor = if constant { 1.0 } else { divisor };
-        let m = params[f].multiplier;
-        v.iter_mut().for_each(|x| {
-            *x = if constant {
-                0.0
-            } else {
-                (*x - centre) / divisor * m
-            }
-        });
-        // Values near the largest a number can hold (1e308) overflow the
-        // sums of scaling; they would flatten the feature without a word.
-        if !(centre.is_finite() && divisor.is_finite()) || v.iter().any(|x| !x.is_finite()) {
-            let values = original(table, &kept, f, params[f].fill);
-            let (at, biggest) = values
-                .iter()
-                .enumerate()
-                .fold(
-                    (0, 0.0f64),
-                    |(i, a), (j, x)| if x.abs() > a { (j, x.abs()) } else { (i, a) },
-                );
-            return Err(RunError::TooLargeToScale {
-                place: located(plan, table, kept[at], f),
-                biggest,
-            });
-        }
-        params[f].centre = centre;
-        params[f].divisor = divisor;
-        params[f].constant = constant;
-        // Written into the matrix one column at a time, so preparing
-        // never holds a second copy of every feature.
-        for (r, x) in v.into_iter().enumerate() {
-            matrix[[r, f]] = x;
+/// Steps 2-5 for feature `f`: clip, transform, scale and weight its filled
+/// values, recording the parameters in `params`; its column of the matrix.
+fn prepare_feature(
+    plan: &Plan,
+    table: &Table,
+    kept: &[usize],
+    f: usize,
+    fp: &crate::plan::FeaturePlan,
+    params: &mut FeatureParams,
+) -> Result<Vec<f64>, RunError> {
+    let mut v = original(table, kept, f, params.fill);
+    if let Some((lo, hi)) = fp.clip {
+        let s = stats::sorted(&v);
+        let (a, b) = (
+            stats::quantile_sorted(&s, lo),
+            stats::quantile_sorted(&s, hi),
+        );
+        if let (Some(a), Some(b)) = (a, b) {
+            v.iter_mut().for_each(|x| *x = x.clamp(a, b));
+            params.clip = Some((a, b));
         }
     }
-
-    let mut offset = width;
-    for (cat, code) in categories.iter().zip(&codes) {
-        for (r, &l) in code.iter().enumerate() {
-            matrix[[r, offset + l]] = cat.value;
-        }
-        offset += cat.levels.len();
+    for (j, x) in v.iter_mut().enumerate() {
+        *x = transform(fp.transform, *x).map_err(|(name, help)| RunError::TransformDomain {
+            place: located(plan, table, kept[j], f),
+            transform: name,
+            value: *x,
+            help,
+        })?;
     }
-    Ok(Prepared {
-        matrix,
-        dropped: n - n_kept,
-        kept,
-        codes,
-        features: params,
-        categories,
-        dropped_by,
-    })
+    let (centre, divisor) = scale_params(plan.scale, &v);
+    let constant = divisor == 0.0;
+    let divisor = if constant { 1.0 } else { divisor };
+    let m = params.multiplier;
+    v.iter_mut().for_each(|x| {
+        *x = if constant {
+            0.0
+        } else {
+            (*x - centre) / divisor * m
+        }
+    });
+    // Values near the largest a number can hold (1e308) overflow the sums
+    // of scaling; they would flatten the feature without a word.
+    if !(centre.is_finite() && divisor.is_finite()) || v.iter().any(|x| !x.is_finite()) {
+        return Err(too_large_to_scale(plan, table, kept, f, params.fill));
+    }
+    params.centre = centre;
+    params.divisor = divisor;
+    params.constant = constant;
+    Ok(v)
+}
+
+/// The error for a feature whose values overflow scaling, located at its
+/// largest value.
+fn too_large_to_scale(
+    plan: &Plan,
+    table: &Table,
+    kept: &[usize],
+    f: usize,
+    fill: Option<f64>,
+) -> RunError {
+    let values = original(table, kept, f, fill);
+    let (at, biggest) = values
+        .iter()
+        .enumerate()
+        .fold(
+            (0, 0.0f64),
+            |(i, a), (j, x)| {
+                if x.abs() > a {
+                    (j, x.abs())
+                } else {
+                    (i, a)
+                }
+            },
+        );
+    RunError::TooLargeToScale {
+        place: located(plan, table, kept[at], f),
+        biggest,
+    }
 }
 
 /// Feature `f`'s values of the kept records after filling, in original

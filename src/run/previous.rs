@@ -55,6 +55,17 @@ pub struct Digest {
 }
 
 impl PreviousRun {
+    /// Last run, when the plan names one (`previous`).
+    pub fn read_if(
+        plan: &crate::plan::Plan,
+        prepared: &Prepared,
+    ) -> Result<Option<PreviousRun>, RunError> {
+        match &plan.previous {
+            Some(p) => Ok(Some(PreviousRun::read(p, prepared)?)),
+            None => Ok(None),
+        }
+    }
+
     /// Reads the model (and assignments) a plan names and maps the model's
     /// centres into this run's clustered space.
     pub fn read(
@@ -322,38 +333,7 @@ pub fn match_segments<'k>(
             .map(|(a, b)| (a - b) * (a - b))
             .fold(0.0, |acc, v| acc + v)
     };
-    let (basis, pairs_found, shared) = match &prev.assignments {
-        Some((_, old)) => {
-            let by_number: HashMap<usize, usize> =
-                numbers.iter().enumerate().map(|(p, &n)| (n, p)).collect();
-            let old_of: HashMap<&str, usize> = old
-                .iter()
-                .filter_map(|a| {
-                    let n: usize = a.segment.parse().ok()?;
-                    Some((a.key.as_str(), *by_number.get(&n)?))
-                })
-                .collect();
-            let mut shared = vec![0usize; k * pk];
-            for (key, &l) in keys.zip(labels) {
-                if let Some(&p) = old_of.get(key) {
-                    shared[l as usize * pk + p] += 1;
-                }
-            }
-            let cost: Vec<f64> = shared.iter().map(|&c| -(c as f64)).collect();
-            (
-                "shared members",
-                matching::assign(&cost, k, pk),
-                Some(shared),
-            )
-        }
-        None => {
-            let cost: Vec<f64> = (0..k)
-                .flat_map(|s| (0..pk).map(move |p| (s, p)))
-                .map(|(s, p)| d2(s, p))
-                .collect();
-            ("centres", matching::assign(&cost, k, pk), None)
-        }
-    };
+    let (basis, pairs_found, shared) = pair_up(prev, &numbers, labels, keys, k, &d2);
     let match_of: HashMap<usize, usize> = pairs_found.iter().copied().collect();
     let highest = numbers.iter().copied().max().unwrap_or(0);
     let mut next = highest;
@@ -364,30 +344,12 @@ pub fn match_segments<'k>(
                 let (weak, why, shared_here) = match &shared {
                     Some(sh) => {
                         let here = sh[s * pk + p];
-                        let total: usize = (0..k).map(|t| sh[t * pk + p]).sum();
                         cost += here as f64;
-                        let weak = total == 0 || 2 * here < total;
-                        let why = weak.then(|| {
-                            format!(
-                                "only {here} of the {total} members of previous segment {} found in this run are in it",
-                                numbers[p]
-                            )
-                        });
-                        (weak, why, Some(here))
+                        weak_by_members(sh, s, p, k, numbers[p])
                     }
                     None => {
                         cost += d2(s, p);
-                        let nearest = (0..pk)
-                            .min_by(|&a, &b| d2(s, a).total_cmp(&d2(s, b)).then(a.cmp(&b)))
-                            .unwrap_or(p);
-                        let weak = nearest != p && d2(s, nearest) < d2(s, p);
-                        let why = weak.then(|| {
-                            format!(
-                                "its centre is nearer to previous segment {}'s than to segment {}'s",
-                                numbers[nearest], numbers[p]
-                            )
-                        });
-                        (weak, why, None)
+                        weak_by_centres(&d2, s, p, &numbers)
                     }
                 };
                 Pair {
@@ -412,22 +374,134 @@ pub fn match_segments<'k>(
             }
         })
         .collect();
-    let matched: Vec<usize> = pairs_found.iter().map(|&(_, p)| p).collect();
-    let gone = (0..pk)
-        .filter(|p| !matched.contains(p))
-        .map(|p| Gone {
-            number: numbers[p],
-            label: prev.model.segments[p].label.clone(),
-            size: prev.model.segments[p].size,
-        })
-        .collect();
     Matching {
         basis,
         model: prev.shown.clone(),
         pairs,
-        gone,
+        gone: gone(prev, &pairs_found),
         cost,
     }
+}
+
+/// How this run's segments pair with last run's: the basis (`shared
+/// members` or `centres`), the pairs (this run's, last run's), and with
+/// shared members, their counts at `s * pk + p`.
+type Paired = (&'static str, Vec<(usize, usize)>, Option<Vec<usize>>);
+
+/// This run's segments paired with last run's (optimal assignment):
+/// by shared members when last run's assignments are known, else by the
+/// squared distance between centres. The basis, the pairs and the shared
+/// counts.
+fn pair_up<'k>(
+    prev: &PreviousRun,
+    numbers: &[usize],
+    labels: &[u32],
+    keys: impl Iterator<Item = &'k str>,
+    k: usize,
+    d2: &dyn Fn(usize, usize) -> f64,
+) -> Paired {
+    let pk = prev.k();
+    match &prev.assignments {
+        Some((_, old)) => {
+            let shared = shared_members(old, numbers, labels, keys, k);
+            let cost: Vec<f64> = shared.iter().map(|&c| -(c as f64)).collect();
+            (
+                "shared members",
+                matching::assign(&cost, k, pk),
+                Some(shared),
+            )
+        }
+        None => {
+            let cost: Vec<f64> = (0..k)
+                .flat_map(|s| (0..pk).map(move |p| (s, p)))
+                .map(|(s, p)| d2(s, p))
+                .collect();
+            ("centres", matching::assign(&cost, k, pk), None)
+        }
+    }
+}
+
+/// Last run's segments no segment of this run matched.
+fn gone(prev: &PreviousRun, pairs_found: &[(usize, usize)]) -> Vec<Gone> {
+    let matched: Vec<usize> = pairs_found.iter().map(|&(_, p)| p).collect();
+    (0..prev.k())
+        .filter(|p| !matched.contains(p))
+        .map(|p| Gone {
+            number: prev.model.segments[p].segment,
+            label: prev.model.segments[p].label.clone(),
+            size: prev.model.segments[p].size,
+        })
+        .collect()
+}
+
+/// Members this run's segment s shares with last run's segment p, at
+/// `s * pk + p`, joined on the key.
+fn shared_members<'k>(
+    old: &[Assigned],
+    numbers: &[usize],
+    labels: &[u32],
+    keys: impl Iterator<Item = &'k str>,
+    k: usize,
+) -> Vec<usize> {
+    let pk = numbers.len();
+    let by_number: HashMap<usize, usize> =
+        numbers.iter().enumerate().map(|(p, &n)| (n, p)).collect();
+    let old_of: HashMap<&str, usize> = old
+        .iter()
+        .filter_map(|a| {
+            let n: usize = a.segment.parse().ok()?;
+            Some((a.key.as_str(), *by_number.get(&n)?))
+        })
+        .collect();
+    let mut shared = vec![0usize; k * pk];
+    for (key, &l) in keys.zip(labels) {
+        if let Some(&p) = old_of.get(key) {
+            shared[l as usize * pk + p] += 1;
+        }
+    }
+    shared
+}
+
+/// A match by shared members is weak when fewer than half of last run's
+/// segment's members found in this run are in the matched segment.
+fn weak_by_members(
+    shared: &[usize],
+    s: usize,
+    p: usize,
+    k: usize,
+    number: usize,
+) -> (bool, Option<String>, Option<usize>) {
+    let pk = shared.len() / k.max(1);
+    let here = shared[s * pk + p];
+    let total: usize = (0..k).map(|t| shared[t * pk + p]).sum();
+    let weak = total == 0 || 2 * here < total;
+    let why = weak.then(|| {
+        format!(
+            "only {here} of the {total} members of previous segment {number} found in this run are in it"
+        )
+    });
+    (weak, why, Some(here))
+}
+
+/// A match by centres is weak when this run's centre is nearer another of
+/// last run's centres (ties to the lower index).
+fn weak_by_centres(
+    d2: &dyn Fn(usize, usize) -> f64,
+    s: usize,
+    p: usize,
+    numbers: &[usize],
+) -> (bool, Option<String>, Option<usize>) {
+    let nearest = (0..numbers.len())
+        .min_by(|&a, &b| d2(s, a).total_cmp(&d2(s, b)).then(a.cmp(&b)))
+        .unwrap_or(p);
+    let weak = nearest != p && d2(s, nearest) < d2(s, p);
+    let why = weak.then(|| {
+        format!(
+            "its centre is nearer to previous segment {}'s than to segment {}'s",
+            numbers[nearest], numbers[p]
+        )
+    });
+    (weak, why, None)
 }
 
 /// Without `previous`, segment numbers follow size, so a rerun on changed
@@ -454,8 +528,6 @@ pub fn check_labels_stay(
             .iter()
             .find(|o| o.kind == kind && o.resolved.is_file())
     };
-    let mut moves = Vec::new();
-    let source;
     // The `compare with` file, already read by the run; else the
     // assignments this recipe saved last time.
     let saved_old;
@@ -473,80 +545,115 @@ pub fn check_labels_stay(
             None => None,
         },
     };
-    if let Some((shown, old)) = old_assignments {
-        source = format!("`{shown}`");
-        let now: HashMap<&str, usize> = assignments.iter().map(|a| (a.key, a.segment)).collect();
-        for (&n, label) in &plan.labels {
-            let mut counts: HashMap<usize, usize> = HashMap::new();
-            let mut old_label = None;
-            for a in old
-                .iter()
-                .filter(|a| a.segment.parse::<usize>().ok() == Some(n))
-            {
-                old_label.get_or_insert(a.label.as_str());
-                if let Some(&s) = now.get(a.key.as_str()) {
-                    *counts.entry(s).or_default() += 1;
-                }
-            }
-            let shared: usize = counts.values().sum();
-            let Some((&most, &count)) = counts
-                .iter()
-                .max_by_key(|(s, c)| (**c, std::cmp::Reverse(**s)))
-            else {
-                continue;
-            };
-            let same_name = old_label.is_none_or(|l| l.is_empty() || l == label);
-            if most != n && same_name {
-                moves.push(format!(
-                    "label {n} \"{label}\" (line {}): last run's segment {n} is now mostly segment {most} ({} of {})",
-                    plan.label_lines.get(&n).copied().unwrap_or(0),
-                    crate::text::thousands(count),
-                    crate::text::thousands(shared),
-                ));
-            }
-        }
+    let (source, moves) = if let Some((shown, old)) = old_assignments {
+        (shown, moved_by_members(plan, old, assignments))
     } else if let Some(o) = saved(OutputKind::Model) {
-        let Ok(model) = model::read_model(&o.resolved) else {
-            return Ok(());
-        };
-        let same_columns = model.features.len() == prepared.features.len()
-            && model
-                .features
-                .iter()
-                .all(|m| prepared.features.iter().any(|f| f.column == m.column));
-        if !same_columns {
-            return Ok(());
-        }
-        source = format!("`{}`", o.path);
-        let last = PreviousRun {
-            centres: mapped_centres(&model, prepared),
-            model,
-            shown: o.path.clone(),
-            assignments: None,
-            digests: Vec::new(),
-        };
-        let m = match_segments(&last, labels, centres, std::iter::empty());
-        for (&n, label) in &plan.labels {
-            // This run's segment numbered n (by size) is labels' index n - 1.
-            let Some(pair) = m.pairs.get(n.wrapping_sub(1)) else {
-                continue;
-            };
-            let same_name = last.label_of(n).is_none_or(|l| l == *label);
-            if let Some(p) = pair.previous.filter(|&p| p != n) {
-                if same_name {
-                    moves.push(format!(
-                        "label {n} \"{label}\" (line {}): this run's segment {n} matches last run's segment {p} by its centre",
-                        plan.label_lines.get(&n).copied().unwrap_or(0)
-                    ));
-                }
-            }
+        match moved_by_centres(plan, &o.resolved, &o.path, prepared, labels, centres) {
+            Some(moves) => (o.path.as_str(), moves),
+            None => return Ok(()),
         }
     } else {
         return Ok(());
-    }
+    };
     if moves.is_empty() {
         return Ok(());
     }
+    Err(labels_moved(plan, source, &moves))
+}
+
+/// Labels whose members moved, judged by last run's assignments: label n
+/// moved when most of last run's segment n is now in another segment and
+/// last run gave it the same name (or none).
+fn moved_by_members(
+    plan: &crate::plan::Plan,
+    old: &[Assigned],
+    assignments: &super::Assignments,
+) -> Vec<String> {
+    let mut moves = Vec::new();
+    let now: HashMap<&str, usize> = assignments.iter().map(|a| (a.key, a.segment)).collect();
+    for (&n, label) in &plan.labels {
+        let mut counts: HashMap<usize, usize> = HashMap::new();
+        let mut old_label = None;
+        for a in old
+            .iter()
+            .filter(|a| a.segment.parse::<usize>().ok() == Some(n))
+        {
+            old_label.get_or_insert(a.label.as_str());
+            if let Some(&s) = now.get(a.key.as_str()) {
+                *counts.entry(s).or_default() += 1;
+            }
+        }
+        let shared: usize = counts.values().sum();
+        let Some((&most, &count)) = counts
+            .iter()
+            .max_by_key(|(s, c)| (**c, std::cmp::Reverse(**s)))
+        else {
+            continue;
+        };
+        let same_name = old_label.is_none_or(|l| l.is_empty() || l == label);
+        if most != n && same_name {
+            moves.push(format!(
+                "label {n} \"{label}\" (line {}): last run's segment {n} is now mostly segment {most} ({} of {})",
+                plan.label_lines.get(&n).copied().unwrap_or(0),
+                crate::text::thousands(count),
+                crate::text::thousands(shared),
+            ));
+        }
+    }
+    moves
+}
+
+/// Labels whose segment moved, judged by the centres of the model this
+/// recipe saved last time; `None` when that model cannot say (unreadable,
+/// or over other columns).
+fn moved_by_centres(
+    plan: &crate::plan::Plan,
+    resolved: &std::path::Path,
+    shown: &str,
+    prepared: &Prepared,
+    labels: &[u32],
+    centres: ArrayView2<'_, f64>,
+) -> Option<Vec<String>> {
+    let model = model::read_model(resolved).ok()?;
+    let same_columns = model.features.len() == prepared.features.len()
+        && model
+            .features
+            .iter()
+            .all(|m| prepared.features.iter().any(|f| f.column == m.column));
+    if !same_columns {
+        return None;
+    }
+    let last = PreviousRun {
+        centres: mapped_centres(&model, prepared),
+        model,
+        shown: shown.to_string(),
+        assignments: None,
+        digests: Vec::new(),
+    };
+    let m = match_segments(&last, labels, centres, std::iter::empty());
+    let mut moves = Vec::new();
+    for (&n, label) in &plan.labels {
+        // This run's segment numbered n (by size) is labels' index n - 1.
+        let Some(pair) = m.pairs.get(n.wrapping_sub(1)) else {
+            continue;
+        };
+        let same_name = last.label_of(n).is_none_or(|l| l == *label);
+        if let Some(p) = pair.previous.filter(|&p| p != n) {
+            if same_name {
+                moves.push(format!(
+                    "label {n} \"{label}\" (line {}): this run's segment {n} matches last run's segment {p} by its centre",
+                    plan.label_lines.get(&n).copied().unwrap_or(0)
+                ));
+            }
+        }
+    }
+    Some(moves)
+}
+
+/// The stop for labels that would land on other members, with the
+/// `previous` line that keeps them.
+fn labels_moved(plan: &crate::plan::Plan, source: &str, moves: &[String]) -> RunError {
+    use crate::plan::OutputKind;
     let model_path = plan
         .outputs
         .iter()
@@ -560,10 +667,10 @@ pub fn check_labels_stay(
         Some(a) => format!("previous \"{model_path}\" assignments \"{}\"", a.path),
         None => format!("previous \"{model_path}\""),
     };
-    Err(RunError::LabelsMoved {
-        moves: format!("compared with {source}:\n{}", moves.join("\n")),
+    RunError::LabelsMoved {
+        moves: format!("compared with `{source}`:\n{}", moves.join("\n")),
         help: format!(
             "segment numbers follow size, so a name can land on other members. To keep each name on last run's members, add this line (last run's outputs are read before this run replaces them):\n    {statement}\nor give the labels anew if the segments were reviewed. Nothing was written."
         ),
-    })
+    }
 }

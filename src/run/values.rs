@@ -42,7 +42,7 @@ pub fn profiles(
     features: usize,
     names: &[String],
     kept: &[usize],
-    labels: &[usize],
+    labels: &[u32],
     k: usize,
 ) -> Vec<ValueProfile> {
     names
@@ -55,7 +55,7 @@ pub fn profiles(
             for (&row, &l) in kept.iter().zip(labels) {
                 if let Some(v) = col.get(row) {
                     all.push(v);
-                    groups[l].push(v);
+                    groups[l as usize].push(v);
                 }
             }
             let grand: f64 = all.iter().sum();

@@ -180,7 +180,10 @@ pub enum StatementKind {
     Evidence {
         options: Vec<OptionPair>,
     },
-    Choose(ChooseRule),
+    Choose {
+        rule: ChooseRule,
+        options: Vec<OptionPair>,
+    },
     Label {
         segment: Spanned<Number>,
         text: Spanned<String>,

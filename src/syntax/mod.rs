@@ -201,15 +201,22 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
         Rule::choose_stmt => {
             // rest[0] is the fixed word `k`.
             let rule = &rest[1];
+            let options = options_of(&rest[2..], off);
             if rule.as_rule() == Rule::by_criterion {
                 let word = rule.clone().into_inner().nth(1);
                 let crit = match word {
                     Some(w) => Spanned::new(w.as_str().to_string(), span_of(&w, off)),
                     None => Spanned::new(String::new(), span_of(rule, off)),
                 };
-                StatementKind::Choose(ChooseRule::By(crit))
+                StatementKind::Choose {
+                    rule: ChooseRule::By(crit),
+                    options,
+                }
             } else {
-                StatementKind::Choose(ChooseRule::Fixed(number_of(rule, off)))
+                StatementKind::Choose {
+                    rule: ChooseRule::Fixed(number_of(rule, off)),
+                    options,
+                }
             }
         }
         Rule::label_stmt => StatementKind::Label {

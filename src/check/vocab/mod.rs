@@ -284,6 +284,12 @@ pub const EVIDENCE_OPTIONS: &[OptionDoc] = &[
     },
 ];
 
+pub const CHOOSE_OPTIONS: &[OptionDoc] = &[OptionDoc {
+    name: "floor",
+    takes: "a whole number of records, or a share below 1",
+    summary: "the smallest segment a chosen k may have: `floor 250` records, or `floor 0.05` of the records; a k whose segmentation has a smaller segment is marked in the sweep and never chosen",
+}];
+
 pub const VALIDATE_OPTIONS: &[OptionDoc] = &[OptionDoc {
     name: "column",
     takes: "a column name",
@@ -323,6 +329,7 @@ pub fn options_for(word: &str) -> &'static [OptionDoc] {
         "kmeans" => KMEANS_OPTIONS,
         "tree" => TREE_OPTIONS,
         "evidence" => EVIDENCE_OPTIONS,
+        "choose" => CHOOSE_OPTIONS,
         "validate" => VALIDATE_OPTIONS,
         "previous" => PREVIOUS_OPTIONS,
         _ => &[],

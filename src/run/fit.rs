@@ -1,0 +1,279 @@
+//! The fit stage: the recipe's method over the prepared matrix, one
+//! candidate segmentation per k (k-means with restarts at every k, or one
+//! tree cut at every k). A new method plugs in here: it returns
+//! [`Candidate`]s, and every later stage takes them as they are.
+
+use super::{
+    error::RunError, load, previous, Restarts, Step, TreeResult, COPHENETIC_SAMPLE,
+    COPHENETIC_STREAM,
+};
+use crate::engine::{criteria, kmeans, tree, EngineError};
+use crate::plan::{KMeansPlan, MethodPlan, Plan, TreePlan};
+use ndarray::{Array2, ArrayView2};
+
+/// What the fit stage found: a candidate per k, and the tree for `tree`
+/// recipes.
+pub(super) struct Fitted {
+    pub candidates: Vec<Candidate>,
+    pub tree: Option<TreeResult>,
+}
+
+/// Fits the plan's method at every k it asks for.
+pub(super) fn fit(
+    plan: &Plan,
+    x: ArrayView2<'_, f64>,
+    table: &load::Table,
+    kept: &[usize],
+    last: Option<&previous::PreviousRun>,
+    progress: &dyn Fn(Step),
+) -> Result<Fitted, RunError> {
+    match &plan.method {
+        MethodPlan::KMeans(km) => Ok(Fitted {
+            candidates: fit_kmeans(plan, km, x, last, progress)?,
+            tree: None,
+        }),
+        MethodPlan::Tree(t) => {
+            progress(Step {
+                what: "building the tree",
+                done: 0,
+                total: 1,
+            });
+            let (candidates, tree) = fit_tree(plan, t, x, table, kept)?;
+            Ok(Fitted {
+                candidates,
+                tree: Some(tree),
+            })
+        }
+    }
+}
+
+/// An engine error as the run reports it: a stop on request is no fault
+/// of the data.
+fn engine_error(k: usize, source: EngineError) -> RunError {
+    match source {
+        EngineError::Stopped => RunError::Stopped {
+            during: "while fitting k-means",
+        },
+        source => RunError::Engine { k, source },
+    }
+}
+
+/// One candidate segmentation: a k, each record's segment (0-based,
+/// canonical) and the segment centres in the clustered space.
+pub(super) struct Candidate {
+    pub k: usize,
+    pub labels: Vec<u32>,
+    pub centres: Array2<f64>,
+    pub restarts: Option<Restarts>,
+}
+
+impl Candidate {
+    /// The same segmentation with segment `order[i]` numbered `i`.
+    pub(super) fn renumbered(&self, order: &[usize]) -> Candidate {
+        let mut new_of = vec![0u32; order.len()];
+        for (i, &s) in order.iter().enumerate() {
+            new_of[s] = i as u32;
+        }
+        Candidate {
+            k: self.k,
+            labels: self.labels.iter().map(|&l| new_of[l as usize]).collect(),
+            centres: self.centres.select(ndarray::Axis(0), order),
+            restarts: self.restarts.clone(),
+        }
+    }
+}
+
+fn fit_kmeans(
+    plan: &Plan,
+    km: &KMeansPlan,
+    x: ArrayView2<'_, f64>,
+    last: Option<&previous::PreviousRun>,
+    progress: &dyn Fn(Step),
+) -> Result<Vec<Candidate>, RunError> {
+    km.ks
+        .iter()
+        .enumerate()
+        .map(|(i, &k)| {
+            progress(Step {
+                what: "fitting k-means",
+                done: i,
+                total: km.ks.len(),
+            });
+            let settings = kmeans::KMeansSettings {
+                k,
+                restarts: km.restarts,
+                max_rounds: km.rounds,
+                tolerance: km.tolerance,
+                seeding: km.seeding,
+                seed: plan.seed,
+                sample: km.sample,
+                // Last run's centres start one more restart at its k.
+                start: last.filter(|l| l.k() == k).map(|l| l.start()),
+            };
+            let fit = kmeans::kmeans(x, &settings).map_err(|source| engine_error(k, source))?;
+            Ok(Candidate {
+                k,
+                restarts: Some(Restarts {
+                    at_best: fit.restarts_at_best,
+                    of: fit.restarts,
+                    converged: fit.converged,
+                    sampled: fit.sampled,
+                }),
+                labels: fit.labels,
+                centres: fit.centroids,
+            })
+        })
+        .collect()
+}
+
+/// A tree as built for a recipe: over the records, or over k-means
+/// micro-segments (then `leaf_of` maps each record to its leaf).
+pub(super) struct BuiltTree {
+    tree: tree::Dendrogram,
+    leaf_of: Option<Vec<u32>>,
+    /// The points the tree was built on (records, or micro-segment centres).
+    leaves: Array2<f64>,
+}
+
+impl BuiltTree {
+    /// Each record's segment when the tree is cut at `height` (into `k`
+    /// segments), canonical.
+    fn cut_at_height(&self, height: f64, k: usize) -> Vec<u32> {
+        self.per_record(self.tree.cut_at_height(height), k)
+    }
+
+    /// Each record's segment when the tree is cut into `k`, canonical.
+    pub(super) fn cut(&self, k: usize) -> Vec<u32> {
+        self.per_record(self.tree.cut(k), k)
+    }
+
+    /// A cut of the leaves as each record's segment: over micro-segments,
+    /// each record takes its micro-segment's, renumbered canonically.
+    fn per_record(&self, cut: Vec<u32>, k: usize) -> Vec<u32> {
+        match &self.leaf_of {
+            Some(micro) => {
+                kmeans::canonical(
+                    &micro.iter().map(|&m| cut[m as usize]).collect::<Vec<_>>(),
+                    k,
+                )
+                .0
+            }
+            None => cut,
+        }
+    }
+}
+
+/// Builds the tree a plan asks for; on failure, the k (or micro count) that
+/// failed and why.
+pub(super) fn build_tree(
+    t: &TreePlan,
+    x: ArrayView2<'_, f64>,
+    seed: u64,
+) -> Result<BuiltTree, RunError> {
+    match &t.micro {
+        Some(m) => {
+            let settings = kmeans::KMeansSettings {
+                k: m.segments,
+                restarts: m.restarts,
+                max_rounds: m.rounds,
+                tolerance: m.tolerance,
+                seeding: kmeans::Seeding::KMeansPlusPlus,
+                seed,
+                sample: None,
+                start: None,
+            };
+            let engine = |source| engine_error(m.segments, source);
+            let fit = kmeans::kmeans(x, &settings).map_err(engine)?;
+            let mut sizes = vec![0usize; m.segments];
+            fit.labels.iter().for_each(|&l| sizes[l as usize] += 1);
+            let tree =
+                tree::linkage_weighted(fit.centroids.view(), Some(&sizes), t.linkage, t.distance)
+                    .map_err(engine)?;
+            Ok(BuiltTree {
+                tree,
+                leaf_of: Some(fit.labels),
+                leaves: fit.centroids,
+            })
+        }
+        None => Ok(BuiltTree {
+            tree: tree::linkage(x, t.linkage, t.distance)
+                .map_err(|source| RunError::Engine { k: 1, source })?,
+            leaf_of: None,
+            leaves: x.to_owned(),
+        }),
+    }
+}
+
+/// Builds one tree and cuts it at every k.
+fn fit_tree(
+    plan: &Plan,
+    t: &TreePlan,
+    x: ArrayView2<'_, f64>,
+    table: &load::Table,
+    kept: &[usize],
+) -> Result<(Vec<Candidate>, TreeResult), RunError> {
+    let built = build_tree(t, x, plan.seed)?;
+    let ks = match t.height {
+        Some(h) => {
+            // The number of segments a cut at this height leaves.
+            let k = built
+                .tree
+                .cut_at_height(h)
+                .iter()
+                .copied()
+                .max()
+                .map_or(1, |m| m as usize + 1);
+            if k < 2 {
+                let top = built.tree.merges.last().map_or(0.0, |m| m.height);
+                return Err(RunError::HeightTooHigh { height: h, top });
+            }
+            vec![k]
+        }
+        None => t.ks.clone(),
+    };
+    let candidates = ks
+        .iter()
+        .map(|&k| {
+            let labels = match t.height {
+                Some(h) => built.cut_at_height(h, k),
+                None => built.cut(k),
+            };
+            let centres = criteria::centres(x, &labels, k);
+            let centres = Array2::from_shape_fn((k, x.ncols()), |(s, f)| centres[s][f]);
+            Candidate {
+                k,
+                labels,
+                centres,
+                restarts: None,
+            }
+        })
+        .collect();
+    let leaf_names = match &built.leaf_of {
+        Some(_) => (1..=built.leaves.nrows())
+            .map(|i| format!("micro-{i}"))
+            .collect(),
+        None => kept
+            .iter()
+            .map(|&r| table.keys.get(r).to_string())
+            .collect(),
+    };
+    let (cophenetic, cophenetic_leaves) = built.tree.cophenetic_estimate(
+        built.leaves.view(),
+        t.distance,
+        COPHENETIC_SAMPLE,
+        plan.seed,
+        COPHENETIC_STREAM,
+    );
+    let result = TreeResult {
+        linkage: t.linkage,
+        distance: t.distance,
+        leaves: built.leaves.nrows(),
+        two_stage: built.leaf_of.is_some(),
+        cophenetic,
+        cophenetic_leaves,
+        inversions: built.tree.inversions(),
+        dendrogram: built.tree,
+        leaf_names,
+    };
+    Ok((candidates, result))
+}

@@ -1,0 +1,203 @@
+//! The profile stage: every segment's size and share, each feature's mean,
+//! median and quartiles in original units with its standardised difference
+//! in the clustered space, category shares, centre, silhouette and
+//! stability; and the notes the evidence calls for (a sampled fit, no
+//! structure, unstable segments).
+
+use super::fit::Candidate;
+use super::judge::{Judged, NO_STRUCTURE};
+use super::number::Numbered;
+use super::prepare::{self, Prepared};
+use super::{load, FeatureSummary, Profile};
+use crate::engine::{self, evidence, kmeans};
+
+/// Every segment's profile, in number order, and the profile of all
+/// records.
+pub(super) fn profiles(
+    prepared: &Prepared,
+    table: &load::Table,
+    numbered: &Numbered,
+    judged: &Judged,
+) -> (Vec<Profile>, Profile) {
+    let (fit, at) = (&numbered.fit, judged.at);
+    let means = FeatureMeans::new(prepared, table, &fit.labels, fit.k);
+    let overall = profile(prepared, means.overall(), None, None, None);
+    let mut members: Vec<Vec<usize>> = vec![Vec::new(); fit.k];
+    for (i, &l) in fit.labels.iter().enumerate() {
+        members[l as usize].push(i);
+    }
+    let profiles = (0..fit.k)
+        .map(|s| {
+            let centre: Vec<f64> = prepared
+                .features
+                .iter()
+                .enumerate()
+                .map(|(f, p)| p.to_original(fit.centres[[s, f]]))
+                .collect();
+            let from = numbered.order[s];
+            let mut p = profile(
+                prepared,
+                means.segment(s),
+                Some(&members[s]),
+                Some(centre),
+                judged.per_segment_silhouette[at].get(from).copied(),
+            );
+            p.segment = Some(numbered.numbers[s]);
+            p.label = numbered.label_at(s);
+            p.stability = judged
+                .stability
+                .as_ref()
+                .and_then(|st| st[at].jaccard.get(from).copied());
+            p
+        })
+        .collect();
+    (profiles, overall)
+}
+
+/// What the evidence says beyond the choice: restarts on a sample, no
+/// cluster structure, unstable segments.
+pub(super) fn notes(
+    candidates: &[Candidate],
+    judged: &Judged,
+    profiles: &[Profile],
+    n: usize,
+) -> Vec<String> {
+    let mut notes = Vec::new();
+    if let Some(s) = candidates
+        .iter()
+        .find_map(|c| c.restarts.as_ref().and_then(|r| r.sampled))
+    {
+        notes.push(format!(
+            "k-means restarts ran on a seeded sample of {} of {} records; for each k the best {} were refined on every record (`sample` in the recipe)",
+            crate::text::thousands(s),
+            crate::text::thousands(n),
+            kmeans::REFINED.min(candidates[0].restarts.as_ref().map_or(1, |r| r.of)),
+        ));
+    }
+    if judged.no_structure {
+        notes.push(NO_STRUCTURE.to_string());
+    }
+    for p in profiles {
+        if let (Some(j), Some(seg)) = (p.stability, p.segment) {
+            if j < evidence::UNSTABLE_BELOW {
+                let name = p
+                    .label
+                    .as_ref()
+                    .map(|l| format!(" ({l})"))
+                    .unwrap_or_default();
+                notes.push(format!(
+                    "segment {seg}{name} is unstable: resampled, it is recovered with a mean Jaccard of {j:.2}, below {}; do not present it as a group the data holds",
+                    evidence::UNSTABLE_BELOW
+                ));
+            }
+        }
+    }
+    notes
+}
+
+/// Each feature's mean, median and quartiles over all kept records and
+/// within each segment, in original units, and its standardised difference
+/// in the clustered space: one pass per feature, its original values
+/// rebuilt from the table one feature at a time (so no second copy of
+/// every feature is held), its clustered values read from the matrix.
+/// Sums run in record order, as [`engine::stats::mean`] sums.
+struct FeatureMeans {
+    overall: Vec<FeatureSummary>,
+    /// `[segment][feature]`.
+    by_segment: Vec<Vec<FeatureSummary>>,
+}
+
+impl FeatureMeans {
+    fn new(p: &Prepared, table: &load::Table, labels: &[u32], k: usize) -> FeatureMeans {
+        let mut out = FeatureMeans {
+            overall: Vec::new(),
+            by_segment: vec![Vec::new(); k],
+        };
+        for (f, fp) in p.features.iter().enumerate() {
+            let values = prepare::original(table, &p.kept, f, fp.fill);
+            let clustered = p.matrix.column(f).to_vec();
+            let centre = engine::stats::mean(&clustered).unwrap_or(0.0);
+            let sd = engine::stats::sd_population(&clustered).unwrap_or(0.0);
+            out.overall.push(summary(&values, 0.0));
+            let mut groups: Vec<(Vec<f64>, Vec<f64>)> = vec![(Vec::new(), Vec::new()); k];
+            for ((v, c), &l) in values.iter().zip(&clustered).zip(labels) {
+                groups[l as usize].0.push(*v);
+                groups[l as usize].1.push(*c);
+            }
+            for (s, (vals, clus)) in groups.iter().enumerate() {
+                let mean = engine::stats::mean(clus).unwrap_or(centre);
+                let diff = if sd > 0.0 { (mean - centre) / sd } else { 0.0 };
+                out.by_segment[s].push(summary(vals, diff));
+            }
+        }
+        out
+    }
+
+    /// All records: no differences.
+    fn overall(&self) -> Vec<FeatureSummary> {
+        self.overall.clone()
+    }
+
+    /// Segment `s`.
+    fn segment(&self, s: usize) -> Vec<FeatureSummary> {
+        self.by_segment[s].clone()
+    }
+}
+
+/// Mean, median and quartiles of some values, with a standardised
+/// difference measured elsewhere.
+fn summary(values: &[f64], std_diff: f64) -> FeatureSummary {
+    let sorted = engine::stats::sorted(values);
+    let q = |at| engine::stats::quantile_sorted(&sorted, at).unwrap_or(0.0);
+    FeatureSummary {
+        mean: engine::stats::mean(values).unwrap_or(0.0),
+        median: q(0.5),
+        q1: q(0.25),
+        q3: q(0.75),
+        std_diff,
+    }
+}
+
+/// The profile of some kept records (`None`: all of them).
+fn profile(
+    p: &Prepared,
+    features: Vec<FeatureSummary>,
+    members: Option<&[usize]>,
+    centre: Option<Vec<f64>>,
+    silhouette: Option<f64>,
+) -> Profile {
+    let n = p.kept.len();
+    let all: Vec<usize>;
+    let members = match members {
+        Some(m) => m,
+        None => {
+            all = (0..n).collect();
+            &all
+        }
+    };
+    let size = members.len();
+    let categories = p
+        .categories
+        .iter()
+        .zip(&p.codes)
+        .map(|(cat, codes)| {
+            let mut counts = vec![0usize; cat.levels.len()];
+            members.iter().for_each(|&i| counts[codes[i]] += 1);
+            counts
+                .iter()
+                .map(|&c| c as f64 / size.max(1) as f64)
+                .collect()
+        })
+        .collect();
+    Profile {
+        segment: None,
+        label: None,
+        size,
+        share: size as f64 / n.max(1) as f64,
+        features,
+        categories,
+        centre,
+        silhouette,
+        stability: None,
+    }
+}
