@@ -333,6 +333,13 @@ fn assign(model_path: &Path, data: &Path, out: Option<&Path>) -> ExitCode {
         }
     }
     eprint!("{}", score_summary(&summary));
+    if model.keyless {
+        eprintln!(
+            "  the model was trained on a file without a key: records are keyed by their line in `{}` (column `{}`), which does not identify anyone in another file",
+            shown(data),
+            model.key
+        );
+    }
     if defused > 0 {
         eprintln!("{}", defused_note(defused));
     }

@@ -99,7 +99,12 @@ pub struct InputPlan {
     /// Resolved against the recipe's folder.
     #[serde(skip)]
     pub resolved: PathBuf,
+    /// The key column; with `no key`, the name of the line-number column
+    /// the outputs carry instead.
     pub key: String,
+    /// `no key`: records are keyed by their line in the file.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub keyless: bool,
     pub separator: char,
     /// The decimal mark of the data's numbers.
     pub decimal: crate::check::probe::DecimalMark,
@@ -322,6 +327,11 @@ pub enum ChooseK {
     Fixed(usize),
     By(Criterion),
 }
+
+/// The column name outputs give the line number when the data has no key
+/// (`input ... no key`); `file_line` when the file has a `line` column.
+pub const LINE_KEY: &str = "line";
+pub const LINE_KEY_TAKEN: &str = "file_line";
 
 /// The smallest segment a chosen k may have: a number of records, or a
 /// share of the segmented records (`choose ... floor 250`, `floor 0.05`).

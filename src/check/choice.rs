@@ -284,6 +284,9 @@ impl Checker {
                 let saved_file = std::mem::replace(&mut self.input_file, path.node.clone());
                 let found = self.known_column(&column).is_some();
                 let key_found = match input {
+                    // Without a key the grouping is joined by line, so the
+                    // file must list the same records in the same order.
+                    Some(i) if i.plan.keyless => true,
                     Some(i) => self
                         .known_column(&Spanned::new(i.plan.key.clone(), i.key_span))
                         .is_some(),

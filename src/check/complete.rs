@@ -330,9 +330,13 @@ fn options(
 }
 
 fn not_given(known: &[vocab::OptionDoc], given: &[&str]) -> Vec<Item> {
+    // `key` and `no key` exclude each other: either given, neither is
+    // offered.
+    let keyed = given.contains(&"key") || given.contains(&"no");
     known
         .iter()
         .filter(|o| !given.contains(&o.name))
+        .filter(|o| !(keyed && matches!(o.name, "key" | "no")))
         .map(|o| {
             item(
                 o.name,

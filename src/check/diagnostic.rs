@@ -299,6 +299,20 @@ pub enum CheckError {
         help: String,
     },
 
+    #[error("`{what}` needs a key column, and this file has none (`no key`)")]
+    #[diagnostic(
+        code(assort::needs_key),
+        help("line numbers do not identify a record from one file to the next, so {why}; name a key column with `key COLUMN`, or drop this statement")
+    )]
+    NeedsKey {
+        what: &'static str,
+        why: &'static str,
+        #[label("needs a key")]
+        span: Span,
+        #[label("no key here")]
+        no_key: Span,
+    },
+
     #[error("impossible k: {reason}")]
     #[diagnostic(code(assort::impossible_k), help("{help}"))]
     ImpossibleK {

@@ -23,14 +23,25 @@ impl Checker {
         let opts = self.options("input", options, vocab::INPUT_OPTIONS);
         let separator = self.separator(&opts);
         let decimal = self.decimal(&opts, separator);
-        let key = match opts.get("key") {
-            Some(o) => self.column_name("key", o),
-            None => {
+        let no_key = self.no_key(&opts);
+        let key = match (opts.get("key"), no_key) {
+            (Some(o), None) => self.column_name("key", o),
+            (Some(o), Some(Some(span))) => {
+                self.err(CheckError::Conflict {
+                    what: "the key (`key` and `no key`)".into(),
+                    span,
+                    first: o.name.span,
+                });
+                None
+            }
+            (_, Some(None)) => None,
+            (None, Some(Some(_))) => None,
+            (None, None) => {
                 self.err(CheckError::MissingOption {
                     statement: "input",
                     option: "key",
                     span: s.span,
-                    help: "the key column identifies each record in the outputs, such as `key member_id`".into(),
+                    help: "the key column identifies each record in the outputs, such as `key member_id`; a file without one takes `no key` (records keyed by their line)".into(),
                 });
                 None
             }
@@ -40,6 +51,9 @@ impl Checker {
         let (separator, decimal) = (separator?, decimal?);
         self.decimal = decimal;
         self.probe_input(path, &resolved, separator, decimal)?;
+        if let Some(Some(span)) = no_key {
+            return Some(self.keyless_input(path, resolved, separator, decimal, span));
+        }
         let key = key?;
         self.known_column(&key)?;
         match probe::key_problem(&resolved, separator as u8, &key.node) {
@@ -70,11 +84,58 @@ impl Checker {
                 path: path.node.clone(),
                 resolved,
                 key: key.node.clone(),
+                keyless: false,
                 separator,
                 decimal,
             },
             key_span: key.span,
         })
+    }
+
+    /// `no key`: `None` when absent, `Some(None)` when its value is not
+    /// `key`, else the option's span.
+    fn no_key(&mut self, opts: &HashMap<&'static str, &OptionPair>) -> Option<Option<Span>> {
+        let o = opts.get("no")?;
+        match &o.value.node {
+            Value::Word(w) if w == "key" => Some(Some(o.name.span.to(o.value.span))),
+            other => {
+                self.bad_value(
+                    "no",
+                    other,
+                    "`key`",
+                    o.value.span,
+                    "`no key` says the file has no key column; records are then keyed by their line",
+                );
+                Some(None)
+            }
+        }
+    }
+
+    /// The input of a file without a key: records keyed by their line,
+    /// under a column name the header does not use.
+    fn keyless_input(
+        &mut self,
+        path: &Spanned<String>,
+        resolved: PathBuf,
+        separator: char,
+        decimal: DecimalMark,
+        span: Span,
+    ) -> CheckedInput {
+        let taken = self
+            .probe
+            .as_ref()
+            .is_some_and(|p| p.columns.iter().any(|c| c.name == LINE_KEY));
+        CheckedInput {
+            plan: InputPlan {
+                path: path.node.clone(),
+                resolved,
+                key: if taken { LINE_KEY_TAKEN } else { LINE_KEY }.to_string(),
+                keyless: true,
+                separator,
+                decimal,
+            },
+            key_span: span,
+        }
     }
 
     /// The `separator` option: one ASCII character, `,` unless given.
@@ -315,6 +376,38 @@ impl Checker {
                         .into(),
                 });
                 None
+            }
+        }
+    }
+
+    /// With `no key`, the statements that match records across files are
+    /// refused: `previous`, `compare` and `save handoff`.
+    pub(super) fn keyless_refusals(&mut self, stmts: &[Statement], input: &CheckedInput) {
+        if !input.plan.keyless {
+            return;
+        }
+        for s in stmts {
+            let refused = match &s.kind {
+                StatementKind::Previous { .. } => {
+                    Some(("previous", "last run's members cannot be found in this run"))
+                }
+                StatementKind::Compare { .. } => Some((
+                    "compare",
+                    "the two segmentations cannot be joined record by record",
+                )),
+                StatementKind::Save { what, .. } if what.node == "handoff" => Some((
+                    "save handoff",
+                    "a CRM could not match the file's rows to its customers",
+                )),
+                _ => None,
+            };
+            if let Some((what, why)) = refused {
+                self.err(CheckError::NeedsKey {
+                    what,
+                    why,
+                    span: s.span,
+                    no_key: input.key_span,
+                });
             }
         }
     }

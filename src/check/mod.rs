@@ -430,6 +430,9 @@ impl Checker {
         let find = |w: &str| first.get(w).copied();
 
         let input = self.input(find("input"));
+        if let Some(i) = &input {
+            self.keyless_refusals(stmts, i);
+        }
         let categories = self.categories(stmts, input.as_ref());
         let features = self.features(find("features"), input.as_ref(), &categories);
         self.cautions(stmts, features.as_deref(), categories.as_deref());

@@ -97,6 +97,13 @@ pub fn render(o: &Outcome, sources: &Sources<'_>) -> Vec<u8> {
         esc(&plan.input.path),
         esc(&method)
     );
+    if plan.input.keyless {
+        let _ = write!(
+            h,
+            "<p class=\"small\">The data has no key column: {}.</p>\n",
+            esc(&super::tables::keyless_words(plan))
+        );
+    }
     how(&mut h, o);
     why(&mut h, o);
     if let Some(c) = super::changes::Changes::of(o) {

@@ -113,6 +113,13 @@ fn summary(s: &mut String, o: &Outcome) {
         let _ = write!(line, " (missing in {})", by.join(", "));
     }
     let _ = writeln!(s, "{line}");
+    if plan.input.keyless {
+        wrapped(
+            s,
+            "  key       ",
+            &format!("none in the file: {}", keyless_words(plan)),
+        );
+    }
     for f in p.features.iter().filter(|f| f.filled > 0) {
         let fill = short(f.fill.unwrap_or(f64::NAN));
         let _ = writeln!(
@@ -566,4 +573,13 @@ pub(super) fn clip(text: &str, w: usize) -> String {
         t.push('~');
         t
     }
+}
+
+/// What `no key` means for the outputs, in words: said wherever a key is
+/// shown.
+pub fn keyless_words(plan: &crate::plan::Plan) -> String {
+    format!(
+        "records are keyed by their line in the file (column `{}`; line 1 is the header), which does not identify anyone in another file",
+        plan.input.key
+    )
 }

@@ -234,7 +234,7 @@ fn validate(
         &v.path,
         plan.input.separator,
         &super::load::Columns {
-            key: &plan.input.key,
+            key: (!plan.input.keyless).then_some(plan.input.key.as_str()),
             numeric: &[],
             text: &cols,
             decimal: plan.input.decimal,

@@ -117,7 +117,9 @@ impl NumericColumn {
 
 /// What to read from a file.
 pub struct Columns<'a> {
-    pub key: &'a str,
+    /// The key column; `None` keys each record by its line in the file
+    /// (`input ... no key`).
+    pub key: Option<&'a str>,
     pub numeric: &'a [String],
     pub text: &'a [String],
     /// How the numeric columns write their decimals.
@@ -273,12 +275,16 @@ fn read_table<R: std::io::Read>(
     Ok(table)
 }
 
+/// Where the key (none with `no key`), the numeric and the text columns
+/// are in the header.
+type Located = (Option<usize>, Vec<usize>, Vec<usize>);
+
 /// Where the key, the numeric and the text columns are in the header.
 fn locate(
     header: &csv::StringRecord,
     shown: &str,
     cols: &Columns<'_>,
-) -> Result<(usize, Vec<usize>, Vec<usize>), RunError> {
+) -> Result<Located, RunError> {
     let index_of = |name: &str| {
         header
             .iter()
@@ -288,7 +294,7 @@ fn locate(
                 column: name.to_string(),
             })
     };
-    let key_at = index_of(cols.key)?;
+    let key_at = cols.key.map(index_of).transpose()?;
     let num_at = cols
         .numeric
         .iter()
@@ -306,9 +312,13 @@ fn locate(
 fn no_repeated_key(
     table: &Table,
     header: &csv::StringRecord,
-    key_at: usize,
+    key_at: Option<usize>,
     shown: &str,
 ) -> Result<(), RunError> {
+    // Line numbers never repeat.
+    let Some(key_at) = key_at else {
+        return Ok(());
+    };
     match table.keys.first_repeat() {
         Some((later, first)) => Err(RunError::DuplicateKey {
             place: Place {
@@ -339,7 +349,7 @@ struct Decoded {
 struct Decoder<'a> {
     shown: &'a str,
     header: &'a csv::StringRecord,
-    key_at: usize,
+    key_at: Option<usize>,
     num_at: &'a [usize],
     text_at: &'a [usize],
     decimal: DecimalMark,
@@ -374,12 +384,16 @@ impl Decoder<'_> {
                 ),
             })
         };
-        let key = field(self.key_at)?.trim();
-        if key.is_empty() {
-            return Err(RunError::BlankKey {
-                place: place(self.key_at),
-            });
-        }
+        let key = match self.key_at {
+            Some(at) => {
+                let key = field(at)?.trim();
+                if key.is_empty() {
+                    return Err(RunError::BlankKey { place: place(at) });
+                }
+                key.to_string()
+            }
+            None => line.to_string(),
+        };
         for (f, &at) in self.num_at.iter().enumerate() {
             let text = field(at)?;
             if is_blank(text) {
@@ -399,11 +413,7 @@ impl Decoder<'_> {
             .iter()
             .map(|&at| Ok(field(at)?.trim().to_string()))
             .collect::<Result<Vec<_>, RunError>>()?;
-        Ok(Decoded {
-            key: key.to_string(),
-            texts,
-            line,
-        })
+        Ok(Decoded { key, texts, line })
     }
 }
 

@@ -315,7 +315,7 @@ impl DataCache {
                 &plan.input.path,
                 plan.input.separator,
                 &load::Columns {
-                    key: &key.key,
+                    key: (!plan.input.keyless).then_some(key.key.as_str()),
                     numeric: &key.numeric,
                     text: &key.text,
                     decimal: plan.input.decimal,

@@ -27,6 +27,10 @@ pub struct SegmentModel {
     pub assort_version: String,
     pub provenance: Provenance,
     pub key: String,
+    /// Trained on a file without a key (`no key`): `key` names the
+    /// line-number column, and new records are keyed by their line too.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub keyless: bool,
     pub separator: char,
     /// The decimal mark of the data's numbers; absent in models written
     /// before it could be chosen, which read decimal points.
@@ -199,6 +203,7 @@ pub fn from_outcome(o: &Outcome, input_sha256: String) -> SegmentModel {
             method,
         },
         key: o.plan.input.key.clone(),
+        keyless: o.plan.input.keyless,
         separator: o.plan.input.separator,
         decimal: o.plan.input.decimal,
         features: o.prepared.features.clone(),
@@ -402,7 +407,11 @@ pub fn read_for_scoring(
                 column: name.to_string(),
             })
     };
-    let key_at = index_of(&model.key)?;
+    let key_at = if model.keyless {
+        None
+    } else {
+        Some(index_of(&model.key)?)
+    };
     let num_at = model
         .features
         .iter()
@@ -421,18 +430,22 @@ pub fn read_for_scoring(
     };
     let mut record = csv::StringRecord::new();
     while reader.read_record(&mut record).map_err(malformed)? {
-        let key = record.get(key_at).unwrap_or("").trim();
-        if key.is_empty() {
+        let line = record.position().map_or(0, |p| p.line());
+        let key = match key_at {
+            Some(at) => record.get(at).unwrap_or("").trim().to_string(),
+            None => line.to_string(),
+        };
+        if let (Some(at), true) = (key_at, key.is_empty()) {
             return Err(RunError::BlankKey {
                 place: super::error::Place {
                     file: shown.to_string(),
-                    line: record.position().map_or(0, |p| p.line()),
-                    column: key_at + 1,
+                    line,
+                    column: at + 1,
                     name: model.key.clone(),
                 },
             });
         }
-        table.keys.push(key.to_string());
+        table.keys.push(key);
         for (col, &at) in table.numeric_raw.iter_mut().zip(&num_at) {
             let field = record.get(at).unwrap_or("");
             col.push(if is_blank(field) {

@@ -154,7 +154,12 @@ pub const INPUT_OPTIONS: &[OptionDoc] = &[
     OptionDoc {
         name: "key",
         takes: "a column name",
-        summary: "the column that identifies each record; kept, never clustered (required)",
+        summary: "the column that identifies each record; kept, never clustered (required, unless `no key`)",
+    },
+    OptionDoc {
+        name: "no",
+        takes: "`key`",
+        summary: "`no key`: the file has no key column; records are keyed by their line in the file, which does not identify anyone across files, so `previous`, `compare` and `save handoff` are refused",
     },
     OptionDoc {
         name: "separator",
