@@ -38,7 +38,9 @@ enum Command {
     /// recipe, the data and every output are as recorded.
     Verify(RecipeArgs),
     /// Score new records with a saved segment model: each record's segment,
-    /// label, distance and margin, prepared exactly as in training.
+    /// label, distance to its segment's centre and how much nearer that
+    /// centre is than the next (`nearer_by`), prepared exactly as in
+    /// training.
     Assign {
         /// The model file a recipe saved (`save model "out/model.json"`).
         model: PathBuf,

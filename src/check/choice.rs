@@ -198,6 +198,9 @@ impl Checker {
         let most = fitted.and_then(|k| k.last().copied()).map(|m| m + room);
         let mut out = BTreeMap::new();
         let mut spans: HashMap<usize, Span> = HashMap::new();
+        // Names as people and CRM imports compare them: case and outer
+        // spaces aside.
+        let mut names: HashMap<String, (usize, Span)> = HashMap::new();
         let mut ok = true;
         for s in stmts {
             let StatementKind::Label { segment, text } = &s.kind else {
@@ -237,6 +240,19 @@ impl Checker {
                 ok = false;
                 continue;
             }
+            let name = text.node.trim().to_lowercase();
+            if let Some(&(other, first)) = names.get(&name) {
+                self.err(CheckError::SameLabel {
+                    label: text.node.clone(),
+                    segment: n as usize,
+                    other,
+                    span: text.span,
+                    first,
+                });
+                ok = false;
+                continue;
+            }
+            names.insert(name, (n as usize, text.span));
             spans.insert(n as usize, segment.span);
             out.insert(n as usize, text.node.clone());
         }

@@ -299,6 +299,21 @@ pub enum CheckError {
         help: String,
     },
 
+    #[error("segments {other} and {segment} are both called \"{label}\"")]
+    #[diagnostic(
+        code(assort::same_label),
+        help("two segments with one name merge wherever the name is the key (a CRM import, a pivot table); give each segment a name of its own")
+    )]
+    SameLabel {
+        label: String,
+        segment: usize,
+        other: usize,
+        #[label("the same name again")]
+        span: Span,
+        #[label("first here")]
+        first: Span,
+    },
+
     #[error("`{what}` needs a key column, and this file has none (`no key`)")]
     #[diagnostic(
         code(assort::needs_key),

@@ -590,7 +590,10 @@ fn moved_by_members(
         else {
             continue;
         };
-        let same_name = old_label.is_none_or(|l| l.is_empty() || l == label);
+        // Only the name last run gave this segment can land on others; a
+        // new name (the segment was unnamed, or named otherwise) is the
+        // analyst's reviewed decision.
+        let same_name = old_label == Some(label.as_str());
         if most != n && same_name {
             moves.push(format!(
                 "label {n} \"{label}\" (line {}): last run's segment {n} is now mostly segment {most} ({} of {})",
@@ -637,7 +640,7 @@ fn moved_by_centres(
         let Some(pair) = m.pairs.get(n.wrapping_sub(1)) else {
             continue;
         };
-        let same_name = last.label_of(n).is_none_or(|l| l == *label);
+        let same_name = last.label_of(n).as_deref() == Some(label.as_str());
         if let Some(p) = pair.previous.filter(|&p| p != n) {
             if same_name {
                 moves.push(format!(
@@ -654,23 +657,28 @@ fn moved_by_centres(
 /// `previous` line that keeps them.
 fn labels_moved(plan: &crate::plan::Plan, source: &str, moves: &[String]) -> RunError {
     use crate::plan::OutputKind;
-    let model_path = plan
-        .outputs
-        .iter()
-        .find(|o| o.kind == OutputKind::Model)
-        .map_or("out/segment_model.json", |o| o.path.as_str());
-    let statement = match plan
-        .outputs
-        .iter()
-        .find(|o| o.kind == OutputKind::Assignments)
-    {
-        Some(a) => format!("previous \"{model_path}\" assignments \"{}\"", a.path),
-        None => format!("previous \"{model_path}\""),
+    // Only files that are there: last run's model (and assignments) as
+    // this recipe saved them.
+    let saved = |kind: OutputKind| {
+        plan.outputs
+            .iter()
+            .find(|o| o.kind == kind && o.resolved.is_file())
+    };
+    let keep = match (saved(OutputKind::Model), saved(OutputKind::Assignments)) {
+        (Some(m), Some(a)) => format!(
+            "To keep each name on last run's members, add this line (last run's outputs are read before this run replaces them):\n    previous \"{}\" assignments \"{}\"\n",
+            m.path, a.path
+        ),
+        (Some(m), None) => format!(
+            "To keep each name on last run's members, add this line (last run's outputs are read before this run replaces them):\n    previous \"{}\"\n",
+            m.path
+        ),
+        (None, _) => "Keeping names on last run's members needs last run's segment model (`previous`), and this recipe saved none: add `save model \"out/segment_model.json\"` so the next run can keep them, and for this run ".to_string(),
     };
     RunError::LabelsMoved {
         moves: format!("compared with `{source}`:\n{}", moves.join("\n")),
         help: format!(
-            "segment numbers follow size, so a name can land on other members. To keep each name on last run's members, add this line (last run's outputs are read before this run replaces them):\n    {statement}\nor give the labels anew if the segments were reviewed. Nothing was written."
+            "segment numbers follow size, so a name can land on other members. {keep}or give the labels anew if the segments were reviewed. Nothing was written."
         ),
     }
 }
