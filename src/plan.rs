@@ -107,7 +107,7 @@ pub struct InputPlan {
     pub keyless: bool,
     pub separator: char,
     /// The decimal mark of the data's numbers.
-    pub decimal: crate::check::probe::DecimalMark,
+    pub decimal: DecimalMark,
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -517,3 +517,27 @@ pub const MODEL_FORMAT: &str = "assort-model/2";
 /// Formats this assort reads: version 1 lacks the segments' means, which
 /// only "what changed" uses; it scores exactly as before.
 pub const MODEL_FORMATS_READ: [&str; 2] = ["assort-model/1", MODEL_FORMAT];
+
+/// How a data file writes the decimal mark: `1.5` or `1,5`.
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, Hash, Default, serde::Serialize, serde::Deserialize,
+)]
+#[serde(rename_all = "lowercase")]
+pub enum DecimalMark {
+    #[default]
+    Point,
+    Comma,
+}
+
+impl DecimalMark {
+    pub fn char(self) -> char {
+        match self {
+            DecimalMark::Point => '.',
+            DecimalMark::Comma => ',',
+        }
+    }
+
+    pub fn is_point(&self) -> bool {
+        *self == DecimalMark::Point
+    }
+}

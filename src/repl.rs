@@ -323,7 +323,7 @@ fn handle(
 /// interrupt handler (installed once, shared with writing sets) asks the
 /// engine to stop, and the run ends with nothing written.
 fn run_stoppable(session: &mut Session, colour: bool, write: bool) -> String {
-    crate::engine::stop::clear();
+    crate::session::clear_stop();
     let previous = stop_on_interrupt();
     if previous.is_some() {
         println!("running (Ctrl-C stops the run)");
@@ -331,7 +331,7 @@ fn run_stoppable(session: &mut Session, colour: bool, write: bool) -> String {
     }
     let shown = session.run(colour, write).unwrap_or_else(|e| e);
     restore_interrupt(previous);
-    crate::engine::stop::clear();
+    crate::session::clear_stop();
     shown
 }
 
@@ -341,7 +341,7 @@ fn run_stoppable(session: &mut Session, colour: bool, write: bool) -> String {
 #[cfg(unix)]
 fn stop_on_interrupt() -> Option<libc::sigaction> {
     extern "C" fn asked(_: libc::c_int) {
-        crate::engine::stop::request();
+        crate::session::request_stop();
     }
     // SAFETY: sigaction with a zeroed, then filled, action struct; the
     // handler only stores to an atomic, which is async-signal-safe.

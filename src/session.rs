@@ -394,6 +394,17 @@ fn touches(p: &diagnostic::Problem, range: Span) -> bool {
 }
 
 /// Help on a statement word, or the list of statements.
+/// Asks a run in progress to stop (safe to call from a signal handler:
+/// it stores to an atomic). The run ends with nothing written.
+pub fn request_stop() {
+    crate::engine::stop::request();
+}
+
+/// Forgets a stop request, before and after a run.
+pub fn clear_stop() {
+    crate::engine::stop::clear();
+}
+
 pub fn help(word: Option<&str>) -> String {
     let Some(word) = word else {
         let mut s = String::from("statements:\n");

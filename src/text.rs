@@ -35,6 +35,23 @@ pub fn count(n: usize, noun: &str) -> String {
     }
 }
 
+/// A number in about four significant digits, for tables.
+pub fn short(v: f64) -> String {
+    if !v.is_finite() {
+        return if v.is_nan() { "-".into() } else { "inf".into() };
+    }
+    let a = v.abs();
+    if a >= 1000.0 {
+        format!("{v:.0}")
+    } else if a >= 100.0 {
+        format!("{v:.1}")
+    } else if a >= 1.0 {
+        format!("{v:.2}")
+    } else {
+        format!("{v:.3}")
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::{count, thousands};

@@ -401,9 +401,9 @@ pub fn column_detail(c: &ColumnInfo, sampled: usize) -> String {
     if c.numbers > 0 {
         s.push_str(&format!(
             ": min {}, mean {}, max {}",
-            crate::output::short(c.min),
-            crate::output::short(c.sum / c.numbers as f64),
-            crate::output::short(c.max)
+            crate::text::short(c.min),
+            crate::text::short(c.sum / c.numbers as f64),
+            crate::text::short(c.max)
         ));
     } else if let Some(example) = &c.text_example {
         let example: String = example.chars().take(30).collect();

@@ -299,6 +299,32 @@ pub enum CheckError {
         help: String,
     },
 
+    #[error("`features all` took {took}; left out {left}")]
+    #[diagnostic(
+        code(assort::all_features),
+        severity(Advice),
+        help("name the columns instead (`features a, b, c`) to fix the list whatever the file holds; `features all except COLUMNS` leaves some out")
+    )]
+    AllFeatures {
+        took: String,
+        left: String,
+        #[label("these columns")]
+        span: Span,
+    },
+
+    #[error("`{column}` looks like {what}, not a measure")]
+    #[diagnostic(
+        code(assort::looks_like_code),
+        severity(Warning),
+        help("a number that names or dates something has no distance that means anything (member 1001 is no nearer member 1002 than member 9000): leave it out with `features all except {column}`, or list the features by name; if it is a real measure, list it by name to say so")
+    )]
+    LooksLikeCode {
+        column: String,
+        what: &'static str,
+        #[label("taken by `all`")]
+        span: Span,
+    },
+
     #[error("segments {other} and {segment} are both called \"{label}\"")]
     #[diagnostic(
         code(assort::same_label),

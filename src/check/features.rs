@@ -110,6 +110,7 @@ impl Checker {
                         out.push((c.name.clone(), s.span));
                     }
                 }
+                self.all_took(&out, except, key.as_deref(), &cats, s.span);
             }
         }
         if ok && out.is_empty() && self.probe.is_some() {
@@ -120,6 +121,112 @@ impl Checker {
             return None;
         }
         ok.then_some(out)
+    }
+
+    /// What `features all` took and left, said once as advice, and a
+    /// warning for each column taken that looks like a code (a year, a
+    /// date, an identifier).
+    fn all_took(
+        &mut self,
+        took: &[(String, Span)],
+        except: &[Column],
+        key: Option<&str>,
+        cats: &[String],
+        span: Span,
+    ) {
+        let Some(probe) = self.probe.as_ref() else {
+            return;
+        };
+        // At most a dozen names, so a wide file does not flood the check.
+        let quoted = |names: Vec<&str>| {
+            let mut shown: Vec<String> = names
+                .iter()
+                .take(12)
+                .map(|n| format!("`{}`", clipped(n, 40)))
+                .collect();
+            if names.len() > 12 {
+                shown.push(format!("and {} more", names.len() - 12));
+            }
+            shown.join(", ")
+        };
+        let mut left: Vec<String> = Vec::new();
+        let mut group = |what: &str, names: Vec<&str>| {
+            if !names.is_empty() {
+                left.push(format!("{what} {}", quoted(names)));
+            }
+        };
+        let all = &probe.columns;
+        group(
+            "the key",
+            all.iter()
+                .filter(|c| Some(c.name.as_str()) == key)
+                .map(|c| c.name.as_str())
+                .collect(),
+        );
+        group(
+            "categories",
+            all.iter()
+                .filter(|c| cats.contains(&c.name))
+                .map(|c| c.name.as_str())
+                .collect(),
+        );
+        group("excepted", except.iter().map(|c| c.node.as_str()).collect());
+        let other = |c: &&probe::ColumnInfo| {
+            Some(c.name.as_str()) != key
+                && !cats.contains(&c.name)
+                && !except.iter().any(|e| e.node == c.name)
+        };
+        group(
+            "text columns",
+            all.iter()
+                .filter(other)
+                .filter(|c| c.kind == ColumnKind::Text)
+                .map(|c| c.name.as_str())
+                .collect(),
+        );
+        group(
+            "blank columns",
+            all.iter()
+                .filter(other)
+                .filter(|c| c.kind == ColumnKind::Blank)
+                .map(|c| c.name.as_str())
+                .collect(),
+        );
+        let constant: Vec<&str> = took
+            .iter()
+            .filter_map(|(n, _)| probe.column(n))
+            .filter(|c| c.numbers > 1 && c.min == c.max)
+            .map(|c| c.name.as_str())
+            .collect();
+        let took_words = format!(
+            "{}: {}",
+            crate::text::count(took.len(), "numeric column"),
+            quoted(took.iter().map(|(n, _)| n.as_str()).collect())
+        );
+        let mut left_words = if left.is_empty() {
+            "nothing".to_string()
+        } else {
+            left.join("; ")
+        };
+        if !constant.is_empty() {
+            left_words.push_str(&format!(
+                "; constant in the sample (they add nothing to distances): {}",
+                quoted(constant)
+            ));
+        }
+        let codes: Vec<(String, &'static str)> = took
+            .iter()
+            .filter_map(|(n, _)| probe.column(n))
+            .filter_map(|c| c.looks_like_code().map(|w| (c.name.clone(), w)))
+            .collect();
+        self.err(CheckError::AllFeatures {
+            took: took_words,
+            left: left_words,
+            span,
+        });
+        for (column, what) in codes {
+            self.err(CheckError::LooksLikeCode { column, what, span });
+        }
     }
 
     /// One column listed in `features`: named once, not the key, not a

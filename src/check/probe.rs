@@ -21,29 +21,7 @@ pub enum ColumnKind {
     Blank,
 }
 
-/// How a data file writes the decimal mark: `1.5` or `1,5`.
-#[derive(
-    Debug, Clone, Copy, PartialEq, Eq, Hash, Default, serde::Serialize, serde::Deserialize,
-)]
-#[serde(rename_all = "lowercase")]
-pub enum DecimalMark {
-    #[default]
-    Point,
-    Comma,
-}
-
-impl DecimalMark {
-    pub fn char(self) -> char {
-        match self {
-            DecimalMark::Point => '.',
-            DecimalMark::Comma => ',',
-        }
-    }
-
-    pub fn is_point(&self) -> bool {
-        *self == DecimalMark::Point
-    }
-}
+pub use crate::plan::DecimalMark;
 
 #[derive(Debug, Clone)]
 pub struct ColumnInfo {
@@ -65,6 +43,15 @@ pub struct ColumnInfo {
     pub min: f64,
     pub max: f64,
     pub sum: f64,
+    /// Sampled numbers that are whole.
+    pub wholes: usize,
+    /// Every sampled number so far differs from the others, and each is
+    /// larger than the one before (in file order).
+    pub distinct: bool,
+    pub increasing: bool,
+    /// The sampled numbers seen, by their bits (to tell `distinct`).
+    seen: std::collections::HashSet<u64>,
+    last: Option<f64>,
 }
 
 impl ColumnInfo {
@@ -82,6 +69,11 @@ impl ColumnInfo {
             min: f64::INFINITY,
             max: f64::NEG_INFINITY,
             sum: 0.0,
+            wholes: 0,
+            distinct: true,
+            increasing: true,
+            seen: std::collections::HashSet::new(),
+            last: None,
         }
     }
 
@@ -94,6 +86,12 @@ impl ColumnInfo {
             self.min = self.min.min(v);
             self.max = self.max.max(v);
             self.sum += v;
+            if v.fract() == 0.0 {
+                self.wholes += 1;
+            }
+            self.distinct &= self.seen.insert(v.to_bits());
+            self.increasing &= self.last.is_none_or(|l| v > l);
+            self.last = Some(v);
             if self.kind == ColumnKind::Blank {
                 self.kind = ColumnKind::Numeric;
             }
@@ -108,6 +106,32 @@ impl ColumnInfo {
                 self.text_line = Some(line);
             }
         }
+    }
+
+    /// Why a numeric column looks like a code rather than a measure, if it
+    /// does: whole numbers between 1900 and 2100 (a year), whole numbers
+    /// of eight digits between 19000101 and 21001231 (a date written as a
+    /// number), or whole numbers all different that grow line by line or
+    /// sit under a name like `..._id`, `..._no` or `..._code` (an
+    /// identifier). A rule of thumb, not a published test: the warning
+    /// asks the analyst to look.
+    pub fn looks_like_code(&self) -> Option<&'static str> {
+        let whole =
+            self.kind == ColumnKind::Numeric && self.numbers >= 5 && self.wholes == self.numbers;
+        if !whole {
+            return None;
+        }
+        if self.min >= 1900.0 && self.max <= 2100.0 {
+            return Some("a year");
+        }
+        if self.min >= 19_000_101.0 && self.max <= 21_001_231.0 {
+            return Some("a date written as a number");
+        }
+        let name = self.name.to_ascii_lowercase();
+        let named = ["id", "_no", "number", "code", "nr"]
+            .iter()
+            .any(|end| name.ends_with(end));
+        (self.distinct && (self.increasing || named)).then_some("an identifier")
     }
 
     /// A column of numbers with a few stray values: more numbers than text

@@ -99,9 +99,9 @@ pub fn hover(ctx: &Context<'_>, p: Position) -> Option<Hover> {
         let mean = info.sum / info.numbers as f64;
         text.push_str(&format!(
             ", min {}, mean {}, max {}",
-            crate::output::short(info.min),
-            crate::output::short(mean),
-            crate::output::short(info.max)
+            crate::text::short(info.min),
+            crate::text::short(mean),
+            crate::text::short(info.max)
         ));
     }
     if let Some(example) = &info.text_example {

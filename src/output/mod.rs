@@ -16,19 +16,4 @@ pub mod set;
 pub mod sql;
 pub mod tables;
 
-/// A number in about four significant digits, for tables.
-pub fn short(v: f64) -> String {
-    if !v.is_finite() {
-        return if v.is_nan() { "-".into() } else { "inf".into() };
-    }
-    let a = v.abs();
-    if a >= 1000.0 {
-        format!("{v:.0}")
-    } else if a >= 100.0 {
-        format!("{v:.1}")
-    } else if a >= 1.0 {
-        format!("{v:.2}")
-    } else {
-        format!("{v:.3}")
-    }
-}
+pub use crate::text::short;

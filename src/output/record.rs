@@ -56,28 +56,7 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
         .collect()
 }
 
-/// SHA-256 of a file's bytes, or `None` when it cannot be read. Read in
-/// blocks, so a large data file is never held whole.
-pub fn file_sha256(path: &Path) -> Option<String> {
-    use std::io::Read;
-    let mut file = std::fs::File::open(path).ok()?;
-    let mut hasher = Sha256::new();
-    let mut buf = vec![0u8; 1 << 20];
-    loop {
-        let got = file.read(&mut buf).ok()?;
-        if got == 0 {
-            break;
-        }
-        hasher.update(&buf[..got]);
-    }
-    Some(
-        hasher
-            .finalize()
-            .iter()
-            .map(|b| format!("{b:02x}"))
-            .collect(),
-    )
-}
+pub use crate::run::load::file_sha256;
 
 /// Where a recipe's run record lives: beside its first output, or beside
 /// the recipe when it saves nothing; named after the recipe file.

@@ -444,3 +444,27 @@ pub(crate) fn malformed(file: &str, e: &csv::Error) -> RunError {
         reason,
     }
 }
+
+/// SHA-256 of a file's bytes, or `None` when it cannot be read. Read in
+/// blocks, so a large data file is never held whole.
+pub fn file_sha256(path: &std::path::Path) -> Option<String> {
+    use sha2::Digest;
+    use std::io::Read;
+    let mut file = std::fs::File::open(path).ok()?;
+    let mut hasher = sha2::Sha256::new();
+    let mut buf = vec![0u8; 1 << 20];
+    loop {
+        let got = file.read(&mut buf).ok()?;
+        if got == 0 {
+            break;
+        }
+        hasher.update(&buf[..got]);
+    }
+    Some(
+        hasher
+            .finalize()
+            .iter()
+            .map(|b| format!("{b:02x}"))
+            .collect(),
+    )
+}

@@ -283,7 +283,7 @@ pub struct DataCache {
 struct CacheKey {
     path: std::path::PathBuf,
     separator: char,
-    decimal: crate::check::probe::DecimalMark,
+    decimal: crate::plan::DecimalMark,
     key: String,
     numeric: Vec<String>,
     text: Vec<String>,

@@ -96,7 +96,7 @@ impl PreviousRun {
         .map(|(role, path, resolved, records)| Digest {
             role,
             path,
-            sha256: crate::output::record::file_sha256(resolved).unwrap_or_default(),
+            sha256: super::load::file_sha256(resolved).unwrap_or_default(),
             records,
         })
         .collect();
