@@ -224,4 +224,20 @@ fn rules_coverage_and_precision_recomputed_and_the_rules_query_agrees() {
             .map(|r| r["segment"].as_i64().unwrap());
         assert_eq!(got[key], expected, "{key}");
     }
+
+    // The query's comment states what it delivers, counted here from what
+    // SQLite returned: records given each segment, and those in it.
+    for rule in &rules {
+        let seg = rule["segment"].as_i64().unwrap();
+        let given: Vec<&String> = keys.iter().filter(|k| got[*k] == Some(seg)).collect();
+        let right = given
+            .iter()
+            .filter(|k| segment_of[k.as_str()] == seg.to_string())
+            .count();
+        let line = format!(
+            "--   segment {seg}: {} records, {right} of them in the segment",
+            given.len()
+        );
+        assert!(query.contains(&line), "`{line}` not in\n{query}");
+    }
 }

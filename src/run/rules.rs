@@ -39,6 +39,44 @@ pub struct SegmentRule {
     pub segment_size: usize,
     pub coverage: f64,
     pub precision: f64,
+    /// What the rules query delivers, where a record goes to the first
+    /// rule it meets in [`query_order`]: records it gives this segment,
+    /// and those of them in the segment. A record two rules pick counts
+    /// for the earlier one only, so these can be below `matched`.
+    pub delivered: usize,
+    pub delivered_in_segment: usize,
+}
+
+/// The order the rules query tries the rules in: highest precision first,
+/// ties in profile order; rules without conditions are left out.
+pub fn query_order(rules: &[SegmentRule]) -> Vec<usize> {
+    let mut order: Vec<usize> = (0..rules.len())
+        .filter(|&i| !rules[i].conditions.is_empty())
+        .collect();
+    order.sort_by(|&a, &b| rules[b].precision.total_cmp(&rules[a].precision));
+    order
+}
+
+/// Fills in what the rules query delivers (see [`SegmentRule::delivered`]).
+fn deliver(rules: &mut [SegmentRule], columns: &[Vec<f64>], labels: &[u32], features: &[String]) {
+    let order = query_order(rules);
+    let at = |name: &str| features.iter().position(|f| f == name).unwrap_or(0);
+    let holds = |r: &SegmentRule, i: usize| {
+        r.conditions.iter().all(|c| {
+            let v = columns[at(&c.column)][i];
+            if c.op == ">" {
+                v > c.value
+            } else {
+                v <= c.value
+            }
+        })
+    };
+    for (i, &l) in labels.iter().enumerate() {
+        if let Some(&s) = order.iter().find(|&&s| holds(&rules[s], i)) {
+            rules[s].delivered += 1;
+            rules[s].delivered_in_segment += usize::from(l as usize == s);
+        }
+    }
 }
 
 /// Rules for segments `0..k` (profile order), numbered and labelled as
@@ -60,7 +98,7 @@ pub fn rules(
     let x = Array2::from_shape_fn((fit_rows.len(), d), |(i, f)| columns[f][fit_rows[i]]);
     let sorted = Sorted::new(x.view());
     let min_leaf = (fit_rows.len() / 200).max(5);
-    numbers
+    let mut rules: Vec<SegmentRule> = numbers
         .iter()
         .enumerate()
         .map(|(s, &number)| {
@@ -105,7 +143,12 @@ pub fn rules(
                 } else {
                     hits as f64 / matched as f64
                 },
+                delivered: 0,
+                delivered_in_segment: 0,
             }
         })
-        .collect()
+        .collect();
+    let names: Vec<String> = prepared.features.iter().map(|f| f.column.clone()).collect();
+    deliver(&mut rules, &columns, labels, &names);
+    rules
 }
