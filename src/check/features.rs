@@ -137,91 +137,32 @@ impl Checker {
         let Some(probe) = self.probe.as_ref() else {
             return;
         };
-        // At most a dozen names, so a wide file does not flood the check.
-        let quoted = |names: Vec<&str>| {
-            let mut shown: Vec<String> = names
-                .iter()
-                .take(12)
-                .map(|n| format!("`{}`", clipped(n, 40)))
-                .collect();
-            if names.len() > 12 {
-                shown.push(format!("and {} more", names.len() - 12));
-            }
-            shown.join(", ")
-        };
-        let mut left: Vec<String> = Vec::new();
-        let mut group = |what: &str, names: Vec<&str>| {
-            if !names.is_empty() {
-                left.push(format!("{what} {}", quoted(names)));
-            }
-        };
-        let all = &probe.columns;
-        group(
-            "the key",
-            all.iter()
-                .filter(|c| Some(c.name.as_str()) == key)
-                .map(|c| c.name.as_str())
-                .collect(),
-        );
-        group(
-            "categories",
-            all.iter()
-                .filter(|c| cats.contains(&c.name))
-                .map(|c| c.name.as_str())
-                .collect(),
-        );
-        group("excepted", except.iter().map(|c| c.node.as_str()).collect());
-        let other = |c: &&probe::ColumnInfo| {
-            Some(c.name.as_str()) != key
-                && !cats.contains(&c.name)
-                && !except.iter().any(|e| e.node == c.name)
-        };
-        group(
-            "text columns",
-            all.iter()
-                .filter(other)
-                .filter(|c| c.kind == ColumnKind::Text)
-                .map(|c| c.name.as_str())
-                .collect(),
-        );
-        group(
-            "blank columns",
-            all.iter()
-                .filter(other)
-                .filter(|c| c.kind == ColumnKind::Blank)
-                .map(|c| c.name.as_str())
-                .collect(),
-        );
-        let constant: Vec<&str> = took
+        let left = left_out(&probe.columns, except, key, cats);
+        let taken: Vec<&probe::ColumnInfo> =
+            took.iter().filter_map(|(n, _)| probe.column(n)).collect();
+        let constant: Vec<&str> = taken
             .iter()
-            .filter_map(|(n, _)| probe.column(n))
             .filter(|c| c.numbers > 1 && c.min == c.max)
             .map(|c| c.name.as_str())
             .collect();
-        let took_words = format!(
+        let mut took_words = format!(
             "{}: {}",
             crate::text::count(took.len(), "numeric column"),
-            quoted(took.iter().map(|(n, _)| n.as_str()).collect())
+            name_list(took.iter().map(|(n, _)| n.as_str()).collect())
         );
-        let mut left_words = if left.is_empty() {
-            "nothing".to_string()
-        } else {
-            left.join("; ")
-        };
         if !constant.is_empty() {
-            left_words.push_str(&format!(
-                "; constant in the sample (they add nothing to distances): {}",
-                quoted(constant)
+            took_words.push_str(&format!(
+                " (constant in the sample, so adding nothing to distances: {})",
+                name_list(constant)
             ));
         }
-        let codes: Vec<(String, &'static str)> = took
+        let codes: Vec<(String, &'static str)> = taken
             .iter()
-            .filter_map(|(n, _)| probe.column(n))
             .filter_map(|c| c.looks_like_code().map(|w| (c.name.clone(), w)))
             .collect();
         self.err(CheckError::AllFeatures {
             took: took_words,
-            left: left_words,
+            left,
             span,
         });
         for (column, what) in codes {
@@ -592,4 +533,67 @@ pub(super) struct CheckedRule<'s> {
     pub rule: Rule,
     pub columns: Option<&'s [Column]>,
     pub span: Span,
+}
+
+/// Names in backticks, at most a dozen, so a wide file does not flood the
+/// check.
+fn name_list(names: Vec<&str>) -> String {
+    let mut shown: Vec<String> = names
+        .iter()
+        .take(12)
+        .map(|n| format!("`{}`", clipped(n, 40)))
+        .collect();
+    if names.len() > 12 {
+        shown.push(format!("and {} more", names.len() - 12));
+    }
+    shown.join(", ")
+}
+
+/// What `features all` left, grouped by why, in words (`nothing` when it
+/// took every column).
+fn left_out(
+    columns: &[probe::ColumnInfo],
+    except: &[Column],
+    key: Option<&str>,
+    cats: &[String],
+) -> String {
+    let why = |c: &probe::ColumnInfo| -> Option<usize> {
+        if Some(c.name.as_str()) == key {
+            Some(0)
+        } else if cats.contains(&c.name) {
+            Some(1)
+        } else if except.iter().any(|e| e.node == c.name) {
+            Some(2)
+        } else {
+            match c.kind {
+                ColumnKind::Text => Some(3),
+                ColumnKind::Blank => Some(4),
+                _ => None,
+            }
+        }
+    };
+    let groups = [
+        "the key",
+        "categories",
+        "excepted",
+        "text columns",
+        "blank columns",
+    ];
+    let parts: Vec<String> = groups
+        .iter()
+        .enumerate()
+        .filter_map(|(g, what)| {
+            let names: Vec<&str> = columns
+                .iter()
+                .filter(|c| why(c) == Some(g))
+                .map(|c| c.name.as_str())
+                .collect();
+            (!names.is_empty()).then(|| format!("{what} {}", name_list(names)))
+        })
+        .collect();
+    if parts.is_empty() {
+        "nothing".to_string()
+    } else {
+        parts.join("; ")
+    }
 }

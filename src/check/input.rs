@@ -24,28 +24,7 @@ impl Checker {
         let separator = self.separator(&opts);
         let decimal = self.decimal(&opts, separator);
         let no_key = self.no_key(&opts);
-        let key = match (opts.get("key"), no_key) {
-            (Some(o), None) => self.column_name("key", o),
-            (Some(o), Some(Some(span))) => {
-                self.err(CheckError::Conflict {
-                    what: "the key (`key` and `no key`)".into(),
-                    span,
-                    first: o.name.span,
-                });
-                None
-            }
-            (_, Some(None)) => None,
-            (None, Some(Some(_))) => None,
-            (None, None) => {
-                self.err(CheckError::MissingOption {
-                    statement: "input",
-                    option: "key",
-                    span: s.span,
-                    help: "the key column identifies each record in the outputs, such as `key member_id`; a file without one takes `no key` (records keyed by their line)".into(),
-                });
-                None
-            }
-        };
+        let key = self.key_option(&opts, no_key, s.span);
         let resolved = self.read_path(path)?;
         self.input_file = path.node.clone();
         let (separator, decimal) = (separator?, decimal?);
@@ -56,29 +35,7 @@ impl Checker {
         }
         let key = key?;
         self.known_column(&key)?;
-        match probe::key_problem(&resolved, separator as u8, &key.node) {
-            Some(probe::KeyProblem::Repeated(k, first, again)) => {
-                self.err(CheckError::RepeatedKey {
-                    column: key.node.clone(),
-                    key: clipped(&k, 40),
-                    file: path.node.clone(),
-                    first,
-                    again,
-                    span: key.span,
-                });
-                return None;
-            }
-            Some(probe::KeyProblem::Blank(line)) => {
-                self.err(CheckError::BlankKey {
-                    column: key.node.clone(),
-                    file: path.node.clone(),
-                    line,
-                    span: key.span,
-                });
-                return None;
-            }
-            None => {}
-        }
+        self.keys_usable(path, &resolved, separator, &key)?;
         Some(CheckedInput {
             plan: InputPlan {
                 path: path.node.clone(),
@@ -90,6 +47,71 @@ impl Checker {
             },
             key_span: key.span,
         })
+    }
+
+    /// The `key` option, given alone; `None` (reported) when it is
+    /// missing, or given together with `no key`.
+    fn key_option(
+        &mut self,
+        opts: &HashMap<&'static str, &OptionPair>,
+        no_key: Option<Option<Span>>,
+        statement: Span,
+    ) -> Option<Spanned<String>> {
+        match (opts.get("key"), no_key) {
+            (Some(o), None) => self.column_name("key", o),
+            (Some(o), Some(Some(span))) => {
+                self.err(CheckError::Conflict {
+                    what: "the key (`key` and `no key`)".into(),
+                    span,
+                    first: o.name.span,
+                });
+                None
+            }
+            (_, Some(_)) => None,
+            (None, None) => {
+                self.err(CheckError::MissingOption {
+                    statement: "input",
+                    option: "key",
+                    span: statement,
+                    help: "the key column identifies each record in the outputs, such as `key member_id`; a file without one takes `no key` (records keyed by their line)".into(),
+                });
+                None
+            }
+        }
+    }
+
+    /// Keys present and unique through the whole file (counted by the
+    /// probe): `None` (reported at the key) when one is blank or repeated.
+    fn keys_usable(
+        &mut self,
+        path: &Spanned<String>,
+        resolved: &Path,
+        separator: char,
+        key: &Spanned<String>,
+    ) -> Option<()> {
+        match probe::key_problem(resolved, separator as u8, &key.node) {
+            Some(probe::KeyProblem::Repeated(k, first, again)) => {
+                self.err(CheckError::RepeatedKey {
+                    column: key.node.clone(),
+                    key: clipped(&k, 40),
+                    file: path.node.clone(),
+                    first,
+                    again,
+                    span: key.span,
+                });
+                None
+            }
+            Some(probe::KeyProblem::Blank(line)) => {
+                self.err(CheckError::BlankKey {
+                    column: key.node.clone(),
+                    file: path.node.clone(),
+                    line,
+                    span: key.span,
+                });
+                None
+            }
+            None => Some(()),
+        }
     }
 
     /// `no key`: `None` when absent, `Some(None)` when its value is not

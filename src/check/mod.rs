@@ -459,21 +459,12 @@ impl Checker {
         });
         let choose = self.choose(find("choose"), ks.as_deref());
         let floor = self.floor(find("choose"));
-        let previous = {
-            let numeric: Option<Vec<String>> = features
-                .as_ref()
-                .map(|f| f.iter().map(|f| f.column.clone()).collect());
-            let cats: Option<Vec<String>> = categories
-                .as_ref()
-                .map(|c| c.iter().map(|c| c.column.clone()).collect());
-            let key = input.as_ref().map(|i| i.plan.key.clone());
-            self.previous(
-                find("previous"),
-                numeric.as_deref(),
-                cats.as_deref(),
-                key.as_deref(),
-            )
-        };
+        let previous = self.previous_against(
+            find("previous"),
+            features.as_deref(),
+            categories.as_deref(),
+            key.as_deref(),
+        );
         // With a previous model, segments keep its numbers and new ones
         // follow its highest, so labels may go that far beyond k.
         let label_room = previous
@@ -512,6 +503,21 @@ impl Checker {
             display: display?,
             label_lines: BTreeMap::new(),
         })
+    }
+
+    /// The `previous` statement, checked against this recipe's columns.
+    fn previous_against(
+        &mut self,
+        stmt: Option<&Statement>,
+        features: Option<&[FeaturePlan]>,
+        categories: Option<&[CategoryPlan]>,
+        key: Option<&str>,
+    ) -> Option<Option<previous::Previous>> {
+        let numeric: Option<Vec<String>> =
+            features.map(|f| f.iter().map(|f| f.column.clone()).collect());
+        let cats: Option<Vec<String>> =
+            categories.map(|c| c.iter().map(|c| c.column.clone()).collect());
+        self.previous(stmt, numeric.as_deref(), cats.as_deref(), key)
     }
 
     fn seed(&mut self, stmt: Option<&Statement>) -> Option<u64> {

@@ -235,6 +235,12 @@ fn why(h: &mut String, o: &Outcome) {
     if let Some(v) = &o.validation {
         let _ = write!(h, "<p class=\"small\">Against the known grouping <code>{}</code>: adjusted Rand index {:.3}.</p>\n", esc(&v.column), v.adjusted_rand_index);
     }
+    sweep_table(h, o);
+}
+
+/// The sweep as a table: a row per k, the chosen one marked, with the
+/// restarts that reached the best partition and the smallest segment.
+fn sweep_table(h: &mut String, o: &Outcome) {
     let _ = write!(h, "<table><tr><th>k</th><th>within SS</th><th>silhouette</th><th>Calinski-Harabasz</th><th>Davies-Bouldin</th>");
     let gap = o.sweep.iter().any(|r| r.gap.is_some());
     let stab = o.sweep.iter().any(|r| r.stability.is_some());

@@ -60,19 +60,31 @@ pub fn query_order(rules: &[SegmentRule]) -> Vec<usize> {
 /// Fills in what the rules query delivers (see [`SegmentRule::delivered`]).
 fn deliver(rules: &mut [SegmentRule], columns: &[Vec<f64>], labels: &[u32], features: &[String]) {
     let order = query_order(rules);
-    let at = |name: &str| features.iter().position(|f| f == name).unwrap_or(0);
-    let holds = |r: &SegmentRule, i: usize| {
-        r.conditions.iter().all(|c| {
-            let v = columns[at(&c.column)][i];
-            if c.op == ">" {
-                v > c.value
+    // Each rule's conditions as (feature, above, threshold), looked up once.
+    let tests: Vec<Vec<(usize, bool, f64)>> = rules
+        .iter()
+        .map(|r| {
+            r.conditions
+                .iter()
+                .map(|c| {
+                    let f = features.iter().position(|n| *n == c.column).unwrap_or(0);
+                    (f, c.op == ">", c.value)
+                })
+                .collect()
+        })
+        .collect();
+    let holds = |s: usize, i: usize| {
+        tests[s].iter().all(|&(f, above, t)| {
+            let v = columns[f][i];
+            if above {
+                v > t
             } else {
-                v <= c.value
+                v <= t
             }
         })
     };
     for (i, &l) in labels.iter().enumerate() {
-        if let Some(&s) = order.iter().find(|&&s| holds(&rules[s], i)) {
+        if let Some(&s) = order.iter().find(|&&s| holds(s, i)) {
             rules[s].delivered += 1;
             rules[s].delivered_in_segment += usize::from(l as usize == s);
         }
