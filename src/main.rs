@@ -204,6 +204,11 @@ fn main() -> ExitCode {
                 if recipe.json {
                     let mut result = output::json::run(&outcome, &written);
                     result["cells_made_text"] = json!(defused);
+                    result["cells_like_formulas"] = files
+                        .iter()
+                        .filter(|f| f.formula_like > 0)
+                        .map(|f| json!({"file": shown(&f.path), "cells": f.formula_like}))
+                        .collect();
                     output::json::print(
                         &json!({"format": "assort-result/1", "ok": true, "diagnostics": diagnostics, "result": result}),
                     );
@@ -214,6 +219,9 @@ fn main() -> ExitCode {
                     }
                     if defused > 0 {
                         println!("{}", defused_note(defused));
+                    }
+                    for f in files.iter().filter(|f| f.formula_like > 0) {
+                        println!("{}", formula_like_warning(f.formula_like, &shown(&f.path)));
                     }
                 }
                 ExitCode::SUCCESS
@@ -314,14 +322,16 @@ fn assign(model_path: &Path, data: &Path, out: Option<&Path>) -> ExitCode {
             .and_then(|m| m.label.clone())
             .unwrap_or_default()
     };
-    let (bytes, defused) = output::files::assignments_csv(&model.key, &assignments, label);
+    let output::files::Csv {
+        bytes,
+        formula_like,
+        ..
+    } = output::files::assignments_csv(&model.key, &assignments, label);
     match out {
         Some(path) => {
             let file = Rendered {
-                path: path.to_path_buf(),
-                shown: shown(path),
-                bytes,
-                defused,
+                formula_like,
+                ..Rendered::plain(path.to_path_buf(), shown(path), bytes)
             };
             if let Err(e) = output::files::write_all(std::slice::from_ref(&file)) {
                 return fail(e);
@@ -342,8 +352,9 @@ fn assign(model_path: &Path, data: &Path, out: Option<&Path>) -> ExitCode {
             model.key
         );
     }
-    if defused > 0 {
-        eprintln!("{}", defused_note(defused));
+    if formula_like > 0 {
+        let file = out.map_or("the assignments".to_string(), shown);
+        eprintln!("{}", formula_like_warning(formula_like, &file));
     }
     ExitCode::SUCCESS
 }
@@ -651,6 +662,18 @@ fn defused_note(n: usize) -> String {
         plural(n, "cell"),
         if n == 1 { "was" } else { "were" },
         if n == 1 { "it shows" } else { "they show" }
+    )
+}
+
+/// Says that a machine file holds cells a spreadsheet would run as a
+/// formula, written exactly all the same (see `output::files::Cells`).
+fn formula_like_warning(n: usize, file: &str) -> String {
+    format!(
+        "warning: {} in {file} {} like a spreadsheet formula (`=`, `+`, `-`, `@`, a tab); {} written exactly as the data has {}, because a CRM import and the next run match keys as written. Open this file in a spreadsheet through its import step with the columns as text, not by double-clicking it",
+        plural(n, "cell"),
+        if n == 1 { "begins" } else { "begin" },
+        if n == 1 { "it is" } else { "they are" },
+        if n == 1 { "it" } else { "them" },
     )
 }
 

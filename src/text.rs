@@ -52,9 +52,41 @@ pub fn short(v: f64) -> String {
     }
 }
 
+/// Names joined for a sentence: `a`, `a and b`, `a, b and c`.
+pub fn and_list(names: &[String]) -> String {
+    match names {
+        [] => String::new(),
+        [one] => one.clone(),
+        [rest @ .., last] => format!("{} and {last}", rest.join(", ")),
+    }
+}
+
+/// A category value as assort and its SQL read it: spaces (U+0020) at both
+/// ends removed, nothing else. SQL's `TRIM` removes spaces only, so a tab
+/// or a non-breaking space at an end stays part of the value here too, and
+/// a record lands in the same segment in assort and in the database.
+pub fn trim_spaces(value: &str) -> &str {
+    value.trim_matches(' ')
+}
+
+/// Whether a value has white space other than a space at an end once
+/// [`trim_spaces`] has run: a value the reader should be told about,
+/// because `gold` and `gold` followed by a tab are different values.
+pub fn odd_space_at_end(value: &str) -> bool {
+    let v = trim_spaces(value);
+    v.starts_with(char::is_whitespace) || v.ends_with(char::is_whitespace)
+}
+
+/// Whether a key is blank: empty or white space only. Keys are otherwise
+/// kept exactly as written (nothing trimmed), so every file assort writes
+/// gives back the keys of the input.
+pub fn blank_key(key: &str) -> bool {
+    key.trim().is_empty()
+}
+
 #[cfg(test)]
 mod tests {
-    use super::{count, thousands};
+    use super::{and_list, blank_key, count, odd_space_at_end, thousands, trim_spaces};
 
     #[test]
     fn counts_take_the_singular_for_one() {
@@ -74,5 +106,28 @@ mod tests {
             thousands(9_000_000_000_000_000_000_000u128),
             "9,000,000,000,000,000,000,000"
         );
+    }
+
+    #[test]
+    fn category_values_lose_spaces_only_as_sql_trim_does() {
+        assert_eq!(trim_spaces("  gold "), "gold");
+        assert_eq!(trim_spaces("gold\t"), "gold\t");
+        assert_eq!(trim_spaces(" gold\u{a0} "), "gold\u{a0}");
+        assert!(odd_space_at_end("gold\t") && odd_space_at_end(" \u{3000}gold"));
+        assert!(!odd_space_at_end("  gold ") && !odd_space_at_end("old mill"));
+    }
+
+    #[test]
+    fn a_key_is_blank_only_when_nothing_but_white_space() {
+        assert!(blank_key("") && blank_key(" \t"));
+        assert!(!blank_key(" k1") && !blank_key("=k"));
+    }
+
+    #[test]
+    fn names_join_as_a_sentence() {
+        let names = |v: &[&str]| v.iter().map(|s| s.to_string()).collect::<Vec<_>>();
+        assert_eq!(and_list(&names(&["a"])), "a");
+        assert_eq!(and_list(&names(&["a", "b"])), "a and b");
+        assert_eq!(and_list(&names(&["a", "b", "c"])), "a, b and c");
     }
 }

@@ -918,7 +918,11 @@ fn allowing_the_whole_disk_is_refused_unless_forced_and_allowed_folders_are_name
 }
 
 #[test]
-fn keys_that_look_like_formulas_are_written_as_text_and_counted() {
+fn keys_that_look_like_formulas_are_kept_exactly_and_the_run_warns() {
+    // Machine files (assignments, hand-off) keep every key as the input has
+    // it: a CRM import or next quarter's run matches on it, and an added
+    // apostrophe would never match. The run says which file holds cells a
+    // spreadsheet would run, and how to open it safely.
     let case = Case::empty();
     case.write(
         "d.csv",
@@ -929,14 +933,14 @@ fn keys_that_look_like_formulas_are_written_as_text_and_counted() {
         "input \"d.csv\" key id\nfeatures a\nkmeans k 2\nsave assignments \"out/a.csv\"\n",
     );
     case.run("r.assort").ok().stdout_has(
-        "note: 2 cells that a spreadsheet would run as a formula were written with a leading `'`",
+        "warning: 2 cells in out/a.csv begin like a spreadsheet formula (`=`, `+`, `-`, `@`, a tab); they are written exactly as the data has them",
     );
     let written = case.read("out/a.csv");
     assert!(
-        written.contains("\"'=HYPERLINK(\"\"http://x\"\")\","),
+        written.contains("\"=HYPERLINK(\"\"http://x\"\")\","),
         "{written}"
     );
-    assert!(written.contains("\n'@SUM(A1),"), "{written}");
+    assert!(written.contains("\n@SUM(A1),"), "{written}");
     assert!(written.contains("\n-7,"), "{written}");
 }
 
@@ -1638,10 +1642,13 @@ fn the_demo_report_is_well_formed_and_holds_every_segment_and_chart() {
         let text = std::fs::read_to_string(folder.join(f)).unwrap();
         assert_eq!(well_formed(&text).root_element().tag_name().name(), "svg");
     }
-    // The CRM hand-off: the key and the segment's name, nothing else.
+    // The CRM hand-off: the key, the segment's number and name, and why a
+    // record has none (every demo member has one).
     let handoff = case.read("out/crm_segments.csv");
     assert!(
-        handoff.starts_with("member_id,segment_name\nM10001,weekly fresh regulars\n"),
+        handoff.starts_with(
+            "member_id,segment,segment_name,no_segment_because\nM10001,1,weekly fresh regulars,\n"
+        ),
         "{}",
         &handoff[..80]
     );

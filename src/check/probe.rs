@@ -247,8 +247,9 @@ pub fn key_problem(path: &Path, separator: u8, key: &str) -> Option<KeyProblem> 
             break;
         }
         let line = record.position().map_or(0, |p| p.line());
-        let k = record.get(at).unwrap_or("").trim();
-        if k.is_empty() {
+        // Keys exactly as written, as the run reads them.
+        let k = record.get(at).unwrap_or("");
+        if crate::text::blank_key(k) {
             return Some(KeyProblem::Blank(line));
         }
         if let Some(&first) = seen.get(k) {

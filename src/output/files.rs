@@ -18,6 +18,24 @@ pub struct Rendered {
     /// Cells written with a leading apostrophe because a spreadsheet
     /// would otherwise run them as a formula (see [`spreadsheet_safe`]).
     pub defused: usize,
+    /// Cells of a machine file (assignments, hand-off) that a spreadsheet
+    /// would run as a formula, written exactly all the same (see
+    /// [`Cells::Exact`]): the run warns about them.
+    pub formula_like: usize,
+}
+
+/// How a CSV file's cells are written.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Cells {
+    /// For people reading the file in a spreadsheet (profiles, centres,
+    /// merges): a cell that would run as a formula gets a leading `'`.
+    SpreadsheetSafe,
+    /// For machines (the assignments `previous`, `compare` and `assign`
+    /// read back, the hand-off a CRM imports): every cell exactly as the
+    /// data and the recipe have it, because a key with an apostrophe added
+    /// never matches the customer it names. Cells a spreadsheet would run
+    /// are counted, and the run warns about them by file.
+    Exact,
 }
 
 impl Rendered {
@@ -28,6 +46,7 @@ impl Rendered {
             shown,
             bytes,
             defused: 0,
+            formula_like: 0,
         }
     }
 }
@@ -85,19 +104,24 @@ fn chart_files(o: &Outcome, report: &Path, shown: &str) -> Vec<Rendered> {
 }
 
 fn render(o: &Outcome, out: &OutputPlan, sources: &Sources<'_>) -> Rendered {
-    let (bytes, defused) = match out.kind {
+    let csv = match out.kind {
         OutputKind::Assignments => assignments(o),
+        OutputKind::Handoff => handoff(o),
         OutputKind::ProfilesCsv => profiles_csv(o),
         OutputKind::Centroids => centroids(o),
         OutputKind::Merges => merges(o),
-        OutputKind::Handoff => handoff(o),
-        other => (render_other(o, other, sources), 0),
+        other => Csv {
+            bytes: render_other(o, other, sources),
+            defused: 0,
+            formula_like: 0,
+        },
     };
     Rendered {
         path: out.resolved.clone(),
         shown: out.path.clone(),
-        bytes,
-        defused,
+        bytes: csv.bytes,
+        defused: csv.defused,
+        formula_like: csv.formula_like,
     }
 }
 
@@ -148,26 +172,49 @@ fn f6(v: f64) -> String {
     }
 }
 
-/// A CSV file's bytes, with every cell made [`spreadsheet_safe`], and how
-/// many cells that changed.
-fn csv_bytes(rows: Vec<Vec<String>>) -> (Vec<u8>, usize) {
+/// A CSV file's bytes, and its cells that a spreadsheet would run as a
+/// formula: made safe (`defused`) or kept exactly (`formula_like`), as
+/// its [`Cells`] say.
+pub struct Csv {
+    pub bytes: Vec<u8>,
+    pub defused: usize,
+    pub formula_like: usize,
+}
+
+/// A CSV file's bytes, cells written as `cells` says.
+fn csv_bytes(rows: Vec<Vec<String>>, cells: Cells) -> Csv {
     let mut w = csv::WriterBuilder::new()
         .terminator(csv::Terminator::Any(b'\n'))
         .from_writer(Vec::new());
-    let mut defused = 0;
+    let mut risky = 0;
     for r in rows {
-        let cells: Vec<std::borrow::Cow<'_, str>> = r
+        let written: Vec<std::borrow::Cow<'_, str>> = r
             .iter()
             .map(|c| {
                 let safe = spreadsheet_safe(c);
-                defused += usize::from(matches!(safe, std::borrow::Cow::Owned(_)));
-                safe
+                risky += usize::from(matches!(safe, std::borrow::Cow::Owned(_)));
+                match cells {
+                    Cells::SpreadsheetSafe => safe,
+                    Cells::Exact => std::borrow::Cow::Borrowed(c.as_str()),
+                }
             })
             .collect();
         // Writing to memory cannot fail.
-        let _ = w.write_record(cells.iter().map(|c| c.as_bytes()));
+        let _ = w.write_record(written.iter().map(|c| c.as_bytes()));
     }
-    (w.into_inner().unwrap_or_default(), defused)
+    let bytes = w.into_inner().unwrap_or_default();
+    match cells {
+        Cells::SpreadsheetSafe => Csv {
+            bytes,
+            defused: risky,
+            formula_like: 0,
+        },
+        Cells::Exact => Csv {
+            bytes,
+            defused: 0,
+            formula_like: risky,
+        },
+    }
 }
 
 /// A cell a spreadsheet will show as text. Spreadsheets run a cell that
@@ -201,26 +248,66 @@ fn label_of(o: &Outcome, segment: usize) -> String {
     o.plan.labels.get(&segment).cloned().unwrap_or_default()
 }
 
-/// The hand-off for a CRM or marketing system: each record's key and its
-/// segment's name (its label, or `segment N`), nothing else.
-fn handoff(o: &Outcome) -> (Vec<u8>, usize) {
+/// What the hand-off says in place of a segment name for a record the run
+/// left out.
+pub const NO_SEGMENT: &str = "no segment";
+
+/// The hand-off for a CRM or marketing system: one row per input record,
+/// in file order, with its key exactly as the input has it, its segment
+/// number and name (its label, or `segment N`); a record `missing drop`
+/// left out gets no number, [`NO_SEGMENT`] and why, so the CRM does not
+/// keep last quarter's segment for it.
+fn handoff(o: &Outcome) -> Csv {
     let name = |s: usize| {
-        o.profiles
-            .iter()
-            .find(|p| p.segment == Some(s))
-            .and_then(|p| p.label.clone())
-            .unwrap_or_else(|| format!("segment {s}"))
+        let label = o.profiles.iter().find(|p| p.segment == Some(s));
+        super::segment_name(s, label.and_then(|p| p.label.as_deref()))
     };
-    let mut rows = vec![vec![o.plan.input.key.clone(), "segment_name".to_string()]];
-    rows.extend(
-        o.assignments
+    let why = |gaps: &[usize]| {
+        let names: Vec<String> = gaps
             .iter()
-            .map(|a| vec![a.key.to_string(), name(a.segment)]),
-    );
-    csv_bytes(rows)
+            .map(|&f| o.plan.features[f].column.clone())
+            .collect();
+        let verb = if names.len() == 1 { "is" } else { "are" };
+        format!("{} {verb} blank", crate::text::and_list(&names))
+    };
+    let mut rows = vec![[
+        o.plan.input.key.as_str(),
+        "segment",
+        "segment_name",
+        "no_segment_because",
+    ]
+    .map(str::to_string)
+    .to_vec()];
+    let mut left_out = o.prepared.left_out.iter().peekable();
+    for (i, a) in o.assignments.iter().enumerate() {
+        let row = o.prepared.kept[i];
+        while let Some(l) = left_out.next_if(|l| l.row < row) {
+            rows.push(vec![
+                l.key.clone(),
+                String::new(),
+                NO_SEGMENT.into(),
+                why(&l.gaps),
+            ]);
+        }
+        rows.push(vec![
+            a.key.to_string(),
+            a.segment.to_string(),
+            name(a.segment),
+            String::new(),
+        ]);
+    }
+    for l in left_out {
+        rows.push(vec![
+            l.key.clone(),
+            String::new(),
+            NO_SEGMENT.into(),
+            why(&l.gaps),
+        ]);
+    }
+    csv_bytes(rows, Cells::Exact)
 }
 
-fn assignments(o: &Outcome) -> (Vec<u8>, usize) {
+fn assignments(o: &Outcome) -> Csv {
     assignments_csv(&o.plan.input.key, &o.assignments, |s| label_of(o, s))
 }
 
@@ -230,7 +317,7 @@ pub fn assignments_csv(
     key: &str,
     assignments: &Assignments,
     label: impl Fn(usize) -> String,
-) -> (Vec<u8>, usize) {
+) -> Csv {
     let mut rows = vec![[key, "segment", "label", "distance", "nearer_by"]
         .iter()
         .map(|s| s.to_string())
@@ -244,7 +331,7 @@ pub fn assignments_csv(
             f6(a.margin),
         ]);
     }
-    csv_bytes(rows)
+    csv_bytes(rows, Cells::Exact)
 }
 
 /// Column names for category levels: `column=level`.
@@ -260,7 +347,7 @@ fn level_shares(p: &Profile) -> Vec<String> {
     p.categories.iter().flatten().map(|&v| f6(v)).collect()
 }
 
-fn profiles_csv(o: &Outcome) -> (Vec<u8>, usize) {
+fn profiles_csv(o: &Outcome) -> Csv {
     let mut header: Vec<String> = [
         "segment",
         "label",
@@ -326,10 +413,10 @@ fn profiles_csv(o: &Outcome) -> (Vec<u8>, usize) {
         }
         rows.push(r);
     }
-    csv_bytes(rows)
+    csv_bytes(rows, Cells::SpreadsheetSafe)
 }
 
-fn centroids(o: &Outcome) -> (Vec<u8>, usize) {
+fn centroids(o: &Outcome) -> Csv {
     let mut header = vec!["segment".to_string(), "label".to_string()];
     header.extend(o.prepared.features.iter().map(|f| f.column.clone()));
     header.extend(level_names(o));
@@ -341,15 +428,15 @@ fn centroids(o: &Outcome) -> (Vec<u8>, usize) {
         r.extend(level_shares(p));
         rows.push(r);
     }
-    csv_bytes(rows)
+    csv_bytes(rows, Cells::SpreadsheetSafe)
 }
 
 /// The tree's merge table, one row per merge in order: the step, the two
 /// groups joined (a leaf by its name, an earlier merge as `#step`), the
 /// height and the size of the new group.
-fn merges(o: &Outcome) -> (Vec<u8>, usize) {
+fn merges(o: &Outcome) -> Csv {
     let Some(t) = &o.tree else {
-        return (Vec::new(), 0);
+        return csv_bytes(Vec::new(), Cells::SpreadsheetSafe);
     };
     let n = t.dendrogram.n;
     let name = |id: usize| {
@@ -372,7 +459,7 @@ fn merges(o: &Outcome) -> (Vec<u8>, usize) {
             m.size.to_string(),
         ]);
     }
-    csv_bytes(rows)
+    csv_bytes(rows, Cells::SpreadsheetSafe)
 }
 
 fn newick(o: &Outcome) -> Vec<u8> {
@@ -510,14 +597,25 @@ mod spreadsheet_tests {
 
     #[test]
     fn a_csv_counts_the_cells_it_defused() {
-        let (bytes, n) = csv_bytes(vec![
-            vec!["key".into(), "segment".into()],
-            vec!["=1+1".into(), "-0.25".into()],
-        ]);
-        assert_eq!(n, 1);
+        let rows = || {
+            vec![
+                vec!["key".into(), "segment".into()],
+                vec!["=1+1".into(), "-0.25".into()],
+            ]
+        };
+        let csv = csv_bytes(rows(), Cells::SpreadsheetSafe);
+        assert_eq!((csv.defused, csv.formula_like), (1, 0));
+        let bytes = csv.bytes;
         assert_eq!(
             String::from_utf8(bytes).unwrap(),
             "key,segment\n'=1+1,-0.25\n"
+        );
+        // A machine file keeps the cell exactly and counts it all the same.
+        let csv = csv_bytes(rows(), Cells::Exact);
+        assert_eq!((csv.defused, csv.formula_like), (0, 1));
+        assert_eq!(
+            String::from_utf8(csv.bytes).unwrap(),
+            "key,segment\n=1+1,-0.25\n"
         );
     }
 }

@@ -17,3 +17,9 @@ pub mod sql;
 pub mod tables;
 
 pub use crate::text::short;
+
+/// The name a segment goes by in the hand-off and in the SQL queries'
+/// `segment_name`: its label, or `segment N` when it has none.
+pub fn segment_name(segment: usize, label: Option<&str>) -> String {
+    label.map_or_else(|| format!("segment {segment}"), str::to_string)
+}

@@ -1,10 +1,27 @@
 //! The segment model as one standard SQL query, so the customer database
 //! itself can put members in segments: the same fills, clips, transforms,
 //! scaling and weights as `assort assign`, the nearest centre, ties to the
-//! lower number. Only standard SQL is used (`COALESCE`, `CASE`, `LN`,
-//! `SQRT`, arithmetic, a common table expression); identifiers are quoted,
-//! numbers written with every digit Rust keeps (`{:?}`), so the database
-//! computes with the model's exact values.
+//! lower number. Only standard SQL is used (`CAST`, `TRIM`, `NULLIF`,
+//! `COALESCE`, `CASE`, `LN`, `SQRT`, arithmetic, common table
+//! expressions); identifiers are quoted, numbers written with every digit
+//! Rust keeps (`{:?}`), so the database computes with the model's exact
+//! values.
+//!
+//! **How a column is read.** A table may come typed (numbers as numbers,
+//! blanks as NULL) or as many loaders make it from a CSV file: every
+//! column text, a blank as `''`. Both give the same segments because each
+//! column is read once, in the `source` step, through its text form:
+//! - a number column: a value that is empty after trimming spaces is a
+//!   gap, any other is `CAST(.. AS DOUBLE PRECISION)` of the value itself
+//!   (a typed number is cast to itself, exactly; text is parsed);
+//! - a category column: the value as text (`CAST(.. AS VARCHAR)`, so a
+//!   store number stored as a number is read as its digits), spaces
+//!   removed at both ends, empty as the blank level.
+//!
+//! **One trimming rule**, shared with assort (see
+//! [`crate::text::trim_spaces`]): spaces (U+0020) at both ends are not part
+//! of a category value; every other character is, a tab or a non-breaking
+//! space included, because `TRIM` in SQL removes spaces only.
 //!
 //! The database's `LN`, `SQRT` and division may differ from assort's in the
 //! last bit, so a record whose two nearest centres are within about 1e-9
@@ -14,6 +31,7 @@
 use crate::plan::Transform;
 use crate::run::model::SegmentModel;
 use crate::run::prepare::BLANK_LEVEL;
+use crate::run::rules::SegmentRule;
 use std::fmt::Write as _;
 
 /// An identifier, double-quoted (quotes inside doubled).
@@ -51,29 +69,140 @@ pub fn number(v: f64) -> String {
     format!("{v:?}")
 }
 
+/// A number column as the queries read it: a gap when its text is empty
+/// after trimming spaces (NULL, or `''` in an all-text table), else the
+/// value cast to a double (see the module documentation).
+fn read_number(column: &str) -> String {
+    let col = ident(column);
+    format!("CASE WHEN TRIM(CAST({col} AS VARCHAR)) = '' THEN NULL ELSE CAST({col} AS DOUBLE PRECISION) END")
+}
+
+/// A category column as the queries read it: its text, spaces trimmed at
+/// both ends, NULL when nothing is left.
+fn read_text(column: &str) -> String {
+    format!("NULLIF(TRIM(CAST({} AS VARCHAR)), '')", ident(column))
+}
+
+/// The comment lines stating the table a query reads: a `CREATE TABLE`
+/// that makes it (key and category columns text, numbers doubles, blanks
+/// as NULL), and that an all-text table with blanks as `''` reads the same.
+fn table_comment(table: &str, key: &str, numbers: &[&str], texts: &[&str]) -> String {
+    let mut lines = vec![format!("--   {} VARCHAR", ident(key))];
+    lines.extend(
+        numbers
+            .iter()
+            .map(|c| format!("--   {} DOUBLE PRECISION", ident(c))),
+    );
+    lines.extend(texts.iter().map(|c| format!("--   {} VARCHAR", ident(c))));
+    let columns: Vec<String> = lines.iter().map(|l| comment(l)).collect();
+    format!(
+        "-- The table it reads, as this statement makes it (other columns may follow):\n\
+         -- CREATE TABLE {} (\n{}\n-- );\n\
+         -- Blanks may be NULL or '', and every column may be text instead (as sqlite3's\n\
+         -- .import and many CSV loaders make it): each number is cast from its text, each\n\
+         -- category value is read as text with spaces (only spaces) trimmed at both ends.\n",
+        comment(&ident(table)),
+        columns.join(",\n")
+    )
+}
+
 /// The query that scores every row of `table` with `model`: columns `key`
-/// (the model's key column), `segment` and `label`. Rows `assort assign`
-/// would leave out (a gap with no fill, a value outside its transform's
-/// domain) are left out by the `WHERE` clause.
+/// (the model's key column), `segment`, `label` (NULL for a segment without
+/// one, as the assignments file leaves it blank) and `segment_name` (as the
+/// hand-off names it). Rows `assort assign` would leave out (a gap with no
+/// fill, a value outside its transform's domain) are left out by the
+/// `WHERE` clause.
 pub fn scoring_query(model: &SegmentModel, table: &str, recipe: &str) -> String {
-    let (table_shown, recipe) = (comment(table), comment(recipe));
+    let numbers: Vec<&str> = model.features.iter().map(|f| f.column.as_str()).collect();
+    let texts: Vec<&str> = model.categories.iter().map(|c| c.column.as_str()).collect();
     let mut q = String::new();
+    let _ = write!(
+        q,
+        "-- Segments of recipe {}, as `assort assign` gives them, computed in the database.\n\
+         -- Rows with a gap the recipe does not fill, or a value its transform cannot take,\n\
+         -- get no segment, as with `assort assign`. Generated by assort; edit the recipe, not this.\n{}",
+        comment(recipe),
+        table_comment(table, &model.key, &numbers, &texts)
+    );
+    q.push_str(&source_step(&model.key, &numbers, &texts, table));
+    let (dims, guards) = dimensions(model);
+    let _ = writeln!(q, "prepared AS (\n  SELECT record_key");
+    for (i, d) in dims.iter().enumerate() {
+        let _ = writeln!(q, "    , {d} AS x{i}");
+    }
+    let _ = writeln!(q, "  FROM source");
+    if !guards.is_empty() {
+        let _ = writeln!(q, "  WHERE {}", guards.join("\n    AND "));
+    }
+    let _ = writeln!(q, "),\ndistances AS (\n  SELECT record_key");
+    for (s, centre) in model.centres.iter().enumerate() {
+        // Summed in dimension order, as assort sums.
+        let terms: Vec<String> = (0..dims.len())
+            .map(|i| {
+                let c = number(centre.get(i).copied().unwrap_or(0.0));
+                format!("(x{i} - {c}) * (x{i} - {c})")
+            })
+            .collect();
+        let _ = writeln!(q, "    , {} AS d{s}", terms.join(" + "));
+    }
     let _ = writeln!(
         q,
-        "-- Segments of recipe {recipe}, as `assort assign` gives them, computed in the database.\n\
-         -- Table {table_shown}: one row per record with the model's columns (numbers as numbers).\n\
-         -- Rows with a gap the recipe does not fill, or a value its transform cannot take,\n\
-         -- get no segment, as with `assort assign`. Generated by assort; edit the recipe, not this."
+        "  FROM prepared\n)\nSELECT record_key AS {}, CASE",
+        ident(&model.key)
     );
+    let k = model.centres.len();
+    let branches = |q: &mut String, value: &dyn Fn(usize) -> String| {
+        for s in 0..k {
+            let _ = writeln!(q, "    {} {}", when(s, k), value(s));
+        }
+    };
+    branches(&mut q, &|s| model.segments[s].segment.to_string());
+    let _ = writeln!(q, "  END AS segment, CASE");
+    branches(&mut q, &|s| {
+        model.segments[s]
+            .label
+            .as_deref()
+            .map_or("NULL".to_string(), text)
+    });
+    let _ = writeln!(q, "  END AS label, CASE");
+    branches(&mut q, &|s| {
+        let seg = &model.segments[s];
+        text(&super::segment_name(seg.segment, seg.label.as_deref()))
+    });
+    let _ = writeln!(
+        q,
+        "  END AS segment_name\nFROM distances\nORDER BY record_key;"
+    );
+    q
+}
+
+/// The first step of both queries: the key and each column the model
+/// reads, once, as [`read_number`] and [`read_text`] read them (`v0, v1,
+/// ..` and `t0, t1, ..`).
+fn source_step(key: &str, numbers: &[&str], texts: &[&str], table: &str) -> String {
+    let mut q = format!("WITH source AS (\n  SELECT {} AS record_key\n", ident(key));
+    for (i, c) in numbers.iter().enumerate() {
+        let _ = writeln!(q, "    , {} AS v{i}", read_number(c));
+    }
+    for (i, c) in texts.iter().enumerate() {
+        let _ = writeln!(q, "    , {} AS t{i}", read_text(c));
+    }
+    let _ = writeln!(q, "  FROM {}\n),", ident(table));
+    q
+}
+
+/// The model's dimensions as expressions over the `source` step's
+/// columns, and the conditions a row must meet to be scored.
+fn dimensions(model: &SegmentModel) -> (Vec<String>, Vec<String>) {
     let mut dims: Vec<String> = Vec::new();
     let mut guards: Vec<String> = Vec::new();
-    for f in &model.features {
-        let col = ident(&f.column);
+    for (i, f) in model.features.iter().enumerate() {
+        let col = format!("v{i}");
         let raw = match f.fill {
             Some(fill) => format!("COALESCE({col}, {})", number(fill)),
             None => {
                 guards.push(format!("{col} IS NOT NULL"));
-                col.clone()
+                col
             }
         };
         let clipped = match f.clip {
@@ -110,13 +239,12 @@ pub fn scoring_query(model: &SegmentModel, table: &str, recipe: &str) -> String 
             )
         });
     }
-    for c in &model.categories {
-        let col = ident(&c.column);
+    for (i, c) in model.categories.iter().enumerate() {
         for level in &c.levels {
             let is = if level == BLANK_LEVEL {
-                format!("({col} IS NULL OR TRIM({col}) = '')")
+                format!("t{i} IS NULL")
             } else {
-                format!("TRIM({col}) = {}", text(level))
+                format!("t{i} = {}", text(level))
             };
             dims.push(format!(
                 "(CASE WHEN {is} THEN {} ELSE 0.0 END)",
@@ -124,48 +252,7 @@ pub fn scoring_query(model: &SegmentModel, table: &str, recipe: &str) -> String 
             ));
         }
     }
-    let _ = writeln!(
-        q,
-        "WITH prepared AS (\n  SELECT {} AS record_key",
-        ident(&model.key)
-    );
-    for (i, d) in dims.iter().enumerate() {
-        let _ = writeln!(q, "    , {d} AS x{i}");
-    }
-    let _ = writeln!(q, "  FROM {}", ident(table));
-    if !guards.is_empty() {
-        let _ = writeln!(q, "  WHERE {}", guards.join("\n    AND "));
-    }
-    let _ = writeln!(q, "),\ndistances AS (\n  SELECT record_key");
-    for (s, centre) in model.centres.iter().enumerate() {
-        // Summed in dimension order, as assort sums.
-        let terms: Vec<String> = (0..dims.len())
-            .map(|i| {
-                let c = number(centre.get(i).copied().unwrap_or(0.0));
-                format!("(x{i} - {c}) * (x{i} - {c})")
-            })
-            .collect();
-        let _ = writeln!(q, "    , {} AS d{s}", terms.join(" + "));
-    }
-    let _ = writeln!(
-        q,
-        "  FROM prepared\n)\nSELECT record_key AS {}, CASE",
-        ident(&model.key)
-    );
-    let k = model.centres.len();
-    for s in 0..k {
-        let _ = writeln!(q, "    {} {}", when(s, k), model.segments[s].segment);
-    }
-    let _ = writeln!(q, "  END AS segment, CASE");
-    for s in 0..k {
-        let label = model.segments[s]
-            .label
-            .as_deref()
-            .map_or("NULL".to_string(), text);
-        let _ = writeln!(q, "    {} {label}", when(s, k));
-    }
-    let _ = writeln!(q, "  END AS label\nFROM distances\nORDER BY record_key;");
-    q
+    (dims, guards)
 }
 
 /// The branch of centre `s` of `k`: reached only when no earlier centre is
@@ -179,38 +266,92 @@ fn when(s: usize, k: usize) -> String {
     format!("WHEN {} THEN", cond.join(" AND "))
 }
 
-/// Each segment's rule as one query: the key and the segment and label of
-/// the first rule a record meets, rules in order of precision (highest
-/// first); a record no rule picks gets NULL. Gaps are filled as the recipe
-/// fills them, so the rules pick what their coverage and precision count.
-pub fn rules_query(
-    rules: &[crate::run::rules::SegmentRule],
-    key: &str,
-    table: &str,
-    recipe: &str,
-) -> String {
-    let ordered: Vec<&crate::run::rules::SegmentRule> = crate::run::rules::query_order(rules)
+/// Each segment's rule as one query: the key and the segment, label and
+/// segment name of the first rule a record meets, rules in order of
+/// precision (highest first); a record no rule picks gets NULL. Gaps are
+/// filled as the recipe fills them, so the rules pick what their coverage
+/// and precision count.
+pub fn rules_query(rules: &[SegmentRule], key: &str, table: &str, recipe: &str) -> String {
+    let ordered: Vec<&SegmentRule> = crate::run::rules::query_order(rules)
         .into_iter()
         .map(|i| &rules[i])
         .collect();
-    let recipe = comment(recipe);
+    let mut columns: Vec<&str> = Vec::new();
+    for c in ordered.iter().flat_map(|r| &r.conditions) {
+        if !columns.contains(&c.column.as_str()) {
+            columns.push(&c.column);
+        }
+    }
+    let mut q = rules_header(&ordered, recipe);
+    q.push_str(&table_comment(table, key, &columns, &[]));
+    q.push_str(&source_step(key, &columns, &[], table));
+    q.truncate(q.trim_end_matches([',', '\n']).len());
+    let when = |r: &SegmentRule| -> String {
+        r.conditions
+            .iter()
+            .map(|c| {
+                let at = columns.iter().position(|n| *n == c.column).unwrap_or(0);
+                let v = match c.fill {
+                    Some(f) => format!("COALESCE(v{at}, {})", number(f)),
+                    None => format!("v{at}"),
+                };
+                format!("{v} {} {}", c.op, number(c.value))
+            })
+            .collect::<Vec<_>>()
+            .join(" AND ")
+    };
+    let _ = write!(q, "\nSELECT record_key AS {}", ident(key));
+    let outputs: [OutputColumn<'_>; 3] = [
+        ("segment", &|r| r.segment.to_string()),
+        ("label", &|r| {
+            r.label.as_deref().map_or("NULL".to_string(), text)
+        }),
+        ("segment_name", &|r| {
+            text(&super::segment_name(r.segment, r.label.as_deref()))
+        }),
+    ];
+    for (name, value) in outputs {
+        if ordered.is_empty() {
+            // No rule has a condition: `CASE END` is not SQL.
+            let _ = write!(q, ",\n  NULL AS {name}");
+            continue;
+        }
+        let _ = writeln!(q, ",\n  CASE");
+        for r in &ordered {
+            let _ = writeln!(q, "    WHEN {} THEN {}", when(r), value(r));
+        }
+        let _ = write!(q, "  END AS {name}");
+    }
+    let _ = writeln!(q, "\nFROM source\nORDER BY record_key;");
+    q
+}
+
+/// One output column of the rules query: its name, and the value a rule
+/// gives it.
+type OutputColumn<'a> = (&'a str, &'a dyn Fn(&SegmentRule) -> String);
+
+/// The rules query's opening comment: what it is, and what it delivers
+/// per segment (a record goes to the first rule it meets, so a rule can
+/// deliver fewer than it picks alone).
+fn rules_header(ordered: &[&SegmentRule], recipe: &str) -> String {
     let mut q = String::new();
     let _ = writeln!(
         q,
-        "-- Segment rules of recipe {recipe}: each segment's rule of at most three conditions,\n\
+        "-- Segment rules of recipe {}: each segment's rule of at most three conditions,\n\
          -- highest precision first; a record no rule picks gets NULL. Generated by assort.\n\
          -- Rules describe segments; they do not reproduce them exactly. For the exact\n\
          -- segments use the scoring query. What this query delivers (a record goes to\n\
-         -- the first rule it meets, so a rule can deliver fewer than it picks alone):"
+         -- the first rule it meets, so a rule can deliver fewer than it picks alone):",
+        comment(recipe)
     );
-    for r in &ordered {
-        let share = |a: usize, b: usize| {
-            if b == 0 {
-                0.0
-            } else {
-                100.0 * a as f64 / b as f64
-            }
-        };
+    let share = |a: usize, b: usize| {
+        if b == 0 {
+            0.0
+        } else {
+            100.0 * a as f64 / b as f64
+        }
+    };
+    for r in ordered {
         let _ = writeln!(
             q,
             "--   segment {}: {} records, {} of them in the segment ({:.2} %), {:.2} % of the segment's {}",
@@ -222,34 +363,5 @@ pub fn rules_query(
             r.segment_size
         );
     }
-    let when = |r: &crate::run::rules::SegmentRule| -> String {
-        r.conditions
-            .iter()
-            .map(|c| {
-                let col = ident(&c.column);
-                let v = match c.fill {
-                    Some(f) => format!("COALESCE({col}, {})", number(f)),
-                    None => col,
-                };
-                format!("{v} {} {}", c.op, number(c.value))
-            })
-            .collect::<Vec<_>>()
-            .join(" AND ")
-    };
-    let _ = writeln!(q, "SELECT {},\n  CASE", ident(key));
-    for r in &ordered {
-        let _ = writeln!(q, "    WHEN {} THEN {}", when(r), r.segment);
-    }
-    let _ = writeln!(q, "  END AS segment,\n  CASE");
-    for r in &ordered {
-        let label = r.label.as_deref().map_or("NULL".to_string(), text);
-        let _ = writeln!(q, "    WHEN {} THEN {label}", when(r));
-    }
-    let _ = writeln!(
-        q,
-        "  END AS label\nFROM {}\nORDER BY {};",
-        ident(table),
-        ident(key)
-    );
     q
 }

@@ -76,7 +76,8 @@ pub fn read_assignments(path: &std::path::Path, shown: &str) -> Result<Vec<Assig
     let mut record = csv::StringRecord::new();
     while reader.read_record(&mut record).map_err(malformed)? {
         let line = record.position().map_or(0, |p| p.line());
-        let key = record.get(0).unwrap_or("").trim();
+        // Keys exactly as written, as the run keyed its records.
+        let key = record.get(0).unwrap_or("");
         if let Some(&first_line) = seen.get(key) {
             return Err(RunError::DuplicateKey {
                 place: super::error::Place {
@@ -91,7 +92,7 @@ pub fn read_assignments(path: &std::path::Path, shown: &str) -> Result<Vec<Assig
         }
         seen.insert(key.to_string(), line);
         out.push(Assigned {
-            key: record.get(0).unwrap_or("").trim().to_string(),
+            key: key.to_string(),
             segment: record.get(seg).unwrap_or("").trim().to_string(),
             label: label
                 .and_then(|l| record.get(l))

@@ -23,7 +23,8 @@ pub struct Table {
     pub numeric: Vec<NumericColumn>,
     /// The 1-based field number of each numeric column, for messages.
     pub fields: Vec<usize>,
-    /// One vector per text column asked for, trimmed.
+    /// One vector per text column asked for, spaces trimmed
+    /// ([`crate::text::trim_spaces`]).
     pub text: Vec<Vec<String>>,
 }
 
@@ -386,8 +387,10 @@ impl Decoder<'_> {
         };
         let key = match self.key_at {
             Some(at) => {
-                let key = field(at)?.trim();
-                if key.is_empty() {
+                // Kept exactly as written: every file assort writes gives
+                // the input's keys back (see `text::blank_key`).
+                let key = field(at)?;
+                if crate::text::blank_key(key) {
                     return Err(RunError::BlankKey { place: place(at) });
                 }
                 key.to_string()
@@ -411,7 +414,7 @@ impl Decoder<'_> {
         let texts = self
             .text_at
             .iter()
-            .map(|&at| Ok(field(at)?.trim().to_string()))
+            .map(|&at| Ok(crate::text::trim_spaces(field(at)?).to_string()))
             .collect::<Result<Vec<_>, RunError>>()?;
         Ok(Decoded { key, texts, line })
     }
@@ -467,4 +470,33 @@ pub fn file_sha256(path: &std::path::Path) -> Option<String> {
             .map(|b| format!("{b:02x}"))
             .collect(),
     )
+}
+
+/// A note for each text column (`columns`, as read into `table.text`) with
+/// values that keep white space other than a space at an end (see
+/// [`crate::text::trim_spaces`]): such a value is a level of its own, in
+/// assort and in the database alike, which the analyst should know.
+pub fn odd_space_notes(table: &Table, columns: &[String]) -> Vec<String> {
+    let mut notes = Vec::new();
+    for (values, column) in table.text.iter().zip(columns) {
+        let mut odd = values
+            .iter()
+            .enumerate()
+            .filter(|(_, v)| crate::text::odd_space_at_end(v));
+        let Some((first, example)) = odd.next() else {
+            continue;
+        };
+        let count = 1 + odd.count();
+        notes.push(format!(
+            "`{column}`: {} a tab or other white space besides a space at an end (first on line {}: {:?}); assort keeps it as part of the value, as a database's TRIM does, so such a value is a level of its own. Clean the data if it should not be",
+            if count == 1 {
+                "1 value has".to_string()
+            } else {
+                format!("{} values have", crate::text::thousands(count))
+            },
+            table.lines.get(first).copied().unwrap_or(0),
+            example,
+        ));
+    }
+    notes
 }

@@ -370,7 +370,9 @@ pub fn run_with(
     let numbered = number::number(plan, chosen, last.as_ref(), &prepared, table);
     let assignments = number::place(&prepared, table, &numbered);
     let (profiles, overall) = profile::profiles(&prepared, table, &numbered, &judged);
-    let notes = profile::notes(&fitted.candidates, &judged, &profiles, prepared.kept.len());
+    let mut notes = profile::notes(&fitted.candidates, &judged, &profiles, prepared.kept.len());
+    let categories: Vec<String> = plan.categories.iter().map(|c| c.column.clone()).collect();
+    notes.extend(load::odd_space_notes(table, &categories));
     let against = comparison::against(plan, &assignments, &numbered, last.as_ref())?;
     let fit = &numbered.fit;
     previous::check_labels_stay(

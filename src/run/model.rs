@@ -386,7 +386,8 @@ pub struct Table {
     pub keys: Vec<String>,
     /// Per feature, each record's field; `None` where blank.
     pub numeric_raw: Vec<Vec<Option<String>>>,
-    /// Per category, each record's trimmed value.
+    /// Per category, each record's value, spaces trimmed
+    /// ([`crate::text::trim_spaces`]).
     pub text: Vec<Vec<String>>,
 }
 
@@ -432,10 +433,10 @@ pub fn read_for_scoring(
     while reader.read_record(&mut record).map_err(malformed)? {
         let line = record.position().map_or(0, |p| p.line());
         let key = match key_at {
-            Some(at) => record.get(at).unwrap_or("").trim().to_string(),
+            Some(at) => record.get(at).unwrap_or("").to_string(),
             None => line.to_string(),
         };
-        if let (Some(at), true) = (key_at, key.is_empty()) {
+        if let (Some(at), true) = (key_at, crate::text::blank_key(&key)) {
             return Err(RunError::BlankKey {
                 place: super::error::Place {
                     file: shown.to_string(),
@@ -455,7 +456,7 @@ pub fn read_for_scoring(
             });
         }
         for (col, &at) in table.text.iter_mut().zip(&text_at) {
-            col.push(record.get(at).unwrap_or("").trim().to_string());
+            col.push(crate::text::trim_spaces(record.get(at).unwrap_or("")).to_string());
         }
     }
     Ok(table)

@@ -81,13 +81,27 @@ pub struct Prepared {
     /// two such columns counts in both).
     pub dropped_by: Vec<(String, usize)>,
     pub dropped: usize,
+    /// Each dropped record, in file order (the hand-off says why a record
+    /// has no segment).
+    pub left_out: Vec<LeftOut>,
+}
+
+/// A record dropped by `missing drop`.
+#[derive(Debug, Clone)]
+pub struct LeftOut {
+    /// Its row in the table, and its key.
+    pub row: usize,
+    pub key: String,
+    /// The features (by plan position) it has a gap in, among those whose
+    /// rule drops the record.
+    pub gaps: Vec<usize>,
 }
 
 pub const BLANK_LEVEL: &str = "(blank)";
 
 pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
     let n = table.keys.len();
-    let (kept, dropped_by) = drop_rows(plan, table);
+    let (kept, dropped_by, left_out) = drop_rows(plan, table);
     let mut params = plan
         .features
         .iter()
@@ -121,15 +135,21 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
         features: params,
         categories,
         dropped_by,
+        left_out,
     })
 }
 
-/// Step 1, missing values that drop records: the records kept, and how
-/// many each `missing drop` column dropped.
-fn drop_rows(plan: &Plan, table: &Table) -> (Vec<usize>, Vec<(String, usize)>) {
+/// Records kept, how many each `missing drop` column dropped, and each
+/// dropped record's row with the features it has a gap in.
+type Drops = (Vec<usize>, Vec<(String, usize)>, Vec<LeftOut>);
+
+/// Step 1, missing values that drop records: the records kept, how many
+/// each `missing drop` column dropped, and why each dropped record was.
+fn drop_rows(plan: &Plan, table: &Table) -> Drops {
     let n = table.keys.len();
     let mut keep = vec![true; n];
     let mut dropped_by = Vec::new();
+    let mut drop_columns = Vec::new();
     for (f, fp) in plan.features.iter().enumerate() {
         if fp.missing == MissingRule::DropRow {
             let mut count = 0;
@@ -140,9 +160,24 @@ fn drop_rows(plan: &Plan, table: &Table) -> (Vec<usize>, Vec<(String, usize)>) {
                 }
             }
             dropped_by.push((fp.column.clone(), count));
+            drop_columns.push(f);
         }
     }
-    ((0..n).filter(|&i| keep[i]).collect(), dropped_by)
+    let kept = (0..n).filter(|&i| keep[i]).collect();
+    // Only the dropped records are looked at again, for why.
+    let left_out = (0..n)
+        .filter(|&i| !keep[i])
+        .map(|row| LeftOut {
+            row,
+            key: table.keys.get(row).to_string(),
+            gaps: drop_columns
+                .iter()
+                .copied()
+                .filter(|&f| table.numeric[f].get(row).is_none())
+                .collect(),
+        })
+        .collect();
+    (kept, dropped_by, left_out)
 }
 
 /// Step 1, missing values that are filled: feature `f`'s fill value and

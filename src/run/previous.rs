@@ -476,9 +476,15 @@ fn weak_by_members(
     let total: usize = (0..k).map(|t| shared[t * pk + p]).sum();
     let weak = total == 0 || 2 * here < total;
     let why = weak.then(|| {
-        format!(
-            "only {here} of the {total} members of previous segment {number} found in this run are in it"
-        )
+        if total == 0 {
+            format!(
+                "none of the members of previous segment {number} are among this run's records: their keys are not in this run's data"
+            )
+        } else {
+            format!(
+                "only {here} of the {total} members of previous segment {number} found in this run are in it"
+            )
+        }
     });
     (weak, why, Some(here))
 }
