@@ -391,3 +391,93 @@ fn drift_matches_an_independent_computation_and_warns_only_when_shifted() {
         .ok();
     assert!(!plain.stderr().contains("warning"), "{}", plain.stderr());
 }
+
+#[test]
+fn a_previous_model_made_with_other_settings_is_named_with_the_differences() {
+    // Last quarter's model came from a robust-scaled recipe with fewer k;
+    // this recipe scales by z-score: the check and the run name both sides.
+    let case = Case::demo();
+    case.edit(DEMO, "scale zscore", "scale robust").edit(
+        DEMO,
+        "kmeans k 2..8 restarts 50",
+        "kmeans k 2..6 restarts 20",
+    );
+    case.run(DEMO).ok();
+    case.edit(DEMO, "scale robust", "scale zscore")
+        .edit(
+            DEMO,
+            "kmeans k 2..6 restarts 20",
+            "kmeans k 2..8 restarts 50",
+        )
+        .edit(
+            DEMO,
+            "label 1 ",
+            "previous \"out/segment_model.json\" assignments \"out/member_segments.csv\"\nlabel 1 ",
+        );
+    let said = "last run's model was made with other settings (recipe `coop-member-segments`): it had `scale robust`, `kmeans k 2..6 restarts 20`; this recipe has `scale zscore`, `kmeans k 2..8 restarts 50`";
+    case.assort(&["check", DEMO], &[]).ok().stderr_has(said);
+    case.run(DEMO).ok().stderr_has(said);
+}
+
+#[test]
+fn the_same_settings_are_not_named_and_a_model_without_them_is_read_as_before() {
+    let case = last_quarter_then_next();
+    case.edit(
+        DEMO,
+        "label 1 ",
+        "previous \"out/segment_model.json\" assignments \"out/member_segments.csv\"\nlabel 1 ",
+    );
+    let check = case.assort(&["check", DEMO], &[]).ok();
+    assert!(
+        !check.stderr().contains("other settings"),
+        "{}",
+        check.stderr()
+    );
+    // The model records the statements that shaped it, one line each.
+    let model: serde_json::Value =
+        serde_json::from_str(&case.read("out/segment_model.json")).unwrap();
+    let settings = model["provenance"]["settings"].as_array().unwrap();
+    assert!(settings.iter().any(|s| s == "features tenure_months, visits_per_month, basket_value, share_fresh, share_bulk, share_prepared, online_ratio, coupon_rate"), "{settings:?}");
+    assert!(settings.iter().any(|s| s == "scale zscore"), "{settings:?}");
+}
+
+#[test]
+fn a_second_run_on_the_same_data_says_it_compares_the_data_with_itself() {
+    // The README's first next-quarter line points at the recipe's own
+    // outputs: after one run on the new data, a second run (a label fixed,
+    // say) would compare the quarter with itself.
+    let case = last_quarter_then_next();
+    case.edit(
+        DEMO,
+        "label 1 ",
+        "previous \"out/segment_model.json\" assignments \"out/member_segments.csv\"\nlabel 1 ",
+    );
+    let first = case.run(DEMO).ok();
+    assert!(
+        !first.stdout().contains("this same data"),
+        "{}",
+        first.stdout()
+    );
+    // The period was not changed for the new data: said on the first run.
+    assert!(
+        common::case::unwrapped(&first.stdout()).contains(
+            "the recipe's period is still \"the twelve months to September 2026\", as last run's"
+        ),
+        "{}",
+        first.stdout()
+    );
+    let second = case.run(DEMO).ok();
+    assert!(
+        common::case::unwrapped(&second.stdout())
+            .contains("warning: last run's model was made from this same data"),
+        "{}",
+        second.stdout()
+    );
+    let report = case.read("out/segment_report.html");
+    assert!(
+        report.contains("Nothing to compare: last run&#39;s model was made from this same data")
+            || report.contains("Nothing to compare: last run's model was made from this same data"),
+        "the report does not show the quarter compared with itself"
+    );
+    assert!(!report.contains("<table class=\"changes\">"));
+}

@@ -525,6 +525,20 @@ pub enum CheckError {
         help: String,
     },
 
+    #[error("last run's model was made with other settings (recipe `{recipe}`): it had {then}; this recipe has {now}")]
+    #[diagnostic(
+        code(assort::previous_other_settings),
+        severity(Warning),
+        help("segment numbers and names are carried over to this run's segments by shared members (or centres), so last run's names may land on segments made differently; if the change is meant, check each name against its profile before the hand-off goes out, and if not, point `previous` at the model this recipe made")
+    )]
+    PreviousOtherSettings {
+        recipe: String,
+        then: String,
+        now: String,
+        #[label("made with other settings")]
+        span: Span,
+    },
+
     #[error("only one k is fitted, so `choose k by {criterion}` has nothing to choose from")]
     #[diagnostic(
         code(assort::nothing_to_choose),

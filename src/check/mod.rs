@@ -197,6 +197,16 @@ pub fn check_with(source: &RecipeSource, options: &CheckOptions) -> Checked {
             .collect(),
         end: end_span(&source.text),
         category_spans: HashMap::new(),
+        // Only a `previous` statement compares them.
+        settings: if tree
+            .statements
+            .iter()
+            .any(|s| matches!(s.kind, StatementKind::Previous { .. }))
+        {
+            syntax::shaping_statements(&source.text)
+        } else {
+            Vec::new()
+        },
     };
     let mut plan = cx.plan(&tree.statements);
     if let Some(plan) = plan.as_mut() {
@@ -331,6 +341,9 @@ struct Checker {
     /// Every file the recipe reads (real path, span), so no output can
     /// overwrite one.
     reads: Vec<(PathBuf, Span)>,
+    /// The statements that shape the segments, to compare with those a
+    /// `previous` model records.
+    settings: Vec<String>,
 }
 
 /// How to mend a data file in another encoding.

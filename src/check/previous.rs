@@ -21,9 +21,21 @@ use crate::plan::MODEL_FORMATS_READ as FORMATS;
 #[derive(Deserialize)]
 struct ModelView {
     format: String,
+    #[serde(default)]
+    provenance: ProvenanceView,
     features: Vec<Named>,
     categories: Vec<Named>,
     segments: Vec<Numbered>,
+}
+
+/// What the checker reads of a model's provenance: the recipe that made
+/// it and the statements that shaped its segments (none in older models).
+#[derive(Deserialize, Default)]
+struct ProvenanceView {
+    #[serde(default)]
+    recipe: String,
+    #[serde(default)]
+    settings: Vec<String>,
 }
 
 #[derive(Deserialize)]
@@ -85,6 +97,9 @@ impl Checker {
         let resolved = self.safe_path(path)?;
         let model = self.previous_model(path, &resolved)?;
         let ok = self.same_columns(path, &model, features, categories);
+        if ok {
+            self.same_settings(path, &model.provenance);
+        }
         let highest = model.segments.iter().map(|s| s.segment).max().unwrap_or(0);
         let assignments = assignments?;
         ok.then(|| {
@@ -140,6 +155,40 @@ impl Checker {
             return None;
         }
         Some(model)
+    }
+
+    /// Warns when last run's model was made with other settings than this
+    /// recipe's (another scaling, transform, method, k range, seed...),
+    /// listing the statements on each side: its segment names would be
+    /// carried to segments made differently.
+    fn same_settings(&mut self, path: &Spanned<String>, made: &ProvenanceView) {
+        if made.settings.is_empty() {
+            return;
+        }
+        let missing_from = |a: &[String], b: &[String]| -> Vec<String> {
+            a.iter()
+                .filter(|s| !b.contains(s))
+                .map(|s| format!("`{s}`"))
+                .collect()
+        };
+        let then = missing_from(&made.settings, &self.settings);
+        let now = missing_from(&self.settings, &made.settings);
+        if then.is_empty() && now.is_empty() {
+            return;
+        }
+        let list = |v: Vec<String>| {
+            if v.is_empty() {
+                "nothing else".to_string()
+            } else {
+                v.join(", ")
+            }
+        };
+        self.err(CheckError::PreviousOtherSettings {
+            recipe: made.recipe.clone(),
+            then: list(then),
+            now: list(now),
+            span: path.span,
+        });
     }
 
     /// Whether the model clustered on this recipe's columns, reporting

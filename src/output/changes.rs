@@ -43,6 +43,22 @@ pub struct Changes {
     /// This run's data against last run's training data (models of format
     /// 2 on).
     pub drift: Option<crate::run::model::Drift>,
+    /// Last run's model was made from this very data: nothing changed, and
+    /// the comparison says nothing about the quarter.
+    pub same_data: bool,
+    /// The recipe's period, when it is still last run's on other data:
+    /// the report would date this quarter as the last.
+    pub period_unchanged: Option<String>,
+}
+
+/// What the terminal and the report say when `previous` names a model made
+/// from this run's own data.
+pub const SAME_DATA: &str = "last run's model was made from this same data (the file's digest is the one the model records), so this compares the data with itself and every change is zero. For next quarter's comparison, copy last run's model and assignments aside before running on the new data, and point `previous` at the copies (docs/language.md, `previous`)";
+
+/// Last run's period, when this run's recipe still gives it on other data.
+fn period_unchanged(o: &Outcome, then: &crate::run::previous::Then) -> Option<String> {
+    let period = then.period.as_ref()?;
+    (!then.same_data && o.plan.period.as_ref() == Some(period)).then(|| period.clone())
 }
 
 impl Changes {
@@ -122,7 +138,24 @@ impl Changes {
             segments,
             cost: m.cost,
             drift: o.drift.clone(),
+            same_data: then.same_data,
+            period_unchanged: period_unchanged(o, then),
         })
+    }
+
+    /// What the analyst must hear before reading the comparison: it
+    /// compares the data with itself, or the period was not changed.
+    pub fn warnings(&self) -> Vec<String> {
+        let mut out = Vec::new();
+        if self.same_data {
+            out.push(SAME_DATA.to_string());
+        }
+        if let Some(period) = &self.period_unchanged {
+            out.push(format!(
+                "the recipe's period is still \"{period}\", as last run's; change `period` in the `recipe` statement so the report dates this data"
+            ));
+        }
+        out
     }
 
     /// The segment that grew most in share, and by how many points.
@@ -164,6 +197,9 @@ pub fn terminal(c: &Changes) -> String {
         thousands(c.records_now),
         c.basis
     );
+    for w in c.warnings() {
+        let _ = writeln!(s, "  warning: {w}");
+    }
     let matched = c.segments.iter().filter(|ch| ch.status == "kept").count();
     let _ = writeln!(
         s,
@@ -220,7 +256,25 @@ pub fn terminal(c: &Changes) -> String {
             ch.weak.as_deref().unwrap_or("")
         );
     }
-    let _ = writeln!(s, "  means, then -> now:");
+    s.push_str(&means_lines(c));
+    if let Some(d) = &c.drift {
+        s.push_str(&drift_lines(d));
+    }
+    if c.segments
+        .iter()
+        .any(|ch| ch.status == "kept" && ch.means_then.is_none())
+    {
+        let _ = writeln!(
+            s,
+            "    (the previous model predates means in models; rerun last quarter's recipe to see them)"
+        );
+    }
+    s
+}
+
+/// Each segment's means then and now, one line per segment both runs have.
+fn means_lines(c: &Changes) -> String {
+    let mut s = String::from("  means, then -> now:\n");
     for ch in &c.segments {
         let (Some(then), Some(now)) = (&ch.means_then, &ch.means_now) else {
             continue;
@@ -236,18 +290,6 @@ pub fn terminal(c: &Changes) -> String {
             "    {}: {}",
             named(ch.number, ch.label.as_deref()),
             parts.join(", ")
-        );
-    }
-    if let Some(d) = &c.drift {
-        s.push_str(&drift_lines(d));
-    }
-    if c.segments
-        .iter()
-        .any(|ch| ch.status == "kept" && ch.means_then.is_none())
-    {
-        let _ = writeln!(
-            s,
-            "    (the previous model predates means in models; rerun last quarter's recipe to see them)"
         );
     }
     s

@@ -136,7 +136,9 @@ fn render_other(o: &Outcome, kind: OutputKind, sources: &Sources<'_>) -> Vec<u8>
                 .find(|i| i.role == "input")
                 .map(|i| i.sha256.clone())
                 .unwrap_or_default();
-            crate::run::model::to_bytes(&crate::run::model::from_outcome(o, sha))
+            let mut model = crate::run::model::from_outcome(o, sha);
+            model.provenance.settings = crate::syntax::shaping_statements(sources.recipe_text);
+            crate::run::model::to_bytes(&model)
         }
         OutputKind::Report => super::report::render(o, sources),
         OutputKind::Scoring => {

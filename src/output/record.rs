@@ -204,7 +204,7 @@ impl Difference {
         match self {
             Difference::RecipeChanged => "the recipe was edited after the run: compare it with the version that ran (in version control), or run it again to record the new one".into(),
             Difference::VersionChanged { recorded, .. } => format!("verify with assort {recorded}, the version that ran, or run again to record this version's results"),
-            Difference::DataChanged { path, .. } => format!("the run read another `{path}`: restore that file to verify, or run again on the new data and keep the new record"),
+            Difference::DataChanged { path, .. } => format!("the run read another `{path}`: restore that file to verify; if it is next quarter's data and the recipe has `previous`, copy last run's model and assignments aside first and point `previous` at the copies (a rerun replaces them), change `period`, then run again and keep the new record"),
             Difference::ResultsDiffer { .. } | Difference::ChosenKChanged { .. } => "expected when the recipe, data or version changed (see above); if nothing else differs, keep both files and report it: reruns are meant to be identical".into(),
             Difference::OutputEdited { path } => format!("`{path}` was changed after the run: keep the edited copy under another name if it matters, then run again to write it afresh"),
             Difference::OutputMissing { path } => format!("`{path}` was deleted or moved after the run: run the recipe again to write it"),

@@ -464,8 +464,34 @@ fn provenance(h: &mut String, o: &Outcome, sources: &Sources<'_>) {
 
 /// "What changed since last run": sizes and shares then and now, the
 /// migration of shared members by name, and the means then and now.
+/// What the report says before the comparison: that there is none (last
+/// run's model was made from this data; false then), or that the period
+/// was not changed.
+fn caveats(h: &mut String, c: &super::changes::Changes) -> bool {
+    if c.same_data {
+        // A quarter compared with itself is not shown as a comparison.
+        let _ = write!(
+            h,
+            "<h2>What changed since last run</h2>\n<p>Nothing to compare: {}.</p>\n",
+            esc(super::changes::SAME_DATA)
+        );
+        return false;
+    }
+    if let Some(period) = &c.period_unchanged {
+        let _ = write!(
+            h,
+            "<p><b>Check the dates:</b> the recipe still says the data covers {}, as last run's did.</p>\n",
+            esc(period)
+        );
+    }
+    true
+}
+
 fn changed(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
     use crate::text::thousands;
+    if !caveats(h, c) {
+        return;
+    }
     let _ = write!(
         h,
         "<h2>What changed since last run</h2>\n<p>Segments were matched one to one with those of <code>{}</code> ({} records then, {} now) on their {}; a matched segment keeps its number and name.</p>\n",
@@ -509,28 +535,7 @@ fn changed(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
     }
     let _ = write!(h, "</table>\n");
     if let Some(cmp) = &o.comparison {
-        let name =
-            |labels: &std::collections::HashMap<String, String>, seg: &str| match labels.get(seg) {
-                Some(l) => format!("{seg} {l}"),
-                None => seg.to_string(),
-            };
-        let _ = write!(
-            h,
-            "<p>Where last run's members went ({} in both runs):</p>\n<table class=\"changes\"><tr><th>last run</th>",
-            thousands(cmp.both)
-        );
-        for t in &cmp.migration.to {
-            let _ = write!(h, "<th>{}</th>", esc(&name(&cmp.new_labels, t)));
-        }
-        let _ = write!(h, "</tr>\n");
-        for (i, f) in cmp.migration.from.iter().enumerate() {
-            let _ = write!(h, "<tr><td>{}</td>", esc(&name(&cmp.old_labels, f)));
-            for n in &cmp.migration.counts[i] {
-                let _ = write!(h, "<td>{}</td>", thousands(*n));
-            }
-            let _ = write!(h, "</tr>\n");
-        }
-        let _ = write!(h, "</table>\n");
+        migration_table(h, cmp);
     }
     if let Some(d) = &c.drift {
         let parts: Vec<String> = d
@@ -548,6 +553,38 @@ fn changed(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
             let _ = write!(h, "<div class=\"caution\"><p>{}</p></div>\n", esc(w));
         }
     }
+    means_table(h, c);
+}
+
+/// Where last run's members went, segment by segment (with `compare`).
+fn migration_table(h: &mut String, cmp: &crate::run::comparison::Comparison) {
+    use crate::text::thousands;
+    let name = |labels: &std::collections::HashMap<String, String>, seg: &str| match labels.get(seg)
+    {
+        Some(l) => format!("{seg} {l}"),
+        None => seg.to_string(),
+    };
+    let _ = write!(
+        h,
+        "<p>Where last run's members went ({} in both runs):</p>\n<table class=\"changes\"><tr><th>last run</th>",
+        thousands(cmp.both)
+    );
+    for t in &cmp.migration.to {
+        let _ = write!(h, "<th>{}</th>", esc(&name(&cmp.new_labels, t)));
+    }
+    let _ = write!(h, "</tr>\n");
+    for (i, f) in cmp.migration.from.iter().enumerate() {
+        let _ = write!(h, "<tr><td>{}</td>", esc(&name(&cmp.old_labels, f)));
+        for n in &cmp.migration.counts[i] {
+            let _ = write!(h, "<td>{}</td>", thousands(*n));
+        }
+        let _ = write!(h, "</tr>\n");
+    }
+    let _ = write!(h, "</table>\n");
+}
+
+/// Each segment's means then and now, for the segments both runs have.
+fn means_table(h: &mut String, c: &super::changes::Changes) {
     let with_means: Vec<&super::changes::Change> = c
         .segments
         .iter()

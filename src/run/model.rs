@@ -170,6 +170,14 @@ pub struct Provenance {
     pub records: usize,
     pub seed: u64,
     pub method: String,
+    /// The statements of the recipe that shaped the segments, as
+    /// [`crate::syntax::shaping_statements`] gives them; absent in models
+    /// written before they were recorded.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub settings: Vec<String>,
+    /// The period the data covered (`recipe ... period`), when given.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub period: Option<String>,
 }
 
 #[derive(Debug, Clone, Serialize, Deserialize)]
@@ -201,6 +209,8 @@ pub fn from_outcome(o: &Outcome, input_sha256: String) -> SegmentModel {
             records: o.records,
             seed: o.plan.seed,
             method,
+            settings: Vec::new(),
+            period: o.plan.period.clone(),
         },
         key: o.plan.input.key.clone(),
         keyless: o.plan.input.keyless,

@@ -43,6 +43,8 @@ pub struct PreviousRun {
     pub centres: Array2<f64>,
     /// What was read, with digests.
     pub digests: Vec<Digest>,
+    /// The model was made from this run's data (see [`Then::same_data`]).
+    pub same_data: bool,
 }
 
 /// A file last run left, as this run read it.
@@ -60,10 +62,15 @@ impl PreviousRun {
         plan: &crate::plan::Plan,
         prepared: &Prepared,
     ) -> Result<Option<PreviousRun>, RunError> {
-        match &plan.previous {
-            Some(p) => Ok(Some(PreviousRun::read(p, prepared)?)),
-            None => Ok(None),
-        }
+        let Some(p) = &plan.previous else {
+            return Ok(None);
+        };
+        let mut last = PreviousRun::read(p, prepared)?;
+        // One more pass over the input, only with `previous`: the model
+        // records the digest of the data it was made from.
+        last.same_data = super::load::file_sha256(&plan.input.resolved)
+            .is_some_and(|sha| sha == last.model.provenance.input_sha256);
+        Ok(Some(last))
     }
 
     /// Reads the model (and assignments) a plan names and maps the model's
@@ -106,6 +113,7 @@ impl PreviousRun {
             assignments,
             centres,
             digests,
+            same_data: false,
         })
     }
 
@@ -194,6 +202,8 @@ impl PreviousRun {
                 .map(|f| f.column.clone())
                 .collect(),
             digests: self.digests.clone(),
+            same_data: self.same_data,
+            period: self.model.provenance.period.clone(),
         }
     }
 }
@@ -211,6 +221,11 @@ pub struct Then {
     pub features: Vec<String>,
     /// The files read, with their digests.
     pub digests: Vec<Digest>,
+    /// Last run's model was made from this run's data (the same digest):
+    /// the comparison is the data with itself.
+    pub same_data: bool,
+    /// The period last run's data covered, as its recipe said.
+    pub period: Option<String>,
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -638,6 +653,7 @@ fn moved_by_centres(
         shown: shown.to_string(),
         assignments: None,
         digests: Vec::new(),
+        same_data: false,
     };
     let m = match_segments(&last, labels, centres, std::iter::empty());
     let mut moves = Vec::new();

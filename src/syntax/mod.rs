@@ -444,6 +444,43 @@ fn describe(rule: Rule) -> &'static str {
     }
 }
 
+/// The statements that shape the segments (the seed, which columns, how
+/// they are prepared, which method, how k is chosen), each on one line as
+/// `assort fmt` writes it, in recipe order. A segment model records them,
+/// so a later run's `previous` can say when last run's model came from
+/// other settings. A recipe that does not format is taken as written.
+pub fn shaping_statements(src: &str) -> Vec<String> {
+    let formatted = format::format(src).unwrap_or_else(|_| src.to_string());
+    parse(&formatted)
+        .statements
+        .iter()
+        .filter(|s| {
+            matches!(
+                s.kind,
+                StatementKind::Seed { .. }
+                    | StatementKind::Features(_)
+                    | StatementKind::Categories { .. }
+                    | StatementKind::Missing { .. }
+                    | StatementKind::Transform { .. }
+                    | StatementKind::Scale { .. }
+                    | StatementKind::Weight { .. }
+                    | StatementKind::KMeans { .. }
+                    | StatementKind::Tree { .. }
+                    | StatementKind::Choose { .. }
+            )
+        })
+        .filter_map(|s| formatted.get(s.span.start..s.span.end))
+        .map(|text| {
+            // Continuation lines joined, comments left out.
+            text.lines()
+                .map(|l| l.split(" #").next().unwrap_or(l).trim())
+                .filter(|l| !l.is_empty() && !l.starts_with('#'))
+                .collect::<Vec<_>>()
+                .join(" ")
+        })
+        .collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
