@@ -184,7 +184,9 @@ pub struct Csv {
 }
 
 /// A CSV file's bytes, cells written as `cells` says.
-fn csv_bytes(rows: Vec<Vec<String>>, cells: Cells) -> Csv {
+/// Rows come one at a time, so a file of a million records is never held
+/// twice (as rows and as bytes).
+fn csv_bytes(rows: impl IntoIterator<Item = Vec<String>>, cells: Cells) -> Csv {
     let mut w = csv::WriterBuilder::new()
         .terminator(csv::Terminator::Any(b'\n'))
         .from_writer(Vec::new());
@@ -272,41 +274,39 @@ fn handoff(o: &Outcome) -> Csv {
         let verb = if names.len() == 1 { "is" } else { "are" };
         format!("{} {verb} blank", crate::text::and_list(&names))
     };
-    let mut rows = vec![[
+    let header = [
         o.plan.input.key.as_str(),
         "segment",
         "segment_name",
         "no_segment_because",
     ]
     .map(str::to_string)
-    .to_vec()];
-    let mut left_out = o.prepared.left_out.iter().peekable();
-    for (i, a) in o.assignments.iter().enumerate() {
-        let row = o.prepared.kept[i];
-        while let Some(l) = left_out.next_if(|l| l.row < row) {
-            rows.push(vec![
-                l.key.clone(),
-                String::new(),
-                NO_SEGMENT.into(),
-                why(&l.gaps),
-            ]);
-        }
-        rows.push(vec![
-            a.key.to_string(),
-            a.segment.to_string(),
-            name(a.segment),
-            String::new(),
-        ]);
-    }
-    for l in left_out {
-        rows.push(vec![
+    .to_vec();
+    let left = |l: &crate::run::prepare::LeftOut| {
+        vec![
             l.key.clone(),
             String::new(),
             NO_SEGMENT.into(),
             why(&l.gaps),
-        ]);
-    }
-    csv_bytes(rows, Cells::Exact)
+        ]
+    };
+    // The left-out and the segmented records merged back into file order.
+    let mut left_out = o.prepared.left_out.iter().peekable();
+    let mut assigned = o.assignments.iter().enumerate().peekable();
+    let body = std::iter::from_fn(move || {
+        let next_row = assigned.peek().map(|(i, _)| o.prepared.kept[*i]);
+        if let Some(l) = left_out.next_if(|l| next_row.is_none_or(|r| l.row < r)) {
+            return Some(left(l));
+        }
+        let (_, a) = assigned.next()?;
+        Some(vec![
+            a.key.to_string(),
+            a.segment.to_string(),
+            name(a.segment),
+            String::new(),
+        ])
+    });
+    csv_bytes(std::iter::once(header).chain(body), Cells::Exact)
 }
 
 fn assignments(o: &Outcome) -> Csv {
@@ -320,20 +320,19 @@ pub fn assignments_csv(
     assignments: &Assignments,
     label: impl Fn(usize) -> String,
 ) -> Csv {
-    let mut rows = vec![[key, "segment", "label", "distance", "nearer_by"]
-        .iter()
-        .map(|s| s.to_string())
-        .collect::<Vec<_>>()];
-    for a in assignments.iter() {
-        rows.push(vec![
+    let header = [key, "segment", "label", "distance", "nearer_by"]
+        .map(str::to_string)
+        .to_vec();
+    let body = assignments.iter().map(|a| {
+        vec![
             a.key.to_string(),
             a.segment.to_string(),
             label(a.segment),
             f6(a.distance),
             f6(a.margin),
-        ]);
-    }
-    csv_bytes(rows, Cells::Exact)
+        ]
+    });
+    csv_bytes(std::iter::once(header).chain(body), Cells::Exact)
 }
 
 /// Column names for category levels: `column=level`.
