@@ -49,6 +49,11 @@ enum Command {
         /// Write the assignments here instead of to standard output.
         #[arg(long, value_name = "FILE")]
         out: Option<PathBuf>,
+        /// A numeric feature these records differ in by design, such as
+        /// new joiners' tenure: its shift is shown but not warned about,
+        /// and distances to the centres leave it out (repeatable).
+        #[arg(long = "expect-shift", value_name = "COLUMN")]
+        expect_shift: Vec<String>,
     },
     /// An interactive session: enter statements one by one, each checked
     /// at once; run, look, change, and save the result as a recipe.
@@ -232,7 +237,12 @@ fn main() -> ExitCode {
                 verify(&args, source, plan, diagnostics)
             })
         }
-        Command::Assign { model, data, out } => assign(&model, &data, out.as_deref()),
+        Command::Assign {
+            model,
+            data,
+            out,
+            expect_shift,
+        } => assign(&model, &data, out.as_deref(), &expect_shift),
         Command::Fmt { check, files } => fmt(check, &files),
         Command::Lsp => match assort::lsp::serve() {
             Ok(()) => ExitCode::SUCCESS,
@@ -290,7 +300,7 @@ fn main() -> ExitCode {
     }
 }
 
-fn assign(model_path: &Path, data: &Path, out: Option<&Path>) -> ExitCode {
+fn assign(model_path: &Path, data: &Path, out: Option<&Path>, expect_shift: &[String]) -> ExitCode {
     let fail = |e: run::RunError| {
         eprint!("{}", diagnostic::render_bare(&e, colour()));
         ExitCode::FAILURE
@@ -309,11 +319,18 @@ fn assign(model_path: &Path, data: &Path, out: Option<&Path>) -> ExitCode {
         Ok(m) => m,
         Err(e) => return fail(e),
     };
+    let expected = match expected_features(&model, expect_shift) {
+        Ok(e) => e,
+        Err(message) => {
+            eprintln!("{message}");
+            return ExitCode::FAILURE;
+        }
+    };
     let table = match run::model::read_for_scoring(data, &shown(data), &model) {
         Ok(t) => t,
         Err(e) => return fail(e),
     };
-    let (assignments, summary) = run::model::score(&model, &table);
+    let (assignments, summary) = run::model::score(&model, &table, &expected);
     let label = |s: usize| {
         model
             .segments
@@ -663,6 +680,31 @@ fn defused_note(n: usize) -> String {
         if n == 1 { "was" } else { "were" },
         if n == 1 { "it shows" } else { "they show" }
     )
+}
+
+/// The model's numeric features named by `--expect-shift`, by position;
+/// a name that is not one of them is an error naming those it has.
+fn expected_features(
+    model: &run::model::SegmentModel,
+    names: &[String],
+) -> Result<Vec<usize>, String> {
+    names
+        .iter()
+        .map(|name| {
+            model
+                .features
+                .iter()
+                .position(|f| f.column == *name)
+                .ok_or_else(|| {
+                    let have: Vec<String> =
+                        model.features.iter().map(|f| format!("`{}`", f.column)).collect();
+                    format!(
+                        "error: `--expect-shift {name}`: the model has no numeric feature `{name}`\n  help: name one of its numeric features: {}",
+                        have.join(", ")
+                    )
+                })
+        })
+        .collect()
 }
 
 /// Says that a machine file holds cells a spreadsheet would run as a

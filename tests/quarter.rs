@@ -294,7 +294,10 @@ fn shifted_demo(data: &str) -> String {
 fn drift_of(case: &Case, data: &str) -> assort::run::model::Drift {
     let model = assort::run::model::read_model(&case.path("out/segment_model.json")).unwrap();
     let table = assort::run::model::read_for_scoring(&case.path(data), data, &model).unwrap();
-    assort::run::model::score(&model, &table).1.drift.unwrap()
+    assort::run::model::score(&model, &table, &[])
+        .1
+        .drift
+        .unwrap()
 }
 
 #[test]
@@ -356,7 +359,10 @@ fn drift_matches_an_independent_computation_and_warns_only_when_shifted() {
     ] {
         let model = assort::run::model::read_model(&snapshot).unwrap();
         let table = assort::run::model::read_for_scoring(&case.path(data), data, &model).unwrap();
-        let d = assort::run::model::score(&model, &table).1.drift.unwrap();
+        let d = assort::run::model::score(&model, &table, &[])
+            .1
+            .drift
+            .unwrap();
         let want = reference["far_share"][which].as_f64().unwrap();
         assert!(
             (d.far_share - want).abs() < 1e-12,
@@ -480,4 +486,90 @@ fn a_second_run_on_the_same_data_says_it_compares_the_data_with_itself() {
         "the report does not show the quarter compared with itself"
     );
     assert!(!report.contains("<table class=\"changes\">"));
+}
+
+/// New joiners as the README's weekly workflow scores them: demo members'
+/// behaviour under new keys, with the tenure of people who just joined
+/// (0 to 2 months).
+fn new_joiners(data: &str) -> String {
+    let mut lines = data.lines();
+    let header = lines.next().unwrap();
+    let tenure = header
+        .split(',')
+        .position(|h| h == "tenure_months")
+        .unwrap();
+    let mut out = vec![header.to_string()];
+    for (i, line) in lines.take(600).enumerate() {
+        let mut cells: Vec<String> = line.split(',').map(String::from).collect();
+        cells[0] = format!("J{:05}", i + 1);
+        cells[tenure] = (i % 3).to_string();
+        out.push(cells.join(","));
+    }
+    out.join("\n") + "\n"
+}
+
+#[test]
+fn new_joiners_scored_with_their_tenure_expected_to_differ_raise_no_false_alarm() {
+    let case = Case::demo();
+    case.run(DEMO).ok();
+    case.write(
+        "data/joiners.csv",
+        &new_joiners(&case.read("data/coop_members.csv")),
+    );
+    let args = [
+        "assign",
+        "out/segment_model.json",
+        "data/joiners.csv",
+        "--out",
+        "out/joiners.csv",
+    ];
+    // Without the option, their tenure alone cries wolf.
+    let plain = case.assort(&args, &[]).ok();
+    assert!(plain.stderr().contains("warning: the data has moved since the segments were built: a major shift in tenure_months"), "{}", plain.stderr());
+    let scored = case.read("out/joiners.csv");
+    // Told that tenure differs by design: shown, not warned about; the
+    // segments are the same (the option changes the check, not the model).
+    let told = case
+        .assort(
+            &[&args[..], &["--expect-shift", "tenure_months"]].concat(),
+            &[],
+        )
+        .ok();
+    let err = told.stderr();
+    assert!(!err.contains("warning:"), "{err}");
+    assert!(
+        err.contains("tenure_months") && err.contains("(expected to differ)"),
+        "{err}"
+    );
+    assert!(
+        err.contains("measured without tenure_months (expected to differ for these records)"),
+        "{err}"
+    );
+    assert_eq!(case.read("out/joiners.csv"), scored);
+    // It silences only what it names: data that moved in another feature
+    // (fresh share 30 % lower, tenure 12 months longer) still warns.
+    case.write(
+        "data/shifted.csv",
+        &shifted_demo(&case.read("data/coop_members.csv")),
+    );
+    case.assort(
+        &[
+            "assign",
+            "out/segment_model.json",
+            "data/shifted.csv",
+            "--out",
+            "out/s.csv",
+            "--expect-shift",
+            "tenure_months",
+        ],
+        &[],
+    )
+    .ok()
+    .stderr_has(
+        "warning: the data has moved since the segments were built: a major shift in share_fresh",
+    );
+    // A feature the model does not have is refused, naming those it has.
+    case.assort(&[&args[..], &["--expect-shift", "tenure"]].concat(), &[])
+        .fails()
+        .stderr_has("the model has no numeric feature `tenure`");
 }

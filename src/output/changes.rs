@@ -200,22 +200,7 @@ pub fn terminal(c: &Changes) -> String {
     for w in c.warnings() {
         let _ = writeln!(s, "  warning: {w}");
     }
-    let matched = c.segments.iter().filter(|ch| ch.status == "kept").count();
-    let _ = writeln!(
-        s,
-        "  {matched} matched one to one (Hungarian method); {}",
-        if c.basis == "centres" {
-            format!(
-                "summed squared distance between matched centres {}",
-                short(c.cost)
-            )
-        } else {
-            format!(
-                "{} members shared by matched segments",
-                thousands(c.cost as usize)
-            )
-        }
-    );
+    s.push_str(&matched_line(c));
     let _ = writeln!(
         s,
         "  {:<32} {:>16} {:>16}  change",
@@ -272,6 +257,23 @@ pub fn terminal(c: &Changes) -> String {
     s
 }
 
+/// How many segments were matched, and the matching's cost in words.
+fn matched_line(c: &Changes) -> String {
+    let matched = c.segments.iter().filter(|ch| ch.status == "kept").count();
+    let cost = if c.basis == "centres" {
+        format!(
+            "summed squared distance between matched centres {}",
+            short(c.cost)
+        )
+    } else {
+        format!(
+            "{} members shared by matched segments",
+            thousands(c.cost as usize)
+        )
+    };
+    format!("  {matched} matched one to one (Hungarian method); {cost}\n")
+}
+
 /// Each segment's means then and now, one line per segment both runs have.
 fn means_lines(c: &Changes) -> String {
     let mut s = String::from("  means, then -> now:\n");
@@ -309,9 +311,17 @@ pub fn drift_lines(d: &crate::run::model::Drift) -> String {
         "  data against the training data: population stability index {}",
         parts.join(", ")
     );
+    let without = if d.expected.is_empty() {
+        String::new()
+    } else {
+        format!(
+            ", measured without {} (expected to differ for these records)",
+            d.expected.join(", ")
+        )
+    };
     let _ = writeln!(
         s,
-        "  {:.1} % of records are farther from every centre than 99 % of the training records were (about 1 % expected)",
+        "  {:.1} % of records are farther from every centre than 99 % of the training records were (about 1 % expected){without}",
         100.0 * d.far_share
     );
     for w in &d.warnings {

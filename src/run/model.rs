@@ -68,6 +68,11 @@ pub struct Drift {
     pub far_distance: f64,
     /// Plain-words warnings, when a threshold is passed.
     pub warnings: Vec<String>,
+    /// Features the records are expected to differ in (new joiners'
+    /// tenure, say): their shift is shown, not warned about, and the
+    /// distances to the centres leave them out.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub expected: Vec<String>,
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -105,17 +110,43 @@ pub fn drift_reference(
 }
 
 /// Measures `x` (records in the model's clustered space) against the
-/// model's reference; `None` for models without one (format 1).
-pub fn measure_drift(model: &SegmentModel, x: ArrayView2<'_, f64>) -> Option<Drift> {
+/// model's reference; `None` for models without one (format 1). The
+/// numeric features at `expected` are ones these records differ in by
+/// design (new joiners' tenure): their population stability index is
+/// shown with the reading "expected to differ" and never warned about,
+/// and the distances to the centres are measured on the other columns
+/// (both the records' and the centres' values of those features set to
+/// 0). Against the training records' threshold over every column, that
+/// share can only be lower than a like-for-like one: a warning still
+/// raised is a real one.
+pub fn measure_drift(
+    model: &SegmentModel,
+    x: ArrayView2<'_, f64>,
+    expected: &[usize],
+) -> Option<Drift> {
     let reference = model.drift.as_ref()?;
     if x.nrows() == 0 {
         return None;
     }
     let width = x.ncols();
     let k = model.centres.len();
+    let leave_out = |f: usize| expected.contains(&f);
     let centres = Array2::from_shape_fn((k, width), |(s, f)| {
-        model.centres[s].get(f).copied().unwrap_or(0.0)
+        if leave_out(f) {
+            0.0
+        } else {
+            model.centres[s].get(f).copied().unwrap_or(0.0)
+        }
     });
+    let mut x_other = None;
+    if !expected.is_empty() {
+        let mut copy = x.to_owned();
+        for &f in expected {
+            copy.column_mut(f).fill(0.0);
+        }
+        x_other = Some(copy);
+    }
+    let x_far = x_other.as_ref().map_or(x, |c| c.view());
     let features: Vec<FeatureDrift> = model
         .features
         .iter()
@@ -126,19 +157,39 @@ pub fn measure_drift(model: &SegmentModel, x: ArrayView2<'_, f64>) -> Option<Dri
             FeatureDrift {
                 column: fp.column.clone(),
                 psi,
-                reading: drift::reading(psi),
+                reading: if leave_out(f) {
+                    "expected to differ"
+                } else {
+                    drift::reading(psi)
+                },
             }
         })
         .collect();
-    let distances: Vec<f64> = kmeans::nearest_with_margin(x, centres.view())
+    let distances: Vec<f64> = kmeans::nearest_with_margin(x_far, centres.view())
         .into_iter()
         .map(|(_, d, _)| d)
         .collect();
     let far_share = drift::share_above(&distances, reference.far_distance);
+    let warnings = drift_warnings(&features, far_share);
+    Some(Drift {
+        features,
+        far_share,
+        far_distance: reference.far_distance,
+        warnings,
+        expected: expected
+            .iter()
+            .filter_map(|&f| model.features.get(f).map(|fp| fp.column.clone()))
+            .collect(),
+    })
+}
+
+/// The drift warnings in plain words: features past a major shift (those
+/// expected to differ aside), and too many records far from every centre.
+fn drift_warnings(features: &[FeatureDrift], far_share: f64) -> Vec<String> {
     let mut warnings = Vec::new();
     let moved: Vec<String> = features
         .iter()
-        .filter(|f| f.psi > drift::PSI_MAJOR_SHIFT)
+        .filter(|f| f.psi > drift::PSI_MAJOR_SHIFT && f.reading != "expected to differ")
         .map(|f| format!("{} ({:.2})", f.column, f.psi))
         .collect();
     if !moved.is_empty() {
@@ -154,12 +205,7 @@ pub fn measure_drift(model: &SegmentModel, x: ArrayView2<'_, f64>) -> Option<Dri
             100.0 * far_share
         ));
     }
-    Some(Drift {
-        features,
-        far_share,
-        far_distance: reference.far_distance,
-        warnings,
-    })
+    warnings
 }
 
 #[derive(Debug, Clone, Serialize, Deserialize)]
@@ -259,7 +305,13 @@ pub struct ScoreSummary {
 /// Scores a table read with the model's columns (`numeric` in feature
 /// order, `text` in category order). Records that cannot be prepared are
 /// left out and counted.
-pub fn score(model: &SegmentModel, table: &Table) -> (Assignments, ScoreSummary) {
+/// The numeric features at `expect_shift` are ones these records differ
+/// in by design (see [`measure_drift`]).
+pub fn score(
+    model: &SegmentModel,
+    table: &Table,
+    expect_shift: &[usize],
+) -> (Assignments, ScoreSummary) {
     let n = table.keys.len();
     let nf = model.features.len();
     let width = nf
@@ -293,7 +345,7 @@ pub fn score(model: &SegmentModel, table: &Table) -> (Assignments, ScoreSummary)
     let centres = Array2::from_shape_fn((k, width), |(s, f)| {
         model.centres[s].get(f).copied().unwrap_or(0.0)
     });
-    summary.drift = measure_drift(model, x.view());
+    summary.drift = measure_drift(model, x.view(), expect_shift);
     let nearest = kmeans::nearest_with_margin(x.view(), centres.view());
     let mut assignments = Assignments::with_capacity(kept.len());
     for (&r, (seg, distance, margin)) in kept.iter().zip(nearest) {

@@ -173,7 +173,7 @@ impl PreviousRun {
             }
             offset += theirs.levels.len();
         }
-        model::measure_drift(m, x.view())
+        model::measure_drift(m, x.view(), &[])
     }
 
     /// Last run's segments, as the model recorded them.
