@@ -1594,7 +1594,8 @@ fn the_demo_report_is_well_formed_and_holds_every_segment_and_chart() {
         !html.contains("assort verify</code>) before relying"),
         "no tool talk in the cautions"
     );
-    // Every card: size in members, value shares, words, a rule with its
+    // Every card: size in members, value per member and share (figures
+    // recomputed in tests/report_cards.rs), words, a rule with its
     // coverage and precision.
     for card in doc
         .descendants()
@@ -1602,9 +1603,14 @@ fn the_demo_report_is_well_formed_and_holds_every_segment_and_chart() {
     {
         let text: String = card.descendants().filter_map(|n| n.text()).collect();
         assert!(text.contains(" members"), "{text}");
-        assert!(text.contains("of spend, last 12 months"), "{text}");
         assert!(
-            text.contains("times the average") || text.contains("below the average"),
+            text.contains("spend, last 12 months: ") && text.contains(" of the total"),
+            "{text}"
+        );
+        assert!(
+            text.contains("times the average")
+                || text.contains("below the average")
+                || text.contains("points above the average"),
             "{text}"
         );
         assert!(

@@ -263,9 +263,9 @@ pub fn sizes(o: &Outcome) -> Chart {
         |i| o.profiles[i].size as f64,
         |i| {
             format!(
-                "{} ({:.1}%)",
-                o.profiles[i].size,
-                o.profiles[i].share * 100.0
+                "{} ({})",
+                crate::text::thousands(o.profiles[i].size),
+                super::people::share(o.profiles[i].share)
             )
         },
         0.0,
@@ -485,14 +485,14 @@ pub fn projection(o: &Outcome) -> Chart {
         .add(text(
             (xs.from + xs.to) / 2.0,
             h - 15.0,
-            format!("first component ({:.0}% of the variance)", share(0)),
+            format!("first component ({:.0} % of the variance)", share(0)),
             "middle",
         ))
         .add(
             text(
                 18.0,
                 (ys.from + ys.to) / 2.0,
-                format!("second component ({:.0}%)", share(1)),
+                format!("second component ({:.0} %)", share(1)),
                 "middle",
             )
             .set(

@@ -332,14 +332,7 @@ fn cards(h: &mut String, o: &Outcome, noun: &str) {
             people::share(p.share),
         );
         for v in &o.values {
-            if let Some(share) = v.segments[i].share_of_total {
-                let _ = write!(
-                    h,
-                    "<p><span class=\"value\">{}</span> of {}</p>\n",
-                    people::share(share),
-                    esc(people::name(&o.plan, &v.column))
-                );
-            }
+            let _ = write!(h, "<p>{}</p>\n", value_line(o, v, i, noun));
         }
         let words = describe(o, i, noun);
         if !words.is_empty() {
@@ -362,6 +355,50 @@ fn cards(h: &mut String, o: &Outcome, noun: &str) {
         let _ = write!(h, "</div>\n");
     }
     let _ = write!(h, "</div>\n");
+}
+
+/// A `tally` column on segment `i`'s card, in the column's format. A rate
+/// (`as percent`: a 0/1 flag such as "agreed to be contacted") is the
+/// segment's own rate, with how many that is when the values are 0 and 1,
+/// against the rate over all records; any other column is the segment's
+/// mean per record against all records' mean, and its share of the
+/// column's total. The means count only records with a value.
+fn value_line(o: &Outcome, v: &crate::run::values::ValueProfile, i: usize, noun: &str) -> String {
+    use crate::plan::NumberFormat;
+    let (seg, all) = (&v.segments[i], &v.overall);
+    let name = esc(people::name(&o.plan, &v.column));
+    let shown = |m: Option<f64>| m.map_or("n/a".into(), |m| people::value(&o.plan, &v.column, m));
+    let rate = o
+        .plan
+        .display
+        .get(&v.column)
+        .is_some_and(|d| d.format == NumberFormat::Percent);
+    if rate {
+        let zero_or_one = |q: Option<f64>| q.is_some_and(|q| q == 0.0 || q == 1.0);
+        let flags = zero_or_one(seg.q1)
+            && zero_or_one(seg.q3)
+            && seg.total.fract() == 0.0
+            && seg.mean.is_some_and(|m| (0.0..=1.0).contains(&m));
+        let count = if flags {
+            format!(" ({} {noun})", crate::text::thousands(seg.total as u64))
+        } else {
+            String::new()
+        };
+        return format!(
+            "{name}: <span class=\"value\">{}</span>{count}, against {} over all {noun}",
+            shown(seg.mean),
+            shown(all.mean)
+        );
+    }
+    let share = seg
+        .share_of_total
+        .map(|s| format!("; {} of the total", people::share(s)))
+        .unwrap_or_default();
+    format!(
+        "{name}: <span class=\"value\">{}</span> on average in this segment, against {} over all {noun}{share}",
+        shown(seg.mean),
+        shown(all.mean)
+    )
 }
 
 /// What sets segment `i` apart, in words: the features whose standardised
@@ -391,7 +428,21 @@ fn describe(o: &Outcome, i: usize, noun: &str) -> Vec<String> {
             } else {
                 1.0
             };
-            let how = if ratio >= 1.25 {
+            let percent = o
+                .plan
+                .display
+                .get(column)
+                .is_some_and(|d| d.format == crate::plan::NumberFormat::Percent);
+            let how = if percent {
+                // A share differs from the average by points, not by a
+                // ratio: "78 % below" of a share reads as points.
+                let points = 100.0 * (here - all);
+                format!(
+                    "{} points {} the average",
+                    people::decimals(points.abs(), 1),
+                    if points < 0.0 { "below" } else { "above" }
+                )
+            } else if ratio >= 1.25 {
                 format!("{:.1} times the average", ratio)
             } else if ratio <= 0.8 {
                 format!("{:.0} % below the average", (1.0 - ratio) * 100.0)
@@ -505,7 +556,7 @@ fn changed(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
         "<table class=\"changes\"><tr><th>segment</th><th>then</th><th>now</th><th>change</th></tr>\n"
     );
     let cell = |size: Option<usize>, share: Option<f64>| match (size, share) {
-        (Some(n), Some(s)) => format!("{} ({:.1}%)", thousands(n), 100.0 * s),
+        (Some(n), Some(s)) => format!("{} ({})", thousands(n), people::share(s)),
         _ => "\u{2013}".to_string(),
     };
     for ch in &c.segments {
