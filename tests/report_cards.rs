@@ -38,15 +38,7 @@ fn thousands(n: usize) -> String {
 fn card_figures_are_the_data_recomputed() {
     let case = Case::demo();
     case.run("coop-members.assort").ok();
-    let segment_of: HashMap<String, String> = case
-        .read("out/member_segments.csv")
-        .lines()
-        .skip(1)
-        .map(|l| {
-            let c: Vec<&str> = l.split(',').collect();
-            (c[0].to_string(), c[1].to_string())
-        })
-        .collect();
+    let segment_of = case.segments_by_key("out/member_segments.csv");
     let data = case.read("data/coop_members.csv");
     let mut lines = data.lines();
     let header: Vec<&str> = lines.next().unwrap().split(',').collect();

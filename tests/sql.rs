@@ -153,15 +153,7 @@ fn rules_coverage_and_precision_recomputed_and_the_rules_query_agrees() {
         .skip(1)
         .map(|l| l.split(',').next().unwrap().to_string())
         .collect();
-    let segment_of: HashMap<String, String> = case
-        .read("out/member_segments.csv")
-        .lines()
-        .skip(1)
-        .map(|l| {
-            let c: Vec<&str> = l.split(',').collect();
-            (c[0].to_string(), c[1].to_string())
-        })
-        .collect();
+    let segment_of = case.segments_by_key("out/member_segments.csv");
     // A record meets a rule when every condition holds on its value, a gap
     // taking the recipe's fill (as the rule's `fill` says).
     let meets = |rule: &serde_json::Value, i: usize| -> bool {

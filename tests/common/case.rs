@@ -49,6 +49,18 @@ impl Case {
         std::fs::read_to_string(self.path(rel)).unwrap()
     }
 
+    /// An assignments file (plain keys, no quoting) as key -> segment.
+    pub fn segments_by_key(&self, rel: &str) -> std::collections::HashMap<String, String> {
+        self.read(rel)
+            .lines()
+            .skip(1)
+            .map(|l| {
+                let c: Vec<&str> = l.split(',').collect();
+                (c[0].to_string(), c[1].to_string())
+            })
+            .collect()
+    }
+
     /// Replaces the first occurrence of `from` in a file.
     pub fn edit(&self, rel: &str, from: &str, to: &str) -> &Case {
         let text = self.read(rel);
