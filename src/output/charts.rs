@@ -13,12 +13,15 @@ use crate::run::Outcome;
 use svg::node::element::{Circle, Group, Line, Polyline, Rectangle, Text, Title};
 use svg::Document;
 
-/// Segment colours, dark and light alternating so that the first five
-/// (the usual number of segments) differ in lightness by at least 0.12 of
-/// relative luminance, and segments that share a marker shape (four
-/// apart) by at least 0.25: in greyscale no two of them read alike.
+/// Segment colours, dark and light alternating so that in greyscale no two
+/// read alike: the first five (the usual number of segments) differ in
+/// perceived lightness (CIELAB L*) by at least 12 and in the grey a
+/// printer makes of them (luma, 0.299 R + 0.587 G + 0.114 B) by at least
+/// 30 of 255, and segments that share a marker shape (four apart) by at
+/// least 25 L*. (Segments 2 and 4 printed the same grey before: L* 84.8
+/// and 77.3.)
 pub const SEGMENT_COLOURS: [&str; 8] = [
-    "#1f3b63", "#efd35a", "#2f7f6f", "#9ec3e6", "#e0942f", "#6b3f80", "#e6a3a0", "#3d3d3d",
+    "#1f3b63", "#f7e68a", "#2a7060", "#9ec3e6", "#cf7a26", "#6b3f80", "#e6a3a0", "#3d3d3d",
 ];
 
 const INK: &str = "#222222";
@@ -672,9 +675,10 @@ pub fn dendrogram(o: &Outcome) -> Option<Chart> {
 mod greyscale_tests {
     use super::SEGMENT_COLOURS;
 
-    /// Relative luminance (WCAG 2 definition: sRGB linearised, weighted
-    /// 0.2126, 0.7152, 0.0722), what greyscale printing keeps of a colour.
-    fn luminance(hex: &str) -> f64 {
+    /// Perceived lightness, CIELAB L* (0 black to 100 white), from the
+    /// relative luminance of the WCAG 2 definition (sRGB linearised,
+    /// weighted 0.2126, 0.7152, 0.0722).
+    fn lightness(hex: &str) -> f64 {
         let channel = |i: usize| {
             let c = u8::from_str_radix(&hex[i..i + 2], 16).unwrap() as f64 / 255.0;
             if c <= 0.04045 {
@@ -683,26 +687,36 @@ mod greyscale_tests {
                 ((c + 0.055) / 1.055).powf(2.4)
             }
         };
-        0.2126 * channel(1) + 0.7152 * channel(3) + 0.0722 * channel(5)
+        let y = 0.2126 * channel(1) + 0.7152 * channel(3) + 0.0722 * channel(5);
+        if y > 0.008856 {
+            116.0 * y.cbrt() - 16.0
+        } else {
+            903.3 * y
+        }
+    }
+
+    /// The grey most printers and greyscale conversions make of a colour:
+    /// luma on the sRGB values (ITU-R BT.601 weights), 0 to 255.
+    fn luma(hex: &str) -> f64 {
+        let c = |i: usize| u8::from_str_radix(&hex[i..i + 2], 16).unwrap() as f64;
+        0.299 * c(1) + 0.587 * c(3) + 0.114 * c(5)
     }
 
     #[test]
     fn segments_stay_apart_in_greyscale() {
-        let l: Vec<f64> = SEGMENT_COLOURS.iter().map(|c| luminance(c)).collect();
+        let l: Vec<f64> = SEGMENT_COLOURS.iter().map(|c| lightness(c)).collect();
+        let y: Vec<f64> = SEGMENT_COLOURS.iter().map(|c| luma(c)).collect();
         for a in 0..5 {
             for b in a + 1..5 {
-                assert!(
-                    (l[a] - l[b]).abs() >= 0.12,
-                    "segments {} and {}",
-                    a + 1,
-                    b + 1
-                );
+                let which = format!("segments {} and {}", a + 1, b + 1);
+                assert!((l[a] - l[b]).abs() >= 12.0, "{which}: L*");
+                assert!((y[a] - y[b]).abs() >= 30.0, "{which}: printed grey");
             }
         }
         // Markers repeat every four segments: those pairs differ strongly.
         for a in 0..4 {
             assert!(
-                (l[a] - l[a + 4]).abs() >= 0.25,
+                (l[a] - l[a + 4]).abs() >= 25.0,
                 "segments {} and {}",
                 a + 1,
                 a + 5
@@ -711,7 +725,7 @@ mod greyscale_tests {
         // Any two colours close in lightness have different shapes.
         for a in 0..8 {
             for b in a + 1..8 {
-                if (l[a] - l[b]).abs() < 0.1 {
+                if (l[a] - l[b]).abs() < 10.0 {
                     assert_ne!(a % 4, b % 4, "segments {} and {}", a + 1, b + 1);
                 }
             }

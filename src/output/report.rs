@@ -25,7 +25,8 @@ table{border-collapse:collapse;font-size:.92em}td,th{border-bottom:1px solid #e3
 th:first-child,td:first-child{text-align:left}.chosen{font-weight:bold;background:#fff4e0}\
 figure{margin:1.2em 0}figcaption{font-size:.9em;color:#555}.caution{background:#fbf6e8;border:1px solid #e8d9a8;padding:.6em .9em}\
 code{font-size:.95em}.period{color:#555;margin-top:0}.value{font-weight:bold}.rule{font-size:.92em;background:#f4f4f4;padding:.3em .5em}\
-@media print{body{max-width:none;margin:0}.cards{display:block}.card{width:auto;margin:0 0 10px 0;break-inside:avoid;page-break-inside:avoid}\
+@page{size:A4;margin:14mm}\
+@media print{body{max-width:none;margin:0}.cards{display:grid;grid-template-columns:1fr 1fr;gap:8px}.card{width:auto;margin:0;break-inside:avoid;page-break-inside:avoid}\
 figure,table,.caution{break-inside:avoid;page-break-inside:avoid}h2,h3{break-after:avoid;page-break-after:avoid}.analyst{break-before:page;page-break-before:always}}";
 
 /// Escapes text for HTML.
