@@ -52,6 +52,20 @@ pub fn short(v: f64) -> String {
     }
 }
 
+/// [`short`] with a comma between thousands (`35,324`), for what people
+/// read in the report and its charts; the terminal keeps [`short`] for its
+/// fixed-width columns.
+pub fn short_grouped(v: f64) -> String {
+    let s = short(v);
+    if !v.is_finite() || v.abs() < 1000.0 {
+        return s;
+    }
+    match s.strip_prefix('-') {
+        Some(digits) => format!("-{}", group_digits(digits)),
+        None => group_digits(&s),
+    }
+}
+
 /// Names joined for a sentence: `a`, `a and b`, `a, b and c`.
 pub fn and_list(names: &[String]) -> String {
     match names {
@@ -86,7 +100,9 @@ pub fn blank_key(key: &str) -> bool {
 
 #[cfg(test)]
 mod tests {
-    use super::{and_list, blank_key, count, odd_space_at_end, thousands, trim_spaces};
+    use super::{
+        and_list, blank_key, count, odd_space_at_end, short_grouped, thousands, trim_spaces,
+    };
 
     #[test]
     fn counts_take_the_singular_for_one() {
@@ -129,5 +145,13 @@ mod tests {
         assert_eq!(and_list(&names(&["a"])), "a");
         assert_eq!(and_list(&names(&["a", "b"])), "a and b");
         assert_eq!(and_list(&names(&["a", "b", "c"])), "a, b and c");
+    }
+
+    #[test]
+    fn report_numbers_group_thousands() {
+        assert_eq!(short_grouped(35324.03), "35,324");
+        assert_eq!(short_grouped(-1234567.0), "-1,234,567");
+        assert_eq!(short_grouped(999.5), "999.5");
+        assert_eq!(short_grouped(0.481), "0.481");
     }
 }

@@ -93,7 +93,7 @@ fn document(w: f64, h: f64, title: &str) -> Document {
 }
 
 fn fmt(v: f64) -> String {
-    crate::output::short(v)
+    crate::text::short_grouped(v)
 }
 
 /// A linear scale from a data range to pixels.

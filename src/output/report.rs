@@ -38,7 +38,7 @@ fn esc(s: &str) -> String {
 }
 
 fn short(v: f64) -> String {
-    crate::output::short(v)
+    crate::text::short_grouped(v)
 }
 
 /// How far a standardised difference is from the average, in words.
