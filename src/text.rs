@@ -91,18 +91,9 @@ pub fn odd_space_at_end(value: &str) -> bool {
     v.starts_with(char::is_whitespace) || v.ends_with(char::is_whitespace)
 }
 
-/// Whether a key is blank: empty or white space only. Keys are otherwise
-/// kept exactly as written (nothing trimmed), so every file assort writes
-/// gives back the keys of the input.
-pub fn blank_key(key: &str) -> bool {
-    key.trim().is_empty()
-}
-
 #[cfg(test)]
 mod tests {
-    use super::{
-        and_list, blank_key, count, odd_space_at_end, short_grouped, thousands, trim_spaces,
-    };
+    use super::{and_list, count, odd_space_at_end, short_grouped, thousands, trim_spaces};
 
     #[test]
     fn counts_take_the_singular_for_one() {
@@ -131,12 +122,6 @@ mod tests {
         assert_eq!(trim_spaces(" gold\u{a0} "), "gold\u{a0}");
         assert!(odd_space_at_end("gold\t") && odd_space_at_end(" \u{3000}gold"));
         assert!(!odd_space_at_end("  gold ") && !odd_space_at_end("old mill"));
-    }
-
-    #[test]
-    fn a_key_is_blank_only_when_nothing_but_white_space() {
-        assert!(blank_key("") && blank_key(" \t"));
-        assert!(!blank_key(" k1") && !blank_key("=k"));
     }
 
     #[test]

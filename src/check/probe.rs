@@ -249,7 +249,7 @@ pub fn key_problem(path: &Path, separator: u8, key: &str) -> Option<KeyProblem> 
         let line = record.position().map_or(0, |p| p.line());
         // Keys exactly as written, as the run reads them.
         let k = record.get(at).unwrap_or("");
-        if crate::text::blank_key(k) {
+        if is_blank(k) {
             return Some(KeyProblem::Blank(line));
         }
         if let Some(&first) = seen.get(k) {
@@ -462,5 +462,18 @@ fn csv_problem(e: &csv::Error) -> ProbeError {
             line,
             reason: e.to_string(),
         },
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::is_blank;
+
+    #[test]
+    fn a_key_is_blank_only_when_nothing_but_white_space() {
+        // Keys are otherwise kept exactly as written, leading spaces and
+        // formula-like characters included.
+        assert!(is_blank("") && is_blank(" \t"));
+        assert!(!is_blank(" k1") && !is_blank("=k"));
     }
 }

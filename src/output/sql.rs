@@ -290,6 +290,8 @@ pub fn rules_query(rules: &[SegmentRule], key: &str, table: &str, recipe: &str) 
         r.conditions
             .iter()
             .map(|c| {
+                // `columns` was built from these very conditions, so every
+                // condition's column is in it.
                 let at = columns.iter().position(|n| *n == c.column).unwrap_or(0);
                 let v = match c.fill {
                     Some(f) => format!("COALESCE(v{at}, {})", number(f)),

@@ -387,10 +387,11 @@ impl Decoder<'_> {
         };
         let key = match self.key_at {
             Some(at) => {
-                // Kept exactly as written: every file assort writes gives
-                // the input's keys back (see `text::blank_key`).
+                // Kept exactly as written (nothing trimmed), so every file
+                // assort writes gives the input's keys back; only a key of
+                // white space alone is refused, as blank.
                 let key = field(at)?;
-                if crate::text::blank_key(key) {
+                if is_blank(key) {
                     return Err(RunError::BlankKey { place: place(at) });
                 }
                 key.to_string()

@@ -498,7 +498,7 @@ pub fn read_for_scoring(
             Some(at) => record.get(at).unwrap_or("").to_string(),
             None => line.to_string(),
         };
-        if let (Some(at), true) = (key_at, crate::text::blank_key(&key)) {
+        if let (Some(at), true) = (key_at, is_blank(&key)) {
             return Err(RunError::BlankKey {
                 place: super::error::Place {
                     file: shown.to_string(),
