@@ -38,6 +38,10 @@ pub struct Plan {
     pub floor: Option<SizeFloor>,
     /// Segment number (1-based) to label.
     pub labels: BTreeMap<usize, String>,
+    /// Segment number (1-based) to its description and next step
+    /// (`brief`), for the people who act on segments.
+    #[serde(skip_serializing_if = "BTreeMap::is_empty")]
+    pub briefs: BTreeMap<usize, SegmentNote>,
     /// The recipe line of each label, for messages.
     #[serde(skip)]
     pub label_lines: BTreeMap<usize, usize>,
@@ -53,6 +57,14 @@ pub struct Plan {
     pub tally: Vec<String>,
     /// How people see a column (`call`), by column name.
     pub display: BTreeMap<String, Display>,
+}
+
+/// A segment in one line, and what to do with it (`brief`).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SegmentNote {
+    pub text: String,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub action: Option<String>,
 }
 
 /// A column's name and number format for people (`call`).
@@ -228,12 +240,12 @@ pub struct TreePlan {
     pub height: Option<f64>,
     pub linkage: Linkage,
     pub distance: Metric,
-    /// Two-stage route: k-means into this many micro-segments first, then
+    /// Micro-segment route: k-means into this many micro-segments first, then
     /// the tree over their centres weighted by their sizes.
     pub micro: Option<MicroPlan>,
 }
 
-/// The k-means stage of the two-stage route.
+/// The k-means stage of the micro-segment route.
 #[derive(Debug, Clone, Serialize)]
 pub struct MicroPlan {
     pub segments: usize,

@@ -312,7 +312,7 @@ fn missing_values_are_dropped_or_filled_and_counted() {
     case.run("r.assort")
         .ok()
         .stdout_has("1 dropped for missing values, 4 segmented (missing in a 1)")
-        .stdout_has("b: 1 filled with 0.000");
+        .stdout_has("b: 1 filled with 0.00");
     let a = case.read("out/a.csv");
     assert_eq!(a.lines().count(), 5, "{a}");
     assert!(
@@ -1095,8 +1095,8 @@ fn compare_shows_a_hand_checked_migration_table() {
         .collect();
     assert_eq!(rows[0], ["1", "2", "1", "3", "1", "(0.67)"], "{out}");
     assert_eq!(rows[1], ["2", "0", "2", "2", "2", "(0.67)"], "{out}");
-    assert_eq!(rows[2], ["1", "67%", "33%"], "{out}");
-    assert_eq!(rows[3], ["2", "0%", "100%"], "{out}");
+    assert_eq!(rows[2], ["1", "67", "%", "33", "%"], "{out}");
+    assert_eq!(rows[3], ["2", "0", "%", "100", "%"], "{out}");
 }
 
 #[test]
@@ -1148,7 +1148,7 @@ fn a_recipe_compares_itself_with_last_quarter() {
     case.run(DEMO)
         .ok()
         .stdout_has("comparison: `last_quarter.csv` (old) with `this run` (new)")
-        .stdout_has("6000 in both; 0 only in the old; 0 only in the new")
+        .stdout_has("6,000 in both; 0 only in the old; 0 only in the new")
         .stdout_has("adjusted Rand index 1.0000");
     let rec: serde_json::Value =
         serde_json::from_str(&case.read("out/coop-members.run.json")).unwrap();

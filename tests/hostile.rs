@@ -66,6 +66,7 @@ fn hostile_recipe(data: &str, extra: &str) -> String {
          choose k by silhouette\n\
          label 1 {m}\n\
          label 2 {}\n\
+         brief 1 {m} action {m}\n\
          {extra}\
          save report \"out/report.html\"\n\
          save scoring \"out/scoring.sql\"\n\

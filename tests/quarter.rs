@@ -68,15 +68,20 @@ fn next_quarter_after(case: Case) -> Case {
     case
 }
 
-#[test]
-fn with_last_quarters_model_every_name_stays_on_its_members() {
-    let case = last_quarter_then_next();
-    let last = assigned(&case.read("out/member_segments.csv"));
+/// Adds the `previous` line that keeps last run's names on its members.
+fn keep_names(case: &Case) {
     case.edit(
         DEMO,
         "scale zscore",
         "previous \"out/segment_model.json\" assignments \"out/member_segments.csv\"\nscale zscore",
     );
+}
+
+#[test]
+fn with_last_quarters_model_every_name_stays_on_its_members() {
+    let case = last_quarter_then_next();
+    let last = assigned(&case.read("out/member_segments.csv"));
+    keep_names(&case);
     case.run(DEMO)
         .ok()
         .stdout_has("what changed since `out/segment_model.json`")
@@ -93,7 +98,10 @@ fn with_last_quarters_model_every_name_stays_on_its_members() {
         .count();
     assert_eq!(joined, 400);
     let report = case.read("out/segment_report.html");
-    assert!(report.contains("What changed since last run"));
+    // The period was left as last quarter's: the report dates the change
+    // by it and says to check the dates.
+    assert!(report.contains("What changed since the twelve months to September 2026"));
+    assert!(report.contains("<b>Check the dates:</b>"));
     assert!(
         report.contains("5 &quot;occasional newcomers&quot;")
             || report.contains("5 \"occasional newcomers\"")
@@ -572,4 +580,58 @@ fn new_joiners_scored_with_their_tenure_expected_to_differ_raise_no_false_alarm(
     case.assort(&[&args[..], &["--expect-shift", "tenure"]].concat(), &[])
         .fails()
         .stderr_has("the model has no numeric feature `tenure`");
+}
+
+#[test]
+fn the_report_says_what_changed_in_peoples_words_and_on_each_card() {
+    let case = last_quarter_then_next();
+    let last = assigned(&case.read("out/member_segments.csv"));
+    keep_names(&case);
+    case.edit(
+        DEMO,
+        "the twelve months to September 2026",
+        "the twelve months to December 2026",
+    );
+    case.run(DEMO).ok();
+    let now = assigned(&case.read("out/member_segments.csv"));
+    let report = case.read("out/segment_report.html");
+    let dates = "Then: the twelve months to September 2026, 6,000 members. Now: the twelve months to December 2026, 6,400 members.";
+    assert!(report.contains(dates), "the change is dated");
+    assert!(!report.contains("Check the dates"));
+    // Each card's change, recomputed from the two assignments files.
+    let size = |a: &HashMap<String, (String, String)>, seg: &str| {
+        a.values().filter(|(s, _)| s == seg).count() as i64
+    };
+    for seg in ["1", "2", "3", "4", "5"] {
+        let card = report
+            .split("<div class=\"card\"")
+            .find(|c| c.contains(&format!("(segment {seg})")))
+            .unwrap();
+        let change = size(&now, seg) - size(&last, seg);
+        let sign = if change > 0 {
+            "+"
+        } else if change < 0 {
+            "-"
+        } else {
+            ""
+        };
+        let said = format!(
+            "Since the twelve months to September 2026: {sign}{} members,",
+            change.abs()
+        );
+        assert!(card.contains(&said), "segment {seg}: `{said}` in {card}");
+        let joined = (1..=400)
+            .filter(|i| now[&format!("N{i:05}")].0 == seg)
+            .count();
+        if joined > 0 {
+            let words = format!("{joined} of its members joined since.");
+            assert!(card.contains(&words), "segment {seg}: `{words}`");
+        }
+    }
+    // Where the joiners went, in the movement table; the averages by the
+    // names and formats of `call`.
+    assert!(report.contains("400 joined since and 0 left"));
+    assert!(report.contains("<tr><td>joined since</td>"));
+    assert!(report.contains("<td>average basket</td>"));
+    assert!(!report.contains("<td>basket_value</td>"));
 }

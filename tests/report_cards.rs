@@ -111,8 +111,10 @@ fn differences_of_shares_are_in_points() {
     let case = Case::demo();
     case.run("coop-members.assort").ok();
     let report = case.read("out/segment_report.html");
+    // The cards come before the analyst's half.
+    let cards = report.split("<div class=\"analyst\">").next().unwrap();
     let mut seen = 0;
-    for item in report.split("<li>").skip(1) {
+    for item in cards.split("<li>").skip(1) {
         let item = &item[..item.find("</li>").unwrap()];
         let Some((here, rest)) = item.split_once(" %, ") else {
             continue;
@@ -137,4 +139,188 @@ fn differences_of_shares_are_in_points() {
         seen += 1;
     }
     assert!(seen >= 5, "the demo's cards describe shares ({seen} seen)");
+}
+
+/// The card's value of a condition in raw units: `43.7 %` is 0.437,
+/// `€44.80` is 44.8, `9 months` is 9.
+fn card_value(text: &str) -> f64 {
+    let percent = text.ends_with(" %");
+    let digits: String = text
+        .chars()
+        .filter(|c| c.is_ascii_digit() || *c == '.' || *c == '-')
+        .collect();
+    let v: f64 = digits.parse().unwrap_or_else(|_| panic!("`{text}`"));
+    if percent {
+        v / 100.0
+    } else {
+        v
+    }
+}
+
+/// The median of the values a column has, the middle two averaged for an
+/// even count (common practice): the demo recipe's fill.
+fn median(mut v: Vec<f64>) -> f64 {
+    v.sort_by(f64::total_cmp);
+    let m = v.len() / 2;
+    if v.len().is_multiple_of(2) {
+        (v[m - 1] + v[m]) / 2.0
+    } else {
+        v[m]
+    }
+}
+
+/// Display names back to columns, from a recipe's `call` lines.
+fn columns_by_name(recipe: &str) -> HashMap<String, String> {
+    recipe
+        .lines()
+        .filter_map(|l| {
+            let rest = l.strip_prefix("call ")?;
+            let (column, rest) = rest.split_once(" \"")?;
+            Some((rest.split('"').next()?.to_string(), column.to_string()))
+        })
+        .collect()
+}
+
+/// A card's segment number, its rule's text and the figures after it.
+fn card_rule(card: &str) -> (&str, &str, &str) {
+    let after = |from: &str| card.split(from).nth(1).unwrap();
+    let seg = after("(segment ").split(')').next().unwrap();
+    let rule = after("Rule: ").split(". It picks ").next().unwrap();
+    (seg, rule, after(". It picks "))
+}
+
+/// A condition's name, direction (above or at most) and value text.
+fn condition(part: &str) -> (&str, bool, &str) {
+    match part.split_once(" above ") {
+        Some((n, v)) => (n, true, v),
+        None => {
+            let (n, v) = part.split_once(" at most ").unwrap();
+            (n, false, v)
+        }
+    }
+}
+
+#[test]
+fn a_rule_typed_from_a_card_picks_what_the_card_says() {
+    // A reader types a card's rule into a filter, gaps filled with the
+    // median as the report says: it picks the members the card counts, and
+    // its thresholds are the SQL's to the last digit (a card that rounded
+    // 0.4375 to "43.8 %" picked other members).
+    let case = Case::demo();
+    let run = case.assort(&["run", "coop-members.assort", "--json"], &[]);
+    let json: serde_json::Value = serde_json::from_str(&run.stdout()).unwrap();
+    let rules = json["result"]["rules"].as_array().unwrap().clone();
+    let column_of = columns_by_name(&case.read("coop-members.assort"));
+    let data = case.read("data/coop_members.csv");
+    let mut lines = data.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let rows: Vec<Vec<&str>> = lines.map(|l| l.split(',').collect()).collect();
+    let segment_of = case.segments_by_key("out/member_segments.csv");
+    let column = |name: &str| -> Vec<Option<f64>> {
+        let at = header.iter().position(|h| *h == name).unwrap();
+        rows.iter().map(|r| r[at].parse().ok()).collect()
+    };
+    let report = case.read("out/segment_report.html");
+    let mut checked = 0;
+    for card in report.split("<div class=\"card\"").skip(1) {
+        let (seg, rule_text, figures) = card_rule(card);
+        let rule = rules
+            .iter()
+            .find(|r| r["segment"].as_u64().unwrap().to_string() == seg)
+            .unwrap();
+        let conditions = rule["conditions"].as_array().unwrap();
+        let mut picked = vec![true; rows.len()];
+        let parts: Vec<&str> = rule_text.split(" and ").collect();
+        assert_eq!(parts.len(), conditions.len(), "segment {seg}: {rule_text}");
+        for (part, sql) in parts.iter().zip(conditions) {
+            let (name, above, value) = condition(part);
+            let col = &column_of[name];
+            let threshold = card_value(value);
+            assert_eq!(sql["column"].as_str().unwrap(), col);
+            assert_eq!(sql["op"].as_str().unwrap(), if above { ">" } else { "<=" });
+            let exact = sql["value"].as_f64().unwrap();
+            assert!(
+                (threshold - exact).abs() <= 1e-12 * exact.abs().max(1.0),
+                "segment {seg}: the card says `{part}`, the query uses {exact}"
+            );
+            let values = column(col);
+            let fill = median(values.iter().flatten().copied().collect());
+            for (p, v) in picked.iter_mut().zip(&values) {
+                let v = v.unwrap_or(fill);
+                *p &= if above { v > exact } else { v <= exact };
+            }
+        }
+        let key_at = 0;
+        let size = segment_of.values().filter(|s| *s == seg).count();
+        let matched = picked.iter().filter(|&&p| p).count();
+        let hits = rows
+            .iter()
+            .zip(&picked)
+            .filter(|(r, &p)| p && segment_of[r[key_at]] == seg)
+            .count();
+        assert_eq!(
+            matched as u64,
+            rule["matched"].as_u64().unwrap(),
+            "segment {seg}"
+        );
+        assert_eq!(
+            hits as u64,
+            rule["matched_in_segment"].as_u64().unwrap(),
+            "segment {seg}"
+        );
+        let said = format!(
+            "{} of this segment; {} of the members it picks",
+            rate(hits as f64 / size as f64),
+            rate(hits as f64 / matched as f64)
+        );
+        assert!(
+            figures.starts_with(&said),
+            "segment {seg}: `{figures}`, recomputed `{said}`"
+        );
+        checked += 1;
+    }
+    assert_eq!(checked, 5);
+}
+
+/// Segment `seg`'s card in a report.
+fn card_of(report: &str, seg: usize) -> &str {
+    report
+        .split("<div class=\"card\"")
+        .find(|c| c.contains(&format!("(segment {seg})")))
+        .unwrap()
+}
+
+#[test]
+fn a_brief_and_its_next_step_reach_the_card_and_the_profiles() {
+    let case = Case::demo();
+    case.run("coop-members.assort").ok();
+    let report = case.read("out/segment_report.html");
+    let card = card_of(&report, 2);
+    assert!(card.contains("<p class=\"about\">few, large trips for bulk staples</p>"));
+    assert!(card.contains("<b>Next step:</b> a reminder before each bulk-buy weekend"));
+    let profiles: serde_json::Value =
+        serde_json::from_str(&case.read("out/segment_profiles.json")).unwrap();
+    let two = profiles["segments"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|p| p["segment"] == 2)
+        .unwrap();
+    assert_eq!(two["brief"], "few, large trips for bulk staples");
+    assert_eq!(two["action"], "a reminder before each bulk-buy weekend");
+    // A segment the recipe gives no brief has none, in neither place.
+    case.edit("coop-members.assort", "brief 4 ", "# brief 4 ");
+    case.run("coop-members.assort").ok();
+    let report = case.read("out/segment_report.html");
+    let card = card_of(&report, 4);
+    assert!(!card.contains("class=\"about\"") && !card.contains("Next step"));
+    let profiles: serde_json::Value =
+        serde_json::from_str(&case.read("out/segment_profiles.json")).unwrap();
+    let four = profiles["segments"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|p| p["segment"] == 4)
+        .unwrap();
+    assert!(four.get("brief").is_none() && four.get("action").is_none());
 }

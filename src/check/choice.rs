@@ -189,6 +189,39 @@ impl Checker {
         Some(plan)
     }
 
+    /// A segment's number in `label` or `brief`: whole, 1 or more, and
+    /// at most `most` when the recipe's k are known.
+    fn segment_number(
+        &mut self,
+        word: &'static str,
+        segment: &Spanned<crate::syntax::ast::Number>,
+        most: Option<usize>,
+    ) -> Option<i64> {
+        let n = match segment.node.as_whole() {
+            Some(n) if n >= 1 => n,
+            _ => {
+                self.bad_value(
+                    word,
+                    &Value::Number(segment.node.clone()),
+                    "a segment number, 1 or more",
+                    segment.span,
+                    "segments are numbered 1 to k, largest first",
+                );
+                return None;
+            }
+        };
+        if let Some(m) = most.filter(|&m| n as usize > m) {
+            self.err(CheckError::LabelOutOfRange {
+                what: word,
+                segment: n,
+                most: m,
+                span: segment.span,
+            });
+            return None;
+        }
+        Some(n)
+    }
+
     pub(super) fn labels(
         &mut self,
         stmts: &[Statement],
@@ -206,31 +239,10 @@ impl Checker {
             let StatementKind::Label { segment, text } = &s.kind else {
                 continue;
             };
-            let n = match segment.node.as_whole() {
-                Some(n) if n >= 1 => n,
-                _ => {
-                    self.bad_value(
-                        "label",
-                        &Value::Number(segment.node.clone()),
-                        "a segment number, 1 or more",
-                        segment.span,
-                        "segments are numbered 1 to k, largest first",
-                    );
-                    ok = false;
-                    continue;
-                }
+            let Some(n) = self.segment_number("label", segment, most) else {
+                ok = false;
+                continue;
             };
-            if let Some(m) = most {
-                if n as usize > m {
-                    self.err(CheckError::LabelOutOfRange {
-                        segment: n,
-                        most: m,
-                        span: segment.span,
-                    });
-                    ok = false;
-                    continue;
-                }
-            }
             if let Some(first) = spans.get(&(n as usize)) {
                 self.err(CheckError::Conflict {
                     what: format!("a label for segment {n}"),
@@ -255,6 +267,86 @@ impl Checker {
             names.insert(name, (n as usize, text.span));
             spans.insert(n as usize, segment.span);
             out.insert(n as usize, text.node.clone());
+        }
+        ok.then_some(out)
+    }
+
+    /// Each `brief`: a segment in one line and, optionally, its next
+    /// step (`action`), one per segment, neither blank.
+    pub(super) fn briefs(
+        &mut self,
+        stmts: &[Statement],
+        fitted: Option<&[usize]>,
+        room: usize,
+    ) -> Option<BTreeMap<usize, SegmentNote>> {
+        let most = fitted.and_then(|k| k.last().copied()).map(|m| m + room);
+        let mut out = BTreeMap::new();
+        let mut spans: HashMap<usize, Span> = HashMap::new();
+        let mut ok = true;
+        for s in stmts {
+            let StatementKind::Brief {
+                segment,
+                text,
+                options,
+            } = &s.kind
+            else {
+                continue;
+            };
+            let opts = self.options("brief", options, vocab::BRIEF_OPTIONS);
+            let action = match opts.get("action").map(|o| &o.value) {
+                None => Some(None),
+                Some(Spanned {
+                    node: Value::Text(t),
+                    span,
+                }) if t.trim().is_empty() => {
+                    self.err(CheckError::EmptyText {
+                        what: "action",
+                        span: *span,
+                    });
+                    None
+                }
+                Some(Spanned {
+                    node: Value::Text(t),
+                    ..
+                }) => Some(Some(t.clone())),
+                Some(v) => {
+                    self.bad_value(
+                        "action",
+                        &v.node,
+                        "a quoted text",
+                        v.span,
+                        r#"write it in quotes: `action "invite to the tasting evening"`"#,
+                    );
+                    None
+                }
+            };
+            let Some(n) = self.segment_number("brief", segment, most) else {
+                ok = false;
+                continue;
+            };
+            if let Some(first) = spans.insert(n as usize, segment.span) {
+                self.err(CheckError::Conflict {
+                    what: format!("a brief for segment {n}"),
+                    span: segment.span,
+                    first,
+                });
+                ok = false;
+                continue;
+            }
+            if text.node.trim().is_empty() {
+                self.err(CheckError::EmptyText {
+                    what: "brief",
+                    span: text.span,
+                });
+                ok = false;
+                continue;
+            }
+            let Some(action) = action else {
+                ok = false;
+                continue;
+            };
+            let text = text.node.clone();
+            out.insert(n as usize, SegmentNote { text, action });
         }
         ok.then_some(out)
     }

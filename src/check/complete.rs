@@ -298,7 +298,7 @@ fn options(
     else {
         let ready = match statement {
             "input" | "previous" | "recipe" => toks.len() >= 2,
-            "validate" | "call" => toks.len() >= 3,
+            "validate" | "call" | "brief" => toks.len() >= 3,
             "categories" => toks.len() >= 2,
             _ => true,
         };

@@ -257,6 +257,18 @@ pub enum CheckError {
         span: Span,
     },
 
+    #[error("the {what} given is empty")]
+    #[diagnostic(
+        code(assort::empty_text),
+        help("write one line people should read on the segment's card, or leave the {what} out")
+    )]
+    EmptyText {
+        /// `brief` or `action`.
+        what: &'static str,
+        #[label("empty")]
+        span: Span,
+    },
+
     #[error("{records} records: {why}")]
     #[diagnostic(
         code(assort::large_tree),
@@ -429,12 +441,14 @@ pub enum CheckError {
         span: Span,
     },
 
-    #[error("label for segment {segment}, but the recipe makes at most {most} segments")]
+    #[error("{what} for segment {segment}, but the recipe makes at most {most} segments")]
     #[diagnostic(
         code(assort::label_out_of_range),
         help("segments are numbered 1 to k, largest first")
     )]
     LabelOutOfRange {
+        /// `label`, or `brief`.
+        what: &'static str,
         segment: i64,
         most: usize,
         #[label("no such segment")]

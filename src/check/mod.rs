@@ -50,7 +50,7 @@ pub mod defaults {
     pub const EVIDENCE_SETS: usize = 20;
     /// Restarts when k-means reclusters for evidence.
     pub const EVIDENCE_RESTARTS: usize = 5;
-    /// Restarts of the k-means stage of the two-stage tree.
+    /// Restarts of the k-means stage of the micro-segment route.
     pub const MICRO_RESTARTS: usize = 3;
 }
 
@@ -441,7 +441,6 @@ impl Checker {
     fn plan(&mut self, stmts: &[Statement]) -> Option<Plan> {
         let first = self.statements_once(stmts);
         let find = |w: &str| first.get(w).copied();
-
         let input = self.input(find("input"));
         if let Some(i) = &input {
             self.keyless_refusals(stmts, i);
@@ -485,6 +484,7 @@ impl Checker {
             .and_then(|p| p.as_ref())
             .map_or(0, |p| p.highest);
         let labels = self.labels(stmts, ks.as_deref(), label_room);
+        let briefs = self.briefs(stmts, ks.as_deref(), label_room);
         let evidence = self.evidence(find("evidence"), choose, ks.as_deref());
         let validate = self.validate(find("validate"), input.as_ref());
         let compare = self.compare(find("compare"));
@@ -507,6 +507,7 @@ impl Checker {
             choose: choose?,
             floor: floor?,
             labels: labels?,
+            briefs: briefs?,
             evidence: evidence?,
             validate: validate?,
             compare: compare?,

@@ -7,7 +7,7 @@ use super::single_statement;
 use std::path::{Path, PathBuf};
 
 /// What a statement sets, for replacing it by entering another: the
-/// statement word (with the segment number for `label`, `for` for a
+/// statement word (with the segment number for `label` and `brief`, `for` for a
 /// per-column `missing`) and the columns it names, if any. `None` for
 /// statements a recipe may hold many of (`save`, `categories`...).
 #[derive(Debug, PartialEq)]
@@ -35,6 +35,7 @@ pub fn slot(entry: &str) -> Option<Slot> {
     let names = |cols: &[crate::syntax::ast::Column]| cols.iter().map(|c| c.node.clone()).collect();
     let (what, columns) = match &statement.kind {
         K::Label { segment, .. } => (format!("label {}", segment.node.value), Vec::new()),
+        K::Brief { segment, .. } => (format!("brief {}", segment.node.value), Vec::new()),
         K::Weight { columns, .. } => (word, names(columns)),
         K::Call { column, .. } => (word, vec![column.node.clone()]),
         // A column may have one clip and one other transform.

@@ -124,7 +124,7 @@ impl Migration {
 }
 
 /// Distinct names, numerically ordered when all are whole numbers.
-fn ordered(names: &[&str]) -> Vec<String> {
+pub fn ordered(names: &[&str]) -> Vec<String> {
     let mut v: Vec<String> = names.iter().map(|s| s.to_string()).collect();
     v.sort();
     v.dedup();

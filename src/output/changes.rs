@@ -49,11 +49,32 @@ pub struct Changes {
     /// The recipe's period, when it is still last run's on other data:
     /// the report would date this quarter as the last.
     pub period_unchanged: Option<String>,
+    /// The periods last run's recipe and this run's recipe gave, when
+    /// they gave one: "then" and "now" in people's words.
+    pub period_then: Option<String>,
+    pub period_now: Option<String>,
 }
 
 /// What the terminal and the report say when `previous` names a model made
 /// from this run's own data.
 pub const SAME_DATA: &str = "last run's model was made from this same data (the file's digest is the one the model records), so this compares the data with itself and every change is zero. For next quarter's comparison, copy last run's model and assignments aside before running on the new data, and point `previous` at the copies (docs/language.md, `previous`)";
+
+/// Last run's segment `number`'s means, in this run's feature order.
+fn means_then(
+    then: &crate::run::previous::Then,
+    features: &[String],
+    number: usize,
+) -> Option<Vec<f64>> {
+    let seg = then.segments.iter().find(|s| s.number == number)?;
+    let means = seg.means.as_ref()?;
+    features
+        .iter()
+        .map(|f| {
+            let at = then.features.iter().position(|t| t == f)?;
+            means.get(at).copied()
+        })
+        .collect()
+}
 
 /// Last run's period, when this run's recipe still gives it on other data.
 fn period_unchanged(o: &Outcome, then: &crate::run::previous::Then) -> Option<String> {
@@ -71,18 +92,7 @@ impl Changes {
             .iter()
             .map(|f| f.column.clone())
             .collect();
-        // The model's means, in this run's feature order.
-        let means_then = |number: usize| -> Option<Vec<f64>> {
-            let seg = then.segments.iter().find(|s| s.number == number)?;
-            let means = seg.means.as_ref()?;
-            features
-                .iter()
-                .map(|f| {
-                    let at = then.features.iter().position(|t| t == f)?;
-                    means.get(at).copied()
-                })
-                .collect()
-        };
+        let means_then = |number: usize| means_then(then, &features, number);
         let mut segments: Vec<Change> = o
             .profiles
             .iter()
@@ -140,6 +150,8 @@ impl Changes {
             drift: o.drift.clone(),
             same_data: then.same_data,
             period_unchanged: period_unchanged(o, then),
+            period_then: then.period.clone(),
+            period_now: o.plan.period.clone(),
         })
     }
 
@@ -171,6 +183,26 @@ impl Changes {
     }
 }
 
+impl Change {
+    /// The change in members and in share for a segment both runs have:
+    /// `+52 members, +0.9 points`.
+    pub fn size_words(&self, noun: &str) -> Option<String> {
+        let (then, now) = (self.size_then?, self.size_now?);
+        let points = 100.0 * (self.share_now? - self.share_then?);
+        let diff = now as i64 - then as i64;
+        let count = super::people::decimals(diff.unsigned_abs() as f64, 0);
+        let sign = match diff {
+            d if d > 0 => "+",
+            d if d < 0 => "-",
+            _ => "",
+        };
+        Some(format!(
+            "{sign}{count} {noun}, {} points of the share",
+            super::people::signed(points, 1)
+        ))
+    }
+}
+
 /// A segment's name for text: `2 "bulk planners"`, or `2`.
 pub fn named(number: usize, label: Option<&str>) -> String {
     match label {
@@ -181,17 +213,21 @@ pub fn named(number: usize, label: Option<&str>) -> String {
 
 fn size_share(size: Option<usize>, share: Option<f64>) -> String {
     match (size, share) {
-        (Some(n), Some(s)) => format!("{:>9} {:>5.1}%", thousands(n), 100.0 * s),
-        _ => format!("{:>16}", "-"),
+        (Some(n), Some(s)) => format!("{:>9} {:>7}", thousands(n), super::people::share(s)),
+        _ => format!("{:>17}", "-"),
     }
 }
 
-/// The terminal section.
-pub fn terminal(c: &Changes) -> String {
+/// The terminal section; names and values as `call` gives them.
+pub fn terminal(c: &Changes, plan: &crate::plan::Plan) -> String {
     let mut s = String::new();
+    let periods = match (&c.period_then, &c.period_now) {
+        (Some(a), Some(b)) => format!("then {a}, now {b}; "),
+        _ => String::new(),
+    };
     let _ = writeln!(
         s,
-        "what changed since `{}` ({} records then, {} now; segments matched on their {})",
+        "what changed since `{}` ({periods}{} records then, {} now; segments matched on their {})",
         c.model,
         thousands(c.records_then),
         thousands(c.records_now),
@@ -203,7 +239,7 @@ pub fn terminal(c: &Changes) -> String {
     s.push_str(&matched_line(c));
     let _ = writeln!(
         s,
-        "  {:<32} {:>16} {:>16}  change",
+        "  {:<32} {:>17} {:>17}  change",
         "segment", "then", "now"
     );
     for ch in &c.segments {
@@ -241,7 +277,7 @@ pub fn terminal(c: &Changes) -> String {
             ch.weak.as_deref().unwrap_or("")
         );
     }
-    s.push_str(&means_lines(c));
+    s.push_str(&means_lines(c, plan));
     if let Some(d) = &c.drift {
         s.push_str(&drift_lines(d));
     }
@@ -275,17 +311,25 @@ fn matched_line(c: &Changes) -> String {
 }
 
 /// Each segment's means then and now, one line per segment both runs have.
-fn means_lines(c: &Changes) -> String {
+fn means_lines(c: &Changes, plan: &crate::plan::Plan) -> String {
     let mut s = String::from("  means, then -> now:\n");
     for ch in &c.segments {
         let (Some(then), Some(now)) = (&ch.means_then, &ch.means_now) else {
             continue;
         };
+        let shown = |f: &str, v: f64| super::people::compact(plan, f, v, 12);
         let parts: Vec<String> = c
             .features
             .iter()
             .zip(then.iter().zip(now))
-            .map(|(f, (a, b))| format!("{f} {} -> {}", short(*a), short(*b)))
+            .map(|(f, (a, b))| {
+                format!(
+                    "{} {} -> {}",
+                    super::people::name(plan, f),
+                    shown(f, *a),
+                    shown(f, *b)
+                )
+            })
             .collect();
         let _ = writeln!(
             s,

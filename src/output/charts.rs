@@ -6,7 +6,8 @@
 //! Colours are our own: eight segment colours that step through lightness,
 //! so they stay apart in greyscale and for the common colour-vision
 //! deficiencies, each paired with a marker shape in the scatter as a second
-//! cue; the heat map runs from blue through white to amber.
+//! cue; the heat map runs from blue through white to amber, each cell
+//! carrying its signed value, so that no reading depends on colour.
 
 use crate::engine::pca;
 use crate::run::Outcome;
@@ -26,6 +27,8 @@ pub const SEGMENT_COLOURS: [&str; 8] = [
 
 const INK: &str = "#222222";
 const GRID: &str = "#d8d8d8";
+/// The chosen k's line: dark enough to print in grey.
+const CHOSEN: &str = "#777777";
 const FONT: &str = "font-family:sans-serif;font-size:11px";
 
 /// A chart with its file-friendly name and its title.
@@ -167,8 +170,12 @@ pub fn criteria(o: &Outcome) -> Chart {
         for &k in &ks {
             g = g.add(text(xs.at(k), ys.from + 14.0, format!("{k}"), "middle"));
         }
+        // The chosen k by line, shape and word, not by colour alone, so
+        // that it survives a greyscale print.
         let chosen_x = xs.at(o.chosen as f64);
-        g = g.add(line(chosen_x, ys.from, chosen_x, ys.to, GRID).set("stroke-dasharray", "4 3"));
+        g = g
+            .add(line(chosen_x, ys.from, chosen_x, ys.to, CHOSEN).set("stroke-dasharray", "4 3"))
+            .add(text(chosen_x + 9.0, ys.to + 8.0, "chosen", "start"));
         let points: Vec<(f64, f64)> = ks
             .iter()
             .zip(&vals)
@@ -188,22 +195,13 @@ pub fn criteria(o: &Outcome) -> Chart {
         );
         for (r, v) in o.sweep.iter().zip(&vals) {
             if let Some(v) = v.filter(|v| v.is_finite()) {
-                let chosen = r.k == o.chosen;
-                g = g.add(
-                    Circle::new()
-                        .set("cx", xs.at(r.k as f64))
-                        .set("cy", ys.at(v))
-                        .set("r", if chosen { 5 } else { 3 })
-                        .set(
-                            "fill",
-                            if chosen {
-                                SEGMENT_COLOURS[1]
-                            } else {
-                                SEGMENT_COLOURS[0]
-                            },
-                        )
-                        .add(Title::new(format!("k = {}: {}", r.k, fmt(v)))),
-                );
+                g = g.add(k_point(
+                    r.k,
+                    r.k == o.chosen,
+                    xs.at(r.k as f64),
+                    ys.at(v),
+                    v,
+                ));
             }
         }
         doc = doc.add(g);
@@ -213,6 +211,24 @@ pub fn criteria(o: &Outcome) -> Chart {
         title,
         svg: doc.to_string(),
     }
+}
+
+/// One k's point on a criterion's panel: the chosen k a large open ring,
+/// the others small and filled, so the choice reads in greyscale too.
+fn k_point(k: usize, chosen: bool, x: f64, y: f64, v: f64) -> Circle {
+    let (radius, fill, stroke) = if chosen {
+        (6.0, "#ffffff", INK)
+    } else {
+        (3.0, SEGMENT_COLOURS[0], SEGMENT_COLOURS[0])
+    };
+    Circle::new()
+        .set("cx", x)
+        .set("cy", y)
+        .set("r", radius)
+        .set("fill", fill)
+        .set("stroke", stroke)
+        .set("stroke-width", if chosen { 2.5 } else { 1.0 })
+        .add(Title::new(format!("k = {k}: {}", fmt(v))))
 }
 
 /// Horizontal bars, one per segment, with a value label.
@@ -374,20 +390,47 @@ fn diverging(v: f64) -> String {
     format!("#{:02x}{:02x}{:02x}", mix(r), mix(g), mix(b))
 }
 
+/// Room for a text of `chars` characters at the charts' font size, in
+/// pixels (a generous average glyph width for sans-serif at 11 px).
+fn text_width(chars: usize) -> f64 {
+    6.4 * chars as f64
+}
+
+/// Each segment's standardised difference per feature, a cell per pair
+/// with its signed value written in it, so the sign reads without colour;
+/// features by their `call` names. The label room grows with the longest
+/// name, so no name is cut.
 pub fn heat_map(o: &Outcome) -> Chart {
     let features: Vec<&str> = o
         .prepared
         .features
         .iter()
-        .map(|f| f.column.as_str())
+        .map(|f| super::people::name(&o.plan, &f.column))
         .collect();
+    let rows: Vec<String> = o
+        .profiles
+        .iter()
+        .enumerate()
+        .map(|(i, p)| {
+            format!(
+                "{} {}",
+                p.segment.unwrap_or(i + 1),
+                p.label.clone().unwrap_or_default()
+            )
+        })
+        .collect();
+    let longest = |v: &mut dyn Iterator<Item = usize>| v.max().unwrap_or(0);
     let (cw, ch) = (64.0, 26.0);
-    let (left, top) = (170.0, 110.0);
+    let left = (text_width(longest(&mut rows.iter().map(|r| r.chars().count()))) + 16.0).max(170.0);
+    // Column names are turned 40 degrees: their height is sin 40° of
+    // their width.
+    let top = (text_width(longest(&mut features.iter().map(|f| f.chars().count()))) * 0.643 + 20.0)
+        .max(110.0);
     let w = left + cw * features.len() as f64 + 20.0;
-    let h = top + ch * o.profiles.len() as f64 + 40.0;
+    let h = top + ch * o.profiles.len() as f64 + 70.0;
     let title =
         "how segments differ (standardised difference from all records, after the transform)";
-    let mut doc = document(w.max(520.0), h, title);
+    let mut doc = document(w.max(560.0), h, title);
     for (j, f) in features.iter().enumerate() {
         let x = left + cw * j as f64 + cw / 2.0;
         doc = doc.add(
@@ -397,12 +440,7 @@ pub fn heat_map(o: &Outcome) -> Chart {
     }
     for (i, p) in o.profiles.iter().enumerate() {
         let y = top + ch * i as f64;
-        let name = format!(
-            "{} {}",
-            p.segment.unwrap_or(i + 1),
-            p.label.clone().unwrap_or_default()
-        );
-        doc = doc.add(text(left - 6.0, y + 17.0, name, "end"));
+        doc = doc.add(text(left - 6.0, y + 17.0, rows[i].as_str(), "end"));
         for (j, fs) in p.features.iter().enumerate() {
             let x = left + cw * j as f64;
             doc = doc
@@ -428,12 +466,44 @@ pub fn heat_map(o: &Outcome) -> Chart {
                 ));
         }
     }
-    doc = doc.add(text(
-        left,
-        h - 12.0,
-        "blue: below the average of all records; amber: above",
-        "start",
-    ));
+    heat_legend(doc, left, h - 52.0, title)
+}
+
+/// The heat map's key: five swatches from -2 to +2 with their values, and
+/// what they mean in words that hold in greyscale too.
+fn heat_legend(mut doc: Document, left: f64, y: f64, title: &str) -> Chart {
+    for (i, v) in [-2.0, -1.0, 0.0, 1.0, 2.0].into_iter().enumerate() {
+        let x = left + 44.0 * i as f64;
+        doc = doc
+            .add(
+                Rectangle::new()
+                    .set("x", x)
+                    .set("y", y)
+                    .set("width", 40.0)
+                    .set("height", 16.0)
+                    .set("fill", diverging(v))
+                    .set("stroke", GRID),
+            )
+            .add(text(
+                x + 20.0,
+                y + 12.0,
+                super::people::signed(v, 0),
+                "middle",
+            ));
+    }
+    doc = doc
+        .add(text(
+            left,
+            y + 30.0,
+            "the stronger the shade, the further from the average of all records;",
+            "start",
+        ))
+        .add(text(
+            left,
+            y + 44.0,
+            "minus: below it (blue), plus: above it (amber)",
+            "start",
+        ));
     Chart {
         name: "heat-map",
         title: title.to_string(),
@@ -460,8 +530,9 @@ pub fn projection(o: &Outcome) -> Chart {
     };
     let (w, h) = (780.0, 480.0);
     let title = format!(
-        "records on their first two principal components ({} of {n} shown)",
-        n.div_ceil(step)
+        "records on their first two principal components ({} of {} shown)",
+        crate::text::thousands(n.div_ceil(step)),
+        crate::text::thousands(n)
     );
     let mut doc = document(w, h, &title);
     let cx = |i| {

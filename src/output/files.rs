@@ -495,6 +495,11 @@ struct JsonCategory<'a> {
 struct JsonProfile<'a> {
     segment: Option<usize>,
     label: Option<&'a str>,
+    /// The recipe's `brief` of the segment, and its next step.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    brief: Option<&'a str>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    action: Option<&'a str>,
     size: usize,
     share: f64,
     silhouette: Option<f64>,
@@ -507,10 +512,13 @@ struct JsonProfile<'a> {
     level_shares: &'a [Vec<f64>],
 }
 
-fn json_profile(p: &Profile) -> JsonProfile<'_> {
+fn json_profile<'a>(p: &'a Profile, o: &'a Outcome) -> JsonProfile<'a> {
+    let note = p.segment.and_then(|s| o.plan.briefs.get(&s));
     JsonProfile {
         segment: p.segment,
         label: p.label.as_deref(),
+        brief: note.map(|n| n.text.as_str()),
+        action: note.and_then(|n| n.action.as_deref()),
         size: p.size,
         share: p.share,
         silhouette: p.silhouette,
@@ -546,8 +554,8 @@ fn profiles_json(o: &Outcome) -> Vec<u8> {
                 levels: &c.levels,
             })
             .collect(),
-        overall: json_profile(&o.overall),
-        segments: o.profiles.iter().map(json_profile).collect(),
+        overall: json_profile(&o.overall, o),
+        segments: o.profiles.iter().map(|p| json_profile(p, o)).collect(),
         values: &o.values,
     };
     let mut bytes = serde_json::to_vec_pretty(&doc).unwrap_or_default();

@@ -46,6 +46,33 @@ pub fn formatted(v: f64, display: Option<&Display>) -> String {
     }
 }
 
+/// A value of `column` in its format within `room` characters, for the
+/// terminal's fixed-width tables: a percentage (`57.8 %`), money with its
+/// symbol (`€170.48`, whole when the cents do not fit: `€3,242`), a whole
+/// count; other numbers, and what still does not fit, as the short form.
+/// Words of a unit are left to the row's name.
+pub fn compact(plan: &Plan, column: &str, v: f64, room: usize) -> String {
+    let display = plan.display.get(column);
+    let fits = |t: String| (t.chars().count() <= room).then_some(t);
+    let tried = match display.map(|d| d.format) {
+        Some(NumberFormat::Percent) => {
+            fits(share(v)).or_else(|| fits(format!("{:.0} %", v * 100.0)))
+        }
+        Some(NumberFormat::Money) => fits(formatted(v, display)).or_else(|| {
+            let unit = display.and_then(|d| d.unit.as_deref()).unwrap_or("");
+            let sign = if decimals(v, 0).starts_with('-') {
+                "-"
+            } else {
+                ""
+            };
+            fits(format!("{sign}{unit}{}", decimals(v.abs(), 0)))
+        }),
+        Some(NumberFormat::Count) => fits(decimals(v, 0)),
+        _ => None,
+    };
+    tried.unwrap_or_else(|| crate::output::short(v))
+}
+
 /// A share (a fraction) as a percentage with one decimal: `29.7 %`.
 pub fn share(f: f64) -> String {
     if !f.is_finite() {

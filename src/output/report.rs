@@ -25,6 +25,7 @@ table{border-collapse:collapse;font-size:.92em}td,th{border-bottom:1px solid #e3
 th:first-child,td:first-child{text-align:left}.chosen{font-weight:bold;background:#fff4e0}\
 figure{margin:1.2em 0}figcaption{font-size:.9em;color:#555}.caution{background:#fbf6e8;border:1px solid #e8d9a8;padding:.6em .9em}\
 code{font-size:.95em}.period{color:#555;margin-top:0}.value{font-weight:bold}.rule{font-size:.92em;background:#f4f4f4;padding:.3em .5em}\
+.about{font-style:italic;margin:.1em 0 .4em 0}.next{border-top:1px solid #ddd;padding-top:.3em}\
 @page{size:A4;margin:14mm}\
 @media print{body{max-width:none;margin:0}.cards{display:grid;grid-template-columns:1fr 1fr;gap:8px}.card{width:auto;margin:0;break-inside:avoid;page-break-inside:avoid}\
 figure,table,.caution{break-inside:avoid;page-break-inside:avoid}h2,h3{break-after:avoid;page-break-after:avoid}.analyst{break-before:page;page-break-before:always}}";
@@ -35,10 +36,6 @@ fn esc(s: &str) -> String {
         .replace('<', "&lt;")
         .replace('>', "&gt;")
         .replace('"', "&quot;")
-}
-
-fn short(v: f64) -> String {
-    crate::text::short_grouped(v)
 }
 
 /// How far a standardised difference is from the average, in words.
@@ -63,18 +60,6 @@ pub fn render(o: &Outcome, sources: &Sources<'_>) -> Vec<u8> {
         "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"/><title>{}</title><style>{STYLE}</style></head><body>\n",
         esc(plan.title.as_deref().unwrap_or(&plan.name))
     );
-    let method = match &plan.method {
-        MethodPlan::KMeans(k) => format!("k-means ({} restarts per k)", k.restarts),
-        MethodPlan::Tree(t) => format!(
-            "an agglomerative tree ({} linkage, {} distance{})",
-            t.linkage.name(),
-            t.distance.name(),
-            t.micro
-                .as_ref()
-                .map(|m| format!(", over {} k-means micro-segments", m.segments))
-                .unwrap_or_default()
-        ),
-    };
     // The word for a record comes from the recipe: escaped here, once, as
     // every later use is inside markup.
     let noun = esc(plan.records_noun.as_deref().unwrap_or("records"));
@@ -89,14 +74,18 @@ pub fn render(o: &Outcome, sources: &Sources<'_>) -> Vec<u8> {
         crate::text::thousands(o.prepared.kept.len()),
         o.chosen,
     );
-    cards(&mut h, o, &noun);
+    let changes = super::changes::Changes::of(o);
+    cards(&mut h, o, &noun, changes.as_ref());
+    if let Some(c) = &changes {
+        changed(&mut h, c, o, &noun);
+    }
     let _ = write!(
         h,
         "<div class=\"analyst\"><h2>What the analyst should know</h2>\n<p class=\"small\">{} of {} records from <code>{}</code> were segmented by {}.</p>\n",
         crate::text::thousands(o.prepared.kept.len()),
         crate::text::thousands(o.records),
         esc(&plan.input.path),
-        esc(&method)
+        esc(&method_words(&plan.method))
     );
     if plan.input.keyless {
         let _ = write!(
@@ -107,8 +96,8 @@ pub fn render(o: &Outcome, sources: &Sources<'_>) -> Vec<u8> {
     }
     how(&mut h, o);
     why(&mut h, o);
-    if let Some(c) = super::changes::Changes::of(o) {
-        changed(&mut h, &c, o);
+    if let Some(c) = &changes {
+        drift(&mut h, c, o);
     }
     let _ = write!(h, "<h2>Charts</h2>\n");
     for c in charts::all(o) {
@@ -133,6 +122,22 @@ pub fn render(o: &Outcome, sources: &Sources<'_>) -> Vec<u8> {
         env!("CARGO_PKG_VERSION")
     );
     h.into_bytes()
+}
+
+/// The method in words: "k-means (50 restarts per k)".
+fn method_words(method: &MethodPlan) -> String {
+    match method {
+        MethodPlan::KMeans(k) => format!("k-means ({} restarts per k)", k.restarts),
+        MethodPlan::Tree(t) => format!(
+            "an agglomerative tree ({} linkage, {} distance{})",
+            t.linkage.name(),
+            t.distance.name(),
+            t.micro
+                .as_ref()
+                .map(|m| format!(", over {} k-means micro-segments", m.segments))
+                .unwrap_or_default()
+        ),
+    }
 }
 
 fn how(h: &mut String, o: &Outcome) {
@@ -173,39 +178,52 @@ fn how(h: &mut String, o: &Outcome) {
         .prepared
         .features
         .iter()
-        .filter(|f| f.filled > 0)
-        .map(|f| format!("{} in <code>{}</code>", f.filled, esc(&f.column)))
-        .collect();
-    let rules: Vec<&str> = plan
-        .features
-        .iter()
-        .map(|f| match f.missing {
-            MissingRule::FillMedian => "filled with the median",
-            MissingRule::FillMean => "filled with the mean",
-            MissingRule::FillValue(_) => "filled with a fixed value",
-            MissingRule::DropRow => "records dropped",
-            MissingRule::Refuse => "none allowed",
+        .enumerate()
+        .filter(|(_, f)| f.filled > 0)
+        .map(|(f, fp)| {
+            format!(
+                "{} in <code>{}</code> filled with {}",
+                crate::text::thousands(fp.filled),
+                esc(&fp.column),
+                esc(&fill_words(o, f).unwrap_or_default())
+            )
         })
         .collect();
-    let mut rules_d = rules.clone();
-    rules_d.dedup();
-    let _ = write!(
-        h,
-        "<li>Missing values: {}{}; {} records dropped.</li>\n",
-        rules_d.join(", "),
-        if filled.is_empty() {
-            String::new()
-        } else {
-            format!(" ({} filled)", filled.join(", "))
-        },
-        o.prepared.dropped
-    );
+    let dropped = match o.prepared.dropped {
+        0 => "no record dropped".to_string(),
+        n => format!(
+            "{} records dropped for gaps (in the hand-off with no segment and why)",
+            crate::text::thousands(n)
+        ),
+    };
+    let gaps = if filled.is_empty() {
+        "none filled".to_string()
+    } else {
+        filled.join(", ")
+    };
+    let _ = write!(h, "<li>Missing values: {gaps}; {dropped}.</li>\n");
     let _ = write!(h, "<li>Scaling: {}.</li>\n", esc(&serde_plain(&plan.scale)));
     let _ = write!(
         h,
         "<li>Seed {}: rerunning the recipe on the same data gives the same segments.</li>\n</ul>\n",
         plan.seed
     );
+}
+
+/// What feature `f`'s gaps were filled with, in its format: "€39.10, the
+/// median"; `None` when the recipe does not fill them.
+fn fill_words(o: &Outcome, f: usize) -> Option<String> {
+    let fp = &o.prepared.features[f];
+    let what = match o.plan.features.get(f)?.missing {
+        MissingRule::FillMedian => ", the median",
+        MissingRule::FillMean => ", the mean",
+        MissingRule::FillValue(_) => ", as the recipe says",
+        MissingRule::DropRow | MissingRule::Refuse => return None,
+    };
+    Some(format!(
+        "{}{what}",
+        people::value(&o.plan, &fp.column, fp.fill?)
+    ))
 }
 
 fn serde_plain<T: serde::Serialize>(v: &T) -> String {
@@ -225,13 +243,8 @@ fn why(h: &mut String, o: &Outcome) {
     for s in o.disagreement.iter().chain(&o.notes) {
         let _ = write!(h, "<p class=\"small\">{}.</p>\n", esc(s));
     }
-    // Restart advice once, not once per k.
-    if let Some(first) = o.advice.first() {
-        let more = match o.advice.len() - 1 {
-            0 => String::new(),
-            n => format!(" (and the same for {n} other values of k; the terminal lists each)"),
-        };
-        let _ = write!(h, "<p class=\"small\">{}{more}.</p>\n", esc(first));
+    for a in &o.advice {
+        let _ = write!(h, "<p class=\"small\">{}.</p>\n", esc(a));
     }
     if let Some(v) = &o.validation {
         let _ = write!(h, "<p class=\"small\">Against the known grouping <code>{}</code>: adjusted Rand index {:.3}.</p>\n", esc(&v.column), v.adjusted_rand_index);
@@ -264,14 +277,14 @@ fn sweep_table(h: &mut String, o: &Outcome) {
         };
         let _ = write!(
             h,
-            "<tr{class}><td>{}</td><td>{:.2}</td><td>{}</td><td>{:.1}</td><td>{:.4}</td>",
+            "<tr{class}><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{:.4}</td>",
             r.k,
-            r.within_ss,
+            people::decimals(r.within_ss, 2),
             match r.silhouette_se {
                 Some(se) => format!("{:.4} ± {se:.4}", r.silhouette),
                 None => format!("{:.4}", r.silhouette),
             },
-            r.calinski_harabasz,
+            people::decimals(r.calinski_harabasz, 1),
             r.davies_bouldin
         );
         if gap {
@@ -317,7 +330,7 @@ fn sweep_table(h: &mut String, o: &Outcome) {
 /// One card per segment, for people who act on segments: its name, size
 /// and share, what it holds of the described values, what sets it apart in
 /// words, its rule, and the category levels it over-represents.
-fn cards(h: &mut String, o: &Outcome, noun: &str) {
+fn cards(h: &mut String, o: &Outcome, noun: &str, changes: Option<&super::changes::Changes>) {
     let _ = write!(h, "<h2>The segments</h2>\n<div class=\"cards\">\n");
     for (i, p) in o.profiles.iter().enumerate() {
         let seg = p.segment.unwrap_or(i + 1);
@@ -332,6 +345,13 @@ fn cards(h: &mut String, o: &Outcome, noun: &str) {
             crate::text::thousands(p.size),
             people::share(p.share),
         );
+        let note = o.plan.briefs.get(&seg);
+        if let Some(n) = note {
+            let _ = write!(h, "<p class=\"about\">{}</p>\n", esc(&n.text));
+        }
+        if let Some(line) = changes.and_then(|c| since_line(c, o, seg, noun)) {
+            let _ = write!(h, "<p class=\"small\">{line}</p>\n");
+        }
         for v in &o.values {
             let _ = write!(h, "<p>{}</p>\n", value_line(o, v, i, noun));
         }
@@ -353,9 +373,51 @@ fn cards(h: &mut String, o: &Outcome, noun: &str) {
                 people::share(r.precision)
             );
         }
+        if let Some(action) = note.and_then(|n| n.action.as_ref()) {
+            let _ = write!(
+                h,
+                "<p class=\"next\"><b>Next step:</b> {}</p>\n",
+                esc(action)
+            );
+        }
         let _ = write!(h, "</div>\n");
     }
     let _ = write!(h, "</div>\n");
+}
+
+/// How segment `seg` changed since last run, for its card: its change in
+/// members and share, how many of its members joined since (with last
+/// run's assignments), or that it is new; a weak match is said.
+fn since_line(c: &super::changes::Changes, o: &Outcome, seg: usize, noun: &str) -> Option<String> {
+    if c.same_data {
+        return None;
+    }
+    let ch = c.segments.iter().find(|ch| ch.number == seg)?;
+    let then = when(c.period_then.as_ref(), "last run");
+    let mut line = match ch.status {
+        "new" => format!("New since {then}."),
+        _ => format!("Since {then}: {}.", ch.size_words(noun)?),
+    };
+    let joined = o.comparison.as_ref().and_then(|cmp| {
+        cmp.joined
+            .iter()
+            .find(|(s, _)| *s == seg.to_string())
+            .map(|(_, n)| *n)
+    });
+    if let Some(n) = joined.filter(|&n| n > 0) {
+        let _ = write!(
+            line,
+            " {} of its {noun} joined since.",
+            crate::text::thousands(n)
+        );
+    }
+    if ch.weak.is_some() {
+        let _ = write!(
+            line,
+            " <b>Matched weakly</b> to last run's segment: check the name still fits."
+        );
+    }
+    Some(line)
 }
 
 /// A `tally` column on segment `i`'s card, in the column's format. A rate
@@ -450,8 +512,17 @@ fn describe(o: &Outcome, i: usize, noun: &str) -> Vec<String> {
             } else {
                 format!("{} the average", degree(p.features[f].std_diff))
             };
+            // A mean that counts filled gaps says so, with the value.
+            let gaps = match (p.features[f].filled, fill_words(o, f)) {
+                (0, _) | (_, None) => String::new(),
+                (n, Some(fill)) => format!(
+                    "; {} {noun} had no value and count as {}",
+                    crate::text::thousands(n),
+                    esc(&fill)
+                ),
+            };
             format!(
-                "{}: {}, {how} ({} for all {noun})",
+                "{}: {}, {how} ({} for all {noun}){gaps}",
                 esc(people::name(&o.plan, column)),
                 esc(&people::value(&o.plan, column, here)),
                 esc(&people::value(&o.plan, column, all))
@@ -489,11 +560,16 @@ fn categories_over(h: &mut String, o: &Outcome, i: usize) {
     }
 }
 
+/// Where the results come from, for someone who must trace them: the
+/// recipe (by name, its digest), each file read with its records and
+/// digest, and the seed in words; the generator's technical name is in
+/// the run record.
 fn provenance(h: &mut String, o: &Outcome, sources: &Sources<'_>) {
     let _ = write!(h, "<h2>Where these results come from</h2>\n<table>\n");
     let _ = write!(
         h,
-        "<tr><td>recipe</td><td><code>{}</code></td></tr>\n",
+        "<tr><td>recipe <code>{}</code></td><td><code>{}</code></td></tr>\n",
+        esc(&o.plan.name),
         sha256_hex(sources.recipe_text.as_bytes())
     );
     for i in sources.inputs {
@@ -502,23 +578,25 @@ fn provenance(h: &mut String, o: &Outcome, sources: &Sources<'_>) {
             "<tr><td>{} <code>{}</code> ({} records)</td><td><code>{}</code></td></tr>\n",
             esc(&i.role),
             esc(&i.path),
-            i.records,
+            crate::text::thousands(i.records),
             i.sha256
         );
     }
     let _ = write!(
         h,
-        "<tr><td>seed, generator</td><td>{}, {}</td></tr>\n</table>\n<p class=\"small\">SHA-256 digests; the run record beside the outputs holds the digest of every file written.</p>\n",
-        o.plan.seed,
-        esc(crate::engine::rng::GENERATOR)
+        "<tr><td>seed</td><td>{}: every random choice follows from it, so a rerun on the same files gives the same segments</td></tr>\n</table>\n<p class=\"small\">The long codes are SHA-256 digests: a file with the same digest is the same file. The run record beside the outputs holds the digest of every file written.</p>\n",
+        o.plan.seed
     );
 }
 
-/// "What changed since last run": sizes and shares then and now, the
-/// migration of shared members by name, and the means then and now.
-/// What the report says before the comparison: that there is none (last
-/// run's model was made from this data; false then), or that the period
-/// was not changed.
+/// "What changed" for the people who act on segments: then and now by
+/// their periods, each segment's size and share then and now with the
+/// change in members and points, where last run's members went and where
+/// this run's joiners landed, and the averages then and now, all by the
+/// names and formats of `call`. The drift measures are the analyst's (see
+/// [`drift`]).
+/// Says first when there is nothing to compare (last run's model was made
+/// from this data: false then), or that the period was not changed.
 fn caveats(h: &mut String, c: &super::changes::Changes) -> bool {
     if c.same_data {
         // A quarter compared with itself is not shown as a comparison.
@@ -539,16 +617,22 @@ fn caveats(h: &mut String, c: &super::changes::Changes) -> bool {
     true
 }
 
-fn changed(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
+/// When, in words: the period a recipe gave, or what stands in for it.
+fn when(period: Option<&String>, otherwise: &str) -> String {
+    period.map_or(otherwise.to_string(), |p| esc(p))
+}
+
+fn changed(h: &mut String, c: &super::changes::Changes, o: &Outcome, noun: &str) {
     use crate::text::thousands;
     if !caveats(h, c) {
         return;
     }
+    let then = when(c.period_then.as_ref(), "last run");
     let _ = write!(
         h,
-        "<h2>What changed since last run</h2>\n<p>Segments were matched one to one with those of <code>{}</code> ({} records then, {} now) on their {}; a matched segment keeps its number and name.</p>\n",
-        esc(&c.model),
+        "<h2>What changed since {then}</h2>\n<p>Then: {then}, {} {noun}. Now: {}, {} {noun}. Each segment was matched with one of last run's on their {} and keeps its number and name.</p>\n",
         thousands(c.records_then),
+        when(c.period_now.as_ref(), "this run"),
         thousands(c.records_now),
         esc(c.basis)
     );
@@ -563,14 +647,8 @@ fn changed(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
     for ch in &c.segments {
         let change = match ch.status {
             "new" => "new segment".to_string(),
-            "gone" => "gone".to_string(),
-            _ => format!(
-                "{} points",
-                people::signed(
-                    100.0 * (ch.share_now.unwrap_or(0.0) - ch.share_then.unwrap_or(0.0)),
-                    1
-                )
-            ),
+            "gone" => "no longer found".to_string(),
+            _ => ch.size_words(noun).unwrap_or_default(),
         };
         let _ = write!(
             h,
@@ -578,7 +656,7 @@ fn changed(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
             esc(&super::changes::named(ch.number, ch.label.as_deref())),
             cell(ch.size_then, ch.share_then),
             cell(ch.size_now, ch.share_now),
-            esc(&change),
+            change,
             ch.weak
                 .as_ref()
                 .map(|w| format!("<br/><b>weak match</b>: {}", esc(w)))
@@ -587,88 +665,131 @@ fn changed(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
     }
     let _ = write!(h, "</table>\n");
     if let Some(cmp) = &o.comparison {
-        migration_table(h, cmp);
+        migration_table(h, cmp, noun);
     }
-    if let Some(d) = &c.drift {
-        let parts: Vec<String> = d
-            .features
-            .iter()
-            .map(|f| format!("{} {:.3} ({})", esc(&f.column), f.psi, f.reading))
-            .collect();
-        let _ = write!(
-            h,
-            "<p>Does this data still look like last run's? Population stability index of each feature (below 0.1 stable, 0.1 to 0.25 some shift, above 0.25 a major shift; a rule of thumb of the trade): {}. {:.1} % of the records are farther from every centre than 99 % of last run's records were (about 1 % is expected).</p>\n",
-            parts.join(", "),
-            100.0 * d.far_share
-        );
-        for w in &d.warnings {
-            let _ = write!(h, "<div class=\"caution\"><p>{}</p></div>\n", esc(w));
-        }
-    }
-    means_table(h, c);
+    means_table(h, c, o);
 }
 
-/// Where last run's members went, segment by segment (with `compare`).
-fn migration_table(h: &mut String, cmp: &crate::run::comparison::Comparison) {
+/// Does this data still look like last run's (analyst half): each
+/// feature's population stability index, the far share, and warnings.
+fn drift(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
+    let Some(d) = c.drift.as_ref().filter(|_| !c.same_data) else {
+        return;
+    };
+    let parts: Vec<String> = d
+        .features
+        .iter()
+        .map(|f| {
+            format!(
+                "{} {:.3} ({})",
+                esc(people::name(&o.plan, &f.column)),
+                f.psi,
+                f.reading
+            )
+        })
+        .collect();
+    let _ = write!(
+        h,
+        "<h2>Does this data still look like last run's?</h2>\n<p class=\"small\">Population stability index of each feature (below 0.1 stable, 0.1 to 0.25 some shift, above 0.25 a major shift; a rule of thumb of the trade): {}. {} of the records are farther from every centre than 99 % of last run's records were (about 1 % is expected).</p>\n",
+        parts.join(", "),
+        people::share(d.far_share)
+    );
+    for w in &d.warnings {
+        let _ = write!(h, "<div class=\"caution\"><p>{}</p></div>\n", esc(w));
+    }
+}
+
+/// Where last run's members went, segment by segment (with last run's
+/// assignments): a row per segment then and one for those who joined
+/// since, a column per segment now and one for those who left since.
+fn migration_table(h: &mut String, cmp: &crate::run::comparison::Comparison, noun: &str) {
     use crate::text::thousands;
     let name = |labels: &std::collections::HashMap<String, String>, seg: &str| match labels.get(seg)
     {
         Some(l) => format!("{seg} {l}"),
         None => seg.to_string(),
     };
+    let count =
+        |v: &[(String, usize)], seg: &str| v.iter().find(|(s, _)| s == seg).map_or(0, |(_, n)| *n);
     let _ = write!(
         h,
-        "<p>Where last run's members went ({} in both runs):</p>\n<table class=\"changes\"><tr><th>last run</th>",
-        thousands(cmp.both)
+        "<p>Where last run's {noun} went: {} are in both runs, {} joined since and {} left.</p>\n<table class=\"changes\"><tr><th>then \u{2193} now \u{2192}</th>",
+        thousands(cmp.both),
+        thousands(cmp.only_new),
+        thousands(cmp.only_old)
     );
     for t in &cmp.migration.to {
         let _ = write!(h, "<th>{}</th>", esc(&name(&cmp.new_labels, t)));
     }
-    let _ = write!(h, "</tr>\n");
+    let _ = write!(h, "<th>left since</th></tr>\n");
     for (i, f) in cmp.migration.from.iter().enumerate() {
         let _ = write!(h, "<tr><td>{}</td>", esc(&name(&cmp.old_labels, f)));
         for n in &cmp.migration.counts[i] {
             let _ = write!(h, "<td>{}</td>", thousands(*n));
         }
-        let _ = write!(h, "</tr>\n");
+        let _ = write!(h, "<td>{}</td></tr>\n", thousands(count(&cmp.left, f)));
     }
-    let _ = write!(h, "</table>\n");
+    let _ = write!(h, "<tr><td>joined since</td>");
+    for t in &cmp.migration.to {
+        let _ = write!(h, "<td>{}</td>", thousands(count(&cmp.joined, t)));
+    }
+    let _ = write!(h, "<td></td></tr>\n</table>\n");
+    // Segments of leavers or joiners that no shared member has.
+    let elsewhere = |v: &[(String, usize)], among: &[String], labels| -> Vec<String> {
+        v.iter()
+            .filter(|(s, _)| !among.contains(s))
+            .map(|(s, n)| format!("{} in {}", thousands(*n), esc(&name(labels, s))))
+            .collect()
+    };
+    let joined = elsewhere(&cmp.joined, &cmp.migration.to, &cmp.new_labels);
+    let left = elsewhere(&cmp.left, &cmp.migration.from, &cmp.old_labels);
+    if !joined.is_empty() || !left.is_empty() {
+        let _ = write!(
+            h,
+            "<p class=\"small\">Not in the table, as no member of both runs is there: joined {}; left {}.</p>\n",
+            crate::text::and_list(&joined),
+            crate::text::and_list(&left)
+        );
+    }
 }
 
-/// Each segment's means then and now, for the segments both runs have.
-fn means_table(h: &mut String, c: &super::changes::Changes) {
+/// Each segment's averages then and now, for the segments both runs have,
+/// by the names and formats of `call`.
+fn means_table(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
     let with_means: Vec<&super::changes::Change> = c
         .segments
         .iter()
         .filter(|ch| ch.means_then.is_some() && ch.means_now.is_some())
         .collect();
-    if !with_means.is_empty() {
+    if with_means.is_empty() {
+        return;
+    }
+    let _ = write!(
+        h,
+        "<p>Averages then \u{2192} now:</p>\n<table class=\"changes\"><tr><th></th>"
+    );
+    for ch in &with_means {
         let _ = write!(
             h,
-            "<p>Means in original units, then \u{2192} now:</p>\n<table class=\"changes\"><tr><th>feature</th>"
+            "<th>{}</th>",
+            esc(&super::changes::named(ch.number, ch.label.as_deref()))
         );
+    }
+    let _ = write!(h, "</tr>\n");
+    for (f, column) in c.features.iter().enumerate() {
+        let _ = write!(h, "<tr><td>{}</td>", esc(people::name(&o.plan, column)));
+        let shown = |v: Option<f64>| v.map_or(String::new(), |v| people::value(&o.plan, column, v));
         for ch in &with_means {
+            let then = ch.means_then.as_ref().and_then(|m| m.get(f)).copied();
+            let now = ch.means_now.as_ref().and_then(|m| m.get(f)).copied();
             let _ = write!(
                 h,
-                "<th>{}</th>",
-                esc(&super::changes::named(ch.number, ch.label.as_deref()))
+                "<td>{} \u{2192} {}</td>",
+                esc(&shown(then)),
+                esc(&shown(now))
             );
         }
         let _ = write!(h, "</tr>\n");
-        for (f, name) in c.features.iter().enumerate() {
-            let _ = write!(h, "<tr><td>{}</td>", esc(name));
-            for ch in &with_means {
-                let then = ch.means_then.as_ref().and_then(|m| m.get(f)).copied();
-                let now = ch.means_now.as_ref().and_then(|m| m.get(f)).copied();
-                let _ = write!(
-                    h,
-                    "<td>{} \u{2192} {}</td>",
-                    then.map(short).unwrap_or_default(),
-                    now.map(short).unwrap_or_default()
-                );
-            }
-            let _ = write!(h, "</tr>\n");
-        }
-        let _ = write!(h, "</table>\n");
     }
+    let _ = write!(h, "</table>\n");
 }

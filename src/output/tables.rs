@@ -1,9 +1,10 @@
 //! Terminal tables: the run summary, the k sweep and the segment profiles,
 //! laid out to read at 100 columns.
 
-use super::{people, short};
-use crate::plan::{MethodPlan, Seeding};
+use super::people;
+use crate::plan::{MethodPlan, NumberFormat, Seeding};
 use crate::run::{Outcome, Profile};
+use crate::text::thousands;
 use std::fmt::Write;
 
 /// Segments shown side by side before the profile table wraps.
@@ -22,7 +23,7 @@ pub fn report(o: &Outcome) -> String {
     rules(&mut s, o);
     if let Some(c) = super::changes::Changes::of(o) {
         s.push('\n');
-        s.push_str(&super::changes::terminal(&c));
+        s.push_str(&super::changes::terminal(&c, &o.plan));
     }
     if let Some(c) = &o.comparison {
         s.push_str(&comparison(c));
@@ -45,7 +46,9 @@ pub fn comparison(c: &crate::run::comparison::Comparison) -> String {
     let _ = writeln!(
         s,
         "  {} in both; {} only in the old; {} only in the new",
-        c.both, c.only_old, c.only_new
+        thousands(c.both),
+        thousands(c.only_old),
+        thousands(c.only_new)
     );
     if let Some(note) = &c.key_note {
         let _ = writeln!(s, "  {note}");
@@ -65,13 +68,13 @@ pub fn comparison(c: &crate::run::comparison::Comparison) -> String {
     for (i, f) in m.from.iter().enumerate() {
         let mut line = format!("  {:<12}", clip(f, 11));
         for j in 0..m.to.len() {
-            let _ = write!(line, "{:>W$}", m.counts[i][j]);
+            let _ = write!(line, "{:>W$}", thousands(m.counts[i][j]));
         }
         let (j, jac) = c.best[i];
         let _ = write!(
             line,
             "{:>W$}  {} ({jac:.2})",
-            m.row_total(i),
+            thousands(m.row_total(i)),
             m.to.get(j).map(String::as_str).unwrap_or("-")
         );
         let _ = writeln!(s, "{line}");
@@ -84,7 +87,7 @@ pub fn comparison(c: &crate::run::comparison::Comparison) -> String {
             let _ = write!(
                 line,
                 "{:>W$}",
-                format!("{:.0}%", 100.0 * m.counts[i][j] as f64 / total)
+                format!("{:.0} %", 100.0 * m.counts[i][j] as f64 / total)
             );
         }
         let _ = writeln!(s, "{line}");
@@ -96,19 +99,23 @@ fn summary(s: &mut String, o: &Outcome) {
     let p = &o.prepared;
     let plan = &o.plan;
     let _ = writeln!(s, "recipe `{}`", plan.name);
-    let mut line = format!("  data      {}: {} records", plan.input.path, o.records);
+    let mut line = format!(
+        "  data      {}: {} records",
+        plan.input.path,
+        thousands(o.records)
+    );
     if p.dropped > 0 {
         let _ = write!(
             line,
             ", {} dropped for missing values, {} segmented",
-            p.dropped,
-            p.kept.len()
+            thousands(p.dropped),
+            thousands(p.kept.len())
         );
         let by: Vec<String> = p
             .dropped_by
             .iter()
             .filter(|(_, c)| *c > 0)
-            .map(|(c, n)| format!("{c} {n}"))
+            .map(|(c, n)| format!("{c} {}", thousands(*n)))
             .collect();
         let _ = write!(line, " (missing in {})", by.join(", "));
     }
@@ -121,11 +128,12 @@ fn summary(s: &mut String, o: &Outcome) {
         );
     }
     for f in p.features.iter().filter(|f| f.filled > 0) {
-        let fill = short(f.fill.unwrap_or(f64::NAN));
+        let fill = people::value(plan, &f.column, f.fill.unwrap_or(f64::NAN));
         let _ = writeln!(
             s,
             "  missing   {}: {} filled with {fill}",
-            f.column, f.filled
+            f.column,
+            thousands(f.filled)
         );
     }
     let constant: Vec<&str> = p
@@ -203,17 +211,29 @@ pub fn rule_words(o: &Outcome, r: &crate::run::rules::SegmentRule) -> String {
         .iter()
         .map(|c| {
             let op = if c.op == ">" { "above" } else { "at most" };
-            // A count's threshold falls between whole numbers (9.5): shown
-            // rounded to a whole it would read as another rule.
-            let is_count = o
-                .plan
-                .display
-                .get(&c.column)
-                .is_some_and(|d| d.format == crate::plan::NumberFormat::Count);
-            let value = if is_count && c.value.fract() != 0.0 {
-                people::decimals(c.value, 1)
-            } else {
-                people::value(&o.plan, &c.column, c.value)
+            // Written with the places the threshold has (see
+            // run::rules::tidy), never rounded: the value shown is the
+            // value the counts and the SQL use.
+            let display = o.plan.display.get(&c.column);
+            let places = c.places as usize;
+            let unit = display.and_then(|d| d.unit.as_deref());
+            let value = match display.map(|d| d.format) {
+                Some(NumberFormat::Percent) => {
+                    format!("{} %", people::decimals(100.0 * c.value, places))
+                }
+                Some(NumberFormat::Money) => {
+                    let sign = if c.value < 0.0 { "-" } else { "" };
+                    // Cents always, more places when the threshold has them.
+                    format!(
+                        "{sign}{}{}",
+                        unit.unwrap_or(""),
+                        people::decimals(c.value.abs(), places.max(2))
+                    )
+                }
+                _ => match unit {
+                    Some(u) => format!("{} {u}", people::decimals(c.value, places)),
+                    None => people::decimals(c.value, places),
+                },
             };
             format!("{} {op} {value}", people::name(&o.plan, &c.column))
         })
@@ -302,9 +322,9 @@ fn sweep(s: &mut String, o: &Outcome) {
             "  validation: adjusted Rand index {:.4} against `{}` over {} records{}",
             v.adjusted_rand_index,
             v.column,
-            v.matched,
+            thousands(v.matched),
             if v.unmatched > 0 {
-                format!(" ({} had no known group)", v.unmatched)
+                format!(" ({} had no known group)", thousands(v.unmatched))
             } else {
                 String::new()
             }
@@ -435,13 +455,11 @@ fn profiles(s: &mut String, o: &Outcome) {
                     .collect(),
             );
         }
-        row(s, "size", cols.iter().map(|p| p.size.to_string()).collect());
+        row(s, "size", cols.iter().map(|p| thousands(p.size)).collect());
         row(
             s,
             "share",
-            cols.iter()
-                .map(|p| format!("{:.1}%", p.share * 100.0))
-                .collect(),
+            cols.iter().map(|p| people::share(p.share)).collect(),
         );
         if block.iter().any(|p| p.stability.is_some()) {
             row(
@@ -466,10 +484,13 @@ fn profiles(s: &mut String, o: &Outcome) {
                 .iter()
                 .map(|p| {
                     let fs = &p.features[f];
+                    // The value leaves room for its difference.
+                    let value = |room| people::compact(&o.plan, &fp.column, fs.mean, room);
                     if p.segment.is_none() {
-                        short(fs.mean)
+                        value(CELL - 1)
                     } else {
-                        format!("{} {}", short(fs.mean), people::signed(fs.std_diff, 1))
+                        // Differences right-aligned: `+1.3`, ` 0.0`.
+                        format!("{} {:>4}", value(CELL - 6), people::signed(fs.std_diff, 1))
                     }
                 })
                 .collect();
@@ -479,44 +500,53 @@ fn profiles(s: &mut String, o: &Outcome) {
             for (l, level) in cat.levels.iter().enumerate() {
                 let cells = cols
                     .iter()
-                    .map(|p| format!("{:.0}%", p.categories[c][l] * 100.0))
+                    .map(|p| format!("{:.0} %", p.categories[c][l] * 100.0))
                     .collect();
-                row(s, &format!("{}={}", cat.column, level), cells);
+                let name = people::name(&o.plan, &cat.column);
+                row(s, &format!("{name}: {level}"), cells);
             }
         }
-        // Columns described, not clustered: what each segment holds.
-        let at = |p: &Profile| -> Option<usize> {
-            let s = p.segment?;
-            o.profiles.iter().position(|q| q.segment == Some(s))
-        };
-        for v in &o.values {
-            let name = people::name(&o.plan, &v.column);
-            let pick = |p: &Profile| match at(p) {
-                Some(i) => &v.segments[i],
-                None => &v.overall,
-            };
-            row(
-                s,
-                &format!("{name} (mean)"),
-                cols.iter()
-                    .map(|p| pick(p).mean.map(short).unwrap_or_default())
-                    .collect(),
-            );
-            row(
-                s,
-                "  share of its total",
-                cols.iter()
-                    .map(|p| {
-                        pick(p)
-                            .share_of_total
-                            .map(people::share)
-                            .unwrap_or_default()
-                    })
-                    .collect(),
-            );
+        for (name, cells) in tally_rows(o, &cols) {
+            row(s, &name, cells);
         }
         s.push('\n');
     }
+}
+
+/// The rows of the `tally` columns, described, not clustered: each
+/// one's mean per record in its format and its share of the total, for
+/// the profiles `cols` (all records first).
+fn tally_rows(o: &Outcome, cols: &[&Profile]) -> Vec<(String, Vec<String>)> {
+    let at = |p: &Profile| -> Option<usize> {
+        let s = p.segment?;
+        o.profiles.iter().position(|q| q.segment == Some(s))
+    };
+    let mut rows = Vec::new();
+    for v in &o.values {
+        let pick = |p: &Profile| match at(p) {
+            Some(i) => &v.segments[i],
+            None => &v.overall,
+        };
+        let mean = |p: &&Profile| {
+            pick(p)
+                .mean
+                .map(|m| people::compact(&o.plan, &v.column, m, CELL - 1))
+                .unwrap_or_default()
+        };
+        let share = |p: &&Profile| {
+            pick(p)
+                .share_of_total
+                .map(people::share)
+                .unwrap_or_default()
+        };
+        let name = people::name(&o.plan, &v.column);
+        rows.push((format!("{name} (mean)"), cols.iter().map(mean).collect()));
+        rows.push((
+            "  share of its total".into(),
+            cols.iter().map(share).collect(),
+        ));
+    }
+    rows
 }
 
 /// Writes `text` after `lead`, wrapped at 100 columns, continuation lines

@@ -34,6 +34,12 @@ pub struct Comparison {
     /// Said when the two key columns have different names: the join is on
     /// their values all the same.
     pub key_note: Option<String>,
+    /// Records only in the new file, by their new segment (segments
+    /// ordered as the migration orders them): members who joined since.
+    pub joined: Vec<(String, usize)>,
+    /// Records only in the old file, by their old segment: members who
+    /// left since.
+    pub left: Vec<(String, usize)>,
 }
 
 /// The name of an assignments file's key column (its first).
@@ -157,6 +163,7 @@ pub fn compare(
         .filter(|n| !old_keys.contains(n.key.as_str()))
         .count();
     let migration = Migration::new(&a, &b);
+    let (joined, left) = comers_and_goers(old, new, &old_keys, &new_by_key);
     let labels = |v: &[Assigned]| {
         v.iter()
             .filter(|x| !x.label.is_empty())
@@ -175,7 +182,48 @@ pub fn compare(
         old_labels: labels(old),
         new_labels: labels(new),
         key_note: None,
+        joined,
+        left,
     })
+}
+
+/// Counts of records by segment name.
+type BySegment = Vec<(String, usize)>;
+
+/// Records only in the new file by their segment (who joined since), and
+/// records only in the old file by theirs (who left), segments ordered as
+/// [`Migration`] orders them. O(n).
+fn comers_and_goers(
+    old: &[Assigned],
+    new: &[Assigned],
+    old_keys: &std::collections::HashSet<&str>,
+    new_by_key: &HashMap<&str, &Assigned>,
+) -> (BySegment, BySegment) {
+    let by_segment = |records: Vec<&Assigned>| -> BySegment {
+        let mut counts: HashMap<&str, usize> = HashMap::new();
+        for r in &records {
+            *counts.entry(r.segment.as_str()).or_default() += 1;
+        }
+        let names: Vec<&str> = counts.keys().copied().collect();
+        crate::engine::compare::ordered(&names)
+            .into_iter()
+            .map(|g| {
+                let n = counts.get(g.as_str()).copied().unwrap_or(0);
+                (g, n)
+            })
+            .collect()
+    };
+    let joined = by_segment(
+        new.iter()
+            .filter(|n| !old_keys.contains(n.key.as_str()))
+            .collect(),
+    );
+    let left = by_segment(
+        old.iter()
+            .filter(|o| !new_by_key.contains_key(o.key.as_str()))
+            .collect(),
+    );
+    (joined, left)
 }
 
 /// What the run's segments were held against: a known grouping

@@ -71,7 +71,7 @@ pub(super) fn judge(
         reason.push_str(&floor_words(f, x.nrows(), &sweep, gaps.as_deref(), plan));
     }
     Ok(Judged {
-        disagreement: disagreement(&picks),
+        disagreement: disagreement(&picks, chosen),
         advice: advice(&sweep),
         at: candidates.iter().position(|c| c.k == chosen).unwrap_or(0),
         no_structure: picks.gap == Some(1) && plan.choose != ChooseK::By(Criterion::Gap),
@@ -373,7 +373,7 @@ fn fmt_criterion(v: f64) -> String {
 }
 
 /// A sentence when the criteria point at different k.
-fn disagreement(picks: &Picks) -> Option<String> {
+fn disagreement(picks: &Picks, chosen: usize) -> Option<String> {
     if picks.by.windows(2).all(|w| w[0].1 == w[1].1) {
         return None;
     }
@@ -403,8 +403,22 @@ fn disagreement(picks: &Picks) -> Option<String> {
             format!("{names} {verb} to k = {k}")
         })
         .collect();
+    // The run profiles one k; say how to see the others' segments.
+    let others: Vec<String> = ks
+        .iter()
+        .filter(|&&k| k != chosen)
+        .map(|k| format!("`choose k {k}`"))
+        .collect();
+    let how = match others.split_last() {
+        None => String::new(),
+        Some((one, [])) => format!(", and {one} in the recipe profiles the other"),
+        Some((last, rest)) => format!(
+            ", and {} or {last} in the recipe profiles another",
+            rest.join(", ")
+        ),
+    };
     Some(format!(
-        "the criteria disagree: {}; look at the profiles of each before settling",
+        "the criteria disagree: {}; compare the segments of each before settling: this run profiles k = {chosen}{how}",
         parts.join("; ")
     ))
 }
@@ -449,15 +463,26 @@ fn reclusterer(plan: &Plan) -> Box<evidence::Recluster<'static>> {
 }
 
 fn advice(sweep: &[SweepRow]) -> Vec<String> {
-    sweep
+    let rare: Vec<(usize, &super::Restarts)> = sweep
         .iter()
         .filter_map(|r| r.restarts.as_ref().map(|x| (r.k, x)))
-        .filter(|(_, x)| x.of > 1 && ((x.at_best as f64) < RESTART_ADVICE_SHARE * x.of as f64 || x.at_best == 1))
-        .map(|(k, x)| {
-            format!(
-                "for k = {k} only {} of {} restarts reached the best partition; k-means finds local optima, so more restarts are advisable, and a k whose best is rarely reached is often one the data does not support",
-                x.at_best, x.of
-            )
+        .filter(|(_, x)| {
+            x.of > 1 && ((x.at_best as f64) < RESTART_ADVICE_SHARE * x.of as f64 || x.at_best == 1)
         })
-        .collect()
+        .collect();
+    let which = match rare.as_slice() {
+        [] => return Vec::new(),
+        [(k, x)] => format!("for k = {k} only {} of {} restarts", x.at_best, x.of),
+        _ => {
+            let each: Vec<String> = rare
+                .iter()
+                .map(|(k, x)| format!("k = {k} ({} of {})", x.at_best, x.of))
+                .collect();
+            format!("for {} few restarts", crate::text::and_list(&each))
+        }
+    };
+    // One sentence for every such k: the reason is the same for each.
+    vec![format!(
+        "{which} reached the best partition; k-means finds local optima, so more restarts are advisable, and a k whose best is rarely reached is often one the data does not support"
+    )]
 }

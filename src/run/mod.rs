@@ -86,7 +86,7 @@ pub struct Restarts {
 pub struct TreeResult {
     pub linkage: crate::plan::Linkage,
     pub distance: crate::plan::Metric,
-    /// Records, or micro-segments in the two-stage route.
+    /// Records, or micro-segments in the micro-segment route.
     pub leaves: usize,
     pub two_stage: bool,
     pub cophenetic: f64,
@@ -191,6 +191,9 @@ pub struct FeatureSummary {
     /// transform leaves: for a log-transformed feature, the difference on
     /// the log scale that drove the segments, not on the raw scale.
     pub std_diff: f64,
+    /// Gaps the recipe's `missing fill` filled here: counted in the mean,
+    /// median and quartiles as the fill value.
+    pub filled: usize,
 }
 
 /// One segment (or, for the overall profile, all records).
@@ -396,7 +399,7 @@ pub fn run_with(
         .iter()
         .map(|p| (p.segment.unwrap_or(0), p.label.clone()))
         .unzip();
-    let rules = rules::rules(&prepared, table, &fit.labels, &named.0, &named.1);
+    let rules = rules::rules(plan, &prepared, table, &fit.labels, &named.0, &named.1);
     let silhouettes = {
         let mut per = judged.silhouette_values.swap_remove(judged.at);
         numbered

@@ -118,16 +118,19 @@ impl FeatureMeans {
             let clustered = p.matrix.column(f).to_vec();
             let centre = engine::stats::mean(&clustered).unwrap_or(0.0);
             let sd = engine::stats::sd_population(&clustered).unwrap_or(0.0);
-            out.overall.push(summary(&values, 0.0));
+            let raw = &table.numeric[f];
+            let mut gaps = vec![0usize; k];
             let mut groups: Vec<(Vec<f64>, Vec<f64>)> = vec![(Vec::new(), Vec::new()); k];
-            for ((v, c), &l) in values.iter().zip(&clustered).zip(labels) {
+            for (((v, c), &l), &row) in values.iter().zip(&clustered).zip(labels).zip(&p.kept) {
                 groups[l as usize].0.push(*v);
                 groups[l as usize].1.push(*c);
+                gaps[l as usize] += usize::from(raw.get(row).is_none());
             }
+            out.overall.push(summary(&values, 0.0, gaps.iter().sum()));
             for (s, (vals, clus)) in groups.iter().enumerate() {
                 let mean = engine::stats::mean(clus).unwrap_or(centre);
                 let diff = if sd > 0.0 { (mean - centre) / sd } else { 0.0 };
-                out.by_segment[s].push(summary(vals, diff));
+                out.by_segment[s].push(summary(vals, diff, gaps[s]));
             }
         }
         out
@@ -145,8 +148,8 @@ impl FeatureMeans {
 }
 
 /// Mean, median and quartiles of some values, with a standardised
-/// difference measured elsewhere.
-fn summary(values: &[f64], std_diff: f64) -> FeatureSummary {
+/// difference measured elsewhere and the count of filled gaps among them.
+fn summary(values: &[f64], std_diff: f64, filled: usize) -> FeatureSummary {
     let sorted = engine::stats::sorted(values);
     let q = |at| engine::stats::quantile_sorted(&sorted, at).unwrap_or(0.0);
     FeatureSummary {
@@ -155,6 +158,7 @@ fn summary(values: &[f64], std_diff: f64) -> FeatureSummary {
         q1: q(0.25),
         q3: q(0.75),
         std_diff,
+        filled,
     }
 }
 

@@ -22,6 +22,9 @@ pub struct RuleCondition {
     /// `">"` or `"<="`.
     pub op: &'static str,
     pub value: f64,
+    /// Decimal places that write `value` exactly in the column's display
+    /// unit (percentage points for `as percent`): see [`tidy`].
+    pub places: u32,
     /// The recipe's fill for the column's gaps, which the rule applies too.
     pub fill: Option<f64>,
 }
@@ -91,9 +94,95 @@ fn deliver(rules: &mut [SegmentRule], columns: &[Vec<f64>], labels: &[u32], feat
     }
 }
 
+/// Rewrites a condition's threshold as the shortest decimal (in the
+/// column's display unit: percentage points when `percent`) that picks
+/// exactly the records the fitted threshold picks, and returns its decimal
+/// places. A fitted threshold is a midpoint between two observed values
+/// `a < t < b` (0.4375 between 0.437 and 0.438); any `t'` with
+/// `a <= t' < b` splits the records the same way, for `>` and for `<=`,
+/// so a card, the terminal and the SQL can all show the one short value
+/// ("above 43.7 %") and mean exactly what the counts measured. Among
+/// values with the fewest places, the one nearest the midpoint is taken.
+/// Outside the observed range, the threshold is kept. One pass over the
+/// column: O(n).
+pub fn tidy(c: &mut Condition, values: &[f64], percent: bool) -> u32 {
+    let t = c.threshold;
+    let below = values
+        .iter()
+        .copied()
+        .filter(|&v| v <= t)
+        .fold(f64::NAN, f64::max);
+    let above = values
+        .iter()
+        .copied()
+        .filter(|&v| v > t)
+        .fold(f64::NAN, f64::min);
+    let unit = if percent { 100.0 } else { 1.0 };
+    if below.is_finite() && above.is_finite() {
+        for places in 0..=12u32 {
+            // Candidates n / scale in raw units, scale = 10^places / unit.
+            let steps = 10f64.powi(places as i32) * unit;
+            let at = |n: f64| n / steps;
+            let mut lo = (below * steps).ceil();
+            while at(lo) < below {
+                lo += 1.0;
+            }
+            while at(lo - 1.0) >= below {
+                lo -= 1.0;
+            }
+            if at(lo) >= above {
+                continue;
+            }
+            let mut hi = (above * steps).ceil() - 1.0;
+            while at(hi) >= above {
+                hi -= 1.0;
+            }
+            while at(hi + 1.0) < above {
+                hi += 1.0;
+            }
+            let best = (t * steps).round().clamp(lo, hi);
+            c.threshold = at(best);
+            return places;
+        }
+    }
+    // The shortest text that reads back as the threshold, in the unit.
+    let text = format!("{:?}", t * unit);
+    text.split_once('.')
+        .map_or(0, |(_, f)| f.trim_end_matches('0').len() as u32)
+}
+
+/// A rule's conditions tidied (see [`tidy`]) and by column name, as they
+/// are written in every output.
+fn written(
+    plan: &crate::plan::Plan,
+    prepared: &Prepared,
+    columns: &[Vec<f64>],
+    conditions: &mut [Condition],
+) -> Vec<RuleCondition> {
+    conditions
+        .iter_mut()
+        .map(|c| {
+            let feature = &prepared.features[c.feature];
+            let percent = plan
+                .display
+                .get(&feature.column)
+                .is_some_and(|d| d.format == crate::plan::NumberFormat::Percent);
+            let places = tidy(c, &columns[c.feature], percent);
+            RuleCondition {
+                column: feature.column.clone(),
+                op: if c.above { ">" } else { "<=" },
+                value: c.threshold,
+                places,
+                fill: feature.fill,
+            }
+        })
+        .collect()
+}
+
 /// Rules for segments `0..k` (profile order), numbered and labelled as
 /// `numbers` and `labels` say.
 pub fn rules(
+    plan: &crate::plan::Plan,
     prepared: &Prepared,
     table: &Table,
     labels: &[u32],
@@ -115,8 +204,9 @@ pub fn rules(
         .enumerate()
         .map(|(s, &number)| {
             let target: Vec<bool> = fit_rows.iter().map(|&i| labels[i] as usize == s).collect();
-            let conditions =
+            let mut conditions =
                 segment_rule(x.view(), &sorted, &target, DEPTH, min_leaf).unwrap_or_default();
+            let written = written(plan, prepared, &columns, &mut conditions);
             let holds = |i: usize| {
                 conditions
                     .iter()
@@ -133,15 +223,7 @@ pub fn rules(
             SegmentRule {
                 segment: number,
                 label: names.get(s).cloned().flatten(),
-                conditions: conditions
-                    .iter()
-                    .map(|c| RuleCondition {
-                        column: prepared.features[c.feature].column.clone(),
-                        op: if c.above { ">" } else { "<=" },
-                        value: c.threshold,
-                        fill: prepared.features[c.feature].fill,
-                    })
-                    .collect(),
+                conditions: written,
                 matched,
                 matched_in_segment: hits,
                 segment_size: size,
@@ -163,4 +245,47 @@ pub fn rules(
     let names: Vec<String> = prepared.features.iter().map(|f| f.column.clone()).collect();
     deliver(&mut rules, &columns, labels, &names);
     rules
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn tidied(threshold: f64, values: &[f64], percent: bool) -> (f64, u32) {
+        let mut c = Condition {
+            feature: 0,
+            above: true,
+            threshold,
+        };
+        let places = tidy(&mut c, values, percent);
+        (c.threshold, places)
+    }
+
+    #[test]
+    fn a_threshold_is_the_shortest_decimal_that_splits_the_data_the_same_way() {
+        // 0.4375 lies between 0.437 and 0.438: 43.7 % splits them alike.
+        let shares = [0.2, 0.437, 0.438, 0.9];
+        assert_eq!(tidied(0.4375, &shares, true), (0.437, 1));
+        // Between 2 and 4 visits, a whole 3 does.
+        assert_eq!(tidied(3.0, &[1.0, 2.0, 4.0], false), (3.0, 0));
+        // Between 9 and 10 months, 9 (the lower value itself) does:
+        // "at most 9" and "above 9" split 9 from 10 as 9.5 does.
+        assert_eq!(tidied(9.5, &[8.0, 9.0, 10.0], false), (9.0, 0));
+        // Close values need their places: 44.795 between 44.79 and 44.80.
+        assert_eq!(tidied(44.795, &[44.79, 44.8], false), (44.79, 2));
+    }
+
+    #[test]
+    fn the_tidied_threshold_picks_the_same_records() {
+        let values: Vec<f64> = (0..500).map(|i| (i as f64 * 0.37).sin().abs()).collect();
+        let mut sorted = values.clone();
+        sorted.sort_by(f64::total_cmp);
+        for w in sorted.windows(2).step_by(7).filter(|w| w[0] < w[1]) {
+            let t = (w[0] + w[1]) / 2.0;
+            let (tidy_t, _) = tidied(t, &values, true);
+            for &v in &values {
+                assert_eq!(v > t, v > tidy_t, "{t} -> {tidy_t} at {v}");
+            }
+        }
+    }
 }

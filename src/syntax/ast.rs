@@ -188,6 +188,13 @@ pub enum StatementKind {
         segment: Spanned<Number>,
         text: Spanned<String>,
     },
+    /// `brief 2 "..." action "..."`: a segment in one line for the
+    /// people who act on it, and what to do with it.
+    Brief {
+        segment: Spanned<Number>,
+        text: Spanned<String>,
+        options: Vec<OptionPair>,
+    },
     Save {
         what: Spanned<String>,
         path: Spanned<String>,

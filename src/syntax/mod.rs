@@ -223,6 +223,11 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
             segment: number_of(&rest[0], off),
             text: text_of(&rest[1], off),
         },
+        Rule::brief_stmt => StatementKind::Brief {
+            segment: number_of(&rest[0], off),
+            text: text_of(&rest[1], off),
+            options: options_of(&rest[2..], off),
+        },
         Rule::save_stmt => StatementKind::Save {
             what: Spanned::new(rest[0].as_str().to_string(), span_of(&rest[0], off)),
             path: text_of(&rest[1], off),
@@ -550,6 +555,27 @@ mod tests {
             panic!("wrong kind")
         };
         assert_eq!(text.node, r#"bulk, "stock-up" buyers"#);
+    }
+
+    #[test]
+    fn a_brief_has_its_segment_its_line_and_an_action() {
+        let s = one(r#"brief 3 "order online; ready meals" action "bundles in the app""#);
+        let StatementKind::Brief {
+            segment,
+            text,
+            options,
+        } = s.kind
+        else {
+            panic!("wrong kind")
+        };
+        assert_eq!(segment.node.as_whole(), Some(3));
+        assert_eq!(text.node, "order online; ready meals");
+        assert_eq!(options.len(), 1);
+        assert_eq!(options[0].name.node, "action");
+        assert_eq!(
+            options[0].value.node,
+            Value::Text("bundles in the app".into())
+        );
     }
 
     #[test]

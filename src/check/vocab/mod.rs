@@ -99,6 +99,11 @@ pub const STATEMENTS: &[StatementDoc] = &[
         example: r#"label 1 "weekly fresh regulars""#,
     },
     StatementDoc {
+        word: "brief",
+        summary: "a segment in one line for the people who act on it, with an optional next step; shown on its card in the report",
+        example: r#"brief 1 "shop twice a week, fresh food first" action "early access to the seasonal box""#,
+    },
+    StatementDoc {
         word: "save",
         summary: "writes assignments, profiles (.csv or .json), centroids, a segment model, a one-file HTML report, or a tree's merges and tree",
         example: r#"save assignments "out/members.csv""#,
@@ -196,6 +201,12 @@ pub const RECIPE_OPTIONS: &[OptionDoc] = &[
         summary: "what one record is, in the plural, as the report says it (`\"members\"`; `records` unless given)",
     },
 ];
+
+pub const BRIEF_OPTIONS: &[OptionDoc] = &[OptionDoc {
+    name: "action",
+    takes: "a quoted text",
+    summary: "what to do with the segment, in one line: shown on its card as the next step",
+}];
 
 pub const CALL_OPTIONS: &[OptionDoc] = &[
     OptionDoc {
@@ -330,6 +341,7 @@ pub fn options_for(word: &str) -> &'static [OptionDoc] {
         "input" => INPUT_OPTIONS,
         "categories" => CATEGORIES_OPTIONS,
         "call" => CALL_OPTIONS,
+        "brief" => BRIEF_OPTIONS,
         "recipe" => RECIPE_OPTIONS,
         "kmeans" => KMEANS_OPTIONS,
         "tree" => TREE_OPTIONS,
