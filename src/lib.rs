@@ -15,11 +15,13 @@
 //! - [`engine`]: clustering and criteria; knows nothing of the language.
 //! - [`output`]: terminal tables and output files.
 //! - [`text`]: small formatting helpers shared by messages and outputs.
+//! - [`parquet`]: Parquet input, read as the same table in CSV would be.
 
 pub mod check;
 pub mod engine;
 pub mod lsp;
 pub mod output;
+pub mod parquet;
 pub mod plan;
 pub mod repl;
 pub mod run;

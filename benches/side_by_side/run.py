@@ -31,6 +31,9 @@ ASSORT = ROOT / "target" / "release" / "assort"
 GENERATE = ROOT / "target" / "release" / "examples" / "bench_data"
 
 # name: (records, features, recipe body after `features all`, reference args or None, what)
+# A case named *_parquet reads the same data from a Parquet file that pyarrow
+# writes from the CSV (snappy, row groups of 128 Ki records), to set its time
+# beside the case of the same name read from CSV.
 # Cases without a reference are measured on their own; sweep1m against
 # sweep1m_sampled also prints the within-SS each reaches at every k.
 CASES = {
@@ -49,6 +52,8 @@ CASES = {
                         "sweep k = 2..10, 10 restarts on a sample of 200,000, best 3 refined on every record"),
     "sweep10m": (10_000_000, 16, "scale none\nkmeans k 2..10 restarts 10 sample 200000\nchoose k by silhouette\n", None,
                  "sweep k = 2..10, 10 restarts on a sample of 200,000, best 3 refined on every record"),
+    "kmeans1m_parquet": (1_000_000, 16, "scale none\nkmeans k 8 restarts 1\n", None,
+                         "kmeans1m with the same data read from Parquet (written by pyarrow, snappy)"),
     "ward100k": (100_000, 10, "scale none\ntree linkage ward k 8\n", None, "Ward tree, cut at 8 (reference cannot hold the matrix)"),
     "single100k": (100_000, 10, "scale none\ntree linkage single k 8\n", None, "single-linkage tree, cut at 8 (reference cannot hold the matrix)"),
 }
@@ -66,14 +71,29 @@ def prepare(cases):
         csv = DATA / f"d{n}_{d}.csv"
         if not csv.exists():
             sh([str(GENERATE), str(csv), str(n), str(d)])
+        data = csv
+        if name.endswith("_parquet"):
+            data = csv.with_suffix(".parquet")
+            if not data.exists():
+                venv()
+                sh([str(VENV / "bin" / "python"), "-c",
+                    "import sys, pyarrow as pa, pyarrow.csv as c, pyarrow.parquet as q; "
+                    "t = c.read_csv(sys.argv[1], convert_options=c.ConvertOptions(column_types={'id': pa.string()})); "
+                    "q.write_table(t, sys.argv[2], compression='snappy', row_group_size=131072)",
+                    str(csv), str(data)])
         (DATA / f"{name}.assort").write_text(
-            f'recipe "bench-{name}"\nseed 1\ninput "{csv.name}" key id\nfeatures all\n{CASES[name][2]}'
+            f'recipe "bench-{name}"\nseed 1\ninput "{data.name}" key id\nfeatures all\n{CASES[name][2]}'
         )
     if any(CASES[c][3] for c in cases):
-        python = VENV / "bin" / "python"
-        if not python.exists():
-            sh([sys.executable, "-m", "venv", str(VENV)])
-            sh([str(python), "-m", "pip", "install", "--quiet", "-r", str(HERE / "requirements.txt")])
+        venv()
+
+
+def venv():
+    """The pinned reference environment, made once."""
+    python = VENV / "bin" / "python"
+    if not python.exists():
+        sh([sys.executable, "-m", "venv", str(VENV)])
+        sh([str(python), "-m", "pip", "install", "--quiet", "-r", str(HERE / "requirements.txt")])
 
 
 def timed(cmd):

@@ -247,6 +247,18 @@ pub enum CheckError {
         help: String,
     },
 
+    #[error("`{column}` holds {what} in the Parquet file, which assort does not read")]
+    #[diagnostic(
+        code(assort::unreadable_type),
+        help("assort segments on numbers and text; derive a number when making the extract (days since a date, say), or leave the column out")
+    )]
+    UnreadableType {
+        column: String,
+        what: String,
+        #[label("not numbers or text")]
+        span: Span,
+    },
+
     #[error("the name given is empty")]
     #[diagnostic(
         code(assort::empty_name),

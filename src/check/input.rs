@@ -27,6 +27,7 @@ impl Checker {
         let key = self.key_option(&opts, no_key, s.span);
         let resolved = self.read_path(path)?;
         self.input_file = path.node.clone();
+        self.no_csv_options(&opts, &resolved)?;
         let (separator, decimal) = (separator?, decimal?);
         self.decimal = decimal;
         self.probe_input(path, &resolved, separator, decimal)?;
@@ -47,6 +48,32 @@ impl Checker {
             },
             key_span: key.span,
         })
+    }
+
+    /// Refuses `separator` and `decimal` on a Parquet input, where they
+    /// would silently mean nothing.
+    fn no_csv_options(
+        &mut self,
+        opts: &HashMap<&'static str, &OptionPair>,
+        resolved: &Path,
+    ) -> Option<()> {
+        if !crate::parquet::is_parquet(resolved) {
+            return Some(());
+        }
+        let mut ok = true;
+        for name in ["separator", "decimal"] {
+            if let Some(o) = opts.get(name) {
+                self.bad_value(
+                    name,
+                    &o.value.node,
+                    "nothing: a Parquet file stores its values typed",
+                    o.value.span,
+                    "remove the option; Parquet columns need no separator or decimal mark",
+                );
+                ok = false;
+            }
+        }
+        ok.then_some(())
     }
 
     /// The `key` option, given alone; `None` (reported) when it is
@@ -366,6 +393,14 @@ impl Checker {
     pub(super) fn known_column(&mut self, col: &Column) -> Option<probe::ColumnInfo> {
         let probe = self.probe.as_ref()?;
         if let Some(info) = probe.column(&col.node) {
+            if let Some(what) = &info.unsupported {
+                self.err(CheckError::UnreadableType {
+                    column: col.node.clone(),
+                    what: what.clone(),
+                    span: col.span,
+                });
+                return None;
+            }
             return Some(info.clone());
         }
         let suggestion = suggest::nearest(&col.node, probe.names());

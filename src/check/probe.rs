@@ -49,6 +49,9 @@ pub struct ColumnInfo {
     /// larger than the one before (in file order).
     pub distinct: bool,
     pub increasing: bool,
+    /// A Parquet column of a type assort does not read, in words (`a
+    /// timestamp`): the checker refuses it wherever the recipe uses it.
+    pub unsupported: Option<String>,
     /// The sampled numbers seen, by their bits (to tell `distinct`).
     seen: std::collections::HashSet<u64>,
     last: Option<f64>,
@@ -72,6 +75,7 @@ impl ColumnInfo {
             wholes: 0,
             distinct: true,
             increasing: true,
+            unsupported: None,
             seen: std::collections::HashSet::new(),
             last: None,
         }
@@ -232,6 +236,9 @@ pub enum KeyProblem {
 /// The first key problem within the sample: a blank or repeated key.
 /// Reads the first [`SAMPLE_ROWS`] records again, only the key column.
 pub fn key_problem(path: &Path, separator: u8, key: &str) -> Option<KeyProblem> {
+    if crate::parquet::is_parquet(path) {
+        return parquet_key_problem(path, key);
+    }
     let mut reader = csv::ReaderBuilder::new()
         .delimiter(separator)
         .from_reader(File::open(path).ok()?);
@@ -256,6 +263,31 @@ pub fn key_problem(path: &Path, separator: u8, key: &str) -> Option<KeyProblem> 
             return Some(KeyProblem::Repeated(k.to_string(), first, line));
         }
         seen.insert(k.to_string(), line);
+    }
+    None
+}
+
+/// [`key_problem`] in a Parquet file: its first [`SAMPLE_ROWS`] keys, a
+/// record's line being its place in the same table as CSV.
+fn parquet_key_problem(path: &Path, key: &str) -> Option<KeyProblem> {
+    use crate::parquet::{self as pq, As, Column};
+    let at = pq::schema(path).ok()?.names.iter().position(|n| n == key)?;
+    let Column::Texts(keys) = pq::read(path, &[(at, As::Texts)], Some(SAMPLE_ROWS))
+        .ok()?
+        .pop()?
+    else {
+        return None;
+    };
+    let mut seen: std::collections::HashMap<&str, u64> = std::collections::HashMap::new();
+    for (i, k) in keys.iter().enumerate() {
+        let line = i as u64 + 2;
+        let Some(k) = k.as_deref().filter(|k| !is_blank(k)) else {
+            return Some(KeyProblem::Blank(line));
+        };
+        if let Some(&first) = seen.get(k) {
+            return Some(KeyProblem::Repeated(k.to_string(), first, line));
+        }
+        seen.insert(k, line);
     }
     None
 }
@@ -365,6 +397,9 @@ pub fn probe(path: &Path, separator: u8, decimal: DecimalMark) -> Result<Probe, 
 }
 
 fn probe_file(path: &Path, separator: u8, decimal: DecimalMark) -> Result<Probe, ProbeError> {
+    if crate::parquet::is_parquet(path) {
+        return probe_parquet(path);
+    }
     let file = File::open(path).map_err(|e| match e.kind() {
         std::io::ErrorKind::NotFound => ProbeError::NotFound,
         _ => ProbeError::Unreadable(e.to_string()),
@@ -444,6 +479,57 @@ fn probe_reader<R: std::io::Read>(
         sampled,
         rows,
         estimated_rows,
+    })
+}
+
+/// Probes a Parquet file: its schema is the header, its record count
+/// exact (from the footer), and its first [`SAMPLE_ROWS`] records the
+/// sample, each value observed as the same table in CSV would show it.
+fn probe_parquet(path: &Path) -> Result<Probe, ProbeError> {
+    use crate::parquet::{self as pq, As, Column, Kind};
+    let problem = |e: pq::ReadError| match e {
+        pq::ReadError::Open(why) if !path.exists() => {
+            let _ = why;
+            ProbeError::NotFound
+        }
+        other => ProbeError::Unreadable(pq::words(&other)),
+    };
+    let schema = pq::schema(path).map_err(problem)?;
+    if schema.names.is_empty() {
+        return Err(ProbeError::NoHeader);
+    }
+    let wanted: Vec<(usize, As)> = schema
+        .kinds
+        .iter()
+        .enumerate()
+        .filter_map(|(i, k)| match k {
+            Kind::Number => Some((i, As::Numbers)),
+            Kind::Text => Some((i, As::Texts)),
+            Kind::Other(_) => None,
+        })
+        .collect();
+    let sample = pq::read(path, &wanted, Some(SAMPLE_ROWS)).map_err(problem)?;
+    let mut columns: Vec<ColumnInfo> = schema.names.iter().map(|n| ColumnInfo::new(n)).collect();
+    for (&(at, _), values) in wanted.iter().zip(&sample) {
+        let texts: Vec<Option<String>> = match values {
+            Column::Numbers(v) => v.iter().map(|v| v.map(|v| format!("{v}"))).collect(),
+            Column::Texts(v) => v.clone(),
+        };
+        for (i, t) in texts.iter().enumerate() {
+            columns[at].observe(t.as_deref().unwrap_or(""), i as u64 + 2, DecimalMark::Point);
+        }
+    }
+    for (c, k) in columns.iter_mut().zip(&schema.kinds) {
+        if let Kind::Other(what) = k {
+            c.kind = ColumnKind::Text;
+            c.unsupported = Some(what.clone());
+        }
+    }
+    Ok(Probe {
+        columns,
+        sampled: schema.records.min(SAMPLE_ROWS),
+        rows: Some(schema.records),
+        estimated_rows: None,
     })
 }
 

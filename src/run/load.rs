@@ -188,7 +188,92 @@ pub fn load(
     separator: char,
     cols: &Columns<'_>,
 ) -> Result<Table, RunError> {
+    if crate::parquet::is_parquet(path) {
+        return load_parquet(path, shown, cols);
+    }
     read_table(Opened::new(path, shown, separator)?, shown, cols)
+}
+
+/// Reads the columns a recipe uses from a Parquet file, each column on
+/// its own thread, into the table the same data in CSV would give (see
+/// [`crate::parquet`]): a record's line is its place in that CSV.
+fn load_parquet(path: &Path, shown: &str, cols: &Columns<'_>) -> Result<Table, RunError> {
+    use crate::parquet::{self as pq, As, Column, ReadError};
+    let unreadable = |reason: String| RunError::Unreadable {
+        file: shown.to_string(),
+        reason,
+    };
+    let schema = pq::schema(path).map_err(|e| unreadable(pq::words(&e)))?;
+    let header = csv::StringRecord::from(schema.names.clone());
+    let (key_at, num_at, text_at) = locate(&header, shown, cols)?;
+    let mut wanted: Vec<(usize, As)> = key_at.map(|k| (k, As::Texts)).into_iter().collect();
+    wanted.extend(num_at.iter().map(|&a| (a, As::Numbers)));
+    wanted.extend(text_at.iter().map(|&a| (a, As::Texts)));
+    let place = |at: usize, record: usize| Place {
+        file: shown.to_string(),
+        line: record as u64 + 2,
+        column: at + 1,
+        name: schema.names.get(at).cloned().unwrap_or_default(),
+    };
+    let mut read: Vec<Column> = wanted
+        .par_iter()
+        .map(|w| pq::read(path, std::slice::from_ref(w), None).map(|mut c| c.remove(0)))
+        .collect::<Result<Vec<Column>, ReadError>>()
+        .map_err(|e| match e {
+            ReadError::NotANumber {
+                column,
+                record,
+                found,
+            } => RunError::NotANumber {
+                place: place(column, record),
+                help: number_help(&found, DecimalMark::Point),
+                found: crate::check::clipped(found.trim(), 60),
+            },
+            other => unreadable(pq::words(&other)),
+        })?;
+    let n = schema.records;
+    let texts = |c: Column| match c {
+        Column::Texts(t) => t,
+        Column::Numbers(_) => Vec::new(),
+    };
+    let keys: Option<Vec<Option<String>>> = key_at.map(|_| texts(read.remove(0)));
+    let mut table = Table {
+        fields: num_at.iter().map(|i| i + 1).collect(),
+        keys: Keys::default(),
+        lines: (0..n as u64).map(|r| r + 2).collect(),
+        numeric: Vec::new(),
+        text: Vec::new(),
+    };
+    for (i, line) in table.lines.iter().enumerate() {
+        match (&keys, key_at) {
+            (Some(k), Some(at)) => match k.get(i).cloned().flatten() {
+                Some(key) if !is_blank(&key) => table.keys.push(&key),
+                _ => {
+                    return Err(RunError::BlankKey {
+                        place: place(at, i),
+                    })
+                }
+            },
+            _ => table.keys.push(&line.to_string()),
+        }
+    }
+    for c in read.drain(..num_at.len()) {
+        let mut col = NumericColumn::default();
+        if let Column::Numbers(v) = c {
+            v.into_iter().for_each(|x| col.push(x));
+        }
+        table.numeric.push(col);
+    }
+    for c in read {
+        let values = texts(c).into_iter();
+        table.text.push(
+            values
+                .map(|t| crate::text::trim_spaces(t.as_deref().unwrap_or("")).to_string())
+                .collect(),
+        );
+    }
+    no_repeated_key(&table, &header, key_at, shown)?;
+    Ok(table)
 }
 
 /// Reads CSV text from `input` (shown as `shown` in messages), as [`load`]

@@ -460,6 +460,9 @@ pub fn read_for_scoring(
     shown: &str,
     model: &SegmentModel,
 ) -> Result<Table, RunError> {
+    if crate::parquet::is_parquet(path) {
+        return parquet_for_scoring(path, shown, model);
+    }
     let opened = super::load::Opened::new(path, shown, model.separator)?;
     let malformed = |e: csv::Error| super::load::malformed(shown, &e);
     let index_of = |name: &str| {
@@ -522,6 +525,84 @@ pub fn read_for_scoring(
         }
     }
     Ok(table)
+}
+
+/// [`read_for_scoring`] on a Parquet file: every column the model needs
+/// as the text the same table in CSV would hold (see [`crate::parquet`]).
+fn parquet_for_scoring(
+    path: &std::path::Path,
+    shown: &str,
+    model: &SegmentModel,
+) -> Result<Table, RunError> {
+    use crate::parquet::{self as pq, As, Column};
+    let unreadable = |e: pq::ReadError| RunError::Unreadable {
+        file: shown.to_string(),
+        reason: pq::words(&e),
+    };
+    let schema = pq::schema(path).map_err(unreadable)?;
+    let index_of = |name: &str| {
+        schema
+            .names
+            .iter()
+            .position(|n| n.trim() == name)
+            .ok_or_else(|| RunError::ModelColumnMissing {
+                file: shown.to_string(),
+                column: name.to_string(),
+            })
+    };
+    let key_at = (!model.keyless).then(|| index_of(&model.key)).transpose()?;
+    let mut wanted: Vec<(usize, As)> = key_at.map(|k| (k, As::Texts)).into_iter().collect();
+    for f in &model.features {
+        wanted.push((index_of(&f.column)?, As::Texts));
+    }
+    for c in &model.categories {
+        wanted.push((index_of(&c.column)?, As::Texts));
+    }
+    let mut columns: Vec<Vec<Option<String>>> = pq::read(path, &wanted, None)
+        .map_err(unreadable)?
+        .into_iter()
+        .map(|c| match c {
+            Column::Texts(t) => t,
+            Column::Numbers(_) => Vec::new(),
+        })
+        .collect();
+    let keys = match key_at {
+        Some(at) => {
+            let keys = columns.remove(0);
+            if let Some(i) = keys.iter().position(|k| k.as_deref().is_none_or(is_blank)) {
+                return Err(RunError::BlankKey {
+                    place: super::error::Place {
+                        file: shown.to_string(),
+                        line: i as u64 + 2,
+                        column: at + 1,
+                        name: model.key.clone(),
+                    },
+                });
+            }
+            keys.into_iter().map(Option::unwrap_or_default).collect()
+        }
+        None => (0..schema.records).map(|r| (r + 2).to_string()).collect(),
+    };
+    let text = columns.split_off(model.features.len());
+    Ok(Table {
+        keys,
+        numeric_raw: columns
+            .into_iter()
+            .map(|c| {
+                c.into_iter()
+                    .map(|v| v.filter(|v| !is_blank(v)).map(|v| v.trim().to_string()))
+                    .collect()
+            })
+            .collect(),
+        text: text
+            .into_iter()
+            .map(|c| {
+                c.iter()
+                    .map(|v| crate::text::trim_spaces(v.as_deref().unwrap_or("")).to_string())
+                    .collect()
+            })
+            .collect(),
+    })
 }
 
 /// Reads and checks a model file.

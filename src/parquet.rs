@@ -1,0 +1,327 @@
+//! Parquet input: a table's schema and its columns as assort reads them,
+//! through the arrow-rs `parquet` crate (its Arrow reader, which decodes
+//! whole column chunks, reading only the columns asked for).
+//!
+//! A Parquet column is read the way the same table written as CSV would
+//! be read, so that both give the same segments:
+//! - numbers: integers (8 to 64 bits, signed or not), floats (32 and 64
+//!   bits) and decimals (their value, `1234` at scale 2 is `12.34`, as
+//!   the CSV text `12.34` parses); a boolean is a flag, `false` 0 and
+//!   `true` 1; a text column whose values are numbers is read as numbers;
+//! - text (categories and keys): strings, dictionary-encoded strings, and
+//!   numbers written as text as Rust writes them (`17`, `2.5`);
+//! - nulls and empty strings are gaps, as blank fields are in a CSV;
+//! - dates, times, timestamps, durations, binary and nested columns
+//!   (lists, structs, maps) are refused, with advice, when the recipe uses
+//!   them.
+//!
+//! A record's "line" in messages is where it would be in that CSV: the
+//! first record is line 2.
+
+use arrow_array::cast::AsArray;
+use arrow_array::types::*;
+use arrow_array::{Array, ArrayRef};
+use arrow_schema::DataType;
+use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
+use parquet::arrow::ProjectionMask;
+use std::fs::File;
+use std::path::Path;
+
+/// Records decoded at a time.
+const BATCH: usize = 65_536;
+
+/// Whether `path` names a Parquet file (by its extension).
+pub fn is_parquet(path: &Path) -> bool {
+    path.extension()
+        .and_then(|e| e.to_str())
+        .is_some_and(|e| e.eq_ignore_ascii_case("parquet"))
+}
+
+/// What a Parquet column holds, as assort reads it.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Kind {
+    /// Integers, floats, decimals, booleans (0 and 1).
+    Number,
+    /// Strings, plain or dictionary-encoded.
+    Text,
+    /// A type assort does not read, in words (`a timestamp`).
+    Other(String),
+}
+
+/// A Parquet file's columns (top-level fields) and record count.
+#[derive(Debug, Clone)]
+pub struct Schema {
+    pub names: Vec<String>,
+    pub kinds: Vec<Kind>,
+    pub records: usize,
+}
+
+/// A column read in full.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Column {
+    Numbers(Vec<Option<f64>>),
+    Texts(Vec<Option<String>>),
+}
+
+/// How a column is wanted.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum As {
+    Numbers,
+    Texts,
+}
+
+/// Why a Parquet file could not be read, in words for a message.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ReadError {
+    Open(String),
+    /// A value that is not a number in a column read as numbers: its
+    /// 0-based record and the text.
+    NotANumber {
+        column: usize,
+        record: usize,
+        found: String,
+    },
+    /// A column of a type assort does not read.
+    Unsupported {
+        column: usize,
+        kind: String,
+    },
+}
+
+/// A read error in words, for messages.
+pub fn words(e: &ReadError) -> String {
+    match e {
+        ReadError::Open(why) => format!("it is not a Parquet file assort can read ({why})"),
+        ReadError::NotANumber { found, .. } => format!("`{found}` is not a number"),
+        ReadError::Unsupported { kind, .. } => format!("a column holds {kind}"),
+    }
+}
+
+fn builder(path: &Path) -> Result<ParquetRecordBatchReaderBuilder<File>, ReadError> {
+    let file = File::open(path).map_err(|e| ReadError::Open(e.to_string()))?;
+    ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| ReadError::Open(e.to_string()))
+}
+
+/// The file's schema and record count, from its footer alone.
+pub fn schema(path: &Path) -> Result<Schema, ReadError> {
+    let b = builder(path)?;
+    let fields = b.schema().fields();
+    Ok(Schema {
+        names: fields.iter().map(|f| f.name().clone()).collect(),
+        kinds: fields.iter().map(|f| kind(f.data_type())).collect(),
+        records: usize::try_from(b.metadata().file_metadata().num_rows()).unwrap_or(0),
+    })
+}
+
+/// How assort reads a column of type `t`.
+pub fn kind(t: &DataType) -> Kind {
+    use DataType as T;
+    match t {
+        T::Int8 | T::Int16 | T::Int32 | T::Int64 => Kind::Number,
+        T::UInt8 | T::UInt16 | T::UInt32 | T::UInt64 => Kind::Number,
+        T::Float32 | T::Float64 | T::Decimal128(..) | T::Boolean => Kind::Number,
+        T::Utf8 | T::LargeUtf8 | T::Utf8View => Kind::Text,
+        T::Dictionary(_, v) if matches!(kind(v), Kind::Text) => Kind::Text,
+        T::Date32 | T::Date64 => Kind::Other("a date".into()),
+        T::Timestamp(..) => Kind::Other("a timestamp".into()),
+        T::Time32(_) | T::Time64(_) => Kind::Other("a time of day".into()),
+        T::Duration(_) | T::Interval(_) => Kind::Other("a duration".into()),
+        T::Binary | T::LargeBinary | T::BinaryView | T::FixedSizeBinary(_) => {
+            Kind::Other("binary data".into())
+        }
+        T::List(_) | T::LargeList(_) | T::FixedSizeList(..) | T::ListView(_) => {
+            Kind::Other("a list".into())
+        }
+        T::Struct(_) | T::Map(..) | T::Union(..) => Kind::Other("a nested record".into()),
+        other => Kind::Other(format!("the type {other}")),
+    }
+}
+
+/// Reads the columns `wanted` (by position in the schema, each as numbers
+/// or texts) in full, or their first `limit` records. Only those columns
+/// are decoded.
+pub fn read(
+    path: &Path,
+    wanted: &[(usize, As)],
+    limit: Option<usize>,
+) -> Result<Vec<Column>, ReadError> {
+    let b = builder(path)?;
+    let kinds: Vec<Kind> = b
+        .schema()
+        .fields()
+        .iter()
+        .map(|f| kind(f.data_type()))
+        .collect();
+    for &(at, _) in wanted {
+        if let Some(Kind::Other(k)) = kinds.get(at) {
+            return Err(ReadError::Unsupported {
+                column: at,
+                kind: k.clone(),
+            });
+        }
+    }
+    // The projection keeps schema order: where each wanted column lands.
+    let mut roots: Vec<usize> = wanted.iter().map(|w| w.0).collect();
+    roots.sort_unstable();
+    roots.dedup();
+    let mask = ProjectionMask::roots(b.parquet_schema(), roots.iter().copied());
+    let mut b = b.with_projection(mask).with_batch_size(BATCH);
+    if let Some(n) = limit {
+        b = b.with_limit(n);
+    }
+    let reader = b.build().map_err(|e| ReadError::Open(e.to_string()))?;
+    let mut out: Vec<Column> = wanted
+        .iter()
+        .map(|w| match w.1 {
+            As::Numbers => Column::Numbers(Vec::new()),
+            As::Texts => Column::Texts(Vec::new()),
+        })
+        .collect();
+    let mut done = 0;
+    for batch in reader {
+        let batch = batch.map_err(|e| ReadError::Open(e.to_string()))?;
+        for (w, col) in wanted.iter().zip(out.iter_mut()) {
+            let at = roots.iter().position(|&r| r == w.0).unwrap_or(0);
+            let array = batch.column(at);
+            match col {
+                Column::Numbers(v) => {
+                    numbers(array, v).map_err(|(i, found)| ReadError::NotANumber {
+                        column: w.0,
+                        record: done + i,
+                        found,
+                    })?
+                }
+                Column::Texts(v) => texts(array, v),
+            }
+        }
+        done += batch.num_rows();
+    }
+    Ok(out)
+}
+
+/// Appends an array's values as numbers; a text that is not a number is
+/// returned with its index in the array.
+fn numbers(a: &ArrayRef, out: &mut Vec<Option<f64>>) -> Result<(), (usize, String)> {
+    use DataType as T;
+    macro_rules! primitive {
+        ($t:ty) => {
+            out.extend(a.as_primitive::<$t>().iter().map(|v| v.map(|v| v as f64)))
+        };
+    }
+    match a.data_type() {
+        T::Int8 => primitive!(Int8Type),
+        T::Int16 => primitive!(Int16Type),
+        T::Int32 => primitive!(Int32Type),
+        T::Int64 => primitive!(Int64Type),
+        T::UInt8 => primitive!(UInt8Type),
+        T::UInt16 => primitive!(UInt16Type),
+        T::UInt32 => primitive!(UInt32Type),
+        T::UInt64 => primitive!(UInt64Type),
+        T::Float32 => primitive!(Float32Type),
+        T::Float64 => out.extend(a.as_primitive::<Float64Type>().iter()),
+        T::Decimal128(_, scale) => {
+            let scale = *scale;
+            out.extend(
+                a.as_primitive::<Decimal128Type>()
+                    .iter()
+                    .map(|v| v.map(|v| decimal(v, scale))),
+            )
+        }
+        T::Boolean => out.extend(a.as_boolean().iter().map(|v| v.map(f64::from))),
+        _ => {
+            // Text: numbers written as text, blanks as gaps.
+            let mut texts = Vec::new();
+            self::texts(a, &mut texts);
+            for (i, t) in texts.into_iter().enumerate() {
+                match t {
+                    None => out.push(None),
+                    Some(t) => match crate::check::probe::parse_number(&t) {
+                        Some(v) => out.push(Some(v)),
+                        None => return Err((i, t)),
+                    },
+                }
+            }
+        }
+    }
+    // Floats that are not finite are gaps no more: they are refused as
+    // text would be.
+    if let Some(i) = out.iter().position(|v| v.is_some_and(|v| !v.is_finite())) {
+        return Err((i, format!("{}", out[i].unwrap_or(f64::NAN))));
+    }
+    Ok(())
+}
+
+/// A decimal's value: the integer over 10^scale, one correctly rounded
+/// division, so `1234` at scale 2 is the double nearest 12.34, as the
+/// CSV text `12.34` parses.
+fn decimal(v: i128, scale: i8) -> f64 {
+    if scale >= 0 {
+        v as f64 / 10f64.powi(i32::from(scale))
+    } else {
+        v as f64 * 10f64.powi(-i32::from(scale))
+    }
+}
+
+/// Appends an array's values as texts; nulls and empty strings are gaps.
+fn texts(a: &ArrayRef, out: &mut Vec<Option<String>>) {
+    use DataType as T;
+    let blank = |s: Option<&str>| s.filter(|s| !s.is_empty()).map(str::to_string);
+    macro_rules! integers {
+        ($t:ty) => {
+            out.extend(
+                a.as_primitive::<$t>()
+                    .iter()
+                    .map(|v| v.map(|v| v.to_string())),
+            )
+        };
+    }
+    match a.data_type() {
+        T::Utf8 => out.extend(a.as_string::<i32>().iter().map(blank)),
+        T::LargeUtf8 => out.extend(a.as_string::<i64>().iter().map(blank)),
+        T::Utf8View => out.extend(a.as_string_view().iter().map(blank)),
+        T::Dictionary(..) => {
+            if let Some(d) = a.as_any_dictionary_opt() {
+                let mut values = Vec::new();
+                texts(d.values(), &mut values);
+                let keys = d.normalized_keys();
+                out.extend((0..a.len()).map(|i| {
+                    if a.is_null(i) {
+                        None
+                    } else {
+                        values.get(keys[i]).cloned().flatten()
+                    }
+                }));
+            }
+        }
+        T::Boolean => out.extend(a.as_boolean().iter().map(|v| v.map(|b| b.to_string()))),
+        // Integers as their digits, exactly (a 64-bit key above 2^53
+        // would not survive a float).
+        T::Int8 => integers!(Int8Type),
+        T::Int16 => integers!(Int16Type),
+        T::Int32 => integers!(Int32Type),
+        T::Int64 => integers!(Int64Type),
+        T::UInt8 => integers!(UInt8Type),
+        T::UInt16 => integers!(UInt16Type),
+        T::UInt32 => integers!(UInt32Type),
+        T::UInt64 => integers!(UInt64Type),
+        _ => {
+            // Floats and decimals as Rust writes the double (`2.5`).
+            let mut numbers = Vec::new();
+            let _ = self::numbers(a, &mut numbers);
+            out.extend(numbers.into_iter().map(|v| v.map(|v| format!("{v}"))));
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn decimals_read_as_their_text_parses() {
+        assert_eq!(decimal(1234, 2), "12.34".parse::<f64>().unwrap());
+        assert_eq!(decimal(-5, 1), -0.5);
+        assert_eq!(decimal(437, 3), 0.437);
+        assert_eq!(decimal(12, -2), 1200.0);
+    }
+}
