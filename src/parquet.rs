@@ -30,11 +30,39 @@ use std::path::Path;
 /// Records decoded at a time.
 const BATCH: usize = 65_536;
 
-/// Whether `path` names a Parquet file (by its extension).
+/// Whether `path` names a Parquet input: a file whose name ends in
+/// `.parquet`, or a folder (of part files, as Spark, DuckDB and pyarrow
+/// write a partitioned extract).
 pub fn is_parquet(path: &Path) -> bool {
-    path.extension()
-        .and_then(|e| e.to_str())
-        .is_some_and(|e| e.eq_ignore_ascii_case("parquet"))
+    path.is_dir()
+        || path
+            .extension()
+            .and_then(|e| e.to_str())
+            .is_some_and(|e| e.eq_ignore_ascii_case("parquet"))
+}
+
+/// The files a Parquet input reads: the file itself, or a folder's files
+/// ending in `.parquet`, in name order (markers such as `_SUCCESS` and
+/// hidden files left aside; sub-folders are not entered).
+pub fn parts(path: &Path) -> Result<Vec<std::path::PathBuf>, ReadError> {
+    if !path.is_dir() {
+        return Ok(vec![path.to_path_buf()]);
+    }
+    let entries = std::fs::read_dir(path).map_err(|e| ReadError::Open(e.to_string()))?;
+    let mut parts: Vec<std::path::PathBuf> = entries
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| {
+            let name = p.file_name().and_then(|n| n.to_str()).unwrap_or("");
+            p.is_file() && !name.starts_with(['.', '_']) && is_parquet(p)
+        })
+        .collect();
+    parts.sort();
+    if parts.is_empty() {
+        return Err(ReadError::Open(
+            "the folder holds no file ending in `.parquet`".into(),
+        ));
+    }
+    Ok(parts)
 }
 
 /// What a Parquet column holds, as assort reads it.
@@ -102,15 +130,32 @@ fn builder(path: &Path) -> Result<ParquetRecordBatchReaderBuilder<File>, ReadErr
     ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| ReadError::Open(e.to_string()))
 }
 
-/// The file's schema and record count, from its footer alone.
+/// The input's schema and record count, from the footers alone. The
+/// parts of a folder must agree on their columns' names and kinds.
 pub fn schema(path: &Path) -> Result<Schema, ReadError> {
-    let b = builder(path)?;
-    let fields = b.schema().fields();
-    Ok(Schema {
-        names: fields.iter().map(|f| f.name().clone()).collect(),
-        kinds: fields.iter().map(|f| kind(f.data_type())).collect(),
-        records: usize::try_from(b.metadata().file_metadata().num_rows()).unwrap_or(0),
-    })
+    let mut out: Option<Schema> = None;
+    for part in parts(path)? {
+        let b = builder(&part)?;
+        let fields = b.schema().fields();
+        let this = Schema {
+            names: fields.iter().map(|f| f.name().clone()).collect(),
+            kinds: fields.iter().map(|f| kind(f.data_type())).collect(),
+            records: usize::try_from(b.metadata().file_metadata().num_rows()).unwrap_or(0),
+        };
+        match &mut out {
+            None => out = Some(this),
+            Some(first) if first.names == this.names && first.kinds == this.kinds => {
+                first.records += this.records;
+            }
+            Some(_) => {
+                return Err(ReadError::Open(format!(
+                    "part `{}` has other columns than the first part",
+                    part.file_name().unwrap_or_default().to_string_lossy()
+                )))
+            }
+        }
+    }
+    out.ok_or_else(|| ReadError::Open("no part to read".into()))
 }
 
 /// How assort reads a column of type `t`.
@@ -138,13 +183,40 @@ pub fn kind(t: &DataType) -> Kind {
 }
 
 /// Reads the columns `wanted` (by position in the schema, each as numbers
-/// or texts) in full, or their first `limit` records. Only those columns
-/// are decoded.
+/// or texts) in full, or their first `limit` records, part after part.
+/// Only those columns are decoded.
 pub fn read(
     path: &Path,
     wanted: &[(usize, As)],
     limit: Option<usize>,
 ) -> Result<Vec<Column>, ReadError> {
+    let mut out: Vec<Column> = wanted
+        .iter()
+        .map(|w| match w.1 {
+            As::Numbers => Column::Numbers(Vec::new()),
+            As::Texts => Column::Texts(Vec::new()),
+        })
+        .collect();
+    let mut done = 0;
+    for part in parts(path)? {
+        let left = limit.map(|l| l.saturating_sub(done));
+        if left == Some(0) {
+            break;
+        }
+        done += read_part(&part, wanted, left, done, &mut out)?;
+    }
+    Ok(out)
+}
+
+/// Appends one file's records (at most `limit`) to `out`; `before` records
+/// came before it, for the place of a bad value. Returns its records.
+fn read_part(
+    path: &Path,
+    wanted: &[(usize, As)],
+    limit: Option<usize>,
+    before: usize,
+    out: &mut [Column],
+) -> Result<usize, ReadError> {
     let b = builder(path)?;
     let kinds: Vec<Kind> = b
         .schema()
@@ -170,13 +242,6 @@ pub fn read(
         b = b.with_limit(n);
     }
     let reader = b.build().map_err(|e| ReadError::Open(e.to_string()))?;
-    let mut out: Vec<Column> = wanted
-        .iter()
-        .map(|w| match w.1 {
-            As::Numbers => Column::Numbers(Vec::new()),
-            As::Texts => Column::Texts(Vec::new()),
-        })
-        .collect();
     let mut done = 0;
     for batch in reader {
         let batch = batch.map_err(|e| ReadError::Open(e.to_string()))?;
@@ -187,7 +252,7 @@ pub fn read(
                 Column::Numbers(v) => {
                     numbers(array, v).map_err(|(i, found)| ReadError::NotANumber {
                         column: w.0,
-                        record: done + i,
+                        record: before + done + i,
                         found,
                     })?
                 }
@@ -196,7 +261,7 @@ pub fn read(
         }
         done += batch.num_rows();
     }
-    Ok(out)
+    Ok(done)
 }
 
 /// Appends an array's values as numbers; a text that is not a number is
@@ -281,6 +346,12 @@ fn texts(a: &ArrayRef, out: &mut Vec<Option<String>>) {
         T::Utf8View => out.extend(a.as_string_view().iter().map(blank)),
         T::Dictionary(..) => {
             if let Some(d) = a.as_any_dictionary_opt() {
+                if d.values().is_empty() {
+                    // No values: every entry is null (and normalized_keys
+                    // would panic).
+                    out.extend((0..a.len()).map(|_| None));
+                    return;
+                }
                 let mut values = Vec::new();
                 texts(d.values(), &mut values);
                 let keys = d.normalized_keys();

@@ -44,44 +44,61 @@ fn outputs(case: &Case, swaps: &[(String, String)]) -> Vec<(String, String)> {
     files
 }
 
-#[test]
-fn the_demo_from_parquet_writes_what_it_writes_from_csv() {
+/// Runs the demo from CSV, then from `parquet` (copied into the case's
+/// `data/` folder), and compares every output.
+fn demo_alike(input: &str) {
     let case = Case::demo();
-    case.copy(
-        &fixture("coop_members.parquet"),
-        "data/coop_members.parquet",
-    );
+    let from = fixture(input);
+    let to = format!("data/{input}");
+    if from.is_dir() {
+        std::fs::create_dir_all(case.path(&to)).unwrap();
+        for e in std::fs::read_dir(&from).unwrap() {
+            let p = e.unwrap().path();
+            case.copy(
+                &p,
+                &format!("{to}/{}", p.file_name().unwrap().to_string_lossy()),
+            );
+        }
+    } else {
+        case.copy(&from, &to);
+    }
     case.run("coop-members.assort").ok();
     let csv = outputs(&case, &[]);
     let csv_digests = (
         digest(&case, "data/coop_members.csv"),
         digest(&case, "coop-members.assort"),
     );
-    case.edit(
-        "coop-members.assort",
-        "data/coop_members.csv",
-        "data/coop_members.parquet",
-    );
+    case.edit("coop-members.assort", "data/coop_members.csv", &to);
     case.run("coop-members.assort").ok();
     let parquet = outputs(
         &case,
         &[
-            (
-                "data/coop_members.parquet".into(),
-                "data/coop_members.csv".into(),
-            ),
-            (digest(&case, "data/coop_members.parquet"), csv_digests.0),
+            (to.clone(), "data/coop_members.csv".into()),
+            (digest(&case, &to), csv_digests.0),
             (digest(&case, "coop-members.assort"), csv_digests.1),
+            // The SQL names its table after the input.
+            (
+                input.trim_end_matches(".parquet").to_string(),
+                "coop_members".into(),
+            ),
         ],
     );
     assert!(csv.len() >= 9, "the demo writes its outputs");
     assert_eq!(csv.len(), parquet.len());
     for ((name, a), (_, b)) in csv.iter().zip(&parquet) {
-        assert!(
-            a == b,
-            "{name} differs between the CSV and the Parquet input"
-        );
+        assert!(a == b, "{name} differs between the CSV and {input}");
     }
+}
+
+#[test]
+fn the_demo_from_parquet_writes_what_it_writes_from_csv() {
+    demo_alike("coop_members.parquet");
+}
+
+#[test]
+fn the_demo_from_a_folder_of_four_parts_writes_the_same() {
+    // The `_SUCCESS` marker in the folder is not a part.
+    demo_alike("coop_members_parts");
 }
 
 #[test]
@@ -194,4 +211,39 @@ fn a_timestamp_used_as_a_feature_is_refused_at_check_with_advice() {
         .stderr_has("`seen` holds a timestamp in the Parquet file, which assort does not read")
         .stderr_has("derive a number when making the extract");
     assert!(!case.path("out").exists(), "nothing is written");
+}
+
+#[test]
+fn parts_that_disagree_on_their_columns_are_refused_naming_the_part() {
+    let case = Case::empty();
+    std::fs::create_dir_all(case.path("mixed")).unwrap();
+    case.copy(&fixture("types.parquet"), "mixed/a.parquet");
+    case.copy(&fixture("wine.parquet"), "mixed/b.parquet");
+    case.write(
+        "r.assort",
+        "input \"mixed\" no key\nfeatures small\nmissing fill median\nkmeans k 2\nsave assignments \"out/a.csv\"\n",
+    );
+    case.run("r.assort")
+        .fails()
+        .stderr_has("part `b.parquet` has other columns than the first part");
+    assert!(!case.path("out").exists(), "nothing is written");
+}
+
+#[test]
+fn a_damaged_parquet_file_is_refused_at_check_not_crashed_on() {
+    let case = Case::empty();
+    let whole = std::fs::read(fixture("wine.parquet")).unwrap();
+    // Cut short (the footer gone), and not Parquet at all.
+    std::fs::write(case.path("cut.parquet"), &whole[..whole.len() / 2]).unwrap();
+    case.write("text.parquet", "id,a\n1,2\n");
+    for file in ["cut.parquet", "text.parquet"] {
+        case.write(
+            "r.assort",
+            &format!("input \"{file}\" no key\nfeatures all\nkmeans k 2\nsave assignments \"out/a.csv\"\n"),
+        );
+        case.run("r.assort")
+            .fails()
+            .stderr_has("not a Parquet file assort can read");
+        assert!(!case.path("out").exists(), "nothing is written");
+    }
 }

@@ -536,8 +536,26 @@ pub(crate) fn malformed(file: &str, e: &csv::Error) -> RunError {
 
 /// SHA-256 of a file's bytes, or `None` when it cannot be read. Read in
 /// blocks, so a large data file is never held whole.
+/// (A folder of Parquet parts: the digest of its parts' `name digest`
+/// lines, see docs/language.md.)
 pub fn file_sha256(path: &std::path::Path) -> Option<String> {
     use sha2::Digest;
+    if path.is_dir() {
+        // A folder of parts: the digest of its parts' names and digests,
+        // one `name digest` line each, in the order they are read.
+        let mut hasher = sha2::Sha256::new();
+        for part in crate::parquet::parts(path).ok()? {
+            let name = part.file_name()?.to_string_lossy().into_owned();
+            hasher.update(format!("{name} {}\n", file_sha256(&part)?));
+        }
+        return Some(
+            hasher
+                .finalize()
+                .iter()
+                .map(|b| format!("{b:02x}"))
+                .collect(),
+        );
+    }
     use std::io::Read;
     let mut file = std::fs::File::open(path).ok()?;
     let mut hasher = sha2::Sha256::new();

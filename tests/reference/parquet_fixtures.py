@@ -11,6 +11,8 @@ Writes, under tests/data/parquet/:
 - coop_members.parquet: the invented demo's members
   (recipes/data/coop_members.csv), blanks as nulls, the branch a
   dictionary-encoded string, zstd compression, row groups of 1,000;
+- coop_members_parts/: the same members in four part files (snappy),
+  with a `_SUCCESS` marker;
 - types.parquet: one column of each type assort reads or refuses.
 """
 import datetime
@@ -42,6 +44,15 @@ members = members.set_column(
 pq.write_table(
     members, OUT / "coop_members.parquet", compression="zstd", row_group_size=1000
 )
+# The same members as a folder of four part files, as a partitioned
+# extract arrives, with the marker file such writers leave.
+parts = OUT / "coop_members_parts"
+parts.mkdir(exist_ok=True)
+quarter = members.num_rows // 4
+for i in range(4):
+    rows = members.slice(i * quarter, quarter if i < 3 else members.num_rows - 3 * quarter)
+    pq.write_table(rows, parts / f"part-{i:05d}.parquet", compression="snappy")
+(parts / "_SUCCESS").write_text("")
 
 types = pa.table(
     {
