@@ -247,3 +247,24 @@ fn a_damaged_parquet_file_is_refused_at_check_not_crashed_on() {
         assert!(!case.path("out").exists(), "nothing is written");
     }
 }
+
+#[test]
+fn features_all_names_the_columns_of_types_it_does_not_read() {
+    let case = Case::empty();
+    case.copy(&fixture("types.parquet"), "types.parquet");
+    case.write(
+        "r.assort",
+        "input \"types.parquet\" key id\nfeatures all\nmissing fill median\nkmeans k 2\n",
+    );
+    let out = case.assort(&["check", "r.assort"], &[]).ok().stderr();
+    let said = common::case::unwrapped(&out);
+    assert!(
+        said.contains("took 4 numeric columns: `small`, `ratio`, `price`, `member`"),
+        "{said}"
+    );
+    assert!(said.contains("text columns `band`"), "{said}");
+    assert!(
+        said.contains("columns of types assort does not read (dates, times, lists...) `joined`, `seen`, `tags`"),
+        "{said}"
+    );
+}

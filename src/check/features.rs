@@ -564,6 +564,8 @@ fn left_out(
             Some(1)
         } else if except.iter().any(|e| e.node == c.name) {
             Some(2)
+        } else if c.unsupported.is_some() {
+            Some(5)
         } else {
             match c.kind {
                 ColumnKind::Text => Some(3),
@@ -578,6 +580,7 @@ fn left_out(
         "excepted",
         "text columns",
         "blank columns",
+        "columns of types assort does not read (dates, times, lists...)",
     ];
     let parts: Vec<String> = groups
         .iter()
