@@ -430,7 +430,7 @@ impl FileKind {
         let ext = name.rsplit_once('.').map_or("", |(_, e)| e);
         let ext = ext.to_ascii_lowercase();
         match self {
-            FileKind::Data => matches!(ext.as_str(), "csv" | "tsv" | "txt"),
+            FileKind::Data => matches!(ext.as_str(), "csv" | "tsv" | "txt" | "parquet"),
             FileKind::Model => ext == "json",
             FileKind::Output(exts) => exts.contains(&ext.as_str()),
         }

@@ -146,6 +146,7 @@ fn quoted_paths_are_relative_to_the_recipes_folder() {
     std::fs::create_dir_all(dir.path().join("data")).unwrap();
     for f in [
         "data/members.csv",
+        "data/members.parquet",
         "data/notes.md",
         "data/.hidden.csv",
         "model.json",
@@ -156,7 +157,7 @@ fn quoted_paths_are_relative_to_the_recipes_folder() {
     assert_eq!(c.labels(), ["data/"]);
     assert_eq!(c.start, "input \"".len());
     let c = with_folder("input \"data/", dir.path());
-    assert_eq!(c.labels(), ["data/members.csv"]);
+    assert_eq!(c.labels(), ["data/members.csv", "data/members.parquet"]);
     // Outside quotes, the quotes come with the path.
     let c = with_folder("input ", dir.path());
     assert_eq!(c.items[0].insert, "\"data/");
