@@ -300,7 +300,7 @@ fn numbers(a: &ArrayRef, out: &mut Vec<Option<f64>>) -> Result<(), (usize, Strin
             for (i, t) in texts.into_iter().enumerate() {
                 match t {
                     None => out.push(None),
-                    Some(t) => match crate::check::probe::parse_number(&t) {
+                    Some(t) => match crate::text::parse_number(&t) {
                         Some(v) => out.push(Some(v)),
                         None => return Err((i, t)),
                     },

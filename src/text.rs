@@ -1,5 +1,7 @@
 //! Small text helpers shared by messages, tables and reports.
 
+use crate::plan::DecimalMark;
+
 /// A whole number with a comma between thousands: `1234567` → `1,234,567`.
 /// Takes any unsigned integer type.
 pub fn thousands(n: impl Unsigned) -> String {
@@ -89,6 +91,36 @@ pub fn trim_spaces(value: &str) -> &str {
 pub fn odd_space_at_end(value: &str) -> bool {
     let v = trim_spaces(value);
     v.starts_with(char::is_whitespace) || v.ends_with(char::is_whitespace)
+}
+
+/// Whether a field counts as missing: blank after trimming.
+pub fn is_blank(field: &str) -> bool {
+    field.trim().is_empty()
+}
+
+/// Parses a data field as a finite number written with a decimal point.
+pub fn parse_number(field: &str) -> Option<f64> {
+    parse_number_in(field, DecimalMark::Point)
+}
+
+/// Parses a data field as a finite number written with the given decimal
+/// mark. With a decimal comma, a point is refused rather than guessed at
+/// (`1.234,5` writes thousands with points in some countries, a decimal in
+/// others).
+pub fn parse_number_in(field: &str, mark: DecimalMark) -> Option<f64> {
+    let t = field.trim();
+    if mark == DecimalMark::Comma {
+        if t.contains('.') || t.matches(',').count() > 1 {
+            return None;
+        }
+        return parse_number_in(&t.replace(',', "."), DecimalMark::Point);
+    }
+    // Rust's parser also accepts words like `inf` and `NaN`; data values
+    // must be written as digits.
+    if !t.bytes().any(|b| b.is_ascii_digit()) {
+        return None;
+    }
+    t.parse::<f64>().ok().filter(|v| v.is_finite())
 }
 
 #[cfg(test)]

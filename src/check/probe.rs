@@ -22,6 +22,9 @@ pub enum ColumnKind {
 }
 
 pub use crate::plan::DecimalMark;
+// How a data field is read (blank, a number) is shared with the loader
+// and the Parquet reader, below the checker.
+pub use crate::text::{is_blank, parse_number, parse_number_in};
 
 #[derive(Debug, Clone)]
 pub struct ColumnInfo {
@@ -292,36 +295,6 @@ fn parquet_key_problem(path: &Path, key: &str) -> Option<KeyProblem> {
     None
 }
 
-/// Whether a field counts as missing: blank after trimming.
-pub fn is_blank(field: &str) -> bool {
-    field.trim().is_empty()
-}
-
-/// Parses a data field as a finite number written with a decimal point.
-pub fn parse_number(field: &str) -> Option<f64> {
-    parse_number_in(field, DecimalMark::Point)
-}
-
-/// Parses a data field as a finite number written with the given decimal
-/// mark. With a decimal comma, a point is refused rather than guessed at
-/// (`1.234,5` writes thousands with points in some countries, a decimal in
-/// others).
-pub fn parse_number_in(field: &str, mark: DecimalMark) -> Option<f64> {
-    let t = field.trim();
-    if mark == DecimalMark::Comma {
-        if t.contains('.') || t.matches(',').count() > 1 {
-            return None;
-        }
-        return parse_number_in(&t.replace(',', "."), DecimalMark::Point);
-    }
-    // Rust's parser also accepts words like `inf` and `NaN`; data values
-    // must be written as digits.
-    if !t.bytes().any(|b| b.is_ascii_digit()) {
-        return None;
-    }
-    t.parse::<f64>().ok().filter(|v| v.is_finite())
-}
-
 /// What to do about a field that is not a number, read with `decimal`.
 pub fn number_help(field: &str, decimal: DecimalMark) -> String {
     let t = field.trim().to_ascii_lowercase();
@@ -488,10 +461,7 @@ fn probe_reader<R: std::io::Read>(
 fn probe_parquet(path: &Path) -> Result<Probe, ProbeError> {
     use crate::parquet::{self as pq, As, Column, Kind};
     let problem = |e: pq::ReadError| match e {
-        pq::ReadError::Open(why) if !path.exists() => {
-            let _ = why;
-            ProbeError::NotFound
-        }
+        pq::ReadError::Open(_) if !path.exists() => ProbeError::NotFound,
         other => ProbeError::Unreadable(pq::words(&other)),
     };
     let schema = pq::schema(path).map_err(problem)?;

@@ -24,15 +24,7 @@ pub fn formatted(v: f64, display: Option<&Display>) -> String {
     match format {
         NumberFormat::Percent => share(v),
         NumberFormat::Count => with_unit(decimals(v, 0), unit),
-        NumberFormat::Money => {
-            let text = decimals(v.abs(), 2);
-            let sign = if text.chars().any(|c| c.is_ascii_digit() && c != '0') && v < 0.0 {
-                "-"
-            } else {
-                ""
-            };
-            format!("{sign}{}{text}", unit.unwrap_or(""))
-        }
+        NumberFormat::Money => money(v, unit, 2),
         NumberFormat::Number => {
             let places = if v.abs() >= 100.0 {
                 0
@@ -44,6 +36,18 @@ pub fn formatted(v: f64, display: Option<&Display>) -> String {
             with_unit(decimals(v, places), unit)
         }
     }
+}
+
+/// Money with its symbol before it and `places` decimals: `€1,250.00`,
+/// `-€3`; an amount that rounds to zero has no sign.
+pub fn money(v: f64, unit: Option<&str>, places: usize) -> String {
+    let text = decimals(v.abs(), places);
+    let sign = if text.chars().any(|c| c.is_ascii_digit() && c != '0') && v < 0.0 {
+        "-"
+    } else {
+        ""
+    };
+    format!("{sign}{}{text}", unit.unwrap_or(""))
 }
 
 /// A value of `column` in its format within `room` characters, for the
@@ -58,15 +62,10 @@ pub fn compact(plan: &Plan, column: &str, v: f64, room: usize) -> String {
         Some(NumberFormat::Percent) => {
             fits(share(v)).or_else(|| fits(format!("{:.0} %", v * 100.0)))
         }
-        Some(NumberFormat::Money) => fits(formatted(v, display)).or_else(|| {
-            let unit = display.and_then(|d| d.unit.as_deref()).unwrap_or("");
-            let sign = if decimals(v, 0).starts_with('-') {
-                "-"
-            } else {
-                ""
-            };
-            fits(format!("{sign}{unit}{}", decimals(v.abs(), 0)))
-        }),
+        Some(NumberFormat::Money) => {
+            let unit = display.and_then(|d| d.unit.as_deref());
+            fits(money(v, unit, 2)).or_else(|| fits(money(v, unit, 0)))
+        }
         Some(NumberFormat::Count) => fits(decimals(v, 0)),
         _ => None,
     };

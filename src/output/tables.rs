@@ -221,15 +221,8 @@ pub fn rule_words(o: &Outcome, r: &crate::run::rules::SegmentRule) -> String {
                 Some(NumberFormat::Percent) => {
                     format!("{} %", people::decimals(100.0 * c.value, places))
                 }
-                Some(NumberFormat::Money) => {
-                    let sign = if c.value < 0.0 { "-" } else { "" };
-                    // Cents always, more places when the threshold has them.
-                    format!(
-                        "{sign}{}{}",
-                        unit.unwrap_or(""),
-                        people::decimals(c.value.abs(), places.max(2))
-                    )
-                }
+                // Cents always, more places when the threshold has them.
+                Some(NumberFormat::Money) => people::money(c.value, unit, places.max(2)),
                 _ => match unit {
                     Some(u) => format!("{} {u}", people::decimals(c.value, places)),
                     None => people::decimals(c.value, places),
