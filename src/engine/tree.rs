@@ -50,6 +50,7 @@
 // once; an iterator over one of them would hide that symmetry.
 #![allow(clippy::needless_range_loop)]
 
+use super::matrix::Condensed;
 use super::{dist2, EngineError};
 use ndarray::ArrayView2;
 use rayon::prelude::*;
@@ -294,47 +295,6 @@ fn mst_single(rows: &[Vec<f64>], metric: Metric) -> Vec<Step> {
 
 // ------------------------------------------------- condensed matrix --
 
-/// The condensed distance matrix: entry (i, j), i < j.
-struct Condensed {
-    n: usize,
-    values: Vec<f64>,
-}
-
-impl Condensed {
-    fn new(rows: &[Vec<f64>], metric: Metric) -> Condensed {
-        let n = rows.len();
-        let mut values = vec![0.0; n * n.saturating_sub(1) / 2];
-        // Split the buffer into one slice per row and fill them in parallel.
-        let mut slices: Vec<(usize, &mut [f64])> = Vec::with_capacity(n);
-        let mut rest: &mut [f64] = &mut values;
-        for i in 0..n.saturating_sub(1) {
-            let (head, tail) = std::mem::take(&mut rest).split_at_mut(n - 1 - i);
-            slices.push((i, head));
-            rest = tail;
-        }
-        slices.into_par_iter().for_each(|(i, out)| {
-            for (off, v) in out.iter_mut().enumerate() {
-                *v = metric.distance(&rows[i], &rows[i + 1 + off]);
-            }
-        });
-        Condensed { n, values }
-    }
-
-    fn at(&self, i: usize, j: usize) -> usize {
-        let (i, j) = if i < j { (i, j) } else { (j, i) };
-        self.n * i - i * (i + 1) / 2 + j - i - 1
-    }
-
-    fn get(&self, i: usize, j: usize) -> f64 {
-        self.values[self.at(i, j)]
-    }
-
-    fn set(&mut self, i: usize, j: usize, v: f64) {
-        let at = self.at(i, j);
-        self.values[at] = v;
-    }
-}
-
 /// What the nearest-neighbour chain needs from a linkage: distances
 /// between active clusters, and merging.
 trait ChainSpace {
@@ -462,7 +422,7 @@ fn nn_chain_matrix(
     metric: Metric,
 ) -> Vec<Step> {
     let mut space = MatrixSpace {
-        m: Condensed::new(rows, metric),
+        m: Condensed::from_fn(rows.len(), |i, j| metric.distance(&rows[i], &rows[j])),
         size: sizes.iter().map(|&s| s as f64).collect(),
         linkage,
     };
@@ -605,7 +565,9 @@ fn generic_matrix(rows: &[Vec<f64>], sizes: &[usize], linkage: Linkage) -> Vec<S
     if n < 2 {
         return steps;
     }
-    let mut d = Condensed::new(rows, Metric::Euclidean);
+    let mut d = Condensed::from_fn(rows.len(), |i, j| {
+        Metric::Euclidean.distance(&rows[i], &rows[j])
+    });
     let mut size: Vec<usize> = sizes.to_vec();
     let nearest_above = |d: &Condensed, size: &[usize], x: usize| -> (usize, f64) {
         let mut best = (usize::MAX, f64::INFINITY);
