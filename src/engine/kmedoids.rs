@@ -36,7 +36,7 @@
 
 use super::kmeans::canonical;
 use super::matrix::Condensed;
-use super::rng::Stream;
+use super::rng::{spread_records, Stream};
 use super::EngineError;
 use rayon::prelude::*;
 
@@ -88,7 +88,9 @@ pub fn kmedoids(m: &Condensed, s: &KMedoidsSettings) -> Result<KMedoidsFit, Engi
         .into_par_iter()
         .map(|r| {
             let stream = KMEDOIDS_STREAM | ((s.k as u64) << 32) | r as u64;
-            let medoids = seed(m, s.k, &mut Stream::new(s.seed, stream))?;
+            let medoids =
+                spread_records(n, s.k, &mut Stream::new(s.seed, stream), |i, j| m.get(i, j))
+                    .ok_or(EngineError::TooFewDistinct { k: s.k })?;
             Ok(swap(m, medoids, s.max_passes))
         })
         .collect();
@@ -132,35 +134,6 @@ pub fn assign(m: &Condensed, medoids: &[usize]) -> Vec<u32> {
             best.1
         })
         .collect()
-}
-
-/// k-means++-style seeding with the dissimilarity as the weight.
-fn seed(m: &Condensed, k: usize, rng: &mut Stream) -> Result<Vec<usize>, EngineError> {
-    let n = m.n();
-    let mut medoids = vec![rng.below(n)];
-    let mut nearest: Vec<f64> = (0..n).map(|o| m.get(o, medoids[0])).collect();
-    while medoids.len() < k {
-        let total: f64 = nearest.iter().sum();
-        if total <= 0.0 {
-            return Err(EngineError::TooFewDistinct { k });
-        }
-        let target = rng.unit() * total;
-        let mut acc = 0.0;
-        // The last record with weight is the fallback against rounding.
-        let mut pick = nearest.iter().rposition(|&d| d > 0.0).unwrap_or(0);
-        for (o, &d) in nearest.iter().enumerate() {
-            acc += d;
-            if d > 0.0 && acc > target {
-                pick = o;
-                break;
-            }
-        }
-        medoids.push(pick);
-        for (o, near) in nearest.iter_mut().enumerate() {
-            *near = near.min(m.get(o, pick));
-        }
-    }
-    Ok(medoids)
 }
 
 /// One restart's end.

@@ -19,6 +19,7 @@ pub mod evidence;
 pub mod gower;
 pub mod kmeans;
 pub mod kmedoids;
+pub mod kprototypes;
 pub mod matching;
 pub mod matrix;
 pub mod pca;

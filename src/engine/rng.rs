@@ -49,6 +49,44 @@ impl Stream {
     }
 }
 
+/// k records spread out as k-means++ spreads its starts: the first drawn
+/// uniformly, each next one with probability proportional to `weight(i,
+/// j)`, the weight of record `i` against the nearest chosen record `j` (a
+/// squared distance for k-means-like costs, the dissimilarity itself for
+/// medoids). `None` when fewer than k records have weight apart (too few
+/// distinct records). O(n k) calls of `weight`.
+pub fn spread_records(
+    n: usize,
+    k: usize,
+    rng: &mut Stream,
+    weight: impl Fn(usize, usize) -> f64,
+) -> Option<Vec<usize>> {
+    let mut chosen = vec![rng.below(n)];
+    let mut nearest: Vec<f64> = (0..n).map(|i| weight(i, chosen[0])).collect();
+    while chosen.len() < k {
+        let total: f64 = nearest.iter().sum();
+        if total <= 0.0 {
+            return None;
+        }
+        let target = rng.unit() * total;
+        let mut acc = 0.0;
+        // The last record with weight is the fallback against rounding.
+        let mut pick = nearest.iter().rposition(|&d| d > 0.0).unwrap_or(0);
+        for (i, &d) in nearest.iter().enumerate() {
+            acc += d;
+            if d > 0.0 && acc > target {
+                pick = i;
+                break;
+            }
+        }
+        chosen.push(pick);
+        for (i, near) in nearest.iter_mut().enumerate() {
+            *near = near.min(weight(i, pick));
+        }
+    }
+    Some(chosen)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
