@@ -82,3 +82,25 @@ fn the_estimate_is_repeatable_and_reads_only_a_sample() {
     assert!(a.evaluated < 5_000, "{}", a.evaluated);
     assert_eq!(a.values.iter().map(Vec::len).sum::<usize>(), a.evaluated);
 }
+
+/// The silhouette over a dissimilarity given as a function (Gower's, or
+/// k-prototypes' root cost) is the same computation: with the Euclidean
+/// distance as that function it agrees with the row kernel, exact and
+/// estimated from the same stream.
+#[test]
+fn a_silhouette_over_a_given_dissimilarity_agrees_with_the_row_kernel() {
+    use assort::engine::silhouette::{exact_by, silhouette_by, EXACT_LIMIT, SAMPLE};
+    let euclid = |x: &Array2<f64>, i: usize, j: usize| {
+        assort::engine::dist2(x.row(i).as_slice().unwrap(), x.row(j).as_slice().unwrap()).sqrt()
+    };
+    let (x, labels) = groups(2_000, 11);
+    let by = exact_by(&|i, j| euclid(&x, i, j), &labels, 5);
+    let rows = exact(x.view(), &labels, 5);
+    assert!((by.mean - rows.mean).abs() < 1e-12);
+    let (x, labels) = groups(EXACT_LIMIT + 500, 12);
+    let by = silhouette_by(&|i, j| euclid(&x, i, j), &labels, 5, 3, 9);
+    let rows = estimate(x.view(), &labels, 5, &mut Stream::new(3, 9), SAMPLE);
+    assert_eq!(by.evaluated, rows.evaluated);
+    assert!((by.mean - rows.mean).abs() < 1e-12);
+    assert!((by.std_error.unwrap() - rows.std_error.unwrap()).abs() < 1e-12);
+}

@@ -95,12 +95,51 @@ pub fn silhouette(
     }
 }
 
+/// A dissimilarity between records `i` and `j` that is not Euclidean over
+/// rows (Gower's, say, or the root of k-prototypes' cost).
+pub type Dissimilarity<'a> = &'a (dyn Fn(usize, usize) -> f64 + Sync);
+
+/// As [`silhouette`], with `dist` in place of the Euclidean distance
+/// between rows: exact up to [`EXACT_LIMIT`] of the `labels.len()`
+/// records, else estimated.
+pub fn silhouette_by(
+    dist: Dissimilarity<'_>,
+    labels: &[u32],
+    k: usize,
+    seed: u64,
+    stream: u64,
+) -> Silhouette {
+    if labels.len() <= EXACT_LIMIT {
+        exact_with(labels, k, &|j: &Judged| j.scores_by(dist))
+    } else {
+        estimate_with(
+            labels,
+            k,
+            &mut Stream::new(seed, stream),
+            SAMPLE,
+            &|j: &Judged| j.scores_by(dist),
+        )
+    }
+}
+
+/// As [`exact`], with `dist` in place of the Euclidean distance.
+pub fn exact_by(dist: Dissimilarity<'_>, labels: &[u32], k: usize) -> Silhouette {
+    exact_with(labels, k, &|j: &Judged| j.scores_by(dist))
+}
+
 /// The exact silhouette of every record.
 pub fn exact(data: ArrayView2<'_, f64>, labels: &[u32], k: usize) -> Silhouette {
-    let n = data.nrows();
+    exact_with(labels, k, &|j: &Judged| j.scores(data))
+}
+
+/// How the judged records' distance sums are obtained.
+type Scorer<'a> = &'a dyn Fn(&Judged) -> Sums;
+
+fn exact_with(labels: &[u32], k: usize, scorer: Scorer<'_>) -> Silhouette {
+    let n = labels.len();
     let all: Vec<usize> = (0..n).collect();
     let judged = Judged::new(&all, labels, k, 1);
-    let s = judged.scores(data);
+    let s = scorer(&judged);
     let full = judged.whole(&s);
     let mut per = vec![0.0; k];
     let mut n_of = vec![0usize; k];
@@ -129,7 +168,17 @@ pub fn estimate(
     rng: &mut Stream,
     sample: usize,
 ) -> Silhouette {
-    let n = data.nrows();
+    estimate_with(labels, k, rng, sample, &|j: &Judged| j.scores(data))
+}
+
+fn estimate_with(
+    labels: &[u32],
+    k: usize,
+    rng: &mut Stream,
+    sample: usize,
+    scorer: Scorer<'_>,
+) -> Silhouette {
+    let n = labels.len();
     let mut members: Vec<Vec<usize>> = vec![Vec::new(); k];
     for (i, &l) in labels.iter().enumerate() {
         members[l as usize].push(i);
@@ -145,7 +194,7 @@ pub fn estimate(
         })
         .collect();
     let judged = Judged::new(&chosen, labels, k, GROUPS);
-    let s = judged.scores(data);
+    let s = scorer(&judged);
     let weights: Vec<f64> = n_of.iter().map(|&m| m as f64 / n as f64).collect();
 
     let full = judged.whole(&s);
@@ -296,6 +345,26 @@ impl Judged {
                             &mask[first * LANES..],
                             count,
                         )
+                    })
+                    .collect()
+            })
+            .collect()
+    }
+
+    /// As [`Judged::scores`], with distances from `dist`: each cell's
+    /// references in block order, one accumulator.
+    fn scores_by(&self, dist: Dissimilarity<'_>) -> Sums {
+        self.records
+            .par_iter()
+            .map(|&i| {
+                self.cells
+                    .iter()
+                    .map(|&(first, count)| {
+                        self.padded[first * LANES..(first + count) * LANES]
+                            .iter()
+                            .filter(|&&j| j != usize::MAX)
+                            .map(|&j| dist(i, j))
+                            .sum()
                     })
                     .collect()
             })

@@ -231,6 +231,36 @@ pub fn linkage_weighted(
     Ok(label_steps(n, &sizes, steps, sorted))
 }
 
+/// The merge tree over a dissimilarity matrix the caller computed (Gower's,
+/// say): single linkage by Prim's algorithm over the matrix, complete,
+/// average and weighted by the nearest-neighbour chain over it (updated in
+/// place). Linkages that need Euclidean geometry are refused. O(n²) time
+/// beyond the matrix.
+pub fn linkage_matrix(m: Condensed, linkage: Linkage) -> Result<Dendrogram, EngineError> {
+    let n = m.n();
+    if n == 0 {
+        return Err(EngineError::TooFewRecords { k: 1, n: 0 });
+    }
+    if linkage.needs_euclidean() {
+        return Err(EngineError::NeedsEuclidean {
+            linkage: linkage.name(),
+        });
+    }
+    let sizes = vec![1usize; n];
+    let steps = match linkage {
+        Linkage::Single => prim(n, &|i, j| m.get(i, j), false),
+        _ => {
+            let mut space = MatrixSpace {
+                m,
+                size: vec![1.0; n],
+                linkage,
+            };
+            chain(n, &mut space)
+        }
+    };
+    Ok(label_steps(n, &sizes, steps, true))
+}
+
 /// Active clusters above which a chain step's scan and update are split
 /// across threads.
 const PARALLEL_SCAN_MIN: usize = 4096;
@@ -243,34 +273,44 @@ type Step = (usize, usize, f64);
 /// Prim's algorithm over the complete graph, distances on the fly.
 fn mst_single(rows: &[Vec<f64>], metric: Metric) -> Vec<Step> {
     let n = rows.len();
+    if n < 2 {
+        return Vec::new();
+    }
+    // One contiguous buffer: the scan reads every remaining row once per
+    // merge, so rows held as separate vectors would cost a pointer chase
+    // each.
+    let d = rows[0].len();
+    let flat: Vec<f64> = rows.iter().flatten().copied().collect();
+    let row_of = |j: usize| &flat[j * d..(j + 1) * d];
+    // Euclidean candidates are compared by squared distance (the same
+    // order, one square root per merge instead of one per pair).
+    let squared = metric == Metric::Euclidean;
+    let dist = |i: usize, j: usize| match metric {
+        Metric::Euclidean => dist2(row_of(i), row_of(j)),
+        other => other.distance(row_of(i), row_of(j)),
+    };
+    prim(n, &dist, squared)
+}
+
+/// Prim's algorithm over `dist(i, j)`; with `squared`, the values are
+/// squares of the heights.
+fn prim(n: usize, dist: &(dyn Fn(usize, usize) -> f64 + Sync), squared: bool) -> Vec<Step> {
     let mut steps = Vec::with_capacity(n.saturating_sub(1));
     if n < 2 {
         return steps;
     }
     // `best[j]`: distance from the tree to j, and the tree node it is from.
-    // One contiguous buffer: the scan below reads every remaining row once
-    // per merge, so rows held as separate vectors would cost a pointer
-    // chase each.
-    let d = rows[0].len();
-    let flat: Vec<f64> = rows.iter().flatten().copied().collect();
-    let row_of = |j: usize| &flat[j * d..(j + 1) * d];
     let mut in_tree = vec![false; n];
     let mut best = vec![(f64::INFINITY, 0usize); n];
     let mut current = 0;
     in_tree[0] = true;
     for _ in 1..n {
         let from = current;
-        let row = row_of(from);
         // Update the candidate distances in parallel (each j on its own),
         // then pick the nearest in index order.
-        // Euclidean candidates are compared by squared distance (the same
-        // order, one square root per merge instead of one per pair).
         best.par_iter_mut().enumerate().for_each(|(j, b)| {
             if !in_tree[j] {
-                let dd = match metric {
-                    Metric::Euclidean => dist2(row, row_of(j)),
-                    other => other.distance(row, row_of(j)),
-                };
+                let dd = dist(from, j);
                 if dd < b.0 {
                     *b = (dd, from);
                 }
@@ -283,9 +323,10 @@ fn mst_single(rows: &[Vec<f64>], metric: Metric) -> Vec<Step> {
             }
         }
         in_tree[next] = true;
-        let height = match metric {
-            Metric::Euclidean => best[next].0.sqrt(),
-            _ => best[next].0,
+        let height = if squared {
+            best[next].0.sqrt()
+        } else {
+            best[next].0
         };
         steps.push((best[next].1, next, height));
         current = next;
@@ -733,7 +774,7 @@ impl Dendrogram {
     /// them). Two passes over all pairs (means, then centred sums): O(n² d)
     /// time, O(n) memory.
     pub fn cophenetic_correlation(&self, data: ArrayView2<'_, f64>, metric: Metric) -> f64 {
-        self.cophenetic_over(data, metric, None)
+        self.cophenetic_estimate(data, metric, usize::MAX, 0, 0).0
     }
 
     /// The cophenetic correlation over the pairs of `sample` records drawn
@@ -749,8 +790,27 @@ impl Dendrogram {
         seed: u64,
         stream: u64,
     ) -> (f64, usize) {
+        let standard = data.as_standard_layout();
+        let rows: Vec<&[f64]> = standard
+            .as_slice()
+            .expect("a standard-layout array is one slice")
+            .chunks_exact(data.ncols().max(1))
+            .collect();
+        let dist = |i: usize, j: usize| metric.distance(rows[i], rows[j]);
+        self.cophenetic_estimate_by(&dist, sample, seed, stream)
+    }
+
+    /// As [`Dendrogram::cophenetic_estimate`], with the leaves' distances
+    /// given by `dist(i, j)` (a dissimilarity matrix, say).
+    pub fn cophenetic_estimate_by(
+        &self,
+        dist: &(dyn Fn(usize, usize) -> f64 + Sync),
+        sample: usize,
+        seed: u64,
+        stream: u64,
+    ) -> (f64, usize) {
         if self.n <= sample {
-            return (self.cophenetic_over(data, metric, None), self.n);
+            return (self.cophenetic_over(dist, None), self.n);
         }
         let mut rng = super::rng::Stream::new(seed, stream);
         let mut pool: Vec<usize> = (0..self.n).collect();
@@ -760,28 +820,21 @@ impl Dendrogram {
         }
         let mut chosen = vec![false; self.n];
         pool[..sample].iter().for_each(|&i| chosen[i] = true);
-        (self.cophenetic_over(data, metric, Some(&chosen)), sample)
+        (self.cophenetic_over(dist, Some(&chosen)), sample)
     }
 
     /// The correlation over the pairs of the `chosen` leaves (all leaves
     /// when `None`).
     fn cophenetic_over(
         &self,
-        data: ArrayView2<'_, f64>,
-        metric: Metric,
+        dist: &(dyn Fn(usize, usize) -> f64 + Sync),
         chosen: Option<&[bool]>,
     ) -> f64 {
-        let standard = data.as_standard_layout();
-        let rows: Vec<&[f64]> = standard
-            .as_slice()
-            .expect("a standard-layout array is one slice")
-            .chunks_exact(data.ncols().max(1))
-            .collect();
         let leaves = chosen.map_or(self.n, |c| c.iter().filter(|&&b| b).count());
         let count = (leaves * leaves.saturating_sub(1) / 2) as f64;
-        let [sx, sy, _] = self.pair_sums(&rows, metric, chosen, &|x, y| [x, y, 0.0]);
+        let [sx, sy, _] = self.pair_sums(dist, chosen, &|x, y| [x, y, 0.0]);
         let (mx, my) = (sx / count, sy / count);
-        let [sxy, sxx, syy] = self.pair_sums(&rows, metric, chosen, &|x, y| {
+        let [sxy, sxx, syy] = self.pair_sums(dist, chosen, &|x, y| {
             [
                 (x - mx) * (y - my),
                 (x - mx) * (x - mx),
@@ -799,8 +852,7 @@ impl Dendrogram {
     /// by row and the parts added in a fixed order.
     fn pair_sums(
         &self,
-        rows: &[&[f64]],
-        metric: Metric,
+        dist: &(dyn Fn(usize, usize) -> f64 + Sync),
         chosen: Option<&[bool]>,
         f: &(dyn Fn(f64, f64) -> [f64; 3] + Sync),
     ) -> [f64; 3] {
@@ -824,7 +876,7 @@ impl Dendrogram {
                 .map(|&x| {
                     let mut s = [0.0; 3];
                     for &y in &right {
-                        let v = f(metric.distance(rows[x], rows[y]), m.height);
+                        let v = f(dist(x, y), m.height);
                         for (acc, add) in s.iter_mut().zip(v) {
                             *acc += add;
                         }
@@ -952,6 +1004,35 @@ pub fn linkage_naive(data: ArrayView2<'_, f64>, linkage: Linkage, metric: Metric
 mod tests {
     use super::*;
     use ndarray::array;
+
+    #[test]
+    fn a_tree_over_a_matrix_is_the_tree_over_the_rows_it_came_from() {
+        let x = array![
+            [0.0, 1.0],
+            [1.5, 0.2],
+            [10.0, 3.0],
+            [11.0, 2.5],
+            [30.0, 0.0],
+            [4.0, 4.0],
+            [12.5, 1.0]
+        ];
+        let n = x.nrows();
+        for l in [
+            Linkage::Single,
+            Linkage::Complete,
+            Linkage::Average,
+            Linkage::Weighted,
+        ] {
+            let rows = linkage(x.view(), l, Metric::Manhattan).unwrap();
+            let m = Condensed::from_fn(n, |i, j| {
+                Metric::Manhattan
+                    .distance(x.row(i).as_slice().unwrap(), x.row(j).as_slice().unwrap())
+            });
+            assert_eq!(linkage_matrix(m, l).unwrap().merges, rows.merges, "{l:?}");
+        }
+        let m = Condensed::from_fn(n, |_, _| 1.0);
+        assert!(linkage_matrix(m, Linkage::Ward).is_err());
+    }
 
     #[test]
     fn a_small_tree_cuts_into_its_obvious_groups() {
