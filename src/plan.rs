@@ -218,8 +218,107 @@ impl Plan {
         match &self.method {
             MethodPlan::KMeans(k) => &k.ks,
             MethodPlan::Tree(t) => &t.ks,
+            MethodPlan::KMedoids(m) => &m.ks,
+            MethodPlan::KPrototypes(p) => &p.ks,
         }
     }
+
+    /// Whether the method compares records other than by the Euclidean
+    /// distance over the prepared columns the criteria assume: k-medoids,
+    /// k-prototypes, or a tree on Gower's dissimilarity. Such runs judge
+    /// k on their own measure.
+    pub fn own_measure(&self) -> bool {
+        match &self.method {
+            MethodPlan::KMeans(_) => false,
+            MethodPlan::Tree(t) => t.distance == Distance::Gower,
+            MethodPlan::KMedoids(_) | MethodPlan::KPrototypes(_) => true,
+        }
+    }
+}
+
+/// How two records are compared: a distance over the prepared columns, or
+/// Gower's dissimilarity over the columns as they are (numbers by their
+/// range, categories by match).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Distance {
+    Euclidean,
+    Manhattan,
+    Cosine,
+    Correlation,
+    Gower,
+}
+
+impl Distance {
+    pub const NAMES: [&'static str; 5] =
+        ["euclidean", "manhattan", "cosine", "correlation", "gower"];
+
+    pub fn parse(word: &str) -> Option<Distance> {
+        match word {
+            "gower" => Some(Distance::Gower),
+            other => Metric::parse(other).map(Distance::from),
+        }
+    }
+
+    pub fn name(self) -> &'static str {
+        match self.metric() {
+            Some(m) => m.name(),
+            None => "gower",
+        }
+    }
+
+    /// The distance in words: "euclidean distance", "Gower's
+    /// dissimilarity".
+    pub fn words(self) -> String {
+        match self {
+            Distance::Gower => "Gower's dissimilarity".to_string(),
+            other => format!("{} distance", other.name()),
+        }
+    }
+
+    /// The distance over rows, or `None` for Gower's.
+    pub fn metric(self) -> Option<Metric> {
+        match self {
+            Distance::Euclidean => Some(Metric::Euclidean),
+            Distance::Manhattan => Some(Metric::Manhattan),
+            Distance::Cosine => Some(Metric::Cosine),
+            Distance::Correlation => Some(Metric::Correlation),
+            Distance::Gower => None,
+        }
+    }
+}
+
+impl From<Metric> for Distance {
+    fn from(m: Metric) -> Distance {
+        match m {
+            Metric::Manhattan => Distance::Manhattan,
+            Metric::Cosine => Distance::Cosine,
+            Metric::Correlation => Distance::Correlation,
+            _ => Distance::Euclidean,
+        }
+    }
+}
+
+/// k-medoids (FasterPAM) over a dissimilarity matrix.
+#[derive(Debug, Clone, Serialize)]
+pub struct KMedoidsPlan {
+    pub ks: Vec<usize>,
+    pub restarts: usize,
+    /// The most passes of swaps over the records per start.
+    pub passes: usize,
+    pub distance: Distance,
+}
+
+/// k-prototypes: numbers by squared difference, categories by mismatch.
+#[derive(Debug, Clone, Serialize)]
+pub struct KPrototypesPlan {
+    pub ks: Vec<usize>,
+    pub restarts: usize,
+    pub rounds: usize,
+    /// What a category mismatch costs; `None`: Huang's suggestion from the
+    /// data (half the numbers' mean standard deviation).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub gamma: Option<f64>,
 }
 
 /// The clustering method, with its settings.
@@ -229,6 +328,41 @@ pub enum MethodPlan {
     #[serde(rename = "kmeans")]
     KMeans(KMeansPlan),
     Tree(TreePlan),
+    #[serde(rename = "kmedoids")]
+    KMedoids(KMedoidsPlan),
+    #[serde(rename = "kprototypes")]
+    KPrototypes(KPrototypesPlan),
+}
+
+impl MethodPlan {
+    /// The method in words: "k-means (50 restarts per k)".
+    pub fn words(&self) -> String {
+        match self {
+            MethodPlan::KMeans(k) => format!("k-means ({} restarts per k)", k.restarts),
+            MethodPlan::KMedoids(m) => format!(
+                "k-medoids by FasterPAM on {} ({} restarts per k)",
+                m.distance.words(),
+                m.restarts
+            ),
+            MethodPlan::KPrototypes(p) => format!(
+                "k-prototypes ({} restarts per k; a category mismatch costs {})",
+                p.restarts,
+                p.gamma.map_or(
+                    "half the numbers' mean standard deviation".to_string(),
+                    |g| { format!("{g}") }
+                )
+            ),
+            MethodPlan::Tree(t) => format!(
+                "an agglomerative tree ({} linkage, {}{})",
+                t.linkage.name(),
+                t.distance.words(),
+                t.micro
+                    .as_ref()
+                    .map(|m| format!(", over {} k-means micro-segments", m.segments))
+                    .unwrap_or_default()
+            ),
+        }
+    }
 }
 
 /// Agglomerative clustering: one tree, cut at every k.
@@ -239,7 +373,7 @@ pub struct TreePlan {
     /// Cut where the merges pass this height instead of at given k.
     pub height: Option<f64>,
     pub linkage: Linkage,
-    pub distance: Metric,
+    pub distance: Distance,
     /// Micro-segment route: k-means into this many micro-segments first, then
     /// the tree over their centres weighted by their sizes.
     pub micro: Option<MicroPlan>,
@@ -528,7 +662,13 @@ pub const MODEL_FORMAT: &str = "assort-model/2";
 
 /// Formats this assort reads: version 1 lacks the segments' means, which
 /// only "what changed" uses; it scores exactly as before.
-pub const MODEL_FORMATS_READ: [&str; 2] = ["assort-model/1", MODEL_FORMAT];
+pub const MODEL_FORMATS_READ: [&str; 3] = ["assort-model/1", MODEL_FORMAT, MODEL_FORMAT_MEASURED];
+
+/// The format of a model that scores by its own measure (k-medoids,
+/// k-prototypes, a tree on Gower's dissimilarity): version 2 with a
+/// `measure`, under a new name so that an assort that does not know
+/// measures refuses it rather than score it by the Euclidean distance.
+pub const MODEL_FORMAT_MEASURED: &str = "assort-model/3";
 
 /// How a data file writes the decimal mark: `1.5` or `1,5`.
 #[derive(

@@ -59,7 +59,8 @@ fn a_statement_with_an_error_is_not_kept() {
 fn completion_knows_statements_options_and_columns() {
     let mut s = demo_folder_session();
     s.enter("input \"data/coop_members.csv\" key member_id", false);
-    assert_eq!(s.complete("kme").labels(), ["kmeans"]);
+    assert_eq!(s.complete("kme").labels(), ["kmeans", "kmedoids"]);
+    assert_eq!(s.complete("kmea").labels(), ["kmeans"]);
     assert_eq!(s.complete("kmeans k 3 see").labels(), ["seeding"]);
     assert_eq!(
         s.complete("features visits_per_month, coup").labels(),

@@ -293,6 +293,27 @@ pub enum CheckError {
         span: Span,
     },
 
+    #[error("{method} over {records} records would hold a dissimilarity matrix of {gib:.1} GiB")]
+    #[diagnostic(code(assort::large_matrix), help("{help}"))]
+    LargeMatrix {
+        method: String,
+        records: String,
+        gib: f64,
+        #[label("compares every pair of records")]
+        span: Span,
+        help: String,
+    },
+
+    #[error("{what} is not available with {method}")]
+    #[diagnostic(code(assort::not_with_method), help("{help}"))]
+    NotWithMethod {
+        what: String,
+        method: String,
+        #[label("here")]
+        span: Span,
+        help: String,
+    },
+
     #[error("`save {what}` needs the `tree` method")]
     #[diagnostic(
         code(assort::needs_tree),

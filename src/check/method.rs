@@ -1,35 +1,183 @@
-//! The method: `kmeans` or `tree`, their options and the values of k.
+//! The method: `kmeans`, `kmedoids`, `kprototypes` or `tree`, their
+//! options and the values of k.
 
 use super::*;
 
+/// The method statement words.
+pub(super) const METHODS: [&str; 4] = ["kmeans", "kmedoids", "kprototypes", "tree"];
+
 impl Checker {
-    /// The one method statement: `kmeans` or `tree`.
-    pub(super) fn method(
-        &mut self,
-        kmeans: Option<&Statement>,
-        tree: Option<&Statement>,
-    ) -> Option<MethodPlan> {
-        match (kmeans, tree) {
-            (Some(a), Some(b)) => {
-                let (first, second) = if a.span.start < b.span.start {
-                    (a, b)
-                } else {
-                    (b, a)
-                };
+    /// The one method statement, of those `found` (each the first of its
+    /// word).
+    pub(super) fn method(&mut self, mut found: Vec<&Statement>) -> Option<MethodPlan> {
+        found.sort_by_key(|s| s.span.start);
+        match found.as_slice() {
+            [] => {
+                self.err(CheckError::NoMethod { span: self.end });
+                None
+            }
+            [s] => match &s.kind {
+                StatementKind::KMeans { .. } => self.kmeans(s).map(MethodPlan::KMeans),
+                StatementKind::KMedoids { .. } => self.kmedoids(s).map(MethodPlan::KMedoids),
+                StatementKind::KPrototypes { .. } => {
+                    self.kprototypes(s).map(MethodPlan::KPrototypes)
+                }
+                _ => self.tree(s).map(MethodPlan::Tree),
+            },
+            [first, second, ..] => {
                 self.err(CheckError::Conflict {
-                    what: "a method (`kmeans` or `tree`)".into(),
+                    what: "a method (`kmeans`, `kmedoids`, `kprototypes` or `tree`)".into(),
                     span: second.keyword.span,
                     first: first.keyword.span,
                 });
                 None
             }
-            (Some(s), None) => self.kmeans(s).map(MethodPlan::KMeans),
-            (None, Some(s)) => self.tree(s).map(MethodPlan::Tree),
-            (None, None) => {
-                self.err(CheckError::NoMethod { span: self.end });
-                None
+        }
+    }
+
+    /// What a method with its own measure (k-medoids, k-prototypes, a tree
+    /// on Gower's) cannot do yet: the reclustering evidence (gap
+    /// statistic, bootstrap stability), which reclusters with k-means, and
+    /// the scoring SQL, which writes the Euclidean nearest centre.
+    pub(super) fn method_limits(&mut self, stmts: &[Statement], method: &MethodPlan) {
+        let name = match method {
+            MethodPlan::KMedoids(_) => "`kmedoids`",
+            MethodPlan::KPrototypes(_) => "`kprototypes`",
+            MethodPlan::Tree(t) if t.distance == Distance::Gower => "a tree on `distance gower`",
+            _ => return,
+        };
+        let evidence_help = "the gap statistic and bootstrap stability recluster with k-means, which would judge another method than this one; choose k by `silhouette`, `calinski-harabasz`, `davies-bouldin` or `elbow`, which this method measures on its own dissimilarity";
+        for st in stmts {
+            let found: Vec<(String, Span, &str)> = match &st.kind {
+                StatementKind::Evidence { options } => options
+                    .iter()
+                    .filter(|o| matches!(o.name.node.as_str(), "gap" | "stability"))
+                    .map(|o| (format!("`evidence {}`", o.name.node), o.name.span, evidence_help))
+                    .collect(),
+                StatementKind::Choose {
+                    rule: ChooseRule::By(c),
+                    ..
+                } if matches!(c.node.as_str(), "gap" | "stability") => {
+                    vec![(format!("`choose k by {}`", c.node), c.span, evidence_help)]
+                }
+                StatementKind::Save { what, .. } if what.node == "scoring" => vec![(
+                    "`save scoring`".to_string(),
+                    st.span,
+                    "the scoring SQL writes the nearest centre by Euclidean distance; save the model (`save model`) and score new records with `assort assign`, which measures as this method does",
+                )],
+                _ => Vec::new(),
+            };
+            for (what, span, help) in found {
+                self.err(CheckError::NotWithMethod {
+                    what,
+                    method: name.to_string(),
+                    span,
+                    help: help.to_string(),
+                });
             }
         }
+    }
+
+    /// Refuses a method that holds every pair of records beyond the
+    /// matrix's memory limit.
+    fn matrix_fits(&mut self, method: &str, span: Span, help: &str) {
+        let limit = TreeLimit::of(Linkage::Average);
+        if let Some(n) = self.records().filter(|&n| n > limit.records) {
+            self.err(CheckError::LargeMatrix {
+                method: method.to_string(),
+                records: crate::text::thousands(n),
+                gib: TreeLimit::matrix_bytes(n) as f64 / (1u64 << 30) as f64,
+                span,
+                help: format!(
+                    "the matrix takes at most {} records (2 GiB); {help}",
+                    crate::text::thousands(limit.records)
+                ),
+            });
+        }
+    }
+
+    pub(super) fn kmedoids(&mut self, s: &Statement) -> Option<KMedoidsPlan> {
+        let StatementKind::KMedoids { options } = &s.kind else {
+            return None;
+        };
+        let opts = self.options("kmedoids", options, vocab::KMEDOIDS_OPTIONS);
+        let ks = self.required_ks("kmedoids", &opts, s.span);
+        let restarts = self
+            .whole_option(&opts, "restarts", 1, defaults::RESTARTS)
+            .and_then(|r| {
+                let why = "each restart swaps medoids over every pair of records; 10 to 50 restarts are usual";
+                self.at_most(&opts, "restarts", r, MOST_RESTARTS, why)
+            });
+        let passes = self
+            .whole_option(&opts, "passes", 1, defaults::PASSES)
+            .and_then(|p| {
+                let why = "a pass tries every record as a medoid; k-medoids settles in a few passes, and a cap this high only hides a run that does not";
+                self.at_most(&opts, "passes", p, MOST_ROUNDS, why)
+            });
+        let distance = self
+            .word_option(
+                &opts,
+                "distance",
+                Distance::Gower,
+                &Distance::NAMES,
+                Distance::parse,
+                "a distance name",
+                "`gower` compares numbers and categories together; it is the usual choice for mixed tables",
+            )
+            .map(|(d, _)| d);
+        self.matrix_fits(
+            "k-medoids",
+            s.keyword.span,
+            "for larger tables use `kprototypes` (numbers and categories, no matrix), or segment a sample",
+        );
+        Some(KMedoidsPlan {
+            ks: ks?,
+            restarts: restarts?,
+            passes: passes?,
+            distance: distance?,
+        })
+    }
+
+    pub(super) fn kprototypes(&mut self, s: &Statement) -> Option<KPrototypesPlan> {
+        let StatementKind::KPrototypes { options } = &s.kind else {
+            return None;
+        };
+        let opts = self.options("kprototypes", options, vocab::KPROTOTYPES_OPTIONS);
+        let ks = self.required_ks("kprototypes", &opts, s.span);
+        let restarts = self
+            .whole_option(&opts, "restarts", 1, defaults::RESTARTS)
+            .and_then(|r| {
+                let why = "10 to 100 restarts find the best partition in practice";
+                self.at_most(&opts, "restarts", r, MOST_RESTARTS, why)
+            });
+        let rounds = self
+            .whole_option(&opts, "rounds", 1, defaults::ROUNDS)
+            .and_then(|r| {
+                let why = "k-prototypes settles in tens of rounds, and a cap this high only hides a run that does not";
+                self.at_most(&opts, "rounds", r, MOST_ROUNDS, why)
+            });
+        let gamma = match opts.get("gamma") {
+            None => Some(None),
+            Some(o) => match &o.value.node {
+                Value::Number(n) if n.value.is_finite() && n.value > 0.0 => Some(Some(n.value)),
+                other => {
+                    self.bad_value(
+                        "gamma",
+                        other,
+                        "a number above 0",
+                        o.value.span,
+                        "a mismatched category costs this much against the squared differences of the scaled numbers; leave it out for Huang's suggestion from the data",
+                    );
+                    None
+                }
+            },
+        };
+        Some(KPrototypesPlan {
+            ks: ks?,
+            restarts: restarts?,
+            rounds: rounds?,
+            gamma: gamma?,
+        })
     }
 
     /// The required `k` option of a method statement.
@@ -88,14 +236,14 @@ impl Checker {
         let distance = self.word_option(
             &opts,
             "distance",
-            Metric::Euclidean,
-            &Metric::NAMES,
-            Metric::parse,
+            Distance::Euclidean,
+            &Distance::NAMES,
+            Distance::parse,
             "a distance name",
             "for example `distance manhattan`",
         );
         if let (Some((l, l_span)), Some((m, Some(m_span)))) = (linkage, distance) {
-            if l.needs_euclidean() && m != Metric::Euclidean {
+            if l.needs_euclidean() && m != Distance::Euclidean {
                 self.err(CheckError::NeedsEuclidean {
                     linkage: l.name(),
                     distance: m.name(),
@@ -110,7 +258,10 @@ impl Checker {
             None => None,
             Some(o) => Some(self.micro(&opts, o, ks.as_deref(), linkage)?),
         };
-        if let (None, Some(l)) = (&micro, linkage) {
+        let gower = matches!(distance, Some((Distance::Gower, _)));
+        if gower {
+            self.gower_tree(&opts, s)?;
+        } else if let (None, Some(l)) = (&micro, linkage) {
             let limit = TreeLimit::of(l);
             if let Some(n) = self.records().filter(|&n| n > limit.records) {
                 self.err(CheckError::large_tree(n, l.name(), limit, s.keyword.span));
@@ -123,6 +274,31 @@ impl Checker {
             distance: distance?.0,
             micro,
         })
+    }
+
+    /// A tree on Gower's dissimilarity: over every record (no `micro`,
+    /// whose micro-segments are k-means centres) and within the matrix's
+    /// limit.
+    fn gower_tree(
+        &mut self,
+        opts: &HashMap<&'static str, &OptionPair>,
+        s: &Statement,
+    ) -> Option<()> {
+        if let Some(o) = opts.get("micro") {
+            self.err(CheckError::NotWithMethod {
+                what: "`micro`".into(),
+                method: "`distance gower`".into(),
+                span: o.name.span,
+                help: "micro-segments are k-means centres, which Gower's dissimilarity does not have; drop `micro`, or use `kprototypes` for large mixed tables".into(),
+            });
+            return None;
+        }
+        self.matrix_fits(
+            "a tree on Gower's dissimilarity",
+            s.keyword.span,
+            "for larger tables use `kprototypes` (numbers and categories, no matrix)",
+        );
+        Some(())
     }
 
     /// The `micro` option of `tree`: more micro-segments than the largest

@@ -52,6 +52,8 @@ pub mod defaults {
     pub const EVIDENCE_RESTARTS: usize = 5;
     /// Restarts of the k-means stage of the micro-segment route.
     pub const MICRO_RESTARTS: usize = 3;
+    /// The most passes of k-medoids' swaps.
+    pub const PASSES: usize = 100;
 }
 
 /// A recipe's text and where it lives.
@@ -315,9 +317,21 @@ pub const MAX_K_SPAN: i64 = 500;
 pub use crate::plan::TreeLimit;
 
 /// Statements that may appear once, by word.
-const SINGLE: [&str; 12] = [
-    "recipe", "seed", "input", "features", "scale", "kmeans", "tree", "evidence", "choose",
-    "validate", "compare", "previous",
+const SINGLE: [&str; 14] = [
+    "recipe",
+    "seed",
+    "input",
+    "features",
+    "scale",
+    "kmeans",
+    "kmedoids",
+    "kprototypes",
+    "tree",
+    "evidence",
+    "choose",
+    "validate",
+    "compare",
+    "previous",
 ];
 
 struct Checker {
@@ -373,9 +387,10 @@ impl Checker {
             CheckError::MissingStatement { keyword, .. } => {
                 self.unparsed.iter().any(|w| w == keyword)
             }
-            CheckError::NoMethod { .. } => {
-                self.unparsed.iter().any(|w| w == "kmeans" || w == "tree")
-            }
+            CheckError::NoMethod { .. } => self
+                .unparsed
+                .iter()
+                .any(|w| method::METHODS.contains(&w.as_str())),
             _ => false,
         };
         if !follows {
@@ -464,11 +479,16 @@ impl Checker {
             }) => self.word_choice("scale method", method, &Scale::NAMES, Scale::parse),
             _ => Some(Scale::Zscore),
         };
-        let method = self.method(find("kmeans"), find("tree"));
+        let method = self.method(method::METHODS.iter().filter_map(|w| find(w)).collect());
         let ks: Option<Vec<usize>> = method.as_ref().map(|m| match m {
             MethodPlan::KMeans(k) => k.ks.clone(),
             MethodPlan::Tree(t) => t.ks.clone(),
+            MethodPlan::KMedoids(m) => m.ks.clone(),
+            MethodPlan::KPrototypes(p) => p.ks.clone(),
         });
+        if let Some(m) = &method {
+            self.method_limits(stmts, m);
+        }
         let choose = self.choose(find("choose"), ks.as_deref());
         let floor = self.floor(find("choose"));
         let previous = self.previous_against(

@@ -150,7 +150,10 @@ impl Checker {
         if !FORMATS.contains(&model.format.as_str()) {
             self.err(unfit(
                 format!("its format is `{}`", model.format),
-                &format!("this assort reads {}", FORMATS.join(" and ")),
+                &format!(
+                    "this assort reads {}",
+                    crate::text::and_list(&FORMATS.map(String::from))
+                ),
             ));
             return None;
         }

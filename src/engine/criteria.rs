@@ -100,6 +100,14 @@ pub fn davies_bouldin(data: ArrayView2<'_, f64>, labels: &[u32], k: usize) -> f6
     for (s, &m) in scatter.iter_mut().zip(&n_of) {
         *s /= m.max(1) as f64;
     }
+    davies_bouldin_from(&scatter, |i, j| dist2(&c[i], &c[j]).sqrt())
+}
+
+/// Davies-Bouldin from each segment's scatter (mean distance of its
+/// records to its centre) and the separation of two segments' centres,
+/// for methods with their own measure (medoids, prototypes).
+pub fn davies_bouldin_from(scatter: &[f64], separation: impl Fn(usize, usize) -> f64) -> f64 {
+    let k = scatter.len();
     let mut total = 0.0;
     for i in 0..k {
         let mut worst = 0.0f64;
@@ -107,7 +115,7 @@ pub fn davies_bouldin(data: ArrayView2<'_, f64>, labels: &[u32], k: usize) -> f6
             if i == j {
                 continue;
             }
-            let sep = dist2(&c[i], &c[j]).sqrt();
+            let sep = separation(i, j);
             let ratio = if sep == 0.0 {
                 f64::INFINITY
             } else {
@@ -118,6 +126,18 @@ pub fn davies_bouldin(data: ArrayView2<'_, f64>, labels: &[u32], k: usize) -> f6
         total += worst;
     }
     total / k as f64
+}
+
+/// Calinski-Harabasz on a method's own objective: `total` its value for
+/// all records as one segment, `within` at k segments; `((T - W) / (k - 1))
+/// / (W / (n - k))`. For k-means (within-cluster sum of squares) this is
+/// the index itself; for k-medoids the total deviation, for k-prototypes
+/// the total cost take its place.
+pub fn calinski_harabasz_from(total: f64, within: f64, n: usize, k: usize) -> f64 {
+    if within == 0.0 {
+        return f64::INFINITY;
+    }
+    ((total - within) / (k as f64 - 1.0)) / (within / (n as f64 - k as f64))
 }
 
 /// Silhouette computed the slow, obvious way from a full distance matrix:

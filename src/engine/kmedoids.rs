@@ -118,6 +118,28 @@ pub fn kmedoids(m: &Condensed, s: &KMedoidsSettings) -> Result<KMedoidsFit, Engi
     })
 }
 
+/// Each segment's medoid: the member with the least total dissimilarity to
+/// the segment's other members, ties to the first in the file. O(Σ n_s²).
+pub fn medoids_of(m: &Condensed, labels: &[u32], k: usize) -> Vec<usize> {
+    let mut members: Vec<Vec<usize>> = vec![Vec::new(); k];
+    for (i, &l) in labels.iter().enumerate() {
+        members[l as usize].push(i);
+    }
+    members
+        .par_iter()
+        .map(|own| {
+            let mut best = (f64::INFINITY, usize::MAX);
+            for &i in own {
+                let total: f64 = own.iter().map(|&j| m.get(i, j)).sum();
+                if total < best.0 {
+                    best = (total, i);
+                }
+            }
+            best.1
+        })
+        .collect()
+}
+
 /// Each record's nearest medoid (an index into `medoids`), ties to the
 /// first in `medoids`. O(n k).
 pub fn assign(m: &Condensed, medoids: &[usize]) -> Vec<u32> {

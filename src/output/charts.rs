@@ -135,7 +135,14 @@ fn range(values: impl Iterator<Item = f64>) -> (f64, f64) {
 pub fn criteria(o: &Outcome) -> Chart {
     type Pick = fn(&crate::run::SweepRow) -> Option<f64>;
     let mut panels: Vec<(&str, Pick)> = vec![
-        ("within SS (lower fits closer)", |r| Some(r.within_ss)),
+        (
+            if o.plan.own_measure() {
+                "within (lower fits closer)"
+            } else {
+                "within SS (lower fits closer)"
+            },
+            |r| Some(r.within_ss),
+        ),
         ("silhouette (higher is better)", |r| Some(r.silhouette)),
         ("Calinski-Harabasz (higher)", |r| Some(r.calinski_harabasz)),
         ("Davies-Bouldin (lower)", |r| Some(r.davies_bouldin)),

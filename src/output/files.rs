@@ -500,6 +500,10 @@ struct JsonProfile<'a> {
     brief: Option<&'a str>,
     #[serde(skip_serializing_if = "Option::is_none")]
     action: Option<&'a str>,
+    /// The key of the segment's medoid, a typical member (k-medoids, trees
+    /// on Gower's dissimilarity).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    typical_member: Option<&'a str>,
     size: usize,
     share: f64,
     silhouette: Option<f64>,
@@ -519,6 +523,7 @@ fn json_profile<'a>(p: &'a Profile, o: &'a Outcome) -> JsonProfile<'a> {
         label: p.label.as_deref(),
         brief: note.map(|n| n.text.as_str()),
         action: note.and_then(|n| n.action.as_deref()),
+        typical_member: p.medoid.as_deref(),
         size: p.size,
         share: p.share,
         silhouette: p.silhouette,

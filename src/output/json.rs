@@ -96,6 +96,7 @@ pub fn run(o: &Outcome, written: &[String]) -> Value {
             "share": p.share,
             "silhouette": p.silhouette,
             "stability": p.stability,
+            "typical_member": p.medoid,
             "means": p.features.iter().map(|f| f.mean).collect::<Vec<_>>(),
             "medians": p.features.iter().map(|f| f.median).collect::<Vec<_>>(),
             "quartiles": p.features.iter().map(|f| [f.q1, f.q3]).collect::<Vec<_>>(),

@@ -126,18 +126,7 @@ pub fn render(o: &Outcome, sources: &Sources<'_>) -> Vec<u8> {
 
 /// The method in words: "k-means (50 restarts per k)".
 fn method_words(method: &MethodPlan) -> String {
-    match method {
-        MethodPlan::KMeans(k) => format!("k-means ({} restarts per k)", k.restarts),
-        MethodPlan::Tree(t) => format!(
-            "an agglomerative tree ({} linkage, {} distance{})",
-            t.linkage.name(),
-            t.distance.name(),
-            t.micro
-                .as_ref()
-                .map(|m| format!(", over {} k-means micro-segments", m.segments))
-                .unwrap_or_default()
-        ),
-    }
+    method.words()
 }
 
 fn how(h: &mut String, o: &Outcome) {
@@ -255,7 +244,8 @@ fn why(h: &mut String, o: &Outcome) {
 /// The sweep as a table: a row per k, the chosen one marked, with the
 /// restarts that reached the best partition and the smallest segment.
 fn sweep_table(h: &mut String, o: &Outcome) {
-    let _ = write!(h, "<table><tr><th>k</th><th>within SS</th><th>silhouette</th><th>Calinski-Harabasz</th><th>Davies-Bouldin</th>");
+    let within = super::tables::within_name(o);
+    let _ = write!(h, "<table><tr><th>k</th><th>{within}</th><th>silhouette</th><th>Calinski-Harabasz</th><th>Davies-Bouldin</th>");
     let gap = o.sweep.iter().any(|r| r.gap.is_some());
     let stab = o.sweep.iter().any(|r| r.stability.is_some());
     if gap {
@@ -351,6 +341,13 @@ fn cards(h: &mut String, o: &Outcome, noun: &str, changes: Option<&super::change
         }
         if let Some(line) = changes.and_then(|c| since_line(c, o, seg, noun)) {
             let _ = write!(h, "<p class=\"small\">{line}</p>\n");
+        }
+        if let Some(key) = &p.medoid {
+            let _ = write!(
+                h,
+                "<p class=\"small\">A typical member of this segment (its medoid): <code>{}</code></p>\n",
+                esc(key)
+            );
         }
         for v in &o.values {
             let _ = write!(h, "<p>{}</p>\n", value_line(o, v, i, noun));

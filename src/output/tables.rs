@@ -241,6 +241,60 @@ pub fn profiles_report(o: &Outcome) -> String {
     s
 }
 
+/// What the sweep's columns mean for a method with its own measure.
+pub const OWN_MEASURE_WORDS: &str = "judged on the method's own measure: the within column is its objective (total dissimilarity to the medoids, or the total cost against the prototypes), Calinski-Harabasz compares it with all records as one segment, Davies-Bouldin and the silhouette use the same dissimilarity";
+
+/// The tree's header lines in the sweep: its linkage, distance and leaves,
+/// the cophenetic correlation and any inversions.
+fn tree_header(s: &mut String, t: &crate::run::TreeResult) {
+    let over = if t.two_stage {
+        format!(
+            "over {} k-means micro-segments (weighted by size)",
+            t.leaves
+        )
+    } else {
+        format!("over {} records", t.leaves)
+    };
+    let _ = writeln!(
+        s,
+        "tree sweep: {} linkage, {}, {over}",
+        t.linkage.name(),
+        t.distance.words()
+    );
+    let mut line = format!("cophenetic correlation {:.4}", t.cophenetic);
+    if t.cophenetic_leaves < t.leaves {
+        let _ = write!(
+            line,
+            " (estimated over the pairs of {} sampled records)",
+            t.cophenetic_leaves
+        );
+    }
+    if t.inversions > 0 {
+        let _ = write!(line, "; {} inversions (merges lower than the one before: the tree is not monotone, so heights do not order the cuts)", t.inversions);
+    }
+    wrapped(s, "  ", &line);
+}
+
+/// The sweep's objective column: the within-cluster sum of squares, or a
+/// method's own objective.
+pub fn within_name(o: &Outcome) -> &'static str {
+    if o.plan.own_measure() {
+        "within"
+    } else {
+        "within SS"
+    }
+}
+
+/// The method's statement word.
+fn method_name(m: &MethodPlan) -> &'static str {
+    match m {
+        MethodPlan::KMeans(_) => "k-means",
+        MethodPlan::KMedoids(_) => "k-medoids",
+        MethodPlan::KPrototypes(_) => "k-prototypes",
+        MethodPlan::Tree(_) => "tree",
+    }
+}
+
 fn sweep(s: &mut String, o: &Outcome) {
     match (&o.plan.method, &o.tree) {
         (MethodPlan::KMeans(km), _) => {
@@ -254,35 +308,20 @@ fn sweep(s: &mut String, o: &Outcome) {
                 km.restarts, o.plan.seed
             );
         }
-        (MethodPlan::Tree(_), Some(t)) => {
-            let over = if t.two_stage {
-                format!(
-                    "over {} k-means micro-segments (weighted by size)",
-                    t.leaves
-                )
-            } else {
-                format!("over {} records", t.leaves)
-            };
+        (MethodPlan::Tree(_), Some(t)) => tree_header(s, t),
+        (MethodPlan::Tree(_), None) => {}
+        (m, _) => {
             let _ = writeln!(
                 s,
-                "tree sweep: {} linkage, {} distance, {over}",
-                t.linkage.name(),
-                t.distance.name()
+                "{} sweep: {}, seed {}",
+                method_name(m),
+                m.words(),
+                o.plan.seed
             );
-            let mut line = format!("cophenetic correlation {:.4}", t.cophenetic);
-            if t.cophenetic_leaves < t.leaves {
-                let _ = write!(
-                    line,
-                    " (estimated over the pairs of {} sampled records)",
-                    t.cophenetic_leaves
-                );
-            }
-            if t.inversions > 0 {
-                let _ = write!(line, "; {} inversions (merges lower than the one before: the tree is not monotone, so heights do not order the cuts)", t.inversions);
-            }
-            wrapped(s, "  ", &line);
         }
-        (MethodPlan::Tree(_), None) => {}
+    }
+    if o.plan.own_measure() {
+        wrapped(s, "  ", OWN_MEASURE_WORDS);
     }
     sweep_table(s, o);
     let sampled = o
@@ -330,7 +369,7 @@ fn sweep(s: &mut String, o: &Outcome) {
 fn sweep_table(s: &mut String, o: &Outcome) {
     type Cell = fn(&crate::run::SweepRow) -> String;
     let mut columns: Vec<(&str, usize, Cell)> = vec![
-        ("within SS", 12, |r| format!("{:.3}", r.within_ss)),
+        (within_name(o), 12, |r| format!("{:.3}", r.within_ss)),
         ("C-H", 10, |r| format!("{:.2}", r.calinski_harabasz)),
         ("D-B", 8, |r| format!("{:.4}", r.davies_bouldin)),
     ];

@@ -3,53 +3,73 @@
 //! tree cut at every k). A new method plugs in here: it returns
 //! [`Candidate`]s, and every later stage takes them as they are.
 
+use super::measure::Measure;
+use super::mixed;
+use super::prepare::Prepared;
 use super::{
     error::RunError, load, previous, Restarts, Step, TreeResult, COPHENETIC_SAMPLE,
     COPHENETIC_STREAM,
 };
+use crate::engine::matrix::Condensed;
 use crate::engine::{criteria, kmeans, tree, EngineError};
-use crate::plan::{KMeansPlan, MethodPlan, Plan, TreePlan};
+use crate::plan::{Distance, KMeansPlan, MethodPlan, Plan, TreePlan};
 use ndarray::{Array2, ArrayView2};
 
-/// What the fit stage found: a candidate per k, and the tree for `tree`
-/// recipes.
+/// What the fit stage found: a candidate per k, the tree for `tree`
+/// recipes, and the measure the method compares records by (with the
+/// matrix of every pair, for methods that hold one).
 pub(super) struct Fitted {
     pub candidates: Vec<Candidate>,
     pub tree: Option<TreeResult>,
+    pub measure: Measure,
+    pub matrix: Option<Condensed>,
+    /// Pairs of records that shared no column (Gower's dissimilarity).
+    pub apart: usize,
+}
+
+impl Fitted {
+    fn of(candidates: Vec<Candidate>, tree: Option<TreeResult>) -> Fitted {
+        Fitted {
+            candidates,
+            tree,
+            measure: Measure::Euclidean,
+            matrix: None,
+            apart: 0,
+        }
+    }
 }
 
 /// Fits the plan's method at every k it asks for.
 pub(super) fn fit(
     plan: &Plan,
-    x: ArrayView2<'_, f64>,
+    prepared: &Prepared,
     table: &load::Table,
-    kept: &[usize],
     last: Option<&previous::PreviousRun>,
     progress: &dyn Fn(Step),
 ) -> Result<Fitted, RunError> {
+    let x = prepared.matrix.view();
     match &plan.method {
-        MethodPlan::KMeans(km) => Ok(Fitted {
-            candidates: fit_kmeans(plan, km, x, last, progress)?,
-            tree: None,
-        }),
+        MethodPlan::KMeans(km) => Ok(Fitted::of(fit_kmeans(plan, km, x, last, progress)?, None)),
+        MethodPlan::KMedoids(km) => mixed::fit_kmedoids(plan, km, prepared, progress),
+        MethodPlan::KPrototypes(kp) => mixed::fit_kprototypes(plan, kp, prepared, progress),
         MethodPlan::Tree(t) => {
             progress(Step {
                 what: "building the tree",
                 done: 0,
                 total: 1,
             });
-            let (candidates, tree) = fit_tree(plan, t, x, table, kept)?;
-            Ok(Fitted {
-                candidates,
-                tree: Some(tree),
-            })
+            if t.distance == Distance::Gower {
+                return mixed::fit_gower_tree(plan, t, prepared, table);
+            }
+            let (candidates, tree) = fit_tree(plan, t, x, table, &prepared.kept)?;
+            Ok(Fitted::of(candidates, Some(tree)))
         }
     }
 }
 
 /// An engine error as the run reports it: a stop on request is no fault
 /// of the data.
-fn engine_error(k: usize, source: EngineError) -> RunError {
+pub(super) fn engine_error(k: usize, source: EngineError) -> RunError {
     match source {
         EngineError::Stopped => RunError::Stopped {
             during: "while fitting k-means",
@@ -65,6 +85,10 @@ pub(super) struct Candidate {
     pub labels: Vec<u32>,
     pub centres: Array2<f64>,
     pub restarts: Option<Restarts>,
+    /// For methods whose segments centre on a record (k-medoids, a tree
+    /// on Gower's dissimilarity): each segment's medoid, as its place
+    /// among the kept records.
+    pub medoids: Option<Vec<usize>>,
 }
 
 impl Candidate {
@@ -79,6 +103,10 @@ impl Candidate {
             labels: self.labels.iter().map(|&l| new_of[l as usize]).collect(),
             centres: self.centres.select(ndarray::Axis(0), order),
             restarts: self.restarts.clone(),
+            medoids: self
+                .medoids
+                .as_ref()
+                .map(|m| order.iter().map(|&s| m[s]).collect()),
         }
     }
 }
@@ -121,6 +149,7 @@ fn fit_kmeans(
                 }),
                 labels: fit.labels,
                 centres: fit.centroids,
+                medoids: None,
             })
         })
         .collect()
@@ -187,7 +216,7 @@ pub(super) fn build_tree(
             let mut sizes = vec![0usize; m.segments];
             fit.labels.iter().for_each(|&l| sizes[l as usize] += 1);
             let tree =
-                tree::linkage_weighted(fit.centroids.view(), Some(&sizes), t.linkage, t.distance)
+                tree::linkage_weighted(fit.centroids.view(), Some(&sizes), t.linkage, metric_of(t))
                     .map_err(engine)?;
             Ok(BuiltTree {
                 tree,
@@ -196,12 +225,37 @@ pub(super) fn build_tree(
             })
         }
         None => Ok(BuiltTree {
-            tree: tree::linkage(x, t.linkage, t.distance)
+            tree: tree::linkage(x, t.linkage, metric_of(t))
                 .map_err(|source| RunError::Engine { k: 1, source })?,
             leaf_of: None,
             leaves: x.to_owned(),
         }),
     }
+}
+
+/// The k a tree is cut at: the recipe's, or the number of segments a cut
+/// at its height leaves (at least 2, or the height is too high).
+pub(super) fn ks_of_cut(t: &TreePlan, tree: &tree::Dendrogram) -> Result<Vec<usize>, RunError> {
+    let Some(h) = t.height else {
+        return Ok(t.ks.clone());
+    };
+    let k = tree
+        .cut_at_height(h)
+        .iter()
+        .copied()
+        .max()
+        .map_or(1, |m| m as usize + 1);
+    if k < 2 {
+        let top = tree.merges.last().map_or(0.0, |m| m.height);
+        return Err(RunError::HeightTooHigh { height: h, top });
+    }
+    Ok(vec![k])
+}
+
+/// The row distance of a tree not on Gower's dissimilarity (which the fit
+/// routes elsewhere).
+fn metric_of(t: &TreePlan) -> tree::Metric {
+    t.distance.metric().unwrap_or(tree::Metric::Euclidean)
 }
 
 /// Builds one tree and cuts it at every k.
@@ -213,24 +267,7 @@ fn fit_tree(
     kept: &[usize],
 ) -> Result<(Vec<Candidate>, TreeResult), RunError> {
     let built = build_tree(t, x, plan.seed)?;
-    let ks = match t.height {
-        Some(h) => {
-            // The number of segments a cut at this height leaves.
-            let k = built
-                .tree
-                .cut_at_height(h)
-                .iter()
-                .copied()
-                .max()
-                .map_or(1, |m| m as usize + 1);
-            if k < 2 {
-                let top = built.tree.merges.last().map_or(0.0, |m| m.height);
-                return Err(RunError::HeightTooHigh { height: h, top });
-            }
-            vec![k]
-        }
-        None => t.ks.clone(),
-    };
+    let ks = ks_of_cut(t, &built.tree)?;
     let candidates = ks
         .iter()
         .map(|&k| {
@@ -245,6 +282,7 @@ fn fit_tree(
                 labels,
                 centres,
                 restarts: None,
+                medoids: None,
             }
         })
         .collect();
@@ -259,7 +297,7 @@ fn fit_tree(
     };
     let (cophenetic, cophenetic_leaves) = built.tree.cophenetic_estimate(
         built.leaves.view(),
-        t.distance,
+        metric_of(t),
         COPHENETIC_SAMPLE,
         plan.seed,
         COPHENETIC_STREAM,

@@ -5,11 +5,14 @@
 //! the criteria and advice on restarts in words.
 
 use super::fit::{build_tree, Candidate};
+use super::measure::{Decoded, Layout, Measure};
 use super::{error::RunError, go_on, Step, SweepRow, RESTART_ADVICE_SHARE, SILHOUETTE_STREAM};
+use crate::engine::matrix::Condensed;
 use crate::engine::{criteria, evidence, kmeans, silhouette};
 use crate::plan::{ChooseK, Criterion, MethodPlan, Plan, SilhouetteMode, SizeFloor, TreePlan};
 use crate::text::thousands;
 use ndarray::ArrayView2;
+use rayon::prelude::*;
 
 /// What the judge stage found.
 pub(super) struct Judged {
@@ -31,13 +34,15 @@ pub(super) struct Judged {
 }
 
 /// Measures every candidate, gathers the evidence asked for and chooses k.
+/// `own`: the method's own measure, for methods judged on it.
 pub(super) fn judge(
     plan: &Plan,
     x: ArrayView2<'_, f64>,
     candidates: &[Candidate],
+    own: Option<&Own<'_>>,
     progress: &dyn Fn(Step),
 ) -> Result<Judged, RunError> {
-    let measured = measure_each_k(plan, x, candidates, progress)?;
+    let measured = measure_each_k(plan, x, candidates, own, progress)?;
     let mut sweep = measured.sweep;
     let (gaps, stability) = gather_evidence(plan, x, candidates, &mut sweep, progress);
     go_on("while gathering the evidence for k")?;
@@ -153,6 +158,7 @@ fn measure_each_k(
     plan: &Plan,
     x: ArrayView2<'_, f64>,
     candidates: &[Candidate],
+    own: Option<&Own<'_>>,
     progress: &dyn Fn(Step),
 ) -> Result<Measured, RunError> {
     let mut out = Measured {
@@ -167,6 +173,13 @@ fn measure_each_k(
             total: candidates.len(),
         });
         go_on("while judging each k")?;
+        if let Some(own) = own {
+            let (row, sil) = own.judge(plan, c);
+            out.sweep.push(row);
+            out.per_segment_silhouette.push(sil.per_segment);
+            out.silhouette_values.push(sil.values);
+            continue;
+        }
         let k = c.k;
         let sil = match plan.evidence.silhouette {
             SilhouetteMode::Exact => silhouette::exact(x, &c.labels, k),
@@ -192,6 +205,91 @@ fn measure_each_k(
         out.silhouette_values.push(sil.values);
     }
     Ok(out)
+}
+
+/// A method's own measure, for judging its candidates on it: the
+/// prepared records decoded, the matrix of every pair when the method
+/// holds one, and the centre of all records as one segment (the overall
+/// medoid, or the overall means and modes).
+pub(super) struct Own<'a> {
+    pub measure: &'a Measure,
+    pub layout: Layout,
+    pub x: Decoded<'a>,
+    pub matrix: Option<&'a Condensed>,
+    pub overall: ndarray::Array2<f64>,
+}
+
+impl Own<'_> {
+    /// One row of the sweep on the method's own measure: the objective
+    /// (total deviation or cost) in place of the within-cluster sum of
+    /// squares, Calinski-Harabasz on that objective, Davies-Bouldin with
+    /// the segments' centres (medoids, prototypes) and the measure's
+    /// distance, and the silhouette over that distance.
+    fn judge(&self, plan: &Plan, c: &Candidate) -> (SweepRow, silhouette::Silhouette) {
+        let k = c.k;
+        let n = self.x.len();
+        let centres = Decoded::new(c.centres.view(), &self.layout);
+        let overall = Decoded::new(self.overall.view(), &self.layout);
+        let m = self.measure;
+        let costs: Vec<(f64, f64, f64)> = (0..n)
+            .into_par_iter()
+            .map(|i| {
+                let own = c.labels[i] as usize;
+                (
+                    m.cost(&self.x, i, &centres, own),
+                    m.distance(&self.x, i, &centres, own),
+                    m.cost(&self.x, i, &overall, 0),
+                )
+            })
+            .collect();
+        let within: f64 = costs.iter().map(|c| c.0).sum();
+        let total: f64 = costs.iter().map(|c| c.2).sum();
+        let mut scatter = vec![0.0; k];
+        let mut sizes = vec![0usize; k];
+        for (&l, cost) in c.labels.iter().zip(&costs) {
+            scatter[l as usize] += cost.1;
+            sizes[l as usize] += 1;
+        }
+        for (s, &size) in scatter.iter_mut().zip(&sizes) {
+            *s /= size.max(1) as f64;
+        }
+        let stream = SILHOUETTE_STREAM | k as u64;
+        let sil = match (self.matrix, plan.evidence.silhouette) {
+            (Some(mx), SilhouetteMode::Exact) => {
+                silhouette::exact_by(&|i, j| mx.get(i, j), &c.labels, k)
+            }
+            (Some(mx), _) => {
+                silhouette::silhouette_by(&|i, j| mx.get(i, j), &c.labels, k, plan.seed, stream)
+            }
+            (None, SilhouetteMode::Exact) => {
+                silhouette::exact_by(&|i, j| m.distance(&self.x, i, &self.x, j), &c.labels, k)
+            }
+            (None, _) => silhouette::silhouette_by(
+                &|i, j| m.distance(&self.x, i, &self.x, j),
+                &c.labels,
+                k,
+                plan.seed,
+                stream,
+            ),
+        };
+        let row = SweepRow {
+            k,
+            within_ss: within,
+            silhouette: sil.mean,
+            silhouette_evaluated: sil.evaluated,
+            silhouette_se: sil.std_error,
+            calinski_harabasz: criteria::calinski_harabasz_from(total, within, n, k),
+            davies_bouldin: criteria::davies_bouldin_from(&scatter, |s, t| {
+                m.distance(&centres, s, &centres, t)
+            }),
+            restarts: c.restarts.clone(),
+            gap: None,
+            stability: None,
+            smallest: sizes.iter().copied().min().unwrap_or(0),
+            below_floor: false,
+        };
+        (row, sil)
+    }
 }
 
 /// Evidence that reclusters (reference sets for the gap statistic,
@@ -457,6 +555,11 @@ fn reclusterer(plan: &Plan) -> Box<evidence::Recluster<'static>> {
                     Ok(built) => ks.iter().map(|&k| built.cut(k)).collect(),
                     Err(_) => ks.iter().map(|_| fallback()).collect(),
                 },
+                // The checker refuses reclustering evidence for methods
+                // with their own measure.
+                MethodPlan::KMedoids(_) | MethodPlan::KPrototypes(_) => {
+                    ks.iter().map(|_| fallback()).collect()
+                }
             }
         },
     )

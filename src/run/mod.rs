@@ -10,6 +10,8 @@ pub mod error;
 mod fit;
 mod judge;
 pub mod load;
+pub mod measure;
+mod mixed;
 pub mod model;
 mod number;
 pub mod prepare;
@@ -85,7 +87,7 @@ pub struct Restarts {
 #[derive(Debug, Clone)]
 pub struct TreeResult {
     pub linkage: crate::plan::Linkage,
-    pub distance: crate::plan::Metric,
+    pub distance: crate::plan::Distance,
     /// Records, or micro-segments in the micro-segment route.
     pub leaves: usize,
     pub two_stage: bool,
@@ -212,6 +214,10 @@ pub struct Profile {
     pub silhouette: Option<f64>,
     /// Mean Jaccard recovery under bootstrap resampling, when asked for.
     pub stability: Option<f64>,
+    /// The key of the segment's medoid, a typical member (k-medoids, and
+    /// trees on Gower's dissimilarity).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub medoid: Option<String>,
 }
 
 /// How the segments compare with a known grouping.
@@ -265,6 +271,9 @@ pub struct Outcome {
     pub values: Vec<values::ValueProfile>,
     /// Each segment's readable rule, in profile order.
     pub rules: Vec<rules::SegmentRule>,
+    /// How the method compares a record with a segment's centre; the
+    /// model scores new records by it.
+    pub measure: measure::Measure,
 }
 
 /// Runs a plan.
@@ -366,14 +375,15 @@ pub fn run_with(
     enough_records(plan, prepared.kept.len())?;
     let x = prepared.matrix.view();
     let last = previous::PreviousRun::read_if(plan, &prepared)?;
-    let fitted = fit::fit(plan, x, table, &prepared.kept, last.as_ref(), progress)?;
+    let fitted = fit::fit(plan, &prepared, table, last.as_ref(), progress)?;
     go_on("after fitting")?;
-    let mut judged = judge::judge(plan, x, &fitted.candidates, progress)?;
+    let own = mixed::own(plan, &prepared, &fitted);
+    let mut judged = judge::judge(plan, x, &fitted.candidates, own.as_ref(), progress)?;
     let chosen = &fitted.candidates[judged.at];
     let numbered = number::number(plan, chosen, last.as_ref(), &prepared, table);
-    let assignments = number::place(&prepared, table, &numbered);
+    let assignments = number::place(&prepared, table, &numbered, &fitted.measure);
     let (profiles, overall) = profile::profiles(&prepared, table, &numbered, &judged);
-    let mut notes = profile::notes(&fitted.candidates, &judged, &profiles, prepared.kept.len());
+    let mut notes = profile::notes(&fitted, &judged, &profiles, prepared.kept.len());
     let categories: Vec<String> = plan.categories.iter().map(|c| c.column.clone()).collect();
     notes.extend(load::odd_space_notes(table, &categories));
     let against = comparison::against(plan, &assignments, &numbered, last.as_ref())?;
@@ -431,6 +441,7 @@ pub fn run_with(
         values,
         rules,
         prepared,
+        measure: fitted.measure,
     })
 }
 

@@ -19,7 +19,8 @@ use crate::engine::{drift, kmeans};
 use ndarray::{Array2, ArrayView2};
 use serde::{Deserialize, Serialize};
 
-pub use crate::plan::{MODEL_FORMAT, MODEL_FORMATS_READ};
+use super::measure::{Decoded, Layout, Measure};
+pub use crate::plan::{MODEL_FORMAT, MODEL_FORMATS_READ, MODEL_FORMAT_MEASURED};
 
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct SegmentModel {
@@ -45,6 +46,11 @@ pub struct SegmentModel {
     /// still looks like it (format 2 on).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub drift: Option<DriftReference>,
+    /// How new records are compared with the centres, when not by the
+    /// Euclidean distance (format 3): Gower's dissimilarity with the
+    /// training ranges, a row distance, or k-prototypes' cost.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub measure: Option<Measure>,
 }
 
 /// What the training data looked like, in the model's clustered space:
@@ -240,13 +246,34 @@ pub struct ModelSegment {
 pub fn from_outcome(o: &Outcome, input_sha256: String) -> SegmentModel {
     let method = match &o.plan.method {
         crate::plan::MethodPlan::KMeans(_) => "kmeans".to_string(),
+        crate::plan::MethodPlan::Tree(t) if t.distance == crate::plan::Distance::Gower => format!(
+            "tree ({} linkage on Gower's dissimilarity; new records go to the nearest segment medoid)",
+            t.linkage.name()
+        ),
         crate::plan::MethodPlan::Tree(t) => format!(
             "tree ({} linkage; new records go to the nearest segment mean)",
             t.linkage.name()
         ),
+        crate::plan::MethodPlan::KMedoids(m) => format!(
+            "kmedoids ({}; new records go to the nearest medoid)",
+            m.distance.words()
+        ),
+        crate::plan::MethodPlan::KPrototypes(_) => {
+            "kprototypes (new records go to the cheapest prototype)".to_string()
+        }
+    };
+    let measure = match &o.measure {
+        Measure::Euclidean => None,
+        own => Some(own.clone()),
     };
     SegmentModel {
-        format: MODEL_FORMAT.into(),
+        format: if measure.is_some() {
+            MODEL_FORMAT_MEASURED
+        } else {
+            MODEL_FORMAT
+        }
+        .into(),
+        measure,
         assort_version: env!("CARGO_PKG_VERSION").into(),
         provenance: Provenance {
             recipe: o.plan.name.clone(),
@@ -346,7 +373,19 @@ pub fn score(
         model.centres[s].get(f).copied().unwrap_or(0.0)
     });
     summary.drift = measure_drift(model, x.view(), expect_shift);
-    let nearest = kmeans::nearest_with_margin(x.view(), centres.view());
+    let nearest = match &model.measure {
+        None | Some(Measure::Euclidean) => kmeans::nearest_with_margin(x.view(), centres.view()),
+        Some(own) => {
+            let layout = Layout {
+                numbers: nf,
+                levels: model.categories.iter().map(|c| c.levels.len()).collect(),
+            };
+            own.nearest_with_margin(
+                &Decoded::new(x.view(), &layout),
+                &Decoded::new(centres.view(), &layout),
+            )
+        }
+    };
     let mut assignments = Assignments::with_capacity(kept.len());
     for (&r, (seg, distance, margin)) in kept.iter().zip(nearest) {
         assignments.push(Assignment {
@@ -622,7 +661,7 @@ pub fn read_model(path: &std::path::Path) -> Result<SegmentModel, RunError> {
             reason: format!(
                 "field `format` is `{}`, this assort reads {}",
                 model.format,
-                MODEL_FORMATS_READ.map(|f| format!("`{f}`")).join(" and ")
+                crate::text::and_list(&MODEL_FORMATS_READ.map(|f| format!("`{f}`")))
             ),
         });
     }
@@ -653,6 +692,9 @@ pub fn read_model(path: &std::path::Path) -> Result<SegmentModel, RunError> {
 /// distinct, one centre per segment, segment numbers distinct and from 1,
 /// the drift reference shaped like the features.
 fn inconsistency(m: &SegmentModel) -> Option<String> {
+    if let Some(reason) = measure_inconsistency(m) {
+        return Some(reason);
+    }
     if let Some(why) = m
         .features
         .iter()
@@ -709,6 +751,29 @@ fn inconsistency(m: &SegmentModel) -> Option<String> {
 }
 
 /// What is wrong with feature `i` of a model, if anything.
+/// A measure that does not fit the model's columns.
+fn measure_inconsistency(m: &SegmentModel) -> Option<String> {
+    let (nf, nc) = (m.features.len(), m.categories.len());
+    match &m.measure {
+        Some(Measure::Gower { gower }) => {
+            let shape = gower.weights.len() == nf + nc
+                && gower.ranges.len() == nf + nc
+                && gower.ranges[..nf].iter().all(|r| r.is_some_and(|r| r.is_finite() && r >= 0.0))
+                && gower.ranges[nf..].iter().all(Option::is_none);
+            let weights = gower.weights.iter().all(|w| w.is_finite() && *w > 0.0);
+            (!(shape && weights)).then(|| {
+                format!("field `measure` holds Gower ranges and weights that do not match the model's {nf} features and {nc} categories")
+            })
+        }
+        Some(Measure::Prototypes { gamma }) => {
+            (gamma.len() != nc || gamma.iter().any(|g| !g.is_finite() || *g <= 0.0)).then(|| {
+                format!("field `measure` holds {} category costs for the model's {nc} categories, or a cost that is not a number above 0", gamma.len())
+            })
+        }
+        _ => None,
+    }
+}
+
 fn feature_inconsistency((i, f): (usize, &FeatureParams)) -> Option<String> {
     let col = &f.column;
     let finite = [f.centre, f.divisor, f.multiplier]

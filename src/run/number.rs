@@ -4,6 +4,7 @@
 //! keeps that segment's number and, unless the recipe names it, its name.
 
 use super::fit::Candidate;
+use super::measure::{Decoded, Layout, Measure};
 use super::prepare::Prepared;
 use super::{load, previous, Assignment, Assignments};
 use crate::engine::kmeans;
@@ -81,10 +82,25 @@ pub(super) fn number(
 
 /// Every kept record's segment number, its distance to the segment's
 /// centre and how much nearer that centre is than the next.
-pub(super) fn place(prepared: &Prepared, table: &load::Table, numbered: &Numbered) -> Assignments {
+pub(super) fn place(
+    prepared: &Prepared,
+    table: &load::Table,
+    numbered: &Numbered,
+    measure: &Measure,
+) -> Assignments {
     let fit = &numbered.fit;
     let x = prepared.matrix.view();
-    let measured = kmeans::distance_and_margin(x, fit.centres.view(), &fit.labels);
+    let measured = match measure {
+        Measure::Euclidean => kmeans::distance_and_margin(x, fit.centres.view(), &fit.labels),
+        own => {
+            let layout = Layout::of(prepared);
+            own.distance_and_margin(
+                &Decoded::new(x, &layout),
+                &Decoded::new(fit.centres.view(), &layout),
+                &fit.labels,
+            )
+        }
+    };
     let mut assignments = Assignments::with_capacity(prepared.kept.len());
     for ((&r, &seg), &(distance, margin)) in prepared.kept.iter().zip(&fit.labels).zip(&measured) {
         assignments.push(Assignment {

@@ -4,7 +4,7 @@
 //! stability; and the notes the evidence calls for (a sampled fit, no
 //! structure, unstable segments).
 
-use super::fit::Candidate;
+use super::fit::Fitted;
 use super::judge::{Judged, NO_STRUCTURE};
 use super::number::Numbered;
 use super::prepare::{self, Prepared};
@@ -44,6 +44,10 @@ pub(super) fn profiles(
             );
             p.segment = Some(numbered.numbers[s]);
             p.label = numbered.label_at(s);
+            p.medoid = fit
+                .medoids
+                .as_ref()
+                .map(|m| table.keys.get(prepared.kept[m[s]]).to_string());
             p.stability = judged
                 .stability
                 .as_ref()
@@ -57,12 +61,19 @@ pub(super) fn profiles(
 /// What the evidence says beyond the choice: restarts on a sample, no
 /// cluster structure, unstable segments.
 pub(super) fn notes(
-    candidates: &[Candidate],
+    fitted: &Fitted,
     judged: &Judged,
     profiles: &[Profile],
     n: usize,
 ) -> Vec<String> {
+    let candidates = &fitted.candidates;
     let mut notes = Vec::new();
+    if fitted.apart > 0 {
+        notes.push(format!(
+            "{} pairs of records had no column with a value in both, so Gower's dissimilarity could not compare them; each such pair was taken as far apart as Gower allows (1)",
+            crate::text::thousands(fitted.apart)
+        ));
+    }
     if let Some(s) = candidates
         .iter()
         .find_map(|c| c.restarts.as_ref().and_then(|r| r.sampled))
@@ -203,5 +214,6 @@ fn profile(
         centre,
         silhouette,
         stability: None,
+        medoid: None,
     }
 }

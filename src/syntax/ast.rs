@@ -174,6 +174,15 @@ pub enum StatementKind {
     KMeans {
         options: Vec<OptionPair>,
     },
+    /// `kmedoids k ... [distance gower]`: k-medoids (FasterPAM).
+    KMedoids {
+        options: Vec<OptionPair>,
+    },
+    /// `kprototypes k ... [gamma g]`: k-prototypes for numbers and
+    /// categories.
+    KPrototypes {
+        options: Vec<OptionPair>,
+    },
     Tree {
         options: Vec<OptionPair>,
     },

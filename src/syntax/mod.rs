@@ -192,6 +192,12 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
         Rule::kmeans_stmt => StatementKind::KMeans {
             options: options_of(&rest, off),
         },
+        Rule::kmedoids_stmt => StatementKind::KMedoids {
+            options: options_of(&rest, off),
+        },
+        Rule::kprototypes_stmt => StatementKind::KPrototypes {
+            options: options_of(&rest, off),
+        },
         Rule::tree_stmt => StatementKind::Tree {
             options: options_of(&rest, off),
         },
@@ -470,6 +476,8 @@ pub fn shaping_statements(src: &str) -> Vec<String> {
                     | StatementKind::Scale { .. }
                     | StatementKind::Weight { .. }
                     | StatementKind::KMeans { .. }
+                    | StatementKind::KMedoids { .. }
+                    | StatementKind::KPrototypes { .. }
                     | StatementKind::Tree { .. }
                     | StatementKind::Choose { .. }
             )

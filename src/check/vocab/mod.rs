@@ -79,6 +79,16 @@ pub const STATEMENTS: &[StatementDoc] = &[
         example: "kmeans k 2..9 restarts 25",
     },
     StatementDoc {
+        word: "kmedoids",
+        summary: "the method: k-medoids, each segment around a real record, on Gower's dissimilarity for numbers and categories unless another distance is named",
+        example: "kmedoids k 2..8 restarts 10",
+    },
+    StatementDoc {
+        word: "kprototypes",
+        summary: "the method: k-prototypes, k-means for numbers and categories together (means and most common levels), for tables too large for a dissimilarity matrix",
+        example: "kprototypes k 2..8 restarts 10",
+    },
+    StatementDoc {
         word: "tree",
         summary: "the method: agglomerative clustering, one tree cut at every k",
         example: "tree linkage ward k 2..9",
@@ -221,17 +231,21 @@ pub const CALL_OPTIONS: &[OptionDoc] = &[
     },
 ];
 
+/// `k` and `restarts`, as every method with restarts takes them.
+const K_OPTION: OptionDoc = OptionDoc {
+    name: "k",
+    takes: "a whole number or a range such as `2..9`",
+    summary: "how many segments, or the range to try (required)",
+};
+const RESTARTS_OPTION: OptionDoc = OptionDoc {
+    name: "restarts",
+    takes: "a whole number",
+    summary: "independent starts per k; the best is kept (10 unless given)",
+};
+
 pub const KMEANS_OPTIONS: &[OptionDoc] = &[
-    OptionDoc {
-        name: "k",
-        takes: "a whole number or a range such as `2..9`",
-        summary: "how many segments, or the range to try (required)",
-    },
-    OptionDoc {
-        name: "restarts",
-        takes: "a whole number",
-        summary: "independent starts per k; the best is kept (10 unless given)",
-    },
+    K_OPTION,
+    RESTARTS_OPTION,
     OptionDoc {
         name: "rounds",
         takes: "a whole number",
@@ -254,6 +268,36 @@ pub const KMEANS_OPTIONS: &[OptionDoc] = &[
     },
 ];
 
+pub const KMEDOIDS_OPTIONS: &[OptionDoc] = &[
+    K_OPTION,
+    RESTARTS_OPTION,
+    OptionDoc {
+        name: "passes",
+        takes: "a whole number",
+        summary: "the most passes of swaps over the records per start (100 unless given; a few usually suffice)",
+    },
+    OptionDoc {
+        name: "distance",
+        takes: "`gower`, `euclidean`, `manhattan`, `cosine` or `correlation`",
+        summary: "how two records are compared (`gower` unless given)",
+    },
+];
+
+pub const KPROTOTYPES_OPTIONS: &[OptionDoc] = &[
+    K_OPTION,
+    RESTARTS_OPTION,
+    OptionDoc {
+        name: "rounds",
+        takes: "a whole number",
+        summary: "the most assign/update rounds per start (300 unless given)",
+    },
+    OptionDoc {
+        name: "gamma",
+        takes: "a number above 0",
+        summary: "what a category mismatch costs against the squared differences of the numbers (half the numbers' mean standard deviation unless given, Huang's suggestion)",
+    },
+];
+
 pub const TREE_OPTIONS: &[OptionDoc] = &[
     OptionDoc {
         name: "k",
@@ -272,8 +316,8 @@ pub const TREE_OPTIONS: &[OptionDoc] = &[
     },
     OptionDoc {
         name: "distance",
-        takes: "`euclidean`, `manhattan`, `cosine` or `correlation`",
-        summary: "how the distance between two records is measured (`euclidean` unless given)",
+        takes: "`euclidean`, `manhattan`, `cosine`, `correlation` or `gower`",
+        summary: "how the distance between two records is measured (`euclidean` unless given; `gower` for numbers and categories together)",
     },
     OptionDoc {
         name: "micro",
@@ -344,6 +388,8 @@ pub fn options_for(word: &str) -> &'static [OptionDoc] {
         "brief" => BRIEF_OPTIONS,
         "recipe" => RECIPE_OPTIONS,
         "kmeans" => KMEANS_OPTIONS,
+        "kmedoids" => KMEDOIDS_OPTIONS,
+        "kprototypes" => KPROTOTYPES_OPTIONS,
         "tree" => TREE_OPTIONS,
         "evidence" => EVIDENCE_OPTIONS,
         "choose" => CHOOSE_OPTIONS,
