@@ -315,6 +315,8 @@ pub struct KPrototypesPlan {
     pub ks: Vec<usize>,
     pub restarts: usize,
     pub rounds: usize,
+    /// Stop when a round lowers the total cost by no more than this share.
+    pub tolerance: f64,
     /// What a category mismatch costs; `None`: Huang's suggestion from the
     /// data (half the numbers' mean standard deviation).
     #[serde(skip_serializing_if = "Option::is_none")]

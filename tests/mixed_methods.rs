@@ -106,6 +106,7 @@ fn k_prototypes_recovers_planted_segments_that_one_hot_kmeans_blurs() {
         k: 4,
         restarts: 10,
         max_rounds: 100,
+        tolerance: 1e-6,
         seed: 7,
     };
     let fit = kprototypes(mixed, &settings).unwrap();

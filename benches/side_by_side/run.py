@@ -34,6 +34,8 @@ GENERATE = ROOT / "target" / "release" / "examples" / "bench_data"
 # A case named *_parquet reads the same data from a Parquet file that pyarrow
 # writes from the CSV (snappy, row groups of 128 Ki records), to set its time
 # beside the case of the same name read from CSV.
+# Cases whose recipe names `categories` read a file with four category
+# columns besides the numbers (bench_data's CATEGORIES argument).
 # Cases without a reference are measured on their own; sweep1m against
 # sweep1m_sampled also prints the within-SS each reaches at every k.
 CASES = {
@@ -54,6 +56,10 @@ CASES = {
                  "sweep k = 2..10, 10 restarts on a sample of 200,000, best 3 refined on every record"),
     "kmeans1m_parquet": (1_000_000, 16, "scale none\nkmeans k 8 restarts 1\n", None,
                          "kmeans1m with the same data read from Parquet (written by pyarrow, snappy)"),
+    "kprototypes1m": (1_000_000, 12, "categories c1, c2, c3, c4\nkprototypes k 8 restarts 3\n", None,
+                      "k-prototypes k = 8, 3 restarts, 12 numbers + 4 categories (no general-purpose reference)"),
+    "kmedoids20k": (20_000, 12, "categories c1, c2, c3, c4\nkmedoids k 8 restarts 3\n", None,
+                    "k-medoids on Gower, k = 8, 3 restarts, 12 numbers + 4 categories (no general-purpose reference)"),
     "ward100k": (100_000, 10, "scale none\ntree linkage ward k 8\n", None, "Ward tree, cut at 8 (reference cannot hold the matrix)"),
     "single100k": (100_000, 10, "scale none\ntree linkage single k 8\n", None, "single-linkage tree, cut at 8 (reference cannot hold the matrix)"),
 }
@@ -68,9 +74,10 @@ def prepare(cases):
     DATA.mkdir(parents=True, exist_ok=True)
     for name in cases:
         n, d = CASES[name][0], CASES[name][1]
-        csv = DATA / f"d{n}_{d}.csv"
+        cats = 4 if "categories" in CASES[name][2] else 0
+        csv = DATA / (f"d{n}_{d}.csv" if cats == 0 else f"d{n}_{d}_c{cats}.csv")
         if not csv.exists():
-            sh([str(GENERATE), str(csv), str(n), str(d)])
+            sh([str(GENERATE), str(csv), str(n), str(d), "7", str(cats)])
         data = csv
         if name.endswith("_parquet"):
             data = csv.with_suffix(".parquet")

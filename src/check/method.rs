@@ -176,6 +176,7 @@ impl Checker {
             ks: ks?,
             restarts: restarts?,
             rounds: rounds?,
+            tolerance: self.tolerance(&opts)?,
             gamma: gamma?,
         })
     }
@@ -254,14 +255,15 @@ impl Checker {
             }
         }
         let linkage = linkage.map(|(l, _)| l);
+        let gower = matches!(distance, Some((Distance::Gower, _)));
+        if gower {
+            self.gower_tree(&opts, s)?;
+        }
         let micro = match opts.get("micro") {
             None => None,
             Some(o) => Some(self.micro(&opts, o, ks.as_deref(), linkage)?),
         };
-        let gower = matches!(distance, Some((Distance::Gower, _)));
-        if gower {
-            self.gower_tree(&opts, s)?;
-        } else if let (None, Some(l)) = (&micro, linkage) {
+        if let (false, None, Some(l)) = (gower, &micro, linkage) {
             let limit = TreeLimit::of(l);
             if let Some(n) = self.records().filter(|&n| n > limit.records) {
                 self.err(CheckError::large_tree(n, l.name(), limit, s.keyword.span));
@@ -403,22 +405,7 @@ impl Checker {
             None => Some(None),
             Some(o) => self.sample(&opts, o, ks.as_deref()).map(Some),
         };
-        let tolerance = match opts.get("tolerance") {
-            None => Some(defaults::TOLERANCE),
-            Some(o) => match &o.value.node {
-                Value::Number(n) if n.value.is_finite() && n.value >= 0.0 => Some(n.value),
-                other => {
-                    self.bad_value(
-                        "tolerance",
-                        other,
-                        "a number, 0 or more",
-                        o.value.span,
-                        "for example `tolerance 1e-6`; 0 runs until no record moves",
-                    );
-                    None
-                }
-            },
-        };
+        let tolerance = self.tolerance(&opts);
         let seeding = self
             .word_option(
                 &opts,
@@ -438,6 +425,26 @@ impl Checker {
             seeding: seeding?,
             sample: sample?,
         })
+    }
+
+    /// The `tolerance` option of `kmeans` and `kprototypes`.
+    fn tolerance(&mut self, opts: &HashMap<&'static str, &OptionPair>) -> Option<f64> {
+        let Some(o) = opts.get("tolerance") else {
+            return Some(defaults::TOLERANCE);
+        };
+        match &o.value.node {
+            Value::Number(n) if n.value.is_finite() && n.value >= 0.0 => Some(n.value),
+            other => {
+                self.bad_value(
+                    "tolerance",
+                    other,
+                    "a number, 0 or more",
+                    o.value.span,
+                    "for example `tolerance 1e-6`; 0 runs until no record moves",
+                );
+                None
+            }
+        }
     }
 
     /// The `sample` option of `kmeans`: at least [`SMALLEST_SAMPLE`]

@@ -36,6 +36,11 @@
 //! changes no bit. The best restart has the lowest total cost, ties to the
 //! lower restart; segments are numbered canonically.
 //!
+//! # Stopping
+//! When no record moves, when a round lowers the total cost by no more
+//! than `tolerance` of it (large tables creep for hundreds of rounds with
+//! a handful of records trading places), or after `max_rounds` rounds.
+//!
 //! # Cost
 //! O(n k (p + c)) per round, O(n + k (p + L)) memory beyond the data (L the
 //! levels of all categories).
@@ -124,6 +129,9 @@ pub struct KPrototypesSettings {
     pub k: usize,
     pub restarts: usize,
     pub max_rounds: usize,
+    /// Stop when a round lowers the total cost by no more than this share
+    /// of it (0: only when no record moves).
+    pub tolerance: f64,
     pub seed: u64,
 }
 
@@ -175,7 +183,7 @@ pub fn kprototypes(
             }
             let stream = KPROTOTYPES_STREAM | ((s.k as u64) << 32) | r as u64;
             let start = seed(x, s.k, &mut Stream::new(s.seed, stream))?;
-            Ok(lloyd(x, start, s.max_rounds))
+            Ok(lloyd(x, start, s.max_rounds, s.tolerance))
         })
         .collect();
     let runs = runs.into_iter().collect::<Result<Vec<_>, _>>()?;
@@ -199,9 +207,14 @@ pub fn kprototypes_from(
     x: MixedRecords<'_>,
     start: Vec<Prototype>,
     max_rounds: usize,
+    tolerance: f64,
 ) -> Result<KPrototypesFit, EngineError> {
     let k = start.len();
-    finish(&lloyd(x, start, max_rounds), k, x.numbers.ncols())
+    finish(
+        &lloyd(x, start, max_rounds, tolerance),
+        k,
+        x.numbers.ncols(),
+    )
 }
 
 fn finish(run: &Run, k: usize, p: usize) -> Result<KPrototypesFit, EngineError> {
@@ -264,9 +277,16 @@ fn assign(x: MixedRecords<'_>, protos: &[Prototype]) -> (Vec<u32>, Vec<f64>) {
         .unzip()
 }
 
-/// Assign and update until no record moves or `max_rounds` updates.
-fn lloyd(x: MixedRecords<'_>, mut protos: Vec<Prototype>, max_rounds: usize) -> Run {
+/// Assign and update until no record moves, a round lowers the total cost
+/// by no more than `tolerance` of it, or `max_rounds` updates.
+fn lloyd(
+    x: MixedRecords<'_>,
+    mut protos: Vec<Prototype>,
+    max_rounds: usize,
+    tolerance: f64,
+) -> Run {
     let (mut labels, mut costs) = assign(x, &protos);
+    let mut total: f64 = costs.iter().sum();
     let mut rounds = 0;
     let mut converged = false;
     while rounds < max_rounds {
@@ -276,13 +296,15 @@ fn lloyd(x: MixedRecords<'_>, mut protos: Vec<Prototype>, max_rounds: usize) -> 
         let moved = next != labels;
         labels = next;
         costs = next_costs;
-        if !moved {
+        let before = total;
+        total = costs.iter().sum();
+        if !moved || before - total <= tolerance * before {
             converged = true;
             break;
         }
     }
     Run {
-        cost: costs.iter().sum(),
+        cost: total,
         labels,
         protos,
         rounds,
@@ -415,7 +437,7 @@ mod tests {
         };
         for starts in [[0usize, 1, 2, 3], [10, 11, 30, 31], [5, 9, 13, 400]] {
             let start: Vec<Prototype> = starts.iter().map(|&i| of_record(data, i)).collect();
-            let ours = kprototypes_from(data, start, 100).expect("four segments");
+            let ours = kprototypes_from(data, start, 100, 0.0).expect("four segments");
             let settings = KMeansSettings {
                 k: 4,
                 // Only the given start runs.
@@ -470,6 +492,7 @@ mod tests {
             k: 4,
             restarts: 4,
             max_rounds: 50,
+            tolerance: 1e-6,
             seed: 3,
         };
         let on = |threads| {

@@ -50,40 +50,55 @@ impl Layout {
     /// The category codes a prepared row holds: in each block, the level
     /// whose indicator is set; [`gower::GAP`] when none is (a level the
     /// training data did not have).
-    pub fn codes(&self, row: &[f64]) -> Vec<u32> {
+    pub fn decode(&self, row: &[f64], out: &mut [u32]) {
         let mut at = self.numbers;
-        self.levels
-            .iter()
-            .map(|&l| {
-                let block = &row[at..at + l];
-                at += l;
-                block
-                    .iter()
-                    .position(|&v| v != 0.0)
-                    .map_or(gower::GAP, |p| p as u32)
-            })
-            .collect()
+        for (&l, code) in self.levels.iter().zip(out) {
+            let block = &row[at..at + l];
+            at += l;
+            *code = block
+                .iter()
+                .position(|&v| v != 0.0)
+                .map_or(gower::GAP, |p| p as u32);
+        }
     }
 }
 
-/// Prepared rows with their category codes decoded once.
+/// Prepared rows with their category codes decoded once, record after
+/// record in one buffer.
 pub struct Decoded<'a> {
     pub x: ArrayView2<'a, f64>,
-    codes: Vec<Vec<u32>>,
+    codes: Vec<u32>,
+    categories: usize,
     numbers: usize,
 }
 
 impl<'a> Decoded<'a> {
     pub fn new(x: ArrayView2<'a, f64>, layout: &Layout) -> Decoded<'a> {
-        let codes = (0..x.nrows())
-            .into_par_iter()
-            .map(|i| layout.codes(&x.row(i).to_vec()))
-            .collect();
+        let categories = layout.levels.len();
+        let mut codes = vec![gower::GAP; x.nrows() * categories];
+        if categories > 0 {
+            codes
+                .par_chunks_mut(categories)
+                .enumerate()
+                .for_each(|(i, out)| {
+                    let row = x.row(i);
+                    match row.to_slice() {
+                        Some(r) => layout.decode(r, out),
+                        None => layout.decode(&row.to_vec(), out),
+                    }
+                });
+        }
         Decoded {
             x,
             codes,
+            categories,
             numbers: layout.numbers,
         }
+    }
+
+    /// Record `i`'s category codes.
+    fn codes(&self, i: usize) -> &[u32] {
+        &self.codes[i * self.categories..(i + 1) * self.categories]
     }
 
     pub fn len(&self) -> usize {
@@ -113,12 +128,12 @@ impl Measure {
             Measure::Euclidean => dist2(&ra, &rb),
             Measure::Rows { metric } => metric.distance(&ra, &rb),
             Measure::Gower { gower } => gower.between_values(
-                (&ra[..a.numbers], &a.codes[i]),
-                (&rb[..b.numbers], &b.codes[j]),
+                (&ra[..a.numbers], a.codes(i)),
+                (&rb[..b.numbers], b.codes(j)),
             ),
             Measure::Prototypes { gamma } => {
                 let mut c = dist2(&ra[..a.numbers], &rb[..b.numbers]);
-                for ((x, y), g) in a.codes[i].iter().zip(&b.codes[j]).zip(gamma) {
+                for ((x, y), g) in a.codes(i).iter().zip(b.codes(j)).zip(gamma) {
                     if x != y || *x == gower::GAP {
                         c += g;
                     }
@@ -212,10 +227,9 @@ pub fn mixed(x: &Decoded<'_>) -> Mixed {
     let mut columns: Vec<gower::Column> = (0..x.numbers)
         .map(|f| gower::Column::Interval(x.x.column(f).to_vec()))
         .collect();
-    let categories = x.codes.first().map_or(0, Vec::len);
-    for c in 0..categories {
+    for c in 0..x.categories {
         columns.push(gower::Column::Nominal(
-            x.codes.iter().map(|codes| codes[c]).collect(),
+            (0..x.len()).map(|i| x.codes(i)[c]).collect(),
         ));
     }
     // Every column has a value per record, so the lengths agree.

@@ -226,6 +226,7 @@ pub(super) fn fit_kprototypes(
             k,
             restarts: kp.restarts,
             max_rounds: kp.rounds,
+            tolerance: kp.tolerance,
             seed: plan.seed,
         };
         let fit =

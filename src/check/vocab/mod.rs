@@ -292,6 +292,11 @@ pub const KPROTOTYPES_OPTIONS: &[OptionDoc] = &[
         summary: "the most assign/update rounds per start (300 unless given)",
     },
     OptionDoc {
+        name: "tolerance",
+        takes: "a number at least 0",
+        summary: "stop when a round lowers the total cost by less than this share of it (1e-6 unless given; 0 runs until no record moves)",
+    },
+    OptionDoc {
         name: "gamma",
         takes: "a number above 0",
         summary: "what a category mismatch costs against the squared differences of the numbers (half the numbers' mean standard deviation unless given, Huang's suggestion)",
