@@ -440,7 +440,7 @@ fn score_summary(s: &run::model::ScoreSummary) -> String {
         (&s.filled, "values filled with the training fill value"),
         (
             &s.missing,
-            "records left out: a missing value and no fill rule in training",
+            "records left out: a missing value (or a blank category) and no rule to fill or keep it in training",
         ),
         (
             &s.not_numbers,

@@ -137,6 +137,23 @@ pub struct FeaturePlan {
 pub struct CategoryPlan {
     pub column: String,
     pub weight: f64,
+    /// What a blank value does (`missing keep` or `drop` for the column).
+    pub gaps: CategoryGaps,
+}
+
+/// What happens to a record whose category is blank.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, serde::Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum CategoryGaps {
+    /// No rule given: a blank stops the run with its location.
+    Refuse,
+    /// `missing drop`: the record is left out.
+    Drop,
+    /// `missing keep`: a blank is a level of its own, `(blank)` (what
+    /// every category did before blanks were gaps, so a model written
+    /// then reads as this).
+    #[default]
+    Keep,
 }
 
 /// What happens to a record whose value is missing in one column.
@@ -149,6 +166,9 @@ pub enum MissingRule {
     FillMedian,
     FillMean,
     FillValue(f64),
+    /// `missing keep`: for categories only (a blank is a level of its
+    /// own); the checker never gives it to a numeric feature.
+    Keep,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, serde::Deserialize)]

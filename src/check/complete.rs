@@ -254,14 +254,27 @@ fn after(statement: &str, toks: &[Placed<'_>], data: &DataView<'_>) -> Vec<Item>
         "tally" if list_place => cols(Wanted::Numeric),
         "call" if count == 1 => cols(Wanted::Any),
         "categories" if list_place => cols(Wanted::Text),
-        "missing" if count == 1 => [fixed("missing", "drop"), fixed("missing", "fill")].concat(),
+        "missing" if count == 1 => [
+            fixed("missing", "drop"),
+            fixed("missing", "keep"),
+            fixed("missing", "fill"),
+        ]
+        .concat(),
         "missing" if prev == Some("fill") => {
             [fixed("missing", "median"), fixed("missing", "mean")].concat()
         }
         "missing" if prev == Some("for") || (after_comma && listed.contains(&"for")) => {
-            cols(Wanted::Numeric)
+            // `keep` is for categories.
+            cols(if listed.contains(&"keep") {
+                Wanted::Text
+            } else {
+                Wanted::Numeric
+            })
         }
-        "missing" if !listed.contains(&"for") && (prev == Some("drop") || count == 3) => {
+        "missing"
+            if !listed.contains(&"for")
+                && (prev == Some("drop") || prev == Some("keep") || count == 3) =>
+        {
             fixed("missing", "for")
         }
         "scale" if count == 1 => words("scale", None),

@@ -30,6 +30,7 @@ impl Problem {
                     | CheckError::NoMethod { .. }
                     // A `missing` rule entered next settles it.
                     | CheckError::GapsWithoutRule { .. }
+                    | CheckError::CategoryGapsWithoutRule { .. }
             )
         )
     }
@@ -492,6 +493,32 @@ pub enum CheckError {
     #[diagnostic(code(assort::no_features), help("{help}"))]
     NoFeatures {
         #[label("selects nothing")]
+        span: Span,
+        help: String,
+    },
+
+    #[error(
+        "category `{column}` has {blanks} in the first {sampled} records, and no rule for them"
+    )]
+    #[diagnostic(
+        code(assort::category_gaps_without_rule),
+        help("say what a blank means: `missing keep for {column}` keeps it as a level of its own, `(blank)`; `missing drop for {column}` leaves such records out")
+    )]
+    CategoryGapsWithoutRule {
+        column: String,
+        blanks: String,
+        sampled: usize,
+        #[label("has blanks")]
+        span: Span,
+    },
+
+    #[error("`missing {rule}` does not apply to {kind} `{column}`")]
+    #[diagnostic(code(assort::rule_not_for_kind), help("{help}"))]
+    RuleNotForKind {
+        rule: String,
+        kind: &'static str,
+        column: String,
+        #[label("a {kind}")]
         span: Span,
         help: String,
     },

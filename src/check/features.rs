@@ -46,6 +46,7 @@ impl Checker {
                 out.push(CategoryPlan {
                     column: col.node.clone(),
                     weight: weight.unwrap_or(defaults::WEIGHT),
+                    gaps: CategoryGaps::Refuse,
                 });
             }
         }
@@ -368,6 +369,10 @@ impl Checker {
         let mut global_missing: Option<(MissingRule, Span)> = None;
         for r in rules {
             let Some(columns) = r.columns else {
+                // `missing keep` without `for` is for the categories.
+                if let Rule::Missing(MissingRule::Keep) = r.rule {
+                    continue;
+                }
                 // `missing` without `for`: every column.
                 if let (Rule::Missing(rule), None) = (r.rule, global_missing) {
                     global_missing = Some((rule, r.span));
@@ -385,6 +390,10 @@ impl Checker {
                 let Some(f) = self.feature_of(&mut plans, col, statement) else {
                     continue;
                 };
+                if let Rule::Missing(MissingRule::Keep) = r.rule {
+                    self.keep_for_number(col);
+                    continue;
+                }
                 if let Some(&first) = given.get(&(kind, col.node.clone())) {
                     self.err(CheckError::Conflict {
                         what: format!("{what} (`{}`)", col.node),
@@ -404,17 +413,18 @@ impl Checker {
                 }
             }
         }
-        // Gaps the sample already shows, with no rule to handle them: the
-        // run would stop at the first; say so now.
-        for (p, (_, span)) in plans.iter().zip(&features) {
+        self.gaps_without_rule(&plans, &features);
+        plans
+    }
+
+    /// Gaps the sample already shows in features with no rule to handle
+    /// them: the run would stop at the first; say so now.
+    fn gaps_without_rule(&mut self, plans: &[FeaturePlan], features: &[(String, Span)]) {
+        for (p, (_, span)) in plans.iter().zip(features) {
             if p.missing != MissingRule::Refuse {
                 continue;
             }
-            let blanks = self
-                .probe
-                .as_ref()
-                .and_then(|pr| pr.column(&p.column))
-                .map_or(0, |c| c.blanks);
+            let blanks = self.sample_blanks(&p.column);
             if blanks > 0 {
                 let sampled = self.probe.as_ref().map_or(0, |pr| pr.sampled);
                 self.err(CheckError::GapsWithoutRule {
@@ -425,7 +435,98 @@ impl Checker {
                 });
             }
         }
-        plans
+    }
+
+    /// Blank values of `column` in the input's sample.
+    fn sample_blanks(&self, column: &str) -> usize {
+        self.probe
+            .as_ref()
+            .and_then(|pr| pr.column(column))
+            .map_or(0, |c| c.blanks)
+    }
+
+    /// `missing keep` named for a number.
+    fn keep_for_number(&mut self, col: &Column) {
+        self.err(CheckError::RuleNotForKind {
+            rule: "keep".into(),
+            kind: "number",
+            column: col.node.clone(),
+            span: col.span,
+            help: format!("a number needs a value to be measured by: `missing fill median for {0}` fills a blank, `missing drop for {0}` leaves the record out; `keep` is for categories, where a blank can be a level of its own", col.node),
+        });
+    }
+
+    /// What a blank does in each category: the `missing` rule naming it
+    /// (`keep` or `drop`; a fill is for numbers), else a `missing keep` or
+    /// `missing drop` for every column; a category the sample shows blanks
+    /// in, with neither, is an error naming the fix.
+    pub(super) fn category_gaps(
+        &mut self,
+        rules: &[CheckedRule<'_>],
+        mut categories: Vec<CategoryPlan>,
+    ) -> Vec<CategoryPlan> {
+        let as_gaps = |m: MissingRule| match m {
+            MissingRule::DropRow => Some(CategoryGaps::Drop),
+            MissingRule::Keep => Some(CategoryGaps::Keep),
+            _ => None,
+        };
+        let mut named: HashMap<String, Span> = HashMap::new();
+        let mut global: Option<CategoryGaps> = None;
+        for r in rules {
+            let Rule::Missing(m) = r.rule else { continue };
+            let Some(columns) = r.columns else {
+                // `keep` is the categories' own word, so it wins over a
+                // `drop` for every column.
+                global = match (global, as_gaps(m)) {
+                    (_, Some(CategoryGaps::Keep)) => Some(CategoryGaps::Keep),
+                    (None, g) => g,
+                    (g, _) => g,
+                };
+                continue;
+            };
+            for col in columns {
+                let Some(c) = categories.iter_mut().find(|c| c.column == col.node) else {
+                    continue;
+                };
+                if let Some(&first) = named.get(&col.node) {
+                    self.err(CheckError::Conflict {
+                        what: format!("a missing-value rule for this column (`{}`)", col.node),
+                        span: col.span,
+                        first,
+                    });
+                    continue;
+                }
+                named.insert(col.node.clone(), col.span);
+                match as_gaps(m) {
+                    Some(g) => c.gaps = g,
+                    None => self.err(CheckError::RuleNotForKind {
+                        rule: "fill".into(),
+                        kind: "category",
+                        column: col.node.clone(),
+                        span: col.span,
+                        help: format!("a category has levels, not a middle to fill with: `missing keep for {0}` keeps a blank as a level of its own, `(blank)`; `missing drop for {0}` leaves the record out", col.node),
+                    }),
+                }
+            }
+        }
+        for c in categories.iter_mut() {
+            if !named.contains_key(&c.column) {
+                c.gaps = global.unwrap_or(CategoryGaps::Refuse);
+            }
+            if c.gaps != CategoryGaps::Refuse {
+                continue;
+            }
+            let blanks = self.sample_blanks(&c.column);
+            if let (true, Some(&span)) = (blanks > 0, self.category_spans.get(&c.column)) {
+                self.err(CheckError::CategoryGapsWithoutRule {
+                    column: c.column.clone(),
+                    blanks: crate::text::count(blanks, "blank value"),
+                    sampled: self.probe.as_ref().map_or(0, |pr| pr.sampled),
+                    span,
+                });
+            }
+        }
+        categories
     }
 
     /// Index of the feature `col` names, or a diagnostic.
@@ -443,7 +544,8 @@ impl Checker {
         self.known_column(col)?;
         let help = if self.category_spans.contains_key(&col.node) {
             match statement {
-                "missing" => format!("`{}` is a category column: a blank category is a level of its own, `(blank)`; `missing` rules are for the numeric columns listed in `features`", col.node),
+                // Its rule is the categories' own (see `category_gaps`).
+                "missing" => return None,
                 _ => format!("`{}` is a category column, whose weight is set by `categories {} weight ...`; `{statement}` is for the numeric columns listed in `features`", col.node, col.node),
             }
         } else {
@@ -463,6 +565,7 @@ impl Checker {
     pub(super) fn missing_rule(&mut self, action: &Spanned<MissingAction>) -> Option<MissingRule> {
         match &action.node {
             MissingAction::DropRows => Some(MissingRule::DropRow),
+            MissingAction::Keep => Some(MissingRule::Keep),
             MissingAction::Fill(v) => match &v.node {
                 Value::Number(n) if n.value.is_finite() => Some(MissingRule::FillValue(n.value)),
                 Value::Word(w) if w == "median" => Some(MissingRule::FillMedian),

@@ -38,11 +38,10 @@ pub fn fixes(problem: &Problem, text: &str) -> Vec<Fix> {
     };
     match e {
         CheckError::GapsWithoutRule { column, span, .. } => {
-            let column = super::complete::written_column(column);
-            ["fill median", "drop"]
-                .iter()
-                .map(|rule| add_line(text, span.start, &format!("missing {rule} for {column}")))
-                .collect()
+            missing_rules(text, column, *span, &["fill median", "drop"])
+        }
+        CheckError::CategoryGapsWithoutRule { column, span, .. } => {
+            missing_rules(text, column, *span, &["keep", "drop"])
         }
         CheckError::LargeTree { span, .. } => {
             let end = statement_end(text, span.start);
@@ -66,6 +65,15 @@ pub fn fixes(problem: &Problem, text: &str) -> Vec<Fix> {
             .into_iter()
             .collect(),
     }
+}
+
+/// A `missing RULE for COLUMN` line for each rule, the first preferred.
+fn missing_rules(text: &str, column: &str, span: Span, rules: &[&str]) -> Vec<Fix> {
+    let column = super::complete::written_column(column);
+    rules
+        .iter()
+        .map(|rule| add_line(text, span.start, &format!("missing {rule} for {column}")))
+        .collect()
 }
 
 /// A "did you mean" in the help, as a replacement of the problem's first

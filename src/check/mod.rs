@@ -472,6 +472,7 @@ impl Checker {
         );
         let display = self.display(stmts);
         let features = features.map(|f| self.feature_rules(&rules, f));
+        let categories = categories.map(|c| self.category_gaps(&rules, c));
         let scale = match find("scale") {
             Some(Statement {
                 kind: StatementKind::Scale { method },

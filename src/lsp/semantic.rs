@@ -37,8 +37,8 @@ pub fn legend() -> SemanticTokensLegend {
 }
 
 /// Words with a fixed place in a statement's shape.
-const FIXED: [&str; 10] = [
-    "all", "except", "for", "drop", "fill", "clip", "k", "by", "against", "with",
+const FIXED: [&str; 11] = [
+    "all", "except", "for", "drop", "keep", "fill", "clip", "k", "by", "against", "with",
 ];
 
 /// The tokens of a whole recipe, line by line (no token spans a line).

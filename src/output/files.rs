@@ -269,7 +269,10 @@ fn handoff(o: &Outcome) -> Csv {
     let why = |gaps: &[usize]| {
         let names: Vec<String> = gaps
             .iter()
-            .map(|&f| o.plan.features[f].column.clone())
+            .map(|&at| match o.plan.features.get(at) {
+                Some(f) => f.column.clone(),
+                None => o.plan.categories[at - o.plan.features.len()].column.clone(),
+            })
             .collect();
         let verb = if names.len() == 1 { "is" } else { "are" };
         format!("{} {verb} blank", crate::text::and_list(&names))

@@ -207,7 +207,7 @@ fn fill_words(o: &Outcome, f: usize) -> Option<String> {
         MissingRule::FillMedian => ", the median",
         MissingRule::FillMean => ", the mean",
         MissingRule::FillValue(_) => ", as the recipe says",
-        MissingRule::DropRow | MissingRule::Refuse => return None,
+        MissingRule::DropRow | MissingRule::Refuse | MissingRule::Keep => return None,
     };
     Some(format!(
         "{}{what}",

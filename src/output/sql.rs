@@ -240,6 +240,11 @@ fn dimensions(model: &SegmentModel) -> (Vec<String>, Vec<String>) {
         });
     }
     for (i, c) in model.categories.iter().enumerate() {
+        // A blank the recipe did not keep as a level is scored by no one,
+        // as `assort assign` leaves it out.
+        if c.gaps != crate::plan::CategoryGaps::Keep {
+            guards.push(format!("t{i} IS NOT NULL"));
+        }
         for level in &c.levels {
             let is = if level == BLANK_LEVEL {
                 format!("t{i} IS NULL")

@@ -62,6 +62,13 @@ pub enum RunError {
     )]
     MissingValue { place: Place },
 
+    #[error("{place}: category is blank and the recipe has no rule for blanks in `{}`", place.name)]
+    #[diagnostic(
+        code(assort::run::blank_category),
+        help("add `missing keep for {0}` to keep a blank as a level of its own, `(blank)`, or `missing drop for {0}` to leave such records out", place.name)
+    )]
+    BlankCategory { place: Place },
+
     #[error(
         "column `{column}` has no values at all, so there is nothing to compute a fill value from"
     )]

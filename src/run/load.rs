@@ -23,6 +23,8 @@ pub struct Table {
     pub numeric: Vec<NumericColumn>,
     /// The 1-based field number of each numeric column, for messages.
     pub fields: Vec<usize>,
+    /// The 1-based field number of each text column, for messages.
+    pub text_fields: Vec<usize>,
     /// One vector per text column asked for, spaces trimmed
     /// ([`crate::text::trim_spaces`]).
     pub text: Vec<Vec<String>>,
@@ -239,6 +241,7 @@ fn load_parquet(path: &Path, shown: &str, cols: &Columns<'_>) -> Result<Table, R
     let keys: Option<Vec<Option<String>>> = key_at.map(|_| texts(read.remove(0)));
     let mut table = Table {
         fields: num_at.iter().map(|i| i + 1).collect(),
+        text_fields: text_at.iter().map(|i| i + 1).collect(),
         keys: Keys::default(),
         lines: (0..n as u64).map(|r| r + 2).collect(),
         numeric: Vec::new(),
@@ -296,6 +299,7 @@ fn read_table<R: std::io::Read>(
     let (key_at, num_at, text_at) = locate(&header, shown, cols)?;
     let mut table = Table {
         fields: num_at.iter().map(|i| i + 1).collect(),
+        text_fields: text_at.iter().map(|i| i + 1).collect(),
         keys: Keys::default(),
         lines: Vec::new(),
         numeric: vec![NumericColumn::default(); num_at.len()],

@@ -350,7 +350,13 @@ pub fn score(
     let mut summary = ScoreSummary {
         records: n,
         filled: count_slots(model.features.iter().map(|f| &f.column)),
-        missing: count_slots(model.features.iter().map(|f| &f.column)),
+        missing: count_slots(
+            model
+                .features
+                .iter()
+                .map(|f| &f.column)
+                .chain(model.categories.iter().map(|c| &c.column)),
+        ),
         not_numbers: count_slots(model.features.iter().map(|f| &f.column)),
         out_of_range: count_slots(model.features.iter().map(|f| &f.column)),
         unseen_levels: count_slots(model.categories.iter().map(|c| &c.column)),
@@ -440,6 +446,14 @@ fn prepare_record(
                 summary.out_of_range[f].1 += 1;
                 return false;
             }
+        }
+    }
+    // A blank category the recipe did not keep as a level leaves the
+    // record out, as in training.
+    for (c, cat) in model.categories.iter().enumerate() {
+        if table.text[c][r].is_empty() && cat.gaps != crate::plan::CategoryGaps::Keep {
+            summary.missing[model.features.len() + c].1 += 1;
+            return false;
         }
     }
     let mut offset = model.features.len();

@@ -15,7 +15,9 @@
 //!    then at squared distance 2w, the expected squared distance between two
 //!    random records on one z-scored feature: at weight 1 a category weighs
 //!    on average no more than one z-scored feature. A blank category value is
-//!    a level of its own, `(blank)`.
+//!    a gap: with `missing keep` a level of its own, `(blank)`; with
+//!    `missing drop` the record is left out in step 1; with no rule the run
+//!    stops at its line.
 //!
 //! Every parameter is kept, so centres can be mapped back to original units
 //! (and, later, new records prepared the same way).
@@ -23,7 +25,7 @@
 use super::error::{Place, RunError};
 use super::load::Table;
 use crate::engine::stats;
-use crate::plan::{MissingRule, Plan, Scale, Transform};
+use crate::plan::{CategoryGaps, MissingRule, Plan, Scale, Transform};
 use ndarray::Array2;
 use serde::Serialize;
 
@@ -64,6 +66,14 @@ pub struct CategoryParams {
     pub column: String,
     pub levels: Vec<String>,
     pub value: f64,
+    /// What a blank does; models written before blanks were gaps kept
+    /// them as a level, and read so.
+    #[serde(default, skip_serializing_if = "is_keep")]
+    pub gaps: CategoryGaps,
+}
+
+fn is_keep(g: &CategoryGaps) -> bool {
+    *g == CategoryGaps::Keep
 }
 
 /// The matrix and everything needed to read it.
@@ -92,8 +102,9 @@ pub struct LeftOut {
     /// Its row in the table, and its key.
     pub row: usize,
     pub key: String,
-    /// The features (by plan position) it has a gap in, among those whose
-    /// rule drops the record.
+    /// The columns it has a gap in, among those whose rule drops the
+    /// record: a feature by its plan position, a category `c` as the
+    /// number of features + `c`.
     pub gaps: Vec<usize>,
 }
 
@@ -108,7 +119,7 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
         .enumerate()
         .map(|(f, fp)| fill(plan, table, &kept, f, fp))
         .collect::<Result<Vec<_>, _>>()?;
-    let (categories, codes) = encode_categories(plan, table, &kept);
+    let (categories, codes) = encode_categories(plan, table, &kept)?;
     let width = plan.features.len();
     let total_width = width + categories.iter().map(|c| c.levels.len()).sum::<usize>();
     let mut matrix = Array2::zeros((kept.len(), total_width));
@@ -163,7 +174,25 @@ fn drop_rows(plan: &Plan, table: &Table) -> Drops {
             drop_columns.push(f);
         }
     }
+    let nf = plan.features.len();
+    for (c, cp) in plan.categories.iter().enumerate() {
+        if cp.gaps == CategoryGaps::Drop {
+            let mut count = 0;
+            for (row, v) in table.text[c].iter().enumerate() {
+                if v.is_empty() {
+                    count += 1;
+                    keep[row] = false;
+                }
+            }
+            dropped_by.push((cp.column.clone(), count));
+            drop_columns.push(nf + c);
+        }
+    }
     let kept = (0..n).filter(|&i| keep[i]).collect();
+    let gap = |at: usize, row: usize| match at.checked_sub(nf) {
+        None => table.numeric[at].get(row).is_none(),
+        Some(c) => table.text[c][row].is_empty(),
+    };
     // Only the dropped records are looked at again, for why.
     let left_out = (0..n)
         .filter(|&i| !keep[i])
@@ -173,7 +202,7 @@ fn drop_rows(plan: &Plan, table: &Table) -> Drops {
             gaps: drop_columns
                 .iter()
                 .copied()
-                .filter(|&f| table.numeric[f].get(row).is_none())
+                .filter(|&at| gap(at, row))
                 .collect(),
         })
         .collect();
@@ -196,7 +225,7 @@ fn fill(
         MissingRule::FillMedian => stats::median(&present),
         MissingRule::FillMean => stats::mean(&present),
         MissingRule::FillValue(v) => Some(v),
-        MissingRule::Refuse | MissingRule::DropRow => None,
+        MissingRule::Refuse | MissingRule::DropRow | MissingRule::Keep => None,
     };
     // Only counted and checked here; the values themselves are rebuilt by
     // `original` when the matrix is filled.
@@ -239,10 +268,24 @@ fn encode_categories(
     plan: &Plan,
     table: &Table,
     kept: &[usize],
-) -> (Vec<CategoryParams>, Vec<Vec<usize>>) {
+) -> Result<(Vec<CategoryParams>, Vec<Vec<usize>>), RunError> {
     let mut categories = Vec::new();
     let mut codes = Vec::new();
     for (c, cp) in plan.categories.iter().enumerate() {
+        // Dropped records are not kept, so a blank left is one to keep or
+        // one no rule covers.
+        if cp.gaps == CategoryGaps::Refuse {
+            if let Some(&row) = kept.iter().find(|&&i| table.text[c][i].is_empty()) {
+                return Err(RunError::BlankCategory {
+                    place: Place {
+                        file: plan.input.path.clone(),
+                        line: table.lines[row],
+                        column: table.text_fields.get(c).copied().unwrap_or(0),
+                        name: cp.column.clone(),
+                    },
+                });
+            }
+        }
         let level_of = |s: &str| {
             if s.is_empty() {
                 BLANK_LEVEL.to_string()
@@ -266,9 +309,10 @@ fn encode_categories(
             column: cp.column.clone(),
             levels,
             value: cp.weight.sqrt(),
+            gaps: cp.gaps,
         });
     }
-    (categories, codes)
+    Ok((categories, codes))
 }
 
 /// Steps 2-5 for feature `f`: clip, transform, scale and weight its filled

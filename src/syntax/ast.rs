@@ -121,6 +121,8 @@ pub enum FeatureChoice {
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub enum MissingAction {
     DropRows,
+    /// `keep`: a blank category is a level of its own.
+    Keep,
     /// `fill median`, `fill mean` (words) or `fill 0` (a number).
     Fill(Spanned<Value>),
 }

@@ -138,6 +138,8 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
             let act = &rest[0];
             let action = if act.as_rule() == Rule::drop_rows {
                 MissingAction::DropRows
+            } else if act.as_rule() == Rule::keep_gaps {
+                MissingAction::Keep
             } else {
                 let value = act.clone().into_inner().nth(1).map(|v| value_of(&v, off));
                 match value {
@@ -445,6 +447,7 @@ fn describe(rule: Rule) -> &'static str {
         Rule::kw_except => "`except`",
         Rule::kw_for => "`for`",
         Rule::drop_rows | Rule::kw_drop => "`drop`",
+        Rule::keep_gaps | Rule::kw_keep => "`keep`",
         Rule::fill_values | Rule::kw_fill => "`fill`",
         Rule::clip_range | Rule::kw_clip => "`clip`",
         Rule::by_criterion | Rule::kw_by => "`by`",

@@ -119,7 +119,9 @@ fn transform_offers_columns_then_transforms() {
 
 #[test]
 fn missing_and_save_follow_their_shape() {
-    assert_eq!(labels("missing "), ["drop", "fill"]);
+    assert_eq!(labels("missing "), ["drop", "fill", "keep"]);
+    // `keep` is for categories: no numeric column is offered after it.
+    assert!(!labels("missing keep for ").contains(&"basket_value".to_string()));
     assert_eq!(labels("missing fill "), ["mean", "median"]);
     assert_eq!(labels("missing fill median "), ["for"]);
     assert_eq!(

@@ -42,6 +42,7 @@ pub const VALUES: &[ValueDoc] = &[
     fixed("features", "all", "every numeric column of the input except the key"),
     fixed("features", "except", "leaves the columns listed after it out of `all`"),
     fixed("missing", "drop", "leaves out every record with a gap in a column the rule covers; the run counts them"),
+    fixed("missing", "keep", "for categories: a blank is a level of its own, `(blank)` (numbers need `fill` or `drop`)"),
     fixed("missing", "fill", "puts a value in every gap: `median` or `mean` of the column's known values, or a number"),
     fixed("missing", "for", "limits the rule to the columns listed after it; without `for` it covers every column"),
     fixed("missing", "median", "the middle of the column's known values: a few extreme values do not move it"),
