@@ -173,3 +173,26 @@ fn what_these_methods_cannot_do_is_refused_at_check_and_nothing_is_written() {
         );
     }
 }
+
+/// Next quarter with `previous`: a k-medoids run on the same members,
+/// matched to last run's saved model and assignments, keeps every member
+/// in the segment of the same number, and `verify` accepts the outputs.
+#[test]
+fn a_kmedoids_rerun_with_previous_keeps_its_numbers_and_verifies() {
+    let case = Case::demo();
+    case.write("m.assort", &recipe("kmedoids k 4 restarts 3", ""));
+    case.run("m.assort").ok();
+    let first = case.segments_by_key("out/a.csv");
+    std::fs::copy(case.path("out/m.json"), case.path("last_model.json")).unwrap();
+    std::fs::copy(case.path("out/a.csv"), case.path("last_a.csv")).unwrap();
+    case.write(
+        "m.assort",
+        &recipe(
+            "kmedoids k 4 restarts 3",
+            "previous \"last_model.json\" assignments \"last_a.csv\"",
+        ),
+    );
+    case.run("m.assort").ok();
+    assert_eq!(first, case.segments_by_key("out/a.csv"));
+    case.assort(&["verify", "m.assort"], &[]).ok();
+}

@@ -20,6 +20,7 @@ pub fn report(o: &Outcome) -> String {
     sweep(&mut s, o);
     s.push('\n');
     profiles(&mut s, o);
+    typical_members(&mut s, o);
     rules(&mut s, o);
     if let Some(c) = super::changes::Changes::of(o) {
         s.push('\n');
@@ -238,7 +239,28 @@ pub fn rule_words(o: &Outcome, r: &crate::run::rules::SegmentRule) -> String {
 pub fn profiles_report(o: &Outcome) -> String {
     let mut s = String::new();
     profiles(&mut s, o);
+    typical_members(&mut s, o);
     s
+}
+
+/// Each segment's medoid, for methods whose segments centre on a member.
+fn typical_members(s: &mut String, o: &Outcome) {
+    let each: Vec<String> = o
+        .profiles
+        .iter()
+        .filter_map(|p| Some(format!("{} {}", p.segment?, p.medoid.as_deref()?)))
+        .collect();
+    if !each.is_empty() {
+        wrapped(
+            s,
+            "  ",
+            &format!(
+                "typical members (each segment's medoid): {}",
+                each.join(", ")
+            ),
+        );
+        s.push('\n');
+    }
 }
 
 /// What the sweep's columns mean for a method with its own measure.

@@ -77,7 +77,7 @@ pub(super) fn judge(
     }
     Ok(Judged {
         disagreement: disagreement(&picks, chosen),
-        advice: advice(&sweep),
+        advice: advice(&sweep, &plan.method),
         at: candidates.iter().position(|c| c.k == chosen).unwrap_or(0),
         no_structure: picks.gap == Some(1) && plan.choose != ChooseK::By(Criterion::Gap),
         sweep,
@@ -565,7 +565,7 @@ fn reclusterer(plan: &Plan) -> Box<evidence::Recluster<'static>> {
     )
 }
 
-fn advice(sweep: &[SweepRow]) -> Vec<String> {
+fn advice(sweep: &[SweepRow], method: &MethodPlan) -> Vec<String> {
     let rare: Vec<(usize, &super::Restarts)> = sweep
         .iter()
         .filter_map(|r| r.restarts.as_ref().map(|x| (r.k, x)))
@@ -586,6 +586,11 @@ fn advice(sweep: &[SweepRow]) -> Vec<String> {
     };
     // One sentence for every such k: the reason is the same for each.
     vec![format!(
-        "{which} reached the best partition; k-means finds local optima, so more restarts are advisable, and a k whose best is rarely reached is often one the data does not support"
+        "{which} reached the best partition; {} finds local optima, so more restarts are advisable, and a k whose best is rarely reached is often one the data does not support",
+        match method {
+            MethodPlan::KMedoids(_) => "k-medoids",
+            MethodPlan::KPrototypes(_) => "k-prototypes",
+            _ => "k-means",
+        }
     )]
 }
