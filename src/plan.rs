@@ -235,12 +235,7 @@ impl Plan {
 
     /// The values of k the method fits, ascending.
     pub fn ks(&self) -> &[usize] {
-        match &self.method {
-            MethodPlan::KMeans(k) => &k.ks,
-            MethodPlan::Tree(t) => &t.ks,
-            MethodPlan::KMedoids(m) => &m.ks,
-            MethodPlan::KPrototypes(p) => &p.ks,
-        }
+        self.method.ks()
     }
 
     /// Whether the method compares records other than by the Euclidean
@@ -357,6 +352,16 @@ pub enum MethodPlan {
 }
 
 impl MethodPlan {
+    /// The values of k the method fits, ascending.
+    pub fn ks(&self) -> &[usize] {
+        match self {
+            MethodPlan::KMeans(k) => &k.ks,
+            MethodPlan::Tree(t) => &t.ks,
+            MethodPlan::KMedoids(m) => &m.ks,
+            MethodPlan::KPrototypes(p) => &p.ks,
+        }
+    }
+
     /// The method in words: "k-means (50 restarts per k)".
     pub fn words(&self) -> String {
         match self {

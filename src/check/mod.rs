@@ -473,23 +473,12 @@ impl Checker {
         let display = self.display(stmts);
         let features = features.map(|f| self.feature_rules(&rules, f));
         let categories = categories.map(|c| self.category_gaps(&rules, c));
-        let scale = match find("scale") {
-            Some(Statement {
-                kind: StatementKind::Scale { method },
-                ..
-            }) => self.word_choice("scale method", method, &Scale::NAMES, Scale::parse),
-            _ => Some(Scale::Zscore),
-        };
+        let scale = self.scale(find("scale"));
         let method = self.method(method::METHODS.iter().filter_map(|w| find(w)).collect());
-        let ks: Option<Vec<usize>> = method.as_ref().map(|m| match m {
-            MethodPlan::KMeans(k) => k.ks.clone(),
-            MethodPlan::Tree(t) => t.ks.clone(),
-            MethodPlan::KMedoids(m) => m.ks.clone(),
-            MethodPlan::KPrototypes(p) => p.ks.clone(),
-        });
         if let Some(m) = &method {
             self.method_limits(stmts, m);
         }
+        let ks: Option<Vec<usize>> = method.as_ref().map(|m| m.ks().to_vec());
         let choose = self.choose(find("choose"), ks.as_deref());
         let floor = self.floor(find("choose"));
         let previous = self.previous_against(
@@ -553,6 +542,17 @@ impl Checker {
         let cats: Option<Vec<String>> =
             categories.map(|c| c.iter().map(|c| c.column.clone()).collect());
         self.previous(stmt, numeric.as_deref(), cats.as_deref(), key)
+    }
+
+    /// The `scale` statement's method; z-scores unless given.
+    fn scale(&mut self, stmt: Option<&Statement>) -> Option<Scale> {
+        match stmt {
+            Some(Statement {
+                kind: StatementKind::Scale { method },
+                ..
+            }) => self.word_choice("scale method", method, &Scale::NAMES, Scale::parse),
+            _ => Some(Scale::Zscore),
+        }
     }
 
     fn seed(&mut self, stmt: Option<&Statement>) -> Option<u64> {
