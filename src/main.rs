@@ -444,7 +444,7 @@ fn score_summary(s: &run::model::ScoreSummary) -> String {
         ),
         (
             &s.not_numbers,
-            "records left out: a value that is not a number",
+            "records left out: a value that is not a number (or, for an ordered category or a flag, none of its levels)",
         ),
         (
             &s.out_of_range,

@@ -131,6 +131,117 @@ pub struct FeaturePlan {
     pub transform: Transform,
     /// Counts as this many features in squared distance.
     pub weight: f64,
+    /// A number, an ordered category (`ordered`) or a flag (`flags`):
+    /// the last two are read as numbers through their levels.
+    pub kind: FeatureKind,
+}
+
+/// What a clustered number stands for. An ordered category and a flag are
+/// clustered as numbers: the level's rank (1 for the first level), or 1
+/// for a flag that is set and 0 for one that is not. Every method then
+/// treats them as the numbers they are coded to (k-means by distance,
+/// Gower's dissimilarity by rank over the levels' range, as Kaufman and
+/// Rousseeuw 1990 score ordinal variables), and the outputs name levels.
+#[derive(Debug, Clone, PartialEq, Eq, Default, Serialize, serde::Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum FeatureKind {
+    #[default]
+    Number,
+    /// Levels from lowest to highest, as written in the recipe.
+    Ordered(Vec<String>),
+    /// Two values: one of [`FLAG_SET`] (1) or [`FLAG_UNSET`] (0),
+    /// letter case aside.
+    Flag,
+}
+
+/// Values that set a flag, and that leave it unset (compared without
+/// regard to letter case).
+pub const FLAG_SET: [&str; 6] = ["yes", "y", "true", "t", "1", "on"];
+pub const FLAG_UNSET: [&str; 6] = ["no", "n", "false", "f", "0", "off"];
+
+impl FeatureKind {
+    pub fn is_number(&self) -> bool {
+        *self == FeatureKind::Number
+    }
+
+    /// The number a non-blank value of an ordered category or a flag
+    /// stands for (`None`: not one of its levels or flag values); `None`
+    /// for a plain number, which is parsed as one.
+    pub fn code(&self, text: &str) -> Option<f64> {
+        // Spaces only, as categories are read and as SQL's TRIM trims.
+        let text = crate::text::trim_spaces(text);
+        match self {
+            FeatureKind::Number => None,
+            FeatureKind::Ordered(levels) => level_rank(levels, text).map(|r| r as f64),
+            FeatureKind::Flag => {
+                let is = |words: &[&str]| words.iter().any(|w| w.eq_ignore_ascii_case(text));
+                if is(&FLAG_SET) {
+                    Some(1.0)
+                } else if is(&FLAG_UNSET) {
+                    Some(0.0)
+                } else {
+                    None
+                }
+            }
+        }
+    }
+
+    /// The levels of an ordered category, lowest first.
+    pub fn levels(&self) -> Option<&[String]> {
+        match self {
+            FeatureKind::Ordered(l) => Some(l),
+            _ => None,
+        }
+    }
+
+    /// The level of an ordered category nearest a rank (`None` for other
+    /// kinds).
+    pub fn nearest_level(&self, rank: f64) -> Option<&str> {
+        let levels = self.levels()?;
+        if levels.is_empty() || !rank.is_finite() {
+            return None;
+        }
+        let at = (rank.round().clamp(1.0, levels.len() as f64) as usize) - 1;
+        levels.get(at).map(String::as_str)
+    }
+
+    /// The words for the kind in messages and the plan.
+    pub fn words(&self) -> String {
+        match self {
+            FeatureKind::Number => "a number".into(),
+            FeatureKind::Ordered(l) => format!(
+                "ordered {}, clustered by rank",
+                l.iter()
+                    .map(|x| format!("{x:?}"))
+                    .collect::<Vec<_>>()
+                    .join(" < ")
+            ),
+            FeatureKind::Flag => "a flag, clustered as 1 set and 0 not".into(),
+        }
+    }
+}
+
+/// The 1-based rank of `text` among `levels`. Levels that are all
+/// numbers (`1 < 2 < 3`) are matched as numbers, so `2.0` from a
+/// spreadsheet or a database is level `2`; other levels are matched as
+/// written, letter case included. The scoring SQL matches the same way.
+pub fn level_rank(levels: &[String], text: &str) -> Option<usize> {
+    let at = match numeric_levels(levels) {
+        Some(values) => {
+            let v: f64 = text.parse().ok()?;
+            values.iter().position(|&x| x == v)
+        }
+        None => levels.iter().position(|l| l == text),
+    };
+    at.map(|at| at + 1)
+}
+
+/// The levels as numbers, when every one is written as a number.
+pub fn numeric_levels(levels: &[String]) -> Option<Vec<f64>> {
+    levels
+        .iter()
+        .map(|l| l.parse::<f64>().ok().filter(|v| v.is_finite()))
+        .collect()
 }
 
 #[derive(Debug, Clone, Serialize)]

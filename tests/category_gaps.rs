@@ -98,11 +98,11 @@ fn a_fill_for_a_category_and_keep_for_a_number_are_refused() {
     let c = case(true, "missing fill median for branch");
     c.assort(&["check", "r.assort"], &[])
         .fails()
-        .stderr_has("`missing fill` does not apply to category `branch`");
+        .stderr_has("`missing fill` does not apply to a category `branch`");
     let c = case(true, "missing keep for visits\nmissing keep for branch");
     c.assort(&["check", "r.assort"], &[])
         .fails()
-        .stderr_has("`missing keep` does not apply to number `visits`");
+        .stderr_has("`missing keep` does not apply to a number `visits`");
 }
 
 #[test]

@@ -1022,7 +1022,7 @@ fn scoring_new_records_counts_what_it_could_not_use() {
     );
     run.stderr_has("assigned 3 records of 5")
         .stderr_has("values filled with the training fill value: tenure_months 1")
-        .stderr_has("records left out: a value that is not a number: visits_per_month 1")
+        .stderr_has("records left out: a value that is not a number (or, for an ordered category or a flag, none of its levels): visits_per_month 1")
         .stderr_has("records left out: a value the transform cannot take: basket_value 1")
         .stderr_has("category values not seen in training (scored as no level): home_branch 1");
 }

@@ -36,17 +36,8 @@ fn run_and_assign(method: &str) -> (Case, usize) {
     let case = Case::demo();
     case.write("m.assort", &recipe(method, ""));
     case.run("m.assort").ok();
-    case.assort(
-        &[
-            "assign",
-            "out/m.json",
-            "data/coop_members.csv",
-            "--out",
-            "out/s.csv",
-        ],
-        &[],
-    )
-    .ok();
+    case.assign("out/m.json", "data/coop_members.csv", "out/s.csv")
+        .ok();
     let run = case.segments_by_key("out/a.csv");
     let scored = case.segments_by_key("out/s.csv");
     assert_eq!(run.len(), 6000);

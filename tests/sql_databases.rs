@@ -204,16 +204,26 @@ fn agrees(
 /// across loadings) in SQLite and PostgreSQL, typed and all text;
 /// `integers` are the columns a typed table holds as integers.
 fn scoring_agrees_everywhere(case: &Case, integers: &[&str]) {
+    scoring_agrees_with_text(case, integers, &[]);
+}
+
+/// [`scoring_agrees_everywhere`] with `more_text` columns held as text in
+/// a typed table too.
+fn scoring_agrees_with_text(case: &Case, integers: &[&str], more_text: &[&str]) {
     let (recipe, data_file, table) = (
         "coop-members.assort",
         "data/coop_members.csv",
         "coop_members",
     );
     let csv_text = case.read(data_file);
+    let text: Vec<&str> = ["member_id", "home_branch"]
+        .into_iter()
+        .chain(more_text.iter().copied())
+        .collect();
     let data = &Data {
         csv: &csv_text,
         integers,
-        text: &["member_id", "home_branch"],
+        text: &text,
     };
     case.run(recipe).ok();
     case.assort(
@@ -323,5 +333,28 @@ fn a_category_of_numbers_and_values_with_tabs_and_odd_spaces_score_the_same_ever
     assert!(
         !profiles.contains("home_branch=  Riverside"),
         "spaces trimmed"
+    );
+}
+
+#[test]
+fn ordered_categories_and_flags_score_the_same_everywhere() {
+    // The demo members (invented) with a loyalty tier in words and as
+    // numbers, and a newsletter flag as `Yes`/`no` and as 1/0 (integers
+    // in a typed table).
+    let case = Case::demo();
+    let csv_text = common::kinds::write_kinds(&case);
+    case.write("data/coop_members.csv", &csv_text);
+    case.edit(
+        "coop-members.assort",
+        "categories home_branch weight 0.5",
+        "categories home_branch weight 0.5\n\
+         ordered loyalty_tier \"seedling\" < \"sprout\" < \"harvest\"\n\
+         ordered tier_rank 1 < 2 < 3\n\
+         flags newsletter, newsletter_code",
+    );
+    scoring_agrees_with_text(
+        &case,
+        &["tier_rank", "newsletter_code"],
+        &["loyalty_tier", "newsletter"],
     );
 }

@@ -254,6 +254,8 @@ fn after(statement: &str, toks: &[Placed<'_>], data: &DataView<'_>) -> Vec<Item>
         "tally" if list_place => cols(Wanted::Numeric),
         "call" if count == 1 => cols(Wanted::Any),
         "categories" if list_place => cols(Wanted::Text),
+        "ordered" if count == 1 => cols(Wanted::Any),
+        "flags" if list_place => cols(Wanted::Any),
         "missing" if count == 1 => [
             fixed("missing", "drop"),
             fixed("missing", "keep"),

@@ -137,6 +137,57 @@ pub enum CheckError {
         help: String,
     },
 
+    #[error(
+        "`{file}` line {line}, column {column} (`{name}`): found `{found}`, which is not {expected}"
+    )]
+    #[diagnostic(code(assort::not_a_level), help("{help}"))]
+    ValueNotOfKind {
+        file: String,
+        line: u64,
+        column: usize,
+        name: String,
+        found: String,
+        expected: String,
+        #[label("its kind is given here")]
+        span: Span,
+        help: String,
+    },
+
+    #[error("`ordered {column}` needs two levels or more, lowest first")]
+    #[diagnostic(
+        code(assort::one_level),
+        help("list the levels from lowest to highest with `<` between them, such as `ordered {column} \"bronze\" < \"silver\" < \"gold\"`; a column of one value adds nothing to distances")
+    )]
+    OneLevel {
+        column: String,
+        #[label("only this level")]
+        span: Span,
+    },
+
+    #[error("a blank cannot be a level of `{column}`")]
+    #[diagnostic(
+        code(assort::blank_level),
+        help("a blank value is a gap, handled by `missing` (`missing fill median for {column}` takes the middle rank, `missing drop for {column}` leaves the record out); list only the written levels")
+    )]
+    BlankLevel {
+        column: String,
+        #[label("blank")]
+        span: Span,
+    },
+
+    #[error("level `{level}` is named twice")]
+    #[diagnostic(
+        code(assort::level_twice),
+        help("each level has one place in the order; remove the second")
+    )]
+    LevelTwice {
+        level: String,
+        #[label("named again here")]
+        span: Span,
+        #[label("first named here")]
+        first: Span,
+    },
+
     #[error("`{column}` is the key column, so it cannot also be clustered on")]
     #[diagnostic(
         code(assort::key_clustered),
@@ -512,13 +563,14 @@ pub enum CheckError {
         span: Span,
     },
 
-    #[error("`missing {rule}` does not apply to {kind} `{column}`")]
+    #[error("`{rule}` does not apply to {kind} `{column}`")]
     #[diagnostic(code(assort::rule_not_for_kind), help("{help}"))]
     RuleNotForKind {
         rule: String,
+        /// With its article: "a number", "an ordered category".
         kind: &'static str,
         column: String,
-        #[label("a {kind}")]
+        #[label("{kind}")]
         span: Span,
         help: String,
     },

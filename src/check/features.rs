@@ -66,6 +66,7 @@ impl Checker {
         stmt: Option<&Statement>,
         input: Option<&CheckedInput>,
         categories: &Option<Vec<CategoryPlan>>,
+        kinded: Option<Vec<(String, Span)>>,
     ) -> Option<Vec<(String, Span)>> {
         let Some(
             s @ Statement {
@@ -82,10 +83,12 @@ impl Checker {
             return None;
         };
         let key = input.map(|i| i.plan.key.clone());
+        // Columns clustered otherwise, which `features all` leaves.
         let cats: Vec<String> = categories
             .iter()
             .flatten()
             .map(|c| c.column.clone())
+            .chain(self.kinds.keys().cloned())
             .collect();
         let mut out: Vec<(String, Span)> = Vec::new();
         let mut ok = true;
@@ -114,6 +117,9 @@ impl Checker {
                 self.all_took(&out, except, key.as_deref(), &cats, s.span);
             }
         }
+        // Ordered categories and flags follow, clustered as numbers.
+        out.extend(kinded.iter().flatten().cloned());
+        ok &= kinded.is_some();
         if ok && out.is_empty() && self.probe.is_some() {
             self.err(CheckError::NoFeatures {
                 span: s.span,
@@ -183,7 +189,8 @@ impl Checker {
             .iter()
             .find(|(n, _)| *n == col.node)
             .map(|(_, s)| *s)
-            .or_else(|| self.category_spans.get(&col.node).copied());
+            .or_else(|| self.category_spans.get(&col.node).copied())
+            .or_else(|| self.kinds.get(&col.node).map(|(s, _)| *s));
         if let Some(first) = first {
             self.err(CheckError::DuplicateColumn {
                 column: col.node.clone(),
@@ -363,6 +370,11 @@ impl Checker {
                 clip: None,
                 transform: Transform::None,
                 weight: defaults::WEIGHT,
+                kind: self
+                    .kinds
+                    .get(name)
+                    .map(|(_, k)| k.clone())
+                    .unwrap_or_default(),
             })
             .collect();
         let mut given: HashMap<(&'static str, String), Span> = HashMap::new();
@@ -393,6 +405,12 @@ impl Checker {
                 if let Rule::Missing(MissingRule::Keep) = r.rule {
                     self.keep_for_number(col);
                     continue;
+                }
+                if matches!(r.rule, Rule::Transform(_) | Rule::Clip(..)) {
+                    if let Some((_, kind)) = self.kinds.get(&col.node) {
+                        self.transform_for_levels(col, kind.clone());
+                        continue;
+                    }
                 }
                 if let Some(&first) = given.get(&(kind, col.node.clone())) {
                     self.err(CheckError::Conflict {
@@ -448,11 +466,26 @@ impl Checker {
     /// `missing keep` named for a number.
     fn keep_for_number(&mut self, col: &Column) {
         self.err(CheckError::RuleNotForKind {
-            rule: "keep".into(),
-            kind: "number",
+            rule: "missing keep".into(),
+            kind: "a number",
             column: col.node.clone(),
             span: col.span,
             help: format!("a number needs a value to be measured by: `missing fill median for {0}` fills a blank, `missing drop for {0}` leaves the record out; `keep` is for categories, where a blank can be a level of its own", col.node),
+        });
+    }
+
+    /// `transform` named for an ordered category or a flag.
+    fn transform_for_levels(&mut self, col: &Column, kind: FeatureKind) {
+        let (what, help) = match kind {
+            FeatureKind::Flag => ("a flag", format!("`{}` is 1 or 0: there is no skew to tame or tail to clip; leave it out of `transform`", col.node)),
+            _ => ("an ordered category", format!("`{}` is clustered by rank, evenly spaced: there is no skew to tame or tail to clip; leave it out of `transform` (`weight {} 0.5` makes it count less)", col.node, col.node)),
+        };
+        self.err(CheckError::RuleNotForKind {
+            rule: "transform".into(),
+            kind: what,
+            column: col.node.clone(),
+            span: col.span,
+            help,
         });
     }
 
@@ -500,8 +533,8 @@ impl Checker {
                 match as_gaps(m) {
                     Some(g) => c.gaps = g,
                     None => self.err(CheckError::RuleNotForKind {
-                        rule: "fill".into(),
-                        kind: "category",
+                        rule: "missing fill".into(),
+                        kind: "a category",
                         column: col.node.clone(),
                         span: col.span,
                         help: format!("a category has levels, not a middle to fill with: `missing keep for {0}` keeps a blank as a level of its own, `(blank)`; `missing drop for {0}` leaves the record out", col.node),

@@ -16,6 +16,7 @@ pub mod diagnostic;
 mod features;
 pub mod fixes;
 mod input;
+pub(crate) mod kinds;
 mod method;
 mod outputs;
 pub mod paths;
@@ -199,16 +200,8 @@ pub fn check_with(source: &RecipeSource, options: &CheckOptions) -> Checked {
             .collect(),
         end: end_span(&source.text),
         category_spans: HashMap::new(),
-        // Only a `previous` statement compares them.
-        settings: if tree
-            .statements
-            .iter()
-            .any(|s| matches!(s.kind, StatementKind::Previous { .. }))
-        {
-            syntax::shaping_statements(&source.text)
-        } else {
-            Vec::new()
-        },
+        kinds: HashMap::new(),
+        settings: settings(&tree, &source.text),
     };
     let mut plan = cx.plan(&tree.statements);
     if let Some(plan) = plan.as_mut() {
@@ -241,6 +234,20 @@ pub fn check_with(source: &RecipeSource, options: &CheckOptions) -> Checked {
             .map(|p| p.columns.clone())
             .unwrap_or_default(),
         sampled: cx.probe.as_ref().map_or(0, |p| p.sampled),
+    }
+}
+
+/// The statements that shape the segments, which only a `previous`
+/// statement compares (with those its model records).
+fn settings(tree: &syntax::ast::Recipe, text: &str) -> Vec<String> {
+    let previous = tree
+        .statements
+        .iter()
+        .any(|s| matches!(s.kind, StatementKind::Previous { .. }));
+    if previous {
+        syntax::shaping_statements(text)
+    } else {
+        Vec::new()
     }
 }
 
@@ -350,6 +357,8 @@ struct Checker {
     end: Span,
     /// Where each category column was named.
     category_spans: HashMap<String, Span>,
+    /// Columns `ordered` or `flags` gave a kind: where, and the kind.
+    kinds: HashMap<String, (Span, FeatureKind)>,
     /// The folders the recipe may touch.
     sandbox: paths::Sandbox,
     /// Every file the recipe reads (real path, span), so no output can
@@ -461,7 +470,8 @@ impl Checker {
             self.keyless_refusals(stmts, i);
         }
         let categories = self.categories(stmts, input.as_ref());
-        let features = self.features(find("features"), input.as_ref(), &categories);
+        let kinded = self.kinds(stmts, input.as_ref());
+        let features = self.features(find("features"), input.as_ref(), &categories, kinded);
         self.cautions(stmts, features.as_deref(), categories.as_deref());
         let rules = self.rules(stmts);
         let key = input.as_ref().map(|i| i.plan.key.clone());

@@ -10,6 +10,9 @@ use std::path::Path;
 /// Records read to judge column kinds.
 pub const SAMPLE_ROWS: usize = 1000;
 
+/// Different values kept per column from the sample.
+pub const VALUES_KEPT: usize = 32;
+
 /// What a column looked like in the sample.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum ColumnKind {
@@ -55,6 +58,10 @@ pub struct ColumnInfo {
     /// A Parquet column of a type assort does not read, in words (`a
     /// timestamp`): the checker refuses it wherever the recipe uses it.
     pub unsupported: Option<String>,
+    /// The first [`VALUES_KEPT`] different values in the sample (spaces
+    /// trimmed), each with its first line: what an ordered category's or
+    /// a flag's levels are checked against.
+    pub values: Vec<(String, u64)>,
     /// The sampled numbers seen, by their bits (to tell `distinct`).
     seen: std::collections::HashSet<u64>,
     last: Option<f64>,
@@ -78,6 +85,7 @@ impl ColumnInfo {
             wholes: 0,
             distinct: true,
             increasing: true,
+            values: Vec::new(),
             unsupported: None,
             seen: std::collections::HashSet::new(),
             last: None,
@@ -88,7 +96,13 @@ impl ColumnInfo {
     pub(crate) fn observe(&mut self, field: &str, line: u64, decimal: DecimalMark) {
         if is_blank(field) {
             self.blanks += 1;
-        } else if let Some(v) = parse_number_in(field, decimal) {
+            return;
+        }
+        let trimmed = field.trim();
+        if self.values.len() < VALUES_KEPT && !self.values.iter().any(|(v, _)| v == trimmed) {
+            self.values.push((trimmed.to_string(), line));
+        }
+        if let Some(v) = parse_number_in(field, decimal) {
             self.numbers += 1;
             self.min = self.min.min(v);
             self.max = self.max.max(v);

@@ -38,6 +38,8 @@ pub fn slot(entry: &str) -> Option<Slot> {
         K::Brief { segment, .. } => (format!("brief {}", segment.node.value), Vec::new()),
         K::Weight { columns, .. } => (word, names(columns)),
         K::Call { column, .. } => (word, vec![column.node.clone()]),
+        // Entering a column's levels again reorders them.
+        K::Ordered { column, .. } => (word, vec![column.node.clone()]),
         // A column may have one clip and one other transform.
         K::Transform {
             columns,

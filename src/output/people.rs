@@ -2,16 +2,54 @@
 //! `call`, numbers with thousands separators and a fixed number of
 //! decimals per format, percentages for shares, and never `-0.0`.
 
-use crate::plan::{Display, NumberFormat, Plan};
+use crate::plan::{Display, FeatureKind, NumberFormat, Plan};
 
 /// The name people see for a column: its `call` name, else the column.
 pub fn name<'a>(plan: &'a Plan, column: &'a str) -> &'a str {
     plan.display.get(column).map_or(column, |d| d.name.as_str())
 }
 
-/// A value of `column` as people read it, in the column's format.
+/// A value of `column` as people read it, in the column's format: an
+/// ordered category by its levels, a flag as the share set (unless `call`
+/// gives a format).
 pub fn value(plan: &Plan, column: &str, v: f64) -> String {
-    formatted(v, plan.display.get(column))
+    let display = plan.display.get(column);
+    match kind(plan, column) {
+        FeatureKind::Ordered(levels) => ranked(levels, v),
+        FeatureKind::Flag if display.is_none() => share(v),
+        _ => formatted(v, display),
+    }
+}
+
+/// The kind of a clustered column (a number for any other column).
+pub fn kind<'a>(plan: &'a Plan, column: &str) -> &'a FeatureKind {
+    const NUMBER: &FeatureKind = &FeatureKind::Number;
+    plan.features
+        .iter()
+        .find(|f| f.column == column)
+        .map_or(NUMBER, |f| &f.kind)
+}
+
+/// A rank of an ordered category in words: the level itself when the
+/// rank is whole (a median, a quartile), else the rank with the two
+/// levels it falls between (a mean: `2.4 (silver to gold)`).
+pub fn ranked(levels: &[String], v: f64) -> String {
+    let level = |r: f64| {
+        levels
+            .get((r as usize).saturating_sub(1))
+            .map(String::as_str)
+    };
+    if !v.is_finite() || levels.is_empty() {
+        return "n/a".into();
+    }
+    let v = v.clamp(1.0, levels.len() as f64);
+    if v.fract() == 0.0 {
+        return level(v).unwrap_or("n/a").to_string();
+    }
+    match (level(v.floor()), level(v.ceil())) {
+        (Some(lo), Some(hi)) => format!("{} ({lo} to {hi})", decimals(v, 1)),
+        _ => decimals(v, 1),
+    }
 }
 
 /// A value in a display format (`None`: a plain number).
@@ -54,10 +92,19 @@ pub fn money(v: f64, unit: Option<&str>, places: usize) -> String {
 /// terminal's fixed-width tables: a percentage (`57.8 %`), money with its
 /// symbol (`€170.48`, whole when the cents do not fit: `€3,242`), a whole
 /// count; other numbers, and what still does not fit, as the short form.
-/// Words of a unit are left to the row's name.
+/// Words of a unit are left to the row's name, and so is the rank of an
+/// ordered category (its row reads `mean rank`).
 pub fn compact(plan: &Plan, column: &str, v: f64, room: usize) -> String {
     let display = plan.display.get(column);
     let fits = |t: String| (t.chars().count() <= room).then_some(t);
+    match kind(plan, column) {
+        FeatureKind::Flag if display.is_none() => {
+            if let Some(t) = fits(share(v)).or_else(|| fits(format!("{:.0} %", v * 100.0))) {
+                return t;
+            }
+        }
+        _ => {}
+    }
     let tried = match display.map(|d| d.format) {
         Some(NumberFormat::Percent) => {
             fits(share(v)).or_else(|| fits(format!("{:.0} %", v * 100.0)))

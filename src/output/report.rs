@@ -137,6 +137,9 @@ fn how(h: &mut String, o: &Outcome) {
         .iter()
         .map(|f| {
             let mut s = format!("<code>{}</code>", esc(&f.column));
+            if !f.kind.is_number() {
+                let _ = write!(s, " ({})", esc(&f.kind.words()));
+            }
             if f.transform != Transform::None {
                 let _ = write!(s, " ({})", esc(&serde_plain(&f.transform)));
             }
@@ -488,11 +491,12 @@ fn describe(o: &Outcome, i: usize, noun: &str) -> Vec<String> {
             } else {
                 1.0
             };
-            let percent = o
-                .plan
-                .display
-                .get(column)
-                .is_some_and(|d| d.format == crate::plan::NumberFormat::Percent);
+            // A flag reads as the share set; a rank has no ratio.
+            let kind = people::kind(&o.plan, column);
+            let display = o.plan.display.get(column);
+            let percent = display.is_some_and(|d| d.format == crate::plan::NumberFormat::Percent)
+                || (*kind == crate::plan::FeatureKind::Flag && display.is_none());
+            let ratio = if kind.is_number() { ratio } else { 1.0 };
             let how = if percent {
                 // A share differs from the average by points, not by a
                 // ratio: "78 % below" of a share reads as points.

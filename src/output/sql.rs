@@ -28,7 +28,7 @@
 //! of each other could go the other way; assort's assignments give each
 //! record's `nearer_by`, which says which records those are.
 
-use crate::plan::Transform;
+use crate::plan::{FeatureKind, Transform, FLAG_SET, FLAG_UNSET};
 use crate::run::model::SegmentModel;
 use crate::run::prepare::BLANK_LEVEL;
 use crate::run::rules::SegmentRule;
@@ -77,6 +77,56 @@ fn read_number(column: &str) -> String {
     format!("CASE WHEN TRIM(CAST({col} AS VARCHAR)) = '' THEN NULL ELSE CAST({col} AS DOUBLE PRECISION) END")
 }
 
+/// Not a level: what [`read_coded`] gives a value that is no level of an
+/// ordered category or a flag (ranks start at 1, flags are 0 or 1), so a
+/// guard can leave the row out as `assort assign` does, even where a fill
+/// would take a blank.
+const NOT_A_LEVEL: &str = "-1";
+
+/// An ordered category or a flag as the queries read it: NULL when blank,
+/// the level's rank (a flag: 1 set, 0 not), [`NOT_A_LEVEL`] for any other
+/// value. Levels that are all numbers are compared as numbers, others as
+/// text with spaces trimmed, letter case included; flag words in any case
+/// ([`crate::plan::FeatureKind::code`] reads them the same way).
+fn read_coded(column: &str, kind: &FeatureKind) -> String {
+    let col = ident(column);
+    let trimmed = format!("TRIM(CAST({col} AS VARCHAR))");
+    let mut arms: Vec<String> = Vec::new();
+    let subject = match kind {
+        FeatureKind::Ordered(levels) => match crate::plan::numeric_levels(levels) {
+            Some(values) => {
+                for (r, v) in values.iter().enumerate() {
+                    arms.push(format!("WHEN {} THEN {}", number(*v), r + 1));
+                }
+                format!("CAST({col} AS DOUBLE PRECISION)")
+            }
+            None => {
+                for (r, l) in levels.iter().enumerate() {
+                    arms.push(format!("WHEN {} THEN {}", text(l), r + 1));
+                }
+                trimmed.clone()
+            }
+        },
+        _ => {
+            for (words, v) in [(&FLAG_SET, 1), (&FLAG_UNSET, 0)] {
+                let listed: Vec<String> = words.iter().map(|w| text(w)).collect();
+                arms.push(format!(
+                    "WHEN LOWER({trimmed}) IN ({}) THEN {v}",
+                    listed.join(", ")
+                ));
+            }
+            return format!(
+                "CASE WHEN {trimmed} = '' OR {col} IS NULL THEN NULL {} ELSE {NOT_A_LEVEL} END",
+                arms.join(" ")
+            );
+        }
+    };
+    format!(
+        "CASE WHEN {trimmed} = '' OR {col} IS NULL THEN NULL ELSE CASE {subject} {} ELSE {NOT_A_LEVEL} END END",
+        arms.join(" ")
+    )
+}
+
 /// A category column as the queries read it: its text, spaces trimmed at
 /// both ends, NULL when nothing is left.
 fn read_text(column: &str) -> String {
@@ -86,13 +136,24 @@ fn read_text(column: &str) -> String {
 /// The comment lines stating the table a query reads: a `CREATE TABLE`
 /// that makes it (key and category columns text, numbers doubles, blanks
 /// as NULL), and that an all-text table with blanks as `''` reads the same.
-fn table_comment(table: &str, key: &str, numbers: &[&str], texts: &[&str]) -> String {
+fn table_comment(
+    table: &str,
+    key: &str,
+    numbers: &[(&str, &FeatureKind)],
+    texts: &[&str],
+) -> String {
     let mut lines = vec![format!("--   {} VARCHAR", ident(key))];
-    lines.extend(
-        numbers
-            .iter()
-            .map(|c| format!("--   {} DOUBLE PRECISION", ident(c))),
-    );
+    lines.extend(numbers.iter().map(|(c, kind)| match kind {
+        FeatureKind::Number => format!("--   {} DOUBLE PRECISION", ident(c)),
+        FeatureKind::Ordered(levels) if crate::plan::numeric_levels(levels).is_some() => {
+            format!("--   {} DOUBLE PRECISION (an ordered category)", ident(c))
+        }
+        FeatureKind::Ordered(_) => format!("--   {} VARCHAR (an ordered category)", ident(c)),
+        FeatureKind::Flag => format!(
+            "--   {} VARCHAR (a flag: yes/no, true/false, 1/0, on/off)",
+            ident(c)
+        ),
+    }));
     lines.extend(texts.iter().map(|c| format!("--   {} VARCHAR", ident(c))));
     let columns: Vec<String> = lines.iter().map(|l| comment(l)).collect();
     format!(
@@ -113,7 +174,11 @@ fn table_comment(table: &str, key: &str, numbers: &[&str], texts: &[&str]) -> St
 /// fill, a value outside its transform's domain) are left out by the
 /// `WHERE` clause.
 pub fn scoring_query(model: &SegmentModel, table: &str, recipe: &str) -> String {
-    let numbers: Vec<&str> = model.features.iter().map(|f| f.column.as_str()).collect();
+    let numbers: Vec<(&str, &FeatureKind)> = model
+        .features
+        .iter()
+        .map(|f| (f.column.as_str(), &f.kind))
+        .collect();
     let texts: Vec<&str> = model.categories.iter().map(|c| c.column.as_str()).collect();
     let mut q = String::new();
     let _ = write!(
@@ -179,10 +244,14 @@ pub fn scoring_query(model: &SegmentModel, table: &str, recipe: &str) -> String 
 /// The first step of both queries: the key and each column the model
 /// reads, once, as [`read_number`] and [`read_text`] read them (`v0, v1,
 /// ..` and `t0, t1, ..`).
-fn source_step(key: &str, numbers: &[&str], texts: &[&str], table: &str) -> String {
+fn source_step(key: &str, numbers: &[(&str, &FeatureKind)], texts: &[&str], table: &str) -> String {
     let mut q = format!("WITH source AS (\n  SELECT {} AS record_key\n", ident(key));
-    for (i, c) in numbers.iter().enumerate() {
-        let _ = writeln!(q, "    , {} AS v{i}", read_number(c));
+    for (i, (c, kind)) in numbers.iter().enumerate() {
+        let read = match kind {
+            FeatureKind::Number => read_number(c),
+            coded => read_coded(c, coded),
+        };
+        let _ = writeln!(q, "    , {read} AS v{i}");
     }
     for (i, c) in texts.iter().enumerate() {
         let _ = writeln!(q, "    , {} AS t{i}", read_text(c));
@@ -198,6 +267,9 @@ fn dimensions(model: &SegmentModel) -> (Vec<String>, Vec<String>) {
     let mut guards: Vec<String> = Vec::new();
     for (i, f) in model.features.iter().enumerate() {
         let col = format!("v{i}");
+        if !f.kind.is_number() {
+            guards.push(format!("({col} IS NULL OR {col} <> {NOT_A_LEVEL})"));
+        }
         let raw = match f.fill {
             Some(fill) => format!("COALESCE({col}, {})", number(fill)),
             None => {
@@ -281,10 +353,10 @@ pub fn rules_query(rules: &[SegmentRule], key: &str, table: &str, recipe: &str) 
         .into_iter()
         .map(|i| &rules[i])
         .collect();
-    let mut columns: Vec<&str> = Vec::new();
+    let mut columns: Vec<(&str, &FeatureKind)> = Vec::new();
     for c in ordered.iter().flat_map(|r| &r.conditions) {
-        if !columns.contains(&c.column.as_str()) {
-            columns.push(&c.column);
+        if !columns.iter().any(|(n, _)| *n == c.column) {
+            columns.push((&c.column, &c.kind));
         }
     }
     let mut q = rules_header(&ordered, recipe);
@@ -297,12 +369,20 @@ pub fn rules_query(rules: &[SegmentRule], key: &str, table: &str, recipe: &str) 
             .map(|c| {
                 // `columns` was built from these very conditions, so every
                 // condition's column is in it.
-                let at = columns.iter().position(|n| *n == c.column).unwrap_or(0);
+                let at = columns
+                    .iter()
+                    .position(|(n, _)| *n == c.column)
+                    .unwrap_or(0);
                 let v = match c.fill {
                     Some(f) => format!("COALESCE(v{at}, {})", number(f)),
                     None => format!("v{at}"),
                 };
-                format!("{v} {} {}", c.op, number(c.value))
+                // A value that is no level meets no condition on its column.
+                let known = match c.kind {
+                    FeatureKind::Number => String::new(),
+                    _ => format!("{v} <> {NOT_A_LEVEL} AND "),
+                };
+                format!("{known}{v} {} {}", c.op, number(c.value))
             })
             .collect::<Vec<_>>()
             .join(" AND ")

@@ -155,7 +155,16 @@ fn summary(s: &mut String, o: &Outcome) {
         .iter()
         .map(|c| format!("{} ({} levels)", c.column, c.levels.len()))
         .collect();
+    let coded: Vec<String> = plan
+        .features
+        .iter()
+        .filter(|f| !f.kind.is_number())
+        .map(|f| format!("{} ({})", f.column, f.kind.words()))
+        .collect();
     let mut shape = format!("{} numeric features", p.features.len());
+    if !coded.is_empty() {
+        let _ = write!(shape, ", of them coded as numbers {}", coded.join(", "));
+    }
     if !cats.is_empty() {
         let _ = write!(shape, " + categories {}", cats.join(", "));
     }
@@ -211,6 +220,9 @@ pub fn rule_words(o: &Outcome, r: &crate::run::rules::SegmentRule) -> String {
     r.conditions
         .iter()
         .map(|c| {
+            if let Some(words) = level_condition(o, c) {
+                return words;
+            }
             let op = if c.op == ">" { "above" } else { "at most" };
             // Written with the places the threshold has (see
             // run::rules::tidy), never rounded: the value shown is the
@@ -233,6 +245,33 @@ pub fn rule_words(o: &Outcome, r: &crate::run::rules::SegmentRule) -> String {
         })
         .collect::<Vec<_>>()
         .join(" and ")
+}
+
+/// A condition on an ordered category or a flag in its levels' words:
+/// `loyalty tier sprout or higher`, `newsletter set` (`None` for a
+/// number). A rank above t is at least the next whole rank.
+fn level_condition(o: &Outcome, c: &crate::run::rules::RuleCondition) -> Option<String> {
+    let name = people::name(&o.plan, &c.column);
+    let above = c.op == ">";
+    match &c.kind {
+        crate::plan::FeatureKind::Number => None,
+        crate::plan::FeatureKind::Flag => {
+            Some(format!("{name} {}", if above { "set" } else { "not set" }))
+        }
+        crate::plan::FeatureKind::Ordered(levels) => {
+            let rank = if above {
+                c.value.floor() + 1.0
+            } else {
+                c.value.floor()
+            };
+            let at = (rank.clamp(1.0, levels.len() as f64) as usize).saturating_sub(1);
+            let level = levels.get(at)?;
+            Some(format!(
+                "{name} {level} or {}",
+                if above { "higher" } else { "lower" }
+            ))
+        }
+    }
 }
 
 /// The profiles section alone.
@@ -468,6 +507,17 @@ fn sweep_table(s: &mut String, o: &Outcome) {
     wrapped_items(s, "  ", &legend, ';');
 }
 
+/// One row of the profiles table: its name, then a cell per profile (all
+/// records first, narrower).
+fn row(s: &mut String, name: &str, cells: Vec<String>) {
+    let mut line = format!("  {:<w$}", clip(name, NAME_WIDTH - 1), w = NAME_WIDTH - 2);
+    for (i, c) in cells.iter().enumerate() {
+        let w = if i == 0 { 10 } else { CELL };
+        let _ = write!(line, "{:>w$}", clip(c, w - 1));
+    }
+    let _ = writeln!(s, "{}", line.trim_end());
+}
+
 fn profiles(s: &mut String, o: &Outcome) {
     let _ = writeln!(s, "segments at k = {} (means in original units; beside each, its standardised difference from\nall records, measured where the segments were made: after clipping and the transform)", o.chosen);
     let labels: Vec<String> = o
@@ -481,14 +531,6 @@ fn profiles(s: &mut String, o: &Outcome) {
     for block in o.profiles.chunks(SEGMENTS_PER_BLOCK) {
         let mut cols: Vec<&Profile> = vec![&o.overall];
         cols.extend(block.iter());
-        let row = |s: &mut String, name: &str, cells: Vec<String>| {
-            let mut line = format!("  {:<w$}", clip(name, NAME_WIDTH - 1), w = NAME_WIDTH - 2);
-            for (i, c) in cells.iter().enumerate() {
-                let w = if i == 0 { 10 } else { CELL };
-                let _ = write!(line, "{:>w$}", clip(c, w - 1));
-            }
-            let _ = writeln!(s, "{}", line.trim_end());
-        };
         row(
             s,
             "segment",
@@ -533,23 +575,7 @@ fn profiles(s: &mut String, o: &Outcome) {
                     .collect(),
             );
         }
-        for (f, fp) in o.prepared.features.iter().enumerate() {
-            let cells = cols
-                .iter()
-                .map(|p| {
-                    let fs = &p.features[f];
-                    // The value leaves room for its difference.
-                    let value = |room| people::compact(&o.plan, &fp.column, fs.mean, room);
-                    if p.segment.is_none() {
-                        value(CELL - 1)
-                    } else {
-                        // Differences right-aligned: `+1.3`, ` 0.0`.
-                        format!("{} {:>4}", value(CELL - 6), people::signed(fs.std_diff, 1))
-                    }
-                })
-                .collect();
-            row(s, people::name(&o.plan, &fp.column), cells);
-        }
+        feature_rows(s, o, &cols);
         for (c, cat) in o.prepared.categories.iter().enumerate() {
             for (l, level) in cat.levels.iter().enumerate() {
                 let cells = cols
@@ -564,6 +590,34 @@ fn profiles(s: &mut String, o: &Outcome) {
             row(s, &name, cells);
         }
         s.push('\n');
+    }
+}
+
+/// The rows of the clustered features: each segment's mean in the
+/// column's format with its standardised difference (an ordered
+/// category's mean rank, a flag's share set).
+fn feature_rows(s: &mut String, o: &Outcome, cols: &[&Profile]) {
+    for (f, fp) in o.prepared.features.iter().enumerate() {
+        let cells = cols
+            .iter()
+            .map(|p| {
+                let fs = &p.features[f];
+                // The value leaves room for its difference.
+                let value = |room| people::compact(&o.plan, &fp.column, fs.mean, room);
+                if p.segment.is_none() {
+                    value(CELL - 1)
+                } else {
+                    // Differences right-aligned: `+1.3`, ` 0.0`.
+                    format!("{} {:>4}", value(CELL - 6), people::signed(fs.std_diff, 1))
+                }
+            })
+            .collect();
+        let name = people::name(&o.plan, &fp.column);
+        match fp.kind {
+            crate::plan::FeatureKind::Number => row(s, name, cells),
+            crate::plan::FeatureKind::Ordered(_) => row(s, &format!("{name} (rank)"), cells),
+            crate::plan::FeatureKind::Flag => row(s, &format!("{name} (share set)"), cells),
+        }
     }
 }
 

@@ -285,6 +285,7 @@ fn validate(
         &super::load::Columns {
             key: (!plan.input.keyless).then_some(plan.input.key.as_str()),
             numeric: &[],
+            kinds: &[],
             text: &cols,
             decimal: plan.input.decimal,
         },

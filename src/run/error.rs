@@ -55,6 +55,16 @@ pub enum RunError {
         help: String,
     },
 
+    #[error("{place}: found `{found}`, which is not {}", if *.flag { format!("a value of the flag `{}`", place.name) } else { format!("one of the levels of `{}`", place.name) })]
+    #[diagnostic(code(assort::run::not_a_level), help("{help}"))]
+    NotALevel {
+        place: Place,
+        found: String,
+        /// A flag's value, else an ordered category's.
+        flag: bool,
+        help: String,
+    },
+
     #[error("{place}: value is missing and the recipe has no rule for missing values in `{}`", place.name)]
     #[diagnostic(
         code(assort::run::missing_value),

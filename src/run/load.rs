@@ -10,6 +10,7 @@
 
 use super::error::{Place, RunError};
 use crate::check::probe::{is_blank, number_help, parse_number_in, DecimalMark};
+use crate::plan::FeatureKind;
 use rayon::prelude::*;
 use std::path::Path;
 
@@ -124,6 +125,9 @@ pub struct Columns<'a> {
     /// (`input ... no key`).
     pub key: Option<&'a str>,
     pub numeric: &'a [String],
+    /// How the first numeric columns are coded (an ordered category or
+    /// a flag read through its levels); the rest are numbers.
+    pub kinds: &'a [FeatureKind],
     pub text: &'a [String],
     /// How the numeric columns write their decimals.
     pub decimal: DecimalMark,
@@ -208,9 +212,13 @@ fn load_parquet(path: &Path, shown: &str, cols: &Columns<'_>) -> Result<Table, R
     let schema = pq::schema(path).map_err(|e| unreadable(pq::words(&e)))?;
     let header = csv::StringRecord::from(schema.names.clone());
     let (key_at, num_at, text_at) = locate(&header, shown, cols)?;
-    let mut wanted: Vec<(usize, As)> = key_at.map(|k| (k, As::Texts)).into_iter().collect();
-    wanted.extend(num_at.iter().map(|&a| (a, As::Numbers)));
-    wanted.extend(text_at.iter().map(|&a| (a, As::Texts)));
+    let coded = |f: usize| cols.kinds.get(f).filter(|k| !k.is_number());
+    // Ordered categories and flags are read as text, then coded.
+    let as_read = |f: usize| coded(f).map_or(As::Numbers, |_| As::Texts);
+    let wanted: Vec<(usize, As)> = (key_at.iter().map(|&k| (k, As::Texts)))
+        .chain(num_at.iter().enumerate().map(|(f, &a)| (a, as_read(f))))
+        .chain(text_at.iter().map(|&a| (a, As::Texts)))
+        .collect();
     let place = |at: usize, record: usize| Place {
         file: shown.to_string(),
         line: record as u64 + 2,
@@ -221,18 +229,7 @@ fn load_parquet(path: &Path, shown: &str, cols: &Columns<'_>) -> Result<Table, R
         .par_iter()
         .map(|w| pq::read(path, std::slice::from_ref(w), None).map(|mut c| c.remove(0)))
         .collect::<Result<Vec<Column>, ReadError>>()
-        .map_err(|e| match e {
-            ReadError::NotANumber {
-                column,
-                record,
-                found,
-            } => RunError::NotANumber {
-                place: place(column, record),
-                help: number_help(&found, DecimalMark::Point),
-                found: crate::check::clipped(found.trim(), 60),
-            },
-            other => unreadable(pq::words(&other)),
-        })?;
+        .map_err(|e| read_error(e, &place, shown))?;
     let n = schema.records;
     let texts = |c: Column| match c {
         Column::Texts(t) => t,
@@ -260,12 +257,11 @@ fn load_parquet(path: &Path, shown: &str, cols: &Columns<'_>) -> Result<Table, R
             _ => table.keys.push(&line.to_string()),
         }
     }
-    for c in read.drain(..num_at.len()) {
-        let mut col = NumericColumn::default();
-        if let Column::Numbers(v) = c {
-            v.into_iter().for_each(|x| col.push(x));
-        }
-        table.numeric.push(col);
+    for (f, c) in read.drain(..num_at.len()).enumerate() {
+        let at = num_at[f];
+        table
+            .numeric
+            .push(numeric_column(c, coded(f), |i| place(at, i))?);
     }
     for c in read {
         let values = texts(c).into_iter();
@@ -277,6 +273,58 @@ fn load_parquet(path: &Path, shown: &str, cols: &Columns<'_>) -> Result<Table, R
     }
     no_repeated_key(&table, &header, key_at, shown)?;
     Ok(table)
+}
+
+/// A Parquet reading problem as a run error: a value that is not a
+/// number at its `place`, anything else as the file being unreadable.
+fn read_error(
+    e: crate::parquet::ReadError,
+    place: &impl Fn(usize, usize) -> Place,
+    shown: &str,
+) -> RunError {
+    match e {
+        crate::parquet::ReadError::NotANumber {
+            column,
+            record,
+            found,
+        } => RunError::NotANumber {
+            place: place(column, record),
+            help: number_help(&found, DecimalMark::Point),
+            found: crate::check::clipped(found.trim(), 60),
+        },
+        other => RunError::Unreadable {
+            file: shown.to_string(),
+            reason: crate::parquet::words(&other),
+        },
+    }
+}
+
+/// A Parquet column read for a numeric feature: numbers as they are, or
+/// an ordered category's or a flag's texts coded (a value that is no
+/// level is an error at `place` of its record).
+fn numeric_column(
+    column: crate::parquet::Column,
+    kind: Option<&FeatureKind>,
+    place: impl Fn(usize) -> Place,
+) -> Result<NumericColumn, RunError> {
+    use crate::parquet::Column;
+    let mut col = NumericColumn::default();
+    match (column, kind) {
+        (Column::Numbers(v), _) => v.into_iter().for_each(|x| col.push(x)),
+        (Column::Texts(t), Some(kind)) => {
+            for (i, text) in t.iter().enumerate() {
+                match text.as_deref().filter(|t| !is_blank(t)) {
+                    None => col.push(None),
+                    Some(text) => col.push(Some(
+                        kind.code(text)
+                            .ok_or_else(|| not_a_level(kind, place(i), text))?,
+                    )),
+                }
+            }
+        }
+        (Column::Texts(_), None) => {}
+    }
+    Ok(col)
 }
 
 /// Reads CSV text from `input` (shown as `shown` in messages), as [`load`]
@@ -315,6 +363,7 @@ fn read_table<R: std::io::Read>(
         num_at: &num_at,
         text_at: &text_at,
         decimal: cols.decimal,
+        kinds: cols.kinds,
     };
     let width = num_at.len().max(1);
     let mut batch: Vec<csv::ByteRecord> = Vec::new();
@@ -443,6 +492,7 @@ struct Decoder<'a> {
     num_at: &'a [usize],
     text_at: &'a [usize],
     decimal: DecimalMark,
+    kinds: &'a [FeatureKind],
 }
 
 impl Decoder<'_> {
@@ -494,12 +544,18 @@ impl Decoder<'_> {
                 continue;
             }
             missing[f] = false;
-            values[f] =
-                parse_number_in(text, self.decimal).ok_or_else(|| RunError::NotANumber {
-                    place: place(at),
-                    found: crate::check::clipped(text.trim(), 60),
-                    help: number_help(text, self.decimal),
-                })?;
+            values[f] = match self.kinds.get(f).filter(|k| !k.is_number()) {
+                Some(kind) => kind
+                    .code(text)
+                    .ok_or_else(|| not_a_level(kind, place(at), text))?,
+                None => {
+                    parse_number_in(text, self.decimal).ok_or_else(|| RunError::NotANumber {
+                        place: place(at),
+                        found: crate::check::clipped(text.trim(), 60),
+                        help: number_help(text, self.decimal),
+                    })?
+                }
+            };
         }
         let texts = self
             .text_at
@@ -510,7 +566,18 @@ impl Decoder<'_> {
     }
 }
 
-/// Help for a field that is not a number.
+/// A value of an ordered category or a flag that is none of its levels,
+/// with the levels and, where one is spelt alike, the nearest.
+pub(crate) fn not_a_level(kind: &FeatureKind, place: Place, text: &str) -> RunError {
+    let (_, help) = crate::check::kinds::level_words(kind, &place.name, text);
+    RunError::NotALevel {
+        place,
+        found: crate::check::clipped(text.trim(), 60),
+        flag: *kind == FeatureKind::Flag,
+        help,
+    }
+}
+
 /// A CSV reading error as a located run error.
 pub(crate) fn malformed(file: &str, e: &csv::Error) -> RunError {
     let line = e.position().map(|p| p.line()).unwrap_or(1);

@@ -298,6 +298,7 @@ struct CacheKey {
     decimal: crate::plan::DecimalMark,
     key: String,
     numeric: Vec<String>,
+    kinds: Vec<crate::plan::FeatureKind>,
     text: Vec<String>,
     len: u64,
     modified: Option<std::time::SystemTime>,
@@ -317,6 +318,7 @@ impl DataCache {
                 .map(|f| f.column.clone())
                 .chain(plan.tally.iter().cloned())
                 .collect(),
+            kinds: plan.features.iter().map(|f| f.kind.clone()).collect(),
             text: plan.categories.iter().map(|c| c.column.clone()).collect(),
             len: meta.as_ref().map_or(0, |m| m.len()),
             modified: meta.and_then(|m| m.modified().ok()),
@@ -329,6 +331,7 @@ impl DataCache {
                 &load::Columns {
                     key: (!plan.input.keyless).then_some(key.key.as_str()),
                     numeric: &key.numeric,
+                    kinds: &key.kinds,
                     text: &key.text,
                     decimal: plan.input.decimal,
                 },

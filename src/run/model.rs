@@ -432,7 +432,10 @@ fn prepare_record(
                     return false;
                 }
             },
-            Some(text) => match parse_number_in(text, model.decimal) {
+            Some(text) => match match fp.kind.is_number() {
+                true => parse_number_in(text, model.decimal),
+                false => fp.kind.code(text),
+            } {
                 Some(v) => v,
                 None => {
                     summary.not_numbers[f].1 += 1;

@@ -25,7 +25,7 @@
 use super::error::{Place, RunError};
 use super::load::Table;
 use crate::engine::stats;
-use crate::plan::{CategoryGaps, MissingRule, Plan, Scale, Transform};
+use crate::plan::{CategoryGaps, FeatureKind, MissingRule, Plan, Scale, Transform};
 use ndarray::Array2;
 use serde::Serialize;
 
@@ -45,6 +45,10 @@ pub struct FeatureParams {
     pub multiplier: f64,
     /// The column was constant after reshaping, so scaling left it at zero.
     pub constant: bool,
+    /// An ordered category or a flag, coded as numbers (models before
+    /// kinds hold numbers only, and read so).
+    #[serde(default, skip_serializing_if = "FeatureKind::is_number")]
+    pub kind: FeatureKind,
 }
 
 impl FeatureParams {
@@ -259,6 +263,7 @@ fn fill(
         divisor: 1.0,
         multiplier: fp.weight.sqrt(),
         constant: false,
+        kind: fp.kind.clone(),
     })
 }
 

@@ -7,6 +7,7 @@
 use super::load::Table;
 use super::prepare::{self, Prepared};
 use crate::engine::rules::{segment_rule, Condition, Sorted};
+use crate::plan::FeatureKind;
 use ndarray::Array2;
 use serde::Serialize;
 
@@ -27,6 +28,10 @@ pub struct RuleCondition {
     pub places: u32,
     /// The recipe's fill for the column's gaps, which the rule applies too.
     pub fill: Option<f64>,
+    /// An ordered category or a flag: the condition is on its rank (or
+    /// 1/0), and reads as levels.
+    #[serde(skip_serializing_if = "FeatureKind::is_number")]
+    pub kind: FeatureKind,
 }
 
 /// A segment's rule, in the order of the run's profiles.
@@ -174,6 +179,7 @@ fn written(
                 value: c.threshold,
                 places,
                 fill: feature.fill,
+                kind: feature.kind.clone(),
             }
         })
         .collect()

@@ -158,6 +158,17 @@ pub enum StatementKind {
         columns: Vec<Column>,
         options: Vec<OptionPair>,
     },
+    /// `ordered COLUMN "low" < "middle" < "high"`: a category whose
+    /// levels have an order, clustered by rank.
+    Ordered {
+        column: Column,
+        levels: Vec<Spanned<String>>,
+    },
+    /// `flags COLUMNS`: columns of two values (yes/no, true/false, 1/0),
+    /// clustered as 1 and 0.
+    Flags {
+        columns: Vec<Column>,
+    },
     Missing {
         action: Spanned<MissingAction>,
         columns: Option<Vec<Column>>,

@@ -134,6 +134,17 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
             columns: columns_of(&rest[0], off),
             options: options_of(&rest[1..], off),
         },
+        Rule::ordered_stmt => StatementKind::Ordered {
+            column: column_of(&rest[0], off),
+            levels: rest[1..]
+                .iter()
+                .filter(|p| p.as_rule() == Rule::level)
+                .map(|p| level_of(p, off))
+                .collect(),
+        },
+        Rule::flags_stmt => StatementKind::Flags {
+            columns: columns_of(&rest[0], off),
+        },
         Rule::missing_stmt => {
             let act = &rest[0];
             let action = if act.as_rule() == Rule::drop_rows {
@@ -273,6 +284,15 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
         kind,
         keyword,
         span,
+    }
+}
+
+/// A level of an ordered category: quoted text unescaped, a number or a
+/// word as written.
+fn level_of(pair: &Pair<'_, Rule>, off: usize) -> Spanned<String> {
+    match pair.clone().into_inner().next() {
+        Some(inner) if inner.as_rule() == Rule::text => text_of(&inner, off),
+        _ => Spanned::new(pair.as_str().to_string(), span_of(pair, off)),
     }
 }
 
@@ -442,6 +462,7 @@ fn describe(rule: Rule) -> &'static str {
         Rule::word => "a word",
         Rule::column | Rule::column_list => "a column name",
         Rule::option => "an option",
+        Rule::level => "a level (a quoted text, a word or a number)",
         Rule::EOI => "the end of the statement",
         Rule::all_columns | Rule::kw_all => "`all`",
         Rule::kw_except => "`except`",
@@ -474,6 +495,8 @@ pub fn shaping_statements(src: &str) -> Vec<String> {
                 StatementKind::Seed { .. }
                     | StatementKind::Features(_)
                     | StatementKind::Categories { .. }
+                    | StatementKind::Ordered { .. }
+                    | StatementKind::Flags { .. }
                     | StatementKind::Missing { .. }
                     | StatementKind::Transform { .. }
                     | StatementKind::Scale { .. }

@@ -79,6 +79,11 @@ impl Case {
         Run(cmd.output().unwrap())
     }
 
+    /// `assort assign MODEL DATA --out OUT`.
+    pub fn assign(&self, model: &str, data: &str, out: &str) -> Run {
+        self.assort(&["assign", model, data, "--out", out], &[])
+    }
+
     pub fn run(&self, recipe: &str) -> Run {
         self.assort(&["run", recipe], &[])
     }

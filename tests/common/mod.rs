@@ -4,6 +4,7 @@
 #![allow(dead_code)] // each test crate uses its own part of these helpers
 
 pub mod case;
+pub mod kinds;
 pub mod pg;
 
 use ndarray::Array2;

@@ -54,6 +54,16 @@ pub const STATEMENTS: &[StatementDoc] = &[
         example: "categories home_branch weight 0.5",
     },
     StatementDoc {
+        word: "ordered",
+        summary: "a column whose levels have an order (lowest first), clustered by rank: `<` between the levels",
+        example: r#"ordered loyalty_tier "seedling" < "sprout" < "harvest""#,
+    },
+    StatementDoc {
+        word: "flags",
+        summary: "columns of two values (yes/no, true/false, 1/0, on/off), clustered as 1 and 0 and profiled as the share set",
+        example: "flags newsletter, app_user",
+    },
+    StatementDoc {
         word: "missing",
         summary: "what to do with missing values: drop the record or fill",
         example: "missing fill median",
