@@ -63,7 +63,7 @@ pub(super) fn judge(
     });
     if let Some((f, _)) = floor {
         if eligible.is_empty() {
-            return Err(below_floor(f, x.nrows(), &sweep));
+            return Err(below_floor(f, x.nrows(), &sweep, plan));
         }
     }
     let picks = Picks::new(&eligible, eligible_gaps.as_deref());
@@ -71,7 +71,7 @@ pub(super) fn judge(
     if let Some((f, _)) = floor {
         if let Some(row) = sweep.iter().find(|r| r.k == chosen && r.below_floor) {
             // A k the recipe fixed, or the one a tree's height leaves.
-            return Err(below_floor(f, x.nrows(), std::slice::from_ref(row)));
+            return Err(below_floor(f, x.nrows(), std::slice::from_ref(row), plan));
         }
         reason.push_str(&floor_words(f, x.nrows(), &sweep, gaps.as_deref(), plan));
     }
@@ -97,7 +97,19 @@ fn smallest_segment(labels: &[u32], k: usize) -> usize {
 }
 
 /// The stop when no k fitted keeps every segment at or above the floor.
-fn below_floor(floor: SizeFloor, n: usize, rows: &[SweepRow]) -> RunError {
+fn below_floor(floor: SizeFloor, n: usize, rows: &[SweepRow], plan: &Plan) -> RunError {
+    // Methods that take the same columns.
+    let others = match &plan.method {
+        MethodPlan::Tree(t) if t.distance == crate::plan::Distance::Gower => {
+            "k-medoids or k-prototypes, which take the same columns"
+        }
+        MethodPlan::KMedoids(_) => "k-prototypes",
+        MethodPlan::KPrototypes(_) => "k-medoids",
+        MethodPlan::KMeans(_) => {
+            "k-medoids, whose centres are members, or a tree with Ward linkage"
+        }
+        MethodPlan::Tree(_) => "k-means, or a tree with Ward linkage",
+    };
     let smallest: Vec<String> = rows
         .iter()
         .map(|r| format!("k = {} has a segment of {}", r.k, thousands(r.smallest)))
@@ -107,7 +119,7 @@ fn below_floor(floor: SizeFloor, n: usize, rows: &[SweepRow]) -> RunError {
         floor: floor.words(n),
         smallest: smallest.join(", "),
         help: format!(
-            "lower the floor to {} or less, fit smaller k, or try a method less drawn to outlying records (k-means, or a tree with Ward linkage); a floor no k meets says the data holds small groups or outliers worth a look of their own",
+            "lower the floor to {} or less, fit smaller k, or try a method less drawn to outlying records ({others}); a floor no k meets says the data holds small groups or outliers worth a look of their own",
             thousands(most)
         ),
     }
