@@ -166,23 +166,30 @@ impl FeatureKind {
 
     /// The number a non-blank value of an ordered category or a flag
     /// stands for (`None`: not one of its levels or flag values); `None`
-    /// for a plain number, which is parsed as one.
+    /// for a plain number, which is parsed as one. For one value; a
+    /// column's values go through one [`Coder`].
     pub fn code(&self, text: &str) -> Option<f64> {
-        // Spaces only, as categories are read and as SQL's TRIM trims.
-        let text = crate::text::trim_spaces(text);
+        self.coder().code(text)
+    }
+
+    /// The kind's levels laid out once, to code a column's values.
+    pub fn coder(&self) -> Coder {
         match self {
-            FeatureKind::Number => None,
-            FeatureKind::Ordered(levels) => level_rank(levels, text).map(|r| r as f64),
-            FeatureKind::Flag => {
-                let is = |words: &[&str]| words.iter().any(|w| w.eq_ignore_ascii_case(text));
-                if is(&FLAG_SET) {
-                    Some(1.0)
-                } else if is(&FLAG_UNSET) {
-                    Some(0.0)
-                } else {
-                    None
-                }
-            }
+            FeatureKind::Number => Coder::Number,
+            FeatureKind::Flag => Coder::Flag,
+            FeatureKind::Ordered(levels) => match numeric_levels(levels) {
+                Some(values) => Coder::Numbers(values),
+                // The first of two equal levels wins, as the check refuses
+                // them anyway.
+                None => Coder::Texts(
+                    levels
+                        .iter()
+                        .enumerate()
+                        .rev()
+                        .map(|(r, l)| (l.clone(), r as f64 + 1.0))
+                        .collect(),
+                ),
+            },
         }
     }
 
@@ -221,19 +228,48 @@ impl FeatureKind {
     }
 }
 
-/// The 1-based rank of `text` among `levels`. Levels that are all
-/// numbers (`1 < 2 < 3`) are matched as numbers, so `2.0` from a
-/// spreadsheet or a database is level `2`; other levels are matched as
-/// written, letter case included. The scoring SQL matches the same way.
-pub fn level_rank(levels: &[String], text: &str) -> Option<usize> {
-    let at = match numeric_levels(levels) {
-        Some(values) => {
-            let v: f64 = text.parse().ok()?;
-            values.iter().position(|&x| x == v)
+/// A kind's values coded: an ordered level to its 1-based rank, a flag
+/// to 1 or 0. Levels that are all numbers (`1 < 2 < 3`) are matched as
+/// numbers, so `2.0` from a spreadsheet or a database is level `2`; other
+/// levels are matched as written, letter case included; spaces (only
+/// spaces) at the ends are trimmed, as categories are read and as SQL's
+/// `TRIM` trims. The scoring SQL matches the same way.
+#[derive(Debug, Clone)]
+pub enum Coder {
+    /// A plain number: nothing to code.
+    Number,
+    Texts(std::collections::HashMap<String, f64>),
+    Numbers(Vec<f64>),
+    Flag,
+}
+
+impl Coder {
+    /// The number `text` stands for; `None` when it is none of the
+    /// levels (or for a plain number).
+    pub fn code(&self, text: &str) -> Option<f64> {
+        let text = crate::text::trim_spaces(text);
+        match self {
+            Coder::Number => None,
+            Coder::Texts(ranks) => ranks.get(text).copied(),
+            Coder::Numbers(values) => {
+                let v: f64 = text.parse().ok()?;
+                values
+                    .iter()
+                    .position(|&x| x == v)
+                    .map(|at| at as f64 + 1.0)
+            }
+            Coder::Flag => {
+                let is = |words: &[&str]| words.iter().any(|w| w.eq_ignore_ascii_case(text));
+                if is(&FLAG_SET) {
+                    Some(1.0)
+                } else if is(&FLAG_UNSET) {
+                    Some(0.0)
+                } else {
+                    None
+                }
+            }
         }
-        None => levels.iter().position(|l| l == text),
-    };
-    at.map(|at| at + 1)
+    }
 }
 
 /// The levels as numbers, when every one is written as a number.
@@ -800,13 +836,25 @@ pub const MODEL_FORMAT: &str = "assort-model/2";
 
 /// Formats this assort reads: version 1 lacks the segments' means, which
 /// only "what changed" uses; it scores exactly as before.
-pub const MODEL_FORMATS_READ: [&str; 3] = ["assort-model/1", MODEL_FORMAT, MODEL_FORMAT_MEASURED];
+pub const MODEL_FORMATS_READ: [&str; 4] = [
+    "assort-model/1",
+    MODEL_FORMAT,
+    MODEL_FORMAT_MEASURED,
+    MODEL_FORMAT_KINDS,
+];
 
 /// The format of a model that scores by its own measure (k-medoids,
 /// k-prototypes, a tree on Gower's dissimilarity): version 2 with a
 /// `measure`, under a new name so that an assort that does not know
 /// measures refuses it rather than score it by the Euclidean distance.
 pub const MODEL_FORMAT_MEASURED: &str = "assort-model/3";
+
+/// The format of a model with an ordered category or a flag among its
+/// features (with or without a measure): an assort that does not know
+/// kinds would read `10 < 20 < 30` levels as the numbers 10, 20 and 30
+/// instead of ranks 1 to 3 and score wrong in silence, so the name is new
+/// and such an assort refuses it.
+pub const MODEL_FORMAT_KINDS: &str = "assort-model/4";
 
 /// How a data file writes the decimal mark: `1.5` or `1,5`.
 #[derive(

@@ -99,6 +99,18 @@ fn assign_reads_the_levels_and_flag_words_back() {
     let scored = case.segments_by_key("out/s.csv");
     assert_eq!(run.len(), 6000);
     assert_eq!(run, scored);
+    // Levels are ranks only to an assort that knows kinds: the model says
+    // so by its format, and one claiming an older format is refused.
+    let model = case.read("out/m.json");
+    assert!(model.contains("\"format\": \"assort-model/4\""));
+    case.write(
+        "old.json",
+        &model.replace("\"assort-model/4\"", "\"assort-model/2\""),
+    );
+    case.assign("old.json", "data/kinds.csv", "out/o.csv")
+        .fails()
+        .stderr_has("which only `assort-model/4` holds");
+    assert!(!case.path("out/o.csv").exists());
     // A new level in the scored file leaves its record out, counted.
     case.edit("data/kinds.csv", ",harvest,3,", ",evergreen,3,");
     let scoring = case
@@ -130,7 +142,7 @@ fn a_value_that_is_no_level_stops_the_run_at_its_line_with_nothing_written() {
             "`data/kinds.csv` line {line}, column 13 (`loyalty_tier`)"
         ))
         .stderr_has("which is not one of the levels of `loyalty_tier`")
-        .stderr_has("did you mean");
+        .stderr_has("the nearest level is `seedling`");
     assert!(!case.path("out").exists(), "nothing written");
 }
 

@@ -464,22 +464,7 @@ fn every_suggestion_is_a_quick_fix_and_applying_them_clears_the_errors() {
     // Applying every preferred fix (from the last in the text to the
     // first, so the earlier positions still hold) leaves a recipe whose
     // only remaining problem is the gap, which has fixes of its own.
-    let mut fixed = text.to_string();
-    let mut edits: Vec<(usize, usize, String)> = [column, statement, option, word]
-        .iter()
-        .map(|a| {
-            let (range, new) = edit_of(&a[0], &uri);
-            (
-                offset(text, &range["start"]),
-                offset(text, &range["end"]),
-                new,
-            )
-        })
-        .collect();
-    edits.sort_by_key(|e| std::cmp::Reverse(e.0));
-    for (start, end, new) in edits {
-        fixed.replace_range(start..end, &new);
-    }
+    let mut fixed = apply_first(text, &uri, &[column, statement, option, word]);
     s.notify(
         "textDocument/didChange",
         json!({"textDocument": {"uri": uri, "version": 2}, "contentChanges": [{"text": fixed}]}),
@@ -817,5 +802,32 @@ fn semantic_tokens_colour_the_demo_recipe() {
     assert_eq!(kind_of("share_prepared"), Some(3), "on a continued line");
     assert_eq!(kind_of("\"€\""), Some(5), "after a wide character");
     assert_eq!(kind_of("tally"), Some(0));
+    s.stop();
+}
+
+#[test]
+fn a_level_spelt_otherwise_in_the_data_gets_no_fix_that_edits_the_recipe() {
+    // The fault is in the data (`Mid` for `mid`): a quick fix replacing the
+    // column name with the level would break the recipe.
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(
+        dir.path().join("members.csv"),
+        "member_id,visits,tier\nM1,1,low\nM2,2,Mid\nM3,3,high\nM4,4,low\n",
+    )
+    .unwrap();
+    let mut s = Server::start();
+    let uri = uri_of(&dir, "kinds.assort");
+    let text = "input \"members.csv\" key member_id\nfeatures visits\nordered tier \"low\" < \"mid\" < \"high\"\nkmeans k 2\n";
+    open(&mut s, &uri, text);
+    let diags = s.diagnostics(&uri);
+    let d = diags
+        .iter()
+        .find(|d| d["code"] == "assort::not_a_level")
+        .unwrap_or_else(|| panic!("{diags:?}"));
+    assert!(d["message"].as_str().unwrap().contains("line 3"), "{d}");
+    assert!(
+        fixes_for(&mut s, &uri, &diags, "assort::not_a_level").is_empty(),
+        "no edit of the recipe mends the data"
+    );
     s.stop();
 }

@@ -289,3 +289,44 @@ fn ctrl_c_during_a_run_stops_the_run_and_keeps_the_session() {
     assert!(t.finish().success());
     assert!(!case.path("out").exists(), "the stopped run wrote outputs");
 }
+
+#[test]
+fn an_ordered_column_entered_again_replaces_its_levels_and_is_saved() {
+    let case = Case::empty();
+    case.write(
+        "data/members.csv",
+        "member_id,visits,tier,news\nM1,1,low,yes\nM2,2,high,no\nM3,3,mid,Y\nM4,4,low,N\nM5,9,high,yes\nM6,8,mid,no\n",
+    );
+    let mut t = Terminal::start(&case, "kinds.assort");
+    t.wait_for_prompt("assort> ");
+    for line in [
+        "input \"data/members.csv\" key member_id",
+        "features visits",
+        "ordered tier \"high\" < \"mid\" < \"low\"",
+        "flags news",
+        "kmeans k 2 restarts 3",
+    ] {
+        t.type_keys(&format!("{line}\r"));
+        t.wait_for_prompt("assort> ");
+    }
+    // The same column's levels again, in another order: one statement.
+    t.type_keys("ordered tier \"low\" < \"mid\" < \"high\"\r");
+    t.wait_for("replaced the earlier `ordered tier \"high\" < \"mid\" < \"low\"`");
+    t.wait_for_prompt("assort> ");
+    t.type_keys(":run\r");
+    t.wait_for("tier (rank)");
+    t.wait_for("news (share set)");
+    t.wait_for_prompt("assort> ");
+    t.type_keys(":quit\r");
+    t.wait_for_prompt("has unsaved changes");
+    t.type_keys("y\r");
+    t.wait_for("saved kinds.assort");
+    assert!(t.finish().success());
+    let saved = case.read("kinds.assort");
+    assert!(
+        saved.contains("ordered tier \"low\" < \"mid\" < \"high\""),
+        "{saved}"
+    );
+    assert!(!saved.contains("\"high\" < \"mid\""), "{saved}");
+    assert!(saved.contains("flags news"), "{saved}");
+}

@@ -10,7 +10,7 @@ impl Checker {
         input: Option<&CheckedInput>,
     ) -> Option<Vec<CategoryPlan>> {
         let mut out = Vec::new();
-        let mut seen: HashMap<String, Span> = HashMap::new();
+        let key = input.map(|i| i.plan.key.as_str());
         let mut ok = true;
         for s in stmts {
             let StatementKind::Categories { columns, options } = &s.kind else {
@@ -23,19 +23,11 @@ impl Checker {
             };
             ok &= weight.is_some();
             for col in columns {
-                if let Some(prev) = seen.get(&col.node) {
-                    self.err(CheckError::DuplicateColumn {
-                        column: col.node.clone(),
-                        span: col.span,
-                        first: *prev,
-                    });
-                    ok = false;
-                    continue;
+                let first = self.category_spans.get(&col.node).copied();
+                if first.is_none() {
+                    self.category_spans.insert(col.node.clone(), col.span);
                 }
-                seen.insert(col.node.clone(), col.span);
-                self.category_spans.insert(col.node.clone(), col.span);
-                if input.is_some_and(|i| i.plan.key == col.node) {
-                    self.key_clustered(col);
+                if !self.clustered_once(col, first, key) {
                     ok = false;
                     continue;
                 }
@@ -51,6 +43,30 @@ impl Checker {
             }
         }
         ok.then_some(out)
+    }
+
+    /// Whether `col` may be clustered: not named before among the
+    /// clustered columns (`first`, where it was), and not the key; else
+    /// the diagnostic.
+    pub(super) fn clustered_once(
+        &mut self,
+        col: &Column,
+        first: Option<Span>,
+        key: Option<&str>,
+    ) -> bool {
+        if let Some(first) = first {
+            self.err(CheckError::DuplicateColumn {
+                column: col.node.clone(),
+                span: col.span,
+                first,
+            });
+            return false;
+        }
+        if key == Some(col.node.as_str()) {
+            self.key_clustered(col);
+            return false;
+        }
+        true
     }
 
     pub(super) fn key_clustered(&mut self, col: &Column) {
@@ -191,16 +207,7 @@ impl Checker {
             .map(|(_, s)| *s)
             .or_else(|| self.category_spans.get(&col.node).copied())
             .or_else(|| self.kinds.get(&col.node).map(|(s, _)| *s));
-        if let Some(first) = first {
-            self.err(CheckError::DuplicateColumn {
-                column: col.node.clone(),
-                span: col.span,
-                first,
-            });
-            return None;
-        }
-        if key == Some(col.node.as_str()) {
-            self.key_clustered(col);
+        if !self.clustered_once(col, first, key) {
             return None;
         }
         match self.known_column(col)? {

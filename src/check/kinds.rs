@@ -78,16 +78,7 @@ impl Checker {
             .get(&col.node)
             .or_else(|| self.kinds.get(&col.node).map(|(s, _)| s))
             .copied();
-        if let Some(first) = first {
-            self.err(CheckError::DuplicateColumn {
-                column: col.node.clone(),
-                span: col.span,
-                first,
-            });
-            return false;
-        }
-        if key == Some(col.node.as_str()) {
-            self.key_clustered(col);
+        if !self.clustered_once(col, first, key) {
             return false;
         }
         if self.probe.is_none() {
@@ -126,8 +117,10 @@ impl Checker {
 pub(crate) fn level_words(kind: &FeatureKind, column: &str, found: &str) -> (String, String) {
     match kind {
         FeatureKind::Ordered(levels) => {
+            // Not phrased as "did you mean": the fault is in the data, and
+            // the editor's quick fixes turn that phrase into a recipe edit.
             let named = match suggest::nearest(found.trim(), levels.iter().map(String::as_str)) {
-                Some(n) => format!("did you mean `{n}`? "),
+                Some(n) => format!("the nearest level is `{n}`; "),
                 None => String::new(),
             };
             (

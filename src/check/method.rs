@@ -102,18 +102,20 @@ impl Checker {
         };
         let opts = self.options("kmedoids", options, vocab::KMEDOIDS_OPTIONS);
         let ks = self.required_ks("kmedoids", &opts, s.span);
-        let restarts = self
-            .whole_option(&opts, "restarts", 1, defaults::RESTARTS)
-            .and_then(|r| {
-                let why = "each restart swaps medoids over every pair of records; 10 to 50 restarts are usual";
-                self.at_most(&opts, "restarts", r, MOST_RESTARTS, why)
-            });
-        let passes = self
-            .whole_option(&opts, "passes", 1, defaults::PASSES)
-            .and_then(|p| {
-                let why = "a pass tries every record as a medoid; k-medoids settles in a few passes, and a cap this high only hides a run that does not";
-                self.at_most(&opts, "passes", p, MOST_ROUNDS, why)
-            });
+        let restarts = self.capped_option(
+            &opts,
+            "restarts",
+            defaults::RESTARTS,
+            MOST_RESTARTS,
+            "each restart swaps medoids over every pair of records; 10 to 50 restarts are usual",
+        );
+        let passes = self.capped_option(
+            &opts,
+            "passes",
+            defaults::PASSES,
+            MOST_ROUNDS,
+            "a pass tries every record as a medoid; k-medoids settles in a few passes, and a cap this high only hides a run that does not",
+        );
         let distance = self
             .word_option(
                 &opts,
@@ -144,18 +146,20 @@ impl Checker {
         };
         let opts = self.options("kprototypes", options, vocab::KPROTOTYPES_OPTIONS);
         let ks = self.required_ks("kprototypes", &opts, s.span);
-        let restarts = self
-            .whole_option(&opts, "restarts", 1, defaults::RESTARTS)
-            .and_then(|r| {
-                let why = "10 to 100 restarts find the best partition in practice";
-                self.at_most(&opts, "restarts", r, MOST_RESTARTS, why)
-            });
-        let rounds = self
-            .whole_option(&opts, "rounds", 1, defaults::ROUNDS)
-            .and_then(|r| {
-                let why = "k-prototypes settles in tens of rounds, and a cap this high only hides a run that does not";
-                self.at_most(&opts, "rounds", r, MOST_ROUNDS, why)
-            });
+        let restarts = self.capped_option(
+            &opts,
+            "restarts",
+            defaults::RESTARTS,
+            MOST_RESTARTS,
+            "10 to 100 restarts find the best partition in practice",
+        );
+        let rounds = self.capped_option(
+            &opts,
+            "rounds",
+            defaults::ROUNDS,
+            MOST_ROUNDS,
+            "k-prototypes settles in tens of rounds, and a cap this high only hides a run that does not",
+        );
         let gamma = match opts.get("gamma") {
             None => Some(None),
             Some(o) => match &o.value.node {

@@ -65,6 +65,20 @@ impl Checker {
         None
     }
 
+    /// Whole-number option `name` (1 or more, `default` unless given), at
+    /// most `most`, with `why` as the help for a value above it.
+    pub(super) fn capped_option(
+        &mut self,
+        opts: &HashMap<&'static str, &OptionPair>,
+        name: &str,
+        default: usize,
+        most: usize,
+        why: &str,
+    ) -> Option<usize> {
+        let value = self.whole_option(opts, name, 1, default)?;
+        self.at_most(opts, name, value, most, why)
+    }
+
     /// The records the sample counted or estimated, when known.
     pub(super) fn records(&self) -> Option<usize> {
         self.probe

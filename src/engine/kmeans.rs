@@ -292,9 +292,15 @@ pub fn nearest_with_margin(
 /// second-smallest squared distance (infinite with one centre).
 #[inline]
 pub(crate) fn nearest_two(row: &[f64], centres: &[f64], d: usize) -> (u32, f64, f64) {
+    two_smallest(centres.chunks_exact(d).map(|c| dist2(row, c)))
+}
+
+/// The place of the smallest of `values` (ties to the first), it, and the
+/// second smallest (infinite with one value). O(k) for k values.
+#[inline]
+pub fn two_smallest(values: impl Iterator<Item = f64>) -> (u32, f64, f64) {
     let (mut best, mut d1, mut d2) = (0u32, f64::INFINITY, f64::INFINITY);
-    for (j, c) in centres.chunks_exact(d).enumerate() {
-        let dd = dist2(row, c);
+    for (j, dd) in values.enumerate() {
         if dd < d1 {
             d2 = d1;
             d1 = dd;

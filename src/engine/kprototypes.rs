@@ -342,18 +342,23 @@ fn update(
             if sizes[s] == 0 {
                 continue;
             }
-            let row = &counts[s * levels..(s + 1) * levels];
-            let mut mode = 0;
-            for (level, &count) in row.iter().enumerate() {
-                if count > row[mode] {
-                    mode = level;
-                }
-            }
-            q.modes[c] = mode as u32;
+            q.modes[c] = mode(&counts[s * levels..(s + 1) * levels]) as u32;
         }
     }
     refill_empty(x, labels, costs, &sizes, &mut protos);
     protos
+}
+
+/// The most common level given each level's count, ties to the first
+/// level. O(levels).
+pub fn mode(counts: &[usize]) -> usize {
+    let mut mode = 0;
+    for (level, &count) in counts.iter().enumerate() {
+        if count > counts[mode] {
+            mode = level;
+        }
+    }
+    mode
 }
 
 /// Per segment and number column, the sum of its records' values: record

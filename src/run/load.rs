@@ -10,7 +10,7 @@
 
 use super::error::{Place, RunError};
 use crate::check::probe::{is_blank, number_help, parse_number_in, DecimalMark};
-use crate::plan::FeatureKind;
+use crate::plan::{Coder, FeatureKind};
 use rayon::prelude::*;
 use std::path::Path;
 
@@ -312,11 +312,13 @@ fn numeric_column(
     match (column, kind) {
         (Column::Numbers(v), _) => v.into_iter().for_each(|x| col.push(x)),
         (Column::Texts(t), Some(kind)) => {
+            let coder = kind.coder();
             for (i, text) in t.iter().enumerate() {
                 match text.as_deref().filter(|t| !is_blank(t)) {
                     None => col.push(None),
                     Some(text) => col.push(Some(
-                        kind.code(text)
+                        coder
+                            .code(text)
                             .ok_or_else(|| not_a_level(kind, place(i), text))?,
                     )),
                 }
@@ -364,6 +366,9 @@ fn read_table<R: std::io::Read>(
         text_at: &text_at,
         decimal: cols.decimal,
         kinds: cols.kinds,
+        coders: (0..num_at.len())
+            .map(|f| cols.kinds.get(f).map_or(Coder::Number, FeatureKind::coder))
+            .collect(),
     };
     let width = num_at.len().max(1);
     let mut batch: Vec<csv::ByteRecord> = Vec::new();
@@ -493,6 +498,8 @@ struct Decoder<'a> {
     text_at: &'a [usize],
     decimal: DecimalMark,
     kinds: &'a [FeatureKind],
+    /// Per numeric column, how its values are coded (laid out once).
+    coders: Vec<Coder>,
 }
 
 impl Decoder<'_> {
@@ -544,17 +551,18 @@ impl Decoder<'_> {
                 continue;
             }
             missing[f] = false;
-            values[f] = match self.kinds.get(f).filter(|k| !k.is_number()) {
-                Some(kind) => kind
-                    .code(text)
-                    .ok_or_else(|| not_a_level(kind, place(at), text))?,
-                None => {
+            values[f] = match &self.coders[f] {
+                Coder::Number => {
                     parse_number_in(text, self.decimal).ok_or_else(|| RunError::NotANumber {
                         place: place(at),
                         found: crate::check::clipped(text.trim(), 60),
                         help: number_help(text, self.decimal),
                     })?
                 }
+                // A coder other than a number's comes from `kinds[f]`.
+                coder => coder
+                    .code(text)
+                    .ok_or_else(|| not_a_level(&self.kinds[f], place(at), text))?,
             };
         }
         let texts = self

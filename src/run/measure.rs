@@ -96,6 +96,26 @@ impl<'a> Decoded<'a> {
         }
     }
 
+    /// The prepared records, their codes taken from the level codes
+    /// preparing kept (the same as decoding each row: a category's value
+    /// is never 0).
+    pub fn of_prepared(prepared: &'a Prepared) -> Decoded<'a> {
+        let categories = prepared.codes.len();
+        let n = prepared.matrix.nrows();
+        let mut codes = vec![gower::GAP; n * categories];
+        for (c, column) in prepared.codes.iter().enumerate() {
+            for (i, &l) in column.iter().enumerate() {
+                codes[i * categories + c] = l as u32;
+            }
+        }
+        Decoded {
+            x: prepared.matrix.view(),
+            codes,
+            categories,
+            numbers: prepared.features.len(),
+        }
+    }
+
     /// Record `i`'s category codes.
     fn codes(&self, i: usize) -> &[u32] {
         &self.codes[i * self.categories..(i + 1) * self.categories]
@@ -169,17 +189,9 @@ impl Measure {
         (0..x.len())
             .into_par_iter()
             .map(|i| {
-                let (mut best, mut d1, mut d2) = (0u32, f64::INFINITY, f64::INFINITY);
-                for j in 0..centres.len() {
-                    let d = self.distance(x, i, centres, j);
-                    if d < d1 {
-                        d2 = d1;
-                        d1 = d;
-                        best = j as u32;
-                    } else if d < d2 {
-                        d2 = d;
-                    }
-                }
+                let (best, d1, d2) = crate::engine::kmeans::two_smallest(
+                    (0..centres.len()).map(|j| self.distance(x, i, centres, j)),
+                );
                 let margin = if d2.is_finite() { d2 - d1 } else { 0.0 };
                 (best, d1, margin)
             })

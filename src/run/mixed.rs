@@ -25,8 +25,7 @@ fn matrix_measure(
     prepared: &Prepared,
     distance: Distance,
 ) -> (Measure, Condensed, usize) {
-    let layout = Layout::of(prepared);
-    let x = Decoded::new(prepared.matrix.view(), &layout);
+    let x = Decoded::of_prepared(prepared);
     let measure = match distance.metric() {
         Some(metric) => Measure::Rows { metric },
         None => {
@@ -274,7 +273,7 @@ pub(super) fn own<'a>(
         return None;
     }
     let layout = Layout::of(prepared);
-    let x = Decoded::new(prepared.matrix.view(), &layout);
+    let x = Decoded::of_prepared(prepared);
     let overall = match &fitted.matrix {
         Some(m) => {
             let all = vec![0u32; m.n()];
@@ -305,13 +304,7 @@ fn overall_prototype(prepared: &Prepared) -> Array2<f64> {
     for (cat, codes) in prepared.categories.iter().zip(&prepared.codes) {
         let mut counts = vec![0usize; cat.levels.len()];
         codes.iter().for_each(|&c| counts[c] += 1);
-        let mut mode = 0;
-        for (l, &count) in counts.iter().enumerate() {
-            if count > counts[mode] {
-                mode = l;
-            }
-        }
-        row[[0, at + mode]] = cat.value;
+        row[[0, at + kprototypes::mode(&counts)]] = cat.value;
         at += cat.levels.len();
     }
     row

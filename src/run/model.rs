@@ -16,11 +16,14 @@ use super::prepare::{self, CategoryParams, FeatureParams, BLANK_LEVEL};
 use super::{Assignment, Assignments, Outcome};
 use crate::check::probe::{is_blank, parse_number_in, DecimalMark};
 use crate::engine::{drift, kmeans};
+use crate::plan::Coder;
 use ndarray::{Array2, ArrayView2};
 use serde::{Deserialize, Serialize};
 
 use super::measure::{Decoded, Layout, Measure};
-pub use crate::plan::{MODEL_FORMAT, MODEL_FORMATS_READ, MODEL_FORMAT_MEASURED};
+pub use crate::plan::{
+    MODEL_FORMAT, MODEL_FORMATS_READ, MODEL_FORMAT_KINDS, MODEL_FORMAT_MEASURED,
+};
 
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct SegmentModel {
@@ -267,7 +270,9 @@ pub fn from_outcome(o: &Outcome, input_sha256: String) -> SegmentModel {
         own => Some(own.clone()),
     };
     SegmentModel {
-        format: if measure.is_some() {
+        format: if o.prepared.features.iter().any(|f| !f.kind.is_number()) {
+            MODEL_FORMAT_KINDS
+        } else if measure.is_some() {
             MODEL_FORMAT_MEASURED
         } else {
             MODEL_FORMAT
@@ -364,9 +369,10 @@ pub fn score(
     };
     let mut rows: Vec<f64> = Vec::with_capacity(n * width);
     let mut kept: Vec<usize> = Vec::with_capacity(n);
+    let coders: Vec<Coder> = model.features.iter().map(|f| f.kind.coder()).collect();
     for r in 0..n {
         let mut row = vec![0.0; width];
-        if prepare_record(model, table, r, &mut row, &mut summary) {
+        if prepare_record(model, &coders, table, r, &mut row, &mut summary) {
             rows.extend(row);
             kept.push(r);
         }
@@ -415,6 +421,7 @@ pub fn score(
 /// category level is counted but scored.
 fn prepare_record(
     model: &SegmentModel,
+    coders: &[Coder],
     table: &Table,
     r: usize,
     row: &mut [f64],
@@ -432,9 +439,9 @@ fn prepare_record(
                     return false;
                 }
             },
-            Some(text) => match match fp.kind.is_number() {
-                true => parse_number_in(text, model.decimal),
-                false => fp.kind.code(text),
+            Some(text) => match match &coders[f] {
+                Coder::Number => parse_number_in(text, model.decimal),
+                coder => coder.code(text),
             } {
                 Some(v) => v,
                 None => {
@@ -711,6 +718,12 @@ pub fn read_model(path: &std::path::Path) -> Result<SegmentModel, RunError> {
 fn inconsistency(m: &SegmentModel) -> Option<String> {
     if let Some(reason) = measure_inconsistency(m) {
         return Some(reason);
+    }
+    let kinds = m.features.iter().filter(|f| !f.kind.is_number()).count();
+    if kinds > 0 && m.format != MODEL_FORMAT_KINDS {
+        return Some(format!(
+            "its features include ordered categories or flags, which only `{MODEL_FORMAT_KINDS}` holds"
+        ));
     }
     if let Some(why) = m
         .features

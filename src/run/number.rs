@@ -95,7 +95,7 @@ pub(super) fn place(
         own => {
             let layout = Layout::of(prepared);
             own.distance_and_margin(
-                &Decoded::new(x, &layout),
+                &Decoded::of_prepared(prepared),
                 &Decoded::new(fit.centres.view(), &layout),
                 &fit.labels,
             )

@@ -162,41 +162,35 @@ type Drops = (Vec<usize>, Vec<(String, usize)>, Vec<LeftOut>);
 /// each `missing drop` column dropped, and why each dropped record was.
 fn drop_rows(plan: &Plan, table: &Table) -> Drops {
     let n = table.keys.len();
-    let mut keep = vec![true; n];
-    let mut dropped_by = Vec::new();
-    let mut drop_columns = Vec::new();
-    for (f, fp) in plan.features.iter().enumerate() {
-        if fp.missing == MissingRule::DropRow {
-            let mut count = 0;
-            for (row, v) in table.numeric[f].iter().enumerate() {
-                if v.is_none() {
-                    count += 1;
-                    keep[row] = false;
-                }
-            }
-            dropped_by.push((fp.column.clone(), count));
-            drop_columns.push(f);
-        }
-    }
     let nf = plan.features.len();
-    for (c, cp) in plan.categories.iter().enumerate() {
-        if cp.gaps == CategoryGaps::Drop {
-            let mut count = 0;
-            for (row, v) in table.text[c].iter().enumerate() {
-                if v.is_empty() {
-                    count += 1;
-                    keep[row] = false;
-                }
-            }
-            dropped_by.push((cp.column.clone(), count));
-            drop_columns.push(nf + c);
-        }
-    }
-    let kept = (0..n).filter(|&i| keep[i]).collect();
+    // A column's place: a feature by its plan position, a category `c`
+    // as nf + c.
     let gap = |at: usize, row: usize| match at.checked_sub(nf) {
         None => table.numeric[at].get(row).is_none(),
         Some(c) => table.text[c][row].is_empty(),
     };
+    let drop_columns: Vec<(usize, &str)> = (plan.features.iter().enumerate())
+        .filter(|(_, fp)| fp.missing == MissingRule::DropRow)
+        .map(|(f, fp)| (f, fp.column.as_str()))
+        .chain(
+            (plan.categories.iter().enumerate())
+                .filter(|(_, cp)| cp.gaps == CategoryGaps::Drop)
+                .map(|(c, cp)| (nf + c, cp.column.as_str())),
+        )
+        .collect();
+    let mut keep = vec![true; n];
+    let mut dropped_by = Vec::new();
+    for &(at, column) in &drop_columns {
+        let mut count = 0;
+        for (row, keep_row) in keep.iter_mut().enumerate() {
+            if gap(at, row) {
+                count += 1;
+                *keep_row = false;
+            }
+        }
+        dropped_by.push((column.to_string(), count));
+    }
+    let kept = (0..n).filter(|&i| keep[i]).collect();
     // Only the dropped records are looked at again, for why.
     let left_out = (0..n)
         .filter(|&i| !keep[i])
@@ -205,7 +199,7 @@ fn drop_rows(plan: &Plan, table: &Table) -> Drops {
             key: table.keys.get(row).to_string(),
             gaps: drop_columns
                 .iter()
-                .copied()
+                .map(|&(at, _)| at)
                 .filter(|&at| gap(at, row))
                 .collect(),
         })
