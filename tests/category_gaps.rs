@@ -111,3 +111,32 @@ fn keep_for_every_column_covers_the_categories_and_leaves_the_numbers_to_their_r
     c.run("r.assort").ok();
     assert_eq!(c.segments_by_key("out/a.csv").len(), 1200);
 }
+
+#[test]
+fn under_gower_a_kept_blank_is_compared_as_a_gap_and_assign_agrees() {
+    // Gower compares a pair on the columns both records have: a kept
+    // blank is such a gap, not a level that matches other blanks.
+    let c = case(true, "missing keep for branch");
+    c.edit(
+        "r.assort",
+        "kmeans k 2 restarts 3",
+        "kmedoids k 2 restarts 2",
+    );
+    c.run("r.assort").ok();
+    let model: serde_json::Value = serde_json::from_str(&c.read("out/m.json")).unwrap();
+    let levels = model["categories"][0]["levels"].as_array().unwrap();
+    assert_eq!(
+        levels[0], "(blank)",
+        "the blank kept as a level, sorted first"
+    );
+    assert_eq!(
+        model["measure"]["gower"]["gap_levels"],
+        serde_json::json!([null, null, 0]),
+        "and compared as a gap"
+    );
+    c.assign("out/m.json", "data/m.csv", "out/s.csv").ok();
+    assert_eq!(
+        c.segments_by_key("out/a.csv"),
+        c.segments_by_key("out/s.csv")
+    );
+}

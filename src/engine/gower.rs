@@ -3,9 +3,9 @@
 //! # Reference
 //! J. C. Gower, "A general coefficient of similarity and some of its
 //! properties", Biometrics 27(4), 857-871, 1971. Ordered levels as in
-//! L. Kaufman and P. J. Rousseeuw, "Finding Groups in Data", Wiley 1990,
-//! section 1.2.4: level r of M is scored (r - 1)/(M - 1) and then compared
-//! as a number.
+//! L. Kaufman and P. J. Rousseeuw, "Finding Groups in Data", Wiley 1990
+//! (recalled from memory): level r of M is scored (r - 1)/(M - 1) and then
+//! compared as a number.
 //!
 //! # Definition
 //! ```text
@@ -16,6 +16,9 @@
 //!   category:                    s = 0 when the levels are equal, else 1
 //!   δ_ijf = 0 when either record has a gap in f, else 1
 //! ```
+//! A category level may stand for a gap (a blank kept as a level of its
+//! own): it is then compared as a gap.
+//!
 //! so a pair compares only the columns both records have, and every value
 //! is in [0, 1]. A pair with no column in common has no Gower
 //! dissimilarity; it is taken as 1 (as far apart as Gower allows) and
@@ -106,6 +109,10 @@ pub struct Gower {
     pub weights: Vec<f64>,
     /// Per column, the range of its values; `None` for categories.
     pub ranges: Vec<Option<f64>>,
+    /// Per column, the category level that stands for a gap, if one does;
+    /// empty when none does.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub gap_levels: Vec<Option<u32>>,
 }
 
 impl Gower {
@@ -132,7 +139,24 @@ impl Gower {
         Gower {
             weights: weights.to_vec(),
             ranges,
+            gap_levels: Vec::new(),
         }
+    }
+
+    /// The same measure with, per column, a category level compared as a
+    /// gap (`None`: none).
+    pub fn with_gap_levels(mut self, gap_levels: Vec<Option<u32>>) -> Gower {
+        self.gap_levels = if gap_levels.iter().all(Option::is_none) {
+            Vec::new()
+        } else {
+            gap_levels
+        };
+        self
+    }
+
+    /// Whether level `x` of column `f` is a gap.
+    fn is_gap_level(&self, f: usize, x: u32) -> bool {
+        x == GAP || self.gap_levels.get(f).copied().flatten() == Some(x)
     }
 
     /// The weighted sum of the column scores of record `i` of `a` against
@@ -155,7 +179,7 @@ impl Gower {
                 }
                 (Column::Nominal(x), Column::Nominal(y)) => {
                     let (x, y) = (x[i], y[j]);
-                    if x == GAP || y == GAP {
+                    if self.is_gap_level(f, x) || self.is_gap_level(f, y) {
                         continue;
                     }
                     if x == y {
@@ -207,7 +231,7 @@ impl Gower {
             den += self.weights[f];
         }
         for (c, (&x, &y)) in a.1.iter().zip(b.1).enumerate() {
-            if x == GAP || y == GAP {
+            if self.is_gap_level(p + c, x) || self.is_gap_level(p + c, y) {
                 continue;
             }
             let w = self.weights[p + c];
@@ -304,6 +328,45 @@ mod tests {
         assert_eq!(m.get(0, 1), 1.0);
         assert!(!g.comparable(&t, 0, &t, 1));
         assert_eq!(m.get(1, 2), 0.0);
+    }
+
+    #[test]
+    fn a_level_standing_for_a_gap_compares_as_a_gap() {
+        // Numbers first, then a category whose level 2 is a kept blank:
+        // marking level 2 as a gap gives, bit for bit, what the same table
+        // with real gaps gives, in the matrix and in values.
+        let numbers = [vec![1.0, 3.0, 5.0, f64::NAN], vec![0.0, 1.0, 0.5, 0.5]];
+        let with = |codes: Vec<u32>| {
+            Mixed::new(vec![
+                Column::Interval(numbers[0].clone()),
+                Column::Interval(numbers[1].clone()),
+                Column::Nominal(codes),
+            ])
+            .expect("equal lengths")
+        };
+        let (blank, gaps) = (with(vec![0, 2, 0, 2]), with(vec![0, GAP, 0, GAP]));
+        let weights = [1.0, 1.0, 2.0];
+        let marked = Gower::fit(&blank, &weights).with_gap_levels(vec![None, None, Some(2)]);
+        let plain = Gower::fit(&gaps, &weights);
+        let (mb, mg) = (marked.matrix(&blank).0, plain.matrix(&gaps).0);
+        for (i, j) in [(0, 1), (0, 2), (1, 3), (2, 3)] {
+            assert_eq!(mb.get(i, j).to_bits(), mg.get(i, j).to_bits(), "{i} {j}");
+            let values = |t: &Mixed, r: usize| {
+                let Column::Nominal(c) = &t.columns[2] else {
+                    unreachable!("the third column is the category")
+                };
+                ([numbers[0][r], numbers[1][r]], [c[r]])
+            };
+            let (a, b) = (values(&blank, i), values(&blank, j));
+            let (c, d) = (values(&gaps, i), values(&gaps, j));
+            assert_eq!(
+                marked.between_values((&a.0, &a.1), (&b.0, &b.1)).to_bits(),
+                plain.between_values((&c.0, &c.1), (&d.0, &d.1)).to_bits()
+            );
+        }
+        // Two blanks share nothing in that column: records 1 and 3 are
+        // compared on the numbers alone.
+        assert!(mb.get(1, 3) < 1.0);
     }
 
     #[test]

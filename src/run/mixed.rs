@@ -36,12 +36,26 @@ fn matrix_measure(
                 .chain(plan.categories.iter().map(|c| c.weight))
                 .collect();
             Measure::Gower {
-                gower: Gower::fit(&mixed(&x), &weights),
+                gower: Gower::fit(&mixed(&x), &weights).with_gap_levels(blank_levels(prepared)),
             }
         }
     };
     let (m, apart) = measure.matrix(&x);
     (measure, m, apart)
+}
+
+/// Per Gower column, the level a kept blank became (`(blank)`): Gower
+/// compares it as a gap, so a pair is measured on the columns both records
+/// have (the numbers have none).
+fn blank_levels(prepared: &Prepared) -> Vec<Option<u32>> {
+    let numbers = prepared.features.iter().map(|_| None);
+    let categories = prepared.categories.iter().map(|c| {
+        c.levels
+            .iter()
+            .position(|l| l == super::prepare::BLANK_LEVEL)
+            .map(|at| at as u32)
+    });
+    numbers.chain(categories).collect()
 }
 
 /// How the restarts of a fit on every record went.

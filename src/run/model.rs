@@ -786,7 +786,16 @@ fn measure_inconsistency(m: &SegmentModel) -> Option<String> {
     let (nf, nc) = (m.features.len(), m.categories.len());
     match &m.measure {
         Some(Measure::Gower { gower }) => {
-            let shape = gower.weights.len() == nf + nc
+            let gaps = &gower.gap_levels;
+            let gap_levels = gaps.is_empty()
+                || (gaps.len() == nf + nc
+                    && gaps[..nf].iter().all(Option::is_none)
+                    && gaps[nf..]
+                        .iter()
+                        .zip(&m.categories)
+                        .all(|(g, c)| g.is_none_or(|g| (g as usize) < c.levels.len())));
+            let shape = gap_levels
+                && gower.weights.len() == nf + nc
                 && gower.ranges.len() == nf + nc
                 && gower.ranges[..nf].iter().all(|r| r.is_some_and(|r| r.is_finite() && r >= 0.0))
                 && gower.ranges[nf..].iter().all(Option::is_none);
