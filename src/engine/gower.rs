@@ -154,9 +154,11 @@ impl Gower {
         self
     }
 
-    /// Whether level `x` of column `f` is a gap.
-    fn is_gap_level(&self, f: usize, x: u32) -> bool {
-        x == GAP || self.gap_levels.get(f).copied().flatten() == Some(x)
+    /// The level of column `f` that stands for a gap; [`GAP`] when none
+    /// does (so comparing a code with it and with [`GAP`] is one test).
+    #[inline]
+    fn gap_level(&self, f: usize) -> u32 {
+        self.gap_levels.get(f).copied().flatten().unwrap_or(GAP)
     }
 
     /// The weighted sum of the column scores of record `i` of `a` against
@@ -178,8 +180,8 @@ impl Gower {
                     }
                 }
                 (Column::Nominal(x), Column::Nominal(y)) => {
-                    let (x, y) = (x[i], y[j]);
-                    if self.is_gap_level(f, x) || self.is_gap_level(f, y) {
+                    let (x, y, g) = (x[i], y[j], self.gap_level(f));
+                    if x == GAP || y == GAP || x == g || y == g {
                         continue;
                     }
                     if x == y {
@@ -231,7 +233,8 @@ impl Gower {
             den += self.weights[f];
         }
         for (c, (&x, &y)) in a.1.iter().zip(b.1).enumerate() {
-            if self.is_gap_level(p + c, x) || self.is_gap_level(p + c, y) {
+            let g = self.gap_level(p + c);
+            if x == GAP || y == GAP || x == g || y == g {
                 continue;
             }
             let w = self.weights[p + c];
