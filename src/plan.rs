@@ -55,6 +55,11 @@ pub struct Plan {
     /// Columns profiled per segment but not clustered (`tally`), read
     /// as numbers after the features.
     pub tally: Vec<String>,
+    /// The column whose value says how many members each record stands
+    /// for (`represents`): record weights, read as a number after the
+    /// `tally` columns.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub record_weights: Option<String>,
     /// How people see a column (`call`), by column name.
     pub display: BTreeMap<String, Display>,
 }
@@ -672,15 +677,17 @@ impl SizeFloor {
         }
     }
 
-    /// The floor in words: "250 records", "5 % of the records (300)".
-    pub fn words(self, n: usize) -> String {
+    /// The floor in words: "250 records", "5 % of the records (300)";
+    /// `noun` says what is counted ("records", or "weighted members" when
+    /// records carry weights).
+    pub fn words(self, n: usize, noun: &str) -> String {
         match self {
-            SizeFloor::Records(r) => format!("{} records", crate::text::thousands(r)),
+            SizeFloor::Records(r) => format!("{} {noun}", crate::text::thousands(r)),
             SizeFloor::Share(s) => {
                 let percent = format!("{:.2}", 100.0 * s);
                 let percent = percent.trim_end_matches('0').trim_end_matches('.');
                 format!(
-                    "{percent} % of the records ({})",
+                    "{percent} % of the {noun} ({})",
                     crate::text::thousands(self.records(n))
                 )
             }

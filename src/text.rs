@@ -68,6 +68,16 @@ pub fn short_grouped(v: f64) -> String {
     }
 }
 
+/// Weighted members (a sum of record weights): whole sums as counts
+/// (`1,204`), others to three significant figures or more (`99.5`).
+pub fn members(w: f64) -> String {
+    if w.is_finite() && w.fract() == 0.0 && w.abs() < 1e15 {
+        group_digits(&format!("{w:.0}"))
+    } else {
+        short_grouped(w)
+    }
+}
+
 /// Names joined for a sentence: `a`, `a and b`, `a, b and c`.
 pub fn and_list(names: &[String]) -> String {
     match names {

@@ -2,8 +2,9 @@
 //! construction: well-separated blobs, and clouds with no structure.
 
 use assort::engine::evidence::{bootstrap_stability, gap_choice, gap_statistic, Recluster};
-use assort::engine::kmeans::{kmeans, KMeansSettings, Seeding};
+use assort::engine::kmeans::{kmeans_weighted, KMeansSettings, Seeding};
 use assort::engine::rng::Stream;
+use assort::engine::weights::Weights;
 use ndarray::{Array2, ArrayView2};
 
 fn normal(s: &mut Stream) -> f64 {
@@ -20,7 +21,7 @@ fn blobs(centres: &[[f64; 2]], per: usize, seed: u64) -> Array2<f64> {
     })
 }
 
-fn kmeans_at(data: ArrayView2<'_, f64>, ks: &[usize], seed: u64) -> Vec<Vec<u32>> {
+fn kmeans_at(data: ArrayView2<'_, f64>, w: Weights<'_>, ks: &[usize], seed: u64) -> Vec<Vec<u32>> {
     ks.iter()
         .map(|&k| {
             let settings = KMeansSettings {
@@ -33,7 +34,7 @@ fn kmeans_at(data: ArrayView2<'_, f64>, ks: &[usize], seed: u64) -> Vec<Vec<u32>
                 sample: None,
                 start: None,
             };
-            kmeans(data, &settings)
+            kmeans_weighted(data, w, &settings)
                 .map(|f| f.labels)
                 .unwrap_or_else(|_| vec![0; data.nrows()])
         })
@@ -47,7 +48,13 @@ fn the_gap_statistic_finds_three_well_separated_blobs() {
     // Unequal spacing: the square box of an equilateral layout can split in
     // two as well as the data does, which hides k = 2 -> 3 from the rule.
     let x = blobs(&[[0.0, 0.0], [10.0, 0.0], [30.0, 4.0]], 60, 1);
-    let gaps = gap_statistic(x.view(), &[2, 3, 4, 5, 6], 20, 7, RECLUSTER);
+    let gaps = gap_statistic(
+        (x.view(), Weights::NONE),
+        &[2, 3, 4, 5, 6],
+        20,
+        7,
+        RECLUSTER,
+    );
     assert_eq!(gaps[0].k, 1);
     assert_eq!(gap_choice(&gaps), Some(3), "{gaps:?}");
 }
@@ -55,15 +62,15 @@ fn the_gap_statistic_finds_three_well_separated_blobs() {
 #[test]
 fn the_gap_statistic_finds_no_structure_in_one_gaussian_cloud() {
     let x = blobs(&[[0.0, 0.0]], 200, 2);
-    let gaps = gap_statistic(x.view(), &[2, 3, 4, 5], 20, 7, RECLUSTER);
+    let gaps = gap_statistic((x.view(), Weights::NONE), &[2, 3, 4, 5], 20, 7, RECLUSTER);
     assert_eq!(gap_choice(&gaps), Some(1), "{gaps:?}");
 }
 
 #[test]
 fn separated_blobs_are_stable_and_a_cut_uniform_cloud_is_not() {
     let x = blobs(&[[0.0, 0.0], [12.0, 0.0], [6.0, 10.0], [18.0, 10.0]], 50, 3);
-    let labels = kmeans_at(x.view(), &[4], 11);
-    let firm = bootstrap_stability(x.view(), &[4], &labels, 20, 5, RECLUSTER);
+    let labels = kmeans_at(x.view(), Weights::NONE, &[4], 11);
+    let firm = bootstrap_stability((x.view(), Weights::NONE), &[4], &labels, 20, 5, RECLUSTER);
     assert!(firm[0].mean_ari > 0.95, "{firm:?}");
     assert!(firm[0].jaccard.iter().all(|&j| j > 0.9), "{firm:?}");
 
@@ -76,8 +83,15 @@ fn separated_blobs_are_stable_and_a_cut_uniform_cloud_is_not() {
         cloud[[i, 0]] = r * t.cos();
         cloud[[i, 1]] = r * t.sin();
     }
-    let labels = kmeans_at(cloud.view(), &[4], 11);
-    let loose = bootstrap_stability(cloud.view(), &[4], &labels, 20, 5, RECLUSTER);
+    let labels = kmeans_at(cloud.view(), Weights::NONE, &[4], 11);
+    let loose = bootstrap_stability(
+        (cloud.view(), Weights::NONE),
+        &[4],
+        &labels,
+        20,
+        5,
+        RECLUSTER,
+    );
     assert!(
         loose[0].mean_ari < firm[0].mean_ari - 0.15,
         "firm {} vs loose {}",
@@ -89,7 +103,7 @@ fn separated_blobs_are_stable_and_a_cut_uniform_cloud_is_not() {
 #[test]
 fn evidence_is_repeatable() {
     let x = blobs(&[[0.0, 0.0], [8.0, 0.0]], 40, 9);
-    let a = gap_statistic(x.view(), &[2, 3], 5, 1, RECLUSTER);
-    let b = gap_statistic(x.view(), &[2, 3], 5, 1, RECLUSTER);
+    let a = gap_statistic((x.view(), Weights::NONE), &[2, 3], 5, 1, RECLUSTER);
+    let b = gap_statistic((x.view(), Weights::NONE), &[2, 3], 5, 1, RECLUSTER);
     assert_eq!(a, b);
 }

@@ -9,6 +9,7 @@
 
 use assort::engine::kmeans::{kmeans_with, KMeansSettings, Search, Seeding};
 use assort::engine::rng::Stream;
+use assort::engine::weights::Weights;
 use ndarray::Array2;
 
 mod common;
@@ -27,8 +28,8 @@ fn settings(k: usize, seeding: Seeding, seed: u64) -> KMeansSettings {
 }
 
 fn both(x: &Array2<f64>, s: &KMeansSettings, what: &str) {
-    let bounded = kmeans_with(x.view(), s, Search::Bounded).unwrap();
-    let exhaustive = kmeans_with(x.view(), s, Search::Exhaustive).unwrap();
+    let bounded = kmeans_with(x.view(), Weights::NONE, s, Search::Bounded).unwrap();
+    let exhaustive = kmeans_with(x.view(), Weights::NONE, s, Search::Exhaustive).unwrap();
     common::same_fit(&bounded, &exhaustive, what);
 }
 

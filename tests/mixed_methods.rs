@@ -101,6 +101,7 @@ fn k_prototypes_recovers_planted_segments_that_one_hot_kmeans_blurs() {
         codes: &codes,
         levels: &[30],
         gamma: &[gamma],
+        weights: assort::engine::weights::Weights::NONE,
     };
     let settings = KPrototypesSettings {
         k: 4,

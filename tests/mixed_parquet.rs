@@ -1,6 +1,7 @@
 //! Issue 19's acceptance on a mixed customer table in Parquet: numbers
 //! with gaps, a category of 32 levels, an ordered band (dictionary text),
-//! a flag (a Parquet boolean) and a size floor, run end to end with each
+//! a flag (a Parquet boolean), a record weight (`represents household`,
+//! a Parquet integer) and a size floor in weighted members, run end to end with each
 //! of k-prototypes, k-medoids on Gower's dissimilarity and an
 //! average-linkage tree on Gower's dissimilarity: profiles, report,
 //! model, `assign` on the Parquet file, a rerun with `previous`, and
@@ -15,15 +16,16 @@ mod common;
 
 use arrow_array::types::Int32Type;
 use arrow_array::{
-    ArrayRef, BooleanArray, DictionaryArray, Float64Array, RecordBatch, StringArray,
+    ArrayRef, BooleanArray, DictionaryArray, Float64Array, Int32Array, RecordBatch, StringArray,
 };
 use common::case::Case;
 use std::sync::Arc;
 
 /// Writes `data/members.parquet`: key, four behaviour numbers (blanks
 /// as nulls), `region` (home branch by one of eight districts: 32 levels),
-/// `loyalty_tier` (from tenure) and `newsletter` (agreed to be
-/// contacted, a boolean).
+/// `loyalty_tier` (from tenure), `newsletter` (agreed to be contacted, a
+/// boolean) and `household` (members the record stands for, 1 to 4 in
+/// turn: this test's construction).
 fn write_members(case: &Case) {
     let text = case.read("data/coop_members.csv");
     let mut reader = csv::Reader::from_reader(text.as_bytes());
@@ -58,6 +60,11 @@ fn write_members(case: &Case) {
             .map(|r| &r[at("contactable")] == "1")
             .collect::<Vec<_>>(),
     );
+    let household = Int32Array::from(
+        (0..rows.len())
+            .map(|n| 1 + (n % 4) as i32)
+            .collect::<Vec<_>>(),
+    );
     let batch = RecordBatch::try_from_iter(vec![
         (
             "member_id",
@@ -72,6 +79,7 @@ fn write_members(case: &Case) {
         ("region", Arc::new(region) as ArrayRef),
         ("loyalty_tier", Arc::new(tier) as ArrayRef),
         ("newsletter", Arc::new(newsletter) as ArrayRef),
+        ("household", Arc::new(household) as ArrayRef),
     ])
     .unwrap();
     let file = std::fs::File::create(case.path("data/members.parquet")).unwrap();
@@ -81,7 +89,7 @@ fn write_members(case: &Case) {
 }
 
 /// The mixed table's recipe with `method`, a size floor of `floor`
-/// records, and `extra` statements.
+/// weighted members, and `extra` statements.
 fn recipe(method: &str, floor: usize, extra: &str) -> String {
     format!(
         r#"recipe "mixed-parquet"
@@ -91,6 +99,7 @@ features visits_per_month, basket_value, share_fresh, online_ratio
 categories region
 ordered loyalty_tier "seedling" < "sprout" < "harvest"
 flags newsletter
+represents household
 missing fill median
 {method}
 choose k by silhouette floor {floor}
@@ -115,12 +124,23 @@ fn end_to_end(method: &str, floor: usize) -> usize {
     let profiles: serde_json::Value = serde_json::from_str(&case.read("out/p.json")).unwrap();
     let segments = profiles["segments"].as_array().unwrap();
     assert!(segments.len() >= 3, "{method}");
+    // 6,000 records stand for 15,000 members (1 + n mod 4 summed).
+    let members: f64 = segments
+        .iter()
+        .map(|s| s["weighted_members"].as_f64().unwrap())
+        .sum();
+    assert_eq!(members, 15_000.0, "{method}");
     for s in segments {
         assert!(
-            s["size"].as_u64().unwrap() >= floor as u64,
-            "{method}: the floor holds"
+            s["weighted_members"].as_f64().unwrap() >= floor as f64,
+            "{method}: the floor holds in weighted members"
         );
     }
+    let words = out.split_whitespace().collect::<Vec<_>>().join(" ");
+    assert!(
+        words.contains("6,000 records stand for 15,000 weighted members"),
+        "{method}: {out}"
+    );
     let report = case.read("out/r.html");
     assert!(
         report.contains("&quot;seedling&quot; &lt; &quot;sprout&quot;"),
@@ -129,6 +149,10 @@ fn end_to_end(method: &str, floor: usize) -> usize {
     assert!(
         report.contains("a flag, clustered as 1 set and 0 not"),
         "{method}"
+    );
+    assert!(
+        report.contains("weighted members</span> ("),
+        "{method}: the cards lead with members"
     );
     case.assign("out/m.json", "data/members.parquet", "out/s.csv")
         .ok();
@@ -162,16 +186,17 @@ fn kmedoids_on_gower_on_a_mixed_parquet_table_end_to_end() {
 
 #[test]
 fn an_average_gower_tree_on_a_mixed_parquet_table_end_to_end() {
-    // Average linkage isolates a pair of outlying members at every k from
-    // 3 to 5: a floor of 60 stops the run and names the methods that take
-    // the same columns; a floor of 2 (no member alone) lets it through.
+    // Average linkage isolates a pair of outlying members (standing for 6
+    // members) at every k from 3 to 5: a floor of 60 weighted members stops
+    // the run and names the methods that take the same columns; a floor of
+    // 2 lets it through.
     let case = Case::demo();
     write_members(&case);
     let method = "tree linkage average distance gower k 3..5";
     case.write("m.assort", &recipe(method, 60, ""));
     case.run("m.assort")
         .fails()
-        .stderr_has("k = 3 has a segment of 2")
+        .stderr_has("floor of 60 weighted members: k = 3 has a segment of 6,")
         .stderr_has("(k-medoids or k-prototypes, which take the same columns)");
     assert!(!case.path("out").exists(), "nothing written");
     // A tree's segments are its cut, not nearest medoids, so `assign`

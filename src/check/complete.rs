@@ -252,6 +252,7 @@ fn after(statement: &str, toks: &[Placed<'_>], data: &DataView<'_>) -> Vec<Item>
         }
         "acknowledge" if list_place => cols(Wanted::Any),
         "tally" if list_place => cols(Wanted::Numeric),
+        "represents" if count == 1 => cols(Wanted::Numeric),
         "call" if count == 1 => cols(Wanted::Any),
         "categories" if list_place => cols(Wanted::Text),
         "ordered" if count == 1 => cols(Wanted::Any),

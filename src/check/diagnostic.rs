@@ -289,6 +289,16 @@ pub enum CheckError {
         linkage_span: Span,
     },
 
+    #[error("`{column}` cannot weigh records: {why}")]
+    #[diagnostic(code(assort::not_a_weight), help("{help}"))]
+    NotAWeight {
+        column: String,
+        why: String,
+        #[label("not a record weight")]
+        span: Span,
+        help: String,
+    },
+
     #[error("`{column}` cannot be tallied: {why}")]
     #[diagnostic(code(assort::not_tallied), help("{help}"))]
     NotTallied {

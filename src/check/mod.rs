@@ -324,7 +324,7 @@ pub const MAX_K_SPAN: i64 = 500;
 pub use crate::plan::TreeLimit;
 
 /// Statements that may appear once, by word.
-const SINGLE: [&str; 14] = [
+const SINGLE: [&str; 15] = [
     "recipe",
     "seed",
     "input",
@@ -339,6 +339,7 @@ const SINGLE: [&str; 14] = [
     "validate",
     "compare",
     "previous",
+    "represents",
 ];
 
 struct Checker {
@@ -475,11 +476,9 @@ impl Checker {
         self.cautions(stmts, features.as_deref(), categories.as_deref());
         let rules = self.rules(stmts);
         let key = input.as_ref().map(|i| i.plan.key.clone());
-        let tally = self.tallied(
-            stmts,
-            key.as_deref(),
-            features.as_deref().unwrap_or_default(),
-        );
+        let clustered = features.as_deref().unwrap_or_default();
+        let tally = self.tallied(stmts, key.as_deref(), clustered);
+        let record_weights = self.record_weights(find("represents"), key.as_deref(), clustered);
         let display = self.display(stmts);
         let features = features.map(|f| self.feature_rules(&rules, f));
         let categories = categories.map(|c| self.category_gaps(&rules, c));
@@ -534,6 +533,7 @@ impl Checker {
             previous: previous?.map(|p| p.plan),
             outputs: outputs?,
             tally: tally?,
+            record_weights: record_weights?,
             display: display?,
             label_lines: BTreeMap::new(),
         })

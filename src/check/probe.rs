@@ -40,8 +40,9 @@ pub struct ColumnInfo {
     /// Sampled values that are numbers, and that are not.
     pub numbers: usize,
     pub texts: usize,
-    /// Blank values in the sample.
+    /// Blank values in the sample, and the 1-based line of the first.
     pub blanks: usize,
+    pub blank_line: Option<u64>,
     /// Sampled text values that are numbers written with a decimal comma
     /// (`1,5`), when the file is read with a decimal point.
     pub comma_numbers: usize,
@@ -78,6 +79,7 @@ impl ColumnInfo {
             numbers: 0,
             texts: 0,
             blanks: 0,
+            blank_line: None,
             comma_numbers: 0,
             min: f64::INFINITY,
             max: f64::NEG_INFINITY,
@@ -96,6 +98,7 @@ impl ColumnInfo {
     pub(crate) fn observe(&mut self, field: &str, line: u64, decimal: DecimalMark) {
         if is_blank(field) {
             self.blanks += 1;
+            self.blank_line.get_or_insert(line);
             return;
         }
         let trimmed = field.trim();

@@ -99,6 +99,54 @@ impl Checker {
         ok.then(|| out.into_iter().map(|(c, _)| c).collect())
     }
 
+    /// The `represents` column: in the header, numeric in the sample with
+    /// every sampled value above 0, neither the key nor a clustered column.
+    pub(super) fn record_weights(
+        &mut self,
+        stmt: Option<&Statement>,
+        key: Option<&str>,
+        clustered: &[(String, Span)],
+    ) -> Option<Option<String>> {
+        let Some(Statement {
+            kind: StatementKind::Represents { column: col },
+            ..
+        }) = stmt
+        else {
+            return Some(None);
+        };
+        let is_clustered = clustered.iter().any(|(n, _)| *n == col.node)
+            || self.category_spans.contains_key(&col.node)
+            || self.kinds.contains_key(&col.node);
+        let refusal = if is_clustered {
+            Some((
+                "it is clustered on".to_string(),
+                "a column either shapes the segments or says how much each record counts, not both; `tally` it to see its total per segment".to_string(),
+            ))
+        } else if key == Some(col.node.as_str()) {
+            Some((
+                "it is the key".to_string(),
+                "name the column that says how many members each record stands for".to_string(),
+            ))
+        } else if self.probe.is_some() {
+            let info = self.known_column(col)?;
+            weight_sample_refusal(&info)
+        } else {
+            None
+        };
+        match refusal {
+            Some((why, help)) => {
+                self.err(CheckError::NotAWeight {
+                    column: col.node.clone(),
+                    why,
+                    span: col.span,
+                    help,
+                });
+                None
+            }
+            None => Some(Some(col.node.clone())),
+        }
+    }
+
     fn not_tallied(&mut self, col: &Column, why: &str, help: &str) {
         self.err(CheckError::NotTallied {
             column: col.node.clone(),
@@ -146,23 +194,7 @@ impl Checker {
                     None
                 }
             };
-            let unit = match opts.get("unit").map(|o| &o.value) {
-                None => Some(None),
-                Some(Spanned {
-                    node: Value::Text(t),
-                    ..
-                }) => Some(Some(t.clone())),
-                Some(v) => {
-                    self.bad_value(
-                        "unit",
-                        &v.node,
-                        "a quoted text",
-                        v.span,
-                        r#"write it in quotes: `unit "visits"`"#,
-                    );
-                    None
-                }
-            };
+            let unit = self.call_unit(opts.get("unit").map(|o| &o.value));
             if let Some(first) = spans.get(&column.node) {
                 self.err(CheckError::Conflict {
                     what: format!("a name for `{}`", column.node),
@@ -194,4 +226,59 @@ impl Checker {
         }
         ok.then_some(out)
     }
+
+    /// A `call` statement's unit: none, or a quoted text.
+    fn call_unit(&mut self, value: Option<&Spanned<Value>>) -> Option<Option<String>> {
+        match value {
+            None => Some(None),
+            Some(Spanned {
+                node: Value::Text(t),
+                ..
+            }) => Some(Some(t.clone())),
+            Some(v) => {
+                self.bad_value(
+                    "unit",
+                    &v.node,
+                    "a quoted text",
+                    v.span,
+                    r#"write it in quotes: `unit "visits"`"#,
+                );
+                None
+            }
+        }
+    }
+}
+
+/// Why the sampled values of a `represents` column cannot be weights, if
+/// they cannot: text, blanks, or a value of 0 or below (with its line when
+/// the sample kept it).
+fn weight_sample_refusal(info: &probe::ColumnInfo) -> Option<(String, String)> {
+    const HELP: &str = "every record needs a weight above 0 (how many members it stands for); mend or leave out the records without one when making the extract";
+    if info.kind == ColumnKind::Text {
+        let line = info
+            .text_line
+            .map(|l| format!(" on line {l}"))
+            .unwrap_or_default();
+        let why = format!(
+            "it holds text (such as `{}`{line})",
+            clipped(info.text_example.as_deref().unwrap_or_default(), 40)
+        );
+        return Some((why, HELP.to_string()));
+    }
+    if info.blanks > 0 {
+        let line = info
+            .blank_line
+            .map(|l| format!(" on line {l}"))
+            .unwrap_or_default();
+        return Some((format!("it is blank{line}"), HELP.to_string()));
+    }
+    if info.numbers > 0 && info.min <= 0.0 {
+        let why = match (info.values.iter()).find(|(v, _)| v.parse::<f64>().is_ok_and(|x| x <= 0.0))
+        {
+            Some((v, line)) => format!("it holds `{v}` on line {line}"),
+            None => format!("it holds {}", crate::text::short(info.min)),
+        };
+        return Some((why, HELP.to_string()));
+    }
+    None
 }

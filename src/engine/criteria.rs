@@ -20,6 +20,7 @@
 //! Per-record work runs in parallel and is summed in record order.
 
 use super::dist2;
+use super::weights::Weights;
 use ndarray::ArrayView2;
 
 pub use super::silhouette::{silhouette, Silhouette};
@@ -37,25 +38,30 @@ fn rows<'a>(data: &ArrayView2<'a, f64>) -> Vec<&'a [f64]> {
         .collect()
 }
 
-fn sizes(labels: &[u32], k: usize) -> Vec<usize> {
-    let mut s = vec![0; k];
-    labels.iter().for_each(|&l| s[l as usize] += 1);
-    s
-}
-
 /// Segment means, k rows of d.
 pub fn centres(data: ArrayView2<'_, f64>, labels: &[u32], k: usize) -> Vec<Vec<f64>> {
+    centres_weighted(data, Weights::NONE, labels, k)
+}
+
+/// Weighted segment means, k rows of d: `Σ w x / Σ w` per segment.
+pub fn centres_weighted(
+    data: ArrayView2<'_, f64>,
+    w: Weights<'_>,
+    labels: &[u32],
+    k: usize,
+) -> Vec<Vec<f64>> {
     let d = data.ncols();
     let mut sums = vec![vec![0.0; d]; k];
-    let n_of = sizes(labels, k);
-    for (row, &l) in rows(&data).iter().zip(labels) {
+    let n_of = w.per_segment(labels, k);
+    for (i, (row, &l)) in rows(&data).iter().zip(labels).enumerate() {
+        let wi = w.at(i);
         for (s, v) in sums[l as usize].iter_mut().zip(row.iter()) {
-            *s += v;
+            *s += wi * v;
         }
     }
     for (s, &n) in sums.iter_mut().zip(&n_of) {
-        if n > 0 {
-            s.iter_mut().for_each(|v| *v /= n as f64);
+        if n > 0.0 {
+            s.iter_mut().for_each(|v| *v /= n);
         }
     }
     sums
@@ -63,42 +69,74 @@ pub fn centres(data: ArrayView2<'_, f64>, labels: &[u32], k: usize) -> Vec<Vec<f
 
 /// Within-cluster sum of squares about the segment means.
 pub fn within_ss(data: ArrayView2<'_, f64>, labels: &[u32], k: usize) -> f64 {
-    let c = centres(data, labels, k);
-    rows(&data)
-        .iter()
-        .zip(labels)
-        .map(|(r, &l)| dist2(r, &c[l as usize]))
+    within_ss_weighted(data, Weights::NONE, labels, k)
+}
+
+/// Weighted within-cluster sum of squares: `Σ w ||x - c||²` about the
+/// weighted segment means.
+pub fn within_ss_weighted(
+    data: ArrayView2<'_, f64>,
+    w: Weights<'_>,
+    labels: &[u32],
+    k: usize,
+) -> f64 {
+    let c = centres_weighted(data, w, labels, k);
+    (rows(&data).iter().zip(labels).enumerate())
+        .map(|(i, (r, &l))| w.at(i) * dist2(r, &c[l as usize]))
         .sum()
 }
 
 /// Calinski-Harabasz index; see the module documentation.
 pub fn calinski_harabasz(data: ArrayView2<'_, f64>, labels: &[u32], k: usize) -> f64 {
+    calinski_harabasz_weighted(data, Weights::NONE, labels, k)
+}
+
+/// Calinski-Harabasz with record weights: the sums of squares weighted and
+/// `n` the summed weight, so whole-number weights give the index of the
+/// repeated records.
+pub fn calinski_harabasz_weighted(
+    data: ArrayView2<'_, f64>,
+    w: Weights<'_>,
+    labels: &[u32],
+    k: usize,
+) -> f64 {
     let n = data.nrows();
-    let c = centres(data, labels, k);
-    let grand = centres(data, &vec![0; n], 1).remove(0);
-    let n_of = sizes(labels, k);
+    let c = centres_weighted(data, w, labels, k);
+    let grand = centres_weighted(data, w, &vec![0; n], 1).remove(0);
+    let n_of = w.per_segment(labels, k);
     let between: f64 = c
         .iter()
         .zip(&n_of)
-        .map(|(ci, &m)| m as f64 * dist2(ci, &grand))
+        .map(|(ci, &m)| m * dist2(ci, &grand))
         .sum();
-    let within = within_ss(data, labels, k);
+    let within = within_ss_weighted(data, w, labels, k);
     if within == 0.0 {
         return f64::INFINITY;
     }
-    (between / (k as f64 - 1.0)) / (within / (n as f64 - k as f64))
+    (between / (k as f64 - 1.0)) / (within / (w.total(n) - k as f64))
 }
 
 /// Davies-Bouldin index; see the module documentation.
 pub fn davies_bouldin(data: ArrayView2<'_, f64>, labels: &[u32], k: usize) -> f64 {
-    let c = centres(data, labels, k);
-    let n_of = sizes(labels, k);
+    davies_bouldin_weighted(data, Weights::NONE, labels, k)
+}
+
+/// Davies-Bouldin with record weights: each scatter the weighted mean
+/// distance to the weighted centre.
+pub fn davies_bouldin_weighted(
+    data: ArrayView2<'_, f64>,
+    w: Weights<'_>,
+    labels: &[u32],
+    k: usize,
+) -> f64 {
+    let c = centres_weighted(data, w, labels, k);
+    let n_of = w.per_segment(labels, k);
     let mut scatter = vec![0.0; k];
-    for (r, &l) in rows(&data).iter().zip(labels) {
-        scatter[l as usize] += dist2(r, &c[l as usize]).sqrt();
+    for (i, (r, &l)) in rows(&data).iter().zip(labels).enumerate() {
+        scatter[l as usize] += w.at(i) * dist2(r, &c[l as usize]).sqrt();
     }
     for (s, &m) in scatter.iter_mut().zip(&n_of) {
-        *s /= m.max(1) as f64;
+        *s /= if m > 0.0 { m } else { 1.0 };
     }
     davies_bouldin_from(&scatter, |i, j| dist2(&c[i], &c[j]).sqrt())
 }
@@ -130,14 +168,14 @@ pub fn davies_bouldin_from(scatter: &[f64], separation: impl Fn(usize, usize) ->
 
 /// Calinski-Harabasz on a method's own objective: `total` its value for
 /// all records as one segment, `within` at k segments; `((T - W) / (k - 1))
-/// / (W / (n - k))`. For k-means (within-cluster sum of squares) this is
+/// / (W / (n - k))`, `n` the records' summed weight when they carry weights. For k-means (within-cluster sum of squares) this is
 /// the index itself; for k-medoids the total deviation, for k-prototypes
 /// the total cost take its place.
-pub fn calinski_harabasz_from(total: f64, within: f64, n: usize, k: usize) -> f64 {
+pub fn calinski_harabasz_from(total: f64, within: f64, n: f64, k: usize) -> f64 {
     if within == 0.0 {
         return f64::INFINITY;
     }
-    ((total - within) / (k as f64 - 1.0)) / (within / (n as f64 - k as f64))
+    ((total - within) / (k as f64 - 1.0)) / (within / (n - k as f64))
 }
 
 /// Silhouette computed the slow, obvious way from a full distance matrix:

@@ -5,13 +5,16 @@
 //! so the same evidence serves k-means and trees: given a matrix, the k
 //! values and a seed, it returns a labelling for each k.
 
+use super::weights::Weights;
 use super::{compare::adjusted_rand_index, criteria, rng::Stream};
 use nalgebra::{DMatrix, SymmetricEigen};
 use ndarray::{Array2, ArrayView2};
 
-/// Clusters `data` at each of `ks`, with its own random draws keyed by
-/// `seed`; returns one labelling (0-based) per k, in the order of `ks`.
-pub type Recluster<'a> = dyn Fn(ArrayView2<'_, f64>, &[usize], u64) -> Vec<Vec<u32>> + Sync + 'a;
+/// Clusters `data` (its records weighing as the weights say) at each of
+/// `ks`, with its own random draws keyed by `seed`; returns one labelling
+/// (0-based) per k, in the order of `ks`.
+pub type Recluster<'a> =
+    dyn Fn(ArrayView2<'_, f64>, Weights<'_>, &[usize], u64) -> Vec<Vec<u32>> + Sync + 'a;
 
 /// A seed for the `i`-th use of purpose `purpose` under `seed`, by the
 /// SplitMix64 finaliser (G. Steele, D. Lea, C. Flood, "Fast splittable
@@ -80,9 +83,16 @@ pub struct Gap {
 /// principal axes come from the covariance matrix's eigenvectors (nalgebra's
 /// symmetric eigen-decomposition, d x d).
 ///
+/// With record weights, the data are clustered and W_k summed with them,
+/// the box's centre and axes are those of the weighted data, and each
+/// reference set's n records weigh alike, W / n each for the data's summed
+/// weight W (a record standing for W / n members): its W_k is the
+/// unweighted one times W / n, so the reference sets hold as many members
+/// as the data.
+///
 /// Cost: `references` times the cost of clustering at every k.
 pub fn gap_statistic(
-    data: ArrayView2<'_, f64>,
+    (data, w): (ArrayView2<'_, f64>, Weights<'_>),
     ks: &[usize],
     references: usize,
     seed: u64,
@@ -91,21 +101,27 @@ pub fn gap_statistic(
     let mut all_ks = vec![1];
     all_ks.extend(ks.iter().copied().filter(|&k| k > 1));
     let observed: Vec<f64> = {
-        let labels = recluster(data, &all_ks, seed);
+        let labels = recluster(data, w, &all_ks, seed);
         all_ks
             .iter()
             .zip(&labels)
-            .map(|(&k, l)| log_within(data, l, k))
+            .map(|(&k, l)| log_within(data, w, l, k))
             .collect()
     };
-    let frame = PcBox::new(data);
+    // ln(W / n): zero without weights.
+    let per_reference = if w.is_weighted() {
+        (w.total(data.nrows()) / data.nrows().max(1) as f64).ln()
+    } else {
+        0.0
+    };
+    let frame = PcBox::new(data, w);
     let mut reference_logs: Vec<Vec<f64>> = vec![Vec::with_capacity(references); all_ks.len()];
     for b in 0..references {
         let ref_seed = derived_seed(seed, GAP_PURPOSE, b as u64);
         let z = frame.draw(data.nrows(), ref_seed);
-        let labels = recluster(z.view(), &all_ks, ref_seed);
+        let labels = recluster(z.view(), Weights::NONE, &all_ks, ref_seed);
         for (i, (&k, l)) in all_ks.iter().zip(&labels).enumerate() {
-            reference_logs[i].push(log_within(z.view(), l, k));
+            reference_logs[i].push(log_within(z.view(), Weights::NONE, l, k) + per_reference);
         }
     }
     let b = references.max(1) as f64;
@@ -138,10 +154,12 @@ pub fn gap_choice(gaps: &[Gap]) -> Option<usize> {
     gaps.last().map(|g| g.k)
 }
 
-fn log_within(data: ArrayView2<'_, f64>, labels: &[u32], k: usize) -> f64 {
+fn log_within(data: ArrayView2<'_, f64>, w: Weights<'_>, labels: &[u32], k: usize) -> f64 {
     // A zero sum (every record on its centre) has no logarithm; a floor far
     // below any real spread keeps the statistic finite.
-    criteria::within_ss(data, labels, k).max(1e-300).ln()
+    criteria::within_ss_weighted(data, w, labels, k)
+        .max(1e-300)
+        .ln()
 }
 
 /// The box spanned by the data along its principal axes.
@@ -154,13 +172,26 @@ struct PcBox {
 }
 
 impl PcBox {
-    fn new(data: ArrayView2<'_, f64>) -> PcBox {
+    fn new(data: ArrayView2<'_, f64>, w: Weights<'_>) -> PcBox {
         let (n, d) = data.dim();
+        let total = if n == 0 { 1.0 } else { w.total(n) };
         let mean: Vec<f64> = (0..d)
-            .map(|f| data.column(f).iter().sum::<f64>() / n.max(1) as f64)
+            .map(|f| {
+                (data.column(f).iter().enumerate())
+                    .map(|(i, v)| w.at(i) * v)
+                    .sum::<f64>()
+                    / total
+            })
             .collect();
         let centred = DMatrix::from_fn(n, d, |i, f| data[[i, f]] - mean[f]);
-        let cov = centred.transpose() * &centred;
+        // The weighted scatter: each row scaled by the root of its weight.
+        let cov = match w.as_slice() {
+            Some(ws) => {
+                let scaled = DMatrix::from_fn(n, d, |i, f| ws[i].sqrt() * centred[(i, f)]);
+                scaled.transpose() * &scaled
+            }
+            None => centred.transpose() * &centred,
+        };
         let axes = SymmetricEigen::new(cov).eigenvectors;
         let rotated = &centred * &axes;
         let lo = (0..d).map(|f| rotated.column(f).min()).collect();
@@ -208,8 +239,14 @@ pub const UNSTABLE_BELOW: f64 = 0.6;
 /// `labels[i]` (one labelling per k of `ks`) on those records: the adjusted
 /// Rand index (Hubert and Arabie 1985), and for each full-data segment C
 /// the best Jaccard |C ∩ D| / |C ∪ D| over resampled segments D.
+///
+/// With record weights each draw takes a record with probability
+/// proportional to its weight (a member drawn at random, by its record),
+/// and the records drawn are reclustered without weights: the resample
+/// stands for the members, not for the records. O(n log n) per resample
+/// for the draws.
 pub fn bootstrap_stability(
-    data: ArrayView2<'_, f64>,
+    (data, w): (ArrayView2<'_, f64>, Weights<'_>),
     ks: &[usize],
     labels: &[Vec<u32>],
     resamples: usize,
@@ -217,19 +254,29 @@ pub fn bootstrap_stability(
     recluster: &Recluster<'_>,
 ) -> Vec<Stability> {
     let (n, d) = data.dim();
+    // The running weights, for draws by weight in O(log n) each.
+    let running: Option<Vec<f64>> = w.as_slice().map(|ws| {
+        ws.iter()
+            .scan(0.0, |acc, v| {
+                *acc += v;
+                Some(*acc)
+            })
+            .collect()
+    });
     let mut ari_sums = vec![0.0; ks.len()];
     let mut jaccard_sums: Vec<Vec<f64>> = ks.iter().map(|&k| vec![0.0; k]).collect();
     for b in 0..resamples {
         let res_seed = derived_seed(seed, STABILITY_PURPOSE, b as u64);
         let mut s = Stream::new(res_seed, 0);
         let mut drawn = vec![false; n];
-        for _ in 0..n {
-            drawn[s.below(n)] = true;
+        match &running {
+            None => (0..n).for_each(|_| drawn[s.below(n)] = true),
+            Some(run) => (0..n).for_each(|_| drawn[by_running_weight(run, s.unit())] = true),
         }
         let picked: Vec<usize> = (0..n).filter(|&i| drawn[i]).collect();
         let sub = Array2::from_shape_fn((picked.len(), d), |(r, f)| data[[picked[r], f]]);
         let usable: Vec<usize> = ks.iter().copied().filter(|&k| k <= picked.len()).collect();
-        let fresh = recluster(sub.view(), &usable, res_seed);
+        let fresh = recluster(sub.view(), Weights::NONE, &usable, res_seed);
         for (i, &k) in ks.iter().enumerate() {
             let Some(u) = usable.iter().position(|&x| x == k) else {
                 continue;
@@ -250,6 +297,15 @@ pub fn bootstrap_stability(
             jaccard: jaccard_sums[i].iter().map(|j| j / b).collect(),
         })
         .collect()
+}
+
+/// The first record whose running weight exceeds `unit` times the total
+/// (the last record when rounding leaves the target past it).
+fn by_running_weight(running: &[f64], unit: f64) -> usize {
+    let target = unit * running.last().copied().unwrap_or(0.0);
+    running
+        .partition_point(|&r| r <= target)
+        .min(running.len().saturating_sub(1))
 }
 
 /// The best Jaccard similarity between segment `c` of `original` and any

@@ -50,6 +50,7 @@ mod hamerly;
 mod sampled;
 pub use sampled::REFINED;
 
+use super::weights::{draw_by_weight, Weights};
 use super::{dist2, rng::Stream, stop, EngineError};
 use ndarray::{Array2, ArrayView2};
 use rayon::prelude::*;
@@ -149,7 +150,20 @@ pub fn kmeans(
     data: ArrayView2<'_, f64>,
     settings: &KMeansSettings,
 ) -> Result<KMeansFit, EngineError> {
-    kmeans_with(data, settings, Search::Bounded)
+    kmeans_with(data, Weights::NONE, settings, Search::Bounded)
+}
+
+/// [`kmeans`] with record weights: a record of weight `w` counts as `w`
+/// identical records in seeding (k-means++ draws by weight times squared
+/// distance, the first centre by weight), in every segment mean and in the
+/// within-cluster sum of squares that ranks restarts. A restart on a sample
+/// draws the sample uniformly and keeps the drawn records' weights.
+pub fn kmeans_weighted(
+    data: ArrayView2<'_, f64>,
+    weights: Weights<'_>,
+    settings: &KMeansSettings,
+) -> Result<KMeansFit, EngineError> {
+    kmeans_with(data, weights, settings, Search::Bounded)
 }
 
 /// How the assignment step finds each record's nearest centre. Both give
@@ -168,6 +182,7 @@ pub enum Search {
 /// [`kmeans`] with the assignment search chosen.
 pub fn kmeans_with(
     data: ArrayView2<'_, f64>,
+    weights: Weights<'_>,
     settings: &KMeansSettings,
     search: Search,
 ) -> Result<KMeansFit, EngineError> {
@@ -190,7 +205,7 @@ pub fn kmeans_with(
             &owned
         }
     };
-    let problem = Problem::new(x, n, d, settings, search);
+    let problem = Problem::new(x, weights, n, d, settings, search);
     if let Some(s) = settings.sample.filter(|&s| s < n) {
         return sampled::fit(&problem, s);
     }
@@ -351,6 +366,9 @@ pub fn distance_and_margin(
 /// The data and settings shared by all restarts.
 struct Problem<'a> {
     x: &'a [f64],
+    w: Weights<'a>,
+    /// The records' summed weight (`n` without weights).
+    total: f64,
     n: usize,
     d: usize,
     settings: &'a KMeansSettings,
@@ -369,17 +387,30 @@ struct Restart {
 }
 
 impl<'a> Problem<'a> {
-    fn new(x: &'a [f64], n: usize, d: usize, settings: &'a KMeansSettings, search: Search) -> Self {
+    fn new(
+        x: &'a [f64],
+        w: Weights<'a>,
+        n: usize,
+        d: usize,
+        settings: &'a KMeansSettings,
+        search: Search,
+    ) -> Self {
+        let total = w.total(n);
         let mut grand = vec![0.0; d];
-        for row in x.chunks_exact(d) {
+        for (i, row) in x.chunks_exact(d).enumerate() {
             for (g, v) in grand.iter_mut().zip(row) {
-                *g += v;
+                *g += w.at(i) * v;
             }
         }
-        grand.iter_mut().for_each(|g| *g /= n as f64);
-        let spread: f64 = x.chunks_exact(d).map(|row| dist2(row, &grand)).sum::<f64>() / n as f64;
+        grand.iter_mut().for_each(|g| *g /= total);
+        let spread: f64 = (x.chunks_exact(d).enumerate())
+            .map(|(i, row)| w.at(i) * dist2(row, &grand))
+            .sum::<f64>()
+            / total;
         Problem {
             x,
+            w,
+            total,
             n,
             d,
             settings,
@@ -505,7 +536,9 @@ impl<'a> Problem<'a> {
             centroids = self.update(&mut labels, &dists);
             self.assign(&centroids, &mut labels, &mut dists);
         }
-        let inertia = dists.iter().sum();
+        let inertia = (dists.iter().enumerate())
+            .map(|(i, d)| self.w.at(i) * d)
+            .sum();
         Restart {
             labels,
             centroids,
@@ -520,7 +553,10 @@ impl<'a> Problem<'a> {
         let (n, d, k) = (self.n, self.d, self.settings.k);
         let trials = 2 + (k as f64).ln().floor() as usize;
         let mut centres = Vec::with_capacity(k * d);
-        let first = stream.below(n);
+        let first = match self.w.as_slice() {
+            Some(w) => draw_by_weight(w, stream.unit(), self.total),
+            None => stream.below(n),
+        };
         centres.extend_from_slice(self.row(first));
         let mut closest = vec![0.0; n];
         let mut potential = self.nearer(&vec![f64::INFINITY; n], self.row(first), &mut closest);
@@ -530,7 +566,7 @@ impl<'a> Problem<'a> {
             let mut best: Option<(usize, f64)> = None;
             for _ in 0..trials {
                 let pick = if potential > 0.0 {
-                    sample_by_weight(&closest, stream.unit() * potential)
+                    self.draw_by_potential(&closest, stream.unit() * potential)
                 } else {
                     // Every record sits on a centre already (duplicates);
                     // any record will do and the empty-cluster rule follows.
@@ -551,8 +587,22 @@ impl<'a> Problem<'a> {
         centres
     }
 
+    /// A record drawn with probability proportional to its weight times its
+    /// squared distance to the nearest centre: the first whose running
+    /// potential exceeds `target`.
+    fn draw_by_potential(&self, closest: &[f64], target: f64) -> usize {
+        match self.w.as_slice() {
+            None => sample_by_weight(closest, target),
+            Some(w) => {
+                let scaled: Vec<f64> = closest.iter().zip(w).map(|(c, w)| c * w).collect();
+                sample_by_weight(&scaled, target)
+            }
+        }
+    }
+
     /// For each record, the smaller of `closest` and its squared distance to
-    /// `c`, written to `out`; returns their sum. In parallel over fixed
+    /// `c`, written to `out`; returns their sum weighted by the records'
+    /// weights (the k-means++ potential). In parallel over fixed
     /// chunks of records, the chunks' sums added in chunk order, so the
     /// bits do not depend on the thread count (and, below one chunk, equal
     /// a plain sum in record order).
@@ -560,9 +610,10 @@ impl<'a> Problem<'a> {
         let work = |(ch, (cl, o)): (usize, (&[f64], &mut [f64]))| {
             let mut pot = 0.0;
             for (off, (cv, ov)) in cl.iter().zip(o.iter_mut()).enumerate() {
-                let v = cv.min(dist2(self.row(ch * MEANS_CHUNK + off), c));
+                let i = ch * MEANS_CHUNK + off;
+                let v = cv.min(dist2(self.row(i), c));
                 *ov = v;
-                pot += v;
+                pot += self.w.at(i) * v;
             }
             pot
         };
@@ -645,22 +696,23 @@ impl<'a> Problem<'a> {
         // Partial sums over fixed chunks of records, in parallel, then
         // added in chunk order: the chunking never depends on the thread
         // count, so neither do the bits.
+        // Weighted sums and summed weights; without weights the products
+        // are the values themselves and the counts exact.
         let partial = |(c, ls): (usize, &[u32])| {
             let mut sums = vec![0.0; k * d];
-            let mut counts = vec![0usize; k];
+            let mut counts = vec![0.0f64; k];
             for (off, &l) in ls.iter().enumerate() {
                 let l = l as usize;
-                counts[l] += 1;
-                for (s, v) in sums[l * d..(l + 1) * d]
-                    .iter_mut()
-                    .zip(self.row(c * MEANS_CHUNK + off))
-                {
-                    *s += v;
+                let i = c * MEANS_CHUNK + off;
+                let w = self.w.at(i);
+                counts[l] += w;
+                for (s, v) in sums[l * d..(l + 1) * d].iter_mut().zip(self.row(i)) {
+                    *s += w * v;
                 }
             }
             (sums, counts)
         };
-        let parts: Vec<(Vec<f64>, Vec<usize>)> = if self.n >= PARALLEL_ASSIGN_MIN {
+        let parts: Vec<(Vec<f64>, Vec<f64>)> = if self.n >= PARALLEL_ASSIGN_MIN {
             labels
                 .par_chunks(MEANS_CHUNK)
                 .enumerate()
@@ -674,16 +726,14 @@ impl<'a> Problem<'a> {
                 .collect()
         };
         let mut sums = vec![0.0; k * d];
-        let mut counts = vec![0usize; k];
+        let mut counts = vec![0.0f64; k];
         for (ps, pc) in &parts {
             sums.iter_mut().zip(ps).for_each(|(s, p)| *s += p);
             counts.iter_mut().zip(pc).for_each(|(c, p)| *c += p);
         }
         for (j, &c) in counts.iter().enumerate() {
-            if c > 0 {
-                sums[j * d..(j + 1) * d]
-                    .iter_mut()
-                    .for_each(|s| *s /= c as f64);
+            if c > 0.0 {
+                sums[j * d..(j + 1) * d].iter_mut().for_each(|s| *s /= c);
             }
         }
         sums

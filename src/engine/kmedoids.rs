@@ -37,6 +37,7 @@
 use super::kmeans::canonical;
 use super::matrix::Condensed;
 use super::rng::{spread_records, Stream};
+use super::weights::Weights;
 use super::EngineError;
 use rayon::prelude::*;
 
@@ -77,7 +78,21 @@ pub struct KMedoidsFit {
 
 /// Fits k-medoids to the records of `m`.
 pub fn kmedoids(m: &Condensed, s: &KMedoidsSettings) -> Result<KMedoidsFit, EngineError> {
+    kmedoids_weighted(m, Weights::NONE, s)
+}
+
+/// [`kmedoids`] with record weights: the total deviation is
+/// `Σ w_o d(o, medoid)` (so every removal loss and swap change weighs each
+/// record by its weight) and the starts draw by weight times dissimilarity;
+/// whole-number weights give the cost of the repeated records.
+pub fn kmedoids_weighted(
+    m: &Condensed,
+    w: Weights<'_>,
+    s: &KMedoidsSettings,
+) -> Result<KMedoidsFit, EngineError> {
     let n = m.n();
+    // Ones without weights: every product is then the distance itself.
+    let weight: Vec<f64> = (0..n).map(|i| w.at(i)).collect();
     if s.k == 0 {
         return Err(EngineError::BadK { k: s.k });
     }
@@ -88,10 +103,11 @@ pub fn kmedoids(m: &Condensed, s: &KMedoidsSettings) -> Result<KMedoidsFit, Engi
         .into_par_iter()
         .map(|r| {
             let stream = KMEDOIDS_STREAM | ((s.k as u64) << 32) | r as u64;
-            let medoids =
-                spread_records(n, s.k, &mut Stream::new(s.seed, stream), |i, j| m.get(i, j))
-                    .ok_or(EngineError::TooFewDistinct { k: s.k })?;
-            Ok(swap(m, medoids, s.max_passes))
+            let medoids = spread_records((n, w), s.k, &mut Stream::new(s.seed, stream), |i, j| {
+                m.get(i, j)
+            })
+            .ok_or(EngineError::TooFewDistinct { k: s.k })?;
+            Ok(swap(m, &weight, medoids, s.max_passes))
         })
         .collect();
     let mut runs = runs.into_iter().collect::<Result<Vec<_>, _>>()?;
@@ -121,6 +137,11 @@ pub fn kmedoids(m: &Condensed, s: &KMedoidsSettings) -> Result<KMedoidsFit, Engi
 /// Each segment's medoid: the member with the least total dissimilarity to
 /// the segment's other members, ties to the first in the file. O(Σ n_s²).
 pub fn medoids_of(m: &Condensed, labels: &[u32], k: usize) -> Vec<usize> {
+    medoids_of_weighted(m, Weights::NONE, labels, k)
+}
+
+/// [`medoids_of`] with record weights: the least `Σ w_j d(i, j)`.
+pub fn medoids_of_weighted(m: &Condensed, w: Weights<'_>, labels: &[u32], k: usize) -> Vec<usize> {
     let mut members: Vec<Vec<usize>> = vec![Vec::new(); k];
     for (i, &l) in labels.iter().enumerate() {
         members[l as usize].push(i);
@@ -130,7 +151,7 @@ pub fn medoids_of(m: &Condensed, labels: &[u32], k: usize) -> Vec<usize> {
         .map(|own| {
             let mut best = (f64::INFINITY, usize::MAX);
             for &i in own {
-                let total: f64 = own.iter().map(|&j| m.get(i, j)).sum();
+                let total: f64 = own.iter().map(|&j| w.at(j) * m.get(i, j)).sum();
                 if total < best.0 {
                     best = (total, i);
                 }
@@ -207,24 +228,30 @@ impl Near {
 
 /// Each medoid's removal loss: what the total deviation would rise by if
 /// its records went to their second-nearest medoid.
-fn removal_loss(nears: &[Near], k: usize) -> Vec<f64> {
+fn removal_loss(nears: &[Near], weight: &[f64], k: usize) -> Vec<f64> {
     let mut loss = vec![0.0; k];
-    for n in nears {
-        loss[n.near.1] += n.second.0 - n.near.0;
+    for (n, w) in nears.iter().zip(weight) {
+        loss[n.near.1] += w * (n.second.0 - n.near.0);
     }
     loss
 }
 
+/// The total deviation: each record's weight times its distance to its
+/// nearest medoid.
+fn deviation(nears: &[Near], weight: &[f64]) -> f64 {
+    nears.iter().zip(weight).map(|(x, w)| w * x.near.0).sum()
+}
+
 /// FasterPAM's eager swaps from the given medoids.
-fn swap(m: &Condensed, mut medoids: Vec<usize>, max_passes: usize) -> Run {
+fn swap(m: &Condensed, weight: &[f64], mut medoids: Vec<usize>, max_passes: usize) -> Run {
     let n = m.n();
     let k = medoids.len();
     let mut nears: Vec<Near> = (0..n).map(|o| nearest_two(m, &medoids, o)).collect();
-    let mut cost: f64 = nears.iter().map(|x| x.near.0).sum();
+    let mut cost = deviation(&nears, weight);
     let mut trace = vec![cost];
     let mut is_medoid = vec![false; n];
     medoids.iter().for_each(|&med| is_medoid[med] = true);
-    let mut loss = removal_loss(&nears, k);
+    let mut loss = removal_loss(&nears, weight, k);
     let mut since_swap = 0usize;
     let mut converged = k == n;
     let mut delta = vec![0.0; k];
@@ -240,13 +267,13 @@ fn swap(m: &Condensed, mut medoids: Vec<usize>, max_passes: usize) -> Run {
             }
             delta.copy_from_slice(&loss);
             let mut gain = 0.0;
-            for (o, x) in nears.iter().enumerate() {
+            for (o, (x, w)) in nears.iter().zip(weight).enumerate() {
                 let d = m.get(o, xc);
                 if d < x.near.0 {
-                    gain += d - x.near.0;
-                    delta[x.near.1] += x.near.0 - x.second.0;
+                    gain += w * (d - x.near.0);
+                    delta[x.near.1] += w * (x.near.0 - x.second.0);
                 } else if d < x.second.0 {
-                    delta[x.near.1] += d - x.second.0;
+                    delta[x.near.1] += w * (d - x.second.0);
                 }
             }
             let mut slot = 0;
@@ -260,9 +287,9 @@ fn swap(m: &Condensed, mut medoids: Vec<usize>, max_passes: usize) -> Run {
                 is_medoid[xc] = true;
                 medoids[slot] = xc;
                 update(m, &medoids, slot, &mut nears);
-                cost = nears.iter().map(|x| x.near.0).sum();
+                cost = deviation(&nears, weight);
                 trace.push(cost);
-                loss = removal_loss(&nears, k);
+                loss = removal_loss(&nears, weight, k);
                 since_swap = 0;
             }
         }

@@ -47,6 +47,7 @@
 
 use super::kmeans::canonical;
 use super::rng::{spread_records, Stream};
+use super::weights::Weights;
 use super::{dist2, stop, EngineError};
 use ndarray::{Array2, ArrayView2};
 use rayon::prelude::*;
@@ -69,6 +70,9 @@ pub struct MixedRecords<'a> {
     pub levels: &'a [usize],
     /// Per category, the weight γ of a mismatch.
     pub gamma: &'a [f64],
+    /// Each record's weight (how many members it stands for): the cost,
+    /// the means and the modes' counts weigh each record by it.
+    pub weights: Weights<'a>,
 }
 
 impl MixedRecords<'_> {
@@ -111,6 +115,11 @@ impl MixedRecords<'_> {
 /// (Huang's suggested range, 1/3 to 2/3 of it, at its middle); 1 when there
 /// are no number columns.
 pub fn huang_gamma(numbers: ArrayView2<'_, f64>) -> f64 {
+    huang_gamma_weighted(numbers, Weights::NONE)
+}
+
+/// [`huang_gamma`] with the standard deviations weighted by record.
+pub fn huang_gamma_weighted(numbers: ArrayView2<'_, f64>, w: Weights<'_>) -> f64 {
     let p = numbers.ncols();
     if p == 0 || numbers.nrows() == 0 {
         return 1.0;
@@ -118,7 +127,11 @@ pub fn huang_gamma(numbers: ArrayView2<'_, f64>) -> f64 {
     let sds: f64 = (0..p)
         .map(|f| {
             let col: Vec<f64> = numbers.column(f).to_vec();
-            super::stats::sd_population(&col).unwrap_or(0.0)
+            match w.as_slice() {
+                Some(ws) => super::stats::sd_population_weighted(&col, ws),
+                None => super::stats::sd_population(&col),
+            }
+            .unwrap_or(0.0)
         })
         .sum();
     0.5 * sds / p as f64
@@ -247,7 +260,7 @@ fn of_record(x: MixedRecords<'_>, i: usize) -> Prototype {
 
 /// k-means++-style seeding with the cost as the weight.
 fn seed(x: MixedRecords<'_>, k: usize, rng: &mut Stream) -> Result<Vec<Prototype>, EngineError> {
-    let chosen = spread_records(x.n(), k, rng, |i, j| x.between(i, j))
+    let chosen = spread_records((x.n(), x.weights), k, rng, |i, j| x.between(i, j))
         .ok_or(EngineError::TooFewDistinct { k })?;
     Ok(chosen.into_iter().map(|j| of_record(x, j)).collect())
 }
@@ -286,7 +299,12 @@ fn lloyd(
     tolerance: f64,
 ) -> Run {
     let (mut labels, mut costs) = assign(x, &protos);
-    let mut total: f64 = costs.iter().sum();
+    let weighed = |costs: &[f64]| -> f64 {
+        (costs.iter().enumerate())
+            .map(|(i, c)| x.weights.at(i) * c)
+            .sum()
+    };
+    let mut total = weighed(&costs);
     let mut rounds = 0;
     let mut converged = false;
     while rounds < max_rounds {
@@ -297,7 +315,7 @@ fn lloyd(
         labels = next;
         costs = next_costs;
         let before = total;
-        total = costs.iter().sum();
+        total = weighed(&costs);
         if !moved || before - total <= tolerance * before {
             converged = true;
             break;
@@ -324,19 +342,20 @@ fn update(
     let p = x.numbers.ncols();
     let mut sizes = vec![0usize; k];
     labels.iter().for_each(|&l| sizes[l as usize] += 1);
-    let sums = chunked_sums(x.numbers, labels, k);
+    let weighed = x.weights.per_segment(labels, k);
+    let sums = chunked_sums(x, labels, k);
     for (s, q) in protos.iter_mut().enumerate() {
         if sizes[s] > 0 {
             for f in 0..p {
-                q.means[f] = sums[s * p + f] / sizes[s] as f64;
+                q.means[f] = sums[s * p + f] / weighed[s];
             }
         }
     }
     for (c, codes) in x.codes.iter().enumerate() {
         let levels = x.levels[c];
-        let mut counts = vec![0usize; k * levels];
-        for (&l, &code) in labels.iter().zip(codes) {
-            counts[l as usize * levels + code as usize] += 1;
+        let mut counts = vec![0.0f64; k * levels];
+        for (i, (&l, &code)) in labels.iter().zip(codes).enumerate() {
+            counts[l as usize * levels + code as usize] += x.weights.at(i);
         }
         for (s, q) in protos.iter_mut().enumerate() {
             if sizes[s] == 0 {
@@ -349,9 +368,9 @@ fn update(
     protos
 }
 
-/// The most common level given each level's count, ties to the first
-/// level. O(levels).
-pub fn mode(counts: &[usize]) -> usize {
+/// The most common level given each level's count (summed weight, with
+/// record weights), ties to the first level. O(levels).
+pub fn mode(counts: &[f64]) -> usize {
     let mut mode = 0;
     for (level, &count) in counts.iter().enumerate() {
         if count > counts[mode] {
@@ -361,9 +380,10 @@ pub fn mode(counts: &[usize]) -> usize {
     mode
 }
 
-/// Per segment and number column, the sum of its records' values: record
-/// order within fixed chunks, chunks added in order.
-fn chunked_sums(numbers: ArrayView2<'_, f64>, labels: &[u32], k: usize) -> Vec<f64> {
+/// Per segment and number column, the weighted sum of its records' values:
+/// record order within fixed chunks, chunks added in order.
+fn chunked_sums(x: MixedRecords<'_>, labels: &[u32], k: usize) -> Vec<f64> {
+    let numbers = x.numbers;
     let p = numbers.ncols();
     let n = numbers.nrows();
     let chunks: Vec<Vec<f64>> = (0..n.div_ceil(MEANS_CHUNK))
@@ -372,8 +392,9 @@ fn chunked_sums(numbers: ArrayView2<'_, f64>, labels: &[u32], k: usize) -> Vec<f
             let mut s = vec![0.0; k * p];
             for i in c * MEANS_CHUNK..((c + 1) * MEANS_CHUNK).min(n) {
                 let l = labels[i] as usize;
+                let w = x.weights.at(i);
                 for f in 0..p {
-                    s[l * p + f] += numbers[[i, f]];
+                    s[l * p + f] += w * numbers[[i, f]];
                 }
             }
             s
@@ -439,6 +460,7 @@ mod tests {
             codes: &none,
             levels: &[],
             gamma: &[],
+            weights: Weights::NONE,
         };
         for starts in [[0usize, 1, 2, 3], [10, 11, 30, 31], [5, 9, 13, 400]] {
             let start: Vec<Prototype> = starts.iter().map(|&i| of_record(data, i)).collect();
@@ -471,6 +493,7 @@ mod tests {
             codes: &codes,
             levels: &[2],
             gamma: &[0.7],
+            weights: Weights::NONE,
         };
         assert_eq!(data.cost(1, &[0.0], &[0]), 1.0 + 0.7);
         assert_eq!(data.cost(0, &[0.0], &[0]), 0.0);
@@ -492,6 +515,7 @@ mod tests {
             codes: &codes,
             levels: &[5],
             gamma: &[0.8],
+            weights: Weights::NONE,
         };
         let s = KPrototypesSettings {
             k: 4,

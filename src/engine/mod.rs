@@ -29,6 +29,7 @@ pub mod silhouette;
 pub mod stats;
 pub mod stop;
 pub mod tree;
+pub mod weights;
 
 use thiserror::Error;
 

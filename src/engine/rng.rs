@@ -10,6 +10,7 @@
 //! Uniform numbers are derived here from raw 64-bit words rather than through
 //! rand's distributions, so an upgrade of rand cannot change a result.
 
+use super::weights::{draw_by_weight, Weights};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha20Rng;
 
@@ -54,17 +55,23 @@ impl Stream {
 /// j)`, the weight of record `i` against the nearest chosen record `j` (a
 /// squared distance for k-means-like costs, the dissimilarity itself for
 /// medoids). `None` when fewer than k records have weight apart (too few
-/// distinct records). O(n k) calls of `weight`.
+/// distinct records). With record weights `w` the first is drawn by
+/// weight and each next one by record weight times `weight(i, j)`. O(n k)
+/// calls of `weight`.
 pub fn spread_records(
-    n: usize,
+    (n, w): (usize, Weights<'_>),
     k: usize,
     rng: &mut Stream,
     weight: impl Fn(usize, usize) -> f64,
 ) -> Option<Vec<usize>> {
-    let mut chosen = vec![rng.below(n)];
+    let first = match w.as_slice() {
+        Some(ws) => draw_by_weight(ws, rng.unit(), w.total(n)),
+        None => rng.below(n),
+    };
+    let mut chosen = vec![first];
     let mut nearest: Vec<f64> = (0..n).map(|i| weight(i, chosen[0])).collect();
     while chosen.len() < k {
-        let total: f64 = nearest.iter().sum();
+        let total: f64 = (nearest.iter().enumerate()).map(|(i, d)| w.at(i) * d).sum();
         if total <= 0.0 {
             return None;
         }
@@ -73,7 +80,7 @@ pub fn spread_records(
         // The last record with weight is the fallback against rounding.
         let mut pick = nearest.iter().rposition(|&d| d > 0.0).unwrap_or(0);
         for (i, &d) in nearest.iter().enumerate() {
-            acc += d;
+            acc += w.at(i) * d;
             if d > 0.0 && acc > target {
                 pick = i;
                 break;

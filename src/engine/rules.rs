@@ -11,9 +11,14 @@
 //! rule; conditions on the same feature and side are merged to the
 //! tightest.
 //!
+//! With record weights every count (a node's records, its segment's
+//! records, the least a leaf holds) is a summed weight, so whole-number
+//! weights give the tree of the repeated records.
+//!
 //! Cost: O(d n log n) to sort each feature once, then O(d n) per node, at
 //! most 2^depth - 1 nodes.
 
+use super::weights::Weights;
 use ndarray::ArrayView2;
 
 /// One condition: `x[feature] > threshold` when `above`, else `<=`.
@@ -59,20 +64,21 @@ impl Sorted {
 }
 
 /// The rule that best tells the records with `target` set from the rest,
-/// from a tree `depth` deep with leaves of at least `min_leaf` records;
-/// `None` when no leaf has the segment as its majority.
+/// from a tree `depth` deep with leaves of at least `min_leaf` records
+/// (summed weight, with record weights `w`); `None` when no leaf has the
+/// segment as its majority.
 pub fn segment_rule(
     x: ArrayView2<'_, f64>,
     sorted: &Sorted,
-    target: &[bool],
+    (target, w): (&[bool], Weights<'_>),
     depth: usize,
-    min_leaf: usize,
+    min_leaf: f64,
 ) -> Option<Vec<Condition>> {
     let n = x.nrows();
-    let total = target.iter().filter(|&&t| t).count();
+    let total: f64 = (0..n).filter(|&i| target[i]).map(|i| w.at(i)).sum();
     // Node of each record; records of finished leaves are parked.
     let mut node = vec![0u32; n];
-    let mut leaves: Vec<(Vec<Condition>, usize, usize)> = Vec::new();
+    let mut leaves: Vec<(Vec<Condition>, f64, f64)> = Vec::new();
     let mut open: Vec<(u32, Vec<Condition>)> = vec![(0, Vec::new())];
     let mut next_id = 1u32;
     for level in 0..=depth {
@@ -80,9 +86,11 @@ pub fn segment_rule(
         for (id, path) in open {
             let (size, hits) = (0..n)
                 .filter(|&i| node[i] == id)
-                .fold((0, 0), |(s, h), i| (s + 1, h + usize::from(target[i])));
-            let split = if level < depth && hits > 0 && hits < size {
-                best_split(x, sorted, target, &node, id, min_leaf)
+                .fold((0.0, 0.0), |(s, h), i| {
+                    (s + w.at(i), h + if target[i] { w.at(i) } else { 0.0 })
+                });
+            let split = if level < depth && hits > 0.0 && hits < size {
+                best_split(x, sorted, (target, w), &node, id, min_leaf)
             } else {
                 None
             };
@@ -117,10 +125,10 @@ pub fn segment_rule(
             break;
         }
     }
-    let f1 = |size: usize, hits: usize| 2.0 * hits as f64 / (size + total) as f64;
+    let f1 = |size: f64, hits: f64| 2.0 * hits / (size + total);
     leaves
         .into_iter()
-        .filter(|(_, size, hits)| 2 * hits > *size)
+        .filter(|(_, size, hits)| 2.0 * hits > *size)
         .fold(None::<(Vec<Condition>, f64)>, |best, (path, size, hits)| {
             let score = f1(size, hits);
             match best {
@@ -136,25 +144,28 @@ pub fn segment_rule(
 fn best_split(
     x: ArrayView2<'_, f64>,
     sorted: &Sorted,
-    target: &[bool],
+    (target, w): (&[bool], Weights<'_>),
     node: &[u32],
     id: u32,
-    min_leaf: usize,
+    min_leaf: f64,
 ) -> Option<(usize, f64)> {
     let members: Vec<usize> = (0..node.len()).filter(|&i| node[i] == id).collect();
-    let size = members.len();
-    let hits = members.iter().filter(|&&i| target[i]).count();
-    let gini = |n: usize, h: usize| {
-        if n == 0 {
+    let size: f64 = members.iter().map(|&i| w.at(i)).sum();
+    let hits: f64 = (members.iter())
+        .filter(|&&i| target[i])
+        .map(|&i| w.at(i))
+        .sum();
+    let gini = |n: f64, h: f64| {
+        if n <= 0.0 {
             return 0.0;
         }
-        let p = h as f64 / n as f64;
-        n as f64 * 2.0 * p * (1.0 - p)
+        let p = h / n;
+        n * 2.0 * p * (1.0 - p)
     };
     let mut best: Option<(f64, usize, f64)> = None;
     let parent = gini(size, hits);
     for (f, order) in sorted.order.iter().enumerate() {
-        let (mut left, mut left_hits) = (0usize, 0usize);
+        let (mut left, mut left_hits) = (0.0f64, 0.0f64);
         let mut prev: Option<f64> = None;
         for &r in order {
             let r = r as usize;
@@ -170,8 +181,10 @@ fn best_split(
                     }
                 }
             }
-            left += 1;
-            left_hits += usize::from(target[r]);
+            left += w.at(r);
+            if target[r] {
+                left_hits += w.at(r);
+            }
             prev = Some(v);
         }
     }
@@ -214,7 +227,14 @@ mod tests {
             [9.0, 4.0]
         ];
         let target = [false, false, false, false, true, true, true, true];
-        let rule = segment_rule(x.view(), &Sorted::new(x.view()), &target, 3, 1).unwrap();
+        let rule = segment_rule(
+            x.view(),
+            &Sorted::new(x.view()),
+            (&target, Weights::NONE),
+            3,
+            1.0,
+        )
+        .unwrap();
         assert_eq!(
             rule,
             [Condition {
@@ -246,7 +266,14 @@ mod tests {
             }
         }
         let x = ndarray::Array2::from_shape_vec((100, 2), rows).unwrap();
-        let rule = segment_rule(x.view(), &Sorted::new(x.view()), &target, 3, 2).unwrap();
+        let rule = segment_rule(
+            x.view(),
+            &Sorted::new(x.view()),
+            (&target, Weights::NONE),
+            3,
+            2.0,
+        )
+        .unwrap();
         assert_eq!(rule, [c(0, true, 5.5), c(1, true, 5.5)]);
     }
 }

@@ -36,6 +36,17 @@
 //! overstates the error a little when the sample is a large share of the
 //! records.
 //!
+//! # Record weights
+//! A record of weight `w` counts as `w` identical records: the mean
+//! distances weigh each other record by its weight, the own segment's
+//! denominator is its summed weight less one (the record's other copies sit
+//! at distance 0), a segment of summed weight at most 1 gives 0, and the
+//! means over records weigh each silhouette by its record's weight. The
+//! estimate stratifies by summed weight and estimates each mean distance
+//! by the weighted mean over the segment's sampled records (a ratio
+//! estimate). With whole-number weights the exact value equals that of
+//! the repeated records.
+//!
 //! # Determinism
 //! The sample is drawn from the caller's seeded stream. Distances are
 //! summed per (segment, group) cell in blocks of [`LANES`] reference
@@ -43,6 +54,7 @@
 //! result depends on neither the thread count nor the machine.
 
 use super::rng::Stream;
+use super::weights::Weights;
 use ndarray::ArrayView2;
 use rayon::prelude::*;
 
@@ -88,10 +100,37 @@ pub fn silhouette(
     seed: u64,
     stream: u64,
 ) -> Silhouette {
-    if data.nrows() <= EXACT_LIMIT {
-        exact(data, labels, k)
+    silhouette_weighted(data, Weights::NONE, labels, k, (seed, stream), false)
+}
+
+/// [`silhouette`] with record weights (see the module documentation);
+/// exact when `exact` is set or up to [`EXACT_LIMIT`] records, else
+/// estimated from stream `draw.1` of seed `draw.0`.
+pub fn silhouette_weighted(
+    data: ArrayView2<'_, f64>,
+    w: Weights<'_>,
+    labels: &[u32],
+    k: usize,
+    draw: (u64, u64),
+    exact: bool,
+) -> Silhouette {
+    exact_or_estimate(labels, k, w, (draw, exact), &|j: &Judged| j.scores(data))
+}
+
+/// Exact when asked or up to [`EXACT_LIMIT`] records, else estimated from
+/// stream `draw.1` of seed `draw.0`.
+fn exact_or_estimate(
+    labels: &[u32],
+    k: usize,
+    w: Weights<'_>,
+    (draw, exact): ((u64, u64), bool),
+    scorer: Scorer<'_>,
+) -> Silhouette {
+    if exact || labels.len() <= EXACT_LIMIT {
+        exact_with(labels, k, w, scorer)
     } else {
-        estimate(data, labels, k, &mut Stream::new(seed, stream), SAMPLE)
+        let mut rng = Stream::new(draw.0, draw.1);
+        estimate_with(labels, k, w, &mut rng, SAMPLE, scorer)
     }
 }
 
@@ -109,49 +148,58 @@ pub fn silhouette_by(
     seed: u64,
     stream: u64,
 ) -> Silhouette {
-    if labels.len() <= EXACT_LIMIT {
-        exact_with(labels, k, &|j: &Judged| j.scores_by(dist))
-    } else {
-        estimate_with(
-            labels,
-            k,
-            &mut Stream::new(seed, stream),
-            SAMPLE,
-            &|j: &Judged| j.scores_by(dist),
-        )
-    }
+    silhouette_by_weighted(dist, Weights::NONE, labels, k, (seed, stream), false)
+}
+
+/// [`silhouette_by`] with record weights, exact when `exact` is set; see
+/// [`silhouette_weighted`].
+pub fn silhouette_by_weighted(
+    dist: Dissimilarity<'_>,
+    w: Weights<'_>,
+    labels: &[u32],
+    k: usize,
+    draw: (u64, u64),
+    exact: bool,
+) -> Silhouette {
+    exact_or_estimate(labels, k, w, (draw, exact), &|j: &Judged| {
+        j.scores_by(dist, w)
+    })
 }
 
 /// As [`exact`], with `dist` in place of the Euclidean distance.
 pub fn exact_by(dist: Dissimilarity<'_>, labels: &[u32], k: usize) -> Silhouette {
-    exact_with(labels, k, &|j: &Judged| j.scores_by(dist))
+    silhouette_by_weighted(dist, Weights::NONE, labels, k, (0, 0), true)
 }
 
 /// The exact silhouette of every record.
 pub fn exact(data: ArrayView2<'_, f64>, labels: &[u32], k: usize) -> Silhouette {
-    exact_with(labels, k, &|j: &Judged| j.scores(data))
+    exact_with(labels, k, Weights::NONE, &|j: &Judged| j.scores(data))
 }
 
 /// How the judged records' distance sums are obtained.
 type Scorer<'a> = &'a dyn Fn(&Judged) -> Sums;
 
-fn exact_with(labels: &[u32], k: usize, scorer: Scorer<'_>) -> Silhouette {
+fn exact_with(labels: &[u32], k: usize, w: Weights<'_>, scorer: Scorer<'_>) -> Silhouette {
     let n = labels.len();
     let all: Vec<usize> = (0..n).collect();
-    let judged = Judged::new(&all, labels, k, 1);
+    let judged = Judged::new(&all, labels, k, 1, w);
     let s = scorer(&judged);
     let full = judged.whole(&s);
     let mut per = vec![0.0; k];
-    let mut n_of = vec![0usize; k];
+    let mut n_of = vec![0.0f64; k];
     for (&i, v) in all.iter().zip(&full) {
-        per[labels[i] as usize] += v;
-        n_of[labels[i] as usize] += 1;
+        per[labels[i] as usize] += w.at(i) * v;
+        n_of[labels[i] as usize] += w.at(i);
     }
     for (p, &m) in per.iter_mut().zip(&n_of) {
-        *p /= m.max(1) as f64;
+        *p /= if m > 0.0 { m } else { 1.0 };
     }
+    let total = if n == 0 { 1.0 } else { w.total(n) };
     Silhouette {
-        mean: full.iter().sum::<f64>() / n.max(1) as f64,
+        mean: (full.iter().enumerate())
+            .map(|(i, v)| w.at(i) * v)
+            .sum::<f64>()
+            / total,
         std_error: None,
         per_segment: per,
         evaluated: n,
@@ -168,12 +216,15 @@ pub fn estimate(
     rng: &mut Stream,
     sample: usize,
 ) -> Silhouette {
-    estimate_with(labels, k, rng, sample, &|j: &Judged| j.scores(data))
+    estimate_with(labels, k, Weights::NONE, rng, sample, &|j: &Judged| {
+        j.scores(data)
+    })
 }
 
 fn estimate_with(
     labels: &[u32],
     k: usize,
+    w: Weights<'_>,
     rng: &mut Stream,
     sample: usize,
     scorer: Scorer<'_>,
@@ -183,7 +234,8 @@ fn estimate_with(
     for (i, &l) in labels.iter().enumerate() {
         members[l as usize].push(i);
     }
-    let n_of: Vec<usize> = members.iter().map(Vec::len).collect();
+    let n_of = w.per_segment(labels, k);
+    let total = w.total(n);
     let chosen: Vec<usize> = members
         .iter()
         .flat_map(|m| {
@@ -193,9 +245,9 @@ fn estimate_with(
             draw(m, want, rng)
         })
         .collect();
-    let judged = Judged::new(&chosen, labels, k, GROUPS);
+    let judged = Judged::new(&chosen, labels, k, GROUPS, w);
     let s = scorer(&judged);
-    let weights: Vec<f64> = n_of.iter().map(|&m| m as f64 / n as f64).collect();
+    let weights: Vec<f64> = n_of.iter().map(|&m| m / total).collect();
 
     let full = judged.whole(&s);
     let (mean, per) = judged.weighted_mean(&full, None, &weights);
@@ -260,14 +312,19 @@ struct Judged {
     group: Vec<usize>,
     /// Segment of each judged record.
     segment: Vec<usize>,
+    /// Weight of each judged record (1 without weights).
+    weight: Vec<f64>,
     k: usize,
     groups: usize,
-    /// Judged records per (segment, group) cell, `segment * groups + group`.
-    count: Vec<usize>,
+    /// Summed weight of the judged records per (segment, group) cell,
+    /// `segment * groups + group` (their count without weights).
+    count: Vec<f64>,
     /// Per cell, its first block and how many blocks it has.
     cells: Vec<(usize, usize)>,
     /// The references' record indices in block order; `usize::MAX` pads.
     padded: Vec<usize>,
+    /// The weight of each reference in block order (0 for padding).
+    reference_weight: Vec<f64>,
 }
 
 /// Per judged record, its distance sums to each (segment, group) cell.
@@ -275,7 +332,7 @@ type Sums = Vec<Vec<f64>>;
 
 impl Judged {
     /// Deals `records` into `groups` groups in turn within each segment.
-    fn new(records: &[usize], labels: &[u32], k: usize, groups: usize) -> Judged {
+    fn new(records: &[usize], labels: &[u32], k: usize, groups: usize, w: Weights<'_>) -> Judged {
         let mut dealt = vec![0usize; k];
         let group: Vec<usize> = records
             .iter()
@@ -301,10 +358,16 @@ impl Judged {
         Judged {
             records: records.to_vec(),
             segment: records.iter().map(|&i| labels[i] as usize).collect(),
+            weight: records.iter().map(|&i| w.at(i)).collect(),
             group,
             k,
             groups,
-            count: by_cell.iter().map(Vec::len).collect(),
+            count: (by_cell.iter())
+                .map(|m| m.iter().map(|&i| w.at(i)).sum())
+                .collect(),
+            reference_weight: (padded.iter())
+                .map(|&i| if i == usize::MAX { 0.0 } else { w.at(i) })
+                .collect(),
             cells,
             padded,
         }
@@ -327,7 +390,7 @@ impl Judged {
                 continue;
             }
             let (b, l) = (slot / LANES, slot % LANES);
-            mask[slot] = 1.0;
+            mask[slot] = self.reference_weight[slot];
             for f in 0..d {
                 packed[(b * d + f) * LANES + l] = x[i * d + f];
             }
@@ -353,7 +416,7 @@ impl Judged {
 
     /// As [`Judged::scores`], with distances from `dist`: each cell's
     /// references in block order, one accumulator.
-    fn scores_by(&self, dist: Dissimilarity<'_>) -> Sums {
+    fn scores_by(&self, dist: Dissimilarity<'_>, w: Weights<'_>) -> Sums {
         self.records
             .par_iter()
             .map(|&i| {
@@ -363,7 +426,7 @@ impl Judged {
                         self.padded[first * LANES..(first + count) * LANES]
                             .iter()
                             .filter(|&&j| j != usize::MAX)
-                            .map(|&j| dist(i, j))
+                            .map(|&j| w.at(j) * dist(i, j))
                             .sum()
                     })
                     .collect()
@@ -398,7 +461,7 @@ impl Judged {
         let own = self.segment[r];
         let (mut a, mut b) = (f64::NAN, f64::INFINITY);
         for s in 0..self.k {
-            let (mut total, mut m) = (0.0, 0usize);
+            let (mut total, mut m) = (0.0, 0.0f64);
             for g in 0..self.groups {
                 if Some(g) == skip {
                     continue;
@@ -407,12 +470,12 @@ impl Judged {
                 m += self.count[s * self.groups + g];
             }
             if s == own {
-                if m <= 1 {
+                if m <= 1.0 {
                     return 0.0;
                 }
-                a = total / (m - 1) as f64;
-            } else if m > 0 {
-                b = b.min(total / m as f64);
+                a = total / (m - 1.0);
+            } else if m > 0.0 {
+                b = b.min(total / m);
             }
         }
         let top = a.max(b);
@@ -427,18 +490,19 @@ impl Judged {
     /// records not in group `skip`, and the per-segment means.
     fn weighted_mean(&self, s: &[f64], skip: Option<usize>, weights: &[f64]) -> (f64, Vec<f64>) {
         let mut total = vec![0.0; self.k];
-        let mut m = vec![0usize; self.k];
-        for ((&v, &g), &seg) in s.iter().zip(&self.group).zip(&self.segment) {
+        let mut m = vec![0.0f64; self.k];
+        for (r, (&v, &g)) in s.iter().zip(&self.group).enumerate() {
             if Some(g) == skip {
                 continue;
             }
-            total[seg] += v;
-            m[seg] += 1;
+            let seg = self.segment[r];
+            total[seg] += self.weight[r] * v;
+            m[seg] += self.weight[r];
         }
         let per: Vec<f64> = total
             .iter()
             .zip(&m)
-            .map(|(t, &c)| t / c.max(1) as f64)
+            .map(|(t, &c)| t / if c > 0.0 { c } else { 1.0 })
             .collect();
         (per.iter().zip(weights).map(|(p, w)| p * w).sum(), per)
     }

@@ -47,9 +47,101 @@ pub fn median(xs: &[f64]) -> Option<f64> {
     quantile_sorted(&sorted(xs), 0.5)
 }
 
+/// Weighted arithmetic mean `Σ w x / Σ w`; `None` when empty. With every
+/// weight 1 it is [`mean`] to the last bit.
+pub fn mean_weighted(xs: &[f64], w: &[f64]) -> Option<f64> {
+    if xs.is_empty() {
+        return None;
+    }
+    let total: f64 = w.iter().sum();
+    Some(xs.iter().zip(w).map(|(x, w)| w * x).sum::<f64>() / total)
+}
+
+/// Weighted population standard deviation, `sqrt(Σ w (x - m)² / Σ w)`,
+/// two-pass: a record of weight `w` counts as `w` records.
+pub fn sd_population_weighted(xs: &[f64], w: &[f64]) -> Option<f64> {
+    let m = mean_weighted(xs, w)?;
+    let total: f64 = w.iter().sum();
+    let ss: f64 = xs.iter().zip(w).map(|(x, w)| w * (x - m) * (x - m)).sum();
+    Some((ss / total).sqrt())
+}
+
+/// Values with their weights, sorted by value: what weighted quantiles
+/// read. O(n log n).
+pub fn sorted_weighted(xs: &[f64], w: &[f64]) -> Vec<(f64, f64)> {
+    let mut v: Vec<(f64, f64)> = xs.iter().copied().zip(w.iter().copied()).collect();
+    v.sort_by(|a, b| a.0.total_cmp(&b.0));
+    v
+}
+
+/// [`quantile_sorted`] over weighted values: the definition numbered 7 by
+/// Hyndman and Fan on the data with each value repeated as often as its
+/// weight. Position `q (W - 1)` for the total weight W; the value at an
+/// expanded position `t` is the first whose running weight exceeds `t`.
+/// With whole-number weights this equals the quantile of the repeated
+/// values exactly; with every weight 1 it is [`quantile_sorted`].
+/// O(n) over the sorted pairs.
+pub fn quantile_sorted_weighted(sorted: &[(f64, f64)], q: f64) -> Option<f64> {
+    let last = sorted.last()?.0;
+    let total: f64 = sorted.iter().map(|p| p.1).sum();
+    let pos = (q.clamp(0.0, 1.0) * (total - 1.0)).max(0.0);
+    let lo = pos.floor();
+    let frac = pos - lo;
+    let mut at_lo = None;
+    let mut acc = 0.0;
+    for &(x, w) in sorted {
+        acc += w;
+        if at_lo.is_none() && acc > lo {
+            at_lo = Some(x);
+        }
+        if acc > lo + 1.0 {
+            let a = at_lo.unwrap_or(x);
+            return Some(a + (x - a) * frac);
+        }
+    }
+    let a = at_lo.unwrap_or(last);
+    Some(a + (last - a) * frac)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn weighted_quantiles_equal_those_of_the_repeated_values() {
+        // Property by construction: 1 x2, 4 x1, 10 x3 against the repeated
+        // list [1, 1, 4, 10, 10, 10].
+        let (x, w) = ([10.0, 1.0, 4.0], [3.0, 2.0, 1.0]);
+        let repeated = sorted(&[1.0, 1.0, 4.0, 10.0, 10.0, 10.0]);
+        let s = sorted_weighted(&x, &w);
+        for q in [0.0, 0.1, 0.25, 0.4, 0.5, 0.75, 0.9, 1.0] {
+            assert_eq!(
+                quantile_sorted_weighted(&s, q),
+                quantile_sorted(&repeated, q),
+                "q = {q}"
+            );
+        }
+        let m = mean_weighted(&x, &w).unwrap();
+        assert!((m - 36.0 / 6.0).abs() < 1e-12);
+        let sd = sd_population_weighted(&x, &w).unwrap();
+        let sd_rep = sd_population(&[1.0, 1.0, 4.0, 10.0, 10.0, 10.0]).unwrap();
+        assert!((sd - sd_rep).abs() < 1e-12);
+    }
+
+    #[test]
+    fn unit_weights_give_the_unweighted_bits() {
+        let x = [3.5, -1.25, 8.0, 2.0, 2.0, 7.75];
+        let w = [1.0; 6];
+        assert_eq!(mean_weighted(&x, &w), mean(&x));
+        assert_eq!(sd_population_weighted(&x, &w), sd_population(&x));
+        let s = sorted_weighted(&x, &w);
+        for q in [0.0, 0.25, 0.5, 0.6, 0.75, 1.0] {
+            assert_eq!(
+                quantile_sorted_weighted(&s, q),
+                quantile_sorted(&sorted(&x), q)
+            );
+        }
+    }
 
     #[test]
     fn quantiles_interpolate_between_order_statistics() {

@@ -189,16 +189,27 @@ pub fn linkage(
     linkage: Linkage,
     metric: Metric,
 ) -> Result<Dendrogram, EngineError> {
-    linkage_weighted(data, None, linkage, metric)
+    linkage_weighted(data, Sizes::default(), linkage, metric)
 }
 
-/// As [`linkage`], with a starting size for each row (a row standing for
-/// `weights[i]` records, as when the rows are micro-segment centres). Sizes
+/// What each row of a tree stands for: the records it holds (a
+/// micro-segment's members; one each by default), counted in the merges,
+/// and the weight the formulas take (its records' summed weight with record
+/// weights; its record count by default). Whole-number weights give the
+/// cuts of the repeated records: copies of a record would merge first at
+/// height 0 into one cluster of that weight.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct Sizes<'a> {
+    pub counts: Option<&'a [usize]>,
+    pub weights: Option<&'a [f64]>,
+}
+
+/// As [`linkage`], with what each row stands for ([`Sizes`]). The weights
 /// enter Ward's and the centroid's formulas and average linkage's update;
 /// single, complete, weighted and median ignore them.
 pub fn linkage_weighted(
     data: ArrayView2<'_, f64>,
-    weights: Option<&[usize]>,
+    stands_for: Sizes<'_>,
     linkage: Linkage,
     metric: Metric,
 ) -> Result<Dendrogram, EngineError> {
@@ -215,17 +226,21 @@ pub fn linkage_weighted(
         });
     }
     let rows: Vec<Vec<f64>> = data.outer_iter().map(|r| r.to_vec()).collect();
-    let sizes: Vec<usize> = match weights {
-        Some(w) => w.to_vec(),
+    let sizes: Vec<usize> = match stands_for.counts {
+        Some(c) => c.to_vec(),
         None => vec![1; n],
+    };
+    let weights: Vec<f64> = match stands_for.weights {
+        Some(w) => w.to_vec(),
+        None => sizes.iter().map(|&s| s as f64).collect(),
     };
     let steps = match linkage {
         Linkage::Single => mst_single(&rows, metric),
         Linkage::Complete | Linkage::Average | Linkage::Weighted => {
-            nn_chain_matrix(&rows, &sizes, linkage, metric)
+            nn_chain_matrix(&rows, &weights, linkage, metric)
         }
-        Linkage::Ward => nn_chain_ward(&rows, &sizes),
-        Linkage::Centroid | Linkage::Median => generic_matrix(&rows, &sizes, linkage),
+        Linkage::Ward => nn_chain_ward(&rows, &weights),
+        Linkage::Centroid | Linkage::Median => generic_matrix(&rows, &weights, linkage),
     };
     let sorted = !matches!(linkage, Linkage::Centroid | Linkage::Median);
     Ok(label_steps(n, &sizes, steps, sorted))
@@ -237,6 +252,16 @@ pub fn linkage_weighted(
 /// place). Linkages that need Euclidean geometry are refused. O(n²) time
 /// beyond the matrix.
 pub fn linkage_matrix(m: Condensed, linkage: Linkage) -> Result<Dendrogram, EngineError> {
+    linkage_matrix_weighted(m, None, linkage)
+}
+
+/// [`linkage_matrix`] with record weights, which average linkage's update
+/// takes (the others ignore them).
+pub fn linkage_matrix_weighted(
+    m: Condensed,
+    weights: Option<&[f64]>,
+    linkage: Linkage,
+) -> Result<Dendrogram, EngineError> {
     let n = m.n();
     if n == 0 {
         return Err(EngineError::TooFewRecords { k: 1, n: 0 });
@@ -252,7 +277,7 @@ pub fn linkage_matrix(m: Condensed, linkage: Linkage) -> Result<Dendrogram, Engi
         _ => {
             let mut space = MatrixSpace {
                 m,
-                size: vec![1.0; n],
+                size: weights.map_or_else(|| vec![1.0; n], <[f64]>::to_vec),
                 linkage,
             };
             chain(n, &mut space)
@@ -458,13 +483,13 @@ impl ChainSpace for MatrixSpace {
 
 fn nn_chain_matrix(
     rows: &[Vec<f64>],
-    sizes: &[usize],
+    sizes: &[f64],
     linkage: Linkage,
     metric: Metric,
 ) -> Vec<Step> {
     let mut space = MatrixSpace {
         m: Condensed::from_fn(rows.len(), |i, j| metric.distance(&rows[i], &rows[j])),
-        size: sizes.iter().map(|&s| s as f64).collect(),
+        size: sizes.to_vec(),
         linkage,
     };
     chain(rows.len(), &mut space)
@@ -494,10 +519,10 @@ impl ChainSpace for WardSpace {
     }
 }
 
-fn nn_chain_ward(rows: &[Vec<f64>], sizes: &[usize]) -> Vec<Step> {
+fn nn_chain_ward(rows: &[Vec<f64>], sizes: &[f64]) -> Vec<Step> {
     let mut space = WardSpace {
         centre: rows.to_vec(),
-        size: sizes.iter().map(|&s| s as f64).collect(),
+        size: sizes.to_vec(),
     };
     chain(rows.len(), &mut space)
 }
@@ -600,7 +625,7 @@ impl KeyedHeap {
 /// [`KeyedHeap`]. The slot at the top whose bound its candidate meets
 /// exactly holds a closest pair; any other is re-scanned (at most once per
 /// remaining cluster, a fixed bound that guards against rounding).
-fn generic_matrix(rows: &[Vec<f64>], sizes: &[usize], linkage: Linkage) -> Vec<Step> {
+fn generic_matrix(rows: &[Vec<f64>], sizes: &[f64], linkage: Linkage) -> Vec<Step> {
     let n = rows.len();
     let mut steps = Vec::with_capacity(n.saturating_sub(1));
     if n < 2 {
@@ -609,11 +634,12 @@ fn generic_matrix(rows: &[Vec<f64>], sizes: &[usize], linkage: Linkage) -> Vec<S
     let mut d = Condensed::from_fn(rows.len(), |i, j| {
         Metric::Euclidean.distance(&rows[i], &rows[j])
     });
-    let mut size: Vec<usize> = sizes.to_vec();
-    let nearest_above = |d: &Condensed, size: &[usize], x: usize| -> (usize, f64) {
+    // A merged-away slot has size 0; every live one is above 0.
+    let mut size: Vec<f64> = sizes.to_vec();
+    let nearest_above = |d: &Condensed, size: &[f64], x: usize| -> (usize, f64) {
         let mut best = (usize::MAX, f64::INFINITY);
         for j in x + 1..n {
-            if size[j] > 0 && d.get(x, j) < best.1 {
+            if size[j] > 0.0 && d.get(x, j) < best.1 {
                 best = (j, d.get(x, j));
             }
         }
@@ -641,11 +667,11 @@ fn generic_matrix(rows: &[Vec<f64>], sizes: &[usize], linkage: Linkage) -> Vec<S
         }
         heap.remove_min();
         steps.push((x, y, h));
-        let (nx, ny) = (size[x] as f64, size[y] as f64);
+        let (nx, ny) = (size[x], size[y]);
         size[y] += size[x];
-        size[x] = 0;
+        size[x] = 0.0;
         for z in 0..n {
-            if size[z] == 0 || z == y {
+            if size[z] == 0.0 || z == y {
                 continue;
             }
             let (dx, dy) = (d.get(z, x), d.get(z, y));
@@ -657,12 +683,12 @@ fn generic_matrix(rows: &[Vec<f64>], sizes: &[usize], linkage: Linkage) -> Vec<S
             d.set(z, y, v.max(0.0).sqrt());
         }
         for z in 0..x {
-            if size[z] > 0 && neighbour[z] == x {
+            if size[z] > 0.0 && neighbour[z] == x {
                 neighbour[z] = y;
             }
         }
         for z in 0..y {
-            if size[z] > 0 && d.get(z, y) < bound[z] {
+            if size[z] > 0.0 && d.get(z, y) < bound[z] {
                 neighbour[z] = y;
                 bound[z] = d.get(z, y);
                 heap.change(z, bound[z]);

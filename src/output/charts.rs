@@ -183,23 +183,7 @@ pub fn criteria(o: &Outcome) -> Chart {
         g = g
             .add(line(chosen_x, ys.from, chosen_x, ys.to, CHOSEN).set("stroke-dasharray", "4 3"))
             .add(text(chosen_x + 9.0, ys.to + 8.0, "chosen", "start"));
-        let points: Vec<(f64, f64)> = ks
-            .iter()
-            .zip(&vals)
-            .filter_map(|(&k, v)| v.filter(|v| v.is_finite()).map(|v| (xs.at(k), ys.at(v))))
-            .collect();
-        let pts: String = points
-            .iter()
-            .map(|(x, y)| format!("{x:.1},{y:.1}"))
-            .collect::<Vec<_>>()
-            .join(" ");
-        g = g.add(
-            Polyline::new()
-                .set("points", pts)
-                .set("fill", "none")
-                .set("stroke", SEGMENT_COLOURS[0])
-                .set("stroke-width", 2),
-        );
+        g = g.add(trace(&xs, &ys, &ks, &vals));
         for (r, v) in o.sweep.iter().zip(&vals) {
             if let Some(v) = v.filter(|v| v.is_finite()) {
                 g = g.add(k_point(
@@ -218,6 +202,22 @@ pub fn criteria(o: &Outcome) -> Chart {
         title,
         svg: doc.to_string(),
     }
+}
+
+/// A criterion's line over k, through its finite values.
+fn trace(xs: &Scale, ys: &Scale, ks: &[f64], vals: &[Option<f64>]) -> Polyline {
+    let pts: String = ks
+        .iter()
+        .zip(vals)
+        .filter_map(|(&k, v)| v.filter(|v| v.is_finite()).map(|v| (xs.at(k), ys.at(v))))
+        .map(|(x, y)| format!("{x:.1},{y:.1}"))
+        .collect::<Vec<_>>()
+        .join(" ");
+    Polyline::new()
+        .set("points", pts)
+        .set("fill", "none")
+        .set("stroke", SEGMENT_COLOURS[0])
+        .set("stroke-width", 2)
 }
 
 /// One k's point on a criterion's panel: the chosen k a large open ring,
@@ -281,16 +281,32 @@ fn bars(
 }
 
 pub fn sizes(o: &Outcome) -> Chart {
-    let most = o.profiles.iter().map(|p| p.size).max().unwrap_or(1) as f64;
+    // With record weights, bars measure the weighted members.
+    let size = |i: usize| {
+        let p = &o.profiles[i];
+        p.weighted.unwrap_or(p.size as f64)
+    };
+    let most = (0..o.profiles.len()).map(size).fold(1.0, f64::max);
+    let shown = |i: usize| {
+        let p = &o.profiles[i];
+        match p.weighted {
+            Some(w) => crate::text::members(w),
+            None => crate::text::thousands(p.size),
+        }
+    };
     bars(
-        "segment sizes",
+        if o.overall.weighted.is_some() {
+            "segment sizes (weighted members)"
+        } else {
+            "segment sizes"
+        },
         "sizes",
         o,
-        |i| o.profiles[i].size as f64,
+        size,
         |i| {
             format!(
                 "{} ({})",
-                crate::text::thousands(o.profiles[i].size),
+                shown(i),
                 super::people::share(o.profiles[i].share)
             )
         },
@@ -588,7 +604,16 @@ pub fn projection(o: &Outcome) -> Chart {
         let s = a.segment.saturating_sub(1);
         points = points.add(marker(s, xs.at(cx(i)), ys.at(cy(i)), 2.6));
     }
-    doc = doc.add(points);
+    doc = segment_legend(doc.add(points), o, w);
+    Chart {
+        name: "projection",
+        title,
+        svg: doc.to_string(),
+    }
+}
+
+/// Each segment's marker and name, in a column at the chart's right.
+fn segment_legend(mut doc: Document, o: &Outcome, w: f64) -> Document {
     for (s, prof) in o.profiles.iter().enumerate() {
         let y = 50.0 + 20.0 * s as f64;
         let number = prof.segment.unwrap_or(s + 1);
@@ -601,11 +626,7 @@ pub fn projection(o: &Outcome) -> Chart {
                 "start",
             ));
     }
-    Chart {
-        name: "projection",
-        title,
-        svg: doc.to_string(),
-    }
+    doc
 }
 
 /// A segment's marker: its colour and one of four shapes.
@@ -660,23 +681,11 @@ pub fn dendrogram(o: &Outcome) -> Option<Chart> {
     }
     let first = d.merges.len() - shown;
     // Groups formed by the merges below the shown ones are leaves here.
-    let mut size = vec![1usize; n];
-    size.extend(d.merges.iter().map(|m| m.size));
-    let is_leaf = |id: usize| id < n + first;
-    // Leaf order: depth first from the root, the first-named side first.
-    let mut order = Vec::new();
-    let mut stack = vec![n + d.merges.len() - 1];
-    while let Some(id) = stack.pop() {
-        if is_leaf(id) {
-            order.push(id);
-        } else {
-            let m = &d.merges[id - n];
-            stack.push(m.b);
-            stack.push(m.a);
-        }
-    }
-    let (w, h) = (40.0 + 22.0 * order.len() as f64 + 40.0, 420.0);
-    let w = w.max(520.0);
+    let size: Vec<usize> = std::iter::repeat_n(1, n)
+        .chain(d.merges.iter().map(|m| m.size))
+        .collect();
+    let order = leaf_order(d, first);
+    let (w, h) = ((40.0 + 22.0 * order.len() as f64 + 40.0).max(520.0), 420.0);
     let title = format!(
         "the top {shown} merges of the tree ({} linkage), cut into {} segments",
         t.linkage.name(),
@@ -684,11 +693,8 @@ pub fn dendrogram(o: &Outcome) -> Option<Chart> {
     );
     let mut doc = document(w, h, &title);
     let top = d.merges.last().map_or(1.0, |m| m.height);
-    let base = d
-        .merges
-        .get(first.saturating_sub(1))
-        .map_or(0.0, |m| m.height)
-        .min(top);
+    let below = d.merges.get(first.saturating_sub(1));
+    let base = below.map_or(0.0, |m| m.height).min(top);
     let ys = Scale::new(base, top, h - 60.0, 40.0);
     let xs = |pos: usize| 50.0 + 22.0 * pos as f64;
     let mut x_of = std::collections::HashMap::new();
@@ -719,22 +725,19 @@ pub fn dendrogram(o: &Outcome) -> Option<Chart> {
         x_of.insert(id, (xa + xb) / 2.0);
         y_of.insert(id, y);
     }
-    // The cut: between the last merge kept and the first undone.
-    let k = o.chosen;
-    if k >= 2 && k <= d.merges.len() + 1 {
-        let kept = d
-            .merges
-            .get(d.merges.len() + 1 - k - 1)
-            .map_or(base, |m| m.height);
-        let undone = d.merges[d.merges.len() + 1 - k].height;
-        let y = ys.at(((kept + undone) / 2.0).clamp(base, top));
+    if let Some(y) = cut_height(d, o.chosen, base, top) {
         doc = doc
             .add(
-                line(30.0, y, w - 20.0, y, SEGMENT_COLOURS[1])
+                line(30.0, ys.at(y), w - 20.0, ys.at(y), SEGMENT_COLOURS[1])
                     .set("stroke-dasharray", "6 4")
                     .set("stroke-width", 2),
             )
-            .add(text(w - 20.0, y - 4.0, format!("cut: {k} segments"), "end"));
+            .add(text(
+                w - 20.0,
+                ys.at(y) - 4.0,
+                format!("cut: {} segments", o.chosen),
+                "end",
+            ));
     }
     doc = doc.add(text(
         50.0,
@@ -747,6 +750,39 @@ pub fn dendrogram(o: &Outcome) -> Option<Chart> {
         title,
         svg: doc.to_string(),
     })
+}
+
+/// The ids shown as leaves when the merges from `first` on are drawn: depth
+/// first from the root, the first-named side first.
+fn leaf_order(d: &crate::engine::tree::Dendrogram, first: usize) -> Vec<usize> {
+    let n = d.n;
+    let mut order = Vec::new();
+    let mut stack = vec![n + d.merges.len() - 1];
+    while let Some(id) = stack.pop() {
+        if id < n + first {
+            order.push(id);
+        } else {
+            let m = &d.merges[id - n];
+            stack.push(m.b);
+            stack.push(m.a);
+        }
+    }
+    order
+}
+
+/// The height of the cut into `k` segments: between the last merge kept
+/// and the first undone, within the drawn range; `None` for a k the tree
+/// cannot be cut at.
+fn cut_height(d: &crate::engine::tree::Dendrogram, k: usize, base: f64, top: f64) -> Option<f64> {
+    if k < 2 || k > d.merges.len() + 1 {
+        return None;
+    }
+    let kept = d
+        .merges
+        .get(d.merges.len() + 1 - k - 1)
+        .map_or(base, |m| m.height);
+    let undone = d.merges[d.merges.len() + 1 - k].height;
+    Some(((kept + undone) / 2.0).clamp(base, top))
 }
 
 #[cfg(test)]

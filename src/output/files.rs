@@ -363,6 +363,12 @@ fn profiles_csv(o: &Outcome) -> Csv {
     .iter()
     .map(|s| s.to_string())
     .collect();
+    // With record weights, the members each segment stands for follow
+    // its records.
+    let weighted = o.overall.weighted.is_some();
+    if weighted {
+        header.insert(3, "weighted_members".to_string());
+    }
     for f in &o.prepared.features {
         for part in ["mean", "median", "q1", "q3", "std_diff"] {
             header.push(format!("{}_{part}", f.column));
@@ -394,6 +400,9 @@ fn profiles_csv(o: &Outcome) -> Csv {
             p.silhouette.map(f6).unwrap_or_default(),
             p.stability.map(f6).unwrap_or_default(),
         ];
+        if weighted {
+            r.insert(3, p.weighted.map(f6).unwrap_or_default());
+        }
         for fs in &p.features {
             r.extend([fs.mean, fs.median, fs.q1, fs.q3].map(f6));
             r.push(if p.segment.is_some() {
@@ -508,6 +517,8 @@ struct JsonProfile<'a> {
     #[serde(skip_serializing_if = "Option::is_none")]
     typical_member: Option<&'a str>,
     size: usize,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    weighted_members: Option<f64>,
     share: f64,
     silhouette: Option<f64>,
     stability: Option<f64>,
@@ -528,6 +539,7 @@ fn json_profile<'a>(p: &'a Profile, o: &'a Outcome) -> JsonProfile<'a> {
         action: note.and_then(|n| n.action.as_deref()),
         typical_member: p.medoid.as_deref(),
         size: p.size,
+        weighted_members: p.weighted,
         share: p.share,
         silhouette: p.silhouette,
         stability: p.stability,

@@ -68,9 +68,16 @@ pub fn render(o: &Outcome, sources: &Sources<'_>) -> Vec<u8> {
     if let Some(period) = &plan.period {
         let _ = write!(h, "<p class=\"period\">{}</p>\n", esc(period));
     }
+    let standing = match o.overall.weighted {
+        Some(w) => format!(
+            ", standing for {} weighted members,",
+            crate::text::members(w)
+        ),
+        None => String::new(),
+    };
     let _ = write!(
         h,
-        "<p class=\"lead\">{} {noun} in <b>{} segments</b>.</p>\n",
+        "<p class=\"lead\">{} {noun}{standing} in <b>{} segments</b>.</p>\n",
         crate::text::thousands(o.prepared.kept.len()),
         o.chosen,
     );
@@ -194,6 +201,13 @@ fn how(h: &mut String, o: &Outcome) {
         filled.join(", ")
     };
     let _ = write!(h, "<li>Missing values: {gaps}; {dropped}.</li>\n");
+    if let Some(column) = &plan.record_weights {
+        let _ = write!(
+            h,
+            "<li>Record weights: each record stands for as many members as <code>{}</code> says; sizes, shares, means, quartiles, rules and every criterion count members by weight.</li>\n",
+            esc(column)
+        );
+    }
     let _ = write!(h, "<li>Scaling: {}.</li>\n", esc(&serde_plain(&plan.scale)));
     let _ = write!(
         h,
@@ -331,11 +345,20 @@ fn cards(h: &mut String, o: &Outcome, noun: &str, changes: Option<&super::change
             Some(l) => esc(l),
             None => format!("Segment {seg}"),
         };
+        // With record weights the members a segment stands for lead, its
+        // records in brackets.
+        let count = match p.weighted {
+            Some(w) => format!(
+                "{} weighted members</span> ({} {noun})",
+                crate::text::members(w),
+                crate::text::thousands(p.size)
+            ),
+            None => format!("{} {noun}</span>", crate::text::thousands(p.size)),
+        };
         let _ = write!(
             h,
-            "<div class=\"card\" style=\"border-left-color:{}\"><h3>{name}</h3>\n<p><span class=\"value\">{} {noun}</span>, {} of all <span class=\"small\">(segment {seg})</span></p>\n",
+            "<div class=\"card\" style=\"border-left-color:{}\"><h3>{name}</h3>\n<p><span class=\"value\">{count}, {} of all <span class=\"small\">(segment {seg})</span></p>\n",
             charts::SEGMENT_COLOURS[i % charts::SEGMENT_COLOURS.len()],
-            crate::text::thousands(p.size),
             people::share(p.share),
         );
         let note = o.plan.briefs.get(&seg);

@@ -468,7 +468,10 @@ fn sweep_table(s: &mut String, o: &Outcome) {
     if o.plan.floor.is_some() {
         columns.push(("smallest", 10, |r| {
             let mark = if r.below_floor { " *" } else { "" };
-            format!("{}{mark}", crate::text::thousands(r.smallest))
+            let weighted = (r.smallest_weighted)
+                .map(|w| format!(" ({})", crate::text::members(w)))
+                .unwrap_or_default();
+            format!("{}{weighted}{mark}", crate::text::thousands(r.smallest))
         }));
     }
     let mut header = format!("  {:>3}", "k");
@@ -484,6 +487,11 @@ fn sweep_table(s: &mut String, o: &Outcome) {
         }
         let _ = writeln!(s, "{}", line.trim_end());
     }
+    wrapped_items(s, "  ", &sweep_legend(o), ';');
+}
+
+/// What the sweep table's abbreviations and marks mean.
+fn sweep_legend(o: &Outcome) -> Vec<String> {
     let mut legend = vec![
         "C-H: Calinski-Harabasz, higher is better",
         "D-B: Davies-Bouldin, lower is better",
@@ -499,12 +507,18 @@ fn sweep_table(s: &mut String, o: &Outcome) {
     }
     let mut legend: Vec<String> = legend.into_iter().map(String::from).collect();
     if let Some(f) = o.plan.floor {
-        legend.push(format!(
-            "smallest: records in the smallest segment, * below the floor of {}",
-            f.words(o.prepared.kept.len())
-        ));
+        legend.push(match o.prepared.weights.as_deref() {
+            Some(w) => format!(
+                "smallest: records in the smallest segment (weighted members in brackets), * below the floor of {}",
+                f.words(w.iter().sum::<f64>().round() as usize, "weighted members")
+            ),
+            None => format!(
+                "smallest: records in the smallest segment, * below the floor of {}",
+                f.words(o.prepared.kept.len(), "records")
+            ),
+        });
     }
-    wrapped_items(s, "  ", &legend, ';');
+    legend
 }
 
 /// One row of the profiles table: its name, then a cell per profile (all
@@ -551,12 +565,7 @@ fn profiles(s: &mut String, o: &Outcome) {
                     .collect(),
             );
         }
-        row(s, "size", cols.iter().map(|p| thousands(p.size)).collect());
-        row(
-            s,
-            "share",
-            cols.iter().map(|p| people::share(p.share)).collect(),
-        );
+        size_rows(s, &cols);
         if block.iter().any(|p| p.stability.is_some()) {
             row(
                 s,
@@ -591,6 +600,29 @@ fn profiles(s: &mut String, o: &Outcome) {
         }
         s.push('\n');
     }
+}
+
+/// The size rows: records, with record weights the weighted members, and
+/// the share (of the weighted members, with weights).
+fn size_rows(s: &mut String, cols: &[&Profile]) {
+    row(s, "size", cols.iter().map(|p| thousands(p.size)).collect());
+    let weighted = cols.iter().any(|p| p.weighted.is_some());
+    if weighted {
+        let members = (cols.iter())
+            .map(|p| p.weighted.map(crate::text::members).unwrap_or_default())
+            .collect();
+        row(s, "weighted members", members);
+    }
+    let share = if weighted {
+        "share (by weight)"
+    } else {
+        "share"
+    };
+    row(
+        s,
+        share,
+        cols.iter().map(|p| people::share(p.share)).collect(),
+    );
 }
 
 /// The rows of the clustered features: each segment's mean in the

@@ -65,6 +65,13 @@ pub enum RunError {
         help: String,
     },
 
+    #[error("{place}: {found} cannot weigh a record; every record needs a weight above 0")]
+    #[diagnostic(
+        code(assort::run::bad_weight),
+        help("`represents {}` says how many members each record stands for; mend the value, or leave the record out of the extract", place.name)
+    )]
+    BadWeight { place: Place, found: String },
+
     #[error("{place}: value is missing and the recipe has no rule for missing values in `{}`", place.name)]
     #[diagnostic(
         code(assort::run::missing_value),

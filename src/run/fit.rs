@@ -11,7 +11,7 @@ use super::{
     COPHENETIC_STREAM,
 };
 use crate::engine::matrix::Condensed;
-use crate::engine::{criteria, kmeans, tree, EngineError};
+use crate::engine::{criteria, kmeans, tree, weights::Weights, EngineError};
 use crate::plan::{Distance, KMeansPlan, MethodPlan, Plan, TreePlan};
 use ndarray::{Array2, ArrayView2};
 
@@ -49,7 +49,11 @@ pub(super) fn fit(
 ) -> Result<Fitted, RunError> {
     let x = prepared.matrix.view();
     match &plan.method {
-        MethodPlan::KMeans(km) => Ok(Fitted::of(fit_kmeans(plan, km, x, last, progress)?, None)),
+        MethodPlan::KMeans(km) => {
+            let w = prepared.weights();
+            let candidates = fit_kmeans(plan, km, (x, w), last, progress)?;
+            Ok(Fitted::of(candidates, None))
+        }
         MethodPlan::KMedoids(km) => mixed::fit_kmedoids(plan, km, prepared, progress),
         MethodPlan::KPrototypes(kp) => mixed::fit_kprototypes(plan, kp, prepared, progress),
         MethodPlan::Tree(t) => {
@@ -61,7 +65,8 @@ pub(super) fn fit(
             if t.distance == Distance::Gower {
                 return mixed::fit_gower_tree(plan, t, prepared, table);
             }
-            let (candidates, tree) = fit_tree(plan, t, x, table, &prepared.kept)?;
+            let w = prepared.weights();
+            let (candidates, tree) = fit_tree(plan, t, (x, w), table, &prepared.kept)?;
             Ok(Fitted::of(candidates, Some(tree)))
         }
     }
@@ -114,7 +119,7 @@ impl Candidate {
 fn fit_kmeans(
     plan: &Plan,
     km: &KMeansPlan,
-    x: ArrayView2<'_, f64>,
+    (x, w): (ArrayView2<'_, f64>, Weights<'_>),
     last: Option<&previous::PreviousRun>,
     progress: &dyn Fn(Step),
 ) -> Result<Vec<Candidate>, RunError> {
@@ -138,7 +143,8 @@ fn fit_kmeans(
                 // Last run's centres start one more restart at its k.
                 start: last.filter(|l| l.k() == k).map(|l| l.start()),
             };
-            let fit = kmeans::kmeans(x, &settings).map_err(|source| engine_error(k, source))?;
+            let fit = kmeans::kmeans_weighted(x, w, &settings)
+                .map_err(|source| engine_error(k, source))?;
             Ok(Candidate {
                 k,
                 restarts: Some(Restarts {
@@ -196,7 +202,7 @@ impl BuiltTree {
 /// failed and why.
 pub(super) fn build_tree(
     t: &TreePlan,
-    x: ArrayView2<'_, f64>,
+    (x, w): (ArrayView2<'_, f64>, Weights<'_>),
     seed: u64,
 ) -> Result<BuiltTree, RunError> {
     match &t.micro {
@@ -212,11 +218,16 @@ pub(super) fn build_tree(
                 start: None,
             };
             let engine = |source| engine_error(m.segments, source);
-            let fit = kmeans::kmeans(x, &settings).map_err(engine)?;
+            let fit = kmeans::kmeans_weighted(x, w, &settings).map_err(engine)?;
             let mut sizes = vec![0usize; m.segments];
             fit.labels.iter().for_each(|&l| sizes[l as usize] += 1);
+            let weights = w.per_segment(&fit.labels, m.segments);
+            let stands_for = tree::Sizes {
+                counts: Some(&sizes),
+                weights: w.is_weighted().then_some(weights.as_slice()),
+            };
             let tree =
-                tree::linkage_weighted(fit.centroids.view(), Some(&sizes), t.linkage, metric_of(t))
+                tree::linkage_weighted(fit.centroids.view(), stands_for, t.linkage, metric_of(t))
                     .map_err(engine)?;
             Ok(BuiltTree {
                 tree,
@@ -225,8 +236,16 @@ pub(super) fn build_tree(
             })
         }
         None => Ok(BuiltTree {
-            tree: tree::linkage(x, t.linkage, metric_of(t))
-                .map_err(|source| RunError::Engine { k: 1, source })?,
+            tree: tree::linkage_weighted(
+                x,
+                tree::Sizes {
+                    counts: None,
+                    weights: w.as_slice(),
+                },
+                t.linkage,
+                metric_of(t),
+            )
+            .map_err(|source| RunError::Engine { k: 1, source })?,
             leaf_of: None,
             leaves: x.to_owned(),
         }),
@@ -262,11 +281,11 @@ fn metric_of(t: &TreePlan) -> tree::Metric {
 fn fit_tree(
     plan: &Plan,
     t: &TreePlan,
-    x: ArrayView2<'_, f64>,
+    (x, w): (ArrayView2<'_, f64>, Weights<'_>),
     table: &load::Table,
     kept: &[usize],
 ) -> Result<(Vec<Candidate>, TreeResult), RunError> {
-    let built = build_tree(t, x, plan.seed)?;
+    let built = build_tree(t, (x, w), plan.seed)?;
     let ks = ks_of_cut(t, &built.tree)?;
     let candidates = ks
         .iter()
@@ -275,7 +294,7 @@ fn fit_tree(
                 Some(h) => built.cut_at_height(h, k),
                 None => built.cut(k),
             };
-            let centres = criteria::centres(x, &labels, k);
+            let centres = criteria::centres_weighted(x, w, &labels, k);
             let centres = Array2::from_shape_fn((k, x.ncols()), |(s, f)| centres[s][f]);
             Candidate {
                 k,

@@ -8,7 +8,7 @@ use super::fit::{build_tree, Candidate};
 use super::measure::{Decoded, Layout, Measure};
 use super::{error::RunError, go_on, Step, SweepRow, RESTART_ADVICE_SHARE, SILHOUETTE_STREAM};
 use crate::engine::matrix::Condensed;
-use crate::engine::{criteria, evidence, kmeans, silhouette};
+use crate::engine::{criteria, evidence, kmeans, silhouette, weights::Weights};
 use crate::plan::{ChooseK, Criterion, MethodPlan, Plan, SilhouetteMode, SizeFloor, TreePlan};
 use crate::text::thousands;
 use ndarray::ArrayView2;
@@ -37,20 +37,22 @@ pub(super) struct Judged {
 /// `own`: the method's own measure, for methods judged on it.
 pub(super) fn judge(
     plan: &Plan,
-    x: ArrayView2<'_, f64>,
+    (x, w): (ArrayView2<'_, f64>, Weights<'_>),
     candidates: &[Candidate],
     own: Option<&Own<'_>>,
     progress: &dyn Fn(Step),
 ) -> Result<Judged, RunError> {
-    let measured = measure_each_k(plan, x, candidates, own, progress)?;
+    let measured = measure_each_k(plan, (x, w), candidates, own, progress)?;
     let mut sweep = measured.sweep;
-    let (gaps, stability) = gather_evidence(plan, x, candidates, &mut sweep, progress);
+    let (gaps, stability) = gather_evidence(plan, (x, w), candidates, &mut sweep, progress);
     go_on("while gathering the evidence for k")?;
-    let floor = plan.floor.map(|f| (f, f.records(x.nrows())));
+    // With record weights the floor counts the members segments stand for.
+    let size = Sizes::of(w, x.nrows());
+    let floor = plan.floor.map(|f| (f, f.records(size.n)));
     if let Some((_, least)) = floor {
         sweep
             .iter_mut()
-            .for_each(|r| r.below_floor = r.smallest < least);
+            .for_each(|r| r.below_floor = Sizes::smallest(r) < least as f64);
     }
     // The criteria choose among the k the floor leaves.
     let eligible: Vec<SweepRow> = sweep.iter().filter(|r| !r.below_floor).cloned().collect();
@@ -63,7 +65,7 @@ pub(super) fn judge(
     });
     if let Some((f, _)) = floor {
         if eligible.is_empty() {
-            return Err(below_floor(f, x.nrows(), &sweep, plan));
+            return Err(below_floor(f, size, &sweep, plan));
         }
     }
     let picks = Picks::new(&eligible, eligible_gaps.as_deref());
@@ -71,9 +73,9 @@ pub(super) fn judge(
     if let Some((f, _)) = floor {
         if let Some(row) = sweep.iter().find(|r| r.k == chosen && r.below_floor) {
             // A k the recipe fixed, or the one a tree's height leaves.
-            return Err(below_floor(f, x.nrows(), std::slice::from_ref(row), plan));
+            return Err(below_floor(f, size, std::slice::from_ref(row), plan));
         }
-        reason.push_str(&floor_words(f, x.nrows(), &sweep, gaps.as_deref(), plan));
+        reason.push_str(&floor_words(f, size, &sweep, gaps.as_deref(), plan));
     }
     Ok(Judged {
         disagreement: disagreement(&picks, chosen),
@@ -96,8 +98,15 @@ fn smallest_segment(labels: &[u32], k: usize) -> usize {
     sizes.into_iter().min().unwrap_or(0)
 }
 
+/// With record weights, the members the smallest of `k` segments stands
+/// for (its summed weight).
+fn smallest_weighted(labels: &[u32], w: Weights<'_>, k: usize) -> Option<f64> {
+    w.is_weighted()
+        .then(|| (w.per_segment(labels, k).into_iter()).fold(f64::INFINITY, f64::min))
+}
+
 /// The stop when no k fitted keeps every segment at or above the floor.
-fn below_floor(floor: SizeFloor, n: usize, rows: &[SweepRow], plan: &Plan) -> RunError {
+fn below_floor(floor: SizeFloor, size: Sizes, rows: &[SweepRow], plan: &Plan) -> RunError {
     // Methods that take the same columns.
     let others = match &plan.method {
         MethodPlan::Tree(t) if t.distance == crate::plan::Distance::Gower => {
@@ -112,16 +121,51 @@ fn below_floor(floor: SizeFloor, n: usize, rows: &[SweepRow], plan: &Plan) -> Ru
     };
     let smallest: Vec<String> = rows
         .iter()
-        .map(|r| format!("k = {} has a segment of {}", r.k, thousands(r.smallest)))
+        .map(|r| format!("k = {} has a segment of {}", r.k, Sizes::shown(r)))
         .collect();
-    let most = rows.iter().map(|r| r.smallest).max().unwrap_or(0);
+    let most = rows.iter().map(Sizes::smallest).fold(0.0, f64::max);
     RunError::BelowFloor {
-        floor: floor.words(n),
+        floor: floor.words(size.n, size.noun),
         smallest: smallest.join(", "),
         help: format!(
             "lower the floor to {} or less, fit smaller k, or try a method less drawn to outlying records ({others}); a floor no k meets says the data holds small groups or outliers worth a look of their own",
-            thousands(most)
+            thousands(most.floor() as u64)
         ),
+    }
+}
+
+/// What a size floor counts: records, or with record weights the members
+/// they stand for (the summed weight).
+#[derive(Clone, Copy)]
+struct Sizes {
+    /// Records, or the summed weight rounded to the nearest whole member.
+    n: usize,
+    noun: &'static str,
+}
+
+impl Sizes {
+    fn of(w: Weights<'_>, n: usize) -> Sizes {
+        if w.is_weighted() {
+            Sizes {
+                n: w.total(n).round() as usize,
+                noun: "weighted members",
+            }
+        } else {
+            Sizes { n, noun: "records" }
+        }
+    }
+
+    /// A row's smallest segment in what the floor counts.
+    fn smallest(r: &SweepRow) -> f64 {
+        r.smallest_weighted.unwrap_or(r.smallest as f64)
+    }
+
+    /// A row's smallest segment in words.
+    fn shown(r: &SweepRow) -> String {
+        match r.smallest_weighted {
+            Some(w) => crate::text::members(w),
+            None => thousands(r.smallest),
+        }
     }
 }
 
@@ -129,7 +173,7 @@ fn below_floor(floor: SizeFloor, n: usize, rows: &[SweepRow], plan: &Plan) -> Ru
 /// the k the criterion would have chosen without it.
 fn floor_words(
     floor: SizeFloor,
-    n: usize,
+    size: Sizes,
     sweep: &[SweepRow],
     gaps: Option<&[evidence::Gap]>,
     plan: &Plan,
@@ -137,12 +181,12 @@ fn floor_words(
     let below: Vec<String> = sweep
         .iter()
         .filter(|r| r.below_floor)
-        .map(|r| format!("k = {} ({})", r.k, thousands(r.smallest)))
+        .map(|r| format!("k = {} ({})", r.k, Sizes::shown(r)))
         .collect();
     if below.is_empty() {
         return format!(
             "; every k keeps its segments at or above the floor of {}",
-            floor.words(n)
+            floor.words(size.n, size.noun)
         );
     }
     let unfloored = choose(plan, sweep, &Picks::new(sweep, gaps)).0;
@@ -153,7 +197,7 @@ fn floor_words(
     };
     format!(
         "; set aside for a segment below the floor of {}: {} (smallest segment in brackets){passed_over}",
-        floor.words(n),
+        floor.words(size.n, size.noun),
         below.join(", ")
     )
 }
@@ -168,7 +212,7 @@ struct Measured {
 /// Each candidate's criteria, one row of the sweep per k.
 fn measure_each_k(
     plan: &Plan,
-    x: ArrayView2<'_, f64>,
+    (x, w): (ArrayView2<'_, f64>, Weights<'_>),
     candidates: &[Candidate],
     own: Option<&Own<'_>>,
     progress: &dyn Fn(Step),
@@ -186,31 +230,29 @@ fn measure_each_k(
         });
         go_on("while judging each k")?;
         if let Some(own) = own {
-            let (row, sil) = own.judge(plan, c);
+            let (row, sil) = own.judge(plan, c, w);
             out.sweep.push(row);
             out.per_segment_silhouette.push(sil.per_segment);
             out.silhouette_values.push(sil.values);
             continue;
         }
         let k = c.k;
-        let sil = match plan.evidence.silhouette {
-            SilhouetteMode::Exact => silhouette::exact(x, &c.labels, k),
-            SilhouetteMode::Estimate => {
-                silhouette::silhouette(x, &c.labels, k, plan.seed, SILHOUETTE_STREAM | k as u64)
-            }
-        };
+        let exact = plan.evidence.silhouette == SilhouetteMode::Exact;
+        let draw = (plan.seed, SILHOUETTE_STREAM | k as u64);
+        let sil = silhouette::silhouette_weighted(x, w, &c.labels, k, draw, exact);
         out.sweep.push(SweepRow {
             k,
-            within_ss: criteria::within_ss(x, &c.labels, k),
+            within_ss: criteria::within_ss_weighted(x, w, &c.labels, k),
             silhouette: sil.mean,
             silhouette_evaluated: sil.evaluated,
             silhouette_se: sil.std_error,
-            calinski_harabasz: criteria::calinski_harabasz(x, &c.labels, k),
-            davies_bouldin: criteria::davies_bouldin(x, &c.labels, k),
+            calinski_harabasz: criteria::calinski_harabasz_weighted(x, w, &c.labels, k),
+            davies_bouldin: criteria::davies_bouldin_weighted(x, w, &c.labels, k),
             restarts: c.restarts.clone(),
             gap: None,
             stability: None,
             smallest: smallest_segment(&c.labels, k),
+            smallest_weighted: smallest_weighted(&c.labels, w, k),
             below_floor: false,
         });
         out.per_segment_silhouette.push(sil.per_segment);
@@ -237,7 +279,12 @@ impl Own<'_> {
     /// squares, Calinski-Harabasz on that objective, Davies-Bouldin with
     /// the segments' centres (medoids, prototypes) and the measure's
     /// distance, and the silhouette over that distance.
-    fn judge(&self, plan: &Plan, c: &Candidate) -> (SweepRow, silhouette::Silhouette) {
+    fn judge(
+        &self,
+        plan: &Plan,
+        c: &Candidate,
+        w: Weights<'_>,
+    ) -> (SweepRow, silhouette::Silhouette) {
         let k = c.k;
         let n = self.x.len();
         let centres = Decoded::new(c.centres.view(), &self.layout);
@@ -254,34 +301,34 @@ impl Own<'_> {
                 )
             })
             .collect();
-        let within: f64 = costs.iter().map(|c| c.0).sum();
-        let total: f64 = costs.iter().map(|c| c.2).sum();
+        let within: f64 = (costs.iter().enumerate()).map(|(i, c)| w.at(i) * c.0).sum();
+        let total: f64 = (costs.iter().enumerate()).map(|(i, c)| w.at(i) * c.2).sum();
         let mut scatter = vec![0.0; k];
-        let mut sizes = vec![0usize; k];
-        for (&l, cost) in c.labels.iter().zip(&costs) {
-            scatter[l as usize] += cost.1;
-            sizes[l as usize] += 1;
+        let sizes = w.per_segment(&c.labels, k);
+        for (i, (&l, cost)) in c.labels.iter().zip(&costs).enumerate() {
+            scatter[l as usize] += w.at(i) * cost.1;
         }
         for (s, &size) in scatter.iter_mut().zip(&sizes) {
-            *s /= size.max(1) as f64;
+            *s /= if size > 0.0 { size } else { 1.0 };
         }
-        let stream = SILHOUETTE_STREAM | k as u64;
-        let sil = match (self.matrix, plan.evidence.silhouette) {
-            (Some(mx), SilhouetteMode::Exact) => {
-                silhouette::exact_by(&|i, j| mx.get(i, j), &c.labels, k)
-            }
-            (Some(mx), _) => {
-                silhouette::silhouette_by(&|i, j| mx.get(i, j), &c.labels, k, plan.seed, stream)
-            }
-            (None, SilhouetteMode::Exact) => {
-                silhouette::exact_by(&|i, j| m.distance(&self.x, i, &self.x, j), &c.labels, k)
-            }
-            (None, _) => silhouette::silhouette_by(
-                &|i, j| m.distance(&self.x, i, &self.x, j),
+        let draw = (plan.seed, SILHOUETTE_STREAM | k as u64);
+        let exact = plan.evidence.silhouette == SilhouetteMode::Exact;
+        let sil = match self.matrix {
+            Some(mx) => silhouette::silhouette_by_weighted(
+                &|i, j| mx.get(i, j),
+                w,
                 &c.labels,
                 k,
-                plan.seed,
-                stream,
+                draw,
+                exact,
+            ),
+            None => silhouette::silhouette_by_weighted(
+                &|i, j| m.distance(&self.x, i, &self.x, j),
+                w,
+                &c.labels,
+                k,
+                draw,
+                exact,
             ),
         };
         let row = SweepRow {
@@ -290,14 +337,15 @@ impl Own<'_> {
             silhouette: sil.mean,
             silhouette_evaluated: sil.evaluated,
             silhouette_se: sil.std_error,
-            calinski_harabasz: criteria::calinski_harabasz_from(total, within, n, k),
+            calinski_harabasz: criteria::calinski_harabasz_from(total, within, w.total(n), k),
             davies_bouldin: criteria::davies_bouldin_from(&scatter, |s, t| {
                 m.distance(&centres, s, &centres, t)
             }),
             restarts: c.restarts.clone(),
             gap: None,
             stability: None,
-            smallest: sizes.iter().copied().min().unwrap_or(0),
+            smallest: smallest_segment(&c.labels, k),
+            smallest_weighted: smallest_weighted(&c.labels, w, k),
             below_floor: false,
         };
         (row, sil)
@@ -308,7 +356,7 @@ impl Own<'_> {
 /// resamples for stability), written into the sweep's rows.
 fn gather_evidence(
     plan: &Plan,
-    x: ArrayView2<'_, f64>,
+    (x, w): (ArrayView2<'_, f64>, Weights<'_>),
     candidates: &[Candidate],
     sweep: &mut [SweepRow],
     progress: &dyn Fn(Step),
@@ -325,7 +373,7 @@ fn gather_evidence(
     let gaps = plan
         .evidence
         .gap
-        .map(|b| evidence::gap_statistic(x, &ks, b, plan.seed, &*recluster));
+        .map(|b| evidence::gap_statistic((x, w), &ks, b, plan.seed, &*recluster));
     if let Some(g) = &gaps {
         for row in sweep.iter_mut() {
             row.gap = g.iter().find(|x| x.k == row.k).map(|x| (x.gap, x.se));
@@ -333,7 +381,7 @@ fn gather_evidence(
     }
     let stability = plan.evidence.stability.map(|b| {
         let labels: Vec<Vec<u32>> = candidates.iter().map(|c| c.labels.clone()).collect();
-        evidence::bootstrap_stability(x, &ks, &labels, b, plan.seed, &*recluster)
+        evidence::bootstrap_stability((x, w), &ks, &labels, b, plan.seed, &*recluster)
     });
     if let Some(st) = &stability {
         for (row, s) in sweep.iter_mut().zip(st) {
@@ -539,7 +587,11 @@ fn reclusterer(plan: &Plan) -> Box<evidence::Recluster<'static>> {
     let method = plan.method.clone();
     let restarts_cap = plan.evidence.restarts;
     Box::new(
-        move |data: ArrayView2<'_, f64>, ks: &[usize], seed: u64| -> Vec<Vec<u32>> {
+        move |data: ArrayView2<'_, f64>,
+              w: Weights<'_>,
+              ks: &[usize],
+              seed: u64|
+              -> Vec<Vec<u32>> {
             let n = data.nrows();
             let fallback = || vec![0u32; n];
             match &method {
@@ -558,12 +610,12 @@ fn reclusterer(plan: &Plan) -> Box<evidence::Recluster<'static>> {
                         };
                         // A k the draw cannot support (too few distinct
                         // records) counts as a failed recovery.
-                        kmeans::kmeans(data, &settings)
+                        kmeans::kmeans_weighted(data, w, &settings)
                             .map(|f| f.labels)
                             .unwrap_or_else(|_| fallback())
                     })
                     .collect(),
-                MethodPlan::Tree(t) => match build_tree(t, data, seed) {
+                MethodPlan::Tree(t) => match build_tree(t, (data, w), seed) {
                     Ok(built) => ks.iter().map(|&k| built.cut(k)).collect(),
                     Err(_) => ks.iter().map(|_| fallback()).collect(),
                 },

@@ -11,6 +11,7 @@ use super::{error::RunError, load, Restarts, Step, TreeResult, COPHENETIC_SAMPLE
 use super::{go_on, COPHENETIC_STREAM};
 use crate::engine::gower::Gower;
 use crate::engine::matrix::Condensed;
+use crate::engine::weights::Weights;
 use crate::engine::{kmedoids, kprototypes, tree};
 use crate::plan::{Distance, KMedoidsPlan, KPrototypesPlan, Plan, TreePlan};
 use ndarray::{Array2, Axis};
@@ -100,7 +101,8 @@ pub(super) fn fit_kmedoids(
             max_passes: km.passes,
             seed: plan.seed,
         };
-        let fit = kmedoids::kmedoids(&m, &settings).map_err(|e| engine_error(k, e))?;
+        let fit = kmedoids::kmedoids_weighted(&m, prepared.weights(), &settings)
+            .map_err(|e| engine_error(k, e))?;
         candidates.push(Candidate {
             k,
             centres: rows_of(prepared, &fit.medoids),
@@ -127,7 +129,9 @@ pub(super) fn fit_gower_tree(
     table: &load::Table,
 ) -> Result<Fitted, RunError> {
     let (measure, m, apart) = matrix_measure(plan, prepared, Distance::Gower);
-    let dendrogram = tree::linkage_matrix(m.clone(), t.linkage).map_err(|e| engine_error(1, e))?;
+    let dendrogram =
+        tree::linkage_matrix_weighted(m.clone(), prepared.weights.as_deref(), t.linkage)
+            .map_err(|e| engine_error(1, e))?;
     let ks = ks_of_cut(t, &dendrogram)?;
     let candidates = ks
         .iter()
@@ -136,7 +140,7 @@ pub(super) fn fit_gower_tree(
                 Some(h) => dendrogram.cut_at_height(h),
                 None => dendrogram.cut(k),
             };
-            let medoids = kmedoids::medoids_of(&m, &labels, k);
+            let medoids = kmedoids::medoids_of_weighted(&m, prepared.weights(), &labels, k);
             Candidate {
                 k,
                 centres: rows_of(prepared, &medoids),
@@ -183,6 +187,7 @@ pub(super) struct PrototypeData {
     pub codes: Vec<Vec<u32>>,
     pub levels: Vec<usize>,
     pub gamma: Vec<f64>,
+    pub weights: Option<Vec<f64>>,
 }
 
 impl PrototypeData {
@@ -193,9 +198,9 @@ impl PrototypeData {
             .slice(ndarray::s![.., ..p])
             .as_standard_layout()
             .into_owned();
-        let base = kp
-            .gamma
-            .unwrap_or_else(|| kprototypes::huang_gamma(numbers.view()));
+        let base = (kp.gamma).unwrap_or_else(|| {
+            kprototypes::huang_gamma_weighted(numbers.view(), prepared.weights())
+        });
         PrototypeData {
             codes: prepared
                 .codes
@@ -204,6 +209,7 @@ impl PrototypeData {
                 .collect(),
             levels: prepared.categories.iter().map(|c| c.levels.len()).collect(),
             gamma: plan.categories.iter().map(|c| base * c.weight).collect(),
+            weights: prepared.weights.clone(),
             numbers,
         }
     }
@@ -214,6 +220,7 @@ impl PrototypeData {
             codes: &self.codes,
             levels: &self.levels,
             gamma: &self.gamma,
+            weights: self.weights.as_deref().map_or(Weights::NONE, Weights::of),
         }
     }
 }
@@ -291,7 +298,10 @@ pub(super) fn own<'a>(
     let overall = match &fitted.matrix {
         Some(m) => {
             let all = vec![0u32; m.n()];
-            rows_of(prepared, &kmedoids::medoids_of(m, &all, 1))
+            rows_of(
+                prepared,
+                &kmedoids::medoids_of_weighted(m, prepared.weights(), &all, 1),
+            )
         }
         None => overall_prototype(prepared),
     };
@@ -308,16 +318,27 @@ pub(super) fn own<'a>(
 /// mean, each category's most common level (ties to the first level).
 fn overall_prototype(prepared: &Prepared) -> Array2<f64> {
     let x = &prepared.matrix;
-    let n = x.nrows().max(1) as f64;
+    let w = prepared.weights();
+    let n = if x.nrows() == 0 {
+        1.0
+    } else {
+        w.total(x.nrows())
+    };
     let p = prepared.features.len();
     let mut row = Array2::zeros((1, x.ncols()));
     for f in 0..p {
-        row[[0, f]] = x.column(f).iter().sum::<f64>() / n;
+        row[[0, f]] = (x.column(f).iter().enumerate())
+            .map(|(i, v)| w.at(i) * v)
+            .sum::<f64>()
+            / n;
     }
     let mut at = p;
     for (cat, codes) in prepared.categories.iter().zip(&prepared.codes) {
-        let mut counts = vec![0usize; cat.levels.len()];
-        codes.iter().for_each(|&c| counts[c] += 1);
+        let mut counts = vec![0.0f64; cat.levels.len()];
+        codes
+            .iter()
+            .enumerate()
+            .for_each(|(i, &c)| counts[c] += w.at(i));
         row[[0, at + kprototypes::mode(&counts)]] = cat.value;
         at += cat.levels.len();
     }

@@ -24,6 +24,7 @@ pub use judge::best_k;
 
 use crate::engine::tree;
 use crate::plan::{Criterion, MethodPlan, Plan, TreePlan};
+use crate::text;
 pub use error::RunError;
 use ndarray::Array2;
 use prepare::Prepared;
@@ -64,6 +65,9 @@ pub struct SweepRow {
     pub restarts: Option<Restarts>,
     /// Records in the smallest segment.
     pub smallest: usize,
+    /// With record weights: the members the smallest segment stands for.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub smallest_weighted: Option<f64>,
     /// The smallest segment is below the recipe's size floor, so this k is
     /// never chosen.
     #[serde(skip_serializing_if = "std::ops::Not::not")]
@@ -203,7 +207,14 @@ pub struct FeatureSummary {
 pub struct Profile {
     pub segment: Option<usize>,
     pub label: Option<String>,
+    /// Records in the segment.
     pub size: usize,
+    /// With record weights: the members the segment stands for (its
+    /// summed weight).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub weighted: Option<f64>,
+    /// The segment's share of the members: of the records, or with record
+    /// weights of the summed weight.
     pub share: f64,
     pub features: Vec<FeatureSummary>,
     /// Per category, the share of each level (in the level order of
@@ -317,6 +328,7 @@ impl DataCache {
                 .iter()
                 .map(|f| f.column.clone())
                 .chain(plan.tally.iter().cloned())
+                .chain(plan.record_weights.iter().cloned())
                 .collect(),
             kinds: plan.features.iter().map(|f| f.kind.clone()).collect(),
             text: plan.categories.iter().map(|c| c.column.clone()).collect(),
@@ -381,14 +393,14 @@ pub fn run_with(
     let fitted = fit::fit(plan, &prepared, table, last.as_ref(), progress)?;
     go_on("after fitting")?;
     let own = mixed::own(plan, &prepared, &fitted);
-    let mut judged = judge::judge(plan, x, &fitted.candidates, own.as_ref(), progress)?;
+    let weighed = (x, prepared.weights());
+    let mut judged = judge::judge(plan, weighed, &fitted.candidates, own.as_ref(), progress)?;
     let chosen = &fitted.candidates[judged.at];
     let numbered = number::number(plan, chosen, last.as_ref(), &prepared, table);
     let assignments = number::place(&prepared, table, &numbered, &fitted.measure);
     let (profiles, overall) = profile::profiles(&prepared, table, &numbered, &judged);
     let mut notes = profile::notes(&fitted, &judged, &profiles, prepared.kept.len());
-    let categories: Vec<String> = plan.categories.iter().map(|c| c.column.clone()).collect();
-    notes.extend(load::odd_space_notes(table, &categories));
+    notes.extend(data_notes(plan, &prepared, table));
     let against = comparison::against(plan, &assignments, &numbered, last.as_ref())?;
     let fit = &numbered.fit;
     previous::check_labels_stay(
@@ -404,7 +416,7 @@ pub fn run_with(
         table,
         plan.features.len(),
         &plan.tally,
-        &prepared.kept,
+        (&prepared.kept, prepared.weights.as_deref()),
         &fit.labels,
         fit.k,
     );
@@ -446,6 +458,50 @@ pub fn run_with(
         prepared,
         measure: fitted.measure,
     })
+}
+
+/// What the data calls for saying: which steps used record weights, and
+/// category values with odd spaces.
+fn data_notes(plan: &Plan, prepared: &Prepared, table: &load::Table) -> Vec<String> {
+    let categories: Vec<String> = plan.categories.iter().map(|c| c.column.clone()).collect();
+    let spaces = load::odd_space_notes(table, &categories);
+    weights_note(plan, prepared)
+        .into_iter()
+        .chain(spaces)
+        .collect()
+}
+
+/// With record weights, which steps used them, in plain words.
+fn weights_note(plan: &Plan, prepared: &Prepared) -> Option<String> {
+    let column = plan.record_weights.as_ref()?;
+    let total: f64 = prepared.weights.as_ref()?.iter().sum();
+    let evidence = match (
+        plan.evidence.gap.is_some(),
+        plan.evidence.stability.is_some(),
+    ) {
+        (true, true) => ", the gap statistic and the bootstrap (records drawn by weight)",
+        (true, false) => ", the gap statistic",
+        (false, true) => ", the bootstrap (records drawn by weight)",
+        (false, false) => "",
+    };
+    Some(format!(
+        "each record stands for as many members as `{column}` says: {} records stand for {} weighted members; the weights were used in the fills and the scaling, the fit ({}), every criterion{evidence}, the size floor, the profiles, the rules and the tallies; not in assigning records to segments (a record goes to its nearest centre whatever its weight), in the drift check or in the projection chart",
+        text::thousands(prepared.kept.len()),
+        text::members(total),
+        fit_words(&plan.method),
+    ))
+}
+
+/// How the weights entered a method's fit.
+fn fit_words(method: &MethodPlan) -> &'static str {
+    match method {
+        MethodPlan::KMeans(_) => "seeding by weight and weighted centres",
+        MethodPlan::KMedoids(_) => "seeding by weight and the weighted total deviation",
+        MethodPlan::KPrototypes(_) => "seeding by weight, weighted means and modes",
+        MethodPlan::Tree(_) => {
+            "the merge formulas of Ward, centroid and average linkage, each record counting as its weight (single and complete linkage do not depend on sizes)"
+        }
+    }
 }
 
 /// Refuses a run with fewer records than segments (or micro-segments),

@@ -55,7 +55,7 @@ pub(super) fn number(
     });
     let (order, numbers) = match &matching {
         Some(m) => m.order(),
-        None => ((0..chosen.k).collect(), (1..=chosen.k).collect()),
+        None => (by_members(prepared, chosen), (1..=chosen.k).collect()),
     };
     let labels = numbers
         .iter()
@@ -78,6 +78,19 @@ pub(super) fn number(
         matching,
         labels,
     }
+}
+
+/// The segments in number order without a previous run: as the engine
+/// numbered them (by records), or with record weights by the members they
+/// stand for, most first (ties keep the engine's order).
+fn by_members(prepared: &Prepared, chosen: &Candidate) -> Vec<usize> {
+    let mut order: Vec<usize> = (0..chosen.k).collect();
+    let w = prepared.weights();
+    if w.is_weighted() {
+        let members = w.per_segment(&chosen.labels, chosen.k);
+        order.sort_by(|&a, &b| members[b].total_cmp(&members[a]));
+    }
+    order
 }
 
 /// Every kept record's segment number, its distance to the segment's

@@ -25,6 +25,7 @@
 use super::error::{Place, RunError};
 use super::load::Table;
 use crate::engine::stats;
+use crate::engine::weights::Weights;
 use crate::plan::{CategoryGaps, FeatureKind, MissingRule, Plan, Scale, Transform};
 use ndarray::Array2;
 use serde::Serialize;
@@ -98,6 +99,16 @@ pub struct Prepared {
     /// Each dropped record, in file order (the hand-off says why a record
     /// has no segment).
     pub left_out: Vec<LeftOut>,
+    /// Each kept record's weight (`represents`), when records carry
+    /// weights.
+    pub weights: Option<Vec<f64>>,
+}
+
+impl Prepared {
+    /// The kept records' weights, for the engine.
+    pub fn weights(&self) -> Weights<'_> {
+        Weights::maybe(self.weights.as_deref())
+    }
 }
 
 /// A record dropped by `missing drop`.
@@ -116,12 +127,15 @@ pub const BLANK_LEVEL: &str = "(blank)";
 
 pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
     let n = table.keys.len();
+    let all_weights = record_weights(plan, table)?;
     let (kept, dropped_by, left_out) = drop_rows(plan, table);
+    let weights = all_weights.map(|w| kept.iter().map(|&i| w[i]).collect::<Vec<f64>>());
+    let w = weights.as_deref();
     let mut params = plan
         .features
         .iter()
         .enumerate()
-        .map(|(f, fp)| fill(plan, table, &kept, f, fp))
+        .map(|(f, fp)| fill(plan, table, (&kept, w), f, fp))
         .collect::<Result<Vec<_>, _>>()?;
     let (categories, codes) = encode_categories(plan, table, &kept)?;
     let width = plan.features.len();
@@ -130,7 +144,7 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
     for (f, fp) in plan.features.iter().enumerate() {
         // Written into the matrix one column at a time, so preparing
         // never holds a second copy of every feature.
-        let v = prepare_feature(plan, table, &kept, f, fp, &mut params[f])?;
+        let v = prepare_feature(plan, table, (&kept, w), f, fp, &mut params[f])?;
         for (r, x) in v.into_iter().enumerate() {
             matrix[[r, f]] = x;
         }
@@ -151,8 +165,41 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
         categories,
         dropped_by,
         left_out,
+        weights,
     })
 }
+
+/// Every record's weight from the `represents` column (read after the
+/// features and the `tally` columns), or none; a blank, a value of 0 or
+/// below is an error at its data line (the loader refuses text).
+fn record_weights(plan: &Plan, table: &Table) -> Result<Option<Vec<f64>>, RunError> {
+    let Some(name) = &plan.record_weights else {
+        return Ok(None);
+    };
+    let at = plan.features.len() + plan.tally.len();
+    let col = &table.numeric[at];
+    let mut out = Vec::with_capacity(col.len());
+    for (row, v) in col.iter().enumerate() {
+        match v {
+            Some(w) if w > 0.0 => out.push(w),
+            bad => {
+                return Err(RunError::BadWeight {
+                    place: Place {
+                        file: plan.input.path.clone(),
+                        line: table.lines[row],
+                        column: table.fields.get(at).copied().unwrap_or(0),
+                        name: name.clone(),
+                    },
+                    found: bad.map_or("a blank".to_string(), |w| format!("`{w}`")),
+                });
+            }
+        }
+    }
+    Ok(Some(out))
+}
+
+/// The kept records, and their weights when records carry weights.
+type KeptRows<'a> = (&'a [usize], Option<&'a [f64]>);
 
 /// Records kept, how many each `missing drop` column dropped, and each
 /// dropped record's row with the features it has a gap in.
@@ -213,15 +260,25 @@ fn drop_rows(plan: &Plan, table: &Table) -> Drops {
 fn fill(
     plan: &Plan,
     table: &Table,
-    kept: &[usize],
+    (kept, w): KeptRows<'_>,
     f: usize,
     fp: &crate::plan::FeaturePlan,
 ) -> Result<FeatureParams, RunError> {
     let col = &table.numeric[f];
     let present: Vec<f64> = kept.iter().filter_map(|&i| col.get(i)).collect();
+    let present_w: Option<Vec<f64>> = w.map(|w| {
+        (kept.iter().zip(w))
+            .filter(|(&i, _)| col.get(i).is_some())
+            .map(|(_, &w)| w)
+            .collect()
+    });
+    let pw = present_w.as_deref();
     let fill = match fp.missing {
-        MissingRule::FillMedian => stats::median(&present),
-        MissingRule::FillMean => stats::mean(&present),
+        MissingRule::FillMedian => median(&present, pw),
+        MissingRule::FillMean => match pw {
+            Some(pw) => stats::mean_weighted(&present, pw),
+            None => stats::mean(&present),
+        },
         MissingRule::FillValue(v) => Some(v),
         MissingRule::Refuse | MissingRule::DropRow | MissingRule::Keep => None,
     };
@@ -319,18 +376,15 @@ fn encode_categories(
 fn prepare_feature(
     plan: &Plan,
     table: &Table,
-    kept: &[usize],
+    (kept, w): KeptRows<'_>,
     f: usize,
     fp: &crate::plan::FeaturePlan,
     params: &mut FeatureParams,
 ) -> Result<Vec<f64>, RunError> {
     let mut v = original(table, kept, f, params.fill);
     if let Some((lo, hi)) = fp.clip {
-        let s = stats::sorted(&v);
-        let (a, b) = (
-            stats::quantile_sorted(&s, lo),
-            stats::quantile_sorted(&s, hi),
-        );
+        let q = Quantiles::new(&v, w);
+        let (a, b) = (q.at(lo), q.at(hi));
         if let (Some(a), Some(b)) = (a, b) {
             v.iter_mut().for_each(|x| *x = x.clamp(a, b));
             params.clip = Some((a, b));
@@ -344,7 +398,7 @@ fn prepare_feature(
             help,
         })?;
     }
-    let (centre, divisor) = scale_params(plan.scale, &v);
+    let (centre, divisor) = scale_params(plan.scale, &v, w);
     let constant = divisor == 0.0;
     let divisor = if constant { 1.0 } else { divisor };
     let m = params.multiplier;
@@ -433,19 +487,24 @@ pub(crate) fn transform(t: Transform, x: f64) -> Result<f64, (&'static str, &'st
     }
 }
 
-/// (centre, divisor) for a scaling; a zero divisor marks a constant column.
-fn scale_params(scale: Scale, v: &[f64]) -> (f64, f64) {
-    match scale {
-        Scale::Zscore => (
+/// (centre, divisor) for a scaling, weighted when the records carry
+/// weights; a zero divisor marks a constant column.
+fn scale_params(scale: Scale, v: &[f64], w: Option<&[f64]>) -> (f64, f64) {
+    match (scale, w) {
+        (Scale::Zscore, None) => (
             stats::mean(v).unwrap_or(0.0),
             stats::sd_population(v).unwrap_or(0.0),
         ),
-        Scale::Robust => {
-            let s = stats::sorted(v);
-            let q = |p| stats::quantile_sorted(&s, p).unwrap_or(0.0);
+        (Scale::Zscore, Some(w)) => (
+            stats::mean_weighted(v, w).unwrap_or(0.0),
+            stats::sd_population_weighted(v, w).unwrap_or(0.0),
+        ),
+        (Scale::Robust, _) => {
+            let s = Quantiles::new(v, w);
+            let q = |p| s.at(p).unwrap_or(0.0);
             (q(0.5), q(0.75) - q(0.25))
         }
-        Scale::Range => {
+        (Scale::Range, _) => {
             let lo = v.iter().copied().fold(f64::INFINITY, f64::min);
             let hi = v.iter().copied().fold(f64::NEG_INFINITY, f64::max);
             if v.is_empty() {
@@ -454,6 +513,34 @@ fn scale_params(scale: Scale, v: &[f64]) -> (f64, f64) {
                 (lo, hi - lo)
             }
         }
-        Scale::None => (0.0, 1.0),
+        (Scale::None, _) => (0.0, 1.0),
     }
+}
+
+/// Values sorted once for their quantiles, weighted when the records
+/// carry weights ([`stats::quantile_sorted_weighted`]).
+pub(crate) enum Quantiles {
+    Plain(Vec<f64>),
+    Weighted(Vec<(f64, f64)>),
+}
+
+impl Quantiles {
+    pub(crate) fn new(v: &[f64], w: Option<&[f64]>) -> Quantiles {
+        match w {
+            None => Quantiles::Plain(stats::sorted(v)),
+            Some(w) => Quantiles::Weighted(stats::sorted_weighted(v, w)),
+        }
+    }
+
+    pub(crate) fn at(&self, q: f64) -> Option<f64> {
+        match self {
+            Quantiles::Plain(s) => stats::quantile_sorted(s, q),
+            Quantiles::Weighted(s) => stats::quantile_sorted_weighted(s, q),
+        }
+    }
+}
+
+/// The median, weighted when weights are given.
+pub(crate) fn median(v: &[f64], w: Option<&[f64]>) -> Option<f64> {
+    Quantiles::new(v, w).at(0.5)
 }

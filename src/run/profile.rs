@@ -124,11 +124,18 @@ impl FeatureMeans {
             overall: Vec::new(),
             by_segment: vec![Vec::new(); k],
         };
+        let w = p.weights.as_deref();
+        let mut weights_of: Vec<Vec<f64>> = vec![Vec::new(); k];
+        if let Some(w) = w {
+            for (&l, &wi) in labels.iter().zip(w) {
+                weights_of[l as usize].push(wi);
+            }
+        }
+        let w_of = |s: usize| w.map(|_| weights_of[s].as_slice());
         for (f, fp) in p.features.iter().enumerate() {
             let values = prepare::original(table, &p.kept, f, fp.fill);
             let clustered = p.matrix.column(f).to_vec();
-            let centre = engine::stats::mean(&clustered).unwrap_or(0.0);
-            let sd = engine::stats::sd_population(&clustered).unwrap_or(0.0);
+            let (centre, sd) = mean_and_sd(&clustered, w);
             let raw = &table.numeric[f];
             let mut gaps = vec![0usize; k];
             let mut groups: Vec<(Vec<f64>, Vec<f64>)> = vec![(Vec::new(), Vec::new()); k];
@@ -137,11 +144,12 @@ impl FeatureMeans {
                 groups[l as usize].1.push(*c);
                 gaps[l as usize] += usize::from(raw.get(row).is_none());
             }
-            out.overall.push(summary(&values, 0.0, gaps.iter().sum()));
+            out.overall
+                .push(summary(&values, w, 0.0, gaps.iter().sum()));
             for (s, (vals, clus)) in groups.iter().enumerate() {
-                let mean = engine::stats::mean(clus).unwrap_or(centre);
+                let mean = weighted_mean(clus, w_of(s)).unwrap_or(centre);
                 let diff = if sd > 0.0 { (mean - centre) / sd } else { 0.0 };
-                out.by_segment[s].push(summary(vals, diff, gaps[s]));
+                out.by_segment[s].push(summary(vals, w_of(s), diff, gaps[s]));
             }
         }
         out
@@ -158,13 +166,32 @@ impl FeatureMeans {
     }
 }
 
-/// Mean, median and quartiles of some values, with a standardised
-/// difference measured elsewhere and the count of filled gaps among them.
-fn summary(values: &[f64], std_diff: f64, filled: usize) -> FeatureSummary {
-    let sorted = engine::stats::sorted(values);
-    let q = |at| engine::stats::quantile_sorted(&sorted, at).unwrap_or(0.0);
+/// The mean, weighted when the records carry weights.
+fn weighted_mean(values: &[f64], w: Option<&[f64]>) -> Option<f64> {
+    match w {
+        Some(w) => engine::stats::mean_weighted(values, w),
+        None => engine::stats::mean(values),
+    }
+}
+
+/// The mean and population standard deviation, weighted when the records
+/// carry weights (0 for no values).
+fn mean_and_sd(values: &[f64], w: Option<&[f64]>) -> (f64, f64) {
+    let sd = match w {
+        Some(w) => engine::stats::sd_population_weighted(values, w),
+        None => engine::stats::sd_population(values),
+    };
+    (weighted_mean(values, w).unwrap_or(0.0), sd.unwrap_or(0.0))
+}
+
+/// Mean, median and quartiles of some values (weighted when `w` holds
+/// their weights), with a standardised difference measured elsewhere and
+/// the count of filled gaps among them.
+fn summary(values: &[f64], w: Option<&[f64]>, std_diff: f64, filled: usize) -> FeatureSummary {
+    let sorted = prepare::Quantiles::new(values, w);
+    let q = |at| sorted.at(at).unwrap_or(0.0);
     FeatureSummary {
-        mean: engine::stats::mean(values).unwrap_or(0.0),
+        mean: weighted_mean(values, w).unwrap_or(0.0),
         median: q(0.5),
         q1: q(0.25),
         q3: q(0.75),
@@ -191,24 +218,27 @@ fn profile(
         }
     };
     let size = members.len();
+    let w = p.weights();
+    // Members counted by weight (records, without weights).
+    let counted: f64 = members.iter().map(|&i| w.at(i)).sum();
     let categories = p
         .categories
         .iter()
         .zip(&p.codes)
         .map(|(cat, codes)| {
-            let mut counts = vec![0usize; cat.levels.len()];
-            members.iter().for_each(|&i| counts[codes[i]] += 1);
-            counts
-                .iter()
-                .map(|&c| c as f64 / size.max(1) as f64)
-                .collect()
+            let mut counts = vec![0.0f64; cat.levels.len()];
+            members.iter().for_each(|&i| counts[codes[i]] += w.at(i));
+            let of = if counted > 0.0 { counted } else { 1.0 };
+            counts.iter().map(|&c| c / of).collect()
         })
         .collect();
+    let everyone = if n == 0 { 1.0 } else { w.total(n) };
     Profile {
         segment: None,
         label: None,
         size,
-        share: size as f64 / n.max(1) as f64,
+        weighted: w.is_weighted().then_some(counted),
+        share: counted / everyone,
         features,
         categories,
         centre,

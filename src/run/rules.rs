@@ -7,6 +7,7 @@
 use super::load::Table;
 use super::prepare::{self, Prepared};
 use crate::engine::rules::{segment_rule, Condition, Sorted};
+use crate::engine::weights::Weights;
 use crate::plan::FeatureKind;
 use ndarray::Array2;
 use serde::Serialize;
@@ -204,14 +205,19 @@ pub fn rules(
     let fit_rows: Vec<usize> = (0..n).step_by(step).collect();
     let x = Array2::from_shape_fn((fit_rows.len(), d), |(i, f)| columns[f][fit_rows[i]]);
     let sorted = Sorted::new(x.view());
-    let min_leaf = (fit_rows.len() / 200).max(5);
+    let w = prepared.weights();
+    let fit_weights = w.select(&fit_rows);
+    let fit_w = Weights::maybe(fit_weights.as_deref());
+    // A leaf holds at least one 200th of the fitted records (members, by
+    // weight), and 5.
+    let min_leaf = (fit_w.total(fit_rows.len()) / 200.0).floor().max(5.0);
     let mut rules: Vec<SegmentRule> = numbers
         .iter()
         .enumerate()
         .map(|(s, &number)| {
             let target: Vec<bool> = fit_rows.iter().map(|&i| labels[i] as usize == s).collect();
-            let mut conditions =
-                segment_rule(x.view(), &sorted, &target, DEPTH, min_leaf).unwrap_or_default();
+            let mut conditions = segment_rule(x.view(), &sorted, (&target, fit_w), DEPTH, min_leaf)
+                .unwrap_or_default();
             let written = written(plan, prepared, &columns, &mut conditions);
             let holds = |i: usize| {
                 conditions
@@ -226,6 +232,20 @@ pub fn rules(
                     (m + 1, h + usize::from(labels[i] as usize == s))
                 })
             };
+            // Coverage and precision count members: by weight, with
+            // record weights.
+            let in_s = |i: &usize| labels[*i] as usize == s;
+            let weight_of = |it: &mut dyn Iterator<Item = usize>| it.map(|i| w.at(i)).sum::<f64>();
+            let (size_w, matched_w, hits_w) = if w.is_weighted() {
+                let picked = || (0..n).filter(|&i| !conditions.is_empty() && holds(i));
+                (
+                    weight_of(&mut (0..n).filter(in_s)),
+                    weight_of(&mut picked()),
+                    weight_of(&mut picked().filter(in_s)),
+                )
+            } else {
+                (size as f64, matched as f64, hits as f64)
+            };
             SegmentRule {
                 segment: number,
                 label: names.get(s).cloned().flatten(),
@@ -233,15 +253,11 @@ pub fn rules(
                 matched,
                 matched_in_segment: hits,
                 segment_size: size,
-                coverage: if size == 0 {
-                    0.0
-                } else {
-                    hits as f64 / size as f64
-                },
+                coverage: if size == 0 { 0.0 } else { hits_w / size_w },
                 precision: if matched == 0 {
                     0.0
                 } else {
-                    hits as f64 / matched as f64
+                    hits_w / matched_w
                 },
                 delivered: 0,
                 delivered_in_segment: 0,

@@ -1,7 +1,10 @@
 //! Value columns (`tally`): what each segment holds of columns that
 //! were not clustered on, such as spend or a consent flag. Gaps are left
 //! out, not filled: a member whose spend is unknown adds nothing to a
-//! total and is not counted in a mean.
+//! total and is not counted in a mean. With record weights (`represents`)
+//! a record counts as the members it stands for: the means, quartiles and
+//! totals are weighted (a total is the sum of weight times value, what the
+//! members hold if each holds the record's value).
 
 use super::load::Table;
 use crate::engine::stats;
@@ -41,43 +44,70 @@ pub fn profiles(
     table: &Table,
     features: usize,
     names: &[String],
-    kept: &[usize],
+    (kept, weights): (&[usize], Option<&[f64]>),
     labels: &[u32],
     k: usize,
 ) -> Vec<ValueProfile> {
+    let w = crate::engine::weights::Weights::maybe(weights);
     names
         .iter()
         .enumerate()
         .map(|(j, name)| {
             let col = &table.numeric[features + j];
-            let mut all = Vec::with_capacity(kept.len());
-            let mut groups = vec![Vec::new(); k];
-            for (&row, &l) in kept.iter().zip(labels) {
+            let mut all = Group::default();
+            let mut groups = vec![Group::default(); k];
+            for (i, (&row, &l)) in kept.iter().zip(labels).enumerate() {
                 if let Some(v) = col.get(row) {
-                    all.push(v);
-                    groups[l as usize].push(v);
+                    all.push(v, w.at(i));
+                    groups[l as usize].push(v, w.at(i));
                 }
             }
-            let grand: f64 = all.iter().sum();
+            let grand = all.total();
+            let weighted = w.is_weighted();
             ValueProfile {
                 column: name.clone(),
-                overall: summary(&all, grand),
-                segments: groups.iter().map(|g| summary(g, grand)).collect(),
+                overall: all.summary(grand, weighted),
+                segments: groups.iter().map(|g| g.summary(grand, weighted)).collect(),
             }
         })
         .collect()
 }
 
-fn summary(values: &[f64], grand_total: f64) -> ValueSummary {
-    let sorted = stats::sorted(values);
-    let total: f64 = values.iter().sum();
-    ValueSummary {
-        known: values.len(),
-        mean: stats::mean(values),
-        median: stats::quantile_sorted(&sorted, 0.5),
-        q1: stats::quantile_sorted(&sorted, 0.25),
-        q3: stats::quantile_sorted(&sorted, 0.75),
-        total,
-        share_of_total: (grand_total != 0.0).then(|| total / grand_total),
+/// A group's known values and their records' weights.
+#[derive(Clone, Default)]
+struct Group {
+    values: Vec<f64>,
+    weights: Vec<f64>,
+}
+
+impl Group {
+    fn push(&mut self, v: f64, w: f64) {
+        self.values.push(v);
+        self.weights.push(w);
+    }
+
+    /// Σ w v (the plain sum, every weight being 1 without weights).
+    fn total(&self) -> f64 {
+        (self.values.iter().zip(&self.weights))
+            .map(|(v, w)| w * v)
+            .sum()
+    }
+
+    fn summary(&self, grand_total: f64, weighted: bool) -> ValueSummary {
+        let w = weighted.then_some(self.weights.as_slice());
+        let sorted = super::prepare::Quantiles::new(&self.values, w);
+        let total = self.total();
+        ValueSummary {
+            known: self.values.len(),
+            mean: match w {
+                Some(w) => stats::mean_weighted(&self.values, w),
+                None => stats::mean(&self.values),
+            },
+            median: sorted.at(0.5),
+            q1: sorted.at(0.25),
+            q3: sorted.at(0.75),
+            total,
+            share_of_total: (grand_total != 0.0).then(|| total / grand_total),
+        }
     }
 }

@@ -242,6 +242,11 @@ pub enum StatementKind {
     Tally {
         columns: Vec<Column>,
     },
+    /// `represents COLUMN`: each record stands for as many members as the
+    /// column says (record weights).
+    Represents {
+        column: Column,
+    },
     /// `call COLUMN "name" [as FORMAT] [unit "TEXT"]`: how people see a
     /// column.
     Call {

@@ -259,6 +259,9 @@ fn build_statement(pair: Pair<'_, Rule>, off: usize) -> Statement {
         Rule::tally_stmt => StatementKind::Tally {
             columns: columns_of(&rest[0], off),
         },
+        Rule::represents_stmt => StatementKind::Represents {
+            column: column_of(&rest[0], off),
+        },
         Rule::call_stmt => StatementKind::Call {
             column: column_of(&rest[0], off),
             name: text_of(&rest[1], off),
@@ -501,6 +504,7 @@ pub fn shaping_statements(src: &str) -> Vec<String> {
                     | StatementKind::Transform { .. }
                     | StatementKind::Scale { .. }
                     | StatementKind::Weight { .. }
+                    | StatementKind::Represents { .. }
                     | StatementKind::KMeans { .. }
                     | StatementKind::KMedoids { .. }
                     | StatementKind::KPrototypes { .. }

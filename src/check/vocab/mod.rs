@@ -149,6 +149,11 @@ pub const STATEMENTS: &[StatementDoc] = &[
         example: "tally spend_12m, contactable",
     },
     StatementDoc {
+        word: "represents",
+        summary: "the numeric column saying how many members each record stands for (a household, a survey weight): record weights, used in seeding, centres, every criterion, profiles, rules and the bootstrap",
+        example: "represents household_size",
+    },
+    StatementDoc {
         word: "call",
         summary: "the name people see for a column, and how its numbers are shown (percent, money, count)",
         example: r#"call share_fresh "fresh food share" as percent"#,

@@ -38,7 +38,7 @@
 //! refinement's.
 
 use super::{canonical, finish, partition_hash, Problem, Restart};
-use crate::engine::{rng::Stream, stop, EngineError};
+use crate::engine::{rng::Stream, stop, weights::Weights, EngineError};
 use rayon::prelude::*;
 
 /// How many of the best sample restarts are refined on every record.
@@ -60,7 +60,9 @@ pub(super) fn fit(whole: &Problem<'_>, s: usize) -> Result<super::KMeansFit, Eng
     for &i in &picked {
         rows.extend_from_slice(whole.row(i));
     }
-    let sample = Problem::new(&rows, s, d, settings, whole.search);
+    let weights = whole.w.select(&picked);
+    let w = Weights::maybe(weights.as_deref());
+    let sample = Problem::new(&rows, w, s, d, settings, whole.search);
 
     // Every restart on the sample: its within-SS, its partition, its centres.
     let tried: Vec<(f64, u64, Vec<f64>)> = (0..settings.restarts)
