@@ -114,6 +114,11 @@ struct RecipeArgs {
     /// Print only problems: no tables, no progress.
     #[arg(long, short)]
     quiet: bool,
+    /// After a run, print on standard error where the time went: each
+    /// stage's wall time and the peak memory when it ended (always in
+    /// `--json`).
+    #[arg(long)]
+    times: bool,
 }
 
 fn main() -> ExitCode {
@@ -185,7 +190,7 @@ fn main() -> ExitCode {
                     Err(e) => return fail(&e),
                 };
                 let progress = Progress::new(recipe.quiet || recipe.json);
-                let (outcome, files, _) = match deliver::run_and_render(
+                let (mut outcome, files, _) = match deliver::run_and_render(
                     source,
                     plan,
                     &mut run::DataCache::default(),
@@ -195,7 +200,7 @@ fn main() -> ExitCode {
                     Err(e) => return fail(&e),
                 };
                 progress.finish();
-                if let Err(e) = deliver::write(source, &files, &lock) {
+                if let Err(e) = deliver::write(source, &files, &lock, &mut outcome) {
                     return fail(&e);
                 }
                 if output::set::interrupted_while_writing() {
@@ -228,6 +233,11 @@ fn main() -> ExitCode {
                     for f in files.iter().filter(|f| f.formula_like > 0) {
                         println!("{}", formula_like_warning(f.formula_like, &shown(&f.path)));
                     }
+                }
+                if recipe.times && !recipe.json {
+                    // On standard error, so tables piped elsewhere stay as
+                    // they are.
+                    eprint!("{}", deliver::stage_lines(&outcome));
                 }
                 ExitCode::SUCCESS
             })

@@ -269,9 +269,10 @@ impl Session {
         }
         let source = self.source();
         let (lock, recovered) = deliver::lock(&source).map_err(|e| failed(&e))?;
-        let (outcome, files, _) = deliver::run_and_render(&source, &plan, &mut self.cache, &|_| {})
-            .map_err(|e| failed(&e))?;
-        deliver::write(&source, &files, &lock).map_err(|e| failed(&e))?;
+        let (mut outcome, files, _) =
+            deliver::run_and_render(&source, &plan, &mut self.cache, &|_| {})
+                .map_err(|e| failed(&e))?;
+        deliver::write(&source, &files, &lock, &mut outcome).map_err(|e| failed(&e))?;
         let mut report = tables::report(&outcome);
         self.last = Some(outcome);
         if recovered {

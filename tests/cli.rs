@@ -1812,3 +1812,39 @@ fn assign_gives_the_models_own_segment_numbers_when_they_are_not_in_row_order() 
         .collect();
     assert_eq!(seg(&after), swapped);
 }
+
+#[test]
+fn a_run_says_where_its_time_went_without_changing_any_file() {
+    let case = Case::demo();
+    let out = case.assort(&["run", "--json", DEMO], &[]).ok().stdout();
+    let first = outputs(&case);
+    let v: serde_json::Value = serde_json::from_str(&out).unwrap();
+    let stages: Vec<&str> = v["result"]["stages"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| s["stage"].as_str().unwrap())
+        .collect();
+    assert_eq!(
+        stages,
+        [
+            "read", "prepare", "fit", "judge", "place", "profile", "compare", "rules", "render",
+            "write"
+        ]
+    );
+    for s in v["result"]["stages"].as_array().unwrap() {
+        assert!(s["seconds"].as_f64().unwrap() >= 0.0);
+        assert!(s["peak_bytes"].as_u64().unwrap() > 1_000_000, "{s}");
+    }
+    // On request in the terminal, on standard error; the files are the
+    // same bytes as a run without it.
+    let run = case.assort(&["run", "--times", DEMO], &[]).ok();
+    assert!(
+        run.stderr().contains("where the time went"),
+        "{}",
+        run.stderr()
+    );
+    assert!(run.stderr().contains("  fit "), "{}", run.stderr());
+    assert!(!run.stdout().contains("where the time went"));
+    assert!(first == outputs(&case), "--times changed a written file");
+}

@@ -128,9 +128,15 @@ def measure(name, repeats):
         if theirs:
             r.append(timed(theirs))
     med = lambda runs, i: statistics.median(x[i] for x in runs)
-    sweep = json.loads(a[-1][2])["result"]["sweep"]
+    results = [json.loads(x[2])["result"] for x in a]
+    sweep = results[-1]["sweep"]
+    # Each stage's median over the runs, with the peak when it ended.
+    stage_names = [s["stage"] for s in results[-1]["stages"]]
+    stages = {st: (statistics.median(next(s["seconds"] for s in r["stages"] if s["stage"] == st) for r in results),
+                   (results[-1]["stages"][i]["peak_bytes"] or 0) / 2**20)
+              for i, st in enumerate(stage_names)}
     row = {"case": name, "what": what, "n": n, "d": d, "assort_s": med(a, 0), "assort_mib": med(a, 1),
-           "within_ss": {r["k"]: r["within_ss"] for r in sweep}}
+           "within_ss": {r["k"]: r["within_ss"] for r in sweep}, "stages": stages}
     if r:
         row.update(ref_s=med(r, 0), ref_mib=med(r, 1))
     return row
@@ -167,6 +173,10 @@ def main():
         ]
         print("| " + " | ".join(cells) + " |", flush=True)
         rows[name] = row
+    print("\nwhere assort's time went (median seconds per stage; peak MiB when it ended)\n")
+    for name, row in rows.items():
+        parts = [f"{st} {sec:.2f} s ({peak:.0f} MiB)" for st, (sec, peak) in row["stages"].items()]
+        print(f"- {name}: " + "; ".join(parts))
     if "sweep1m" in rows and "sweep1m_sampled" in rows:
         full, sampled = rows["sweep1m"]["within_ss"], rows["sweep1m_sampled"]["within_ss"]
         print("\nwithin-SS at 1,000,000 x 16: full batch against restarts on a sample of 200,000\n")

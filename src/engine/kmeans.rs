@@ -548,7 +548,11 @@ impl<'a> Problem<'a> {
         }
     }
 
-    /// Greedy k-means++ seeding; see the module documentation.
+    /// Greedy k-means++ seeding; see the module documentation. A step's
+    /// candidates are all drawn from the same potential, so they are drawn
+    /// first and measured in one pass over the records (the data read
+    /// once per step, not once per candidate); the draws and every sum are
+    /// those of measuring them one after the other.
     fn plusplus(&self, stream: &mut Stream) -> Vec<f64> {
         let (n, d, k) = (self.n, self.d, self.settings.k);
         let trials = 2 + (k as f64).ln().floor() as usize;
@@ -560,31 +564,74 @@ impl<'a> Problem<'a> {
         centres.extend_from_slice(self.row(first));
         let mut closest = vec![0.0; n];
         let mut potential = self.nearer(&vec![f64::INFINITY; n], self.row(first), &mut closest);
-        let mut candidate = vec![0.0; n];
-        let mut best_closest = vec![0.0; n];
+        let mut candidates: Vec<Vec<f64>> = vec![vec![0.0; n]; trials];
         for _ in 1..k {
-            let mut best: Option<(usize, f64)> = None;
-            for _ in 0..trials {
-                let pick = if potential > 0.0 {
-                    self.draw_by_potential(&closest, stream.unit() * potential)
-                } else {
-                    // Every record sits on a centre already (duplicates);
-                    // any record will do and the empty-cluster rule follows.
-                    stream.below(n)
-                };
-                let pot = self.nearer(&closest, self.row(pick), &mut candidate);
-                if best.is_none_or(|(_, p)| pot < p) {
-                    best = Some((pick, pot));
-                    std::mem::swap(&mut best_closest, &mut candidate);
+            let picks: Vec<usize> = (0..trials)
+                .map(|_| {
+                    if potential > 0.0 {
+                        self.draw_by_potential(&closest, stream.unit() * potential)
+                    } else {
+                        // Every record sits on a centre already
+                        // (duplicates); any record will do and the
+                        // empty-cluster rule follows.
+                        stream.below(n)
+                    }
+                })
+                .collect();
+            let rows: Vec<&[f64]> = picks.iter().map(|&p| self.row(p)).collect();
+            let pots = self.nearer_all(&closest, &rows, &mut candidates);
+            // The lowest potential, ties to the earlier candidate.
+            let mut best = 0;
+            for (t, &p) in pots.iter().enumerate() {
+                if p < pots[best] {
+                    best = t;
                 }
             }
-            // trials >= 2, so a candidate was always kept.
-            let (pick, pot) = best.unwrap_or((0, potential));
-            centres.extend_from_slice(self.row(pick));
-            std::mem::swap(&mut closest, &mut best_closest);
-            potential = pot;
+            centres.extend_from_slice(self.row(picks[best]));
+            std::mem::swap(&mut closest, &mut candidates[best]);
+            potential = pots[best];
         }
         centres
+    }
+
+    /// [`Problem::nearer`] for several centres in one pass over the
+    /// records: `outs[t]` takes the smaller of `closest` and the squared
+    /// distance to `cs[t]`; returns each one's weighted sum, summed as
+    /// `nearer` sums (fixed chunks, added in chunk order).
+    fn nearer_all(&self, closest: &[f64], cs: &[&[f64]], outs: &mut [Vec<f64>]) -> Vec<f64> {
+        let m = cs.len();
+        let chunks = self.n.div_ceil(MEANS_CHUNK);
+        // Each chunk's slices of every output, so chunks can be written in
+        // parallel.
+        let mut per_chunk: Vec<Vec<&mut [f64]>> =
+            (0..chunks).map(|_| Vec::with_capacity(m)).collect();
+        for out in outs.iter_mut() {
+            for (c, part) in out.chunks_mut(MEANS_CHUNK).enumerate() {
+                per_chunk[c].push(part);
+            }
+        }
+        let work = |(ch, parts): (usize, &mut Vec<&mut [f64]>)| {
+            let mut pots = vec![0.0; m];
+            let start = ch * MEANS_CHUNK;
+            for off in 0..parts.first().map_or(0, |p| p.len()) {
+                let i = start + off;
+                let (row, cl, w) = (self.row(i), closest[i], self.w.at(i));
+                for (t, c) in cs.iter().enumerate() {
+                    let v = cl.min(dist2(row, c));
+                    parts[t][off] = v;
+                    pots[t] += w * v;
+                }
+            }
+            pots
+        };
+        let parts: Vec<Vec<f64>> = if self.n >= PARALLEL_ASSIGN_MIN {
+            per_chunk.par_iter_mut().enumerate().map(work).collect()
+        } else {
+            per_chunk.iter_mut().enumerate().map(work).collect()
+        };
+        (0..m)
+            .map(|t| parts.iter().fold(0.0, |a, p| a + p[t]))
+            .collect()
     }
 
     /// A record drawn with probability proportional to its weight times its

@@ -20,6 +20,7 @@
 
 use super::weights::Weights;
 use ndarray::ArrayView2;
+use rayon::prelude::*;
 
 /// One condition: `x[feature] > threshold` when `above`, else `<=`.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -39,34 +40,107 @@ impl Condition {
     }
 }
 
-/// Each feature's record order by value (then by record), computed once
-/// and shared by every segment's tree.
+/// Each feature's record order by value (then by record), with the values
+/// in that order, computed once and shared by every segment's tree.
 pub struct Sorted {
     order: Vec<Vec<u32>>,
+    values: Vec<Vec<f64>>,
 }
 
 impl Sorted {
     pub fn new(x: ArrayView2<'_, f64>) -> Sorted {
         let n = x.nrows();
-        let order = (0..x.ncols())
+        let (order, values) = (0..x.ncols())
+            .into_par_iter()
             .map(|f| {
+                let column: Vec<f64> = x.column(f).to_vec();
                 let mut o: Vec<u32> = (0..n as u32).collect();
                 o.sort_by(|&a, &b| {
-                    x[[a as usize, f]]
-                        .total_cmp(&x[[b as usize, f]])
+                    column[a as usize]
+                        .total_cmp(&column[b as usize])
                         .then(a.cmp(&b))
                 });
-                o
+                let v = o.iter().map(|&i| column[i as usize]).collect();
+                (o, v)
             })
-            .collect();
-        Sorted { order }
+            .unzip();
+        Sorted { order, values }
+    }
+}
+
+/// Per feature, records in its order and their values.
+type Lists = (Vec<Vec<u32>>, Vec<Vec<f64>>);
+
+/// An open node of a segment's tree: its conditions, its records in
+/// record order, and per feature its records in that feature's order with
+/// their values beside them (so the scans read memory in sequence).
+struct Node {
+    path: Vec<Condition>,
+    members: Vec<u32>,
+    order: Vec<Vec<u32>>,
+    values: Vec<Vec<f64>>,
+}
+
+impl Node {
+    /// The node's summed weight and that of its records in the segment,
+    /// summed in record order.
+    fn size_and_hits(&self, (target, w): (&[bool], Weights<'_>)) -> (f64, f64) {
+        self.members.iter().fold((0.0, 0.0), |(s, h), &i| {
+            let i = i as usize;
+            (s + w.at(i), h + if target[i] { w.at(i) } else { 0.0 })
+        })
+    }
+
+    /// The two children of a split at `x[feature] <= threshold`, each list
+    /// kept in its order (a stable partition). `left` is scratch of one
+    /// flag per record.
+    fn split(self, feature: usize, threshold: f64, left: &mut [bool]) -> [Node; 2] {
+        for (&i, &v) in self.order[feature].iter().zip(&self.values[feature]) {
+            left[i as usize] = v <= threshold;
+        }
+        let goes_left = |i: u32| left[i as usize];
+        let (lm, rm): (Vec<u32>, Vec<u32>) = self.members.iter().partition(|&&i| goes_left(i));
+        let mut sides: [Lists; 2] = Default::default();
+        for (o, vs) in self.order.iter().zip(&self.values) {
+            let mut parts: [(Vec<u32>, Vec<f64>); 2] = [
+                (Vec::with_capacity(lm.len()), Vec::with_capacity(lm.len())),
+                (Vec::with_capacity(rm.len()), Vec::with_capacity(rm.len())),
+            ];
+            for (&i, &v) in o.iter().zip(vs) {
+                let side = &mut parts[usize::from(!goes_left(i))];
+                side.0.push(i);
+                side.1.push(v);
+            }
+            for (side, (o, v)) in sides.iter_mut().zip(parts) {
+                side.0.push(o);
+                side.1.push(v);
+            }
+        }
+        let [(lo, lv), (ro, rv)] = sides;
+        let child = |above: bool, members, order, values| {
+            let mut path = self.path.clone();
+            path.push(Condition {
+                feature,
+                above,
+                threshold,
+            });
+            Node {
+                path,
+                members,
+                order,
+                values,
+            }
+        };
+        [child(false, lm, lo, lv), child(true, rm, ro, rv)]
     }
 }
 
 /// The rule that best tells the records with `target` set from the rest,
 /// from a tree `depth` deep with leaves of at least `min_leaf` records
 /// (summed weight, with record weights `w`); `None` when no leaf has the
-/// segment as its majority.
+/// segment as its majority. Each node keeps its records in every
+/// feature's order (the presorted lists partitioned at each split), so a
+/// level of the tree costs O(d n) whatever its number of nodes.
 pub fn segment_rule(
     x: ArrayView2<'_, f64>,
     sorted: &Sorted,
@@ -76,48 +150,28 @@ pub fn segment_rule(
 ) -> Option<Vec<Condition>> {
     let n = x.nrows();
     let total: f64 = (0..n).filter(|&i| target[i]).map(|i| w.at(i)).sum();
-    // Node of each record; records of finished leaves are parked.
-    let mut node = vec![0u32; n];
     let mut leaves: Vec<(Vec<Condition>, f64, f64)> = Vec::new();
-    let mut open: Vec<(u32, Vec<Condition>)> = vec![(0, Vec::new())];
-    let mut next_id = 1u32;
+    let mut open = vec![Node {
+        path: Vec::new(),
+        members: (0..n as u32).collect(),
+        order: sorted.order.clone(),
+        values: sorted.values.clone(),
+    }];
+    let mut left = vec![false; n];
     for level in 0..=depth {
         let mut children = Vec::new();
-        for (id, path) in open {
-            let (size, hits) = (0..n)
-                .filter(|&i| node[i] == id)
-                .fold((0.0, 0.0), |(s, h), i| {
-                    (s + w.at(i), h + if target[i] { w.at(i) } else { 0.0 })
-                });
+        for node in open {
+            let (size, hits) = node.size_and_hits((target, w));
             let split = if level < depth && hits > 0.0 && hits < size {
-                best_split(x, sorted, (target, w), &node, id, min_leaf)
+                best_split(&node, (target, w), (size, hits), min_leaf)
             } else {
                 None
             };
             match split {
                 Some((feature, threshold)) => {
-                    let (left, right) = (next_id, next_id + 1);
-                    next_id += 2;
-                    for i in 0..n {
-                        if node[i] == id {
-                            node[i] = if x[[i, feature]] <= threshold {
-                                left
-                            } else {
-                                right
-                            };
-                        }
-                    }
-                    for (child, above) in [(left, false), (right, true)] {
-                        let mut p = path.clone();
-                        p.push(Condition {
-                            feature,
-                            above,
-                            threshold,
-                        });
-                        children.push((child, p));
-                    }
+                    children.extend(node.split(feature, threshold, &mut left))
                 }
-                None => leaves.push((path, size, hits)),
+                None => leaves.push((node.path, size, hits)),
             }
         }
         open = children;
@@ -139,22 +193,14 @@ pub fn segment_rule(
         .map(|(path, _)| merged(path))
 }
 
-/// The best split of node `id`: (feature, threshold), or `None` when no
-/// split leaves `min_leaf` records on both sides or lowers the impurity.
+/// The best split of `node`: (feature, threshold), or `None` when no split
+/// leaves `min_leaf` records on both sides or lowers the impurity.
 fn best_split(
-    x: ArrayView2<'_, f64>,
-    sorted: &Sorted,
+    node: &Node,
     (target, w): (&[bool], Weights<'_>),
-    node: &[u32],
-    id: u32,
+    (size, hits): (f64, f64),
     min_leaf: f64,
 ) -> Option<(usize, f64)> {
-    let members: Vec<usize> = (0..node.len()).filter(|&i| node[i] == id).collect();
-    let size: f64 = members.iter().map(|&i| w.at(i)).sum();
-    let hits: f64 = (members.iter())
-        .filter(|&&i| target[i])
-        .map(|&i| w.at(i))
-        .sum();
     let gini = |n: f64, h: f64| {
         if n <= 0.0 {
             return 0.0;
@@ -164,15 +210,11 @@ fn best_split(
     };
     let mut best: Option<(f64, usize, f64)> = None;
     let parent = gini(size, hits);
-    for (f, order) in sorted.order.iter().enumerate() {
+    for (f, (order, values)) in node.order.iter().zip(&node.values).enumerate() {
         let (mut left, mut left_hits) = (0.0f64, 0.0f64);
         let mut prev: Option<f64> = None;
-        for &r in order {
+        for (&r, &v) in order.iter().zip(values) {
             let r = r as usize;
-            if node[r] != id {
-                continue;
-            }
-            let v = x[[r, f]];
             if let Some(p) = prev {
                 if v > p && left >= min_leaf && size - left >= min_leaf {
                     let cost = gini(left, left_hits) + gini(size - left, hits - left_hits);

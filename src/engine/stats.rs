@@ -35,6 +35,44 @@ pub fn quantile_sorted(sorted: &[f64], q: f64) -> Option<f64> {
     Some(sorted[lo] + (sorted[hi] - sorted[lo]) * frac)
 }
 
+/// [`quantile_sorted`] at each of `qs` (ascending, in [0, 1]) without
+/// sorting: each order statistic the definition reads is found by
+/// selection (`select_nth_unstable`, expected O(n)) within what is left
+/// right of the one before, and the next one up as the least value right
+/// of it, so the values and their bits are those of the sorted copy.
+/// Reorders `values`. Expected O(n · qs.len()) against O(n log n).
+pub fn quantiles_selected(values: &mut [f64], qs: &[f64]) -> Option<Vec<f64>> {
+    let n = values.len();
+    if n == 0 {
+        return None;
+    }
+    let mut from = 0;
+    let mut out = Vec::with_capacity(qs.len());
+    for &q in qs {
+        let pos = q.clamp(0.0, 1.0) * (n - 1) as f64;
+        // Positions rise with q; a q out of order starts the search anew.
+        let lo = (pos.floor() as usize).min(n - 1);
+        if lo < from {
+            from = 0;
+        }
+        values[from..].select_nth_unstable_by(lo - from, f64::total_cmp);
+        let at_lo = values[lo];
+        let at_hi = if lo + 1 < n {
+            values[lo + 1..]
+                .iter()
+                .copied()
+                .min_by(f64::total_cmp)
+                .unwrap_or(at_lo)
+        } else {
+            at_lo
+        };
+        let frac = pos - lo as f64;
+        out.push(at_lo + (at_hi - at_lo) * frac);
+        from = lo;
+    }
+    Some(out)
+}
+
 /// Sorted copy of the values, using the total order of f64.
 pub fn sorted(xs: &[f64]) -> Vec<f64> {
     let mut v = xs.to_vec();
@@ -126,6 +164,27 @@ mod tests {
         let sd = sd_population_weighted(&x, &w).unwrap();
         let sd_rep = sd_population(&[1.0, 1.0, 4.0, 10.0, 10.0, 10.0]).unwrap();
         assert!((sd - sd_rep).abs() < 1e-12);
+    }
+
+    #[test]
+    fn selected_quantiles_are_the_sorted_ones_to_the_bit() {
+        let mut r = super::super::rng::Stream::new(5, 1);
+        for n in [1usize, 2, 3, 7, 100, 1001] {
+            let v: Vec<f64> = (0..n)
+                .map(|i| ((r.unit() - 0.5) * 100.0).round() / 7.0 + (i % 3) as f64)
+                .collect();
+            let qs = [0.0, 0.1, 0.25, 0.5, 0.5, 0.75, 0.9, 1.0];
+            let got = quantiles_selected(&mut v.clone(), &qs).unwrap();
+            let s = sorted(&v);
+            for (q, g) in qs.iter().zip(&got) {
+                assert_eq!(
+                    g.to_bits(),
+                    quantile_sorted(&s, *q).unwrap().to_bits(),
+                    "n {n} q {q}"
+                );
+            }
+        }
+        assert_eq!(quantiles_selected(&mut [], &[0.5]), None);
     }
 
     #[test]

@@ -48,7 +48,8 @@ pub fn run_and_render(
         let outcome = run::run_with(plan, cache, progress);
         (outcome, hashing.join().ok().flatten())
     });
-    let outcome = outcome?;
+    let mut outcome = outcome?;
+    let mut clock = run::stages::Clock::start();
     let inputs = record::input_digests_with(&outcome, input_sha256);
     let sources = files::Sources {
         recipe_text: &source.text,
@@ -68,6 +69,8 @@ pub fn run_and_render(
         shown(&path),
         record::to_bytes(&rec),
     ));
+    clock.lap("render");
+    outcome.stages.extend(clock.laps);
     Ok((outcome, rendered, rec))
 }
 
@@ -80,13 +83,36 @@ pub fn lock(source: &RecipeSource) -> Result<(set::RunLock, bool), RunError> {
 }
 
 /// Writes rendered files as one set (all new or all old), under a lock
-/// taken with [`lock`].
+/// taken with [`lock`]; the time it took joins the outcome's stages.
 pub fn write(
     source: &RecipeSource,
     rendered: &[Rendered],
     _lock: &set::RunLock,
+    outcome: &mut Outcome,
 ) -> Result<(), RunError> {
-    files::write_all_journalled(rendered, &set::journal_path(&source.path))
+    let mut clock = run::stages::Clock::start();
+    files::write_all_journalled(rendered, &set::journal_path(&source.path))?;
+    clock.lap("write");
+    outcome.stages.extend(clock.laps);
+    Ok(())
+}
+
+/// The stage times in lines for a terminal: each stage's seconds and the
+/// peak memory when it ended, and the total.
+pub fn stage_lines(outcome: &Outcome) -> String {
+    use std::fmt::Write;
+    let mut s =
+        String::from("where the time went (wall seconds; peak memory when the stage ended)\n");
+    for t in &outcome.stages {
+        let peak = t
+            .peak_bytes
+            .map(|b| format!("{:.0} MiB", b as f64 / (1024.0 * 1024.0)))
+            .unwrap_or_default();
+        let _ = writeln!(s, "  {:<8} {:>9.3} s {:>10}", t.stage, t.seconds, peak);
+    }
+    let total: f64 = outcome.stages.iter().map(|t| t.seconds).sum();
+    let _ = writeln!(s, "  {:<8} {:>9.3} s", "total", total);
+    s
 }
 
 /// The note about a recovered set, as both front ends say it.

@@ -71,6 +71,7 @@ pub fn run(o: &Outcome, written: &[String]) -> Value {
         "advice": o.advice,
         "records": o.records,
         "segmented": o.prepared.kept.len(),
+        "stages": o.stages,
         "record_weights": o.plan.record_weights,
         "weighted_members": o.overall.weighted,
         "sweep": o.sweep.iter().map(|r| json!({

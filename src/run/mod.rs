@@ -18,6 +18,7 @@ pub mod prepare;
 pub mod previous;
 mod profile;
 pub mod rules;
+pub mod stages;
 pub mod values;
 
 pub use judge::best_k;
@@ -285,6 +286,9 @@ pub struct Outcome {
     /// How the method compares a record with a segment's centre; the
     /// model scores new records by it.
     pub measure: measure::Measure,
+    /// Each stage's wall time and the peak memory when it ended: for
+    /// `--json` and `--times`, never for the run record.
+    pub stages: Vec<stages::StageTime>,
 }
 
 /// Runs a plan.
@@ -385,57 +389,49 @@ pub fn run_with(
     cache: &mut DataCache,
     progress: &dyn Fn(Step),
 ) -> Result<Outcome, RunError> {
+    let mut clock = stages::Clock::start();
     let table = cache.table(plan)?;
+    clock.lap("read");
     let prepared = prepare::prepare(plan, table)?;
     enough_records(plan, prepared.kept.len())?;
-    let x = prepared.matrix.view();
+    clock.lap("prepare");
     let last = previous::PreviousRun::read_if(plan, &prepared)?;
     let fitted = fit::fit(plan, &prepared, table, last.as_ref(), progress)?;
     go_on("after fitting")?;
+    clock.lap("fit");
     let own = mixed::own(plan, &prepared, &fitted);
-    let weighed = (x, prepared.weights());
+    let weighed = (prepared.matrix.view(), prepared.weights());
     let mut judged = judge::judge(plan, weighed, &fitted.candidates, own.as_ref(), progress)?;
+    clock.lap("judge");
     let chosen = &fitted.candidates[judged.at];
     let numbered = number::number(plan, chosen, last.as_ref(), &prepared, table);
     let assignments = number::place(&prepared, table, &numbered, &fitted.measure);
+    clock.lap("place");
     let (profiles, overall) = profile::profiles(&prepared, table, &numbered, &judged);
     let mut notes = profile::notes(&fitted, &judged, &profiles, prepared.kept.len());
     notes.extend(data_notes(plan, &prepared, table));
+    let values = tallies(plan, &prepared, table, &numbered.fit);
+    clock.lap("profile");
     let against = comparison::against(plan, &assignments, &numbered, last.as_ref())?;
     let fit = &numbered.fit;
+    let compared = against.compared_with.as_deref();
+    let centres = fit.centres.view();
     previous::check_labels_stay(
         plan,
-        against.compared_with.as_deref(),
+        compared,
         &assignments,
         &prepared,
         &fit.labels,
-        fit.centres.view(),
+        centres,
     )?;
     let drift = last.as_ref().and_then(|l| l.drift(&prepared));
-    let values = values::profiles(
-        table,
-        plan.features.len(),
-        &plan.tally,
-        (&prepared.kept, prepared.weights.as_deref()),
-        &fit.labels,
-        fit.k,
-    );
-    let named: (Vec<usize>, Vec<Option<String>>) = profiles
-        .iter()
-        .map(|p| (p.segment.unwrap_or(0), p.label.clone()))
-        .unzip();
-    let rules = rules::rules(plan, &prepared, table, &fit.labels, &named.0, &named.1);
-    let silhouettes = {
-        let mut per = judged.silhouette_values.swap_remove(judged.at);
-        numbered
-            .order
-            .iter()
-            .map(|&s| std::mem::take(&mut per[s]))
-            .collect()
-    };
+    clock.lap("compare");
+    let rules = segment_rules(plan, &prepared, table, fit, &profiles);
+    clock.lap("rules");
     Ok(Outcome {
         plan: plan.clone(),
         records: table.keys.len(),
+        silhouettes: chosen_silhouettes(&mut judged, &numbered),
         sweep: judged.sweep,
         chosen: judged.chosen,
         reason: judged.reason,
@@ -449,7 +445,6 @@ pub fn run_with(
         tree: fitted.tree,
         centres: fit.centres.clone(),
         comparison: against.comparison,
-        silhouettes,
         then: last.as_ref().map(|l| l.then()),
         drift,
         matching: numbered.matching,
@@ -457,7 +452,50 @@ pub fn run_with(
         rules,
         prepared,
         measure: fitted.measure,
+        stages: clock.laps,
     })
+}
+
+/// The `tally` columns per segment of the chosen segmentation.
+fn tallies(
+    plan: &Plan,
+    prepared: &Prepared,
+    table: &load::Table,
+    fit: &fit::Candidate,
+) -> Vec<values::ValueProfile> {
+    values::profiles(
+        table,
+        plan.features.len(),
+        &plan.tally,
+        (&prepared.kept, prepared.weights.as_deref()),
+        &fit.labels,
+        fit.k,
+    )
+}
+
+/// Each segment's readable rule, numbered and named as its profile.
+fn segment_rules(
+    plan: &Plan,
+    prepared: &Prepared,
+    table: &load::Table,
+    fit: &fit::Candidate,
+    profiles: &[Profile],
+) -> Vec<rules::SegmentRule> {
+    let (numbers, names): (Vec<usize>, Vec<Option<String>>) = profiles
+        .iter()
+        .map(|p| (p.segment.unwrap_or(0), p.label.clone()))
+        .unzip();
+    rules::rules(plan, prepared, table, &fit.labels, &numbers, &names)
+}
+
+/// The chosen k's silhouettes per segment, in number order.
+fn chosen_silhouettes(judged: &mut judge::Judged, numbered: &number::Numbered) -> Vec<Vec<f64>> {
+    let mut per = judged.silhouette_values.swap_remove(judged.at);
+    numbered
+        .order
+        .iter()
+        .map(|&s| std::mem::take(&mut per[s]))
+        .collect()
 }
 
 /// What the data calls for saying: which steps used record weights, and

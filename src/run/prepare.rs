@@ -383,9 +383,7 @@ fn prepare_feature(
 ) -> Result<Vec<f64>, RunError> {
     let mut v = original(table, kept, f, params.fill);
     if let Some((lo, hi)) = fp.clip {
-        let q = Quantiles::new(&v, w);
-        let (a, b) = (q.at(lo), q.at(hi));
-        if let (Some(a), Some(b)) = (a, b) {
+        if let Some(&[a, b]) = quantiles(&v, w, &[lo, hi]).as_deref() {
             v.iter_mut().for_each(|x| *x = x.clamp(a, b));
             params.clip = Some((a, b));
         }
@@ -499,11 +497,10 @@ fn scale_params(scale: Scale, v: &[f64], w: Option<&[f64]>) -> (f64, f64) {
             stats::mean_weighted(v, w).unwrap_or(0.0),
             stats::sd_population_weighted(v, w).unwrap_or(0.0),
         ),
-        (Scale::Robust, _) => {
-            let s = Quantiles::new(v, w);
-            let q = |p| s.at(p).unwrap_or(0.0);
-            (q(0.5), q(0.75) - q(0.25))
-        }
+        (Scale::Robust, _) => match quantiles(v, w, &[0.25, 0.5, 0.75]).as_deref() {
+            Some(&[q1, q2, q3]) => (q2, q3 - q1),
+            _ => (0.0, 0.0),
+        },
         (Scale::Range, _) => {
             let lo = v.iter().copied().fold(f64::INFINITY, f64::min);
             let hi = v.iter().copied().fold(f64::NEG_INFINITY, f64::max);
@@ -517,30 +514,31 @@ fn scale_params(scale: Scale, v: &[f64], w: Option<&[f64]>) -> (f64, f64) {
     }
 }
 
-/// Values sorted once for their quantiles, weighted when the records
-/// carry weights ([`stats::quantile_sorted_weighted`]).
-pub(crate) enum Quantiles {
-    Plain(Vec<f64>),
-    Weighted(Vec<(f64, f64)>),
+/// The quantiles at `qs` (ascending; definition 7), weighted when the
+/// records carry weights ([`stats::quantile_sorted_weighted`] over one
+/// sort), else by selection ([`stats::quantiles_selected`]: no full sort,
+/// the same values to the bit). `None` for no values.
+pub(crate) fn quantiles(v: &[f64], w: Option<&[f64]>, qs: &[f64]) -> Option<Vec<f64>> {
+    match w {
+        Some(w) => {
+            let s = stats::sorted_weighted(v, w);
+            qs.iter()
+                .map(|&q| stats::quantile_sorted_weighted(&s, q))
+                .collect()
+        }
+        None => stats::quantiles_selected(&mut v.to_vec(), qs),
+    }
 }
 
-impl Quantiles {
-    pub(crate) fn new(v: &[f64], w: Option<&[f64]>) -> Quantiles {
-        match w {
-            None => Quantiles::Plain(stats::sorted(v)),
-            Some(w) => Quantiles::Weighted(stats::sorted_weighted(v, w)),
-        }
-    }
-
-    pub(crate) fn at(&self, q: f64) -> Option<f64> {
-        match self {
-            Quantiles::Plain(s) => stats::quantile_sorted(s, q),
-            Quantiles::Weighted(s) => stats::quantile_sorted_weighted(s, q),
-        }
+/// The first quartile, median and third quartile.
+pub(crate) fn quartiles(v: &[f64], w: Option<&[f64]>) -> Option<[f64; 3]> {
+    match quantiles(v, w, &[0.25, 0.5, 0.75])?.as_slice() {
+        &[q1, q2, q3] => Some([q1, q2, q3]),
+        _ => None,
     }
 }
 
 /// The median, weighted when weights are given.
 pub(crate) fn median(v: &[f64], w: Option<&[f64]>) -> Option<f64> {
-    Quantiles::new(v, w).at(0.5)
+    quantiles(v, w, &[0.5])?.first().copied()
 }

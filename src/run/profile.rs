@@ -10,6 +10,7 @@ use super::number::Numbered;
 use super::prepare::{self, Prepared};
 use super::{load, FeatureSummary, Profile};
 use crate::engine::{self, evidence, kmeans};
+use rayon::prelude::*;
 
 /// Every segment's profile, in number order, and the profile of all
 /// records.
@@ -132,24 +133,37 @@ impl FeatureMeans {
             }
         }
         let w_of = |s: usize| w.map(|_| weights_of[s].as_slice());
-        for (f, fp) in p.features.iter().enumerate() {
-            let values = prepare::original(table, &p.kept, f, fp.fill);
-            let clustered = p.matrix.column(f).to_vec();
-            let (centre, sd) = mean_and_sd(&clustered, w);
-            let raw = &table.numeric[f];
-            let mut gaps = vec![0usize; k];
-            let mut groups: Vec<(Vec<f64>, Vec<f64>)> = vec![(Vec::new(), Vec::new()); k];
-            for (((v, c), &l), &row) in values.iter().zip(&clustered).zip(labels).zip(&p.kept) {
-                groups[l as usize].0.push(*v);
-                groups[l as usize].1.push(*c);
-                gaps[l as usize] += usize::from(raw.get(row).is_none());
-            }
-            out.overall
-                .push(summary(&values, w, 0.0, gaps.iter().sum()));
-            for (s, (vals, clus)) in groups.iter().enumerate() {
-                let mean = weighted_mean(clus, w_of(s)).unwrap_or(centre);
-                let diff = if sd > 0.0 { (mean - centre) / sd } else { 0.0 };
-                out.by_segment[s].push(summary(vals, w_of(s), diff, gaps[s]));
+        // Features are independent: summarised in parallel, each into its
+        // own slot.
+        let per_feature: Vec<(FeatureSummary, Vec<FeatureSummary>)> = (p.features.par_iter())
+            .enumerate()
+            .map(|(f, fp)| {
+                let values = prepare::original(table, &p.kept, f, fp.fill);
+                let clustered = p.matrix.column(f).to_vec();
+                let (centre, sd) = mean_and_sd(&clustered, w);
+                let raw = &table.numeric[f];
+                let mut gaps = vec![0usize; k];
+                let mut groups: Vec<(Vec<f64>, Vec<f64>)> = vec![(Vec::new(), Vec::new()); k];
+                for (((v, c), &l), &row) in values.iter().zip(&clustered).zip(labels).zip(&p.kept) {
+                    groups[l as usize].0.push(*v);
+                    groups[l as usize].1.push(*c);
+                    gaps[l as usize] += usize::from(raw.get(row).is_none());
+                }
+                let overall = summary(&values, w, 0.0, gaps.iter().sum());
+                let segments = (groups.iter().enumerate())
+                    .map(|(s, (vals, clus))| {
+                        let mean = weighted_mean(clus, w_of(s)).unwrap_or(centre);
+                        let diff = if sd > 0.0 { (mean - centre) / sd } else { 0.0 };
+                        summary(vals, w_of(s), diff, gaps[s])
+                    })
+                    .collect();
+                (overall, segments)
+            })
+            .collect();
+        for (overall, segments) in per_feature {
+            out.overall.push(overall);
+            for (s, summary) in segments.into_iter().enumerate() {
+                out.by_segment[s].push(summary);
             }
         }
         out
@@ -188,13 +202,12 @@ fn mean_and_sd(values: &[f64], w: Option<&[f64]>) -> (f64, f64) {
 /// their weights), with a standardised difference measured elsewhere and
 /// the count of filled gaps among them.
 fn summary(values: &[f64], w: Option<&[f64]>, std_diff: f64, filled: usize) -> FeatureSummary {
-    let sorted = prepare::Quantiles::new(values, w);
-    let q = |at| sorted.at(at).unwrap_or(0.0);
+    let [q1, median, q3] = prepare::quartiles(values, w).unwrap_or([0.0; 3]);
     FeatureSummary {
         mean: weighted_mean(values, w).unwrap_or(0.0),
-        median: q(0.5),
-        q1: q(0.25),
-        q3: q(0.75),
+        median,
+        q1,
+        q3,
         std_diff,
         filled,
     }

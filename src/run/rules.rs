@@ -10,6 +10,7 @@ use crate::engine::rules::{segment_rule, Condition, Sorted};
 use crate::engine::weights::Weights;
 use crate::plan::FeatureKind;
 use ndarray::Array2;
+use rayon::prelude::*;
 use serde::Serialize;
 
 /// Conditions per rule, at most.
@@ -199,6 +200,7 @@ pub fn rules(
     let n = prepared.kept.len();
     let d = prepared.features.len();
     let columns: Vec<Vec<f64>> = (0..d)
+        .into_par_iter()
         .map(|f| prepare::original(table, &prepared.kept, f, prepared.features[f].fill))
         .collect();
     let step = n.div_ceil(FIT_RECORDS).max(1);
@@ -211,53 +213,33 @@ pub fn rules(
     // A leaf holds at least one 200th of the fitted records (members, by
     // weight), and 5.
     let min_leaf = (fit_w.total(fit_rows.len()) / 200.0).floor().max(5.0);
+    // Segments' rules are independent: fitted in parallel, each into its
+    // own slot.
     let mut rules: Vec<SegmentRule> = numbers
-        .iter()
+        .par_iter()
         .enumerate()
         .map(|(s, &number)| {
             let target: Vec<bool> = fit_rows.iter().map(|&i| labels[i] as usize == s).collect();
             let mut conditions = segment_rule(x.view(), &sorted, (&target, fit_w), DEPTH, min_leaf)
                 .unwrap_or_default();
             let written = written(plan, prepared, &columns, &mut conditions);
-            let holds = |i: usize| {
-                conditions
-                    .iter()
-                    .all(|c: &Condition| c.holds(columns[c.feature][i]))
-            };
-            let size = labels.iter().filter(|&&l| l as usize == s).count();
-            let (matched, hits) = if conditions.is_empty() {
-                (0, 0)
-            } else {
-                (0..n).filter(|&i| holds(i)).fold((0, 0), |(m, h), i| {
-                    (m + 1, h + usize::from(labels[i] as usize == s))
-                })
-            };
-            // Coverage and precision count members: by weight, with
-            // record weights.
-            let in_s = |i: &usize| labels[*i] as usize == s;
-            let weight_of = |it: &mut dyn Iterator<Item = usize>| it.map(|i| w.at(i)).sum::<f64>();
-            let (size_w, matched_w, hits_w) = if w.is_weighted() {
-                let picked = || (0..n).filter(|&i| !conditions.is_empty() && holds(i));
-                (
-                    weight_of(&mut (0..n).filter(in_s)),
-                    weight_of(&mut picked()),
-                    weight_of(&mut picked().filter(in_s)),
-                )
-            } else {
-                (size as f64, matched as f64, hits as f64)
-            };
+            let c = Counted::of(&conditions, &columns, (labels, s), w);
             SegmentRule {
                 segment: number,
                 label: names.get(s).cloned().flatten(),
                 conditions: written,
-                matched,
-                matched_in_segment: hits,
-                segment_size: size,
-                coverage: if size == 0 { 0.0 } else { hits_w / size_w },
-                precision: if matched == 0 {
+                matched: c.matched,
+                matched_in_segment: c.hits,
+                segment_size: c.size,
+                coverage: if c.size == 0 {
                     0.0
                 } else {
-                    hits_w / matched_w
+                    c.hits_w / c.size_w
+                },
+                precision: if c.matched == 0 {
+                    0.0
+                } else {
+                    c.hits_w / c.matched_w
                 },
                 delivered: 0,
                 delivered_in_segment: 0,
@@ -267,6 +249,59 @@ pub fn rules(
     let names: Vec<String> = prepared.features.iter().map(|f| f.column.clone()).collect();
     deliver(&mut rules, &columns, labels, &names);
     rules
+}
+
+/// What a segment's rule picks over every segmented record: records in
+/// the segment, picked, and picked in the segment; and the same as
+/// members (summed weights, with record weights; the counts without).
+struct Counted {
+    size: usize,
+    matched: usize,
+    hits: usize,
+    size_w: f64,
+    matched_w: f64,
+    hits_w: f64,
+}
+
+impl Counted {
+    fn of(
+        conditions: &[Condition],
+        columns: &[Vec<f64>],
+        (labels, s): (&[u32], usize),
+        w: Weights<'_>,
+    ) -> Counted {
+        let n = labels.len();
+        let holds = |i: usize| {
+            !conditions.is_empty()
+                && conditions
+                    .iter()
+                    .all(|c: &Condition| c.holds(columns[c.feature][i]))
+        };
+        let in_s = |i: &usize| labels[*i] as usize == s;
+        let size = (0..n).filter(in_s).count();
+        let (matched, hits) = (0..n)
+            .filter(|&i| holds(i))
+            .fold((0, 0), |(m, h), i| (m + 1, h + usize::from(in_s(&i))));
+        let weight_of = |it: &mut dyn Iterator<Item = usize>| it.map(|i| w.at(i)).sum::<f64>();
+        let (size_w, matched_w, hits_w) = if w.is_weighted() {
+            let picked = || (0..n).filter(|&i| holds(i));
+            (
+                weight_of(&mut (0..n).filter(in_s)),
+                weight_of(&mut picked()),
+                weight_of(&mut picked().filter(in_s)),
+            )
+        } else {
+            (size as f64, matched as f64, hits as f64)
+        };
+        Counted {
+            size,
+            matched,
+            hits,
+            size_w,
+            matched_w,
+            hits_w,
+        }
+    }
 }
 
 #[cfg(test)]

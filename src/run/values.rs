@@ -95,7 +95,7 @@ impl Group {
 
     fn summary(&self, grand_total: f64, weighted: bool) -> ValueSummary {
         let w = weighted.then_some(self.weights.as_slice());
-        let sorted = super::prepare::Quantiles::new(&self.values, w);
+        let q = super::prepare::quartiles(&self.values, w);
         let total = self.total();
         ValueSummary {
             known: self.values.len(),
@@ -103,9 +103,9 @@ impl Group {
                 Some(w) => stats::mean_weighted(&self.values, w),
                 None => stats::mean(&self.values),
             },
-            median: sorted.at(0.5),
-            q1: sorted.at(0.25),
-            q3: sorted.at(0.75),
+            median: q.map(|q| q[1]),
+            q1: q.map(|q| q[0]),
+            q3: q.map(|q| q[2]),
             total,
             share_of_total: (grand_total != 0.0).then(|| total / grand_total),
         }
