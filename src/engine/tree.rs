@@ -273,7 +273,7 @@ pub fn linkage_matrix_weighted(
     }
     let sizes = vec![1usize; n];
     let steps = match linkage {
-        Linkage::Single => prim(n, &|i, j| m.get(i, j), false),
+        Linkage::Single => prim(n, |i, j| m.get(i, j), false),
         _ => {
             let mut space = MatrixSpace {
                 m,
@@ -289,6 +289,9 @@ pub fn linkage_matrix_weighted(
 /// Active clusters above which a chain step's scan and update are split
 /// across threads.
 const PARALLEL_SCAN_MIN: usize = 4096;
+
+/// A record's distance to the tree so far, and the tree record it is from.
+type Link = (f64, usize);
 
 /// A merge of the clusters held in two slots, before ids are assigned.
 type Step = (usize, usize, f64);
@@ -310,50 +313,131 @@ fn mst_single(rows: &[Vec<f64>], metric: Metric) -> Vec<Step> {
     // Euclidean candidates are compared by squared distance (the same
     // order, one square root per merge instead of one per pair).
     let squared = metric == Metric::Euclidean;
-    let dist = |i: usize, j: usize| match metric {
-        Metric::Euclidean => dist2(row_of(i), row_of(j)),
-        other => other.distance(row_of(i), row_of(j)),
-    };
-    prim(n, &dist, squared)
+    if squared {
+        return prim(n, Rows { flat: &flat, d }, true);
+    }
+    let dist = |i: usize, j: usize| metric.distance(row_of(i), row_of(j));
+    prim(n, dist, false)
+}
+
+/// Distances Prim's sweep takes, one pair or four pairs from one record.
+trait PairDistance: Sync {
+    fn one(&self, i: usize, j: usize) -> f64;
+    /// `one(i, j)` for each of four `j`: the same values, to the bit.
+    fn four(&self, i: usize, js: [usize; 4]) -> [f64; 4] {
+        js.map(|j| self.one(i, j))
+    }
+}
+
+impl<F: Fn(usize, usize) -> f64 + Sync> PairDistance for F {
+    fn one(&self, i: usize, j: usize) -> f64 {
+        self(i, j)
+    }
+}
+
+/// Squared Euclidean distances between rows of one buffer. Four pairs are
+/// summed side by side, each in feature order as [`dist2`] sums (so the
+/// same bits), which lets the processor overlap their additions instead of
+/// waiting on one chain of them.
+struct Rows<'a> {
+    flat: &'a [f64],
+    d: usize,
+}
+
+impl PairDistance for Rows<'_> {
+    fn one(&self, i: usize, j: usize) -> f64 {
+        let d = self.d;
+        dist2(
+            &self.flat[i * d..(i + 1) * d],
+            &self.flat[j * d..(j + 1) * d],
+        )
+    }
+
+    fn four(&self, i: usize, js: [usize; 4]) -> [f64; 4] {
+        let d = self.d;
+        let a = &self.flat[i * d..(i + 1) * d];
+        let b = js.map(|j| &self.flat[j * d..(j + 1) * d]);
+        let mut acc = [0.0f64; 4];
+        for (f, &v) in a.iter().enumerate() {
+            for l in 0..4 {
+                let t = v - b[l][f];
+                acc[l] += t * t;
+            }
+        }
+        acc
+    }
 }
 
 /// Prim's algorithm over `dist(i, j)`; with `squared`, the values are
-/// squares of the heights.
-fn prim(n: usize, dist: &(dyn Fn(usize, usize) -> f64 + Sync), squared: bool) -> Vec<Step> {
+/// squares of the heights. The records not yet in the tree are kept in one
+/// shrinking list (a record joining is swapped out), so merge m measures
+/// n - m distances, n²/2 in all; each pass updates every remaining
+/// record's distance to the tree and finds the nearest in the same sweep,
+/// in parallel over fixed chunks, the chunks' nearest reduced by (distance,
+/// record) so ties go to the lowest record whatever the thread count.
+/// O(n² d) time, O(n) memory beyond the rows.
+fn prim<D: PairDistance>(n: usize, dist: D, squared: bool) -> Vec<Step> {
+    const CHUNK: usize = 2048;
     let mut steps = Vec::with_capacity(n.saturating_sub(1));
     if n < 2 {
         return steps;
     }
-    // `best[j]`: distance from the tree to j, and the tree node it is from.
-    let mut in_tree = vec![false; n];
-    let mut best = vec![(f64::INFINITY, 0usize); n];
+    // `rest[p]` a record not in the tree; `best[p]`: its distance to the
+    // tree and the tree record it is from.
+    let mut rest: Vec<usize> = (1..n).collect();
+    let mut best: Vec<Link> = vec![(f64::INFINITY, 0usize); n - 1];
     let mut current = 0;
-    in_tree[0] = true;
-    for _ in 1..n {
+    // (distance, record, place in `rest`): the nearer, ties to the lower
+    // record.
+    type Near = (f64, usize, usize);
+    let nearer = |a: Near, b: Near| {
+        if b.0 < a.0 || (b.0 == a.0 && b.1 < a.1) {
+            b
+        } else {
+            a
+        }
+    };
+    let none: Near = (f64::INFINITY, usize::MAX, usize::MAX);
+    while !rest.is_empty() {
         let from = current;
-        // Update the candidate distances in parallel (each j on its own),
-        // then pick the nearest in index order.
-        best.par_iter_mut().enumerate().for_each(|(j, b)| {
-            if !in_tree[j] {
-                let dd = dist(from, j);
-                if dd < b.0 {
-                    *b = (dd, from);
+        let sweep = |(c, (r, b)): (usize, (&[usize], &mut [Link]))| {
+            let mut local = none;
+            let mut take = |o: usize, j: usize, dd: f64, bj: &mut (f64, usize)| {
+                if dd < bj.0 {
+                    *bj = (dd, from);
+                }
+                local = nearer(local, (bj.0, j, c * CHUNK + o));
+            };
+            let quads = r.len() / 4;
+            for q in 0..quads {
+                let o = 4 * q;
+                let js = [r[o], r[o + 1], r[o + 2], r[o + 3]];
+                let dd = dist.four(from, js);
+                for l in 0..4 {
+                    take(o + l, js[l], dd[l], &mut b[o + l]);
                 }
             }
-        });
-        let mut next = usize::MAX;
-        for j in 0..n {
-            if !in_tree[j] && (next == usize::MAX || best[j].0 < best[next].0) {
-                next = j;
+            for o in 4 * quads..r.len() {
+                take(o, r[o], dist.one(from, r[o]), &mut b[o]);
             }
-        }
-        in_tree[next] = true;
-        let height = if squared {
-            best[next].0.sqrt()
-        } else {
-            best[next].0
+            local
         };
-        steps.push((best[next].1, next, height));
+        let (_, next, at) = if rest.len() >= PARALLEL_SCAN_MIN {
+            (rest.par_chunks(CHUNK).zip(best.par_chunks_mut(CHUNK)))
+                .enumerate()
+                .map(sweep)
+                .reduce(|| none, nearer)
+        } else {
+            (rest.chunks(CHUNK).zip(best.chunks_mut(CHUNK)))
+                .enumerate()
+                .map(sweep)
+                .fold(none, nearer)
+        };
+        let (d, tree_end) = best[at];
+        let height = if squared { d.sqrt() } else { d };
+        steps.push((tree_end, next, height));
+        rest.swap_remove(at);
+        best.swap_remove(at);
         current = next;
     }
     steps
@@ -366,6 +450,19 @@ fn prim(n: usize, dist: &(dyn Fn(usize, usize) -> f64 + Sync), squared: bool) ->
 trait ChainSpace {
     /// Distance between the clusters in slots x and y.
     fn distance(&self, x: usize, y: usize) -> f64;
+    /// A value ordered as the distance, cheaper to compute (Ward's
+    /// squared distance); the chain compares these.
+    fn key(&self, x: usize, y: usize) -> f64 {
+        self.distance(x, y)
+    }
+    /// The distance a key stands for.
+    fn height(&self, key: f64) -> f64 {
+        key
+    }
+    /// `key(x, y)` for four `y`: the same values, to the bit.
+    fn key4(&self, x: usize, ys: [usize; 4]) -> [f64; 4] {
+        ys.map(|y| self.key(x, y))
+    }
     /// Merges slot `a` into slot `b` (a < b); `a` is retired afterwards.
     fn merge(&mut self, alive: &[usize], a: usize, b: usize);
 }
@@ -398,25 +495,43 @@ fn chain<S: ChainSpace + Sync>(n: usize, space: &mut S) -> Vec<Step> {
             }
         };
         let none = (usize::MAX, f64::INFINITY);
+        // The nearest to x in a run of active slots, four at a time.
+        let scan = |slots: &[usize]| {
+            let mut found = none;
+            let quads = slots.len() / 4;
+            for q in 0..quads {
+                let ys = [
+                    slots[4 * q],
+                    slots[4 * q + 1],
+                    slots[4 * q + 2],
+                    slots[4 * q + 3],
+                ];
+                let keys = sp.key4(x, ys);
+                for (&y, &k) in ys.iter().zip(&keys) {
+                    if y != x {
+                        found = better(found, (y, k));
+                    }
+                }
+            }
+            for &y in &slots[4 * quads..] {
+                if y != x {
+                    found = better(found, (y, sp.key(x, y)));
+                }
+            }
+            found
+        };
         // Threads pay off only on long scans.
         let found = if alive.len() >= PARALLEL_SCAN_MIN {
-            alive
-                .par_iter()
-                .filter(|&&j| j != x)
-                .map(|&j| (j, sp.distance(x, j)))
-                .reduce(|| none, better)
+            alive.par_chunks(1024).map(scan).reduce(|| none, better)
         } else {
-            alive
-                .iter()
-                .filter(|&&j| j != x)
-                .map(|&j| (j, sp.distance(x, j)))
-                .fold(none, better)
+            scan(&alive)
         };
-        let (y, h) = match prev {
+        let (y, key) = match prev {
             // The previous element wins ties, which keeps the chain finite.
-            Some(p) if space.distance(x, p) <= found.1 => (p, space.distance(x, p)),
+            Some(p) if space.key(x, p) <= found.1 => (p, space.key(x, p)),
             _ => found,
         };
+        let h = space.height(key);
         if Some(y) == prev {
             stack.pop();
             stack.pop();
@@ -495,33 +610,72 @@ fn nn_chain_matrix(
     chain(rows.len(), &mut space)
 }
 
-/// Ward's linkage over stored centroids and sizes: no matrix.
+/// Ward's linkage over stored centroids and sizes: no matrix. The
+/// centroids sit in one buffer, d values each, so a scan reads memory in
+/// sequence; the chain compares squared distances (one square root per
+/// merge, not per pair).
 struct WardSpace {
-    centre: Vec<Vec<f64>>,
+    centre: Vec<f64>,
+    d: usize,
     size: Vec<f64>,
+}
+
+impl WardSpace {
+    fn centre(&self, x: usize) -> &[f64] {
+        &self.centre[x * self.d..(x + 1) * self.d]
+    }
 }
 
 impl ChainSpace for WardSpace {
     fn distance(&self, x: usize, y: usize) -> f64 {
+        self.key(x, y).sqrt()
+    }
+
+    fn key(&self, x: usize, y: usize) -> f64 {
         let (sx, sy) = (self.size[x], self.size[y]);
-        (2.0 * sx * sy / (sx + sy) * dist2(&self.centre[x], &self.centre[y])).sqrt()
+        2.0 * sx * sy / (sx + sy) * dist2(self.centre(x), self.centre(y))
+    }
+
+    fn key4(&self, x: usize, ys: [usize; 4]) -> [f64; 4] {
+        // Four squared distances side by side, each in feature order as
+        // `dist2` sums.
+        let a = self.centre(x);
+        let b = ys.map(|y| self.centre(y));
+        let mut acc = [0.0f64; 4];
+        for (f, &v) in a.iter().enumerate() {
+            for l in 0..4 {
+                let t = v - b[l][f];
+                acc[l] += t * t;
+            }
+        }
+        let sx = self.size[x];
+        let mut out = [0.0; 4];
+        for l in 0..4 {
+            let sy = self.size[ys[l]];
+            out[l] = 2.0 * sx * sy / (sx + sy) * acc[l];
+        }
+        out
+    }
+
+    fn height(&self, key: f64) -> f64 {
+        key.sqrt()
     }
 
     fn merge(&mut self, _alive: &[usize], a: usize, b: usize) {
         let (sa, sb) = (self.size[a], self.size[b]);
-        let merged: Vec<f64> = self.centre[a]
-            .iter()
-            .zip(&self.centre[b])
-            .map(|(u, v)| (sa * u + sb * v) / (sa + sb))
-            .collect();
-        self.centre[b] = merged;
+        let d = self.d;
+        for f in 0..d {
+            let (u, v) = (self.centre[a * d + f], self.centre[b * d + f]);
+            self.centre[b * d + f] = (sa * u + sb * v) / (sa + sb);
+        }
         self.size[b] = sa + sb;
     }
 }
 
 fn nn_chain_ward(rows: &[Vec<f64>], sizes: &[f64]) -> Vec<Step> {
     let mut space = WardSpace {
-        centre: rows.to_vec(),
+        centre: rows.iter().flatten().copied().collect(),
+        d: rows.first().map_or(0, Vec::len),
         size: sizes.to_vec(),
     };
     chain(rows.len(), &mut space)
