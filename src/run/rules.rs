@@ -199,13 +199,17 @@ pub fn rules(
 ) -> Vec<SegmentRule> {
     let n = prepared.kept.len();
     let d = prepared.features.len();
-    let columns: Vec<Vec<f64>> = (0..d)
-        .into_par_iter()
-        .map(|f| prepare::original(table, &prepared.kept, f, prepared.features[f].fill))
-        .collect();
+    // A feature's value of kept record r, as `prepare::original` gives it.
+    let value = |f: usize, r: usize| {
+        let fill = prepared.features[f].fill;
+        table.numeric[f]
+            .get(prepared.kept[r])
+            .or(fill)
+            .unwrap_or(0.0)
+    };
     let step = n.div_ceil(FIT_RECORDS).max(1);
     let fit_rows: Vec<usize> = (0..n).step_by(step).collect();
-    let x = Array2::from_shape_fn((fit_rows.len(), d), |(i, f)| columns[f][fit_rows[i]]);
+    let x = Array2::from_shape_fn((fit_rows.len(), d), |(i, f)| value(f, fit_rows[i]));
     let sorted = Sorted::new(x.view());
     let w = prepared.weights();
     let fit_weights = w.select(&fit_rows);
@@ -215,13 +219,24 @@ pub fn rules(
     let min_leaf = (fit_w.total(fit_rows.len()) / 200.0).floor().max(5.0);
     // Segments' rules are independent: fitted in parallel, each into its
     // own slot.
-    let mut rules: Vec<SegmentRule> = numbers
-        .par_iter()
-        .enumerate()
-        .map(|(s, &number)| {
+    let fitted: Vec<Vec<Condition>> = (0..numbers.len())
+        .into_par_iter()
+        .map(|s| {
             let target: Vec<bool> = fit_rows.iter().map(|&i| labels[i] as usize == s).collect();
-            let mut conditions = segment_rule(x.view(), &sorted, (&target, fit_w), DEPTH, min_leaf)
-                .unwrap_or_default();
+            segment_rule(x.view(), &sorted, (&target, fit_w), DEPTH, min_leaf).unwrap_or_default()
+        })
+        .collect();
+    // Only the features some rule names are read in full, for its counts.
+    let columns: Vec<Vec<f64>> = (0..d)
+        .into_par_iter()
+        .map(|f| match fitted.iter().flatten().any(|c| c.feature == f) {
+            true => prepare::original(table, &prepared.kept, f, prepared.features[f].fill),
+            false => Vec::new(),
+        })
+        .collect();
+    let mut rules: Vec<SegmentRule> = (fitted.into_par_iter().zip(numbers.par_iter()))
+        .enumerate()
+        .map(|(s, (mut conditions, &number))| {
             let written = written(plan, prepared, &columns, &mut conditions);
             let c = Counted::of(&conditions, &columns, (labels, s), w);
             SegmentRule {
