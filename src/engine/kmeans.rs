@@ -638,12 +638,11 @@ impl<'a> Problem<'a> {
     /// squared distance to the nearest centre: the first whose running
     /// potential exceeds `target`.
     fn draw_by_potential(&self, closest: &[f64], target: f64) -> usize {
+        // Weight times squared distance, formed as the scan reads it: no
+        // copy of the potentials per draw.
         match self.w.as_slice() {
-            None => sample_by_weight(closest, target),
-            Some(w) => {
-                let scaled: Vec<f64> = closest.iter().zip(w).map(|(c, w)| c * w).collect();
-                sample_by_weight(&scaled, target)
-            }
+            None => sample_by_weight(closest.iter().copied(), target),
+            Some(w) => sample_by_weight(closest.iter().zip(w).map(|(c, w)| c * w), target),
         }
     }
 
@@ -832,10 +831,10 @@ fn has_empty(labels: &[u32], k: usize) -> bool {
 
 /// Index where the running sum of `weights` first exceeds `target`; the last
 /// index with positive weight when rounding leaves `target` past the total.
-fn sample_by_weight(weights: &[f64], target: f64) -> usize {
+fn sample_by_weight(weights: impl Iterator<Item = f64>, target: f64) -> usize {
     let mut acc = 0.0;
     let mut last_positive = 0;
-    for (i, &w) in weights.iter().enumerate() {
+    for (i, w) in weights.enumerate() {
         if w > 0.0 {
             acc += w;
             last_positive = i;

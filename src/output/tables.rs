@@ -507,10 +507,10 @@ fn sweep_legend(o: &Outcome) -> Vec<String> {
     }
     let mut legend: Vec<String> = legend.into_iter().map(String::from).collect();
     if let Some(f) = o.plan.floor {
-        legend.push(match o.prepared.weights.as_deref() {
+        legend.push(match o.overall.weighted {
             Some(w) => format!(
                 "smallest: records in the smallest segment (weighted members in brackets), * below the floor of {}",
-                f.words(w.iter().sum::<f64>().round() as usize, "weighted members")
+                f.words(w.round() as usize, "weighted members")
             ),
             None => format!(
                 "smallest: records in the smallest segment, * below the floor of {}",

@@ -182,16 +182,17 @@ pub(super) fn fit_gower_tree(
 
 /// The prepared numbers alone (the indicators left out), and the category
 /// codes, as k-prototypes reads them.
-pub(super) struct PrototypeData {
+pub(super) struct PrototypeData<'a> {
     pub numbers: Array2<f64>,
     pub codes: Vec<Vec<u32>>,
     pub levels: Vec<usize>,
     pub gamma: Vec<f64>,
-    pub weights: Option<Vec<f64>>,
+    /// The kept records' weights, borrowed from the prepared data.
+    pub weights: Weights<'a>,
 }
 
-impl PrototypeData {
-    pub fn new(plan: &Plan, kp: &KPrototypesPlan, prepared: &Prepared) -> PrototypeData {
+impl<'a> PrototypeData<'a> {
+    pub fn new(plan: &Plan, kp: &KPrototypesPlan, prepared: &'a Prepared) -> PrototypeData<'a> {
         let p = prepared.features.len();
         let numbers = prepared
             .matrix
@@ -209,7 +210,7 @@ impl PrototypeData {
                 .collect(),
             levels: prepared.categories.iter().map(|c| c.levels.len()).collect(),
             gamma: plan.categories.iter().map(|c| base * c.weight).collect(),
-            weights: prepared.weights.clone(),
+            weights: prepared.weights(),
             numbers,
         }
     }
@@ -220,7 +221,7 @@ impl PrototypeData {
             codes: &self.codes,
             levels: &self.levels,
             gamma: &self.gamma,
-            weights: self.weights.as_deref().map_or(Weights::NONE, Weights::of),
+            weights: self.weights,
         }
     }
 }
