@@ -16,8 +16,10 @@
 //! - [`output`]: terminal tables and output files.
 //! - [`text`]: small formatting helpers shared by messages and outputs.
 //! - [`parquet`]: Parquet input, read as the same table in CSV would be.
+//! - [`csv_lines`]: the line of each CSV record, as an editor counts it.
 
 pub mod check;
+pub mod csv_lines;
 pub mod engine;
 pub mod lsp;
 pub mod output;

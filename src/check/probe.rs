@@ -4,6 +4,7 @@
 //! first [`SAMPLE_ROWS`] records to learn each column's kind; when the file
 //! ends within the sample, it also knows the record count.
 
+use crate::csv_lines::LineReader;
 use std::fs::File;
 use std::path::Path;
 
@@ -259,9 +260,9 @@ pub fn key_problem(path: &Path, separator: u8, key: &str) -> Option<KeyProblem> 
     if crate::parquet::is_parquet(path) {
         return parquet_key_problem(path, key);
     }
-    let mut reader = csv::ReaderBuilder::new()
-        .delimiter(separator)
-        .from_reader(File::open(path).ok()?);
+    let mut builder = csv::ReaderBuilder::new();
+    builder.delimiter(separator);
+    let mut reader = LineReader::new(&builder, File::open(path).ok()?);
     let at = reader
         .headers()
         .ok()?
@@ -270,10 +271,9 @@ pub fn key_problem(path: &Path, separator: u8, key: &str) -> Option<KeyProblem> 
     let mut seen: std::collections::HashMap<String, u64> = std::collections::HashMap::new();
     let mut record = csv::StringRecord::new();
     for _ in 0..SAMPLE_ROWS {
-        if !reader.read_record(&mut record).ok()? {
+        let Some(line) = reader.read_record(&mut record).ok()? else {
             break;
-        }
-        let line = record.position().map_or(0, |p| p.line());
+        };
         // Keys exactly as written, as the run reads them.
         let k = record.get(at).unwrap_or("");
         if is_blank(k) {
@@ -412,11 +412,13 @@ fn probe_reader<R: std::io::Read>(
     separator: u8,
     decimal: DecimalMark,
 ) -> Result<Probe, ProbeError> {
-    let mut reader = csv::ReaderBuilder::new()
-        .delimiter(separator)
-        .has_headers(true)
-        .from_reader(input);
-    let header = reader.headers().map_err(|e| csv_problem(&e))?.clone();
+    let mut builder = csv::ReaderBuilder::new();
+    builder.delimiter(separator).has_headers(true);
+    let mut reader = LineReader::new(&builder, input);
+    let header = match reader.headers() {
+        Ok(header) => header.clone(),
+        Err(e) => return Err(csv_problem(&e, reader.line_of(&e))),
+    };
     if header.is_empty() || header.iter().all(is_blank) {
         return Err(ProbeError::NoHeader);
     }
@@ -425,16 +427,15 @@ fn probe_reader<R: std::io::Read>(
     let mut record = csv::StringRecord::new();
     let mut complete = false;
     while sampled < SAMPLE_ROWS {
-        match reader.read_record(&mut record) {
-            Ok(true) => {}
-            Ok(false) => {
+        let line = match reader.read_record(&mut record) {
+            Ok(Some(line)) => line,
+            Ok(None) => {
                 complete = true;
                 break;
             }
-            Err(e) => return Err(csv_problem(&e)),
-        }
+            Err(e) => return Err(csv_problem(&e, reader.line_of(&e))),
+        };
         sampled += 1;
-        let line = record.position().map(|p| p.line()).unwrap_or(0);
         for (col, field) in columns.iter_mut().zip(record.iter()) {
             col.observe(field, line, decimal);
         }
@@ -445,17 +446,9 @@ fn probe_reader<R: std::io::Read>(
     // records) without looking at the fields: about a second per gigabyte.
     let mut rows = complete.then_some(sampled);
     if !complete {
-        let mut raw = csv::ByteRecord::new();
-        let mut count = sampled;
-        rows = loop {
-            match reader.read_byte_record(&mut raw) {
-                Ok(true) => count += 1,
-                Ok(false) => break Some(count),
-                // A fault past the sample is the run's to report, at its
-                // line; the count falls back to an estimate.
-                Err(_) => break None,
-            }
-        };
+        // A fault past the sample is the run's to report, at its line;
+        // the count falls back to an estimate.
+        rows = reader.count_rest().ok().map(|rest| sampled + rest as usize);
     }
     let estimated_rows = if rows.is_some() || sampled == 0 {
         None
@@ -520,8 +513,7 @@ fn probe_parquet(path: &Path) -> Result<Probe, ProbeError> {
     })
 }
 
-fn csv_problem(e: &csv::Error) -> ProbeError {
-    let line = e.position().map(|p| p.line()).unwrap_or(1);
+fn csv_problem(e: &csv::Error, line: u64) -> ProbeError {
     match e.kind() {
         csv::ErrorKind::Io(io) => ProbeError::Unreadable(io.to_string()),
         csv::ErrorKind::Utf8 { .. } => ProbeError::NotUtf8 { line },

@@ -66,7 +66,6 @@ impl Comparison {
 /// the first column is the key, and a `segment` column must exist.
 pub fn read_assignments(path: &std::path::Path, shown: &str) -> Result<Vec<Assigned>, RunError> {
     let opened = super::load::Opened::new(path, shown, ',')?;
-    let malformed = |e: csv::Error| super::load::malformed(shown, &e);
     let seg = opened
         .position("segment")
         .ok_or_else(|| RunError::NotAssignments {
@@ -80,8 +79,12 @@ pub fn read_assignments(path: &std::path::Path, shown: &str) -> Result<Vec<Assig
     // counted twice in every table).
     let mut seen: HashMap<String, u64> = HashMap::new();
     let mut record = csv::StringRecord::new();
-    while reader.read_record(&mut record).map_err(malformed)? {
-        let line = record.position().map_or(0, |p| p.line());
+    loop {
+        let line = match reader.read_record(&mut record) {
+            Ok(Some(line)) => line,
+            Ok(None) => break,
+            Err(e) => return Err(super::load::malformed(shown, &e, reader.line_of(&e))),
+        };
         // Keys exactly as written, as the run keyed its records.
         let key = record.get(0).unwrap_or("");
         if let Some(&first_line) = seen.get(key) {

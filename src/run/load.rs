@@ -8,8 +8,10 @@
 //! million records of 16 features take 16 bytes per value less than half
 //! of what one boxed optional value per field would.
 
+use super::blocks;
 use super::error::{Place, RunError};
 use crate::check::probe::{is_blank, number_help, parse_number_in, DecimalMark};
+use crate::csv_lines::LineReader;
 use crate::plan::{Coder, FeatureKind};
 use rayon::prelude::*;
 use std::path::Path;
@@ -135,7 +137,7 @@ pub struct Columns<'a> {
 
 /// A CSV file opened for reading, with its header.
 pub(crate) struct Opened<R = std::fs::File> {
-    pub reader: csv::Reader<std::io::BufReader<R>>,
+    pub reader: LineReader<std::io::BufReader<R>>,
     pub header: csv::StringRecord,
 }
 
@@ -153,10 +155,16 @@ impl Opened {
 impl<R: std::io::Read> Opened<R> {
     /// Reads the header of CSV text from `input`, shown as `shown`.
     pub fn from_reader(input: R, shown: &str, separator: char) -> Result<Opened<R>, RunError> {
-        let mut reader = csv::ReaderBuilder::new()
-            .delimiter(separator as u8)
-            .from_reader(std::io::BufReader::new(input));
-        let header = reader.headers().map_err(|e| malformed(shown, &e))?.clone();
+        let mut builder = csv::ReaderBuilder::new();
+        builder.delimiter(separator as u8);
+        let mut reader = LineReader::new(&builder, std::io::BufReader::new(input));
+        let header = match reader.headers() {
+            Ok(header) => header.clone(),
+            Err(e) => {
+                let line = reader.line_of(&e);
+                return Err(malformed(shown, &e, line));
+            }
+        };
         // A name given twice would silently mean its first column.
         for (j, h) in header.iter().enumerate() {
             let h = h.trim();
@@ -197,7 +205,7 @@ pub fn load(
     if crate::parquet::is_parquet(path) {
         return load_parquet(path, shown, cols);
     }
-    read_table(Opened::new(path, shown, separator)?, shown, cols)
+    read_table(path, shown, separator, cols)
 }
 
 /// Reads the columns a recipe uses from a Parquet file, each column on
@@ -329,23 +337,15 @@ fn numeric_column(
     Ok(col)
 }
 
-/// Reads CSV text from `input` (shown as `shown` in messages), as [`load`]
-/// reads a file.
-pub fn load_from<R: std::io::Read>(
-    input: R,
+/// Reads the CSV file at `path`: its header through the `csv` crate,
+/// then the records after it in parallel blocks ([`blocks`]).
+fn read_table(
+    path: &Path,
     shown: &str,
     separator: char,
     cols: &Columns<'_>,
 ) -> Result<Table, RunError> {
-    read_table(Opened::from_reader(input, shown, separator)?, shown, cols)
-}
-
-fn read_table<R: std::io::Read>(
-    opened: Opened<R>,
-    shown: &str,
-    cols: &Columns<'_>,
-) -> Result<Table, RunError> {
-    let Opened { mut reader, header } = opened;
+    let Opened { reader, header } = Opened::new(path, shown, separator)?;
     let (key_at, num_at, text_at) = locate(&header, shown, cols)?;
     let mut table = Table {
         fields: num_at.iter().map(|i| i + 1).collect(),
@@ -355,9 +355,6 @@ fn read_table<R: std::io::Read>(
         numeric: vec![NumericColumn::default(); num_at.len()],
         text: vec![Vec::new(); text_at.len()],
     };
-    // Records are read in batches (the CSV syntax is sequential); each
-    // batch's fields are decoded in parallel, then appended in record
-    // order, the first problem in record order reported.
     let decoder = Decoder {
         shown,
         header: &header,
@@ -370,53 +367,139 @@ fn read_table<R: std::io::Read>(
             .map(|f| cols.kinds.get(f).map_or(Coder::Number, FeatureKind::coder))
             .collect(),
     };
-    let width = num_at.len().max(1);
-    let mut batch: Vec<csv::ByteRecord> = Vec::new();
-    let mut values = vec![0.0; BATCH * width];
-    let mut missing = vec![false; BATCH * width];
-    loop {
-        let mut filled = 0;
-        let mut fault = None;
-        while filled < BATCH {
-            if batch.len() == filled {
-                batch.push(csv::ByteRecord::new());
-            }
-            match reader.read_byte_record(&mut batch[filled]) {
-                Ok(true) => filled += 1,
-                Ok(false) => break,
-                Err(e) => {
-                    fault = Some(malformed(shown, &e));
-                    break;
-                }
-            }
-        }
-        let decoded: Vec<Result<Decoded, RunError>> = batch[..filled]
-            .par_iter()
-            .zip(values.par_chunks_mut(width))
-            .zip(missing.par_chunks_mut(width))
-            .map(|((record, v), m)| decoder.decode(record, v, m))
-            .collect();
-        for (j, row) in decoded.into_iter().enumerate() {
-            let row = row?;
-            for (f, col) in table.numeric.iter_mut().enumerate() {
-                let at = j * width + f;
-                col.push((!missing[at]).then_some(values[at]));
-            }
-            for (col, t) in table.text.iter_mut().zip(row.texts) {
-                col.push(t);
-            }
-            table.keys.push(&row.key);
-            table.lines.push(row.line);
-        }
-        if let Some(e) = fault {
-            return Err(e);
-        }
-        if filled < BATCH {
-            break;
-        }
-    }
+    let syntax = blocks::Syntax {
+        separator: separator as u8,
+        fields: header.len(),
+        shown,
+    };
+    let unreadable = |e: std::io::Error| RunError::Unreadable {
+        file: shown.to_string(),
+        reason: e.to_string(),
+    };
+    // The file's size, to make room for its records at once rather than
+    // growing (and copying) every column as they come.
+    let mut file = std::fs::File::open(path).map_err(unreadable)?;
+    let size = file.metadata().map_or(0, |m| m.len());
+    let mut take = |pieces: Vec<blocks::Piece<Rows>>| table.append(pieces, size);
+    // Read again from the start: the header's own bytes and the one after
+    // them, for the lines they end, then the records.
+    let mut head = vec![0; reader.position().byte() as usize];
+    let mut next = [0u8];
+    std::io::Read::read_exact(&mut file, &mut head).map_err(unreadable)?;
+    // A file whose header is all of it ends there.
+    let got = std::io::Read::read(&mut file, &mut next).map_err(unreadable)?;
+    let before = crate::csv_lines::lines_before(&head, (got == 1).then_some(next[0]));
+    std::io::Seek::seek(&mut file, std::io::SeekFrom::Start(head.len() as u64))
+        .map_err(unreadable)?;
+    blocks::read(file, before, &syntax, &decoder, &mut take)?;
     no_repeated_key(&table, &header, key_at, shown)?;
     Ok(table)
+}
+
+/// Records decoded together: their numbers (`missing` marks a blank),
+/// keys, lines and text fields by column.
+struct Rows {
+    values: Vec<f64>,
+    missing: Vec<bool>,
+    keys: Keys,
+    lines: Vec<u64>,
+    texts: Vec<Vec<String>>,
+}
+
+impl Table {
+    /// Appends the pieces' records in order; the first problem in record
+    /// order (a piece's own fault after its records). The first pieces
+    /// of a file of `size` bytes make room for as many records as the
+    /// file holds at their density.
+    fn append(&mut self, pieces: Vec<blocks::Piece<Rows>>, size: u64) -> Result<(), RunError> {
+        let width = self.numeric.len();
+        if self.lines.is_empty() {
+            let records: usize = pieces.iter().map(|p| p.out.lines.len()).sum();
+            let bytes: usize = pieces.iter().map(|p| p.bytes).sum();
+            if bytes > 0 {
+                let room = (records as f64 * size as f64 / bytes as f64 * 1.02) as usize;
+                self.reserve(room);
+            }
+        }
+        for piece in pieces {
+            let rows = piece.out;
+            self.numeric
+                .par_iter_mut()
+                .enumerate()
+                .for_each(|(f, col)| {
+                    let values = rows.values.iter().skip(f).step_by(width);
+                    let missing = rows.missing.iter().skip(f).step_by(width);
+                    col.values.extend(values);
+                    col.missing.extend(missing);
+                });
+            for (col, texts) in self.text.iter_mut().zip(rows.texts) {
+                col.extend(texts);
+            }
+            for key in rows.keys.iter() {
+                self.keys.push(key);
+            }
+            self.lines.extend(rows.lines);
+            if let Some(e) = piece.fault {
+                return Err(e);
+            }
+        }
+        Ok(())
+    }
+}
+
+impl Table {
+    fn reserve(&mut self, records: usize) {
+        for col in &mut self.numeric {
+            col.values.reserve(records);
+            col.missing.reserve(records);
+        }
+        self.text.iter_mut().for_each(|t| t.reserve(records));
+        self.lines.reserve(records);
+        self.keys.ends.reserve(records);
+    }
+}
+
+impl blocks::Decode for Decoder<'_> {
+    type Out = Rows;
+
+    fn start(&self) -> Rows {
+        Rows {
+            values: Vec::new(),
+            missing: Vec::new(),
+            keys: Keys::default(),
+            lines: Vec::new(),
+            texts: vec![Vec::new(); self.text_at.len()],
+        }
+    }
+
+    fn record(&self, rows: &mut Rows, record: &csv::ByteRecord, line: u64) -> Result<(), RunError> {
+        let at = rows.values.len();
+        rows.values.resize(at + self.num_at.len(), 0.0);
+        rows.missing.resize(at + self.num_at.len(), false);
+        let decoded = self.decode(
+            record,
+            line,
+            &mut rows.values[at..],
+            &mut rows.missing[at..],
+        );
+        let Decoded { key, texts, line } = match decoded {
+            Ok(d) => d,
+            Err(e) => {
+                rows.values.truncate(at);
+                rows.missing.truncate(at);
+                return Err(e);
+            }
+        };
+        match key {
+            Some(key) => rows.keys.push(key),
+            None => rows.keys.push(&line.to_string()),
+        }
+        rows.lines.push(line);
+        for (col, t) in rows.texts.iter_mut().zip(texts) {
+            col.push(t);
+        }
+        Ok(())
+    }
 }
 
 /// Where the key (none with `no key`), the numeric and the text columns
@@ -478,13 +561,11 @@ fn no_repeated_key(
     }
 }
 
-/// Records per batch of the reader.
-const BATCH: usize = 8_192;
-
 /// One record's fields, decoded: its key, text fields and line (numbers go
 /// to the batch's buffers).
-struct Decoded {
-    key: String,
+struct Decoded<'r> {
+    /// The key as written; none with `no key` (the line is the key).
+    key: Option<&'r str>,
     texts: Vec<String>,
     line: u64,
 }
@@ -506,13 +587,13 @@ impl Decoder<'_> {
     /// Decodes the fields the recipe uses, checking them in field order
     /// (key, numbers, texts) so the first problem is the one a person
     /// reading the line would meet first.
-    fn decode(
+    fn decode<'r>(
         &self,
-        record: &csv::ByteRecord,
+        record: &'r csv::ByteRecord,
+        line: u64,
         values: &mut [f64],
         missing: &mut [bool],
-    ) -> Result<Decoded, RunError> {
-        let line = record.position().map(|p| p.line()).unwrap_or(0);
+    ) -> Result<Decoded<'r>, RunError> {
         let place = |at: usize| Place {
             file: self.shown.to_string(),
             line,
@@ -540,9 +621,9 @@ impl Decoder<'_> {
                 if is_blank(key) {
                     return Err(RunError::BlankKey { place: place(at) });
                 }
-                key.to_string()
+                Some(key)
             }
-            None => line.to_string(),
+            None => None,
         };
         for (f, &at) in self.num_at.iter().enumerate() {
             let text = field(at)?;
@@ -586,9 +667,8 @@ pub(crate) fn not_a_level(kind: &FeatureKind, place: Place, text: &str) -> RunEr
     }
 }
 
-/// A CSV reading error as a located run error.
-pub(crate) fn malformed(file: &str, e: &csv::Error) -> RunError {
-    let line = e.position().map(|p| p.line()).unwrap_or(1);
+/// A CSV reading error, at `line`, as a located run error.
+pub(crate) fn malformed(file: &str, e: &csv::Error, line: u64) -> RunError {
     let reason = match e.kind() {
         csv::ErrorKind::UnequalLengths {
             expected_len, len, ..

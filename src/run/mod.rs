@@ -5,6 +5,7 @@
 //! Nothing is written here: [`crate::output`] turns the [`Outcome`] into
 //! tables and files, only once the whole run has succeeded.
 
+mod blocks;
 pub mod comparison;
 pub mod error;
 mod fit;

@@ -527,7 +527,6 @@ pub fn read_for_scoring(
         return parquet_for_scoring(path, shown, model);
     }
     let opened = super::load::Opened::new(path, shown, model.separator)?;
-    let malformed = |e: csv::Error| super::load::malformed(shown, &e);
     let index_of = |name: &str| {
         opened
             .position(name)
@@ -558,8 +557,12 @@ pub fn read_for_scoring(
         text: vec![Vec::new(); text_at.len()],
     };
     let mut record = csv::StringRecord::new();
-    while reader.read_record(&mut record).map_err(malformed)? {
-        let line = record.position().map_or(0, |p| p.line());
+    loop {
+        let line = match reader.read_record(&mut record) {
+            Ok(Some(line)) => line,
+            Ok(None) => break,
+            Err(e) => return Err(super::load::malformed(shown, &e, reader.line_of(&e))),
+        };
         let key = match key_at {
             Some(at) => record.get(at).unwrap_or("").to_string(),
             None => line.to_string(),

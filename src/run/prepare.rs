@@ -23,11 +23,13 @@
 //! (and, later, new records prepared the same way).
 
 use super::error::{Place, RunError};
+use super::load::NumericColumn;
 use super::load::Table;
 use crate::engine::stats;
 use crate::engine::weights::Weights;
 use crate::plan::{CategoryGaps, FeatureKind, MissingRule, Plan, Scale, Transform};
 use ndarray::Array2;
+use rayon::prelude::*;
 use serde::Serialize;
 
 /// How one feature was prepared.
@@ -131,24 +133,43 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
     let (kept, dropped_by, left_out) = drop_rows(plan, table);
     let weights = all_weights.map(|w| kept.iter().map(|&i| w[i]).collect::<Vec<f64>>());
     let w = weights.as_deref();
-    let mut params = plan
-        .features
-        .iter()
-        .enumerate()
+    // Features are summarised side by side; the first problem is the one
+    // of the first feature in recipe order, as one after another.
+    let mut params = (plan.features.par_iter().enumerate())
         .map(|(f, fp)| fill(plan, table, (&kept, w), f, fp))
+        .collect::<Vec<_>>()
+        .into_iter()
         .collect::<Result<Vec<_>, _>>()?;
     let (categories, codes) = encode_categories(plan, table, &kept)?;
     let width = plan.features.len();
     let total_width = width + categories.iter().map(|c| c.levels.len()).sum::<usize>();
+    (plan
+        .features
+        .par_iter()
+        .zip(params.par_iter_mut())
+        .enumerate())
+    .map(|(f, (fp, params))| feature_params(plan, table, (&kept, w), f, fp, params))
+    .collect::<Vec<_>>()
+    .into_iter()
+    .collect::<Result<Vec<()>, _>>()?;
     let mut matrix = Array2::zeros((kept.len(), total_width));
-    for (f, fp) in plan.features.iter().enumerate() {
-        // Written into the matrix one column at a time, so preparing
-        // never holds a second copy of every feature.
-        let v = prepare_feature(plan, table, (&kept, w), f, fp, &mut params[f])?;
-        for (r, x) in v.into_iter().enumerate() {
-            matrix[[r, f]] = x;
-        }
-    }
+    // Then written a block of records at a time, every feature of a record
+    // together, so preparing never holds a second copy of every feature.
+    let columns: Vec<(&NumericColumn, &FeatureParams, Transform)> = (table.numeric.iter())
+        .zip(&params)
+        .zip(&plan.features)
+        .map(|((col, p), fp)| (col, p, fp.transform))
+        .collect();
+    let all = (matrix.as_slice_mut()).expect("a new matrix is in standard (row-major) layout");
+    (all.par_chunks_mut(4096 * total_width.max(1)))
+        .zip(kept.par_chunks(4096))
+        .for_each(|(rows, kept)| {
+            for (row, &i) in rows.chunks_mut(total_width.max(1)).zip(kept) {
+                for (x, &(col, p, t)) in row.iter_mut().zip(&columns) {
+                    *x = prepared_value(col.get(i).or(p.fill).unwrap_or(0.0), p, t);
+                }
+            }
+        });
     let mut offset = width;
     for (cat, code) in categories.iter().zip(&codes) {
         for (r, &l) in code.iter().enumerate() {
@@ -265,8 +286,13 @@ fn fill(
     fp: &crate::plan::FeaturePlan,
 ) -> Result<FeatureParams, RunError> {
     let col = &table.numeric[f];
-    let present: Vec<f64> = kept.iter().filter_map(|&i| col.get(i)).collect();
-    let present_w: Option<Vec<f64>> = w.map(|w| {
+    // The values present, gathered only for a rule that fills from them.
+    let from_present = matches!(fp.missing, MissingRule::FillMedian | MissingRule::FillMean);
+    let present: Vec<f64> = match from_present {
+        true => kept.iter().filter_map(|&i| col.get(i)).collect(),
+        false => Vec::new(),
+    };
+    let present_w: Option<Vec<f64>> = w.filter(|_| from_present).map(|w| {
         (kept.iter().zip(w))
             .filter(|(&i, _)| col.get(i).is_some())
             .map(|(_, &w)| w)
@@ -289,10 +315,7 @@ fn fill(
         match (col.get(i), fill) {
             (Some(_), _) => {}
             (None, Some(_)) => filled += 1,
-            (None, None)
-                if present.is_empty()
-                    && matches!(fp.missing, MissingRule::FillMedian | MissingRule::FillMean) =>
-            {
+            (None, None) if present.is_empty() && from_present => {
                 return Err(RunError::NothingToFillFrom {
                     column: fp.column.clone(),
                 });
@@ -372,15 +395,16 @@ fn encode_categories(
 }
 
 /// Steps 2-5 for feature `f`: clip, transform, scale and weight its filled
-/// values, recording the parameters in `params`; its column of the matrix.
-fn prepare_feature(
+/// values, recording the parameters in `params` (the values are written
+/// into the matrix by [`prepared_value`], which gives the same bits).
+fn feature_params(
     plan: &Plan,
     table: &Table,
     (kept, w): KeptRows<'_>,
     f: usize,
     fp: &crate::plan::FeaturePlan,
     params: &mut FeatureParams,
-) -> Result<Vec<f64>, RunError> {
+) -> Result<(), RunError> {
     let mut v = original(table, kept, f, params.fill);
     if let Some((lo, hi)) = fp.clip {
         if let Some(&[a, b]) = quantiles(&v, w, &[lo, hi]).as_deref() {
@@ -398,24 +422,37 @@ fn prepare_feature(
     }
     let (centre, divisor) = scale_params(plan.scale, &v, w);
     let constant = divisor == 0.0;
-    let divisor = if constant { 1.0 } else { divisor };
-    let m = params.multiplier;
-    v.iter_mut().for_each(|x| {
-        *x = if constant {
-            0.0
-        } else {
-            (*x - centre) / divisor * m
-        }
-    });
+    params.centre = centre;
+    params.divisor = if constant { 1.0 } else { divisor };
+    params.constant = constant;
     // Values near the largest a number can hold (1e308) overflow the sums
     // of scaling; they would flatten the feature without a word.
-    if !(centre.is_finite() && divisor.is_finite()) || v.iter().any(|x| !x.is_finite()) {
+    let scaled = |x: f64| scale(x, params).is_finite();
+    if !(centre.is_finite() && divisor.is_finite() && v.iter().all(|&x| scaled(x))) {
         return Err(too_large_to_scale(plan, table, kept, f, params.fill));
     }
-    params.centre = centre;
-    params.divisor = divisor;
-    params.constant = constant;
-    Ok(v)
+    Ok(())
+}
+
+/// Step 4-5 for one transformed value.
+fn scale(x: f64, p: &FeatureParams) -> f64 {
+    if p.constant {
+        0.0
+    } else {
+        (x - p.centre) / p.divisor * p.multiplier
+    }
+}
+
+/// A filled value as the matrix holds it: clipped, transformed, scaled
+/// and weighted by the feature's parameters. [`feature_params`] has
+/// transformed every value of the feature, so none is outside the
+/// transform's domain here.
+fn prepared_value(x: f64, p: &FeatureParams, t: Transform) -> f64 {
+    let x = match p.clip {
+        Some((a, b)) => x.clamp(a, b),
+        None => x,
+    };
+    scale(transform(t, x).unwrap_or(f64::NAN), p)
 }
 
 /// The error for a feature whose values overflow scaling, located at its
