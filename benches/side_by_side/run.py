@@ -62,7 +62,37 @@ CASES = {
                     "k-medoids on Gower, k = 8, 3 restarts, 12 numbers + 4 categories (no general-purpose reference)"),
     "ward100k": (100_000, 10, "scale none\ntree linkage ward k 8\n", None, "Ward tree, cut at 8 (reference cannot hold the matrix)"),
     "single100k": (100_000, 10, "scale none\ntree linkage single k 8\n", None, "single-linkage tree, cut at 8 (reference cannot hold the matrix)"),
+    # The shipped demo recipe as it stands (k = 2..8, 50 restarts each, a
+    # category, tallies, names, rules, scoring SQL, hand-off, report) over
+    # its 6,000 rows repeated to 1,000,000 members with text keys.
+    "demo1m": (1_000_000, 8, None, None,
+               "the demo recipe over its rows repeated to 1,000,000 members: text keys, a category, tallies, every output"),
 }
+
+DEMO = ROOT / "recipes"
+
+
+def prepare_demo(name, n):
+    """The demo's data (and its planted segments) repeated to `n` members,
+    each key suffixed by its repetition, and the demo recipe pointed at
+    them, writing its outputs under out-<name>/."""
+    rows = (DEMO / "data" / "coop_members.csv").read_text().splitlines()
+    planted = (DEMO / "data" / "coop_members_planted.csv").read_text().splitlines()
+    for src, dst in ((rows, f"{name}.csv"), (planted, f"{name}_planted.csv")):
+        path = DATA / dst
+        if path.exists():
+            continue
+        body = src[1:]
+        with open(path, "w") as out:
+            out.write(src[0] + "\n")
+            for i in range(n):
+                key, rest = body[i % len(body)].split(",", 1)
+                out.write(f"{key}-{i // len(body)},{rest}\n")
+    recipe = (DEMO / "coop-members.assort").read_text()
+    recipe = recipe.replace('"data/coop_members.csv"', f'"{name}.csv"')
+    recipe = recipe.replace('"data/coop_members_planted.csv"', f'"{name}_planted.csv"')
+    recipe = recipe.replace('"out/', f'"out-{name}/')
+    (DATA / f"{name}.assort").write_text(recipe)
 
 
 def sh(cmd, **kw):
@@ -74,6 +104,9 @@ def prepare(cases):
     DATA.mkdir(parents=True, exist_ok=True)
     for name in cases:
         n, d = CASES[name][0], CASES[name][1]
+        if name.startswith("demo"):
+            prepare_demo(name, n)
+            continue
         cats = 4 if "categories" in CASES[name][2] else 0
         csv = DATA / (f"d{n}_{d}.csv" if cats == 0 else f"d{n}_{d}_c{cats}.csv")
         if not csv.exists():

@@ -186,6 +186,66 @@ pub fn kmeans_with(
     settings: &KMeansSettings,
     search: Search,
 ) -> Result<KMeansFit, EngineError> {
+    kmeans_spread(data, weights, settings, search, None)
+}
+
+/// The records' spread about their mean, which a fit's tolerance is
+/// relative to: the same for every k, so a sweep over millions of records
+/// computes it once ([`Spread::of`]) and passes it to
+/// [`kmeans_weighted_spread`] instead of two passes over the data per k.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Spread {
+    /// The records' summed weight, and their weighted mean squared
+    /// distance to their weighted mean.
+    total: f64,
+    spread: f64,
+}
+
+impl Spread {
+    /// O(n d), in record order.
+    pub fn of(data: ArrayView2<'_, f64>, w: Weights<'_>) -> Spread {
+        let (n, d) = data.dim();
+        match data.as_slice() {
+            Some(x) => Spread::of_rows(x, w, n, d),
+            None => Spread::of_rows(&data.iter().copied().collect::<Vec<f64>>(), w, n, d),
+        }
+    }
+
+    fn of_rows(x: &[f64], w: Weights<'_>, n: usize, d: usize) -> Spread {
+        let total = w.total(n);
+        let mut grand = vec![0.0; d];
+        for (i, row) in x.chunks_exact(d.max(1)).enumerate() {
+            for (g, v) in grand.iter_mut().zip(row) {
+                *g += w.at(i) * v;
+            }
+        }
+        grand.iter_mut().for_each(|g| *g /= total);
+        let spread: f64 = (x.chunks_exact(d.max(1)).enumerate())
+            .map(|(i, row)| w.at(i) * dist2(row, &grand))
+            .sum::<f64>()
+            / total;
+        Spread { total, spread }
+    }
+}
+
+/// [`kmeans_weighted`] with the data's [`Spread`] computed beforehand
+/// (the same fit, to the bit).
+pub fn kmeans_weighted_spread(
+    data: ArrayView2<'_, f64>,
+    weights: Weights<'_>,
+    settings: &KMeansSettings,
+    spread: &Spread,
+) -> Result<KMeansFit, EngineError> {
+    kmeans_spread(data, weights, settings, Search::Bounded, Some(spread))
+}
+
+fn kmeans_spread(
+    data: ArrayView2<'_, f64>,
+    weights: Weights<'_>,
+    settings: &KMeansSettings,
+    search: Search,
+    spread: Option<&Spread>,
+) -> Result<KMeansFit, EngineError> {
     let (n, d) = data.dim();
     let k = settings.k;
     if k == 0 {
@@ -205,7 +265,11 @@ pub fn kmeans_with(
             &owned
         }
     };
-    let problem = Problem::new(x, weights, n, d, settings, search);
+    let spread = match spread {
+        Some(s) => *s,
+        None => Spread::of_rows(x, weights, n, d),
+    };
+    let problem = Problem::new(x, weights, (n, d), settings, search, spread);
     if let Some(s) = settings.sample.filter(|&s| s < n) {
         return sampled::fit(&problem, s);
     }
@@ -390,33 +454,28 @@ impl<'a> Problem<'a> {
     fn new(
         x: &'a [f64],
         w: Weights<'a>,
-        n: usize,
-        d: usize,
+        (n, d): (usize, usize),
         settings: &'a KMeansSettings,
         search: Search,
+        spread: Spread,
     ) -> Self {
-        let total = w.total(n);
-        let mut grand = vec![0.0; d];
-        for (i, row) in x.chunks_exact(d).enumerate() {
-            for (g, v) in grand.iter_mut().zip(row) {
-                *g += w.at(i) * v;
-            }
-        }
-        grand.iter_mut().for_each(|g| *g /= total);
-        let spread: f64 = (x.chunks_exact(d).enumerate())
-            .map(|(i, row)| w.at(i) * dist2(row, &grand))
-            .sum::<f64>()
-            / total;
         Problem {
             x,
             w,
-            total,
+            total: spread.total,
             n,
             d,
             settings,
             search,
-            shift_limit: settings.tolerance * spread,
+            shift_limit: settings.tolerance * spread.spread,
         }
+    }
+
+    /// The problem over the records `x` (weights `w`), of the same width
+    /// and settings.
+    fn over(&self, x: &'a [f64], w: Weights<'a>, n: usize) -> Problem<'a> {
+        let spread = Spread::of_rows(x, w, n, self.d);
+        Problem::new(x, w, (n, self.d), self.settings, self.search, spread)
     }
 
     fn row(&self, i: usize) -> &[f64] {

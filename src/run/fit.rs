@@ -123,6 +123,8 @@ fn fit_kmeans(
     last: Option<&previous::PreviousRun>,
     progress: &dyn Fn(Step),
 ) -> Result<Vec<Candidate>, RunError> {
+    // The data's spread, for every k's tolerance, measured once.
+    let spread = kmeans::Spread::of(x, w);
     km.ks
         .iter()
         .enumerate()
@@ -143,7 +145,7 @@ fn fit_kmeans(
                 // Last run's centres start one more restart at its k.
                 start: last.filter(|l| l.k() == k).map(|l| l.start()),
             };
-            let fit = kmeans::kmeans_weighted(x, w, &settings)
+            let fit = kmeans::kmeans_weighted_spread(x, w, &settings, &spread)
                 .map_err(|source| engine_error(k, source))?;
             Ok(Candidate {
                 k,

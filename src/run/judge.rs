@@ -222,6 +222,8 @@ fn measure_each_k(
         per_segment_silhouette: Vec::with_capacity(candidates.len()),
         silhouette_values: Vec::with_capacity(candidates.len()),
     };
+    // The mean of every record, the same for every k.
+    let mut grand: Option<Vec<f64>> = None;
     for (i, c) in candidates.iter().enumerate() {
         progress(Step {
             what: "judging each k",
@@ -240,14 +242,16 @@ fn measure_each_k(
         let exact = plan.evidence.silhouette == SilhouetteMode::Exact;
         let draw = (plan.seed, SILHOUETTE_STREAM | k as u64);
         let sil = silhouette::silhouette_weighted(x, w, &c.labels, k, draw, exact);
+        let grand = grand.get_or_insert_with(|| criteria::grand_mean_weighted(x, w));
+        let judged = criteria::judged_weighted(x, w, &c.labels, k, grand);
         out.sweep.push(SweepRow {
             k,
-            within_ss: criteria::within_ss_weighted(x, w, &c.labels, k),
+            within_ss: judged.within_ss,
             silhouette: sil.mean,
             silhouette_evaluated: sil.evaluated,
             silhouette_se: sil.std_error,
-            calinski_harabasz: criteria::calinski_harabasz_weighted(x, w, &c.labels, k),
-            davies_bouldin: criteria::davies_bouldin_weighted(x, w, &c.labels, k),
+            calinski_harabasz: judged.calinski_harabasz,
+            davies_bouldin: judged.davies_bouldin,
             restarts: c.restarts.clone(),
             gap: None,
             stability: None,

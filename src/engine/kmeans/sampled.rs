@@ -62,7 +62,7 @@ pub(super) fn fit(whole: &Problem<'_>, s: usize) -> Result<super::KMeansFit, Eng
     }
     let weights = whole.w.select(&picked);
     let w = Weights::maybe(weights.as_deref());
-    let sample = Problem::new(&rows, w, s, d, settings, whole.search);
+    let sample = whole.over(&rows, w, s);
 
     // Every restart on the sample: its within-SS, its partition, its centres.
     let tried: Vec<(f64, u64, Vec<f64>)> = (0..settings.restarts)
