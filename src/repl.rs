@@ -75,6 +75,14 @@ fn piped(session: &mut Session, path: &Path, colour: bool, options: &CheckOption
     for line in stdin.lock().lines() {
         let Ok(line) = line else { break };
         if let Some(done) = gather(&mut pending, &line) {
+            // Piped input cannot be asked whether to let changes go.
+            if let (Some(target), true) = (opening(&done), session.unsaved()) {
+                println!(
+                    "not opened `{target}`: `{}` has unsaved changes; `:save` them first",
+                    session.path().display()
+                );
+                continue;
+            }
             if !handle(session, &mut path, &done, colour, options) {
                 warn_unsaved(session);
                 return 0;
@@ -136,7 +144,7 @@ fn interactive(session: &mut Session, path: &Path, colour: bool, options: &Check
                 continue;
             }
             Err(_) => {
-                if leave_asking(&mut editor, session) {
+                if let_go_asking(&mut editor, session, "leaving") {
                     break;
                 }
                 continue;
@@ -149,8 +157,14 @@ fn interactive(session: &mut Session, path: &Path, colour: bool, options: &Check
         for part in line.split('\n') {
             let part = part.strip_suffix('\r').unwrap_or(part);
             if let Some(done) = gather(&mut pending, part) {
+                if let Some(target) = opening(&done) {
+                    let what = format!("opening `{target}`");
+                    if !let_go_asking(&mut editor, session, &what) {
+                        continue;
+                    }
+                }
                 if !handle(session, &mut path, &done, colour, options)
-                    && leave_asking(&mut editor, session)
+                    && let_go_asking(&mut editor, session, "leaving")
                 {
                     leaving = true;
                     break;
@@ -170,18 +184,82 @@ fn interactive(session: &mut Session, path: &Path, colour: bool, options: &Check
     0
 }
 
-/// Whether to leave: at once when nothing would be lost, else after
-/// asking whether to save (`y`), leave without saving (`n`) or stay.
-fn leave_asking(
+/// `:help WORD`, or the general help with the session's commands.
+fn help_with_commands(word: Option<&str>) -> String {
+    if word.is_some() {
+        return help(word);
+    }
+    let mut s = help(None);
+    s.push_str("commands:\n");
+    for (c, h) in COMMANDS {
+        s.push_str(&format!("  {c:<12} {h}\n"));
+    }
+    s
+}
+
+/// `:save`: the recipe written to `target`, said plainly when it has
+/// errors.
+fn save(session: &mut Session, target: PathBuf) -> String {
+    match session.save(&target) {
+        Ok(()) if session.check().has_errors() => format!(
+            "saved {}; it has errors, which `:check` lists and `assort run` would refuse\n",
+            target.display()
+        ),
+        Ok(()) => format!("saved {}\n", target.display()),
+        Err(e) => format!("not saved: {e}\n"),
+    }
+}
+
+/// `:open`: the session starts over from the recipe at `p` (asked about
+/// unsaved changes before).
+fn open(session: &mut Session, path: &mut PathBuf, p: &str, options: &CheckOptions) -> String {
+    match Session::open(Path::new(p), options.clone()) {
+        Ok(s) => {
+            *session = s;
+            *path = PathBuf::from(p);
+            format!("opened {p}\n")
+        }
+        Err(e) => format!("cannot open `{p}`: {e}\n"),
+    }
+}
+
+/// The file a `:open` command names, if the input is one.
+fn opening(input: &str) -> Option<String> {
+    let command = input.trim().strip_prefix(':')?;
+    (command.split_whitespace().next() == Some("open"))
+        .then(|| path_argument(command))
+        .flatten()
+}
+
+/// The path after a command's name (`save`, `open`): the rest of the line,
+/// spaces and all, without the quotes it may be written in.
+fn path_argument(command: &str) -> Option<String> {
+    let name = command.split_whitespace().next()?;
+    let rest = command.trim_start()[name.len()..].trim();
+    let quoted = rest.len() >= 2 && rest.starts_with('"') && rest.ends_with('"');
+    let rest = if quoted {
+        &rest[1..rest.len() - 1]
+    } else {
+        rest
+    };
+    (!rest.is_empty()).then(|| rest.to_string())
+}
+
+/// Whether to go on with `what` (leaving, opening another recipe), which
+/// lets the session's statements go: at once when nothing would be lost,
+/// else after asking whether to save (`y`), go on without saving (`n`) or
+/// stay.
+fn let_go_asking(
     editor: &mut rustyline::Editor<Assist, rustyline::history::DefaultHistory>,
     session: &mut Session,
+    what: &str,
 ) -> bool {
     if !session.unsaved() {
         return true;
     }
     let path = session.path().to_path_buf();
     let question = format!(
-        "`{}` has unsaved changes: save them before leaving? [y]es, [n]o, anything else stays: ",
+        "`{}` has unsaved changes: save them before {what}? [y]es, [n]o, anything else stays: ",
         path.display()
     );
     match editor
@@ -265,35 +343,12 @@ fn handle(
                 }
             }
             "undo" => session.undo().map(|u| u + "\n").unwrap_or_else(|| "nothing to undo\n".into()),
-            "save" => {
-                let target = arg.map(PathBuf::from).unwrap_or_else(|| path.clone());
-                match session.save(&target) {
-                    Ok(()) => format!("saved {}\n", target.display()),
-                    Err(e) => format!("not saved: {e}\n"),
-                }
-            }
-            "open" => match arg {
-                Some(p) => match Session::open(Path::new(p), options.clone()) {
-                    Ok(s) => {
-                        *session = s;
-                        *path = PathBuf::from(p);
-                        format!("opened {p}\n")
-                    }
-                    Err(e) => format!("cannot open `{p}`: {e}\n"),
-                },
+            "save" => save(session, path_argument(command).map_or_else(|| path.clone(), PathBuf::from)),
+            "open" => match path_argument(command) {
+                Some(p) => open(session, path, &p, options),
                 None => "`:open FILE`\n".into(),
             },
-            "help" => match arg {
-                Some(w) => help(Some(w)),
-                None => {
-                    let mut s = help(None);
-                    s.push_str("commands:\n");
-                    for (c, h) in COMMANDS {
-                        s.push_str(&format!("  {c:<12} {h}\n"));
-                    }
-                    s
-                }
-            },
+            "help" => help_with_commands(arg),
             other => {
                 let names: Vec<&str> = COMMANDS.iter().map(|(c, _)| &c[1..]).collect();
                 match crate::check::suggest::nearest(other, names) {

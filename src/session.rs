@@ -163,14 +163,21 @@ impl Session {
             self.undo();
             return (Entered::Rejected, rendered);
         }
-        // A change can raise a warning at another statement (`choose` with
-        // one k left to fit): shown as `check` would show it.
+        // A change can raise a problem at another statement (`choose` with
+        // one k left to fit, columns a new `input` lacks): shown as
+        // `check` would show it, and an error there said plainly.
         let caused: Vec<diagnostic::Problem> = others
             .into_iter()
-            .filter(|p| !p.is_error() && !standing.contains(&problem_key(p)))
+            .filter(|p| !standing.contains(&problem_key(p)))
             .collect();
+        let broke = caused.iter().any(diagnostic::Problem::is_error);
         let shown: Vec<diagnostic::Problem> = mine.into_iter().chain(caused).collect();
-        let rendered = diagnostic::render(&shown, &source.name(), &source.text, colour);
+        let mut rendered = diagnostic::render(&shown, &source.name(), &source.text, colour);
+        if broke {
+            rendered.push_str(
+                "note: this statement is kept, but it leaves errors at other statements (above); `:undo` takes it back\n",
+            );
+        }
         let what = match (existing, &self.undo.last()) {
             (Some(_), Some(Undo::Replaced { old, .. })) if !check::single_statement(word) => {
                 Entered::Replaced(code_of(old).to_string())
@@ -322,9 +329,10 @@ impl Session {
         let folder =
             |p: &Path| check::paths::Sandbox::real_path(p.parent().unwrap_or(Path::new(".")));
         if folder(path) != folder(&self.path) {
+            let here = self.path.parent().filter(|p| !p.as_os_str().is_empty());
             return Err(format!(
-                "the recipe's paths are relative to `{}`; save it in that folder",
-                self.path.parent().unwrap_or(Path::new(".")).display()
+                "the recipe's paths are relative to its folder (`{}`); save it in that folder",
+                here.unwrap_or(Path::new(".")).display()
             ));
         }
         let file = crate::output::files::Rendered::plain(

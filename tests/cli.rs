@@ -1344,6 +1344,64 @@ fn a_session_run_says_it_wrote_nothing_and_run_write_writes_what_assort_run_writ
 }
 
 #[test]
+fn a_piped_session_does_not_open_another_recipe_over_unsaved_changes() {
+    let case = Case::empty();
+    case.write("other.assort", "seed 9\n");
+    let out = case
+        .assort_piped(
+            &["repl", "mine.assort"],
+            "seed 4\n:open other.assort\n:save\n:open other.assort\n:recipe\n:quit\n",
+        )
+        .ok()
+        .stdout();
+    assert!(
+        out.contains(
+            "not opened `other.assort`: `mine.assort` has unsaved changes; `:save` them first"
+        ),
+        "{out}"
+    );
+    assert!(out.contains("saved mine.assort"), "{out}");
+    assert!(out.contains("opened other.assort"), "{out}");
+    assert!(out.ends_with("seed 9\n"), "{out}");
+    assert_eq!(case.read("mine.assort"), "seed 4\n");
+}
+
+#[test]
+fn a_new_input_that_breaks_other_statements_says_so_and_saving_names_are_whole() {
+    let case = Case::empty();
+    case.write(
+        "a.csv",
+        "member_id,basket_value,share_fresh\nM1,1.5,0.2\nM2,3.5,0.4\n",
+    )
+    .write("b.csv", "member_id,visits\nM1,2\nM2,5\n");
+    let out = case
+        .assort_piped(
+            &["repl", "mine.assort"],
+            "input \"a.csv\" key member_id\nfeatures basket_value, share_fresh\n\
+             input \"b.csv\" key member_id\n:save my recipe.assort\n:save ../x.assort\n:quit\n",
+        )
+        .ok()
+        .stdout();
+    // The columns the new file lacks are named now, not at `:run`.
+    assert!(out.contains("no column `basket_value` in `b.csv`"), "{out}");
+    assert!(out.contains("no column `share_fresh` in `b.csv`"), "{out}");
+    assert!(
+        out.contains("it leaves errors at other statements (above); `:undo` takes it back"),
+        "{out}"
+    );
+    // A name with a space is one name; saving a broken recipe says so.
+    assert!(
+        out.contains("saved my recipe.assort; it has errors, which `:check` lists"),
+        "{out}"
+    );
+    assert!(case.path("my recipe.assort").exists());
+    assert!(
+        out.contains("the recipe's paths are relative to its folder (`.`)"),
+        "{out}"
+    );
+}
+
+#[test]
 fn a_session_explains_unknown_commands_and_helps() {
     let case = Case::empty();
     let out = case

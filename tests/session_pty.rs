@@ -330,3 +330,75 @@ fn an_ordered_column_entered_again_replaces_its_levels_and_is_saved() {
     assert!(!saved.contains("\"high\" < \"mid\""), "{saved}");
     assert!(saved.contains("flags news"), "{saved}");
 }
+
+#[test]
+fn lines_that_arrive_together_are_each_entered_without_bracketed_paste() {
+    let case = case();
+    let mut t = Terminal::start(&case, "new.assort");
+    t.wait_for_prompt("assort> ");
+    // Four statements in one write, as `tmux paste-buffer` without `-p`,
+    // GNU screen, a serial console or a typing tool sends them.
+    t.type_keys(
+        "input \"data/members.csv\" key member_id\rfeatures tenure_months\rkmeans k 2\rseed 3\r",
+    );
+    // Then keys typed ahead while the session is busy with those, each
+    // written without waiting for a prompt.
+    t.type_keys("scale none\r");
+    t.type_keys("choose k by silhouette\r");
+    t.type_keys(":save\r");
+    t.wait_for("saved new.assort");
+    t.wait_for_prompt("assort> ");
+    t.type_keys(":quit\r");
+    assert!(t.finish().success());
+    let saved = case.read("new.assort");
+    for line in [
+        "input \"data/members.csv\" key member_id",
+        "features tenure_months",
+        "kmeans k 2",
+        "seed 3",
+        "scale none",
+        "choose k by silhouette",
+    ] {
+        assert!(saved.contains(line), "`{line}` was lost:\n{saved}");
+    }
+}
+
+#[test]
+fn opening_another_recipe_with_unsaved_changes_asks_first() {
+    let case = case();
+    case.write(
+        "other.assort",
+        "input \"data/members.csv\" key member_id\nseed 9\n",
+    );
+    let mut t = Terminal::start(&case, "new.assort");
+    t.wait_for_prompt("assort> ");
+    t.type_keys("input \"data/members.csv\" key member_id\r");
+    t.wait_for_prompt("assort> ");
+    t.type_keys("features tenure_months\r");
+    t.wait_for_prompt("assort> ");
+    // Anything but y or n stays, with the statements.
+    t.type_keys(":open other.assort\r");
+    t.wait_for_prompt("save them before opening `other.assort`?");
+    t.type_keys("c\r");
+    t.wait_for("still here");
+    t.wait_for_prompt("assort> ");
+    // `y` saves them, then opens.
+    t.type_keys(":open other.assort\r");
+    t.wait_for_prompt("save them before opening `other.assort`?");
+    t.type_keys("y\r");
+    t.wait_for("saved new.assort");
+    t.wait_for("opened other.assort");
+    t.wait_for_prompt("assort> ");
+    // The recipe opened has nothing unsaved: leaving asks nothing.
+    t.type_keys(":quit\r");
+    assert!(t.finish().success());
+    let saved = case.read("new.assort");
+    assert!(
+        saved.contains("features tenure_months"),
+        "not saved:\n{saved}"
+    );
+    assert_eq!(
+        case.read("other.assort"),
+        "input \"data/members.csv\" key member_id\nseed 9\n"
+    );
+}

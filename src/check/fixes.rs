@@ -135,15 +135,36 @@ fn input_option(problem: &Problem, text: &str) -> Option<Fix> {
 }
 
 /// A text column listed among the features, moved to a `categories`
-/// statement of its own.
+/// statement of its own; the only feature, the `features` statement
+/// becomes `features all` and that `categories` statement.
 fn move_to_categories(text: &str, column: &str, span: Span) -> Vec<Fix> {
-    let mut fix = add_line(
-        text,
-        span.start,
-        &format!("categories {}", super::complete::written_column(column)),
-    );
-    fix.title = format!("move `{column}` to `categories`");
-    fix.edits.insert(0, (list_item(text, span), String::new()));
+    let line = format!("categories {}", super::complete::written_column(column));
+    let title = format!("move `{column}` to `categories`");
+    let outline = super::outline(text);
+    let Some(statement) = (outline.statements.iter())
+        .find(|(word, s)| word == "features" && s.start <= span.start && span.end <= s.end)
+        .map(|(_, s)| *s)
+    else {
+        return Vec::new();
+    };
+    let items: Vec<Span> = (outline.columns.iter())
+        .map(|(_, s)| *s)
+        .filter(|s| statement.start <= s.start && s.end <= statement.end)
+        .collect();
+    // The only feature: a recipe needs one, so the numbers come in with
+    // `features all` (the title says so).
+    if items.len() == 1 {
+        return vec![Fix::one(
+            format!("{title}, clustering on every numeric column (`features all`)"),
+            statement,
+            format!("features all\n{line}"),
+        )];
+    }
+    let mut fix = add_line(text, span.start, &line);
+    fix.title = title;
+    let mut edits = list_item(text, &items, span);
+    edits.append(&mut fix.edits);
+    fix.edits = edits;
     vec![fix]
 }
 
@@ -163,20 +184,46 @@ fn add_feature(text: &str, column: &str) -> Vec<Fix> {
     )]
 }
 
-/// The span of a list item with the comma and blanks that tie it to its
-/// neighbour, so removing it leaves a well-formed list.
-fn list_item(text: &str, item: Span) -> Span {
-    let after = &text[item.end..];
-    let trailing = after.len() - after.trim_start_matches([' ', '\t']).len();
-    if after[trailing..].starts_with(',') {
-        let rest = &after[trailing + 1..];
-        let blanks = rest.len() - rest.trim_start_matches([' ', '\t']).len();
-        return Span::new(item.start, item.end + trailing + 1 + blanks);
+/// The deletions that take `item` out of a list of two or more `items`
+/// (in order) and leave a well-formed list, however it is laid out: an
+/// item before another goes with everything up to the next (its comma, a
+/// comment after it, the line break and indent); the last goes with the
+/// comma before it, and with its line when it starts one, a comment
+/// between them staying on the line above.
+fn list_item(text: &str, items: &[Span], item: Span) -> Vec<(Span, String)> {
+    let Some(at) = items.iter().position(|s| *s == item) else {
+        return vec![(item, String::new())];
+    };
+    if let Some(next) = items.get(at + 1) {
+        return vec![(Span::new(item.start, next.start), String::new())];
     }
-    let before = text[..item.start].trim_end_matches([' ', '\t']);
-    match before.strip_suffix(',') {
-        Some(kept) => Span::new(kept.trim_end_matches([' ', '\t']).len(), item.end),
-        None => item,
+    let Some(previous) = at.checked_sub(1).map(|p| items[p]) else {
+        return vec![(item, String::new())];
+    };
+    // The comma after the previous item: the first `,` outside a comment.
+    let between = &text[previous.end..item.start];
+    let mut comma = None;
+    let mut in_comment = false;
+    for (i, c) in between.char_indices() {
+        match c {
+            '#' => in_comment = true,
+            '\n' => in_comment = false,
+            ',' if !in_comment => {
+                comma = Some(previous.end + i);
+                break;
+            }
+            _ => {}
+        }
+    }
+    let Some(comma) = comma else {
+        return vec![(Span::new(previous.end, item.end), String::new())];
+    };
+    match text[comma..item.start].rfind('\n') {
+        Some(nl) => vec![
+            (Span::new(comma, comma + 1), String::new()),
+            (Span::new(comma + nl, item.end), String::new()),
+        ],
+        None => vec![(Span::new(comma, item.end), String::new())],
     }
 }
 
@@ -218,19 +265,43 @@ mod tests {
         assert_eq!(suggestion_in("criteria are a, b"), None);
     }
 
+    /// `text` with `word` (a whole list item) taken out of its list.
+    fn cut(text: &str, word: &str) -> String {
+        let items: Vec<Span> = (crate::check::outline(text).columns.iter())
+            .map(|(_, s)| *s)
+            .collect();
+        let item = *items
+            .iter()
+            .find(|s| &text[s.start..s.end] == word)
+            .unwrap();
+        let mut edits = list_item(text, &items, item);
+        edits.sort_by_key(|(s, _)| std::cmp::Reverse(s.start));
+        let mut out = text.to_string();
+        for (s, new) in edits {
+            out.replace_range(s.start..s.end, &new);
+        }
+        out
+    }
+
     #[test]
     fn a_list_item_goes_with_the_comma_that_ties_it() {
         let text = "features a, b, c\n";
-        let at = |w: &str| {
-            let s = text.find(&format!(" {w}")).unwrap() + 1;
-            Span::new(s, s + w.len())
-        };
-        let cut = |w: &str| {
-            let s = list_item(text, at(w));
-            format!("{}{}", &text[..s.start], &text[s.end..])
-        };
-        assert_eq!(cut("a"), "features b, c\n");
-        assert_eq!(cut("b"), "features a, c\n");
-        assert_eq!(cut("c"), "features a, b\n");
+        assert_eq!(cut(text, "a"), "features b, c\n");
+        assert_eq!(cut(text, "b"), "features a, c\n");
+        assert_eq!(cut(text, "c"), "features a, b\n");
+    }
+
+    #[test]
+    fn a_list_item_leaves_a_list_laid_out_over_lines_well_formed() {
+        let text = "features a,\n         b,  # the middle one\n         c\nscale none\n";
+        assert_eq!(
+            cut(text, "a"),
+            "features b,  # the middle one\n         c\nscale none\n"
+        );
+        assert_eq!(cut(text, "b"), "features a,\n         c\nscale none\n");
+        assert_eq!(
+            cut(text, "c"),
+            "features a,\n         b  # the middle one\nscale none\n"
+        );
     }
 }
