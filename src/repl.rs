@@ -105,10 +105,15 @@ fn warn_unsaved(session: &Session) {
 }
 
 fn interactive(session: &mut Session, path: &Path, colour: bool, options: &CheckOptions) -> i32 {
-    let mut editor = match rustyline::Editor::<Assist, rustyline::history::DefaultHistory>::new() {
-        Ok(e) => e,
-        Err(_) => return piped(session, path, colour, options),
-    };
+    // Tab completes what all candidates share, a second Tab lists them.
+    let config = rustyline::Config::builder()
+        .completion_type(rustyline::CompletionType::List)
+        .build();
+    let mut editor =
+        match rustyline::Editor::<Assist, rustyline::history::DefaultHistory>::with_config(config) {
+            Ok(e) => e,
+            Err(_) => return piped(session, path, colour, options),
+        };
     editor.set_helper(Some(Assist::of(session, "")));
     let history = std::env::var_os("HOME").map(|h| PathBuf::from(h).join(".assort_history"));
     if let Some(h) = &history {
@@ -434,9 +439,12 @@ struct Assist {
     columns: Vec<crate::check::probe::ColumnInfo>,
     sampled: usize,
     key: Option<String>,
+    elsewhere: Vec<String>,
     folder: PathBuf,
     /// The lines of a statement being continued, before this one.
     pending: String,
+    /// Whether hints are shown dimmed (a terminal, `NO_COLOR` unset).
+    dim: bool,
 }
 
 impl Assist {
@@ -451,8 +459,10 @@ impl Assist {
             columns: checked.column_info,
             sampled: checked.sampled,
             key: complete::key_of(&session.text()),
+            elsewhere: complete::used_elsewhere(&session.text()),
             folder: folder.to_path_buf(),
             pending: pending.to_string(),
+            dim: std::io::stdout().is_terminal() && std::env::var_os("NO_COLOR").is_none(),
         }
     }
 }
@@ -478,6 +488,7 @@ impl Completer for Assist {
             sampled: self.sampled,
             key: self.key.as_deref(),
             folder: &self.folder,
+            elsewhere: &self.elsewhere,
         };
         let found = complete::complete(&before, &data);
         let start = found.start.saturating_sub(lead.len());
@@ -509,6 +520,16 @@ impl Hinter for Assist {
     }
 }
 
-impl Highlighter for Assist {}
+impl Highlighter for Assist {
+    /// A hint is an example, not typed text: dimmed, so Enter on it is
+    /// not mistaken for entering it (Right arrow takes it).
+    fn highlight_hint<'h>(&self, hint: &'h str) -> std::borrow::Cow<'h, str> {
+        if self.dim {
+            format!("\x1b[2m{hint}\x1b[0m").into()
+        } else {
+            hint.into()
+        }
+    }
+}
 impl Validator for Assist {}
 impl Helper for Assist {}

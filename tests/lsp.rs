@@ -625,6 +625,53 @@ fn a_tree_over_too_many_records_gets_micro_500_as_a_fix() {
 }
 
 #[test]
+fn a_data_file_changed_on_disk_is_checked_again_while_the_client_keeps_asking() {
+    // A client that does not watch files and sends a request every half
+    // second: the server never has two quiet seconds, and before it looked
+    // only then, so the change was never seen.
+    let dir = small_case();
+    let uri = uri_of(&dir, "busy.assort");
+    let text = "input \"members.csv\" key member_id\nfeatures visits_per_month, basket_value\nmissing fill median\nkmeans k 2\n";
+    let mut s = Server::start();
+    open(&mut s, &uri, text);
+    assert!(s.diagnostics(&uri).is_empty());
+    let csv = std::fs::read_to_string(dir.path().join("members.csv")).unwrap();
+    std::fs::write(
+        dir.path().join("members.csv"),
+        csv.replacen("basket_value", "basket_total", 1),
+    )
+    .unwrap();
+    let changed = std::time::Instant::now();
+    let mut seen = None;
+    for id in 1000..1020 {
+        s.send(
+            json!({"jsonrpc": "2.0", "id": id, "method": "textDocument/hover",
+            "params": {"textDocument": {"uri": uri}, "position": pos(text, "kmeans", 1)}}),
+        );
+        let until = std::time::Instant::now() + Duration::from_millis(500);
+        while let Some(left) = until.checked_duration_since(std::time::Instant::now()) {
+            let Ok(m) = s.messages.recv_timeout(left) else {
+                break;
+            };
+            let renamed = m["method"] == "textDocument/publishDiagnostics"
+                && m["params"]["diagnostics"]
+                    .to_string()
+                    .contains("basket_value");
+            if renamed && seen.is_none() {
+                seen = Some(changed.elapsed());
+            }
+        }
+        if seen.is_some() {
+            break;
+        }
+    }
+    let seen = seen.expect("the change was never checked while the client kept asking");
+    // The server looks every second; 5 s leaves room for a busy machine.
+    assert!(seen < Duration::from_secs(5), "{seen:?}");
+    s.stop();
+}
+
+#[test]
 fn a_data_file_changed_on_disk_is_checked_again_without_a_keystroke() {
     let dir = small_case();
     let uri = uri_of(&dir, "follow.assort");

@@ -24,6 +24,9 @@ pub struct DataView<'a> {
     pub key: Option<&'a str>,
     /// The folder the recipe's paths are relative to.
     pub folder: &'a Path,
+    /// Columns other statements already use (tallied, categories, the
+    /// weight column), which the checker refuses as features.
+    pub elsewhere: &'a [String],
 }
 
 /// What an item is, for an editor's icon.
@@ -80,6 +83,23 @@ pub fn key_of(recipe: &str) -> Option<String> {
                 }),
             _ => None,
         })
+}
+
+/// The columns a recipe tallies, takes as categories or as its records'
+/// weights: never offered as features, which the checker would refuse.
+pub fn used_elsewhere(recipe: &str) -> Vec<String> {
+    use crate::syntax::ast::StatementKind;
+    crate::syntax::parse(recipe)
+        .statements
+        .into_iter()
+        .flat_map(|s| match s.kind {
+            StatementKind::Tally { columns } | StatementKind::Categories { columns, .. } => {
+                columns.into_iter().map(|c| c.node).collect()
+            }
+            StatementKind::Represents { column } => vec![column.node],
+            _ => Vec::new(),
+        })
+        .collect()
 }
 
 /// A piece of the statement before the cursor.
@@ -329,6 +349,12 @@ fn options(
     if opts.len() % 2 == 1 {
         let name = prev.unwrap_or("");
         return match name {
+            // The key of the file being named, from its header (the
+            // recipe's columns while it cannot be read).
+            "key" if statement == "input" => match header_columns(toks, data) {
+                none if none.is_empty() => columns(data, Wanted::Any, &[]),
+                named => named,
+            },
             "key" | "column" => columns(data, Wanted::Any, &[]),
             "assignments" => quoted_paths(statement, toks, data),
             _ => words(statement, Some(name)),
@@ -373,6 +399,7 @@ fn columns(data: &DataView<'_>, wanted: Wanted, listed: &[&str]) -> Vec<Item> {
     data.columns
         .iter()
         .filter(|c| !listed.contains(&c.name.as_str()))
+        .filter(|c| wanted != Wanted::Numeric || !data.elsewhere.contains(&c.name))
         .filter(|c| match wanted {
             Wanted::Numeric => c.kind == ColumnKind::Numeric && !is_key(c),
             Wanted::Text => c.kind == ColumnKind::Text && !is_key(c),
@@ -383,6 +410,44 @@ fn columns(data: &DataView<'_>, wanted: Wanted, listed: &[&str]) -> Vec<Item> {
             insert: written_column(&c.name),
             kind: ItemKind::Column,
             detail: column_detail(c, data.sampled),
+        })
+        .collect()
+}
+
+/// The columns of the file an `input` statement being typed names (its
+/// first quoted word, relative to the recipe's folder), from its header.
+fn header_columns(toks: &[Placed<'_>], data: &DataView<'_>) -> Vec<Item> {
+    let Some(path) = toks.iter().find_map(|(_, t)| match t {
+        Token::Quoted(p) => Some(*p),
+        _ => None,
+    }) else {
+        return Vec::new();
+    };
+    let file = data.folder.join(path);
+    let names: Vec<String> = match crate::parquet::is_parquet(&file) {
+        true => crate::check::probe::probe(&file, b',', crate::check::probe::DecimalMark::Point)
+            .map(|p| p.columns.into_iter().map(|c| c.name).collect())
+            .unwrap_or_default(),
+        false => std::fs::File::open(&file)
+            .ok()
+            .and_then(|f| {
+                csv::ReaderBuilder::new()
+                    .flexible(true)
+                    .from_reader(f)
+                    .headers()
+                    .ok()
+                    .cloned()
+            })
+            .map(|h| h.iter().map(|n| n.trim().to_string()).collect())
+            .unwrap_or_default(),
+    };
+    names
+        .into_iter()
+        .map(|name: String| Item {
+            insert: written_column(&name),
+            label: name,
+            kind: ItemKind::Column,
+            detail: format!("a column of `{path}`"),
         })
         .collect()
 }

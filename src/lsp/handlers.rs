@@ -142,6 +142,7 @@ pub fn completion(ctx: &Context<'_>, p: Position) -> Vec<CompletionItem> {
         sampled: checked.sampled,
         key: key.as_deref(),
         folder,
+        elsewhere: &complete::used_elsewhere(ctx.text),
     };
     let found = complete::complete(before, &data);
     let range = index.range(start + found.start, offset);

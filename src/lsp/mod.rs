@@ -24,11 +24,12 @@ use lsp_types::{
 use serde_json::{json, Value};
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
-use std::time::{Duration, SystemTime};
+use std::time::{Duration, Instant, SystemTime};
 
 /// How often the data files of open recipes are looked at, for clients
-/// that do not watch files for the server.
-const DATA_POLL: Duration = Duration::from_secs(2);
+/// that do not watch files for the server: on a clock, however busy the
+/// client is, so a change is seen within this and one check.
+const DATA_POLL: Duration = Duration::from_secs(1);
 
 /// A file's size and modification time, to notice that it changed.
 type Stamp = Option<(u64, Option<SystemTime>)>;
@@ -151,17 +152,25 @@ fn watch_data_files(connection: &Connection) -> Result<(), String> {
 
 fn main_loop(connection: &Connection, store: &mut Store) -> Result<(), String> {
     let send = |m: Message| connection.sender.send(m).map_err(|e| e.to_string());
+    let mut next_look = Instant::now() + DATA_POLL;
     loop {
-        let message = match connection.receiver.recv_timeout(DATA_POLL) {
-            Ok(m) => m,
-            Err(e) if e.is_timeout() => {
-                // The fallback for clients that do not watch files.
-                for uri in store.changed_data() {
-                    send(Message::Notification(publish(store, &uri)))?;
-                }
-                continue;
-            }
+        let wait = next_look.saturating_duration_since(Instant::now());
+        let message = match connection.receiver.recv_timeout(wait) {
+            Ok(m) => Some(m),
+            Err(e) if e.is_timeout() => None,
             Err(_) => return Ok(()),
+        };
+        // The fallback for clients that do not watch files, on time even
+        // while messages keep coming (a hover every second would otherwise
+        // never leave the server a quiet moment to look).
+        if Instant::now() >= next_look {
+            for uri in store.changed_data() {
+                send(Message::Notification(publish(store, &uri)))?;
+            }
+            next_look = Instant::now() + DATA_POLL;
+        }
+        let Some(message) = message else {
+            continue;
         };
         match message {
             Message::Request(req) => {

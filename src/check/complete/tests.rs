@@ -38,6 +38,7 @@ fn with_folder(before: &str, folder: &Path) -> Completion {
         sampled: 2,
         key: Some("member_id"),
         folder,
+        elsewhere: &[],
     };
     complete(before, &data)
 }
@@ -186,4 +187,35 @@ fn tally_and_call_offer_columns_then_options() {
         labels("call basket_value \"basket\" as "),
         ["count", "money", "number", "percent"]
     );
+}
+
+#[test]
+fn features_leave_out_columns_other_statements_use() {
+    let columns = sample();
+    let elsewhere = used_elsewhere("tally basket_value\nrepresents \"spend + tips\"\n");
+    let data = DataView {
+        columns: &columns,
+        sampled: 2,
+        key: Some("member_id"),
+        folder: Path::new("/nonexistent"),
+        elsewhere: &elsewhere,
+    };
+    let offered: Vec<String> = (complete("features ", &data).items.into_iter())
+        .map(|i| i.label)
+        .collect();
+    assert_eq!(offered, ["all", "visits_per_month"]);
+}
+
+#[test]
+fn the_key_of_an_input_being_typed_is_offered_from_that_files_header() {
+    let dir = std::env::temp_dir().join(format!("assort-key-{}", std::process::id()));
+    std::fs::create_dir_all(dir.join("data")).unwrap();
+    std::fs::write(dir.join("data/m.csv"), "member_id,visits\nM1,3\n").unwrap();
+    let found: Vec<String> = with_folder("input \"data/m.csv\" key ", &dir)
+        .items
+        .into_iter()
+        .map(|i| i.label)
+        .collect();
+    std::fs::remove_dir_all(&dir).unwrap();
+    assert_eq!(found, ["member_id", "visits"]);
 }
