@@ -104,16 +104,21 @@ fn warn_unsaved(session: &Session) {
     }
 }
 
-fn interactive(session: &mut Session, path: &Path, colour: bool, options: &CheckOptions) -> i32 {
-    // Tab completes what all candidates share, a second Tab lists them.
+type LineEditor = rustyline::Editor<Assist, rustyline::history::DefaultHistory>;
+
+/// The line editor: Tab completes what all candidates share, a second
+/// Tab lists them.
+fn line_editor() -> Option<LineEditor> {
     let config = rustyline::Config::builder()
         .completion_type(rustyline::CompletionType::List)
         .build();
-    let mut editor =
-        match rustyline::Editor::<Assist, rustyline::history::DefaultHistory>::with_config(config) {
-            Ok(e) => e,
-            Err(_) => return piped(session, path, colour, options),
-        };
+    LineEditor::with_config(config).ok()
+}
+
+fn interactive(session: &mut Session, path: &Path, colour: bool, options: &CheckOptions) -> i32 {
+    let Some(mut editor) = line_editor() else {
+        return piped(session, path, colour, options);
+    };
     editor.set_helper(Some(Assist::of(session, "")));
     let history = std::env::var_os("HOME").map(|h| PathBuf::from(h).join(".assort_history"));
     if let Some(h) = &history {
@@ -254,11 +259,7 @@ fn path_argument(command: &str) -> Option<String> {
 /// lets the session's statements go: at once when nothing would be lost,
 /// else after asking whether to save (`y`), go on without saving (`n`) or
 /// stay.
-fn let_go_asking(
-    editor: &mut rustyline::Editor<Assist, rustyline::history::DefaultHistory>,
-    session: &mut Session,
-    what: &str,
-) -> bool {
+fn let_go_asking(editor: &mut LineEditor, session: &mut Session, what: &str) -> bool {
     if !session.unsaved() {
         return true;
     }

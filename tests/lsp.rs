@@ -624,6 +624,23 @@ fn a_tree_over_too_many_records_gets_micro_500_as_a_fix() {
     s.stop();
 }
 
+/// A recipe over `members.csv` that uses its `basket_value` column.
+const FOLLOWED: &str = "input \"members.csv\" key member_id\nfeatures visits_per_month, basket_value\nmissing fill median\nkmeans k 2\n";
+
+/// Opens [`FOLLOWED`] at `uri` (it checks clean), then renames
+/// `basket_value` in the data file on disk; the file as it was.
+fn open_then_rename_a_column(s: &mut Server, dir: &tempfile::TempDir, uri: &str) -> String {
+    open(s, uri, FOLLOWED);
+    assert!(s.diagnostics(uri).is_empty());
+    let csv = std::fs::read_to_string(dir.path().join("members.csv")).unwrap();
+    std::fs::write(
+        dir.path().join("members.csv"),
+        csv.replacen("basket_value", "basket_total", 1),
+    )
+    .unwrap();
+    csv
+}
+
 #[test]
 fn a_data_file_changed_on_disk_is_checked_again_while_the_client_keeps_asking() {
     // A client that does not watch files and sends a request every half
@@ -631,16 +648,9 @@ fn a_data_file_changed_on_disk_is_checked_again_while_the_client_keeps_asking() 
     // only then, so the change was never seen.
     let dir = small_case();
     let uri = uri_of(&dir, "busy.assort");
-    let text = "input \"members.csv\" key member_id\nfeatures visits_per_month, basket_value\nmissing fill median\nkmeans k 2\n";
+    let text = FOLLOWED;
     let mut s = Server::start();
-    open(&mut s, &uri, text);
-    assert!(s.diagnostics(&uri).is_empty());
-    let csv = std::fs::read_to_string(dir.path().join("members.csv")).unwrap();
-    std::fs::write(
-        dir.path().join("members.csv"),
-        csv.replacen("basket_value", "basket_total", 1),
-    )
-    .unwrap();
+    open_then_rename_a_column(&mut s, &dir, &uri);
     let changed = std::time::Instant::now();
     let mut seen = None;
     for id in 1000..1020 {
@@ -675,17 +685,10 @@ fn a_data_file_changed_on_disk_is_checked_again_while_the_client_keeps_asking() 
 fn a_data_file_changed_on_disk_is_checked_again_without_a_keystroke() {
     let dir = small_case();
     let uri = uri_of(&dir, "follow.assort");
-    let text = "input \"members.csv\" key member_id\nfeatures visits_per_month, basket_value\nmissing fill median\nkmeans k 2\n";
+    let text = FOLLOWED;
     // A client that does not watch files: the server looks by itself.
     let mut s = Server::start();
-    open(&mut s, &uri, text);
-    assert!(s.diagnostics(&uri).is_empty());
-    let csv = std::fs::read_to_string(dir.path().join("members.csv")).unwrap();
-    std::fs::write(
-        dir.path().join("members.csv"),
-        csv.replacen("basket_value", "basket_total", 1),
-    )
-    .unwrap();
+    let csv = open_then_rename_a_column(&mut s, &dir, &uri);
     let diags = s.diagnostics(&uri);
     assert!(
         diags.iter().any(|d| d["code"] == "assort::unknown_column"
