@@ -371,6 +371,9 @@ fn handle(
     let word = trimmed.split_whitespace().next().unwrap_or("");
     let note = match what {
         Entered::Added | Entered::Nothing => None,
+        Entered::Unchanged => Some(format!(
+            "the same `{word}` is in the recipe already; nothing changed"
+        )),
         Entered::Replaced(w) => Some(format!("replaced the earlier `{w}`")),
         Entered::Rejected => Some(format!("not kept: the `{word}` statement has an error")),
     };

@@ -48,6 +48,9 @@ pub enum Entered {
     Rejected,
     /// A blank or comment line: nothing to do.
     Nothing,
+    /// The same statement, word for word, is in the recipe already (a
+    /// paste recalled from the history): nothing changed.
+    Unchanged,
 }
 
 impl Session {
@@ -118,6 +121,9 @@ impl Session {
             return (Entered::Nothing, String::new());
         }
         let word = statement.split_whitespace().next().unwrap_or("");
+        if (self.statements.iter()).any(|s| statement_words(s) == statement_words(statement)) {
+            return (Entered::Unchanged, String::new());
+        }
         // Warnings already standing are not news; new ones elsewhere are.
         let standing: Vec<String> = self.check().problems.iter().map(problem_key).collect();
         // A statement given once per recipe, per segment (`label 3`) or per
@@ -385,6 +391,15 @@ fn words_of(statement: &str) -> impl Iterator<Item = &str> {
         .unwrap_or("")
         .split(|c: char| c.is_whitespace() || c == ',')
         .filter(|w| !w.is_empty())
+}
+
+/// The words of a statement entry over all its lines, comment lines and
+/// trailing comments aside.
+fn statement_words(entry: &str) -> Vec<&str> {
+    (entry.lines())
+        .filter(|l| !l.trim_start().starts_with('#'))
+        .flat_map(words_of)
+        .collect()
 }
 
 /// A problem by its code and message, to tell standing ones from new.

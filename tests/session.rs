@@ -218,3 +218,30 @@ fn a_weight_transform_or_missing_rule_for_the_same_columns_is_replaced_by_enteri
         Entered::Replaced("transform basket_value clip 0..0.99".into())
     );
 }
+
+#[test]
+fn a_statement_entered_again_word_for_word_changes_nothing() {
+    // A paste recalled from the history enters every statement again: a
+    // `tally` or a `save` already there is neither refused as a second use
+    // of its columns nor counted as a second output to the same file.
+    let mut s = demo_folder_session();
+    for line in [
+        "input \"data/coop_members.csv\" key member_id",
+        "tally spend_12m",
+        "save assignments \"out/a.csv\"",
+        "features visits_per_month,\n         basket_value",
+    ] {
+        assert_ne!(s.enter(line, false).0, Entered::Rejected, "{line}");
+    }
+    let before = s.text();
+    for line in [
+        "tally spend_12m",
+        "save  assignments \"out/a.csv\"   # again",
+        "features visits_per_month, basket_value",
+    ] {
+        let (what, shown) = s.enter(line, false);
+        assert_eq!(what, Entered::Unchanged, "{line}: {shown}");
+        assert!(shown.is_empty(), "{line}: {shown}");
+    }
+    assert_eq!(s.text(), before);
+}

@@ -200,16 +200,16 @@ pub enum CheckError {
     },
 
     #[error("`{column}` is named twice")]
-    #[diagnostic(
-        code(assort::duplicate_column),
-        help("each column is either a feature or a category, once")
-    )]
+    #[diagnostic(code(assort::duplicate_column), help("{help}"))]
     DuplicateColumn {
         column: String,
         #[label("named again here")]
         span: Span,
         #[label("first named here")]
         first: Span,
+        /// What the statements that name it allow: clustered once, or
+        /// tallied once.
+        help: &'static str,
     },
 
     #[error("`{column}` is not a numeric feature of this recipe")]

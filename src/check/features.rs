@@ -59,6 +59,7 @@ impl Checker {
                 column: col.node.clone(),
                 span: col.span,
                 first,
+                help: "each column is either a feature or a category, once",
             });
             return false;
         }

@@ -66,6 +66,7 @@ impl Checker {
                         column: col.node.clone(),
                         span: col.span,
                         first,
+                        help: "each column is tallied once: name it in one `tally` statement",
                     });
                     ok = false;
                 } else if is_clustered {
