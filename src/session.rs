@@ -136,16 +136,7 @@ impl Session {
         });
         let at = match existing {
             Some(i) => {
-                // The replaced statement's comments stay above the new one.
-                let comments: Vec<&str> = self.statements[i]
-                    .lines()
-                    .take_while(|l| l.trim().is_empty() || l.trim().starts_with('#'))
-                    .collect();
-                let mut entry = comments.join("\n");
-                if !entry.is_empty() {
-                    entry.push('\n');
-                }
-                entry.push_str(statement);
+                let entry = replacing(&self.statements[i], statement);
                 let old = std::mem::replace(&mut self.statements[i], entry);
                 self.undo.push(Undo::Replaced { at: i, old });
                 i
@@ -391,6 +382,47 @@ fn words_of(statement: &str) -> impl Iterator<Item = &str> {
         .unwrap_or("")
         .split(|c: char| c.is_whitespace() || c == ',')
         .filter(|w| !w.is_empty())
+}
+
+/// The entry that replaces `old` with `statement`: the blank and comment
+/// lines above the old one stay above the new one, and so does the old
+/// one's trailing comment when it was one line and the new one has none.
+fn replacing(old: &str, statement: &str) -> String {
+    let mut entry = String::new();
+    let mut code = Vec::new();
+    for line in old.lines() {
+        let t = line.trim();
+        if code.is_empty() && (t.is_empty() || t.starts_with('#')) {
+            entry.push_str(line);
+            entry.push('\n');
+        } else {
+            code.push(line);
+        }
+    }
+    entry.push_str(statement);
+    if let ([one], None) = (code.as_slice(), trailing_comment(statement)) {
+        if let Some(comment) = trailing_comment(one) {
+            entry.push_str("  ");
+            entry.push_str(comment);
+        }
+    }
+    entry
+}
+
+/// The comment at the end of a line of code (from a `#` outside quotes).
+fn trailing_comment(line: &str) -> Option<&str> {
+    let mut quoted = false;
+    let mut escaped = false;
+    for (i, c) in line.char_indices() {
+        match c {
+            _ if escaped => escaped = false,
+            '\\' if quoted => escaped = true,
+            '"' => quoted = !quoted,
+            '#' if !quoted => return Some(line[i..].trim_end()),
+            _ => {}
+        }
+    }
+    None
 }
 
 /// The words of a statement entry over all its lines, comment lines and

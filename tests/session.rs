@@ -101,6 +101,23 @@ fn saving_keeps_the_authors_blank_lines_and_comments() {
 }
 
 #[test]
+fn a_replaced_statement_keeps_the_blank_line_above_it_and_its_trailing_comment() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("kept.assort");
+    let text = "input \"d.csv\" key id\nfeatures a, b\n\nkmeans k 2  # two to start\nscale none\n";
+    std::fs::write(&path, text).unwrap();
+    let mut session = Session::open(&path, CheckOptions::default()).unwrap();
+    session.enter("kmeans k 3", false);
+    // A comment of its own replaces the old one.
+    session.enter("scale robust  # outliers in spend", false);
+    session.save(&path).unwrap();
+    assert_eq!(
+        std::fs::read_to_string(&path).unwrap(),
+        "input \"d.csv\" key id\nfeatures a, b\n\nkmeans k 3  # two to start\nscale robust  # outliers in spend\n"
+    );
+}
+
+#[test]
 fn a_warning_a_change_causes_elsewhere_is_shown_once() {
     let mut session = demo_folder_session();
     for s in [
