@@ -393,8 +393,13 @@ fn run_stoppable(session: &mut Session, colour: bool, write: bool) -> String {
         println!("running (Ctrl-C stops the run)");
         let _ = std::io::stdout().flush();
     }
-    let shown = session.run(colour, write).unwrap_or_else(|e| e);
+    let mut shown = session.run(colour, write).unwrap_or_else(|e| e);
     restore_interrupt(previous);
+    // The terminal echoed `^C` where the cursor was: what the run says
+    // starts on a line of its own.
+    if crate::engine::stop::requested() {
+        shown.insert(0, '\n');
+    }
     crate::session::clear_stop();
     shown
 }

@@ -94,19 +94,23 @@ impl Terminal {
     /// Waits until the screen shows `text` (after what was awaited before).
     #[track_caller]
     fn wait_for(&mut self, text: &str) {
+        self.text_before(text);
+    }
+
+    /// What the screen shows before `text`, once it shows `text`.
+    #[track_caller]
+    fn text_before(&mut self, text: &str) -> String {
         let deadline = Instant::now() + Duration::from_secs(20);
         loop {
             if let Some(at) = self.seen.find(text) {
+                let before = self.seen[..at].to_string();
                 self.seen.drain(..at + text.len());
-                return;
+                return before;
             }
             let left = deadline.saturating_duration_since(Instant::now());
             match self.screen.recv_timeout(left) {
                 Ok(bytes) => self.seen.push_str(&String::from_utf8_lossy(&bytes)),
-                Err(_) => panic!(
-                    "the session never showed `{text}`; it showed:\n{}",
-                    self.seen
-                ),
+                Err(_) => panic!("the session never showed `{text}`:\n{}", self.seen),
             }
         }
     }
@@ -264,7 +268,14 @@ fn ctrl_c_during_a_run_stops_the_run_and_keeps_the_session() {
     t.wait_for("running (Ctrl-C stops the run)");
     std::thread::sleep(Duration::from_millis(300));
     t.type_keys("\x03");
-    t.wait_for("the run was stopped (Ctrl-C)");
+    // The terminal echoes `^C`; what the session says starts on a line of
+    // its own after it.
+    t.wait_for("^C");
+    let between = t.text_before("the run was stopped (Ctrl-C)");
+    assert!(
+        between.starts_with("\r\n") || between.starts_with('\n'),
+        "the message follows `^C` on its line: {between:?}"
+    );
     t.wait_for_prompt("assort> ");
     // The session and its statements are all still there.
     t.type_keys(":recipe\r");
