@@ -425,8 +425,9 @@ fn header_columns(toks: &[Placed<'_>], data: &DataView<'_>) -> Vec<Item> {
     };
     let file = data.folder.join(path);
     let names: Vec<String> = match crate::parquet::is_parquet(&file) {
-        true => crate::check::probe::probe(&file, b',', crate::check::probe::DecimalMark::Point)
-            .map(|p| p.columns.into_iter().map(|c| c.name).collect())
+        // The footer's schema alone, not a sample.
+        true => crate::parquet::schema(&file)
+            .map(|s| s.names)
             .unwrap_or_default(),
         false => std::fs::File::open(&file)
             .ok()

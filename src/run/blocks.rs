@@ -54,32 +54,34 @@ pub(super) struct Syntax<'a> {
     pub shown: &'a str,
 }
 
-/// Reads every record of `file` from its current offset, after
-/// `lines_before` line ends ([`line_ends`]), handing them to `take` in file
+/// Reads every record of `file` from its current offset, which follows
+/// the file's `head` (its header's bytes), handing them to `take` in file
 /// order, a block's pieces at a time; stops at the first problem `take`
 /// returns or a piece reports.
 pub(super) fn read<D: Decode>(
     file: impl Read,
-    lines_before: u64,
+    head: &[u8],
     syntax: &Syntax<'_>,
     decode: &D,
     take: &mut dyn FnMut(Vec<Piece<D::Out>>) -> Result<(), RunError>,
 ) -> Result<(), RunError> {
-    read_by(BLOCK, file, lines_before, syntax, decode, take)
+    read_by(BLOCK, file, head, syntax, decode, take)
 }
 
 /// [`read`] with blocks of `block` bytes.
 fn read_by<D: Decode>(
     block: usize,
     mut file: impl Read,
-    mut lines_before: u64,
+    head: &[u8],
     syntax: &Syntax<'_>,
     decode: &D,
     take: &mut dyn FnMut(Vec<Piece<D::Out>>) -> Result<(), RunError>,
 ) -> Result<(), RunError> {
     let mut pending: Vec<u8> = Vec::with_capacity(2 * block);
+    let mut eof = top_up(&mut file, &mut pending, block, syntax.shown)?;
+    // The head's line ends, its last `\r` told by the byte after it.
+    let mut lines_before = crate::csv_lines::lines_before(head, pending.first().copied());
     loop {
-        let eof = top_up(&mut file, &mut pending, block, syntax.shown)?;
         if memchr::memchr(b'"', &pending).is_some() {
             let rest = std::io::Cursor::new(pending).chain(file);
             return sequential(rest, lines_before, syntax, decode, take);
@@ -93,25 +95,23 @@ fn read_by<D: Decode>(
                 return sequential(rest, lines_before, syntax, decode, take);
             }
         };
-        let starts = piece_starts(&pending[..end]);
-        let pieces: Vec<(usize, usize, u64)> = starts
-            .windows(2)
-            .scan(lines_before, |lines, w| {
-                let before = *lines;
-                *lines += line_ends(&pending[w[0]..w[1]]);
-                Some((w[0], w[1], before))
-            })
-            .collect();
+        // Each piece with the line ends before it (pieces end after a
+        // `\n`, so their counts add up).
+        let mut pieces: Vec<(usize, usize, u64)> = Vec::new();
+        for w in piece_starts(&pending[..end]).windows(2) {
+            pieces.push((w[0], w[1], lines_before));
+            lines_before += line_ends(&pending[w[0]..w[1]]);
+        }
         let parsed: Vec<Piece<D::Out>> = pieces
             .par_iter()
             .map(|&(from, to, before)| parse(&pending[from..to], before, syntax, decode))
             .collect();
-        lines_before += line_ends(&pending[..end]);
         take(parsed)?;
         pending.drain(..end);
         if eof {
             return Ok(());
         }
+        eof = top_up(&mut file, &mut pending, block, syntax.shown)?;
     }
 }
 
@@ -123,26 +123,11 @@ fn top_up(
     block: usize,
     shown: &str,
 ) -> Result<bool, RunError> {
-    let want = pending.len() + block;
-    while pending.len() < want {
-        let have = pending.len();
-        pending.resize(want, 0);
-        match file.read(&mut pending[have..]) {
-            Ok(0) => {
-                pending.truncate(have);
-                return Ok(true);
-            }
-            Ok(got) => pending.truncate(have + got),
-            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => pending.truncate(have),
-            Err(e) => {
-                return Err(RunError::Unreadable {
-                    file: shown.to_string(),
-                    reason: e.to_string(),
-                })
-            }
-        }
-    }
-    Ok(false)
+    let got = (file.take(block as u64).read_to_end(pending)).map_err(|e| RunError::Unreadable {
+        file: shown.to_string(),
+        reason: e.to_string(),
+    })?;
+    Ok(got < block)
 }
 
 /// Where the pieces of `text` (whole lines) start, and its end: about
@@ -300,7 +285,6 @@ mod tests {
     //! The block reader on seeded texts whose records, lines and first
     //! problem are known as they are written, for every block size.
     use super::{read_by, Decode, Piece, Syntax};
-    use crate::csv_lines::lines_before;
     use crate::run::error::RunError;
     use csv::ByteRecord;
 
@@ -343,7 +327,6 @@ mod tests {
         };
         let mut seen = Vec::new();
         let bytes = text.as_bytes();
-        let before = lines_before(&bytes[..at], bytes.get(at).copied());
         let mut take = |pieces: Vec<Piece<Seen>>| {
             for p in pieces {
                 seen.extend(p.out);
@@ -353,7 +336,15 @@ mod tests {
             }
             Ok(())
         };
-        let fault = read_by(block, &bytes[at..], before, &syntax, &Collect, &mut take).err();
+        let fault = read_by(
+            block,
+            &bytes[at..],
+            &bytes[..at],
+            &syntax,
+            &Collect,
+            &mut take,
+        )
+        .err();
         (seen, fault.map(|e| e.to_string()))
     }
 

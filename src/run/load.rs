@@ -381,17 +381,11 @@ fn read_table(
     let mut file = std::fs::File::open(path).map_err(unreadable)?;
     let size = file.metadata().map_or(0, |m| m.len());
     let mut take = |pieces: Vec<blocks::Piece<Rows>>| table.append(pieces, size);
-    // Read again from the start: the header's own bytes and the one after
-    // them, for the lines they end, then the records.
+    // Read again from the start: the header's own bytes (for the lines
+    // they end), then the records.
     let mut head = vec![0; reader.position().byte() as usize];
-    let mut next = [0u8];
     std::io::Read::read_exact(&mut file, &mut head).map_err(unreadable)?;
-    // A file whose header is all of it ends there.
-    let got = std::io::Read::read(&mut file, &mut next).map_err(unreadable)?;
-    let before = crate::csv_lines::lines_before(&head, (got == 1).then_some(next[0]));
-    std::io::Seek::seek(&mut file, std::io::SeekFrom::Start(head.len() as u64))
-        .map_err(unreadable)?;
-    blocks::read(file, before, &syntax, &decoder, &mut take)?;
+    blocks::read(file, &head, &syntax, &decoder, &mut take)?;
     no_repeated_key(&table, &header, key_at, shown)?;
     Ok(table)
 }
@@ -445,9 +439,7 @@ impl Table {
         }
         Ok(())
     }
-}
 
-impl Table {
     fn reserve(&mut self, records: usize) {
         for col in &mut self.numeric {
             col.values.reserve(records);
