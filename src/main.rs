@@ -1,6 +1,7 @@
 //! The `assort` command line: a thin front end over check, run and output.
 
-use assort::check::{self, diagnostic, CheckOptions, RecipeSource};
+use assort::check::diagnostic::{self, Screen};
+use assort::check::{self, CheckOptions, RecipeSource};
 use assort::output::deliver::{self, recipe_shown, record_path, shown};
 use assort::output::{self, files::Rendered, record};
 use assort::plan::Plan;
@@ -71,7 +72,16 @@ enum Command {
     /// The language server, over standard input and output: diagnostics,
     /// hover help, completion, go to definition, symbols and formatting
     /// for recipes in any editor that speaks the protocol.
-    Lsp,
+    Lsp {
+        /// A folder outside each recipe's own that recipes opened in the
+        /// editor may read and write (repeatable; put it in the editor's
+        /// server command, see docs/editors.md).
+        #[arg(long = "allow-dir", value_name = "FOLDER")]
+        allow_dirs: Vec<PathBuf>,
+        /// Accept an `--allow-dir` that is the whole disk or a home folder.
+        #[arg(long = "allow-wide")]
+        allow_wide: bool,
+    },
     /// Rewrite recipes in the canonical layout (comments kept).
     Fmt {
         /// Change nothing; list the files whose layout differs and exit 1.
@@ -173,7 +183,7 @@ fn main() -> ExitCode {
                             &json!({"format": "assort-result/1", "ok": false, "diagnostics": diagnostics, "error": output::json::error(e)}),
                         );
                     } else {
-                        eprint!("{}", diagnostic::render_bare(e, colour()));
+                        eprint!("{}", diagnostic::render_bare(e, Screen::stderr()));
                     }
                     ExitCode::FAILURE
                 };
@@ -254,13 +264,23 @@ fn main() -> ExitCode {
             expect_shift,
         } => assign(&model, &data, out.as_deref(), &expect_shift),
         Command::Fmt { check, files } => fmt(check, &files),
-        Command::Lsp => match assort::lsp::serve() {
-            Ok(()) => ExitCode::SUCCESS,
-            Err(e) => {
-                eprintln!("error: the language server stopped: {e}");
-                ExitCode::FAILURE
+        Command::Lsp {
+            allow_dirs,
+            allow_wide,
+        } => {
+            // Standard error is the editor's log: the folders allowed are
+            // noted there.
+            if !allowed_folders_ok(&allow_dirs, allow_wide, false) {
+                return ExitCode::FAILURE;
             }
-        },
+            match assort::lsp::serve(CheckOptions { allow_dirs }) {
+                Ok(()) => ExitCode::SUCCESS,
+                Err(e) => {
+                    eprintln!("error: the language server stopped: {e}");
+                    ExitCode::FAILURE
+                }
+            }
+        }
         Command::Repl {
             recipe,
             allow_dirs,
@@ -301,7 +321,7 @@ fn main() -> ExitCode {
                             &json!({"format": "assort-compare/1", "ok": false, "error": output::json::error(&e)}),
                         );
                     } else {
-                        eprint!("{}", diagnostic::render_bare(&e, colour()));
+                        eprint!("{}", diagnostic::render_bare(&e, Screen::stderr()));
                     }
                     ExitCode::FAILURE
                 }
@@ -312,7 +332,7 @@ fn main() -> ExitCode {
 
 fn assign(model_path: &Path, data: &Path, out: Option<&Path>, expect_shift: &[String]) -> ExitCode {
     let fail = |e: run::RunError| {
-        eprint!("{}", diagnostic::render_bare(&e, colour()));
+        eprint!("{}", diagnostic::render_bare(&e, Screen::stderr()));
         ExitCode::FAILURE
     };
     if let Some(o) = out {
@@ -404,7 +424,7 @@ fn fmt(check_only: bool, files: &[PathBuf]) -> ExitCode {
                     errors.into_iter().map(Into::into).collect();
                 eprint!(
                     "{}",
-                    diagnostic::render(&problems, &source.name(), &source.text, colour())
+                    diagnostic::render(&problems, &source.name(), &source.text, Screen::stderr())
                 );
                 eprintln!("`{}` was not formatted: it does not parse", source.name());
                 failed = true;
@@ -417,7 +437,7 @@ fn fmt(check_only: bool, files: &[PathBuf]) -> ExitCode {
             Ok(formatted) => {
                 let file = Rendered::plain(path.clone(), source.name(), formatted.into_bytes());
                 if let Err(e) = output::files::write_all(std::slice::from_ref(&file)) {
-                    eprint!("{}", diagnostic::render_bare(&e, colour()));
+                    eprint!("{}", diagnostic::render_bare(&e, Screen::stderr()));
                     failed = true;
                 } else {
                     println!("formatted {}", source.name());
@@ -532,7 +552,7 @@ fn verify(
                 if args.json {
                     report(false, Vec::new(), Some(output::json::error(&e)));
                 } else {
-                    eprint!("{}", diagnostic::render_bare(&e, colour()));
+                    eprint!("{}", diagnostic::render_bare(&e, Screen::stderr()));
                 }
                 return ExitCode::FAILURE;
             }
@@ -753,11 +773,6 @@ fn allowed_folders_ok(allowed: &[PathBuf], wide: bool, quiet: bool) -> bool {
     true
 }
 
-/// Colour on a terminal, unless NO_COLOR is set (any value).
-fn colour() -> bool {
-    std::env::var_os("NO_COLOR").is_none() && std::io::stderr().is_terminal()
-}
-
 /// Reads and checks a recipe; prints its problems; calls `then` with the
 /// plan when there is no error.
 fn with_plan(
@@ -791,7 +806,12 @@ fn with_plan(
     if !checked.problems.is_empty() && !args.json {
         eprint!(
             "{}",
-            diagnostic::render(&checked.problems, &source.name(), &source.text, colour())
+            diagnostic::render(
+                &checked.problems,
+                &source.name(),
+                &source.text,
+                Screen::stderr()
+            )
         );
     }
     match &checked.plan {

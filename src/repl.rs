@@ -4,6 +4,7 @@
 //! hints, history); piped, it reads lines as they come, so it can be
 //! scripted and tested.
 
+use crate::check::diagnostic::Screen;
 use crate::check::{complete, vocab, CheckOptions};
 use crate::session::{help, Entered, Session};
 use rustyline::completion::Completer;
@@ -58,17 +59,16 @@ pub fn run(recipe: Option<&Path>, options: CheckOptions) -> i32 {
     } else {
         Session::new(&path, options.clone())
     };
-    let colour = std::io::stdout().is_terminal() && std::env::var_os("NO_COLOR").is_none();
     if std::io::stdin().is_terminal() {
-        interactive(&mut session, &path, colour, &options)
+        interactive(&mut session, &path, &options)
     } else {
-        piped(&mut session, &path, colour, &options)
+        piped(&mut session, &path, &options)
     }
 }
 
 /// Reads statements (continued after a trailing comma) and commands from
 /// standard input.
-fn piped(session: &mut Session, path: &Path, colour: bool, options: &CheckOptions) -> i32 {
+fn piped(session: &mut Session, path: &Path, options: &CheckOptions) -> i32 {
     let stdin = std::io::stdin();
     let mut pending = String::new();
     let mut path = path.to_path_buf();
@@ -83,7 +83,7 @@ fn piped(session: &mut Session, path: &Path, colour: bool, options: &CheckOption
                 );
                 continue;
             }
-            if !handle(session, &mut path, &done, colour, options) {
+            if !handle(session, &mut path, &done, options) {
                 warn_unsaved(session);
                 return 0;
             }
@@ -115,9 +115,9 @@ fn line_editor() -> Option<LineEditor> {
     LineEditor::with_config(config).ok()
 }
 
-fn interactive(session: &mut Session, path: &Path, colour: bool, options: &CheckOptions) -> i32 {
+fn interactive(session: &mut Session, path: &Path, options: &CheckOptions) -> i32 {
     let Some(mut editor) = line_editor() else {
-        return piped(session, path, colour, options);
+        return piped(session, path, options);
     };
     editor.set_helper(Some(Assist::of(session, "")));
     let history = std::env::var_os("HOME").map(|h| PathBuf::from(h).join(".assort_history"));
@@ -173,7 +173,7 @@ fn interactive(session: &mut Session, path: &Path, colour: bool, options: &Check
                         continue;
                     }
                 }
-                if !handle(session, &mut path, &done, colour, options)
+                if !handle(session, &mut path, &done, options)
                     && let_go_asking(&mut editor, session, "leaving")
                 {
                     leaving = true;
@@ -306,13 +306,9 @@ fn gather(pending: &mut String, line: &str) -> Option<String> {
 }
 
 /// Handles one statement or command; `false` to leave.
-fn handle(
-    session: &mut Session,
-    path: &mut PathBuf,
-    input: &str,
-    colour: bool,
-    options: &CheckOptions,
-) -> bool {
+fn handle(session: &mut Session, path: &mut PathBuf, input: &str, options: &CheckOptions) -> bool {
+    // Asked each time: the terminal may have been resized.
+    let screen = Screen::stdout();
     let trimmed = input.trim();
     let out = &mut std::io::stdout();
     if let Some(command) = trimmed.strip_prefix(':') {
@@ -323,7 +319,7 @@ fn handle(
             "quit" | "q" => return false,
             "recipe" => session.formatted(),
             "check" => {
-                let p = session.problems(colour);
+                let p = session.problems(screen);
                 if p.is_empty() {
                     "no problems\n".into()
                 } else {
@@ -332,11 +328,11 @@ fn handle(
             }
             "plan" => match session.check().plan {
                 Some(plan) => serde_json::to_string_pretty(&plan).unwrap_or_default() + "\n",
-                None => session.problems(colour),
+                None => session.problems(screen),
             },
             "run" => match arg {
-                None => run_stoppable(session, colour, false),
-                Some("write") => run_stoppable(session, colour, true),
+                None => run_stoppable(session, screen, false),
+                Some("write") => run_stoppable(session, screen, true),
                 Some(other) => format!("`:run` or `:run write`, not `:run {other}`\n"),
             },
             "again" => session
@@ -366,7 +362,7 @@ fn handle(
         let _ = write!(out, "{text}");
         return true;
     }
-    let (what, problems) = session.enter(trimmed, colour);
+    let (what, problems) = session.enter(trimmed, screen);
     let _ = write!(out, "{problems}");
     let word = trimmed.split_whitespace().next().unwrap_or("");
     let note = match what {
@@ -386,14 +382,14 @@ fn handle(
 /// Runs the recipe so that Ctrl-C stops the run, not the session: the
 /// interrupt handler (installed once, shared with writing sets) asks the
 /// engine to stop, and the run ends with nothing written.
-fn run_stoppable(session: &mut Session, colour: bool, write: bool) -> String {
+fn run_stoppable(session: &mut Session, screen: Screen, write: bool) -> String {
     crate::session::clear_stop();
     let previous = stop_on_interrupt();
     if previous.is_some() {
         println!("running (Ctrl-C stops the run)");
         let _ = std::io::stdout().flush();
     }
-    let mut shown = session.run(colour, write).unwrap_or_else(|e| e);
+    let mut shown = session.run(screen, write).unwrap_or_else(|e| e);
     restore_interrupt(previous);
     // The terminal echoed `^C` where the cursor was: what the run says
     // starts on a line of its own.
@@ -471,7 +467,7 @@ impl Assist {
             elsewhere: complete::used_elsewhere(&session.text()),
             folder: folder.to_path_buf(),
             pending: pending.to_string(),
-            dim: std::io::stdout().is_terminal() && std::env::var_os("NO_COLOR").is_none(),
+            dim: Screen::stdout().colour,
         }
     }
 }

@@ -10,8 +10,9 @@
 //! already read while the file and the columns asked for are unchanged, so
 //! changing k does not read the file again.
 
+use crate::check::diagnostic::{self, Screen};
 use crate::check::Span;
-use crate::check::{self, diagnostic, vocab, CheckOptions, Checked, RecipeSource};
+use crate::check::{self, vocab, CheckOptions, Checked, RecipeSource};
 use crate::output::{deliver, tables};
 use crate::run::{self, DataCache, Outcome};
 use crate::text;
@@ -108,14 +109,14 @@ impl Session {
     }
 
     /// Problems of the whole recipe, rendered.
-    pub fn problems(&self, colour: bool) -> String {
+    pub fn problems(&self, screen: Screen) -> String {
         let source = self.source();
-        diagnostic::render(&self.check().problems, &source.name(), &source.text, colour)
+        diagnostic::render(&self.check().problems, &source.name(), &source.text, screen)
     }
 
     /// Enters a statement; returns what happened and the problems found in
     /// that statement, rendered (empty when there are none).
-    pub fn enter(&mut self, statement: &str, colour: bool) -> (Entered, String) {
+    pub fn enter(&mut self, statement: &str, screen: Screen) -> (Entered, String) {
         let statement = statement.trim();
         if statement.is_empty() || statement.starts_with('#') {
             return (Entered::Nothing, String::new());
@@ -156,7 +157,7 @@ impl Session {
             .filter(|p| !p.is_incomplete())
             .partition(|p| touches(p, range));
         if mine.iter().any(diagnostic::Problem::is_error) {
-            let rendered = diagnostic::render(&mine, &source.name(), &source.text, colour);
+            let rendered = diagnostic::render(&mine, &source.name(), &source.text, screen);
             self.undo();
             return (Entered::Rejected, rendered);
         }
@@ -169,7 +170,7 @@ impl Session {
             .collect();
         let broke = caused.iter().any(diagnostic::Problem::is_error);
         let shown: Vec<diagnostic::Problem> = mine.into_iter().chain(caused).collect();
-        let mut rendered = diagnostic::render(&shown, &source.name(), &source.text, colour);
+        let mut rendered = diagnostic::render(&shown, &source.name(), &source.text, screen);
         if broke {
             rendered.push_str(
                 "note: this statement is kept, but it leaves errors at other statements (above); `:undo` takes it back\n",
@@ -249,15 +250,15 @@ impl Session {
     /// nothing was written. A stop asked for (Ctrl-C, see
     /// [`crate::engine::stop`]) ends the run with nothing written and the
     /// session's statements as they were.
-    pub fn run(&mut self, colour: bool, write: bool) -> Result<String, String> {
+    pub fn run(&mut self, screen: Screen, write: bool) -> Result<String, String> {
         let checked = self.check();
         let Some(plan) = checked
             .plan
             .filter(|_| !checked.problems.iter().any(diagnostic::Problem::is_error))
         else {
-            return Err(self.problems(colour));
+            return Err(self.problems(screen));
         };
-        let failed = |e: &dyn Diagnostic| diagnostic::render_bare(e, colour);
+        let failed = |e: &dyn Diagnostic| diagnostic::render_bare(e, screen);
         if !write {
             let outcome = run::run_cached(&plan, &mut self.cache).map_err(|e| failed(&e))?;
             let mut report = tables::report(&outcome);

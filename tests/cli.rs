@@ -59,6 +59,7 @@ fn the_demo_prints_the_sweep_and_profiles_and_writes_every_output() {
             "line wider than 100 columns: {line}"
         );
     }
+    profile_columns_line_up(&out);
     let assignments = case.read("out/member_segments.csv");
     let mut lines = assignments.lines();
     assert_eq!(
@@ -72,6 +73,40 @@ fn the_demo_prints_the_sweep_and_profiles_and_writes_every_output() {
     let segments = json["segments"].as_array().unwrap();
     let total: u64 = segments.iter().map(|s| s["size"].as_u64().unwrap()).sum();
     assert_eq!(total, 6000);
+}
+
+/// Every row of the profile table ends its cells in the columns where the
+/// header ends its segment numbers, whatever the sign of a standardised
+/// difference (`+0.5`, `-0.6`, an unsigned `0.0`) and however long the
+/// row's name (a clipped name once pushed its row one column right).
+fn profile_columns_line_up(out: &str) {
+    let table: Vec<Vec<char>> = out
+        .lines()
+        .skip_while(|l| !l.trim_start().starts_with("segment "))
+        .take_while(|l| !l.trim().is_empty())
+        .map(|l| l.chars().collect())
+        .collect();
+    let ends: Vec<usize> = (1..table[0].len())
+        .filter(|&i| table[0][i] != ' ' && table[0].get(i + 1).is_none_or(|&c| c == ' '))
+        .skip(1)
+        .collect();
+    assert_eq!(ends.len(), 6, "{:?}", table[0]);
+    let rows = (table.iter()).filter(|r| r.iter().collect::<String>().contains(" %  0.0"));
+    assert!(
+        rows.count() > 0,
+        "the demo has no unsigned 0.0 difference any more"
+    );
+    for row in table.iter().filter(|r| r.len() > 40) {
+        let text: String = row.iter().collect();
+        for &end in &ends {
+            let blank = row
+                .get(end - 8..=end)
+                .is_none_or(|c| c.iter().all(|&c| c == ' '));
+            let here = blank || row.get(end).is_some_and(|&c| c != ' ');
+            let after = row.get(end + 1).is_none_or(|&c| c == ' ');
+            assert!(here && after, "cell not ending at column {end}: {text}");
+        }
+    }
 }
 
 #[test]

@@ -23,8 +23,14 @@ impl Server {
     /// A server initialised with these parameters (client capabilities,
     /// workspace folder).
     fn start_with(init_params: Value) -> Server {
+        Server::start_as(&[], init_params)
+    }
+
+    /// A server started as `assort lsp ARGS...`.
+    fn start_as(args: &[&str], init_params: Value) -> Server {
         let mut child = Command::new(env!("CARGO_BIN_EXE_assort"))
             .arg("lsp")
+            .args(args)
             .stdin(Stdio::piped())
             .stdout(Stdio::piped())
             .stderr(Stdio::null())
@@ -581,6 +587,61 @@ fn fixes_for_separators_decimal_marks_text_features_rules_and_distances() {
     let after = s.diagnostics(&uri);
     assert!(after.iter().all(|d| d["severity"] != 1), "{after:?}");
     s.stop();
+}
+
+/// A recipe that reads a file outside its folder is refused by a server
+/// started plainly, with advice that names the server's own
+/// `--allow-dir`, and accepted by one started with `--allow-dir` that
+/// folder; an absolute path inside the recipe's folder is accepted with a
+/// warning whose quick fix writes it relative to the folder.
+#[test]
+fn folders_are_allowed_in_the_server_command_and_absolute_paths_made_relative() {
+    let data = small_case();
+    let elsewhere = tempfile::tempdir().unwrap();
+    let uri = uri_of(&elsewhere, "outside.assort");
+    let members = data.path().join("members.csv");
+    let text = format!(
+        "input \"{}\" key member_id\nfeatures visits_per_month\nkmeans k 2\n",
+        members.display()
+    );
+    let mut plain = Server::start();
+    open(&mut plain, &uri, &text);
+    let diags = plain.diagnostics(&uri);
+    let outside = diags.iter().find(|d| d["code"] == "assort::path_outside");
+    let message = outside.unwrap_or_else(|| panic!("{diags:?}"))["message"].to_string();
+    assert!(
+        message.contains("assort lsp --allow-dir FOLDER"),
+        "{message}"
+    );
+    plain.stop();
+
+    let folder = data.path().to_str().unwrap();
+    let mut allowing = Server::start_as(&["--allow-dir", folder], json!({"capabilities": {}}));
+    open(&mut allowing, &uri, &text);
+    let diags = allowing.diagnostics(&uri);
+    assert!(diags.is_empty(), "{diags:?}");
+
+    let uri = uri_of(&data, "inside.assort");
+    open(&mut allowing, &uri, &text);
+    let diags = allowing.diagnostics(&uri);
+    assert_eq!(diags.len(), 1, "{diags:?}");
+    assert_eq!(diags[0]["severity"], 2, "a warning");
+    let fix = fixes_for(&mut allowing, &uri, &diags, "assort::absolute_path");
+    assert_eq!(
+        fix[0]["title"],
+        "write `members.csv`, relative to the recipe's folder"
+    );
+    let fixed = apply_first(&text, &uri, &[fix]);
+    assert!(
+        fixed.starts_with("input \"members.csv\" key member_id\n"),
+        "{fixed}"
+    );
+    allowing.notify(
+        "textDocument/didChange",
+        json!({"textDocument": {"uri": uri, "version": 2}, "contentChanges": [{"text": fixed}]}),
+    );
+    assert!(allowing.diagnostics(&uri).is_empty());
+    allowing.stop();
 }
 
 /// The byte offset of an LSP position (ASCII text).

@@ -1,5 +1,6 @@
 //! The session API the interactive session and the language server share.
 
+use assort::check::diagnostic::Screen;
 use assort::check::CheckOptions;
 use assort::session::{Entered, Session};
 use std::path::Path;
@@ -18,35 +19,38 @@ fn changing_k_does_not_read_the_data_again() {
         "missing fill median",
         "kmeans k 3 restarts 2",
     ] {
-        assert_eq!(s.enter(line, false).0, Entered::Added, "{line}");
+        assert_eq!(s.enter(line, Screen::PLAIN).0, Entered::Added, "{line}");
     }
-    s.run(false, false).unwrap();
+    s.run(Screen::PLAIN, false).unwrap();
     assert_eq!(
-        s.enter("kmeans k 4 restarts 2", false).0,
+        s.enter("kmeans k 4 restarts 2", Screen::PLAIN).0,
         Entered::Replaced("kmeans".into())
     );
-    assert_eq!(s.enter("scale robust", false).0, Entered::Added);
-    s.run(false, false).unwrap();
+    assert_eq!(s.enter("scale robust", Screen::PLAIN).0, Entered::Added);
+    s.run(Screen::PLAIN, false).unwrap();
     assert_eq!(s.last().unwrap().chosen, 4);
     assert_eq!(s.data_loads(), 1, "the file was read again");
     // Asking for another column reads it again.
     assert_eq!(
         s.enter(
             "features visits_per_month, basket_value, coupon_rate",
-            false
+            Screen::PLAIN
         )
         .0,
         Entered::Replaced("features".into())
     );
-    s.run(false, false).unwrap();
+    s.run(Screen::PLAIN, false).unwrap();
     assert_eq!(s.data_loads(), 2);
 }
 
 #[test]
 fn a_statement_with_an_error_is_not_kept() {
     let mut s = demo_folder_session();
-    s.enter("input \"data/coop_members.csv\" key member_id", false);
-    let (what, problems) = s.enter("features visits_per_mnth", false);
+    s.enter(
+        "input \"data/coop_members.csv\" key member_id",
+        Screen::PLAIN,
+    );
+    let (what, problems) = s.enter("features visits_per_mnth", Screen::PLAIN);
     assert_eq!(what, Entered::Rejected);
     assert!(
         problems.contains("did you mean `visits_per_month`?"),
@@ -58,7 +62,10 @@ fn a_statement_with_an_error_is_not_kept() {
 #[test]
 fn completion_knows_statements_options_and_columns() {
     let mut s = demo_folder_session();
-    s.enter("input \"data/coop_members.csv\" key member_id", false);
+    s.enter(
+        "input \"data/coop_members.csv\" key member_id",
+        Screen::PLAIN,
+    );
     assert_eq!(s.complete("kme").labels(), ["kmeans", "kmedoids"]);
     assert_eq!(s.complete("kmea").labels(), ["kmeans"]);
     assert_eq!(s.complete("kmeans k 3 see").labels(), ["seeding"]);
@@ -90,7 +97,7 @@ fn saving_keeps_the_authors_blank_lines_and_comments() {
         !session.unsaved(),
         "a session just opened has nothing to lose"
     );
-    session.enter("seed 4", false);
+    session.enter("seed 4", Screen::PLAIN);
     assert!(session.unsaved());
     session.save(&path).unwrap();
     assert!(!session.unsaved());
@@ -107,9 +114,9 @@ fn a_replaced_statement_keeps_the_blank_line_above_it_and_its_trailing_comment()
     let text = "input \"d.csv\" key id\nfeatures a, b\n\nkmeans k 2  # two to start\nscale none\n";
     std::fs::write(&path, text).unwrap();
     let mut session = Session::open(&path, CheckOptions::default()).unwrap();
-    session.enter("kmeans k 3", false);
+    session.enter("kmeans k 3", Screen::PLAIN);
     // A comment of its own replaces the old one.
-    session.enter("scale robust  # outliers in spend", false);
+    session.enter("scale robust  # outliers in spend", Screen::PLAIN);
     session.save(&path).unwrap();
     assert_eq!(
         std::fs::read_to_string(&path).unwrap(),
@@ -127,14 +134,14 @@ fn a_warning_a_change_causes_elsewhere_is_shown_once() {
         "kmeans k 2..4",
         "choose k by silhouette",
     ] {
-        let (what, _) = session.enter(s, false);
+        let (what, _) = session.enter(s, Screen::PLAIN);
         assert_ne!(what, Entered::Rejected, "{s}");
     }
     // One k left: the `choose` statement, not the one entered, is warned.
-    let (_, shown) = session.enter("kmeans k 3", false);
+    let (_, shown) = session.enter("kmeans k 3", Screen::PLAIN);
     assert!(shown.contains("has nothing to choose from"), "{shown}");
     // Standing warnings are not repeated at every later entry.
-    let (_, shown) = session.enter("seed 5", false);
+    let (_, shown) = session.enter("seed 5", Screen::PLAIN);
     assert!(!shown.contains("has nothing to choose from"), "{shown}");
 }
 
@@ -149,10 +156,10 @@ fn a_label_is_changed_by_entering_it_again_and_any_statement_can_be_dropped() {
         "kmeans k 3",
         "label 3 \"night owls\"",
     ] {
-        let (what, shown) = session.enter(s, false);
+        let (what, shown) = session.enter(s, Screen::PLAIN);
         assert_ne!(what, Entered::Rejected, "{s}: {shown}");
     }
-    let (what, _) = session.enter("label 3 \"late shoppers\"", false);
+    let (what, _) = session.enter("label 3 \"late shoppers\"", Screen::PLAIN);
     assert_eq!(what, Entered::Replaced("label 3 \"night owls\"".into()));
     assert!(session.text().contains("label 3 \"late shoppers\""));
     assert!(!session.text().contains("night owls"));
@@ -183,7 +190,7 @@ fn a_weight_transform_or_missing_rule_for_the_same_columns_is_replaced_by_enteri
         "call basket_value \"spend\"",
         "kmeans k 3",
     ] {
-        let (what, shown) = session.enter(s, false);
+        let (what, shown) = session.enter(s, Screen::PLAIN);
         assert_ne!(what, Entered::Rejected, "{s}: {shown}");
     }
     let replaced = [
@@ -209,14 +216,14 @@ fn a_weight_transform_or_missing_rule_for_the_same_columns_is_replaced_by_enteri
         ),
     ];
     for (entered, old) in replaced {
-        let (what, shown) = session.enter(entered, false);
+        let (what, shown) = session.enter(entered, Screen::PLAIN);
         assert_eq!(what, Entered::Replaced(old.into()), "{entered}: {shown}");
         assert!(session.text().contains(entered), "{}", session.text());
         assert!(!session.text().contains(old), "{}", session.text());
     }
     // A statement that names only some of an earlier one's columns does not
     // silently take them over: the check refuses the overlap.
-    let (what, shown) = session.enter("weight basket_value 4", false);
+    let (what, shown) = session.enter("weight basket_value 4", Screen::PLAIN);
     assert_eq!(what, Entered::Rejected);
     assert!(shown.contains("given twice"), "{shown}");
     // Undo puts the replaced statement back.
@@ -226,10 +233,10 @@ fn a_weight_transform_or_missing_rule_for_the_same_columns_is_replaced_by_enteri
         .text()
         .contains("weight tenure_months, basket_value 0.5"));
     // A clip is a transform of its own: it goes beside the other one.
-    let (what, shown) = session.enter("transform basket_value clip 0..0.99", false);
+    let (what, shown) = session.enter("transform basket_value clip 0..0.99", Screen::PLAIN);
     assert_eq!(what, Entered::Added, "{shown}");
     assert!(session.text().contains("transform basket_value sqrt"));
-    let (what, _) = session.enter("transform basket_value clip 0.01..0.99", false);
+    let (what, _) = session.enter("transform basket_value clip 0.01..0.99", Screen::PLAIN);
     assert_eq!(
         what,
         Entered::Replaced("transform basket_value clip 0..0.99".into())
@@ -248,7 +255,7 @@ fn a_statement_entered_again_word_for_word_changes_nothing() {
         "save assignments \"out/a.csv\"",
         "features visits_per_month,\n         basket_value",
     ] {
-        assert_ne!(s.enter(line, false).0, Entered::Rejected, "{line}");
+        assert_ne!(s.enter(line, Screen::PLAIN).0, Entered::Rejected, "{line}");
     }
     let before = s.text();
     for line in [
@@ -256,7 +263,7 @@ fn a_statement_entered_again_word_for_word_changes_nothing() {
         "save  assignments \"out/a.csv\"   # again",
         "features visits_per_month, basket_value",
     ] {
-        let (what, shown) = s.enter(line, false);
+        let (what, shown) = s.enter(line, Screen::PLAIN);
         assert_eq!(what, Entered::Unchanged, "{line}: {shown}");
         assert!(shown.is_empty(), "{line}: {shown}");
     }

@@ -459,8 +459,13 @@ pub(crate) fn written_column(name: &str) -> String {
     if is_bare_word(name) {
         name.to_string()
     } else {
-        format!("\"{}\"", name.replace('\\', "\\\\").replace('"', "\\\""))
+        quoted(name)
     }
+}
+
+/// Text in quotes as a recipe writes it, `\` and `"` escaped.
+pub(crate) fn quoted(text: &str) -> String {
+    format!("\"{}\"", text.replace('\\', "\\\\").replace('"', "\\\""))
 }
 
 /// Whether a column name can be written without quotes.

@@ -492,11 +492,24 @@ pub enum CheckError {
     #[error("path `{path}` leads outside the recipe's folder")]
     #[diagnostic(
         code(assort::path_outside),
-        help("keep paths inside the recipe's folder (symbolic links are followed); a recipe may touch another folder only when the person running it passes `--allow-dir FOLDER`")
+        help("keep paths inside the recipe's folder (symbolic links are followed); a recipe may touch another folder only when the person running it allows that folder: `--allow-dir FOLDER` after `run`, `check` or `repl`, and in an editor in the language server's command, `assort lsp --allow-dir FOLDER` (docs/editors.md)")
     )]
     PathOutside {
         path: String,
         #[label("outside the recipe's folder")]
+        span: Span,
+    },
+
+    #[error("path `{path}` is written from the root of this machine: the recipe breaks when its folder is copied or moved")]
+    #[diagnostic(
+        code(assort::absolute_path),
+        severity(Warning),
+        help("write it relative to the recipe's folder: `\"{relative}\"`")
+    )]
+    AbsolutePath {
+        path: String,
+        relative: String,
+        #[label("inside the recipe's folder, written from the root")]
         span: Span,
     },
 
@@ -688,14 +701,92 @@ pub enum CheckError {
     },
 }
 
-/// Renders problems as text, with the recipe lines they point at. Colour
-/// only when `colour` is set; golden tests and pipes get none.
-pub fn render(problems: &[Problem], name: &str, text: &str, colour: bool) -> String {
-    let handler = handler(colour);
+/// Where rendered problems are shown: in colour or not, and the width of
+/// the terminal they go to (`None` for a pipe, a file or a test).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Screen {
+    pub colour: bool,
+    pub width: Option<usize>,
+}
+
+/// Text wraps at this many columns at most, however wide the terminal.
+const WIDEST: usize = 100;
+/// A terminal narrower than this is treated as this wide: below it the
+/// frames cannot hold a word and its underline.
+const NARROWEST: usize = 40;
+
+impl Screen {
+    /// No colour and no terminal: golden files, pipes, tests.
+    pub const PLAIN: Screen = Screen {
+        colour: false,
+        width: None,
+    };
+
+    /// Standard error as it is now: colour on a terminal unless
+    /// `NO_COLOR` is set (any value), and the terminal's width.
+    pub fn stderr() -> Screen {
+        Screen::of(&std::io::stderr(), 2)
+    }
+
+    /// Standard output, as [`Screen::stderr`].
+    pub fn stdout() -> Screen {
+        Screen::of(&std::io::stdout(), 1)
+    }
+
+    fn of(stream: &impl std::io::IsTerminal, fd: i32) -> Screen {
+        if !stream.is_terminal() {
+            return Screen::PLAIN;
+        }
+        Screen {
+            colour: std::env::var_os("NO_COLOR").is_none(),
+            width: terminal_width(fd),
+        }
+    }
+
+    /// How lines of the recipe are fitted: cut to the terminal's width
+    /// (less the frame's gutter for `lines` numbered lines), so that an
+    /// underline stays under its word; without a terminal, only very long
+    /// lines are cut.
+    fn fit(self, lines: usize) -> crate::check::shown::Fit {
+        match self.width {
+            Some(w) => {
+                // ` 12 │ ` and a spare column.
+                let gutter = lines.max(1).to_string().len() + 5;
+                crate::check::shown::Fit::terminal(w.max(NARROWEST) - gutter)
+            }
+            None => crate::check::shown::Fit::LONG_LINES,
+        }
+    }
+}
+
+/// The columns of the terminal behind file descriptor `fd`, asked of the
+/// terminal itself (it follows a resize); `None` when it cannot say.
+#[cfg(unix)]
+fn terminal_width(fd: i32) -> Option<usize> {
+    // SAFETY: an all-zero `winsize` is a valid value of that plain struct.
+    let mut size: libc::winsize = unsafe { std::mem::zeroed() };
+    // SAFETY: TIOCGWINSZ writes one `winsize` through the pointer, which
+    // points at `size`, alive and writable for the whole call.
+    let ok = unsafe { libc::ioctl(fd, libc::TIOCGWINSZ, &mut size) } == 0;
+    (ok && size.ws_col > 0).then_some(usize::from(size.ws_col))
+}
+
+/// Elsewhere the width comes from `COLUMNS` when a shell exports it.
+#[cfg(not(unix))]
+fn terminal_width(_fd: i32) -> Option<usize> {
+    std::env::var("COLUMNS").ok()?.parse().ok()
+}
+
+/// Renders problems as text, with the recipe lines they point at, fitted
+/// to the screen.
+pub fn render(problems: &[Problem], name: &str, text: &str, screen: Screen) -> String {
+    let handler = handler(screen);
+    let fit = screen.fit(text.lines().count());
     let mut out = String::new();
     for p in problems {
+        let shown = super::shown::Shown::fitted(p, name, text, fit);
         // Writing into a String cannot fail.
-        let _ = handler.render_report(&mut out, &super::shown::Shown::new(p, name, text));
+        let _ = handler.render_report(&mut out, &shown);
         out.push('\n');
     }
     out
@@ -703,20 +794,22 @@ pub fn render(problems: &[Problem], name: &str, text: &str, colour: bool) -> Str
 
 /// Renders a diagnostic that points at no recipe text (a data or output
 /// problem), in the same style.
-pub fn render_bare(diag: &dyn Diagnostic, colour: bool) -> String {
+pub fn render_bare(diag: &dyn Diagnostic, screen: Screen) -> String {
     let mut out = String::new();
-    let _ = handler(colour).render_report(&mut out, &super::shown::Shown::new(diag, "", ""));
+    let _ = handler(screen).render_report(&mut out, &super::shown::Shown::new(diag, "", ""));
     out
 }
 
-/// The one report style: Unicode frames, 100 columns, colour on request.
-fn handler(colour: bool) -> GraphicalReportHandler {
-    let theme = if colour {
+/// The one report style: Unicode frames, text wrapped at the terminal's
+/// width up to 100 columns, colour on request.
+fn handler(screen: Screen) -> GraphicalReportHandler {
+    let theme = if screen.colour {
         GraphicalTheme::unicode()
     } else {
         GraphicalTheme::unicode_nocolor()
     };
-    GraphicalReportHandler::new_themed(theme).with_width(100)
+    let width = screen.width.map_or(WIDEST, |w| w.clamp(NARROWEST, WIDEST));
+    GraphicalReportHandler::new_themed(theme).with_width(width)
 }
 
 impl CheckError {

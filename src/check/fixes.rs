@@ -6,7 +6,8 @@
 //! the wrong separator or decimal mark gets the `input` option its help
 //! names; a text column among the features moves to `categories`; a rule
 //! for a column that is not a feature adds it to `features`; a linkage
-//! that needs Euclidean distances gets `distance euclidean`.
+//! that needs Euclidean distances gets `distance euclidean`; an absolute
+//! path inside the recipe's folder gets its relative form.
 
 use super::diagnostic::{CheckError, Problem, DID_YOU_MEAN};
 use super::Span;
@@ -57,6 +58,11 @@ pub fn fixes(problem: &Problem, text: &str) -> Vec<Fix> {
             "euclidean",
         )],
         CheckError::TextFeature { column, span, .. } => move_to_categories(text, column, *span),
+        CheckError::AbsolutePath { relative, span, .. } => vec![Fix::one(
+            format!("write `{relative}`, relative to the recipe's folder"),
+            *span,
+            super::complete::quoted(relative),
+        )],
         CheckError::NotAFeature { column, help, .. } if help.contains("add `") => {
             add_feature(text, column)
         }

@@ -365,12 +365,18 @@ impl Checker {
     }
 
     /// Resolves a recipe path against the recipe's folder, refusing paths
-    /// that lead outside it.
+    /// that lead outside it and warning of absolute ones inside it.
     pub(super) fn safe_path(&mut self, path: &Spanned<String>) -> Option<PathBuf> {
         let resolved = self.sandbox.resolve(&path.node);
         if resolved.is_none() {
             self.err(CheckError::PathOutside {
                 path: path.node.clone(),
+                span: path.span,
+            });
+        } else if let Some(relative) = self.sandbox.relative_form(&path.node) {
+            self.err(CheckError::AbsolutePath {
+                path: path.node.clone(),
+                relative,
                 span: path.span,
             });
         }

@@ -60,6 +60,23 @@ impl Sandbox {
         Some(if climbs { target } else { joined })
     }
 
+    /// For an absolute path that leads inside the recipe's own folder, the
+    /// same place written relative to that folder (parts joined by `/`),
+    /// which travels with the recipe; `None` for any other path.
+    pub fn relative_form(&self, written: &str) -> Option<String> {
+        let p = Path::new(written);
+        if !p.is_absolute() {
+            return None;
+        }
+        let rest = real(p)?
+            .strip_prefix(real(&self.folder)?)
+            .ok()?
+            .to_path_buf();
+        let parts: Option<Vec<&str>> = rest.components().map(|c| c.as_os_str().to_str()).collect();
+        let parts = parts?;
+        (!parts.is_empty()).then(|| parts.join("/"))
+    }
+
     /// Where a path really leads, for comparing two paths (the path as
     /// given when it cannot be followed, e.g. through a loop of links).
     pub fn real_path(path: &Path) -> PathBuf {
@@ -187,6 +204,14 @@ mod tests {
         assert!(sandbox.resolve("../x.csv").is_none());
         assert!(sandbox.resolve("/etc/passwd").is_none());
         assert!(sandbox.resolve("").is_none());
+        // An absolute path inside the folder is accepted, and has a
+        // relative form; one outside has none.
+        let inside = dir.path().join("data/x.csv");
+        let inside = inside.to_str().unwrap();
+        assert!(sandbox.resolve(inside).is_some());
+        assert_eq!(sandbox.relative_form(inside).as_deref(), Some("data/x.csv"));
+        assert_eq!(sandbox.relative_form("data/x.csv"), None);
+        assert_eq!(sandbox.relative_form("/etc/passwd"), None);
     }
 
     #[cfg(unix)]

@@ -15,6 +15,8 @@ pub struct Context<'a> {
     pub uri: &'a str,
     pub text: &'a str,
     pub source: RecipeSource,
+    /// As the server was started (`--allow-dir`).
+    pub options: &'a CheckOptions,
 }
 
 fn is_word(c: char) -> bool {
@@ -84,7 +86,7 @@ pub fn hover(ctx: &Context<'_>, p: Position) -> Option<Hover> {
             return markdown(format!("**{}** ({place}): {}", v.word, v.summary));
         }
     }
-    let checked = check::check_with(&ctx.source, &CheckOptions::default());
+    let checked = check::check_with(&ctx.source, ctx.options);
     let info = checked.column_info.iter().find(|c| c.name == word)?;
     let kind = match info.kind {
         ColumnKind::Numeric => "numeric",
@@ -129,7 +131,7 @@ pub fn completion(ctx: &Context<'_>, p: Position) -> Vec<CompletionItem> {
         start = prev_start;
     }
     let before = &ctx.text[start..offset];
-    let checked = check::check_with(&ctx.source, &CheckOptions::default());
+    let checked = check::check_with(&ctx.source, ctx.options);
     let key = complete::key_of(ctx.text);
     let folder = ctx
         .source
@@ -177,7 +179,7 @@ pub fn code_actions(ctx: &Context<'_>, range: Range) -> Vec<CodeAction> {
     let Ok(uri) = ctx.uri.parse::<Uri>() else {
         return Vec::new();
     };
-    let checked = check::check_with(&ctx.source, &CheckOptions::default());
+    let checked = check::check_with(&ctx.source, ctx.options);
     let mut actions = Vec::new();
     for problem in &checked.problems {
         let diagnostic = super::convert::diagnostic(problem, &index);

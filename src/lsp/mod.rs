@@ -48,16 +48,21 @@ struct Document {
     reads: Vec<(PathBuf, Stamp)>,
 }
 
-/// Open documents by URI, and the workspace folder.
+/// Open documents by URI, the workspace folder, and what the server was
+/// started with.
 #[derive(Default)]
 struct Store {
     docs: HashMap<String, Document>,
     /// Where a recipe not yet saved (an `untitled:` URI) resolves paths.
     root: Option<PathBuf>,
+    /// The folders besides each recipe's own that recipes may touch
+    /// (`assort lsp --allow-dir`).
+    options: CheckOptions,
 }
 
-/// Runs the server over standard input and output until the client exits.
-pub fn serve() -> Result<(), String> {
+/// Runs the server over standard input and output until the client exits;
+/// recipes are checked with `options`.
+pub fn serve(options: CheckOptions) -> Result<(), String> {
     let (connection, threads) = Connection::stdio();
     let init = InitializeResult {
         capabilities: capabilities(),
@@ -73,6 +78,7 @@ pub fn serve() -> Result<(), String> {
         .map_err(|e| e.to_string())?;
     let mut store = Store {
         root: workspace_root(&params),
+        options,
         ..Store::default()
     };
     if params["capabilities"]["workspace"]["didChangeWatchedFiles"]["dynamicRegistration"]
@@ -247,9 +253,10 @@ fn update(store: &mut Store, note: &Notification) -> Vec<String> {
 /// no longer open); notes the data files it read.
 fn publish(store: &mut Store, uri: &str) -> Notification {
     let root = store.root.clone();
+    let options = &store.options;
     let diagnostics = store.docs.get_mut(uri).map(|doc| {
         let source = source(uri, &doc.text, root.as_deref());
-        let checked = check::check_with(&source, &CheckOptions::default());
+        let checked = check::check_with(&source, options);
         doc.reads = check::shape::data_files(&doc.text, &source.path)
             .into_iter()
             .map(|p| {
@@ -337,6 +344,7 @@ fn respond(store: &Store, req: Request) -> Response {
         uri: &uri,
         text: &doc.text,
         source: source(&uri, &doc.text, store.root.as_deref()),
+        options: &store.options,
     };
     let result = match (req.method.as_str(), position) {
         ("textDocument/hover", Some(p)) => serde_json::to_value(handlers::hover(&ctx, p)),

@@ -524,7 +524,7 @@ fn sweep_legend(o: &Outcome) -> Vec<String> {
 /// One row of the profiles table: its name, then a cell per profile (all
 /// records first, narrower).
 fn row(s: &mut String, name: &str, cells: Vec<String>) {
-    let mut line = format!("  {:<w$}", clip(name, NAME_WIDTH - 1), w = NAME_WIDTH - 2);
+    let mut line = format!("  {:<w$}", clip(name, NAME_WIDTH - 2), w = NAME_WIDTH - 2);
     for (i, c) in cells.iter().enumerate() {
         let w = if i == 0 { 10 } else { CELL };
         let _ = write!(line, "{:>w$}", clip(c, w - 1));
