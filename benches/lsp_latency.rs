@@ -170,6 +170,8 @@ fn wide(dir: &Path) -> Case {
         "save assignments \"out/wide_segments.csv\"\nsave profiles \"out/wide_profiles.json\"\n",
     );
     let path = dir.join("wide.assort");
+    // Written too, to reproduce a figure with `assort check` or a profiler.
+    std::fs::write(&path, &text).expect("bench recipe");
     let lines = text.lines().count();
     Case {
         name: format!("a {lines}-line recipe over 120 columns"),

@@ -460,11 +460,12 @@ impl Assist {
             .parent()
             .filter(|p| !p.as_os_str().is_empty())
             .unwrap_or(Path::new("."));
+        let facts = complete::Facts::of(&session.text());
         Assist {
             columns: checked.column_info,
             sampled: checked.sampled,
-            key: complete::key_of(&session.text()),
-            elsewhere: complete::used_elsewhere(&session.text()),
+            key: facts.key,
+            elsewhere: facts.elsewhere,
             folder: folder.to_path_buf(),
             pending: pending.to_string(),
             dim: Screen::stdout().colour,

@@ -349,14 +349,13 @@ impl Session {
     /// up to the cursor.
     pub fn complete(&self, before: &str) -> check::complete::Completion {
         let checked = self.check();
-        let key = check::complete::key_of(&self.text());
+        let facts = check::complete::Facts::of(&self.text());
         let folder = self.path.parent().unwrap_or(Path::new("."));
-        let elsewhere = check::complete::used_elsewhere(&self.text());
         let data = check::complete::DataView {
             columns: &checked.column_info,
             sampled: checked.sampled,
-            key: key.as_deref(),
-            elsewhere: &elsewhere,
+            key: facts.key.as_deref(),
+            elsewhere: &facts.elsewhere,
             folder: if folder.as_os_str().is_empty() {
                 Path::new(".")
             } else {

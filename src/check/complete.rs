@@ -67,39 +67,46 @@ impl Completion {
     }
 }
 
-/// The key column a recipe's `input` names, for [`DataView::key`].
-pub fn key_of(recipe: &str) -> Option<String> {
-    use crate::syntax::ast::{StatementKind, Value};
-    crate::syntax::parse(recipe)
-        .statements
-        .into_iter()
-        .find_map(|s| match s.kind {
-            StatementKind::Input { options, .. } => options
-                .into_iter()
-                .find(|o| o.name.node == "key")
-                .and_then(|o| match o.value.node {
-                    Value::Word(w) | Value::Text(w) => Some(w),
-                    _ => None,
-                }),
-            _ => None,
-        })
-}
-
 /// The columns a recipe tallies, takes as categories or as its records'
 /// weights: never offered as features, which the checker would refuse.
 pub fn used_elsewhere(recipe: &str) -> Vec<String> {
-    use crate::syntax::ast::StatementKind;
-    crate::syntax::parse(recipe)
-        .statements
-        .into_iter()
-        .flat_map(|s| match s.kind {
-            StatementKind::Tally { columns } | StatementKind::Categories { columns, .. } => {
-                columns.into_iter().map(|c| c.node).collect()
+    Facts::of(recipe).elsewhere
+}
+
+/// What completion needs to know of the whole recipe, from one parse.
+pub struct Facts {
+    /// The key column its `input` names, for [`DataView::key`].
+    pub key: Option<String>,
+    /// The columns it uses elsewhere ([`used_elsewhere`]).
+    pub elsewhere: Vec<String>,
+}
+
+impl Facts {
+    pub fn of(recipe: &str) -> Facts {
+        use crate::syntax::ast::{StatementKind, Value};
+        let mut facts = Facts {
+            key: None,
+            elsewhere: Vec::new(),
+        };
+        for s in crate::syntax::parse(recipe).statements {
+            match s.kind {
+                StatementKind::Input { options, .. } if facts.key.is_none() => {
+                    facts.key = (options.into_iter())
+                        .find(|o| o.name.node == "key")
+                        .and_then(|o| match o.value.node {
+                            Value::Word(w) | Value::Text(w) => Some(w),
+                            _ => None,
+                        });
+                }
+                StatementKind::Tally { columns } | StatementKind::Categories { columns, .. } => {
+                    facts.elsewhere.extend(columns.into_iter().map(|c| c.node));
+                }
+                StatementKind::Represents { column } => facts.elsewhere.push(column.node),
+                _ => {}
             }
-            StatementKind::Represents { column } => vec![column.node],
-            _ => Vec::new(),
-        })
-        .collect()
+        }
+        facts
+    }
 }
 
 /// A piece of the statement before the cursor.

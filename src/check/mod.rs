@@ -347,7 +347,7 @@ struct Checker {
     recipe_stem: String,
     problems: Vec<Problem>,
     /// The input's header and sample, once read.
-    probe: Option<Probe>,
+    probe: Option<std::sync::Arc<Probe>>,
     input_file: String,
     /// The input's decimal mark, once `input` is checked.
     decimal: DecimalMark,

@@ -7,6 +7,7 @@
 use crate::csv_lines::LineReader;
 use std::fs::File;
 use std::path::Path;
+use std::sync::Arc;
 
 /// Records read to judge column kinds.
 pub const SAMPLE_ROWS: usize = 1000;
@@ -255,8 +256,24 @@ pub enum KeyProblem {
 }
 
 /// The first key problem within the sample: a blank or repeated key.
-/// Reads the first [`SAMPLE_ROWS`] records again, only the key column.
+/// Reads the first [`SAMPLE_ROWS`] records again, only the key column,
+/// once until the file changes.
 pub fn key_problem(path: &Path, separator: u8, key: &str) -> Option<KeyProblem> {
+    let stamp = |len, modified| ProbeKey {
+        path: path.to_path_buf(),
+        separator,
+        decimal: DecimalMark::Point,
+        column: key.to_string(),
+        len,
+        modified,
+    };
+    cached(&KEYS, path, stamp, || {
+        Ok::<_, ()>(read_key_problem(path, separator, key))
+    })
+    .unwrap_or(None)
+}
+
+fn read_key_problem(path: &Path, separator: u8, key: &str) -> Option<KeyProblem> {
     if crate::parquet::is_parquet(path) {
         return parquet_key_problem(path, key);
     }
@@ -341,49 +358,73 @@ pub fn number_help(field: &str, decimal: DecimalMark) -> String {
 
 /// Probes already made, by file, separator, size and modification time:
 /// an editor re-checking a recipe at every keystroke reads each data file
-/// once until it changes.
-static CACHE: std::sync::Mutex<Vec<(ProbeKey, Probe)>> = std::sync::Mutex::new(Vec::new());
+/// once until it changes, and shares the probe instead of copying its
+/// sample.
+static CACHE: Cache<Arc<Probe>> = std::sync::Mutex::new(Vec::new());
+/// Key problems already looked for, by file and key column.
+static KEYS: Cache<Option<KeyProblem>> = std::sync::Mutex::new(Vec::new());
+
+type Cache<T> = std::sync::Mutex<Vec<(ProbeKey, T)>>;
 
 #[derive(Clone, PartialEq)]
 struct ProbeKey {
     path: std::path::PathBuf,
     separator: u8,
     decimal: DecimalMark,
+    /// The key column, for [`KEYS`].
+    column: String,
     len: u64,
     modified: Option<std::time::SystemTime>,
 }
 
-/// The most probes kept.
+/// The most entries each cache keeps.
 const CACHE_SIZE: usize = 16;
 
-/// Reads the header and a sample of `path`, or takes them from the cache
-/// when the file has not changed.
-pub fn probe(path: &Path, separator: u8, decimal: DecimalMark) -> Result<Probe, ProbeError> {
-    let meta = std::fs::metadata(path).ok();
-    let key = meta.as_ref().map(|m| ProbeKey {
-        path: path.to_path_buf(),
-        separator,
-        decimal,
-        len: m.len(),
-        modified: m.modified().ok(),
-    });
+/// The value for `path` read as `key` says from `cache`, or `fresh()`
+/// kept there, when the file's size and modification time are as they
+/// were (a file that cannot be stamped is read every time).
+fn cached<T: Clone, E>(
+    cache: &Cache<T>,
+    path: &Path,
+    key: impl FnOnce(u64, Option<std::time::SystemTime>) -> ProbeKey,
+    fresh: impl FnOnce() -> Result<T, E>,
+) -> Result<T, E> {
+    let key = std::fs::metadata(path)
+        .ok()
+        .map(|m| key(m.len(), m.modified().ok()));
     if let Some(k) = &key {
         // A poisoned lock only means another thread panicked mid-update;
         // the cache is then skipped, not trusted.
-        if let Ok(cache) = CACHE.lock() {
-            if let Some((_, p)) = cache.iter().find(|(c, _)| c == k) {
-                return Ok(p.clone());
+        if let Ok(cache) = cache.lock() {
+            if let Some((_, v)) = cache.iter().find(|(c, _)| c == k) {
+                return Ok(v.clone());
             }
         }
     }
-    let fresh = probe_file(path, separator, decimal)?;
-    if let (Some(k), Ok(mut cache)) = (key, CACHE.lock()) {
+    let value = fresh()?;
+    if let (Some(k), Ok(mut cache)) = (key, cache.lock()) {
         if cache.len() >= CACHE_SIZE {
             cache.remove(0);
         }
-        cache.push((k, fresh.clone()));
+        cache.push((k, value.clone()));
     }
-    Ok(fresh)
+    Ok(value)
+}
+
+/// Reads the header and a sample of `path`, or takes them from the cache
+/// when the file has not changed.
+pub fn probe(path: &Path, separator: u8, decimal: DecimalMark) -> Result<Arc<Probe>, ProbeError> {
+    let key = |len, modified| ProbeKey {
+        path: path.to_path_buf(),
+        separator,
+        decimal,
+        column: String::new(),
+        len,
+        modified,
+    };
+    cached(&CACHE, path, key, || {
+        probe_file(path, separator, decimal).map(Arc::new)
+    })
 }
 
 fn probe_file(path: &Path, separator: u8, decimal: DecimalMark) -> Result<Probe, ProbeError> {

@@ -132,7 +132,7 @@ pub fn completion(ctx: &Context<'_>, p: Position) -> Vec<CompletionItem> {
     }
     let before = &ctx.text[start..offset];
     let checked = check::check_with(&ctx.source, ctx.options);
-    let key = complete::key_of(ctx.text);
+    let facts = complete::Facts::of(ctx.text);
     let folder = ctx
         .source
         .path
@@ -142,9 +142,9 @@ pub fn completion(ctx: &Context<'_>, p: Position) -> Vec<CompletionItem> {
     let data = complete::DataView {
         columns: &checked.column_info,
         sampled: checked.sampled,
-        key: key.as_deref(),
+        key: facts.key.as_deref(),
         folder,
-        elsewhere: &complete::used_elsewhere(ctx.text),
+        elsewhere: &facts.elsewhere,
     };
     let found = complete::complete(before, &data);
     let range = index.range(start + found.start, offset);

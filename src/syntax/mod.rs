@@ -528,6 +528,107 @@ pub fn shaping_statements(src: &str) -> Vec<String> {
 mod tests {
     use super::*;
 
+    /// The line splitter as the grammar read before runs were skipped in
+    /// one step: a character at a time, each alternative tried in order.
+    fn cut_one_char_at_a_time(src: &str) -> Vec<(usize, &str)> {
+        let b = src.as_bytes();
+        let newline = |at: usize| match b.get(at) {
+            Some(b'\n') => Some(1),
+            Some(b'\r') => Some(if b.get(at + 1) == Some(&b'\n') { 2 } else { 1 }),
+            _ => None,
+        };
+        let char_len = |at: usize| src[at..].chars().next().map_or(1, char::len_utf8);
+        let comment = |mut at: usize| {
+            if b.get(at) != Some(&b'#') {
+                return None;
+            }
+            at += 1;
+            while at < b.len() && newline(at).is_none() {
+                at += char_len(at);
+            }
+            Some(at)
+        };
+        let quoted = |mut at: usize| {
+            if b.get(at) != Some(&b'"') {
+                return None;
+            }
+            at += 1;
+            loop {
+                if b.get(at) == Some(&b'\\') && at + 1 < b.len() && newline(at + 1).is_none() {
+                    at += 1 + char_len(at + 1);
+                } else if at < b.len() && b[at] != b'"' && newline(at).is_none() {
+                    at += char_len(at);
+                } else {
+                    break;
+                }
+            }
+            (b.get(at) == Some(&b'"')).then_some(at + 1)
+        };
+        let continuation = |at: usize| {
+            if b.get(at) != Some(&b',') {
+                return None;
+            }
+            let mut end = None;
+            let mut at = at + 1;
+            loop {
+                let mut p = at;
+                while matches!(b.get(p), Some(b' ' | b'\t')) {
+                    p += 1;
+                }
+                p = comment(p).unwrap_or(p);
+                match newline(p) {
+                    Some(n) => {
+                        at = p + n;
+                        end = Some(at);
+                    }
+                    None => return end,
+                }
+            }
+        };
+        let mut lines = Vec::new();
+        let mut at = 0;
+        loop {
+            let start = at;
+            loop {
+                if let Some(n) = quoted(at)
+                    .or_else(|| continuation(at))
+                    .or_else(|| comment(at))
+                {
+                    at = n;
+                } else if at < b.len() && newline(at).is_none() {
+                    at += char_len(at);
+                } else {
+                    break;
+                }
+            }
+            lines.push((start, &src[start..at]));
+            match newline(at) {
+                Some(n) => at += n,
+                None => break,
+            }
+        }
+        lines
+    }
+
+    proptest::proptest! {
+        /// Skipping runs in one step cuts every text into the same logical
+        /// lines as going a character at a time.
+        #[test]
+        fn runs_skipped_in_one_step_cut_the_same_lines(
+            parts in proptest::collection::vec(
+                proptest::sample::select(vec![
+                    "a", "features", " ", "\t", ",", ", ", "\"", "\\", "#", "# note",
+                    "\n", "\r\n", "\r", "é", "x, y", "\"a b\"",
+                ]),
+                0..40,
+            )
+        ) {
+            let text: String = parts.concat();
+            let cut = logical_lines(&text).unwrap();
+            proptest::prop_assert_eq!(cut, cut_one_char_at_a_time(&text), "{:?}", text);
+        }
+    }
+
     #[track_caller]
     fn one(src: &str) -> Statement {
         let r = parse(src);
