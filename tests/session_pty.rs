@@ -3,7 +3,8 @@
 //! statement keeps the session and its statements, and during a run stops
 //! the run (a real SIGINT: the terminal is the session's controlling
 //! terminal) and keeps them too; a three-line paste (bracketed, as
-//! terminals send it) enters three statements; Tab completes in context;
+//! terminals send it) enters three statements; Tab completes in context
+//! and a second Tab lists the candidates; hints are dimmed;
 //! leaving with unsaved changes asks, and staying or leaving without saving
 //! both work.
 
@@ -30,6 +31,11 @@ struct Terminal {
 
 impl Terminal {
     fn start(case: &Case, recipe: &str) -> Terminal {
+        Terminal::start_in_colour(case, recipe, false)
+    }
+
+    /// As [`Terminal::start`], with `NO_COLOR` unset when `colour`.
+    fn start_in_colour(case: &Case, recipe: &str, colour: bool) -> Terminal {
         let (mut master, mut slave) = (0, 0);
         // SAFETY: openpty writes two new descriptors into the locals; null
         // name, termios and window size ask for the defaults.
@@ -61,10 +67,13 @@ impl Terminal {
                 Ok(())
             });
         }
+        command.env_remove("NO_COLOR");
+        if !colour {
+            command.env("NO_COLOR", "1");
+        }
         let child = command
             .args(["repl", recipe])
             .current_dir(case.dir.path())
-            .env("NO_COLOR", "1")
             .env("HOME", case.dir.path())
             .env("TERM", "xterm")
             .stdin(Stdio::from(slave.try_clone().unwrap()))
@@ -412,4 +421,38 @@ fn opening_another_recipe_with_unsaved_changes_asks_first() {
         case.read("other.assort"),
         "input \"data/members.csv\" key member_id\nseed 9\n"
     );
+}
+
+/// Tab completes what every candidate shares and a second Tab lists them
+/// all on one line (it used to cycle through them one at a time); the
+/// hint after a statement word is dimmed, so it does not pass for typed
+/// text.
+#[test]
+fn a_second_tab_lists_the_candidates_and_hints_are_dimmed() {
+    let case = case();
+    let mut t = Terminal::start_in_colour(&case, "session.assort", true);
+    t.wait_for_prompt("assort> ");
+    t.type_keys("input \"data/members.csv\" key member_id\r");
+    t.wait_for_prompt("assort> ");
+    t.type_keys("features \t");
+    std::thread::sleep(Duration::from_millis(300));
+    t.type_keys("\t");
+    std::thread::sleep(Duration::from_millis(300));
+    t.type_keys("\x03");
+    let shown = t.text_before("Ctrl-C cleared the line");
+    let listed = shown.lines().any(|l| {
+        let words: Vec<&str> = l.split_whitespace().collect();
+        words.contains(&"tenure_months") && words.contains(&"visits_per_month")
+    });
+    assert!(listed, "no line lists both columns:\n{shown:?}");
+    t.wait_for_prompt("assort> ");
+    t.type_keys("scale ");
+    t.wait_for("\x1b[2mzscore");
+    t.type_keys("\x03");
+    t.wait_for("Ctrl-C cleared the line");
+    t.wait_for_prompt("assort> ");
+    t.type_keys(":quit\r");
+    t.wait_for_prompt("has unsaved changes");
+    t.type_keys("n\r");
+    assert!(t.finish().success());
 }
