@@ -16,6 +16,7 @@ pub mod compare;
 pub mod criteria;
 pub mod drift;
 pub mod evidence;
+pub mod exact;
 pub mod gower;
 pub mod kmeans;
 pub mod kmedoids;
