@@ -27,6 +27,8 @@ pub mod parquet;
 pub mod plan;
 pub mod repl;
 pub mod run;
+pub mod scale;
 pub mod session;
+pub mod sql_words;
 pub mod syntax;
 pub mod text;

@@ -34,40 +34,7 @@ use crate::run::prepare::BLANK_LEVEL;
 use crate::run::rules::SegmentRule;
 use std::fmt::Write as _;
 
-/// An identifier, double-quoted (quotes inside doubled).
-pub fn ident(name: &str) -> String {
-    format!("\"{}\"", name.replace('"', "\"\""))
-}
-
-/// A text literal, single-quoted (quotes inside doubled).
-pub fn text(value: &str) -> String {
-    format!("'{}'", value.replace('\'', "''"))
-}
-
-/// Text for a `--` comment: a line break ends a comment and makes the rest
-/// of the line live SQL, so every control character (line feed, carriage
-/// return, vertical tab, form feed and the rest) and the Unicode line and
-/// paragraph separators are written as a visible `\u{..}` escape instead.
-/// Recipe names and file names reach the comments this way; they can hold
-/// any of these (a file name may hold a line feed).
-pub fn comment(text: &str) -> String {
-    let mut out = String::with_capacity(text.len());
-    for c in text.chars() {
-        if c.is_control() || matches!(c, '\u{2028}' | '\u{2029}') {
-            out.extend(c.escape_unicode());
-        } else {
-            out.push(c);
-        }
-    }
-    out
-}
-
-/// A number with every digit needed to read back the same `f64`.
-pub fn number(v: f64) -> String {
-    // `1e-7` and `1e21` are standard SQL; `inf` and `NaN` never reach
-    // here (a model holds finite numbers).
-    format!("{v:?}")
-}
+pub use crate::sql_words::{comment, ident, number, text};
 
 /// A number column as the queries read it: a gap when its text is empty
 /// after trimming spaces (NULL, or `''` in an all-text table), else the
@@ -218,7 +185,12 @@ pub fn scoring_query(model: &SegmentModel, table: &str, recipe: &str) -> String 
     let k = model.centres.len();
     let branches = |q: &mut String, value: &dyn Fn(usize) -> String| {
         for s in 0..k {
-            let _ = writeln!(q, "    {} {}", when(s, k), value(s));
+            let _ = writeln!(
+                q,
+                "    {} {}",
+                crate::sql_words::nearest_branch(s, k),
+                value(s)
+            );
         }
     };
     branches(&mut q, &|s| model.segments[s].segment.to_string());
@@ -330,17 +302,6 @@ fn dimensions(model: &SegmentModel) -> (Vec<String>, Vec<String>) {
         }
     }
     (dims, guards)
-}
-
-/// The branch of centre `s` of `k`: reached only when no earlier centre is
-/// at least as near, so `<=` against the later ones sends a tie to the
-/// earlier centre, as assort does; the last centre is what is left.
-fn when(s: usize, k: usize) -> String {
-    if s + 1 == k {
-        return "ELSE".to_string();
-    }
-    let cond: Vec<String> = (s + 1..k).map(|j| format!("d{s} <= d{j}")).collect();
-    format!("WHEN {} THEN", cond.join(" AND "))
 }
 
 /// Each segment's rule as one query: the key and the segment, label and

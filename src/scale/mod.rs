@@ -1,0 +1,6 @@
+//! Segments where the data lives (docs/scale-out.md): k-means rounds run
+//! by an engine that holds the records (a database, a cluster), the driver
+//! here keeping only the centres and each round's exact sums
+//! ([`crate::engine::exact`]).
+
+pub mod round;
