@@ -148,3 +148,109 @@ fn a_round_in_postgresql_sums_exactly_as_in_memory_in_one_table_or_four_partitio
         .sum();
     assert!(launched > 0, "no parallel worker ran:\n{}", plan.join("\n"));
 }
+
+/// The variables a service file `[coop]` pointing at `pg` needs, as the
+/// environment a run would read (a map: the process's own is left alone).
+fn coop_env(pg: &Postgres, dir: &std::path::Path) -> impl Fn(&str) -> Option<String> {
+    let file = dir.join("pg_service.conf");
+    std::fs::write(
+        &file,
+        format!(
+            "# a comment\n[other]\nhost=/nowhere\nuser=someone\n\n[coop]\nhost={}\nport=5432\nuser=assort\ndbname=postgres\n",
+            pg.socket_dir().display()
+        ),
+    )
+    .unwrap();
+    move |var: &str| (var == "PGSERVICEFILE").then(|| file.display().to_string())
+}
+
+/// Through the client library, a connection named in a service file: a
+/// round gives the in-memory sums, every statement runs read-only, and a
+/// recipe's query that would write (a `DELETE`, a `CREATE`, a second
+/// statement after `;`, a writing `WITH`, a sequence moved from a
+/// `SELECT`) is refused and changes nothing; a connection that cannot be
+/// made and a table that does not exist are named in their messages.
+#[test]
+fn a_named_connection_reads_only_and_refuses_queries_that_write() {
+    use assort::scale::postgres::{DbError, Target};
+    let Some(pg) = Postgres::start() else {
+        return;
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let env = coop_env(&pg, dir.path());
+    let scaled = wine(1, true);
+    load(&pg, "wine_z", &scaled, 1);
+    pg.psql("CREATE SEQUENCE visits;").unwrap();
+
+    let target = Target::resolve("coop", &env).unwrap();
+    assert_eq!(target.user, "assort");
+    assert!(target
+        .describe()
+        .contains("database `postgres` as `assort`"));
+    let mut db = target.connect().unwrap();
+    let shifts = Shifts::of_data(scaled.view()).unwrap();
+    let centres: Vec<f64> = scaled
+        .rows()
+        .into_iter()
+        .take(3)
+        .flatten()
+        .copied()
+        .collect();
+    let features: Vec<String> = (0..13).map(|j| format!("x{j}")).collect();
+    assert_eq!(
+        db.round("wine_z", &features, &centres, &shifts).unwrap(),
+        exact::round(scaled.view(), &centres, &shifts)
+    );
+
+    assert_eq!(
+        db.check_query("SELECT id, x0 FROM wine_z WHERE x0 > 0")
+            .unwrap(),
+        vec!["id", "x0"]
+    );
+    for (query, refused) in [
+        ("DELETE FROM wine_z", "returns no columns"),
+        ("DELETE FROM wine_z RETURNING id", "syntax error"),
+        ("CREATE TABLE stolen (id INTEGER)", "returns no columns"),
+        ("SELECT 1; DELETE FROM wine_z", "multiple commands"),
+        (
+            "WITH gone AS (DELETE FROM wine_z RETURNING id) SELECT id FROM gone",
+            "",
+        ),
+    ] {
+        let e = db.check_query(query).unwrap_err();
+        assert!(matches!(e, DbError::NotOneQuery { .. }), "{query}: {e}");
+        assert!(e.to_string().contains(refused), "{query}: {e}");
+        assert!(e.to_string().contains("`coop`"), "{e}");
+    }
+    // A function with a side effect, called from a SELECT: refused by the
+    // read-only transaction when it runs.
+    let e = db
+        .read("SELECT CAST(nextval('visits') AS VARCHAR)", "a sample")
+        .unwrap_err();
+    assert!(matches!(e, DbError::Writes { .. }), "{e}");
+    let after = pg
+        .psql("SELECT count(*), (SELECT count(*) FROM pg_class WHERE relname = 'stolen'), (SELECT last_value FROM visits), (SELECT is_called FROM visits) FROM wine_z;")
+        .unwrap();
+    assert_eq!(after[1].iter().collect::<Vec<_>>(), ["178", "0", "1", "f"]);
+
+    // A table that does not exist; a connection that cannot be made.
+    let e = db
+        .round("no_such_table", &features, &centres, &shifts)
+        .unwrap_err();
+    assert!(
+        e.to_string().contains("`coop` failed at a k-means round"),
+        "{e}"
+    );
+    assert!(e.to_string().contains("no_such_table"), "{e}");
+    let e = Target::resolve("other", &env)
+        .unwrap()
+        .connect()
+        .unwrap_err();
+    assert!(matches!(e, DbError::CannotConnect { .. }), "{e}");
+    assert!(
+        e.to_string().contains("`other`") && e.to_string().contains("/nowhere"),
+        "{e}"
+    );
+    let e = Target::resolve("missing", &env).unwrap_err();
+    assert!(e.to_string().contains("no section [missing]"), "{e}");
+}

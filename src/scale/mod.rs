@@ -3,4 +3,5 @@
 //! here keeping only the centres and each round's exact sums
 //! ([`crate::engine::exact`]).
 
+pub mod postgres;
 pub mod round;

@@ -42,8 +42,8 @@ fn fixed_sum(value: &str, shift: Shift) -> String {
 /// The query for one round over `source` (a table or a parenthesised query
 /// with an alias, as it may follow `FROM`), whose prepared features are
 /// the SQL expressions `features` (doubles, no gaps), with `centres` (k
-/// rows of d in one slice). Rows: segment, records, d sums, within; only
-/// segments that drew records, in segment order.
+/// rows of d in one slice). Rows, every value text: segment, records, d
+/// sums, within; only segments that drew records, in no set order.
 pub fn round_query(source: &str, features: &[String], centres: &[f64], shifts: &Shifts) -> String {
     let d = features.len();
     let k = centres.len() / d.max(1);
@@ -82,7 +82,7 @@ pub fn round_query(source: &str, features: &[String], centres: &[f64], shifts: &
         .collect();
     let _ = write!(
         q,
-        "SELECT segment, CAST(COUNT(*) AS VARCHAR) AS records,\n       {},\n       {} AS within\nFROM placed\nGROUP BY segment\nORDER BY segment\n",
+        "SELECT CAST(segment AS VARCHAR) AS segment, CAST(COUNT(*) AS VARCHAR) AS records,\n       {},\n       {} AS within\nFROM placed\nGROUP BY placed.segment\n",
         sums.join(",\n       "),
         fixed_sum("nearest", shifts.within)
     );

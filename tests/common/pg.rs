@@ -182,6 +182,12 @@ impl Postgres {
         Ok(reader.records().map(|r| r.unwrap()).collect())
     }
 
+    /// The folder of the server's Unix socket (its port is 5432, its user
+    /// `assort`, its database `postgres`).
+    pub fn socket_dir(&self) -> &Path {
+        self.dir.path()
+    }
+
     /// Runs SQL text as [`Postgres::psql_file`] does.
     pub fn psql(&self, sql: &str) -> Result<Vec<csv::StringRecord>, String> {
         let script = self.dir.path().join("script.sql");

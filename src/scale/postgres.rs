@@ -1,0 +1,282 @@
+//! A PostgreSQL database where the data lives. A recipe names a
+//! connection; how to reach it and log in comes from where PostgreSQL's own
+//! tools take it, never from the recipe: the service file (`PGSERVICEFILE`,
+//! else `~/.pg_service.conf`, else `pg_service.conf` in `PGSYSCONFDIR`),
+//! then the environment (`PGHOST`, `PGPORT`, `PGDATABASE`, `PGUSER`,
+//! `PGPASSWORD`). A recipe may come from a colleague, so every statement
+//! assort sends runs in a read-only transaction, and a recipe's own query
+//! is checked to be one statement that only reads.
+
+use crate::engine::exact::{RoundSums, Shifts};
+use postgres::error::SqlState;
+use postgres::{Client, NoTls};
+use std::collections::HashMap;
+use std::path::PathBuf;
+
+/// What went wrong, naming the connection (and the table or query).
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum DbError {
+    #[error("connection `{connection}` is not described: {reason}")]
+    Unknown { connection: String, reason: String },
+    #[error("cannot connect to `{connection}` ({target}): {reason}")]
+    CannotConnect {
+        connection: String,
+        target: String,
+        reason: String,
+    },
+    #[error("the query of `{connection}` would change the database ({reason}); assort only reads")]
+    Writes { connection: String, reason: String },
+    #[error("the query of `{connection}` is not one statement that reads: {reason}")]
+    NotOneQuery { connection: String, reason: String },
+    #[error("`{connection}` failed at {what}: {reason}")]
+    Failed {
+        connection: String,
+        what: String,
+        reason: String,
+    },
+}
+
+/// Where a named connection leads. The password, when one is found, is
+/// kept out of every message and record.
+#[derive(Clone, PartialEq)]
+pub struct Target {
+    pub name: String,
+    pub host: String,
+    pub port: u16,
+    pub dbname: String,
+    pub user: String,
+    password: Option<String>,
+}
+
+impl std::fmt::Debug for Target {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&self.describe())
+    }
+}
+
+impl Target {
+    /// The connection `name`: its section of the service file, completed
+    /// from the environment (`env` reads a variable; the process's own in
+    /// use, a map in tests). O(size of the service file).
+    pub fn resolve(name: &str, env: &dyn Fn(&str) -> Option<String>) -> Result<Target, DbError> {
+        let unknown = |reason: String| DbError::Unknown {
+            connection: name.to_string(),
+            reason,
+        };
+        let service = service_section(name, env).map_err(unknown)?;
+        let pick = |key: &str, var: &str| service.get(key).cloned().or_else(|| env(var));
+        let port = match pick("port", "PGPORT") {
+            Some(p) => p
+                .trim()
+                .parse()
+                .map_err(|_| unknown(format!("port `{p}` is not a port number")))?,
+            None => 5432,
+        };
+        let user = pick("user", "PGUSER")
+            .or_else(|| env("USER"))
+            .ok_or_else(|| unknown("no user: give `user` in its service or set PGUSER".into()))?;
+        Ok(Target {
+            name: name.to_string(),
+            host: pick("host", "PGHOST").unwrap_or_else(|| "/var/run/postgresql".into()),
+            port,
+            dbname: pick("dbname", "PGDATABASE").unwrap_or_else(|| user.clone()),
+            user,
+            password: pick("password", "PGPASSWORD"),
+        })
+    }
+
+    /// The connection in words, without its password: for messages and
+    /// the run record.
+    pub fn describe(&self) -> String {
+        format!(
+            "database `{}` as `{}` at {} port {}",
+            self.dbname, self.user, self.host, self.port
+        )
+    }
+
+    /// Connects; nothing is sent but the log-in until a read.
+    pub fn connect(&self) -> Result<Database, DbError> {
+        let mut config = postgres::Config::new();
+        config
+            .host(&self.host)
+            .port(self.port)
+            .user(&self.user)
+            .dbname(&self.dbname)
+            .application_name("assort")
+            .connect_timeout(std::time::Duration::from_secs(10));
+        if let Some(p) = &self.password {
+            config.password(p);
+        }
+        let client = config.connect(NoTls).map_err(|e| DbError::CannotConnect {
+            connection: self.name.clone(),
+            target: self.describe(),
+            reason: reason(&e),
+        })?;
+        Ok(Database {
+            client,
+            name: self.name.clone(),
+        })
+    }
+}
+
+/// The section `[name]` of the first service file found, as key = value.
+fn service_section(
+    name: &str,
+    env: &dyn Fn(&str) -> Option<String>,
+) -> Result<HashMap<String, String>, String> {
+    let files: Vec<PathBuf> = [
+        env("PGSERVICEFILE").map(PathBuf::from),
+        env("HOME").map(|h| PathBuf::from(h).join(".pg_service.conf")),
+        env("PGSYSCONFDIR").map(|d| PathBuf::from(d).join("pg_service.conf")),
+    ]
+    .into_iter()
+    .flatten()
+    .collect();
+    for file in &files {
+        let Ok(text) = std::fs::read_to_string(file) else {
+            continue;
+        };
+        let mut inside = false;
+        let mut found: Option<HashMap<String, String>> = None;
+        for line in text.lines().map(str::trim) {
+            if line.is_empty() || line.starts_with('#') {
+                continue;
+            }
+            if let Some(section) = line.strip_prefix('[').and_then(|l| l.strip_suffix(']')) {
+                inside = section.trim() == name;
+                if inside {
+                    found = Some(HashMap::new());
+                }
+                continue;
+            }
+            if let (true, Some(map), Some((k, v))) = (inside, found.as_mut(), line.split_once('='))
+            {
+                map.insert(k.trim().to_string(), v.trim().to_string());
+            }
+        }
+        if let Some(map) = found {
+            return Ok(map);
+        }
+    }
+    if files.is_empty() {
+        return Err("no service file (set PGSERVICEFILE, or write ~/.pg_service.conf)".into());
+    }
+    let places: Vec<String> = files.iter().map(|f| format!("`{}`", f.display())).collect();
+    Err(format!("no section [{name}] in {}", places.join(" or ")))
+}
+
+/// A server's message without the client library's framing.
+fn reason(e: &postgres::Error) -> String {
+    match e.as_db_error() {
+        Some(db) => db.message().to_string(),
+        None => e.to_string(),
+    }
+}
+
+/// An open connection.
+pub struct Database {
+    client: Client,
+    name: String,
+}
+
+impl std::fmt::Debug for Database {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "connection `{}`", self.name)
+    }
+}
+
+impl Database {
+    /// Runs one statement in a read-only transaction (rolled back after),
+    /// every selected value as text (NULL as `None`; a value of another
+    /// type is an error: select text). `what` names the step for
+    /// messages.
+    pub fn read(&mut self, sql: &str, what: &str) -> Result<Vec<Vec<Option<String>>>, DbError> {
+        let name = self.name.clone();
+        let failed = |e: postgres::Error| -> DbError {
+            if e.code() == Some(&SqlState::READ_ONLY_SQL_TRANSACTION) {
+                DbError::Writes {
+                    connection: name.clone(),
+                    reason: reason(&e),
+                }
+            } else {
+                DbError::Failed {
+                    connection: name.clone(),
+                    what: what.to_string(),
+                    reason: reason(&e),
+                }
+            }
+        };
+        let mut tx = self
+            .client
+            .build_transaction()
+            .read_only(true)
+            .start()
+            .map_err(failed)?;
+        // One statement only: the extended protocol refuses a second.
+        let rows = tx.query(sql, &[]).map_err(failed)?;
+        tx.rollback().map_err(failed)?;
+        let mut out = Vec::with_capacity(rows.len());
+        for r in &rows {
+            let values: Result<Vec<Option<String>>, postgres::Error> = (0..r.len())
+                .map(|i| r.try_get::<_, Option<String>>(i))
+                .collect();
+            out.push(values.map_err(failed)?);
+        }
+        Ok(out)
+    }
+
+    /// One k-means round over `source` (see [`super::round`]).
+    pub fn round(
+        &mut self,
+        source: &str,
+        features: &[String],
+        centres: &[f64],
+        shifts: &Shifts,
+    ) -> Result<RoundSums, DbError> {
+        let d = features.len();
+        let query = super::round::round_query(source, features, centres, shifts);
+        let rows = self.read(&query, "a k-means round")?;
+        let text: Vec<Vec<String>> = rows
+            .into_iter()
+            .map(|r| r.into_iter().map(Option::unwrap_or_default).collect())
+            .collect();
+        super::round::parse_round(&text, centres.len() / d.max(1), d).map_err(|reason| {
+            DbError::Failed {
+                connection: self.name.clone(),
+                what: "reading a round's sums".into(),
+                reason,
+            }
+        })
+    }
+
+    /// A recipe's own query, checked to be one statement that only reads,
+    /// and its columns' names. It is prepared (a second statement after `;`
+    /// is refused), then run as a subquery that returns no row (a data
+    /// changing statement cannot stand there), in a read-only transaction
+    /// (a function that writes is refused by the server).
+    pub fn check_query(&mut self, query: &str) -> Result<Vec<String>, DbError> {
+        let name = self.name.clone();
+        let not_one = |reason: String| DbError::NotOneQuery {
+            connection: name.clone(),
+            reason,
+        };
+        let statement = self
+            .client
+            .prepare(query)
+            .map_err(|e| not_one(reason(&e)))?;
+        let columns: Vec<String> = statement
+            .columns()
+            .iter()
+            .map(|c| c.name().to_string())
+            .collect();
+        if columns.is_empty() {
+            return Err(not_one("it returns no columns".into()));
+        }
+        let wrapped = format!("SELECT * FROM ({query}) AS recipe_input LIMIT 0");
+        match self.read(&wrapped, "checking the recipe's query") {
+            Ok(_) => Ok(columns),
+            Err(DbError::Failed { reason, .. }) => Err(not_one(reason)),
+            Err(e) => Err(e),
+        }
+    }
+}
