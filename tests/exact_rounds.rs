@@ -95,12 +95,20 @@ fn round_in(
     parse_round(&rows, centres.len() / d, d).unwrap()
 }
 
+/// The shifts of `data`, its first `k` records as centres, and its
+/// features as the loaded tables name them.
+fn start_of(data: &Array2<f64>, k: usize) -> (Shifts, Vec<f64>, Vec<String>) {
+    let shifts = Shifts::of_data(data.view()).unwrap();
+    let centres = data.rows().into_iter().take(k).flatten().copied().collect();
+    let features = (0..data.ncols()).map(|j| format!("x{j}")).collect();
+    (shifts, centres, features)
+}
+
 /// Ten rounds from the first `k` records as centres, in memory and in
 /// `table`: the same sums at every round, so the same centres.
 fn ten_rounds_agree(pg: &Postgres, table: &str, data: &Array2<f64>, k: usize, settings: &str) {
     let d = data.ncols();
-    let shifts = Shifts::of_data(data.view()).unwrap();
-    let mut centres: Vec<f64> = data.rows().into_iter().take(k).flatten().copied().collect();
+    let (shifts, mut centres, _) = start_of(data, k);
     for round in 0..10 {
         let here = exact::round(data.view(), &centres, &shifts);
         let there = round_in(pg, table, d, &centres, &shifts, settings);
@@ -125,15 +133,7 @@ fn a_round_in_postgresql_sums_exactly_as_in_memory_in_one_table_or_four_partitio
     ten_rounds_agree(&pg, "wine_parts", &scaled, 3, PARALLEL);
 
     // The partitioned round really ran on workers.
-    let shifts = Shifts::of_data(scaled.view()).unwrap();
-    let centres: Vec<f64> = scaled
-        .rows()
-        .into_iter()
-        .take(3)
-        .flatten()
-        .copied()
-        .collect();
-    let features: Vec<String> = (0..13).map(|j| format!("x{j}")).collect();
+    let (shifts, centres, features) = start_of(&scaled, 3);
     let plan = pg
         .psql(&format!(
             "{PARALLEL}EXPLAIN (ANALYZE, COSTS OFF) {};",
@@ -168,10 +168,9 @@ fn coop_env(pg: &Postgres, dir: &std::path::Path) -> impl Fn(&str) -> Option<Str
 /// round gives the in-memory sums, every statement runs read-only, and a
 /// recipe's query that would write (a `DELETE`, a `CREATE`, a second
 /// statement after `;`, a writing `WITH`, a sequence moved from a
-/// `SELECT`) is refused and changes nothing; a connection that cannot be
-/// made and a table that does not exist are named in their messages.
+/// `SELECT`) is refused and changes nothing.
 #[test]
-fn a_named_connection_reads_only_and_refuses_queries_that_write() {
+fn a_named_connection_rounds_as_in_memory_and_refuses_queries_that_write() {
     use assort::scale::postgres::{DbError, Target};
     let Some(pg) = Postgres::start() else {
         return;
@@ -188,15 +187,7 @@ fn a_named_connection_reads_only_and_refuses_queries_that_write() {
         .describe()
         .contains("database `postgres` as `assort`"));
     let mut db = target.connect().unwrap();
-    let shifts = Shifts::of_data(scaled.view()).unwrap();
-    let centres: Vec<f64> = scaled
-        .rows()
-        .into_iter()
-        .take(3)
-        .flatten()
-        .copied()
-        .collect();
-    let features: Vec<String> = (0..13).map(|j| format!("x{j}")).collect();
+    let (shifts, centres, features) = start_of(&scaled, 3);
     assert_eq!(
         db.round("wine_z", &features, &centres, &shifts).unwrap(),
         exact::round(scaled.view(), &centres, &shifts)
@@ -232,8 +223,21 @@ fn a_named_connection_reads_only_and_refuses_queries_that_write() {
         .psql("SELECT count(*), (SELECT count(*) FROM pg_class WHERE relname = 'stolen'), (SELECT last_value FROM visits), (SELECT is_called FROM visits) FROM wine_z;")
         .unwrap();
     assert_eq!(after[1].iter().collect::<Vec<_>>(), ["178", "0", "1", "f"]);
+}
 
-    // A table that does not exist; a connection that cannot be made.
+/// A table that does not exist, a server that cannot be reached and a
+/// connection no service file holds: each message names the connection
+/// (and the table or the place).
+#[test]
+fn connections_that_fail_are_named() {
+    use assort::scale::postgres::{DbError, Target};
+    let Some(pg) = Postgres::start() else {
+        return;
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let env = coop_env(&pg, dir.path());
+    let (shifts, centres, features) = start_of(&wine(1, true), 3);
+    let mut db = Target::resolve("coop", &env).unwrap().connect().unwrap();
     let e = db
         .round("no_such_table", &features, &centres, &shifts)
         .unwrap_err();
