@@ -5,3 +5,4 @@
 
 pub mod postgres;
 pub mod round;
+pub mod sample;

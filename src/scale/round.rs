@@ -15,7 +15,7 @@
 //! - a value becomes `FLOOR(x * 2^s)`, cast to `BIGINT` (exact: it is an
 //!   integer below 2^61) and only then to `DECIMAL(38, 0)` for the sum.
 //!   A double cast straight to a decimal is rounded to 15 significant
-//!   digits by PostgreSQL (seen with version 15: tests/exact_rounds.rs
+//!   digits by PostgreSQL (seen with version 15: tests/scale_postgres.rs
 //!   fails when the query casts so);
 //! - sums come back as text, so no client library rounds them.
 //!

@@ -1,9 +1,14 @@
-//! A k-means round run as one SQL query in a real PostgreSQL server gives
-//! the same exact sums (`engine::exact`) as the round in memory: in one
-//! table, and in a table split into four partitions read by parallel
-//! workers (the plan is checked to have launched them). Ten Lloyd rounds
-//! driven by the database's sums land on the same centres, bit for bit, as
-//! ten rounds in memory, and the within-segment sums of squares agree.
+//! Segments where the data lives, in a real PostgreSQL server.
+//!
+//! - A k-means round run as one SQL query gives the same exact sums
+//!   (`engine::exact`) as the round in memory: in one table, and in a table
+//!   split into four partitions read by parallel workers (the plan is
+//!   checked to have launched them). Ten Lloyd rounds driven by the
+//!   database's sums land on the same centres, bit for bit, as ten rounds
+//!   in memory, and the within-segment sums of squares agree.
+//! - A connection named in a service file reads only: queries that would
+//!   write are refused and change nothing; failures name the connection.
+//! - The seeded sample drawn in the database is the one drawn here.
 //!
 //! Data: the Wine recognition data (UCI; tests/data/ATTRIBUTION.md), its
 //! 13 measurements z-scored here as the prepared features, and again
@@ -257,4 +262,56 @@ fn connections_that_fail_are_named() {
     );
     let e = Target::resolve("missing", &env).unwrap_err();
     assert!(e.to_string().contains("no section [missing]"), "{e}");
+}
+
+/// The seeded sample drawn in the database (the records of smallest
+/// SHA-256 rank of seed and key) is the sample assort draws from the same
+/// keys: integer keys, and text keys with accents, spaces, a quote and a
+/// repeated key; in one table and in four partitions.
+#[test]
+fn the_sample_drawn_in_postgresql_is_the_one_drawn_here() {
+    use assort::scale::sample::{draw, sample_query, Dialect};
+    let Some(pg) = Postgres::start() else {
+        return;
+    };
+    load(&pg, "wine_z", &wine(5, true), 1);
+    load(&pg, "wine_parts", &wine(5, true), 4);
+    let ids: Vec<String> = (0..890).map(|i| i.to_string()).collect();
+    let texts = [
+        "Müller-7",
+        "ß",
+        " spaced ",
+        "o'neil",
+        "M1",
+        "M1",
+        "Zoë",
+        "東京-3",
+        "m1",
+    ];
+    pg.psql(&format!(
+        "CREATE TABLE people (name VARCHAR);\nINSERT INTO people VALUES {};",
+        texts
+            .iter()
+            .map(|t| format!("('{}')", t.replace('\'', "''")))
+            .collect::<Vec<_>>()
+            .join(", ")
+    ))
+    .unwrap();
+    let keys_of = |rows: Vec<csv::StringRecord>| -> Vec<String> {
+        rows.iter().skip(1).map(|r| r[0].to_string()).collect()
+    };
+    for table in ["wine_z", "wine_parts"] {
+        let q = sample_query(table, "id", &["x0".into()], 2026, 100, Dialect::Postgres);
+        let there = keys_of(pg.psql(&format!("{PARALLEL}{q};")).unwrap());
+        // Wine repeated five times: each id once, 0..890.
+        let here: Vec<String> = draw(ids.iter().map(String::as_str), 2026, 100)
+            .into_iter()
+            .map(str::to_string)
+            .collect();
+        assert_eq!(there, here, "{table}");
+    }
+    let q = sample_query("people", "name", &[], 7, 6, Dialect::Postgres);
+    let there = keys_of(pg.psql(&format!("{q};")).unwrap());
+    let here: Vec<String> = draw(texts, 7, 6).into_iter().map(str::to_string).collect();
+    assert_eq!(there, here);
 }
