@@ -16,10 +16,11 @@
 //! Scaling by a power of two and `floor` are both exact on a double, so
 //! every engine that follows IEEE 754 (PostgreSQL, DataFusion, this crate)
 //! forms the same integer from the same double. Sums are held in 128 bits
-//! (`i128` here, `NUMERIC` or `DECIMAL(38, 0)` in SQL): 2^66 records could
-//! not overflow them. The driver turns a sum back into a double itself:
-//! `(sum as f64) * 2^-s_j`, then divides by the count. What `floor` drops
-//! is below `m_j * 2^-60`, far under a double's own precision at `m_j`.
+//! (`i128` here, `NUMERIC` or `DECIMAL(38, 0)` in SQL): fewer than
+//! 4 · 10^19 records (10^38 / 2^61) cannot overflow them. The driver turns
+//! a sum back into a double itself: `(sum as f64) * 2^-s_j`, then divides
+//! by the count. What `floor` drops is below `m_j * 2^-60`, far under a
+//! double's own precision at `m_j`.
 //!
 //! The within-segment sum of squares is summed the same way: each record's
 //! squared distance to its centre (computed in doubles, left to right as
