@@ -7,6 +7,7 @@
 //! decides whether the in-memory engine can take exact sums too. Settings:
 //! `BENCH_N` (1,000,000), `BENCH_D` (16), `BENCH_K` (8).
 
+use assort::engine::dist2;
 use assort::engine::exact::{self, Shifts};
 use assort::engine::kmeans::two_smallest;
 use assort::engine::rng::Stream;
@@ -32,11 +33,7 @@ fn float_round(data: &Array2<f64>, centres: &[f64]) -> (Vec<f64>, Vec<u64>) {
         .map(|part| {
             let (mut sums, mut counts) = (vec![0.0; k * d], vec![0u64; k]);
             for row in part.chunks_exact(d) {
-                let dists = centres.chunks_exact(d).map(|c| {
-                    c.iter()
-                        .zip(row)
-                        .fold(0.0, |s, (a, b)| s + (b - a) * (b - a))
-                });
+                let dists = centres.chunks_exact(d).map(|c| dist2(row, c));
                 let (best, _, _) = two_smallest(dists);
                 let at = best as usize;
                 counts[at] += 1;

@@ -133,6 +133,17 @@ pub fn parse_number_in(field: &str, mark: DecimalMark) -> Option<f64> {
     t.parse::<f64>().ok().filter(|v| v.is_finite())
 }
 
+/// Bytes as lower-case hexadecimal, two digits each (digests as the run
+/// record, the data digests and the sample's ranks write them).
+pub fn hex(bytes: &[u8]) -> String {
+    use std::fmt::Write as _;
+    let mut out = String::with_capacity(2 * bytes.len());
+    for b in bytes {
+        let _ = write!(out, "{b:02x}");
+    }
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::{and_list, count, odd_space_at_end, short_grouped, thousands, trim_spaces};

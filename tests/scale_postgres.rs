@@ -154,10 +154,14 @@ fn a_round_in_postgresql_sums_exactly_as_in_memory_in_one_table_or_four_partitio
     assert!(launched > 0, "no parallel worker ran:\n{}", plan.join("\n"));
 }
 
-/// The variables a service file `[coop]` pointing at `pg` needs, as the
-/// environment a run would read (a map: the process's own is left alone).
-fn coop_env(pg: &Postgres, dir: &std::path::Path) -> impl Fn(&str) -> Option<String> {
-    let file = dir.join("pg_service.conf");
+/// A server, and a service file in a temporary folder naming it `[coop]`
+/// (and an unreachable `[other]`), with the variables that point at that
+/// file as the environment a run would read (a map: the process's own is
+/// left alone). `None` where the server cannot start (see `Postgres`).
+fn coop() -> Option<(Postgres, tempfile::TempDir, impl Fn(&str) -> Option<String>)> {
+    let pg = Postgres::start()?;
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("pg_service.conf");
     std::fs::write(
         &file,
         format!(
@@ -166,7 +170,8 @@ fn coop_env(pg: &Postgres, dir: &std::path::Path) -> impl Fn(&str) -> Option<Str
         ),
     )
     .unwrap();
-    move |var: &str| (var == "PGSERVICEFILE").then(|| file.display().to_string())
+    let env = move |var: &str| (var == "PGSERVICEFILE").then(|| file.display().to_string());
+    Some((pg, dir, env))
 }
 
 /// Through the client library, a connection named in a service file: a
@@ -177,11 +182,9 @@ fn coop_env(pg: &Postgres, dir: &std::path::Path) -> impl Fn(&str) -> Option<Str
 #[test]
 fn a_named_connection_rounds_as_in_memory_and_refuses_queries_that_write() {
     use assort::scale::postgres::{DbError, Target};
-    let Some(pg) = Postgres::start() else {
+    let Some((pg, _dir, env)) = coop() else {
         return;
     };
-    let dir = tempfile::tempdir().unwrap();
-    let env = coop_env(&pg, dir.path());
     let scaled = wine(1, true);
     load(&pg, "wine_z", &scaled, 1);
     pg.psql("CREATE SEQUENCE visits;").unwrap();
@@ -236,11 +239,9 @@ fn a_named_connection_rounds_as_in_memory_and_refuses_queries_that_write() {
 #[test]
 fn connections_that_fail_are_named() {
     use assort::scale::postgres::{DbError, Target};
-    let Some(pg) = Postgres::start() else {
+    let Some((_pg, _dir, env)) = coop() else {
         return;
     };
-    let dir = tempfile::tempdir().unwrap();
-    let env = coop_env(&pg, dir.path());
     let (shifts, centres, features) = start_of(&wine(1, true), 3);
     let mut db = Target::resolve("coop", &env).unwrap().connect().unwrap();
     let e = db

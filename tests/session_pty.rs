@@ -160,6 +160,15 @@ impl Terminal {
         self.keys.flush().unwrap();
     }
 
+    /// `:quit`, answered "no" to saving: the session ends well.
+    #[track_caller]
+    fn leave_without_saving(mut self) {
+        self.type_keys(":quit\r");
+        self.wait_for_prompt("has unsaved changes");
+        self.type_keys("n\r");
+        assert!(self.finish().success());
+    }
+
     fn finish(mut self) -> std::process::ExitStatus {
         let deadline = Instant::now() + Duration::from_secs(20);
         loop {
@@ -251,10 +260,7 @@ fn leaving_a_saved_session_asks_nothing_and_no_leaves_without_saving() {
     t.wait_for_prompt("assort> ");
     t.type_keys("features tenure_months\r");
     t.wait_for_prompt("assort> ");
-    t.type_keys(":quit\r");
-    t.wait_for_prompt("has unsaved changes");
-    t.type_keys("n\r");
-    assert!(t.finish().success());
+    t.leave_without_saving();
     assert_eq!(
         case.read("kept.assort"),
         "input \"data/members.csv\" key member_id\n"
@@ -303,10 +309,7 @@ fn ctrl_c_during_a_run_stops_the_run_and_keeps_the_session() {
     t.type_keys("\x03");
     t.wait_for("Ctrl-C cleared the line");
     t.wait_for_prompt("assort> ");
-    t.type_keys(":quit\r");
-    t.wait_for_prompt("has unsaved changes");
-    t.type_keys("n\r");
-    assert!(t.finish().success());
+    t.leave_without_saving();
     assert!(!case.path("out").exists(), "the stopped run wrote outputs");
 }
 
@@ -451,8 +454,5 @@ fn a_second_tab_lists_the_candidates_and_hints_are_dimmed() {
     t.type_keys("\x03");
     t.wait_for("Ctrl-C cleared the line");
     t.wait_for_prompt("assort> ");
-    t.type_keys(":quit\r");
-    t.wait_for_prompt("has unsaved changes");
-    t.type_keys("n\r");
-    assert!(t.finish().success());
+    t.leave_without_saving();
 }

@@ -93,11 +93,8 @@ impl Fit {
     /// `label` broken into lines that fit beside an underline whose
     /// middle is `column` characters into the recipe's line (a label's
     /// own width is never cut: a word longer than the room keeps its
-    /// line).
+    /// line). Only on a terminal.
     fn label(self, label: &str, column: usize) -> String {
-        if !self.wrap_labels {
-            return label.to_string();
-        }
         // The label starts four columns right of the underline's middle.
         let room = self.limit.saturating_sub(column + 4).max(self.label_line);
         let mut out = String::new();
@@ -214,21 +211,21 @@ impl<'a> Shown<'a> {
                     LabeledSpan::new(l.label().map(clip_quotes), start, end - start)
                 })
                 .collect();
-            let cut = Some((text.to_string(), window.kept));
+            // On a terminal every recipe passes here; only a recipe with
+            // a line actually cut needs the original kept beside it.
+            let cut = (window.text != text).then(|| (text.to_string(), window.kept));
             (window.text, moved, cut)
         } else {
             (text.to_string(), labels, None)
         };
-        let labels = labels
-            .into_iter()
-            .map(|l| match l.label() {
-                Some(words) => {
-                    let column = middle_column(&source, l.offset(), l.len());
-                    LabeledSpan::new(Some(fit.label(words, column)), l.offset(), l.len())
-                }
-                None => l,
-            })
-            .collect();
+        let labels = if fit.wrap_labels {
+            labels
+                .into_iter()
+                .map(|l| wrapped(l, &source, fit))
+                .collect()
+        } else {
+            labels
+        };
         Shown {
             inner,
             message: clip_quotes(&inner.to_string()),
@@ -363,7 +360,8 @@ impl Window {
                 .iter()
                 .filter(|p| p.start <= end && p.end >= start)
                 .collect();
-            let short = body.len() <= fit.limit || body.chars().count() <= fit.limit;
+            let chars = body.chars().count();
+            let short = chars <= fit.limit;
             let labels_fit = on_line.iter().all(|p| {
                 p.room == 0 || (char_of(p.start) + char_of(p.end)) / 2 + p.room <= fit.limit
             });
@@ -371,7 +369,6 @@ impl Window {
                 out.keep(text, start, at);
                 continue;
             }
-            let chars = body.chars().count();
             let pointed: Vec<(usize, usize, usize)> = on_line
                 .iter()
                 .map(|p| (char_of(p.start), char_of(p.end), p.room))
@@ -499,6 +496,17 @@ fn fits(
                 (Some(a), Some(b)) => (a + b) / 2 + room <= limit,
                 _ => false,
             })
+}
+
+/// A label broken into lines that fit beside its underline in `source`.
+fn wrapped(l: LabeledSpan, source: &str, fit: Fit) -> LabeledSpan {
+    match l.label() {
+        Some(words) => {
+            let column = middle_column(source, l.offset(), l.len());
+            LabeledSpan::new(Some(fit.label(words, column)), l.offset(), l.len())
+        }
+        None => l,
+    }
 }
 
 /// The column of the middle of a span, in characters from its line's

@@ -50,10 +50,7 @@ pub struct RunRecord {
 
 /// Lowercase hex SHA-256 of some bytes.
 pub fn sha256_hex(bytes: &[u8]) -> String {
-    Sha256::digest(bytes)
-        .iter()
-        .map(|b| format!("{b:02x}"))
-        .collect()
+    crate::text::hex(&Sha256::digest(bytes))
 }
 
 pub use crate::run::load::file_sha256;

@@ -699,13 +699,7 @@ pub fn file_sha256(path: &std::path::Path) -> Option<String> {
             let name = part.file_name()?.to_string_lossy().into_owned();
             hasher.update(format!("{name} {}\n", file_sha256(&part)?));
         }
-        return Some(
-            hasher
-                .finalize()
-                .iter()
-                .map(|b| format!("{b:02x}"))
-                .collect(),
-        );
+        return Some(crate::text::hex(&hasher.finalize()));
     }
     use std::io::Read;
     let mut file = std::fs::File::open(path).ok()?;
@@ -718,13 +712,7 @@ pub fn file_sha256(path: &std::path::Path) -> Option<String> {
         }
         hasher.update(&buf[..got]);
     }
-    Some(
-        hasher
-            .finalize()
-            .iter()
-            .map(|b| format!("{b:02x}"))
-            .collect(),
-    )
+    Some(crate::text::hex(&hasher.finalize()))
 }
 
 /// A note for each text column (`columns`, as read into `table.text`) with

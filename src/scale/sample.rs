@@ -12,8 +12,8 @@
 //! Cost in the engine: one scan, a digest per record, and a top-`size`
 //! sort: O(n log size).
 
+use crate::text::hex;
 use sha2::{Digest, Sha256};
-use std::fmt::Write as _;
 
 /// The SQL dialects that differ in how text is digested.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -27,15 +27,6 @@ pub enum Dialect {
 /// A record's rank: the digest of `seed:key`, in lower-case hexadecimal.
 pub fn rank(seed: u64, key: &str) -> String {
     hex(&Sha256::digest(format!("{seed}:{key}").as_bytes()))
-}
-
-/// Bytes as lower-case hexadecimal, two digits each.
-fn hex(bytes: &[u8]) -> String {
-    let mut out = String::with_capacity(2 * bytes.len());
-    for b in bytes {
-        let _ = write!(out, "{b:02x}");
-    }
-    out
 }
 
 /// The rank in SQL, for the key expression `key` (any type: read as its
