@@ -662,13 +662,22 @@ impl Progress {
     }
 }
 
+/// The input as a run would read it: the file's path, or the table or
+/// query on its connection.
+fn input_shown(plan: &Plan) -> String {
+    match plan.input.database {
+        Some(_) => plan.input.shown(),
+        None => shown(&plan.input.resolved),
+    }
+}
+
 /// What a run would read and write.
 fn dry_run_listing(source: &RecipeSource, plan: &Plan) -> String {
     let mut s = format!(
         "dry run of `{}`: nothing is read beyond the header, nothing is written\n",
         source.name()
     );
-    s.push_str(&format!("  would read  {}\n", shown(&plan.input.resolved)));
+    s.push_str(&format!("  would read  {}\n", input_shown(plan)));
     if let Some(v) = &plan.validate {
         s.push_str(&format!("  would read  {}\n", shown(&v.resolved)));
     }
@@ -688,7 +697,7 @@ fn dry_run_json(
     plan: &Plan,
     diagnostics: serde_json::Value,
 ) -> serde_json::Value {
-    let reads: Vec<String> = std::iter::once(shown(&plan.input.resolved))
+    let reads: Vec<String> = std::iter::once(input_shown(plan))
         .chain(plan.validate.iter().map(|v| shown(&v.resolved)))
         .collect();
     let writes: Vec<String> = plan

@@ -125,6 +125,32 @@ pub struct InputPlan {
     pub separator: char,
     /// The decimal mark of the data's numbers.
     pub decimal: DecimalMark,
+    /// `database NAME`: `path` is a table or a query on this connection
+    /// (docs/scale-out.md), read in the order of its key.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub database: Option<String>,
+}
+
+impl InputPlan {
+    /// The table or query on a connection this input reads, if it reads
+    /// one.
+    /// The input in words: the path as written, or "table `members` on
+    /// connection `coop`".
+    pub fn shown(&self) -> String {
+        match self.source() {
+            Some(source) => source.describe(),
+            None => self.path.clone(),
+        }
+    }
+
+    pub fn source(&self) -> Option<crate::scale::source::Source> {
+        self.database
+            .as_ref()
+            .map(|connection| crate::scale::source::Source {
+                connection: connection.clone(),
+                text: self.path.clone(),
+            })
+    }
 }
 
 #[derive(Debug, Clone, Serialize)]

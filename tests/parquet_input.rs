@@ -24,26 +24,6 @@ fn digest(case: &Case, rel: &str) -> String {
     assort::run::load::file_sha256(&case.path(rel)).unwrap()
 }
 
-/// Every file under `out/` but the run record, each text in `swaps`
-/// replaced by its pair (the Parquet input's name and digest, and the
-/// recipe's digest, put back to the CSV run's).
-fn outputs(case: &Case, swaps: &[(String, String)]) -> Vec<(String, String)> {
-    let mut files: Vec<(String, String)> = std::fs::read_dir(case.path("out"))
-        .unwrap()
-        .map(|e| e.unwrap().path())
-        .filter(|p| p.is_file() && !p.to_string_lossy().ends_with(".run.json"))
-        .map(|p| {
-            let mut text = std::fs::read_to_string(&p).unwrap();
-            for (from, to) in swaps {
-                text = text.replace(from, to);
-            }
-            (p.file_name().unwrap().to_string_lossy().into_owned(), text)
-        })
-        .collect();
-    files.sort();
-    files
-}
-
 /// Runs the demo from CSV, then from `parquet` (copied into the case's
 /// `data/` folder), and compares every output.
 fn demo_alike(input: &str) {
@@ -63,26 +43,23 @@ fn demo_alike(input: &str) {
         case.copy(&from, &to);
     }
     case.run("coop-members.assort").ok();
-    let csv = outputs(&case, &[]);
+    let csv = case.outputs::<&str>(&[]);
     let csv_digests = (
         digest(&case, "data/coop_members.csv"),
         digest(&case, "coop-members.assort"),
     );
     case.edit("coop-members.assort", "data/coop_members.csv", &to);
     case.run("coop-members.assort").ok();
-    let parquet = outputs(
-        &case,
-        &[
-            (to.clone(), "data/coop_members.csv".into()),
-            (digest(&case, &to), csv_digests.0),
-            (digest(&case, "coop-members.assort"), csv_digests.1),
-            // The SQL names its table after the input.
-            (
-                input.trim_end_matches(".parquet").to_string(),
-                "coop_members".into(),
-            ),
-        ],
-    );
+    let parquet = case.outputs(&[
+        (to.clone(), "data/coop_members.csv".into()),
+        (digest(&case, &to), csv_digests.0),
+        (digest(&case, "coop-members.assort"), csv_digests.1),
+        // The SQL names its table after the input.
+        (
+            input.trim_end_matches(".parquet").to_string(),
+            "coop_members".into(),
+        ),
+    ]);
     assert!(csv.len() >= 9, "the demo writes its outputs");
     assert_eq!(csv.len(), parquet.len());
     for ((name, a), (_, b)) in csv.iter().zip(&parquet) {

@@ -162,14 +162,7 @@ fn coop() -> Option<(Postgres, tempfile::TempDir, impl Fn(&str) -> Option<String
     let pg = Postgres::start()?;
     let dir = tempfile::tempdir().unwrap();
     let file = dir.path().join("pg_service.conf");
-    std::fs::write(
-        &file,
-        format!(
-            "# a comment\n[other]\nhost=/nowhere\nuser=someone\n\n[coop]\nhost={}\nport=5432\nuser=assort\ndbname=postgres\n",
-            pg.socket_dir().display()
-        ),
-    )
-    .unwrap();
+    pg.service_file(&file, "coop", "[other]\nhost=/nowhere\nuser=someone\n");
     let env = move |var: &str| (var == "PGSERVICEFILE").then(|| file.display().to_string());
     Some((pg, dir, env))
 }

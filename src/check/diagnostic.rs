@@ -309,7 +309,7 @@ pub enum CheckError {
         help: String,
     },
 
-    #[error("`{column}` holds {what} in the Parquet file, which assort does not read")]
+    #[error("`{column}` holds {what} in {source_name}, which assort does not read")]
     #[diagnostic(
         code(assort::unreadable_type),
         help("assort segments on numbers and text; derive a number when making the extract (days since a date, say), or leave the column out")
@@ -317,6 +317,8 @@ pub enum CheckError {
     UnreadableType {
         column: String,
         what: String,
+        /// "the Parquet file", "the database".
+        source_name: &'static str,
         #[label("not numbers or text")]
         span: Span,
     },
@@ -477,6 +479,16 @@ pub enum CheckError {
         help: String,
         #[label("no such file")]
         span: Span,
+    },
+
+    #[error("{reason}")]
+    #[diagnostic(code(assort::database_input), help("{help}"))]
+    DatabaseInput {
+        reason: String,
+        #[label("{label}")]
+        span: Span,
+        label: String,
+        help: String,
     },
 
     #[error("data file `{path}` cannot be read: {reason}")]

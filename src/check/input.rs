@@ -21,6 +21,9 @@ impl Checker {
             return None;
         };
         let opts = self.options("input", options, vocab::INPUT_OPTIONS);
+        if let Some(connection) = opts.get("database") {
+            return self.database_input(s, path, &opts, connection);
+        }
         let separator = self.separator(&opts);
         let decimal = self.decimal(&opts, separator);
         let no_key = self.no_key(&opts);
@@ -45,6 +48,89 @@ impl Checker {
                 keyless: false,
                 separator,
                 decimal,
+                database: None,
+            },
+            key_span: key.span,
+        })
+    }
+
+    /// `input "TABLE OR QUERY" database NAME key COLUMN`: the connection
+    /// reached, a query checked to only read, the columns and a sample
+    /// read, the key judged over every record (blank) and the sample
+    /// (repeated). Problems with the connection or the source are
+    /// reported at the source's text.
+    fn database_input(
+        &mut self,
+        s: &Statement,
+        path: &Spanned<String>,
+        opts: &HashMap<&'static str, &OptionPair>,
+        connection: &OptionPair,
+    ) -> Option<CheckedInput> {
+        self.database = true;
+        let name = match &connection.value.node {
+            Value::Word(w) | Value::Text(w) if !w.trim().is_empty() => Some(w.trim().to_string()),
+            other => {
+                self.bad_value(
+                    "database",
+                    other,
+                    "a connection's name",
+                    connection.value.span,
+                    "for example `database coop`; the service file or the PG variables say how to reach it (docs/scale-out.md)",
+                );
+                None
+            }
+        };
+        let mut ok = name.is_some();
+        for (option, why) in [
+            ("separator", "a database stores its values typed; remove the option"),
+            ("decimal", "a database stores its values typed; remove the option"),
+            ("no", "a table has no order of its own, so records cannot be numbered by it; name its key"),
+        ] {
+            if let Some(o) = opts.get(option) {
+                self.bad_value(option, &o.value.node, "nothing here", o.value.span, why);
+                ok = false;
+            }
+        }
+        let key = self.key_option(opts, None, s.span);
+        let (connection, key) = (name?, key?);
+        ok.then_some(())?;
+        let source = crate::scale::source::Source {
+            connection: connection.clone(),
+            text: path.node.clone(),
+        };
+        self.input_file = source.describe();
+        let looked = match probe::database::look(&source, &key.node) {
+            Ok(l) => l,
+            Err(reason) => {
+                self.err(CheckError::DatabaseInput {
+                    reason,
+                    span: path.span,
+                    label: "read here".into(),
+                    help: "the connection's host, port, database and user come from its section of the service file, else the PG variables; a password from PGPASSWORD or the service file (docs/scale-out.md)".into(),
+                });
+                return None;
+            }
+        };
+        self.probe = Some(looked.probe.clone());
+        self.known_column(&key)?;
+        if let Some(reason) = looked.key_problem {
+            self.err(CheckError::DatabaseInput {
+                reason: format!("the key `{}` of {}: {reason}", key.node, source.describe()),
+                span: key.span,
+                label: "this key".into(),
+                help: "every record needs its own key; choose another key column, or select records with a key in a query".into(),
+            });
+            return None;
+        }
+        Some(CheckedInput {
+            plan: InputPlan {
+                path: path.node.clone(),
+                resolved: PathBuf::new(),
+                key: key.node.clone(),
+                keyless: false,
+                separator: defaults::SEPARATOR,
+                decimal: DecimalMark::Point,
+                database: Some(connection),
             },
             key_span: key.span,
         })
@@ -182,6 +268,7 @@ impl Checker {
                 keyless: true,
                 separator,
                 decimal,
+                database: None,
             },
             key_span: span,
         }
@@ -400,9 +487,14 @@ impl Checker {
         let probe = self.probe.as_ref()?;
         if let Some(info) = probe.column(&col.node) {
             if let Some(what) = &info.unsupported {
+                let source_name = match self.database {
+                    true => "the database",
+                    false => "the Parquet file",
+                };
                 self.err(CheckError::UnreadableType {
                     column: col.node.clone(),
                     what: what.clone(),
+                    source_name,
                     span: col.span,
                 });
                 return None;

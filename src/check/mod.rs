@@ -184,6 +184,7 @@ pub fn check_with(source: &RecipeSource, options: &CheckOptions) -> Checked {
             .collect(),
         probe: None,
         input_file: String::new(),
+        database: false,
         decimal: DecimalMark::Point,
         unparsed: tree
             .errors
@@ -349,6 +350,8 @@ struct Checker {
     /// The input's header and sample, once read.
     probe: Option<std::sync::Arc<Probe>>,
     input_file: String,
+    /// The input is a table or a query on a connection.
+    database: bool,
     /// The input's decimal mark, once `input` is checked.
     decimal: DecimalMark,
     /// Statement words of statements that did not parse, and the words

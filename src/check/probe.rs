@@ -9,6 +9,8 @@ use std::fs::File;
 use std::path::Path;
 use std::sync::Arc;
 
+pub mod database;
+
 /// Records read to judge column kinds.
 pub const SAMPLE_ROWS: usize = 1000;
 

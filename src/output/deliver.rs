@@ -49,6 +49,7 @@ pub fn run_and_render(
         (outcome, hashing.join().ok().flatten())
     });
     let mut outcome = outcome?;
+    let input_sha256 = input_sha256.or_else(|| outcome.read_digest.clone());
     let mut clock = run::stages::Clock::start();
     let inputs = record::input_digests_with(&outcome, input_sha256);
     let sources = files::Sources {

@@ -159,8 +159,20 @@ fn render_other(o: &Outcome, kind: OutputKind, sources: &Sources<'_>) -> Vec<u8>
     }
 }
 
-/// The table the SQL outputs read: named after the input file.
+/// The table the SQL outputs read: named after the input file, or the
+/// input's own table (without its schema).
 fn table_name(o: &Outcome) -> String {
+    if let Some(source) = o.plan.input.source() {
+        return match source.is_table() {
+            true => source
+                .text
+                .rsplit('.')
+                .next()
+                .unwrap_or("records")
+                .to_string(),
+            false => "recipe_input".into(),
+        };
+    }
     Path::new(&o.plan.input.path)
         .file_stem()
         .map_or("records".into(), |s| s.to_string_lossy().into_owned())

@@ -71,7 +71,8 @@ pub fn record_path(recipe: &Path, outputs: &[PathBuf]) -> PathBuf {
 
 /// The data files a run read, with their digests and record counts.
 pub fn input_digests(o: &Outcome) -> Vec<InputDigest> {
-    input_digests_with(o, file_sha256(&o.plan.input.resolved))
+    let file = file_sha256(&o.plan.input.resolved);
+    input_digests_with(o, file.or_else(|| o.read_digest.clone()))
 }
 
 /// [`input_digests`] with the input file's digest already computed (the
@@ -79,7 +80,10 @@ pub fn input_digests(o: &Outcome) -> Vec<InputDigest> {
 pub fn input_digests_with(o: &Outcome, input_sha256: Option<String>) -> Vec<InputDigest> {
     let mut out = vec![InputDigest {
         role: "input".into(),
-        path: o.plan.input.path.clone(),
+        path: match o.plan.input.source() {
+            Some(source) => source.describe(),
+            None => o.plan.input.path.clone(),
+        },
         sha256: input_sha256.unwrap_or_default(),
         records: o.records,
     }];

@@ -88,10 +88,10 @@ pub fn render(o: &Outcome, sources: &Sources<'_>) -> Vec<u8> {
     }
     let _ = write!(
         h,
-        "<div class=\"analyst\"><h2>What the analyst should know</h2>\n<p class=\"small\">{} of {} records from <code>{}</code> were segmented by {}.</p>\n",
+        "<div class=\"analyst\"><h2>What the analyst should know</h2>\n<p class=\"small\">{} of {} records from {} were segmented by {}.</p>\n",
         crate::text::thousands(o.prepared.kept.len()),
         crate::text::thousands(o.records),
-        esc(&plan.input.path),
+        input_html(&plan.input),
         esc(&method_words(&plan.method))
     );
     if plan.input.keyless {
@@ -816,4 +816,18 @@ fn means_table(h: &mut String, c: &super::changes::Changes, o: &Outcome) {
         let _ = write!(h, "</tr>\n");
     }
     let _ = write!(h, "</table>\n");
+}
+
+/// Where the records came from, as HTML: the file, the table and its
+/// connection, or the query's connection.
+fn input_html(input: &crate::plan::InputPlan) -> String {
+    match (input.source(), &input.database) {
+        (Some(source), Some(connection)) if source.is_table() => format!(
+            "table <code>{}</code> on connection <code>{}</code>",
+            esc(&input.path),
+            esc(connection)
+        ),
+        (_, Some(connection)) => format!("a query on connection <code>{}</code>", esc(connection)),
+        _ => format!("<code>{}</code>", esc(&input.path)),
+    }
 }

@@ -102,7 +102,7 @@ fn summary(s: &mut String, o: &Outcome) {
     let _ = writeln!(s, "recipe `{}`", plan.name);
     let mut line = format!(
         "  data      {}: {} records",
-        plan.input.path,
+        plan.input.shown(),
         thousands(o.records)
     );
     if p.dropped > 0 {

@@ -17,10 +17,18 @@ pub struct Place {
 
 impl std::fmt::Display for Place {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        // A table on a connection is described in words that quote its
+        // own names ("table `members` on connection `coop`"); a record's
+        // line there is its place in key order, as in the same table
+        // written as CSV.
+        match self.file.contains('`') {
+            true => write!(f, "{}", self.file),
+            false => write!(f, "`{}`", self.file),
+        }?;
         write!(
             f,
-            "`{}` line {}, column {} (`{}`)",
-            self.file, self.line, self.column, self.name
+            " line {}, column {} (`{}`)",
+            self.line, self.column, self.name
         )
     }
 }
@@ -240,4 +248,11 @@ pub enum RunError {
         )
     )]
     Write { path: String, reason: String },
+
+    #[error("{reason}")]
+    #[diagnostic(
+        code(assort::run::database),
+        help("nothing was written; the connection comes from the service file or the PG variables (docs/scale-out.md)")
+    )]
+    Database { reason: String },
 }

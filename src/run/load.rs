@@ -13,6 +13,8 @@ use super::error::{Place, RunError};
 use crate::check::probe::{is_blank, number_help, parse_number_in, DecimalMark};
 use crate::csv_lines::LineReader;
 use crate::plan::{Coder, FeatureKind};
+use crate::scale::postgres::{DbError, Target};
+use crate::scale::source::{Class, Source};
 use rayon::prelude::*;
 use std::path::Path;
 
@@ -31,6 +33,11 @@ pub struct Table {
     /// One vector per text column asked for, spaces trimmed
     /// ([`crate::text::trim_spaces`]).
     pub text: Vec<Vec<String>>,
+    /// For a table or a query on a connection, which has no file to hash:
+    /// the SHA-256 of the values read, in key order (each value's text
+    /// then the byte 0x1F, NULL as the byte 0x1E alone, each row ended by
+    /// a line feed), so that a rerun can tell whether the data changed.
+    pub digest: Option<String>,
 }
 
 /// Every record's key, in one buffer.
@@ -208,6 +215,86 @@ pub fn load(
     read_table(path, shown, separator, cols)
 }
 
+/// Reads the columns a recipe uses from a table or a query on a
+/// connection, in key order ([`crate::scale::source`]), streamed row by
+/// row in one read-only transaction. Each row is decoded as the same
+/// record in CSV would be (every value arrives as text, NULL blank), so a
+/// table and a file of the same records, in the same order, load the
+/// same; a record's line is its place in key order, as in that CSV.
+pub fn load_source(source: &Source, cols: &Columns<'_>) -> Result<Table, RunError> {
+    use sha2::Digest;
+    let shown = source.describe();
+    let failed = |e: DbError| RunError::Database {
+        reason: e.to_string(),
+    };
+    let env = |name: &str| std::env::var(name).ok();
+    let mut db = Target::resolve(&source.connection, &env)
+        .and_then(|t| t.connect())
+        .map_err(failed)?;
+    let typed = db.columns(source).map_err(failed)?;
+    let mut names: Vec<&str> = Vec::new();
+    for name in (cols.key.iter().copied())
+        .chain(cols.numeric.iter().map(String::as_str))
+        .chain(cols.text.iter().map(String::as_str))
+    {
+        match typed.iter().find(|(n, _)| n == name) {
+            None => {
+                return Err(RunError::ColumnGone {
+                    file: shown,
+                    column: name.to_string(),
+                })
+            }
+            Some((_, Class::Other(what))) => {
+                return Err(RunError::Database {
+                    reason: format!(
+                        "column `{name}` of {shown} holds {what}, which assort does not read"
+                    ),
+                })
+            }
+            Some(_) if names.contains(&name) => {}
+            Some(_) => names.push(name),
+        }
+    }
+    let header = csv::StringRecord::from(names.clone());
+    let located = locate(&header, &shown, cols)?;
+    let decoder = Decoder::new(&shown, &header, &located, cols);
+    let key = cols.key.and_then(|k| typed.iter().find(|(n, _)| n == k));
+    let sql = source.select_text(&names, key.map(|(k, c)| (k.as_str(), c)), None);
+    let mut rows = blocks::Decode::start(&decoder);
+    let mut record = csv::ByteRecord::new();
+    let mut line = 1;
+    let mut hasher = sha2::Sha256::new();
+    db.each_row(&sql, &format!("reading {shown}"), |row| {
+        line += 1;
+        record.clear();
+        for v in &row {
+            record.push_field(v.as_deref().unwrap_or("").as_bytes());
+            match v {
+                Some(v) => {
+                    hasher.update(v.as_bytes());
+                    hasher.update(b"\x1f");
+                }
+                None => hasher.update(b"\x1e"),
+            }
+        }
+        hasher.update(b"\n");
+        blocks::Decode::record(&decoder, &mut rows, &record, line)
+    })
+    .map_err(failed)??;
+    let mut table = Table::for_columns(&located);
+    table.digest = Some(crate::text::hex(&hasher.finalize()));
+    table.append(
+        vec![blocks::Piece {
+            out: rows,
+            bytes: 0,
+            fault: None,
+        }],
+        0,
+    )?;
+    no_repeated_key(&table, &header, located.0, &shown)?;
+    Ok(table)
+}
+
 /// Reads the columns a recipe uses from a Parquet file, each column on
 /// its own thread, into the table the same data in CSV would give (see
 /// [`crate::parquet`]): a record's line is its place in that CSV.
@@ -251,6 +338,7 @@ fn load_parquet(path: &Path, shown: &str, cols: &Columns<'_>) -> Result<Table, R
         lines: (0..n as u64).map(|r| r + 2).collect(),
         numeric: Vec::new(),
         text: Vec::new(),
+        digest: None,
     };
     for (i, line) in table.lines.iter().enumerate() {
         match (&keys, key_at) {
@@ -346,27 +434,10 @@ fn read_table(
     cols: &Columns<'_>,
 ) -> Result<Table, RunError> {
     let Opened { reader, header } = Opened::new(path, shown, separator)?;
-    let (key_at, num_at, text_at) = locate(&header, shown, cols)?;
-    let mut table = Table {
-        fields: num_at.iter().map(|i| i + 1).collect(),
-        text_fields: text_at.iter().map(|i| i + 1).collect(),
-        keys: Keys::default(),
-        lines: Vec::new(),
-        numeric: vec![NumericColumn::default(); num_at.len()],
-        text: vec![Vec::new(); text_at.len()],
-    };
-    let decoder = Decoder {
-        shown,
-        header: &header,
-        key_at,
-        num_at: &num_at,
-        text_at: &text_at,
-        decimal: cols.decimal,
-        kinds: cols.kinds,
-        coders: (0..num_at.len())
-            .map(|f| cols.kinds.get(f).map_or(Coder::Number, FeatureKind::coder))
-            .collect(),
-    };
+    let located = locate(&header, shown, cols)?;
+    let key_at = located.0;
+    let mut table = Table::for_columns(&located);
+    let decoder = Decoder::new(shown, &header, &located, cols);
     let syntax = blocks::Syntax {
         separator: separator as u8,
         fields: header.len(),
@@ -401,6 +472,19 @@ struct Rows {
 }
 
 impl Table {
+    /// An empty table of the columns `located` in a header.
+    fn for_columns((_, num_at, text_at): &Located) -> Table {
+        Table {
+            fields: num_at.iter().map(|i| i + 1).collect(),
+            text_fields: text_at.iter().map(|i| i + 1).collect(),
+            keys: Keys::default(),
+            lines: Vec::new(),
+            numeric: vec![NumericColumn::default(); num_at.len()],
+            text: vec![Vec::new(); text_at.len()],
+            digest: None,
+        }
+    }
+
     /// Appends the pieces' records in order; the first problem in record
     /// order (a piece's own fault after its records). The first pieces
     /// of a file of `size` bytes make room for as many records as the
@@ -575,7 +659,27 @@ struct Decoder<'a> {
     coders: Vec<Coder>,
 }
 
-impl Decoder<'_> {
+impl<'a> Decoder<'a> {
+    /// Decodes the columns `located` in `header` as `cols` asks.
+    fn new(
+        shown: &'a str,
+        header: &'a csv::StringRecord,
+        (key_at, num_at, text_at): &'a Located,
+        cols: &Columns<'a>,
+    ) -> Decoder<'a> {
+        Decoder {
+            shown,
+            header,
+            key_at: *key_at,
+            num_at,
+            text_at,
+            decimal: cols.decimal,
+            kinds: cols.kinds,
+            coders: (0..num_at.len())
+                .map(|f| cols.kinds.get(f).map_or(Coder::Number, FeatureKind::coder))
+                .collect(),
+        }
+    }
     /// Decodes the fields the recipe uses, checking them in field order
     /// (key, numbers, texts) so the first problem is the one a person
     /// reading the line would meet first.

@@ -250,6 +250,9 @@ pub struct Validation {
 pub struct Outcome {
     pub plan: Plan,
     pub records: usize,
+    /// The digest of a table's values as read ([`load::Table::digest`]);
+    /// a file's digest is taken of the file.
+    pub read_digest: Option<String>,
     pub prepared: Prepared,
     pub sweep: Vec<SweepRow>,
     pub chosen: usize,
@@ -340,19 +343,25 @@ impl DataCache {
             len: meta.as_ref().map_or(0, |m| m.len()),
             modified: meta.and_then(|m| m.modified().ok()),
         };
-        if self.entry.as_ref().is_none_or(|(k, _)| *k != key) {
-            let table = load::load(
-                &plan.input.resolved,
-                &plan.input.path,
-                plan.input.separator,
-                &load::Columns {
-                    key: (!plan.input.keyless).then_some(key.key.as_str()),
-                    numeric: &key.numeric,
-                    kinds: &key.kinds,
-                    text: &key.text,
-                    decimal: plan.input.decimal,
-                },
-            )?;
+        // A table carries no size or time to tell a change by: read anew.
+        let stale = plan.input.database.is_some();
+        if stale || self.entry.as_ref().is_none_or(|(k, _)| *k != key) {
+            let cols = load::Columns {
+                key: (!plan.input.keyless).then_some(key.key.as_str()),
+                numeric: &key.numeric,
+                kinds: &key.kinds,
+                text: &key.text,
+                decimal: plan.input.decimal,
+            };
+            let table = match plan.input.source() {
+                Some(source) => load::load_source(&source, &cols)?,
+                None => load::load(
+                    &plan.input.resolved,
+                    &plan.input.path,
+                    plan.input.separator,
+                    &cols,
+                )?,
+            };
             self.loads += 1;
             self.entry = Some((key, table));
         }
@@ -396,7 +405,7 @@ pub fn run_with(
     let prepared = prepare::prepare(plan, table)?;
     enough_records(plan, prepared.kept.len())?;
     clock.lap("prepare");
-    let last = previous::PreviousRun::read_if(plan, &prepared)?;
+    let last = previous::PreviousRun::read_if(plan, &prepared, table.digest.as_deref())?;
     let fitted = fit::fit(plan, &prepared, table, last.as_ref(), progress)?;
     go_on("after fitting")?;
     clock.lap("fit");
@@ -432,6 +441,7 @@ pub fn run_with(
     Ok(Outcome {
         plan: plan.clone(),
         records: table.keys.len(),
+        read_digest: table.digest.clone(),
         silhouettes: chosen_silhouettes(&mut judged, &numbered),
         sweep: judged.sweep,
         chosen: judged.chosen,

@@ -282,7 +282,7 @@ pub fn from_outcome(o: &Outcome, input_sha256: String) -> SegmentModel {
         assort_version: env!("CARGO_PKG_VERSION").into(),
         provenance: Provenance {
             recipe: o.plan.name.clone(),
-            input: o.plan.input.path.clone(),
+            input: o.plan.input.shown(),
             input_sha256,
             records: o.records,
             seed: o.plan.seed,

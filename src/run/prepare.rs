@@ -206,7 +206,7 @@ fn record_weights(plan: &Plan, table: &Table) -> Result<Option<Vec<f64>>, RunErr
             bad => {
                 return Err(RunError::BadWeight {
                     place: Place {
-                        file: plan.input.path.clone(),
+                        file: plan.input.shown(),
                         line: table.lines[row],
                         column: table.fields.get(at).copied().unwrap_or(0),
                         name: name.clone(),
@@ -357,7 +357,7 @@ fn encode_categories(
             if let Some(&row) = kept.iter().find(|&&i| table.text[c][i].is_empty()) {
                 return Err(RunError::BlankCategory {
                     place: Place {
-                        file: plan.input.path.clone(),
+                        file: plan.input.shown(),
                         line: table.lines[row],
                         column: table.text_fields.get(c).copied().unwrap_or(0),
                         name: cp.column.clone(),
@@ -498,7 +498,7 @@ pub fn original(table: &Table, kept: &[usize], f: usize, fill: Option<f64>) -> V
 /// The place of feature `f` of table row `row`, with its field number.
 fn located(plan: &Plan, table: &Table, row: usize, f: usize) -> Place {
     Place {
-        file: plan.input.path.clone(),
+        file: plan.input.shown(),
         line: table.lines[row],
         column: table.fields.get(f).copied().unwrap_or(0),
         name: plan.features[f].column.clone(),

@@ -58,9 +58,12 @@ pub struct Digest {
 
 impl PreviousRun {
     /// Last run, when the plan names one (`previous`).
+    /// `read` is the digest of a table's values as read, which has no
+    /// file to hash.
     pub fn read_if(
         plan: &crate::plan::Plan,
         prepared: &Prepared,
+        read: Option<&str>,
     ) -> Result<Option<PreviousRun>, RunError> {
         let Some(p) = &plan.previous else {
             return Ok(None);
@@ -68,7 +71,8 @@ impl PreviousRun {
         let mut last = PreviousRun::read(p, prepared)?;
         // One more pass over the input, only with `previous`: the model
         // records the digest of the data it was made from.
-        last.same_data = super::load::file_sha256(&plan.input.resolved)
+        last.same_data = (read.map(str::to_string))
+            .or_else(|| super::load::file_sha256(&plan.input.resolved))
             .is_some_and(|sha| sha == last.model.provenance.input_sha256);
         Ok(Some(last))
     }

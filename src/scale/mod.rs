@@ -6,3 +6,4 @@
 pub mod postgres;
 pub mod round;
 pub mod sample;
+pub mod source;

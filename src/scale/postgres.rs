@@ -24,9 +24,11 @@ pub enum DbError {
         target: String,
         reason: String,
     },
-    #[error("the query of `{connection}` would change the database ({reason}); assort only reads")]
+    #[error("the recipe's query on connection `{connection}` would change the database ({reason}); assort only reads")]
     Writes { connection: String, reason: String },
-    #[error("the query of `{connection}` is not one statement that reads: {reason}")]
+    #[error(
+        "the recipe's query on connection `{connection}` is not one statement that reads: {reason}"
+    )]
     NotOneQuery { connection: String, reason: String },
     #[error("`{connection}` failed at {what}: {reason}")]
     Failed {
@@ -103,6 +105,9 @@ impl Target {
             .user(&self.user)
             .dbname(&self.dbname)
             .application_name("assort")
+            // Floating-point values as text with every digit they need
+            // (PostgreSQL 12 and later: the shortest exact form).
+            .options("-c extra_float_digits=3")
             .connect_timeout(std::time::Duration::from_secs(10));
         if let Some(p) = &self.password {
             config.password(p);
@@ -191,8 +196,55 @@ impl Database {
     /// type is an error: select text). `what` names the step for
     /// messages.
     pub fn read(&mut self, sql: &str, what: &str) -> Result<Vec<Vec<Option<String>>>, DbError> {
-        let name = self.name.clone();
-        let failed = |e: postgres::Error| -> DbError {
+        let mut out = Vec::new();
+        self.each_row(sql, what, |row| {
+            out.push(row);
+            Ok::<(), std::convert::Infallible>(())
+        })?
+        .map_err(|never| match never {})?;
+        Ok(out)
+    }
+
+    /// Runs one statement in a read-only transaction (rolled back after)
+    /// and hands `each` every row as it arrives, values as text (select
+    /// text), NULL as `None`: a table larger than memory is never held.
+    /// `each` may stop the reading with its own error.
+    pub fn each_row<E>(
+        &mut self,
+        sql: &str,
+        what: &str,
+        mut each: impl FnMut(Vec<Option<String>>) -> Result<(), E>,
+    ) -> Result<Result<(), E>, DbError> {
+        use postgres::fallible_iterator::FallibleIterator;
+        let failed = self.failure(what);
+        let mut tx = self
+            .client
+            .build_transaction()
+            .read_only(true)
+            .start()
+            .map_err(&failed)?;
+        // One statement only: the extended protocol refuses a second.
+        let none: [&(dyn postgres::types::ToSql + Sync); 0] = [];
+        let mut rows = tx.query_raw(sql, none).map_err(&failed)?;
+        while let Some(r) = rows.next().map_err(&failed)? {
+            let values: Vec<Option<String>> = (0..r.len())
+                .map(|i| r.try_get::<_, Option<String>>(i))
+                .collect::<Result<_, _>>()
+                .map_err(&failed)?;
+            if let Err(e) = each(values) {
+                return Ok(Err(e));
+            }
+        }
+        drop(rows);
+        tx.rollback().map_err(&failed)?;
+        Ok(Ok(()))
+    }
+
+    /// How a failed statement of step `what` is reported: a refused write
+    /// as such, anything else as the step failing.
+    fn failure(&self, what: &str) -> impl Fn(postgres::Error) -> DbError {
+        let (name, what) = (self.name.clone(), what.to_string());
+        move |e: postgres::Error| {
             if e.code() == Some(&SqlState::READ_ONLY_SQL_TRANSACTION) {
                 DbError::Writes {
                     connection: name.clone(),
@@ -201,28 +253,38 @@ impl Database {
             } else {
                 DbError::Failed {
                     connection: name.clone(),
-                    what: what.to_string(),
+                    what: what.clone(),
                     reason: reason(&e),
                 }
             }
-        };
-        let mut tx = self
-            .client
-            .build_transaction()
-            .read_only(true)
-            .start()
-            .map_err(failed)?;
-        // One statement only: the extended protocol refuses a second.
-        let rows = tx.query(sql, &[]).map_err(failed)?;
-        tx.rollback().map_err(failed)?;
-        let mut out = Vec::with_capacity(rows.len());
-        for r in &rows {
-            let values: Result<Vec<Option<String>>, postgres::Error> = (0..r.len())
-                .map(|i| r.try_get::<_, Option<String>>(i))
-                .collect();
-            out.push(values.map_err(failed)?);
         }
-        Ok(out)
+    }
+
+    /// The columns of a recipe's input and how assort reads each. A
+    /// query is first checked to be one statement that only reads
+    /// ([`Database::check_query`]).
+    pub fn columns(
+        &mut self,
+        source: &super::source::Source,
+    ) -> Result<Vec<(String, super::source::Class)>, DbError> {
+        if !source.is_table() {
+            self.check_query(&source.text)?;
+        }
+        let sql = format!("SELECT * FROM {} LIMIT 0", source.from_sql());
+        let statement = self
+            .client
+            .prepare(&sql)
+            .map_err(self.failure(&format!("reading {}", source.describe())))?;
+        Ok(statement
+            .columns()
+            .iter()
+            .map(|c| {
+                (
+                    c.name().to_string(),
+                    super::source::class_of(c.type_().name()),
+                )
+            })
+            .collect())
     }
 
     /// One k-means round over `source` (see [`super::round`]).
@@ -275,7 +337,11 @@ impl Database {
         let wrapped = format!("SELECT * FROM ({query}) AS recipe_input LIMIT 0");
         match self.read(&wrapped, "checking the recipe's query") {
             Ok(_) => Ok(columns),
-            Err(DbError::Failed { reason, .. }) => Err(not_one(reason)),
+            // Prepared alone but not readable as a subquery: a statement
+            // that changes data (`DELETE ... RETURNING`).
+            Err(DbError::Failed { reason, .. }) => Err(not_one(format!(
+                "it is not a query that reads rows (the server: {reason})"
+            ))),
             Err(e) => Err(e),
         }
     }

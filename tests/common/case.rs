@@ -22,6 +22,26 @@ impl Case {
         case
     }
 
+    /// Every file under `out/` but the run record, sorted by name, each
+    /// text in `swaps` replaced by its pair (an input's name and digest
+    /// put back to another run's, say).
+    pub fn outputs<S: AsRef<str>>(&self, swaps: &[(S, S)]) -> Vec<(String, String)> {
+        let mut files: Vec<(String, String)> = std::fs::read_dir(self.path("out"))
+            .unwrap()
+            .map(|e| e.unwrap().path())
+            .filter(|p| p.is_file() && !p.to_string_lossy().ends_with(".run.json"))
+            .map(|p| {
+                let mut text = std::fs::read_to_string(&p).unwrap();
+                for (from, to) in swaps {
+                    text = text.replace(from.as_ref(), to.as_ref());
+                }
+                (p.file_name().unwrap().to_string_lossy().into_owned(), text)
+            })
+            .collect();
+        files.sort();
+        files
+    }
+
     pub fn empty() -> Case {
         Case {
             dir: tempfile::tempdir().unwrap(),

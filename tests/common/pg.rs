@@ -188,6 +188,16 @@ impl Postgres {
         self.dir.path()
     }
 
+    /// Writes a PostgreSQL service file at `path` whose section `[name]`
+    /// leads to this server, followed by `more` (other sections).
+    pub fn service_file(&self, path: &Path, name: &str, more: &str) {
+        let text = format!(
+            "# a comment\n[{name}]\nhost={}\nport=5432\nuser=assort\ndbname=postgres\n\n{more}",
+            self.socket_dir().display()
+        );
+        std::fs::write(path, text).unwrap();
+    }
+
     /// Runs SQL text as [`Postgres::psql_file`] does.
     pub fn psql(&self, sql: &str) -> Result<Vec<csv::StringRecord>, String> {
         let script = self.dir.path().join("script.sql");

@@ -201,6 +201,11 @@ pub const INPUT_OPTIONS: &[OptionDoc] = &[
         takes: r#"`"."` or `","`"#,
         summary: r#"the decimal mark of the data's numbers, `"."` unless given; `","` reads `1,5` as one and a half"#,
     },
+    OptionDoc {
+        name: "database",
+        takes: "a connection's name",
+        summary: "read a table or a query on this PostgreSQL connection instead of a file: `input \"members\" database coop key member_id`; how to reach the connection and log in comes from the service file or the PG variables, never from the recipe (docs/scale-out.md)",
+    },
 ];
 
 pub const CATEGORIES_OPTIONS: &[OptionDoc] = &[OptionDoc {

@@ -1,0 +1,368 @@
+//! A recipe whose `input` is a table or a query on a PostgreSQL
+//! connection, run against a real server (tests/common/pg.rs starts a
+//! throwaway one; in CI the tests fail, never skip, without it).
+//!
+//! - The demo recipe pointed at the demo's records loaded into a table
+//!   writes every output byte for byte as from the CSV, apart from the
+//!   input's description and digest; so does a table split into four hash
+//!   partitions read by parallel workers, and a query.
+//! - A connection that cannot be made, a table that does not exist, a
+//!   column of another type and a query that would write are refused
+//!   when the recipe is checked, each naming the connection (and the
+//!   table), with nothing written.
+//!
+//! Data: the invented demo's members (recipes/data), loaded with psql's
+//! `\copy` into columns of several types (text, integer, double precision,
+//! numeric), which reach assort as the same text the CSV holds.
+
+mod common;
+
+use common::case::Case;
+use common::pg::Postgres;
+
+/// The demo's columns as a table: keys and branches as text, counts as
+/// integers, shares as doubles, money as decimals.
+const COLUMNS: &str = "member_id TEXT, home_branch TEXT, tenure_months INTEGER, \
+    visits_per_month DOUBLE PRECISION, basket_value NUMERIC(12, 2), \
+    share_fresh DOUBLE PRECISION, share_bulk DOUBLE PRECISION, \
+    share_prepared REAL, online_ratio DOUBLE PRECISION, coupon_rate NUMERIC, \
+    spend_12m NUMERIC(14, 2), contactable SMALLINT";
+
+/// A server holding the demo's members as `coop_members` (and, with
+/// `partitions` > 1, as `coop_members_split` in that many hash partitions),
+/// and the demo's folder with a service file naming the server `coop`.
+fn coop(partitions: usize) -> Option<(Postgres, Case, String)> {
+    let pg = Postgres::start()?;
+    let case = Case::demo();
+    let csv = case.path("data/coop_members.csv");
+    let mut sql = format!(
+        "CREATE TABLE coop_members ({COLUMNS});\n\\copy coop_members FROM '{}' WITH (FORMAT csv, HEADER true)\n",
+        csv.display()
+    );
+    if partitions > 1 {
+        sql.push_str(&format!(
+            "CREATE TABLE coop_members_split ({COLUMNS}) PARTITION BY HASH (member_id);\n"
+        ));
+        for p in 0..partitions {
+            sql.push_str(&format!(
+                "CREATE TABLE coop_members_split_{p} PARTITION OF coop_members_split \
+                 FOR VALUES WITH (MODULUS {partitions}, REMAINDER {p});\n"
+            ));
+        }
+        sql.push_str(
+            "INSERT INTO coop_members_split SELECT * FROM coop_members ORDER BY random();\n",
+        );
+    }
+    sql.push_str("ANALYZE;\n");
+    pg.psql(&sql).unwrap();
+    let service = case.path("pg_service.conf");
+    pg.service_file(&service, "coop", "");
+    let service = service.display().to_string();
+    Some((pg, case, service))
+}
+
+/// The input's digest as the model records it.
+fn input_digest(case: &Case) -> String {
+    let model = case.read("out/segment_model.json");
+    let at = model
+        .find("\"input_sha256\": \"")
+        .expect("the model records the input's digest");
+    model[at + 17..at + 17 + 64].to_string()
+}
+
+/// Runs the demo from its CSV, then with `input` pointed at `source` on
+/// the connection, and compares every output, once the input's
+/// description (`shown` in the report, `said` in text), the digests and
+/// the name the SQL gives the table (`sql_table`) are put back.
+fn demo_alike(case: &Case, service: &str, source: &str, shown: &str, sql_table: &str) {
+    let env = [("PGSERVICEFILE", service)];
+    case.assort(&["run", "coop-members.assort"], &env).ok();
+    let from_csv = case.outputs::<&str>(&[]);
+    let csv_digests = (input_digest(case), recipe_digest(case));
+    case.edit(
+        "coop-members.assort",
+        r#"input "data/coop_members.csv" key member_id"#,
+        &format!("input {source:?} database coop key member_id"),
+    );
+    case.assort(&["run", "coop-members.assort"], &env).ok();
+    let table_digest = input_digest(case);
+    assert_ne!(
+        table_digest, csv_digests.0,
+        "a table's digest is of its values"
+    );
+    let said = match source.starts_with("SELECT") {
+        true => "the recipe's query on connection `coop`".to_string(),
+        false => format!("table `{source}` on connection `coop`"),
+    };
+    let from_table = case.outputs(&[
+        (shown, "<code>data/coop_members.csv</code>"),
+        (&said, "data/coop_members.csv"),
+        (&table_digest, &csv_digests.0),
+        (&recipe_digest(case), &csv_digests.1),
+        (&format!("\"{sql_table}\""), "\"coop_members\""),
+    ]);
+    assert!(from_csv.len() >= 9, "the demo writes its outputs");
+    assert_eq!(from_csv.len(), from_table.len());
+    for ((name, a), (_, b)) in from_csv.iter().zip(&from_table) {
+        if a != b {
+            let (la, lb) = a
+                .lines()
+                .zip(b.lines())
+                .find(|(x, y)| x != y)
+                .unwrap_or_default();
+            panic!("{name} differs between the CSV and `{source}`:\n{la}\n{lb}");
+        }
+    }
+    let record = case.read("out/coop-members.run.json");
+    assert!(
+        record.contains(&said),
+        "the run record names the connection"
+    );
+}
+
+fn recipe_digest(case: &Case) -> String {
+    assort::run::load::file_sha256(&case.path("coop-members.assort")).unwrap()
+}
+
+#[test]
+fn the_demo_over_a_table_writes_what_it_writes_from_the_csv() {
+    let Some((_pg, case, service)) = coop(1) else {
+        return;
+    };
+    let shown = "table <code>coop_members</code> on connection <code>coop</code>";
+    demo_alike(&case, &service, "coop_members", shown, "coop_members");
+}
+
+#[test]
+fn the_demo_over_four_partitions_read_in_parallel_writes_the_same() {
+    let Some((pg, case, service)) = coop(4) else {
+        return;
+    };
+    // Parallel workers even for a table this small.
+    pg.psql(
+        "ALTER SYSTEM SET parallel_setup_cost = 0; ALTER SYSTEM SET parallel_tuple_cost = 0; \
+         ALTER SYSTEM SET min_parallel_table_scan_size = 0; SELECT pg_reload_conf();",
+    )
+    .unwrap();
+    let plan = pg
+        .psql(
+            "EXPLAIN (ANALYZE, COSTS OFF) SELECT CAST(member_id AS TEXT) FROM coop_members_split \
+             ORDER BY CAST(member_id AS TEXT) COLLATE \"C\";",
+        )
+        .unwrap();
+    let plan: Vec<String> = plan.iter().map(|r| r.iter().collect()).collect();
+    assert!(
+        plan.iter().any(|l| l.contains("Workers Launched")),
+        "no parallel worker ran:\n{}",
+        plan.join("\n")
+    );
+    let shown = "table <code>coop_members_split</code> on connection <code>coop</code>";
+    demo_alike(
+        &case,
+        &service,
+        "coop_members_split",
+        shown,
+        "coop_members_split",
+    );
+}
+
+#[test]
+fn the_demo_over_a_query_writes_the_same() {
+    let Some((_pg, case, service)) = coop(1) else {
+        return;
+    };
+    demo_alike(
+        &case,
+        &service,
+        "SELECT * FROM coop_members WHERE tenure_months >= 0",
+        "a query on connection <code>coop</code>",
+        "recipe_input",
+    );
+}
+
+/// The demo with `input` replaced by `line`, checked (and run) against the
+/// server: it fails, every message in `says` is on standard error, and
+/// nothing is written.
+#[track_caller]
+fn refused(case: &Case, service: &str, line: &str, says: &[&str]) {
+    let env = [("PGSERVICEFILE", service)];
+    let recipe = case.read("coop-members.assort");
+    let at = recipe.find("input \"").unwrap();
+    let end = at + recipe[at..].find('\n').unwrap();
+    case.write(
+        "refused.assort",
+        &format!("{}{line}{}", &recipe[..at], &recipe[end..]),
+    );
+    for command in ["check", "run"] {
+        let run = case.assort(&[command, "refused.assort"], &env).fails();
+        let err = run.stderr();
+        for text in says {
+            assert!(
+                common::case::unwrapped(&err).contains(text),
+                "`assort {command}` with {line}: no `{text}` in\n{err}"
+            );
+        }
+    }
+    assert!(!case.path("out").exists(), "nothing is written");
+}
+
+#[test]
+fn a_connection_table_or_query_that_cannot_be_read_is_refused_by_name() {
+    let Some((pg, case, service)) = coop(1) else {
+        return;
+    };
+    pg.psql("CREATE SEQUENCE visits;").unwrap();
+    // A table that does not exist.
+    refused(
+        &case,
+        &service,
+        r#"input "coop_member" database coop key member_id"#,
+        &["connection `coop`", "coop_member", "does not exist"],
+    );
+    // A connection no service file describes, and one that cannot be made.
+    pg.service_file(
+        std::path::Path::new(&service),
+        "coop",
+        "[gone]\nhost=/nowhere\nuser=assort\n",
+    );
+    refused(
+        &case,
+        &service,
+        r#"input "coop_members" database warehouse key member_id"#,
+        &[
+            "connection `warehouse` is not described",
+            "no section [warehouse]",
+        ],
+    );
+    refused(
+        &case,
+        &service,
+        r#"input "coop_members" database gone key member_id"#,
+        &["cannot connect to `gone`", "/nowhere"],
+    );
+    // A query that would write, and a second statement.
+    refused(
+        &case,
+        &service,
+        r#"input "DELETE FROM coop_members RETURNING *" database coop key member_id"#,
+        &["connection `coop`", "not a query that reads rows"],
+    );
+    refused(
+        &case,
+        &service,
+        r#"input "SELECT * FROM coop_members; DELETE FROM coop_members" database coop key member_id"#,
+        &[
+            "connection `coop`",
+            "not one statement that reads",
+            "multiple commands",
+        ],
+    );
+    // A function with a side effect called from the query.
+    refused(
+        &case,
+        &service,
+        r#"input "SELECT *, nextval('visits') AS visit FROM coop_members" database coop key member_id"#,
+        &[
+            "connection `coop`",
+            "would change the database",
+            "assort only reads",
+        ],
+    );
+    let after = pg
+        .psql("SELECT count(*), (SELECT last_value FROM visits), (SELECT is_called FROM visits) FROM coop_members;")
+        .unwrap();
+    assert_eq!(
+        after[1].iter().collect::<Vec<_>>(),
+        ["6000", "1", "f"],
+        "nothing was deleted and the sequence did not move"
+    );
+}
+
+#[test]
+fn keys_types_and_options_a_table_cannot_take_are_refused() {
+    let Some((pg, case, service)) = coop(1) else {
+        return;
+    };
+    pg.psql(
+        "CREATE TABLE dated (member_id TEXT, joined DATE, basket_value DOUBLE PRECISION);\
+         INSERT INTO dated VALUES ('M1', '2026-01-01', 3.5), ('M2', '2026-02-01', 4.5);\
+         CREATE TABLE unkeyed (member_id TEXT, basket_value DOUBLE PRECISION);\
+         INSERT INTO unkeyed VALUES ('M1', 3.5), (NULL, 4.5), ('M3', 1.0);",
+    )
+    .unwrap();
+    // Options that mean nothing for a table.
+    refused(
+        &case,
+        &service,
+        r#"input "coop_members" database coop no key"#,
+        &["a table has no order of its own"],
+    );
+    // A key that is NULL for one record.
+    let env = [("PGSERVICEFILE", service.as_str())];
+    case.write(
+        "few.assort",
+        "seed 1\ninput \"unkeyed\" database coop key member_id\nfeatures basket_value\nkmeans k 2\n",
+    );
+    let run = case.assort(&["check", "few.assort"], &env).fails();
+    assert!(
+        run.stderr().contains("1 of its 3 records have no key"),
+        "{}",
+        run.stderr()
+    );
+    // A feature column of a type assort does not read.
+    case.write(
+        "dated.assort",
+        "seed 1\ninput \"dated\" database coop key member_id\nfeatures joined, basket_value\nkmeans k 2\n",
+    );
+    let run = case.assort(&["check", "dated.assort"], &env).fails();
+    assert!(
+        common::case::unwrapped(&run.stderr())
+            .contains("`joined` holds a date in the database, which assort does not read"),
+        "{}",
+        run.stderr()
+    );
+}
+
+#[test]
+fn a_bad_value_past_the_checked_sample_stops_the_run_and_keeps_earlier_outputs() {
+    let Some((pg, case, service)) = coop(1) else {
+        return;
+    };
+    // The same members with visits as text, one of them not a number,
+    // far past the first 1,000 records in key order that `check` reads.
+    pg.psql(
+        "CREATE TABLE members_typed AS SELECT member_id, home_branch, tenure_months, \
+         CAST(visits_per_month AS TEXT) AS visits_per_month, basket_value, share_fresh, \
+         share_bulk, share_prepared, online_ratio, coupon_rate, spend_12m, contactable \
+         FROM coop_members;\
+         UPDATE members_typed SET visits_per_month = 'twice' WHERE member_id = 'M15000';",
+    )
+    .unwrap();
+    let env = [("PGSERVICEFILE", service.as_str())];
+    case.edit(
+        "coop-members.assort",
+        r#"input "data/coop_members.csv" key member_id"#,
+        r#"input "coop_members" database coop key member_id"#,
+    );
+    case.assort(&["run", "coop-members.assort"], &env).ok();
+    let before = case.outputs::<&str>(&[]);
+    case.edit(
+        "coop-members.assort",
+        r#"input "coop_members" database"#,
+        r#"input "members_typed" database"#,
+    );
+    case.assort(&["check", "coop-members.assort"], &env).ok();
+    let run = case.assort(&["run", "coop-members.assort"], &env).fails();
+    let err = common::case::unwrapped(&run.stderr());
+    assert!(
+        err.contains("table `members_typed` on connection `coop` line 5001")
+            && err.contains("`visits_per_month`")
+            && err.contains("twice"),
+        "{err}"
+    );
+    assert_eq!(
+        case.outputs::<&str>(&[]),
+        before,
+        "earlier outputs are intact"
+    );
+}
