@@ -670,6 +670,10 @@ pub struct KMeansPlan {
     /// Restarts on a seeded sample of this many records, the best refined
     /// on every record; `None` runs every restart on every record.
     pub sample: Option<usize>,
+    /// `sample N by key`: the sample drawn by key rank and refined with
+    /// exact sums (`crate::scale::drive`), independent of record order.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub by_key: bool,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]

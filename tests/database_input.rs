@@ -74,7 +74,14 @@ fn input_digest(case: &Case) -> String {
 /// the connection, and compares every output, once the input's
 /// description (`shown` in the report, `said` in text), the digests and
 /// the name the SQL gives the table (`sql_table`) are put back.
-fn demo_alike(case: &Case, service: &str, source: &str, shown: &str, sql_table: &str) {
+fn demo_alike(
+    pg: &Postgres,
+    case: &Case,
+    service: &str,
+    source: &str,
+    shown: &str,
+    sql_table: &str,
+) {
     let env = [("PGSERVICEFILE", service)];
     case.assort(&["run", "coop-members.assort"], &env).ok();
     let from_csv = case.outputs::<&str>(&[]);
@@ -94,7 +101,12 @@ fn demo_alike(case: &Case, service: &str, source: &str, shown: &str, sql_table: 
         true => "the recipe's query on connection `coop`".to_string(),
         false => format!("table `{source}` on connection `coop`"),
     };
+    let target = format!(
+        " (database `postgres` as `assort` at {} port 5432)",
+        pg.socket_dir().display()
+    );
     let from_table = case.outputs(&[
+        (target.as_str(), ""),
         (shown, "<code>data/coop_members.csv</code>"),
         (&said, "data/coop_members.csv"),
         (&table_digest, &csv_digests.0),
@@ -120,17 +132,24 @@ fn demo_alike(case: &Case, service: &str, source: &str, shown: &str, sql_table: 
     );
 }
 
+/// [`demo_alike`] over the table in four partitions.
+fn split_alike(pg: &Postgres, case: &Case, service: &str) {
+    let shown = "table <code>coop_members_split</code> on connection <code>coop</code>";
+    let table = "coop_members_split";
+    demo_alike(pg, case, service, table, shown, table);
+}
+
 fn recipe_digest(case: &Case) -> String {
     assort::run::load::file_sha256(&case.path("coop-members.assort")).unwrap()
 }
 
 #[test]
 fn the_demo_over_a_table_writes_what_it_writes_from_the_csv() {
-    let Some((_pg, case, service)) = coop(1) else {
+    let Some((pg, case, service)) = coop(1) else {
         return;
     };
     let shown = "table <code>coop_members</code> on connection <code>coop</code>";
-    demo_alike(&case, &service, "coop_members", shown, "coop_members");
+    demo_alike(&pg, &case, &service, "coop_members", shown, "coop_members");
 }
 
 #[test]
@@ -156,22 +175,16 @@ fn the_demo_over_four_partitions_read_in_parallel_writes_the_same() {
         "no parallel worker ran:\n{}",
         plan.join("\n")
     );
-    let shown = "table <code>coop_members_split</code> on connection <code>coop</code>";
-    demo_alike(
-        &case,
-        &service,
-        "coop_members_split",
-        shown,
-        "coop_members_split",
-    );
+    split_alike(&pg, &case, &service);
 }
 
 #[test]
 fn the_demo_over_a_query_writes_the_same() {
-    let Some((_pg, case, service)) = coop(1) else {
+    let Some((pg, case, service)) = coop(1) else {
         return;
     };
     demo_alike(
+        &pg,
         &case,
         &service,
         "SELECT * FROM coop_members WHERE tenure_months >= 0",
@@ -365,4 +378,84 @@ fn a_bad_value_past_the_checked_sample_stops_the_run_and_keeps_earlier_outputs()
         before,
         "earlier outputs are intact"
     );
+}
+
+#[test]
+fn a_password_comes_from_the_password_file_and_is_never_shown() {
+    let Some((pg, case, _)) = coop(1) else {
+        return;
+    };
+    // A role that must log in with a password (the server's other users
+    // are trusted), allowed to read the members.
+    pg.psql(
+        "SET password_encryption = 'scram-sha-256';\
+         CREATE ROLE reader LOGIN PASSWORD 'c0-op:r\\ead';\
+         GRANT SELECT ON coop_members TO reader;",
+    )
+    .unwrap();
+    let hba = pg.socket_dir().join("data/pg_hba.conf");
+    let rules = std::fs::read_to_string(&hba).unwrap();
+    std::fs::write(&hba, format!("local all reader scram-sha-256\n{rules}")).unwrap();
+    pg.psql("SELECT pg_reload_conf();").unwrap();
+
+    let service = case.path("pg_service.conf");
+    pg.service_file(&service, "coop", "");
+    case.edit("pg_service.conf", "user=assort", "user=reader");
+    case.edit(
+        "coop-members.assort",
+        r#"input "data/coop_members.csv" key member_id"#,
+        r#"input "coop_members" database coop key member_id"#,
+    );
+    let service = service.display().to_string();
+    // Without a password the server refuses the log-in, by name.
+    let run = case
+        .assort(
+            &["check", "coop-members.assort"],
+            &[("PGSERVICEFILE", &service)],
+        )
+        .fails();
+    assert!(
+        run.stderr().contains("cannot connect to `coop`") && run.stderr().contains("reader"),
+        "{}",
+        run.stderr()
+    );
+    // A password file others may read is ignored, as libpq ignores it.
+    let pgpass = case.path("pgpass");
+    std::fs::write(
+        &pgpass,
+        format!(
+            "# the co-op's reader\n{}:5432:postgres:reader:c0-op\\:r\\\\ead\n",
+            pg.socket_dir().display()
+        ),
+    )
+    .unwrap();
+    use std::os::unix::fs::PermissionsExt;
+    let env = [
+        ("PGSERVICEFILE", service.as_str()),
+        ("PGPASSFILE", pgpass.to_str().unwrap()),
+    ];
+    std::fs::set_permissions(&pgpass, std::fs::Permissions::from_mode(0o644)).unwrap();
+    case.assort(&["check", "coop-members.assort"], &env).fails();
+    std::fs::set_permissions(&pgpass, std::fs::Permissions::from_mode(0o600)).unwrap();
+    let run = case.assort(&["run", "coop-members.assort"], &env).ok();
+    let mut shown = run.stdout() + &run.stderr();
+    for (_, text) in case.outputs::<&str>(&[]) {
+        shown.push_str(&text);
+    }
+    shown.push_str(&case.read("out/coop-members.run.json"));
+    assert!(shown.contains("as `reader`"), "the record names the user");
+    assert!(!shown.contains("c0-op"), "the password is never shown");
+}
+
+#[test]
+fn a_sample_drawn_by_key_gives_the_same_segments_from_a_table_filled_in_random_order() {
+    let Some((pg, case, service)) = coop(4) else {
+        return;
+    };
+    case.edit(
+        "coop-members.assort",
+        "kmeans k 2..8 restarts 50",
+        "kmeans k 2..8 restarts 10 sample 2000 by key",
+    );
+    split_alike(&pg, &case, &service);
 }

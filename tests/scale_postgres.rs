@@ -309,3 +309,77 @@ fn the_sample_drawn_in_postgresql_is_the_one_drawn_here() {
     let here: Vec<String> = draw(texts, 7, 6).into_iter().map(str::to_string).collect();
     assert_eq!(there, here);
 }
+
+/// The driver (`scale::drive`): the sample drawn by rank in the database,
+/// restarts on it, the three best refined by rounds run in the database,
+/// gives the same fit, bit for bit, as the same driver over the records
+/// in memory; in one table and in four partitions read by parallel
+/// workers.
+#[test]
+fn a_fit_refined_in_the_database_is_the_fit_refined_in_memory() {
+    use assort::engine::kmeans::{KMeansSettings, Seeding};
+    use assort::scale::drive::{self, InMemory};
+    use assort::scale::postgres::{InDatabase, Target};
+    use assort::scale::sample;
+    let Some((pg, _dir, env)) = coop() else {
+        return;
+    };
+    let data = wine(50, true);
+    load(&pg, "wine_one", &data, 1);
+    load(&pg, "wine_four", &data, 4);
+    pg.psql(&format!(
+        "{}SELECT pg_reload_conf();",
+        PARALLEL.replace("SET ", "ALTER SYSTEM SET ")
+    ))
+    .unwrap();
+    let (seed, size) = (2026, 1000);
+    let settings = KMeansSettings {
+        k: 4,
+        restarts: 8,
+        max_rounds: 100,
+        tolerance: 1e-4,
+        seeding: Seeding::KMeansPlusPlus,
+        seed,
+        sample: None,
+        start: None,
+    };
+    let (shifts, _, features) = start_of(&data, 1);
+
+    // In memory: the same draw over the record numbers as keys.
+    let keys: Vec<String> = (0..data.nrows()).map(|i| i.to_string()).collect();
+    let drawn = sample::draw(keys.iter().map(String::as_str), seed, size);
+    let rows: Vec<usize> = drawn.iter().map(|k| k.parse().unwrap()).collect();
+    let here_sample = data.select(ndarray::Axis(0), &rows);
+    let mut memory = InMemory {
+        data: data.view(),
+        shifts: &shifts,
+    };
+    let here = drive::fit(here_sample.view(), &settings, &shifts, &mut memory).unwrap();
+    assert_eq!(here.len(), 3, "the three best restarts are refined");
+    assert!(here[0].within <= here[1].within && here[0].converged);
+    assert_eq!(here[0].sizes.iter().sum::<u64>(), data.nrows() as u64);
+
+    for table in ["wine_one", "wine_four"] {
+        let mut db = Target::resolve("coop", &env).unwrap().connect().unwrap();
+        let largest = db.largest(table, &features).unwrap();
+        assert_eq!(Shifts::of(&largest).unwrap(), shifts, "{table}");
+        let (sampled, values) = db.sample(table, "id", &features, (seed, size)).unwrap();
+        assert_eq!(sampled, drawn, "{table}: the same sample, in rank order");
+        let there_sample = Array2::from_shape_vec((size, features.len()), values).unwrap();
+        assert_eq!(there_sample, here_sample, "{table}: the same values");
+        let mut engine = InDatabase {
+            db: &mut db,
+            source: table.to_string(),
+            features: features.clone(),
+            shifts: &shifts,
+        };
+        let there = drive::fit(there_sample.view(), &settings, &shifts, &mut engine).unwrap();
+        // Debug writes each double's shortest exact digits (and the sign
+        // of a zero): equal text is equal bits.
+        assert_eq!(
+            format!("{there:?}"),
+            format!("{here:?}"),
+            "{table}: every refinement, bit for bit"
+        );
+    }
+}

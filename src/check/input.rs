@@ -554,6 +554,12 @@ impl Checker {
                     "save handoff",
                     "a CRM could not match the file's rows to its customers",
                 )),
+                StatementKind::KMeans { options } if options.iter().any(|o| o.name.node == "by") => {
+                    Some((
+                        "`by key`",
+                        "a line number follows the file's order, which drawing the sample by key is meant to be free of",
+                    ))
+                }
                 _ => None,
             };
             if let Some((what, why)) = refused {

@@ -409,6 +409,7 @@ impl Checker {
             None => Some(None),
             Some(o) => self.sample(&opts, o, ks.as_deref()).map(Some),
         };
+        let by_key = self.by_key(&opts);
         let tolerance = self.tolerance(&opts);
         let seeding = self
             .word_option(
@@ -428,7 +429,36 @@ impl Checker {
             tolerance: tolerance?,
             seeding: seeding?,
             sample: sample?,
+            by_key: by_key?,
         })
+    }
+
+    /// `by key` (with `sample`): whether the sample is drawn by key rank.
+    fn by_key(&mut self, opts: &HashMap<&'static str, &OptionPair>) -> Option<bool> {
+        let Some(o) = opts.get("by") else {
+            return Some(false);
+        };
+        if !matches!(&o.value.node, Value::Word(w) if w == "key") {
+            self.bad_value(
+                "by",
+                &o.value.node,
+                "`key`",
+                o.value.span,
+                "`sample 200000 by key` draws the sample by each record's key",
+            );
+            return None;
+        }
+        if !opts.contains_key("sample") {
+            self.bad_value(
+                "by",
+                &o.value.node,
+                "`key` after `sample N`",
+                o.name.span.to(o.value.span),
+                "`by key` says how the sample is drawn: give its size too, such as `sample 200000 by key`",
+            );
+            return None;
+        }
+        Some(true)
     }
 
     /// The `tolerance` option of `kmeans` and `kprototypes`.

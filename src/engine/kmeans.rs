@@ -48,7 +48,7 @@
 
 mod hamerly;
 mod sampled;
-pub use sampled::REFINED;
+pub use sampled::{best_starts, Start, REFINED};
 
 use super::weights::{draw_by_weight, Weights};
 use super::{dist2, rng::Stream, stop, EngineError};

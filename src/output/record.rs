@@ -80,9 +80,9 @@ pub fn input_digests(o: &Outcome) -> Vec<InputDigest> {
 pub fn input_digests_with(o: &Outcome, input_sha256: Option<String>) -> Vec<InputDigest> {
     let mut out = vec![InputDigest {
         role: "input".into(),
-        path: match o.plan.input.source() {
-            Some(source) => source.describe(),
-            None => o.plan.input.path.clone(),
+        path: match (o.plan.input.source(), &o.read_target) {
+            (Some(source), Some(target)) => format!("{} ({target})", source.describe()),
+            _ => o.plan.input.shown(),
         },
         sha256: input_sha256.unwrap_or_default(),
         records: o.records,

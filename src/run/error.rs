@@ -255,4 +255,11 @@ pub enum RunError {
         help("nothing was written; the connection comes from the service file or the PG variables (docs/scale-out.md)")
     )]
     Database { reason: String },
+
+    #[error("`sample ... by key` cannot run: {reason}")]
+    #[diagnostic(
+        code(assort::run::by_key),
+        help("remove `by key` to run the sample by record number, or change the data as the message says; nothing was written")
+    )]
+    ByKey { reason: String },
 }

@@ -49,6 +49,12 @@ pub(super) fn fit(
 ) -> Result<Fitted, RunError> {
     let x = prepared.matrix.view();
     match &plan.method {
+        MethodPlan::KMeans(km) if km.by_key => {
+            let keys: Vec<&str> = prepared.kept.iter().map(|&r| table.keys.get(r)).collect();
+            let candidates =
+                super::driven::fit(plan, km, (x, prepared.weights()), &keys, progress)?;
+            Ok(Fitted::of(candidates, None))
+        }
         MethodPlan::KMeans(km) => {
             let w = prepared.weights();
             let candidates = fit_kmeans(plan, km, (x, w), last, progress)?;
@@ -125,42 +131,60 @@ fn fit_kmeans(
 ) -> Result<Vec<Candidate>, RunError> {
     // The data's spread, for every k's tolerance, measured once.
     let spread = kmeans::Spread::of(x, w);
-    km.ks
-        .iter()
-        .enumerate()
+    each_k(km, progress, |k| {
+        let settings = kmeans::KMeansSettings {
+            // Last run's centres start one more restart at its k.
+            start: last.filter(|l| l.k() == k).map(|l| l.start()),
+            ..settings_at(plan, km, k)
+        };
+        let fit = kmeans::kmeans_weighted_spread(x, w, &settings, &spread)
+            .map_err(|source| engine_error(k, source))?;
+        Ok(Candidate {
+            k,
+            restarts: Some(Restarts {
+                at_best: fit.restarts_at_best,
+                of: fit.restarts,
+                converged: fit.converged,
+                sampled: fit.sampled,
+                by_key: false,
+            }),
+            labels: fit.labels,
+            centres: fit.centroids,
+            medoids: None,
+        })
+    })
+}
+
+/// `fit` at every k of the recipe, in order, saying so to `progress`.
+pub(super) fn each_k<T>(
+    km: &KMeansPlan,
+    progress: &dyn Fn(Step),
+    mut fit: impl FnMut(usize) -> Result<T, RunError>,
+) -> Result<Vec<T>, RunError> {
+    (km.ks.iter().enumerate())
         .map(|(i, &k)| {
             progress(Step {
                 what: "fitting k-means",
                 done: i,
                 total: km.ks.len(),
             });
-            let settings = kmeans::KMeansSettings {
-                k,
-                restarts: km.restarts,
-                max_rounds: km.rounds,
-                tolerance: km.tolerance,
-                seeding: km.seeding,
-                seed: plan.seed,
-                sample: km.sample,
-                // Last run's centres start one more restart at its k.
-                start: last.filter(|l| l.k() == k).map(|l| l.start()),
-            };
-            let fit = kmeans::kmeans_weighted_spread(x, w, &settings, &spread)
-                .map_err(|source| engine_error(k, source))?;
-            Ok(Candidate {
-                k,
-                restarts: Some(Restarts {
-                    at_best: fit.restarts_at_best,
-                    of: fit.restarts,
-                    converged: fit.converged,
-                    sampled: fit.sampled,
-                }),
-                labels: fit.labels,
-                centres: fit.centroids,
-                medoids: None,
-            })
+            fit(k)
         })
         .collect()
+}
+
+/// The k-means settings of a recipe at `k`, without a given start.
+pub(super) fn settings_at(plan: &Plan, km: &KMeansPlan, k: usize) -> kmeans::KMeansSettings {
+    kmeans::KMeansSettings {
+        k,
+        restarts: km.restarts,
+        max_rounds: km.rounds,
+        tolerance: km.tolerance,
+        seeding: km.seeding,
+        seed: plan.seed,
+        sample: km.sample,
+        start: None,
+    }
 }
 
 /// A tree as built for a recipe: over the records, or over k-means

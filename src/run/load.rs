@@ -38,6 +38,9 @@ pub struct Table {
     /// then the byte 0x1F, NULL as the byte 0x1E alone, each row ended by
     /// a line feed), so that a rerun can tell whether the data changed.
     pub digest: Option<String>,
+    /// For a table or a query on a connection: where the connection led,
+    /// in words, without its password (for the run record).
+    pub target: Option<String>,
 }
 
 /// Every record's key, in one buffer.
@@ -221,16 +224,19 @@ pub fn load(
 /// record in CSV would be (every value arrives as text, NULL blank), so a
 /// table and a file of the same records, in the same order, load the
 /// same; a record's line is its place in key order, as in that CSV.
-pub fn load_source(source: &Source, cols: &Columns<'_>) -> Result<Table, RunError> {
+/// `env` reads a variable (the process's own in a run).
+pub fn load_source(
+    source: &Source,
+    cols: &Columns<'_>,
+    env: &dyn Fn(&str) -> Option<String>,
+) -> Result<Table, RunError> {
     use sha2::Digest;
     let shown = source.describe();
     let failed = |e: DbError| RunError::Database {
         reason: e.to_string(),
     };
-    let env = |name: &str| std::env::var(name).ok();
-    let mut db = Target::resolve(&source.connection, &env)
-        .and_then(|t| t.connect())
-        .map_err(failed)?;
+    let target = Target::resolve(&source.connection, env).map_err(failed)?;
+    let mut db = target.connect().map_err(failed)?;
     let typed = db.columns(source).map_err(failed)?;
     let mut names: Vec<&str> = Vec::new();
     for name in (cols.key.iter().copied())
@@ -283,6 +289,7 @@ pub fn load_source(source: &Source, cols: &Columns<'_>) -> Result<Table, RunErro
     .map_err(failed)??;
     let mut table = Table::for_columns(&located);
     table.digest = Some(crate::text::hex(&hasher.finalize()));
+    table.target = Some(target.describe());
     table.append(
         vec![blocks::Piece {
             out: rows,
@@ -339,6 +346,7 @@ fn load_parquet(path: &Path, shown: &str, cols: &Columns<'_>) -> Result<Table, R
         numeric: Vec::new(),
         text: Vec::new(),
         digest: None,
+        target: None,
     };
     for (i, line) in table.lines.iter().enumerate() {
         match (&keys, key_at) {
@@ -482,6 +490,7 @@ impl Table {
             numeric: vec![NumericColumn::default(); num_at.len()],
             text: vec![Vec::new(); text_at.len()],
             digest: None,
+            target: None,
         }
     }
 

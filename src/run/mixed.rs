@@ -66,6 +66,7 @@ fn restarts(at_best: usize, of: usize, converged: bool) -> Restarts {
         of,
         converged,
         sampled: None,
+        by_key: false,
     }
 }
 

@@ -7,6 +7,7 @@
 
 mod blocks;
 pub mod comparison;
+mod driven;
 pub mod error;
 mod fit;
 mod judge;
@@ -87,6 +88,9 @@ pub struct Restarts {
     /// Records the restarts ran on, when they ran on a sample (the best
     /// then refined on every record).
     pub sampled: Option<usize>,
+    /// The sample was drawn by key rank and refined with exact sums
+    /// (`sample N by key`).
+    pub by_key: bool,
 }
 
 /// The tree a `tree` recipe built.
@@ -253,6 +257,8 @@ pub struct Outcome {
     /// The digest of a table's values as read ([`load::Table::digest`]);
     /// a file's digest is taken of the file.
     pub read_digest: Option<String>,
+    /// Where a connection led ([`load::Table::target`]).
+    pub read_target: Option<String>,
     pub prepared: Prepared,
     pub sweep: Vec<SweepRow>,
     pub chosen: usize,
@@ -354,7 +360,9 @@ impl DataCache {
                 decimal: plan.input.decimal,
             };
             let table = match plan.input.source() {
-                Some(source) => load::load_source(&source, &cols)?,
+                Some(source) => {
+                    load::load_source(&source, &cols, &|name| std::env::var(name).ok())?
+                }
                 None => load::load(
                     &plan.input.resolved,
                     &plan.input.path,
@@ -442,6 +450,7 @@ pub fn run_with(
         plan: plan.clone(),
         records: table.keys.len(),
         read_digest: table.digest.clone(),
+        read_target: table.target.clone(),
         silhouettes: chosen_silhouettes(&mut judged, &numbered),
         sweep: judged.sweep,
         chosen: judged.chosen,

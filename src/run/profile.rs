@@ -75,12 +75,21 @@ pub(super) fn notes(
             crate::text::thousands(fitted.apart)
         ));
     }
-    if let Some(s) = candidates
-        .iter()
-        .find_map(|c| c.restarts.as_ref().and_then(|r| r.sampled))
-    {
+    if let Some((s, by_key)) = candidates.iter().find_map(|c| {
+        c.restarts
+            .as_ref()
+            .and_then(|r| r.sampled.map(|s| (s, r.by_key)))
+    }) {
+        let (seeded, drawn, refined) = match by_key {
+            true => (
+                "",
+                " drawn by key",
+                "with exact sums (`sample ... by key` in the recipe: the segments do not depend on the order of the records)",
+            ),
+            false => ("seeded ", "", "(`sample` in the recipe)"),
+        };
         notes.push(format!(
-            "k-means restarts ran on a seeded sample of {} of {} records; for each k the best {} were refined on every record (`sample` in the recipe)",
+            "k-means restarts ran on a {seeded}sample of {} of {} records{drawn}; for each k the best {} were refined on every record {refined}",
             crate::text::thousands(s),
             crate::text::thousands(n),
             kmeans::REFINED.min(candidates[0].restarts.as_ref().map_or(1, |r| r.of)),

@@ -3,6 +3,7 @@
 //! here keeping only the centres and each round's exact sums
 //! ([`crate::engine::exact`]).
 
+pub mod drive;
 pub mod postgres;
 pub mod round;
 pub mod sample;

@@ -3,7 +3,8 @@
 //! tools take it, never from the recipe: the service file (`PGSERVICEFILE`,
 //! else `~/.pg_service.conf`, else `pg_service.conf` in `PGSYSCONFDIR`),
 //! then the environment (`PGHOST`, `PGPORT`, `PGDATABASE`, `PGUSER`,
-//! `PGPASSWORD`). A recipe may come from a colleague, so every statement
+//! `PGPASSWORD`), then for a password the password file (`PGPASSFILE`,
+//! else `~/.pgpass`). A recipe may come from a colleague, so every statement
 //! assort sends runs in a read-only transaction, and a recipe's own query
 //! is checked to be one statement that only reads.
 
@@ -77,14 +78,18 @@ impl Target {
         let user = pick("user", "PGUSER")
             .or_else(|| env("USER"))
             .ok_or_else(|| unknown("no user: give `user` in its service or set PGUSER".into()))?;
-        Ok(Target {
+        let mut target = Target {
             name: name.to_string(),
-            host: pick("host", "PGHOST").unwrap_or_else(|| "/var/run/postgresql".into()),
+            host: pick("host", "PGHOST").unwrap_or_else(|| DEFAULT_SOCKETS.into()),
             port,
             dbname: pick("dbname", "PGDATABASE").unwrap_or_else(|| user.clone()),
             user,
             password: pick("password", "PGPASSWORD"),
-        })
+        };
+        if target.password.is_none() {
+            target.password = password_file(&target, env);
+        }
+        Ok(target)
     }
 
     /// The connection in words, without its password: for messages and
@@ -122,6 +127,71 @@ impl Target {
             name: self.name.clone(),
         })
     }
+}
+
+/// Where the server's Unix sockets are when no host is given (Debian's
+/// packages; libpq's own default).
+const DEFAULT_SOCKETS: &str = "/var/run/postgresql";
+
+/// The password for `target` in the password file (`PGPASSFILE`, else
+/// `~/.pgpass`), read as libpq reads it: lines `host:port:database:user:
+/// password`, `*` matching anything, `\:` and `\\` standing for `:` and
+/// `\`, the first matching line winning; `localhost` also matches a
+/// connection through the default socket folder. Like libpq, a file that
+/// others may read is ignored (its mode must be 0600 or stricter), and
+/// nothing is said about it: a missing password shows up as the server
+/// refusing the log-in. O(size of the file).
+fn password_file(target: &Target, env: &dyn Fn(&str) -> Option<String>) -> Option<String> {
+    let path = env("PGPASSFILE")
+        .map(PathBuf::from)
+        .or_else(|| env("HOME").map(|h| PathBuf::from(h).join(".pgpass")))?;
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        let mode = std::fs::metadata(&path).ok()?.permissions().mode();
+        if mode & 0o077 != 0 {
+            return None;
+        }
+    }
+    let text = std::fs::read_to_string(&path).ok()?;
+    let port = target.port.to_string();
+    let host_matches = |h: &str| {
+        h == "*" || h == target.host || (h == "localhost" && target.host == DEFAULT_SOCKETS)
+    };
+    text.lines()
+        .filter(|l| !l.trim_start().starts_with('#'))
+        .map(password_fields)
+        .find(|f| {
+            f.len() == 5
+                && host_matches(&f[0])
+                && (f[1] == "*" || f[1] == port)
+                && (f[2] == "*" || f[2] == target.dbname)
+                && (f[3] == "*" || f[3] == target.user)
+        })
+        .map(|f| f[4].clone())
+}
+
+/// A password file line's fields: split at `:`, with `\:` and `\\`
+/// standing for `:` and `\`.
+fn password_fields(line: &str) -> Vec<String> {
+    let mut fields = vec![String::new()];
+    let mut chars = line.chars();
+    while let Some(c) = chars.next() {
+        match c {
+            '\\' => {
+                if let (Some(next), Some(f)) = (chars.next(), fields.last_mut()) {
+                    f.push(next);
+                }
+            }
+            ':' if fields.len() < 5 => fields.push(String::new()),
+            c => {
+                if let Some(f) = fields.last_mut() {
+                    f.push(c);
+                }
+            }
+        }
+    }
+    fields
 }
 
 /// The section `[name]` of the first service file found, as key = value.
@@ -311,6 +381,67 @@ impl Database {
         })
     }
 
+    /// The largest magnitude of each of `features` (SQL expressions over
+    /// `source`), exact: what the exact sums' shifts are chosen from.
+    /// NULLs are left aside.
+    pub fn largest(&mut self, source: &str, features: &[String]) -> Result<Vec<f64>, DbError> {
+        let list: Vec<String> = features
+            .iter()
+            .map(|f| format!("CAST(MAX(ABS({f})) AS TEXT)"))
+            .collect();
+        let sql = format!("SELECT {} FROM {source}", list.join(", "));
+        let rows = self.read(&sql, "measuring the features' range")?;
+        let row = rows.into_iter().next().unwrap_or_default();
+        Ok(row
+            .iter()
+            .map(|v| {
+                v.as_deref()
+                    .and_then(crate::text::parse_number)
+                    .unwrap_or(0.0)
+            })
+            .collect())
+    }
+
+    /// The seeded sample of `size` records of `source` keyed by `key`, in
+    /// rank order ([`super::sample`]): their keys and `features` (SQL
+    /// expressions) as doubles. A value that is NULL or not a number is
+    /// an error naming the record's key.
+    pub fn sample(
+        &mut self,
+        source: &str,
+        key: &str,
+        features: &[String],
+        (seed, size): (u64, usize),
+    ) -> Result<(Vec<String>, Vec<f64>), DbError> {
+        use super::sample::{sample_query, Dialect};
+        let columns: Vec<String> = features
+            .iter()
+            .map(|f| format!("CAST({f} AS TEXT)"))
+            .collect();
+        let sql = sample_query(source, key, &columns, seed, size, Dialect::Postgres);
+        let rows = self.read(&sql, "drawing the sample")?;
+        let mut keys = Vec::with_capacity(rows.len());
+        let mut values = Vec::with_capacity(rows.len() * features.len());
+        for row in rows {
+            let mut cells = row.into_iter();
+            let k = cells.next().flatten().unwrap_or_default();
+            for (j, v) in cells.enumerate() {
+                let x = v.as_deref().and_then(crate::text::parse_number);
+                values.push(x.ok_or_else(|| DbError::Failed {
+                    connection: self.name.clone(),
+                    what: "drawing the sample".into(),
+                    reason: format!(
+                        "feature {} of the record keyed `{k}` is {}",
+                        j + 1,
+                        v.map_or("NULL".into(), |v| format!("`{v}`, not a number"))
+                    ),
+                })?);
+            }
+            keys.push(k);
+        }
+        Ok((keys, values))
+    }
+
     /// A recipe's own query, checked to be one statement that only reads,
     /// and its columns' names. It is prepared (a second statement after `;`
     /// is refused), then run as a subquery that returns no row (a data
@@ -344,5 +475,88 @@ impl Database {
             ))),
             Err(e) => Err(e),
         }
+    }
+}
+
+/// Rounds run by the database over `source` (as it may follow `FROM`),
+/// whose `features` are SQL expressions of the prepared values.
+pub struct InDatabase<'a> {
+    pub db: &'a mut Database,
+    pub source: String,
+    pub features: Vec<String>,
+    pub shifts: &'a Shifts,
+}
+
+impl super::drive::Rounds for InDatabase<'_> {
+    type Error = DbError;
+    fn round(&mut self, centres: &[f64]) -> Result<RoundSums, DbError> {
+        self.db
+            .round(&self.source, &self.features, centres, self.shifts)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn password_file_fields_unescape_colons_and_backslashes() {
+        assert_eq!(
+            password_fields(r"db.example:5432:*:ana:p\:w\\d:x"),
+            ["db.example", "5432", "*", "ana", r"p:w\d:x"]
+        );
+        assert_eq!(password_fields("a:b"), ["a", "b"]);
+    }
+
+    /// A target at `host` as `user` of database `coop`, with the password
+    /// file holding `lines` at `mode`.
+    fn from_file(host: &str, user: &str, lines: &str, mode: u32) -> Option<String> {
+        use std::os::unix::fs::PermissionsExt;
+        let dir = tempfile::tempdir().unwrap();
+        let file = dir.path().join("pgpass");
+        std::fs::write(&file, lines).unwrap();
+        std::fs::set_permissions(&file, std::fs::Permissions::from_mode(mode)).unwrap();
+        let target = Target {
+            name: "coop".into(),
+            host: host.into(),
+            port: 5432,
+            dbname: "coop".into(),
+            user: user.into(),
+            password: None,
+        };
+        let path = file.display().to_string();
+        password_file(&target, &|v: &str| {
+            (v == "PGPASSFILE").then(|| path.clone())
+        })
+    }
+
+    #[test]
+    fn the_first_matching_password_line_wins_as_in_libpq() {
+        let lines = "# the co-op's reader\nother:*:*:*:no\n*:5433:*:*:wrong-port\n\
+                     /var/run/postgresql:5432:coop:reader:first\n*:*:*:reader:second\n";
+        assert_eq!(
+            from_file("/var/run/postgresql", "reader", lines, 0o600).as_deref(),
+            Some("first")
+        );
+        assert_eq!(
+            from_file("/tmp/sock", "reader", lines, 0o600).as_deref(),
+            Some("second")
+        );
+        assert_eq!(from_file("/tmp/sock", "writer", lines, 0o600), None);
+        // `localhost` stands for the default socket folder.
+        let local = "localhost:5432:coop:reader:local\n";
+        assert_eq!(
+            from_file("/var/run/postgresql", "reader", local, 0o600).as_deref(),
+            Some("local")
+        );
+        assert_eq!(from_file("/tmp/sock", "reader", local, 0o600), None);
+    }
+
+    #[test]
+    fn a_password_file_others_may_read_is_ignored() {
+        let lines = "*:*:*:*:secret\n";
+        assert_eq!(from_file("h", "u", lines, 0o400).as_deref(), Some("secret"));
+        assert_eq!(from_file("h", "u", lines, 0o644), None);
+        assert_eq!(from_file("h", "u", lines, 0o640), None);
     }
 }

@@ -62,9 +62,30 @@ pub fn sample_query(
 /// The keys of the sample this module draws from `keys`: the `size`
 /// smallest by rank, in rank order (then by key). O(n log n).
 pub fn draw<'a>(keys: impl IntoIterator<Item = &'a str>, seed: u64, size: usize) -> Vec<&'a str> {
-    let mut ranked: Vec<(String, &str)> = keys.into_iter().map(|k| (rank(seed, k), k)).collect();
-    ranked.sort_unstable();
-    ranked.into_iter().take(size).map(|(_, k)| k).collect()
+    let keys: Vec<&str> = keys.into_iter().collect();
+    drawn_places(&keys, seed, size)
+        .into_iter()
+        .map(|i| keys[i])
+        .collect()
+}
+
+/// [`draw`] as places in `keys`: the records of the sample, in rank order
+/// (then by key). The ranks are computed in parallel. O(n log n).
+pub fn drawn_places(keys: &[&str], seed: u64, size: usize) -> Vec<usize> {
+    use rayon::prelude::*;
+    let mut ranked: Vec<([u8; 32], usize)> = keys
+        .par_iter()
+        .enumerate()
+        .map(|(i, k)| (Sha256::digest(format!("{seed}:{k}").as_bytes()).into(), i))
+        .collect();
+    // The digest's bytes order as its lower-case hex does; equal digests
+    // (equal keys) order by key, then place.
+    ranked.par_sort_unstable_by(|a, b| {
+        a.0.cmp(&b.0)
+            .then(keys[a.1].cmp(keys[b.1]))
+            .then(a.1.cmp(&b.1))
+    });
+    ranked.into_iter().take(size).map(|(_, i)| i).collect()
 }
 
 #[cfg(test)]

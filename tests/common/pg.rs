@@ -110,12 +110,20 @@ impl Postgres {
                 "--no-sync".as_ref(),
             ],
         )?;
+        pg.pg_ctl("start")?;
+        Ok(pg)
+    }
+
+    /// `pg_ctl start` (or `restart`) on the cluster, listening on the
+    /// folder's socket only; the server's log in the error.
+    fn pg_ctl(&self, action: &str) -> Result<Output, String> {
+        let data = self.dir.path().join("data");
         let options = format!(
             "-k {} -c listen_addresses='' -c fsync=off -p 5432",
-            pg.dir.path().display()
+            self.dir.path().display()
         );
-        let log = pg.dir.path().join("server.log");
-        pg.server_program(
+        let log = self.dir.path().join("server.log");
+        self.server_program(
             "pg_ctl",
             &[
                 "-D".as_ref(),
@@ -125,14 +133,18 @@ impl Postgres {
                 "-l".as_ref(),
                 log.as_os_str(),
                 "-w".as_ref(),
-                "start".as_ref(),
+                action.as_ref(),
             ],
         )
         .map_err(|e| {
             let log = std::fs::read_to_string(&log).unwrap_or_default();
             format!("{e}\n{log}")
-        })?;
-        Ok(pg)
+        })
+    }
+
+    /// Restarts the server (for settings read at start only).
+    pub fn restart(&self) -> Result<(), String> {
+        self.pg_ctl("restart").map(|_| ())
     }
 
     /// Runs one of the server's programs (as `postgres` under root).

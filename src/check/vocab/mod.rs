@@ -286,6 +286,11 @@ pub const KMEANS_OPTIONS: &[OptionDoc] = &[
         takes: "a whole number, 1,000 or more",
         summary: "run the restarts on a seeded sample of this many records, then refine the best 3 on every record (for millions of records; every record unless given)",
     },
+    OptionDoc {
+        name: "by",
+        takes: "`key`",
+        summary: "`sample N by key`: draw the sample by a hash of each record's key and refine with exact sums, so the segments do not depend on the order of the records; the fit a database or a cluster runs where the data lives (docs/scale-out.md)",
+    },
 ];
 
 pub const KMEDOIDS_OPTIONS: &[OptionDoc] = &[

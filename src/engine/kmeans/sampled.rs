@@ -64,22 +64,7 @@ pub(super) fn fit(whole: &Problem<'_>, s: usize) -> Result<super::KMeansFit, Eng
     let w = Weights::maybe(weights.as_deref());
     let sample = whole.over(&rows, w, s);
 
-    // Every restart on the sample: its within-SS, its partition, its centres.
-    let tried: Vec<(f64, u64, Vec<f64>)> = (0..settings.restarts)
-        .into_par_iter()
-        .map(|r| {
-            if stop::requested() {
-                return (f64::INFINITY, 0, Vec::new());
-            }
-            let run = sample.restart(r);
-            let labels = canonical(&run.labels, k).0;
-            (run.inertia, partition_hash(&labels), run.centroids)
-        })
-        .collect();
-    let mut ranked: Vec<usize> = (0..tried.len()).collect();
-    ranked.sort_by(|&a, &b| tried[a].0.total_cmp(&tried[b].0).then(a.cmp(&b)));
-    ranked.truncate(REFINED);
-
+    let (tried, ranked) = ranked_restarts(&sample);
     // A given start is refined on every record directly, after the best
     // sample restarts (so ties go to them).
     let starts: Vec<(usize, Vec<f64>)> = ranked
@@ -111,6 +96,86 @@ pub(super) fn fit(whole: &Problem<'_>, s: usize) -> Result<super::KMeansFit, Eng
         .nth(best)
         .ok_or(EngineError::BadK { k })?;
     finish(run, d, settings, restart, at_best, Some(s))
+}
+
+/// A restart run on the sample: its within-SS, the hash of its partition,
+/// its centres.
+type Tried = (f64, u64, Vec<f64>);
+
+/// Every restart of `sample`'s settings, run on the sample in parallel:
+/// each one's within-SS, partition hash and centres; and the numbers of
+/// the [`REFINED`] best, lowest within-SS first (ties to the lower
+/// number).
+fn ranked_restarts(sample: &Problem<'_>) -> (Vec<Tried>, Vec<usize>) {
+    let k = sample.settings.k;
+    let tried: Vec<Tried> = (0..sample.settings.restarts)
+        .into_par_iter()
+        .map(|r| {
+            if stop::requested() {
+                return (f64::INFINITY, 0, Vec::new());
+            }
+            let run = sample.restart(r);
+            let labels = canonical(&run.labels, k).0;
+            (run.inertia, partition_hash(&labels), run.centroids)
+        })
+        .collect();
+    let mut ranked: Vec<usize> = (0..tried.len()).collect();
+    ranked.sort_by(|&a, &b| tried[a].0.total_cmp(&tried[b].0).then(a.cmp(&b)));
+    ranked.truncate(REFINED);
+    (tried, ranked)
+}
+
+/// A restart that is worth refining on every record: its number, its
+/// centres (k rows of d, in the restart's own numbering) and its
+/// within-SS on the sample.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Start {
+    pub restart: usize,
+    pub centres: Vec<f64>,
+    pub inertia: f64,
+    /// How many restarts reached the same partition of the sample.
+    pub alike: usize,
+}
+
+/// The [`REFINED`] best restarts of `settings` on `sample` (records as
+/// rows, already drawn: `settings.sample` is not used), best first: the
+/// first half of a sampled fit, for a driver that refines them where the
+/// records live (`crate::scale`). O(restarts · rounds · s k d).
+pub fn best_starts(
+    sample: ndarray::ArrayView2<'_, f64>,
+    settings: &super::KMeansSettings,
+) -> Result<Vec<Start>, EngineError> {
+    let (s, d) = sample.dim();
+    let k = settings.k;
+    if k == 0 || d == 0 {
+        return Err(EngineError::BadK { k });
+    }
+    if k > s {
+        return Err(EngineError::TooFewRecords { k, n: s });
+    }
+    let rows: Vec<f64> = sample.iter().copied().collect();
+    let spread = super::Spread::of_rows(&rows, Weights::NONE, s, d);
+    let problem = Problem::new(
+        &rows,
+        Weights::NONE,
+        (s, d),
+        settings,
+        super::Search::Bounded,
+        spread,
+    );
+    let (tried, ranked) = ranked_restarts(&problem);
+    if stop::requested() {
+        return Err(EngineError::Stopped);
+    }
+    Ok(ranked
+        .into_iter()
+        .map(|r| Start {
+            restart: r,
+            centres: tried[r].2.clone(),
+            inertia: tried[r].0,
+            alike: tried.iter().filter(|t| t.1 == tried[r].1).count(),
+        })
+        .collect())
 }
 
 /// `s` of the record numbers `0..n` (`s <= n`), uniformly, in ascending
