@@ -459,3 +459,40 @@ fn a_sample_drawn_by_key_gives_the_same_segments_from_a_table_filled_in_random_o
     );
     split_alike(&pg, &case, &service);
 }
+
+#[test]
+fn a_query_that_fails_past_the_checked_records_stops_the_run_by_name() {
+    let Some((pg, case, service)) = coop(1) else {
+        return;
+    };
+    // Visits as text, one of them not a number, far past the first 1,000
+    // records in key order; the recipe's query casts them. The check reads
+    // the first 1,000 through the key's index and counts without the
+    // cast, so only the run's full read reaches the bad value, and the
+    // database itself fails there.
+    pg.psql(
+        "ALTER TABLE coop_members ADD PRIMARY KEY (member_id);\
+         ALTER TABLE coop_members ALTER COLUMN visits_per_month TYPE TEXT;\
+         UPDATE coop_members SET visits_per_month = 'twice' WHERE member_id = 'M15000';\
+         ANALYZE coop_members;",
+    )
+    .unwrap();
+    let env = [("PGSERVICEFILE", service.as_str())];
+    let columns = "member_id, home_branch, tenure_months, \
+         CAST(visits_per_month AS DOUBLE PRECISION) AS visits_per_month, basket_value, \
+         share_fresh, share_bulk, share_prepared, online_ratio, coupon_rate, spend_12m, contactable";
+    case.edit(
+        "coop-members.assort",
+        r#"input "data/coop_members.csv" key member_id"#,
+        &format!(r#"input "SELECT {columns} FROM coop_members" database coop key member_id"#),
+    );
+    case.assort(&["check", "coop-members.assort"], &env).ok();
+    let run = case.assort(&["run", "coop-members.assort"], &env).fails();
+    let err = common::case::unwrapped(&run.stderr());
+    assert!(
+        err.contains("`coop` failed at reading the recipe's query on connection `coop`")
+            && err.contains("twice"),
+        "{err}"
+    );
+    assert!(!case.path("out").exists(), "nothing is written");
+}

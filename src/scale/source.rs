@@ -87,6 +87,35 @@ impl Source {
     }
 }
 
+impl Source {
+    /// `SELECT` of `columns` as text for the first `n` records in the
+    /// order of `key`: the keys are found first, over the key column
+    /// alone, and only those records' other columns are read. A check
+    /// thus never computes a query's columns for records past the first
+    /// `n` (a value there that makes the query fail is met by the run),
+    /// and a wide table is sorted by its key alone.
+    pub fn first_in_key_order(
+        &self,
+        columns: &[&str],
+        key: &str,
+        class: &Class,
+        n: usize,
+    ) -> String {
+        let list: Vec<String> = columns
+            .iter()
+            .map(|c| format!("CAST({} AS TEXT)", ident(c)))
+            .collect();
+        let order = key_order(key, class);
+        format!(
+            "SELECT {} FROM {from} WHERE CAST({k} AS TEXT) IN \
+             (SELECT CAST({k} AS TEXT) FROM {from} ORDER BY {order} LIMIT {n}) ORDER BY {order}",
+            list.join(", "),
+            from = self.from_sql(),
+            k = ident(key),
+        )
+    }
+}
+
 /// The `ORDER BY` term for a key of `class`.
 fn key_order(key: &str, class: &Class) -> String {
     match class {

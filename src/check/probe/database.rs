@@ -62,7 +62,10 @@ fn look_now(source: &Source, key: &str) -> Result<Looked, String> {
     }
     let names: Vec<&str> = typed.iter().map(|(n, _)| n.as_str()).collect();
     let key_class = typed.iter().find(|(n, _)| n == key).map(|(_, c)| c);
-    let sql = source.select_text(&names, key_class.map(|c| (key, c)), Some(SAMPLE_ROWS));
+    let sql = match key_class {
+        Some(class) => source.first_in_key_order(&names, key, class, SAMPLE_ROWS),
+        None => source.select_text(&names, None, Some(SAMPLE_ROWS)),
+    };
     let mut columns: Vec<ColumnInfo> = names.iter().map(|n| ColumnInfo::new(n)).collect();
     let mut sampled = 0u64;
     let mut keys: Vec<Option<String>> = Vec::new();
