@@ -28,9 +28,15 @@ impl Server {
 
     /// A server started as `assort lsp ARGS...`.
     fn start_as(args: &[&str], init_params: Value) -> Server {
+        Server::start_in(args, init_params, &[])
+    }
+
+    /// [`Server::start_as`] with variables `env` set for the server.
+    fn start_in(args: &[&str], init_params: Value, env: &[(&str, &str)]) -> Server {
         let mut child = Command::new(env!("CARGO_BIN_EXE_assort"))
             .arg("lsp")
             .args(args)
+            .envs(env.iter().copied())
             .stdin(Stdio::piped())
             .stdout(Stdio::piped())
             .stderr(Stdio::null())
@@ -234,6 +240,30 @@ fn completion_offers_column_names_and_statement_words() {
         .map(|i| i["label"].as_str().unwrap())
         .collect();
     assert_eq!(labels, ["coupon_rate"]);
+    s.stop();
+}
+
+#[test]
+fn completion_after_database_offers_the_service_files_connections() {
+    let dir = tempfile::tempdir().unwrap();
+    let service = dir.path().join("pg_service.conf");
+    std::fs::write(
+        &service,
+        "[coop]\nhost=/nowhere\n[warehouse]\nuser=reader\n",
+    )
+    .unwrap();
+    let service = service.display().to_string();
+    let mut s = Server::start_in(
+        &[],
+        json!({"capabilities": {}}),
+        &[("PGSERVICEFILE", &service)],
+    );
+    let (uri, demo) = demo_uri();
+    open(&mut s, &uri, &demo);
+    s.diagnostics(&uri);
+    let items = items_at_end(&mut s, "input \"members\" database ");
+    let labels = labels_of(&items);
+    assert_eq!(labels, ["coop", "warehouse"]);
     s.stop();
 }
 

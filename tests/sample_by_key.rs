@@ -1,6 +1,7 @@
-//! `kmeans ... sample N by key`: the sample drawn by a hash of each
-//! record's key and the refinement summed exactly (src/run/driven.rs), so
-//! the segments do not depend on the order of the records.
+//! `kmeans ... sample N by key`: the records put in key order, the sample
+//! drawn by a hash of each record's key and the refinement summed exactly
+//! (src/run/driven.rs), so nothing the run writes depends on the order of
+//! the records, to the last digit of the model.
 //!
 //! Data: the invented demo's members (recipes/data), in file order, in
 //! reverse, and shuffled by a seeded permutation.
@@ -33,8 +34,9 @@ fn reorder(case: &Case, order: impl Fn(usize) -> Vec<usize>) {
 }
 
 /// What a run says about the segments, order aside: each member's
-/// segment (sorted by key), the centres and the profiles.
-fn segments(case: &Case) -> (Vec<String>, String, String) {
+/// segment (sorted by key), the centres, the profiles, and the model with
+/// every parameter and centre in full digits (less the input's digest).
+fn segments(case: &Case) -> (Vec<String>, String, String, String) {
     let mut assigned: Vec<String> = case
         .read("out/member_segments.csv")
         .lines()
@@ -46,6 +48,10 @@ fn segments(case: &Case) -> (Vec<String>, String, String) {
         assigned,
         case.read("out/segment_centroids.csv"),
         case.read("out/segment_profiles.csv"),
+        case.read("out/segment_model.json")
+            .lines()
+            .filter(|l| !l.contains("input_sha256"))
+            .collect(),
     )
 }
 
@@ -60,6 +66,14 @@ fn segments_by_key_do_not_depend_on_the_order_of_the_records() {
         run.stdout()
     );
     let in_file_order = segments(&case);
+    // The records are written in key order.
+    let written: Vec<String> = case
+        .read("out/member_segments.csv")
+        .lines()
+        .skip(1)
+        .map(str::to_string)
+        .collect();
+    assert!(written == in_file_order.0, "assignments in key order");
     reorder(&case, |n| (0..n).rev().collect());
     case.run("coop-members.assort").ok();
     assert!(segments(&case) == in_file_order, "reversed records");

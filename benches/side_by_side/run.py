@@ -52,6 +52,8 @@ CASES = {
                 "sweep k = 2..10, 10 restarts, every restart on every record (full batch)"),
     "sweep1m_sampled": (1_000_000, 16, "scale none\nkmeans k 2..10 restarts 10 sample 200000\nchoose k by silhouette\n", None,
                         "sweep k = 2..10, 10 restarts on a sample of 200,000, best 3 refined on every record"),
+    "sweep1m_by_key": (1_000_000, 16, "scale none\nkmeans k 2..10 restarts 10 sample 200000 by key\nchoose k by silhouette\n", None,
+                       "sweep1m_sampled with `by key`: records in key order, the sample by key rank, exact refinement"),
     "sweep10m": (10_000_000, 16, "scale none\nkmeans k 2..10 restarts 10 sample 200000\nchoose k by silhouette\n", None,
                  "sweep k = 2..10, 10 restarts on a sample of 200,000, best 3 refined on every record"),
     "kmeans1m_parquet": (1_000_000, 16, "scale none\nkmeans k 8 restarts 1\n", None,

@@ -364,6 +364,19 @@ fn options(
             },
             "key" | "column" => columns(data, Wanted::Any, &[]),
             "assignments" => quoted_paths(statement, toks, data),
+            // The connections the service file describes.
+            "database" if statement == "input" => {
+                crate::scale::postgres::service_names(&|v| std::env::var(v).ok())
+                    .into_iter()
+                    .map(|n| {
+                        item(
+                            &n,
+                            ItemKind::Value,
+                            "a connection in the PostgreSQL service file",
+                        )
+                    })
+                    .collect()
+            }
             _ => words(statement, Some(name)),
         };
     }

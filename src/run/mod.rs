@@ -327,6 +327,8 @@ struct CacheKey {
     text: Vec<String>,
     len: u64,
     modified: Option<std::time::SystemTime>,
+    /// The records put in key order (`sample ... by key`).
+    in_key_order: bool,
 }
 
 impl DataCache {
@@ -348,6 +350,7 @@ impl DataCache {
             text: plan.categories.iter().map(|c| c.column.clone()).collect(),
             len: meta.as_ref().map_or(0, |m| m.len()),
             modified: meta.and_then(|m| m.modified().ok()),
+            in_key_order: matches!(&plan.method, crate::plan::MethodPlan::KMeans(km) if km.by_key),
         };
         // A table carries no size or time to tell a change by: read anew.
         let stale = plan.input.database.is_some();
@@ -369,6 +372,10 @@ impl DataCache {
                     plan.input.separator,
                     &cols,
                 )?,
+            };
+            let table = match key.in_key_order {
+                true => table.in_key_order(),
+                false => table,
             };
             self.loads += 1;
             self.entry = Some((key, table));

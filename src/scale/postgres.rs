@@ -194,19 +194,45 @@ fn password_fields(line: &str) -> Vec<String> {
     fields
 }
 
-/// The section `[name]` of the first service file found, as key = value.
-fn service_section(
-    name: &str,
-    env: &dyn Fn(&str) -> Option<String>,
-) -> Result<HashMap<String, String>, String> {
-    let files: Vec<PathBuf> = [
+/// The service files to look in, in order: `PGSERVICEFILE`, else
+/// `~/.pg_service.conf`, then `pg_service.conf` in `PGSYSCONFDIR`.
+fn service_files(env: &dyn Fn(&str) -> Option<String>) -> Vec<PathBuf> {
+    [
         env("PGSERVICEFILE").map(PathBuf::from),
         env("HOME").map(|h| PathBuf::from(h).join(".pg_service.conf")),
         env("PGSYSCONFDIR").map(|d| PathBuf::from(d).join("pg_service.conf")),
     ]
     .into_iter()
     .flatten()
-    .collect();
+    .collect()
+}
+
+/// The connection names the service files describe (their sections), in
+/// the order found, each once: what an editor offers after `database`.
+pub fn service_names(env: &dyn Fn(&str) -> Option<String>) -> Vec<String> {
+    let mut names: Vec<String> = Vec::new();
+    for file in service_files(env) {
+        let Ok(text) = std::fs::read_to_string(&file) else {
+            continue;
+        };
+        for line in text.lines().map(str::trim) {
+            if let Some(section) = line.strip_prefix('[').and_then(|l| l.strip_suffix(']')) {
+                let section = section.trim().to_string();
+                if !names.contains(&section) {
+                    names.push(section);
+                }
+            }
+        }
+    }
+    names
+}
+
+/// The section `[name]` of the first service file found, as key = value.
+fn service_section(
+    name: &str,
+    env: &dyn Fn(&str) -> Option<String>,
+) -> Result<HashMap<String, String>, String> {
+    let files = service_files(env);
     for file in &files {
         let Ok(text) = std::fs::read_to_string(file) else {
             continue;
@@ -550,6 +576,22 @@ mod tests {
             Some("local")
         );
         assert_eq!(from_file("/tmp/sock", "reader", local, 0o600), None);
+    }
+
+    #[test]
+    fn service_names_are_every_section_once_in_the_order_found() {
+        let dir = tempfile::tempdir().unwrap();
+        let (a, b) = (dir.path().join("a.conf"), dir.path().join("b"));
+        std::fs::write(&a, "# x\n[coop]\nhost=h\n[ warehouse ]\nuser=u\n").unwrap();
+        std::fs::create_dir(&b).unwrap();
+        std::fs::write(b.join("pg_service.conf"), "[other]\n[coop]\n").unwrap();
+        let (a, b) = (a.display().to_string(), b.display().to_string());
+        let env = |v: &str| match v {
+            "PGSERVICEFILE" => Some(a.clone()),
+            "PGSYSCONFDIR" => Some(b.clone()),
+            _ => None,
+        };
+        assert_eq!(service_names(&env), ["coop", "warehouse", "other"]);
     }
 
     #[test]
