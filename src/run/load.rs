@@ -273,8 +273,8 @@ pub fn load_source(
     db.each_row(&sql, &format!("reading {shown}"), |row| {
         line += 1;
         record.clear();
-        for v in &row {
-            record.push_field(v.as_deref().unwrap_or("").as_bytes());
+        for v in row {
+            record.push_field(v.unwrap_or("").as_bytes());
             match v {
                 Some(v) => {
                     hasher.update(v.as_bytes());

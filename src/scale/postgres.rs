@@ -294,7 +294,7 @@ impl Database {
     pub fn read(&mut self, sql: &str, what: &str) -> Result<Vec<Vec<Option<String>>>, DbError> {
         let mut out = Vec::new();
         self.each_row(sql, what, |row| {
-            out.push(row);
+            out.push(row.iter().map(|v| v.map(str::to_string)).collect());
             Ok::<(), std::convert::Infallible>(())
         })?
         .map_err(|never| match never {})?;
@@ -302,14 +302,15 @@ impl Database {
     }
 
     /// Runs one statement in a read-only transaction (rolled back after)
-    /// and hands `each` every row as it arrives, values as text (select
-    /// text), NULL as `None`: a table larger than memory is never held.
-    /// `each` may stop the reading with its own error.
+    /// and hands `each` every row as it arrives, values as text borrowed
+    /// from the row (select text), NULL as `None`: a table larger than
+    /// memory is never held, and no value is copied unless `each` keeps
+    /// it. `each` may stop the reading with its own error.
     pub fn each_row<E>(
         &mut self,
         sql: &str,
         what: &str,
-        mut each: impl FnMut(Vec<Option<String>>) -> Result<(), E>,
+        mut each: impl FnMut(&[Option<&str>]) -> Result<(), E>,
     ) -> Result<Result<(), E>, DbError> {
         use postgres::fallible_iterator::FallibleIterator;
         let failed = self.failure(what);
@@ -323,11 +324,11 @@ impl Database {
         let none: [&(dyn postgres::types::ToSql + Sync); 0] = [];
         let mut rows = tx.query_raw(sql, none).map_err(&failed)?;
         while let Some(r) = rows.next().map_err(&failed)? {
-            let values: Vec<Option<String>> = (0..r.len())
-                .map(|i| r.try_get::<_, Option<String>>(i))
+            let values: Vec<Option<&str>> = (0..r.len())
+                .map(|i| r.try_get::<_, Option<&str>>(i))
                 .collect::<Result<_, _>>()
                 .map_err(&failed)?;
-            if let Err(e) = each(values) {
+            if let Err(e) = each(&values) {
                 return Ok(Err(e));
             }
         }

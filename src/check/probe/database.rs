@@ -72,11 +72,11 @@ fn look_now(source: &Source, key: &str) -> Result<Looked, String> {
     let key_at = names.iter().position(|n| *n == key);
     db.each_row(&sql, &format!("reading {}", source.describe()), |row| {
         sampled += 1;
-        for (c, v) in columns.iter_mut().zip(&row) {
-            c.observe(v.as_deref().unwrap_or(""), sampled + 1, DecimalMark::Point);
+        for (c, v) in columns.iter_mut().zip(row) {
+            c.observe(v.unwrap_or(""), sampled + 1, DecimalMark::Point);
         }
         if let Some(at) = key_at {
-            keys.push(row.get(at).cloned().flatten());
+            keys.push(row.get(at).copied().flatten().map(str::to_string));
         }
         Ok::<(), ()>(())
     })
