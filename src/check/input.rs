@@ -106,7 +106,7 @@ impl Checker {
                     reason,
                     span: path.span,
                     label: "read here".into(),
-                    help: "the connection's host, port, database and user come from its section of the service file, else the PG variables; a password from PGPASSWORD or the service file (docs/scale-out.md)".into(),
+                    help: "a table is named `name` or `schema.name`, anything else is read as a query; the connection's host, port, database and user come from its section of the service file, else the PG variables, a password also from ~/.pgpass (docs/scale-out.md)".into(),
                 });
                 return None;
             }

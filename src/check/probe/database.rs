@@ -27,11 +27,14 @@ pub struct Looked {
 /// keystroke; a table can change under it).
 const FRESH_FOR: Duration = Duration::from_secs(60);
 
-type Seen = Mutex<Vec<((Source, String), Instant, Looked)>>;
+type Seen = Mutex<Vec<((Source, String), Instant, Result<Looked, String>)>>;
 static SEEN: Seen = Mutex::new(Vec::new());
 
 /// Looks at `source` keyed by `key`, or reuses a look under a minute old.
-/// The error names the connection (and the table).
+/// The error names the connection (and the table). A failure is kept as
+/// long as a look: an editor checks at every keystroke, and a server that
+/// cannot be reached would otherwise hold each check for the connection's
+/// whole timeout.
 pub fn look(source: &Source, key: &str) -> Result<Looked, String> {
     let id = (source.clone(), key.to_string());
     if let Ok(seen) = SEEN.lock() {
@@ -39,17 +42,17 @@ pub fn look(source: &Source, key: &str) -> Result<Looked, String> {
             .iter()
             .find(|(k, at, _)| *k == id && at.elapsed() < FRESH_FOR)
         {
-            return Ok(l.clone());
+            return l.clone();
         }
     }
-    let looked = look_now(source, key)?;
+    let looked = look_now(source, key);
     // A poisoned lock only means another thread panicked mid-update; the
     // look is then not kept.
     if let Ok(mut seen) = SEEN.lock() {
         seen.retain(|(k, at, _)| *k != id && at.elapsed() < FRESH_FOR);
         seen.push((id, Instant::now(), looked.clone()));
     }
-    Ok(looked)
+    looked
 }
 
 fn look_now(source: &Source, key: &str) -> Result<Looked, String> {
