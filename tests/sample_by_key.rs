@@ -111,4 +111,13 @@ fn by_key_needs_a_sample_the_word_key_and_a_key_column() {
     case.assort(&["check", "keyless.assort"], &[])
         .fails()
         .stderr_has("drawing the sample by key is meant to be free of");
+    // Records standing for others are refused when the recipe is checked.
+    case.write(
+        "weighted.assort",
+        "seed 1\ninput \"data/coop_members.csv\" key member_id\nfeatures tenure_months, share_fresh\n\
+         represents visits_per_month\nkmeans k 2..4 sample 2000 by key\n",
+    );
+    case.assort(&["check", "weighted.assort"], &[])
+        .fails()
+        .stderr_has("is not available with `sample ... by key`");
 }

@@ -490,6 +490,19 @@ impl Checker {
         if let Some(m) = &method {
             self.method_limits(stmts, m);
         }
+        let weighted = matches!(&record_weights, Some(Some(_)));
+        if let (Some(MethodPlan::KMeans(km)), true, Some(stmt)) =
+            (&method, weighted, find("represents"))
+        {
+            if km.by_key {
+                self.err(CheckError::NotWithMethod {
+                    what: "`represents` (records standing for others)".into(),
+                    method: "`sample ... by key`".into(),
+                    span: stmt.span,
+                    help: "the exact rounds count every record once; remove `by key` to run the sample by record number, or remove `represents`".into(),
+                });
+            }
+        }
         let ks: Option<Vec<usize>> = method.as_ref().map(|m| m.ks().to_vec());
         let choose = self.choose(find("choose"), ks.as_deref());
         let floor = self.floor(find("choose"));
