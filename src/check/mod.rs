@@ -464,6 +464,25 @@ impl Checker {
         });
     }
 
+    /// Refuses `represents` beside `sample ... by key`, whose exact rounds
+    /// count every record once.
+    fn weights_by_key(
+        &mut self,
+        method: Option<&MethodPlan>,
+        record_weights: &Option<Option<String>>,
+        represents: Option<&Statement>,
+    ) {
+        let by_key = matches!(method, Some(MethodPlan::KMeans(km)) if km.by_key);
+        if let (true, Some(Some(_)), Some(stmt)) = (by_key, record_weights, represents) {
+            self.err(CheckError::NotWithMethod {
+                what: "`represents` (records standing for others)".into(),
+                method: "`sample ... by key`".into(),
+                span: stmt.span,
+                help: "the exact rounds count every record once; remove `by key` to run the sample by record number, or remove `represents`".into(),
+            });
+        }
+    }
+
     /// Builds the plan, collecting problems on the way. Returns a plan only
     /// when every required part could be settled.
     fn plan(&mut self, stmts: &[Statement]) -> Option<Plan> {
@@ -490,19 +509,7 @@ impl Checker {
         if let Some(m) = &method {
             self.method_limits(stmts, m);
         }
-        let weighted = matches!(&record_weights, Some(Some(_)));
-        if let (Some(MethodPlan::KMeans(km)), true, Some(stmt)) =
-            (&method, weighted, find("represents"))
-        {
-            if km.by_key {
-                self.err(CheckError::NotWithMethod {
-                    what: "`represents` (records standing for others)".into(),
-                    method: "`sample ... by key`".into(),
-                    span: stmt.span,
-                    help: "the exact rounds count every record once; remove `by key` to run the sample by record number, or remove `represents`".into(),
-                });
-            }
-        }
+        self.weights_by_key(method.as_ref(), &record_weights, find("represents"));
         let ks: Option<Vec<usize>> = method.as_ref().map(|m| m.ks().to_vec());
         let choose = self.choose(find("choose"), ks.as_deref());
         let floor = self.floor(find("choose"));

@@ -71,10 +71,7 @@ impl Source {
         key: Option<(&str, &Class)>,
         limit: Option<usize>,
     ) -> String {
-        let list: Vec<String> = columns
-            .iter()
-            .map(|c| format!("CAST({} AS TEXT)", ident(c)))
-            .collect();
+        let list = as_text(columns);
         let mut sql = format!("SELECT {} FROM {}", list.join(", "), self.from_sql());
         if let Some((key, class)) = key {
             sql.push_str(" ORDER BY ");
@@ -101,10 +98,7 @@ impl Source {
         class: &Class,
         n: usize,
     ) -> String {
-        let list: Vec<String> = columns
-            .iter()
-            .map(|c| format!("CAST({} AS TEXT)", ident(c)))
-            .collect();
+        let list = as_text(columns);
         let order = key_order(key, class);
         format!(
             "SELECT {} FROM {from} WHERE CAST({k} AS TEXT) IN \
@@ -114,6 +108,14 @@ impl Source {
             k = ident(key),
         )
     }
+}
+
+/// Each column cast to text, for a `SELECT` list.
+fn as_text(columns: &[&str]) -> Vec<String> {
+    columns
+        .iter()
+        .map(|c| format!("CAST({} AS TEXT)", ident(c)))
+        .collect()
 }
 
 /// The `ORDER BY` term for a key of `class`.
