@@ -8,3 +8,4 @@ pub mod postgres;
 pub mod round;
 pub mod sample;
 pub mod source;
+pub mod stream;
