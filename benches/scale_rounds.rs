@@ -19,47 +19,16 @@
 //! The server keeps PostgreSQL's defaults (two workers per gather) but
 //! for `shared_buffers`, set to a quarter of the table's size or more.
 
+mod common;
 #[path = "../tests/common/pg.rs"]
 mod pg;
 
 use assort::engine::exact::{self, Shifts};
-use assort::engine::kmeans::{KMeansSettings, Seeding};
-use assort::engine::rng::Stream;
 use assort::scale::drive::{self, InMemory};
 use assort::scale::postgres::{Database, InDatabase, Target};
+use common::{best_of, fit_settings, records, timed};
 use ndarray::Array2;
 use std::io::Write as _;
-use std::time::Instant;
-
-fn setting(name: &str, default: usize) -> usize {
-    std::env::var(name)
-        .ok()
-        .and_then(|v| v.parse().ok())
-        .unwrap_or(default)
-}
-
-fn timed<T>(f: impl FnOnce() -> T) -> (T, f64) {
-    let t = Instant::now();
-    let out = f();
-    (out, t.elapsed().as_secs_f64())
-}
-
-fn best_of(repeats: usize, mut f: impl FnMut()) -> f64 {
-    (0..repeats)
-        .map(|_| timed(&mut f).1)
-        .fold(f64::INFINITY, f64::min)
-}
-
-/// `n` records of `d` features in eight seeded Gaussian-ish groups (sums
-/// of uniforms around spread-out means), keyed `C0000001`...
-fn records(n: usize, d: usize) -> Array2<f64> {
-    let mut s = Stream::new(2026, 7);
-    let means: Vec<f64> = (0..8 * d).map(|_| s.unit() * 8.0 - 4.0).collect();
-    Array2::from_shape_fn((n, d), |(i, j)| {
-        let noise = (0..4).map(|_| s.unit()).sum::<f64>() - 2.0;
-        means[(i % 8) * d + j] + noise
-    })
-}
 
 /// Loads `data` into the table `records` (`id` text, then `x0`...) with
 /// `\copy` from a CSV written here; shared buffers sized to the table
@@ -146,16 +115,7 @@ fn fits(
     k: usize,
     shifts: &Shifts,
 ) -> (f64, f64, usize, bool) {
-    let settings = KMeansSettings {
-        k,
-        restarts: 8,
-        max_rounds: 100,
-        tolerance: 1e-4,
-        seeding: Seeding::KMeansPlusPlus,
-        seed: 2026,
-        sample: None,
-        start: None,
-    };
+    let settings = fit_settings(k);
     let mut memory = InMemory {
         data: data.view(),
         shifts,
@@ -176,13 +136,7 @@ fn fits(
 }
 
 fn main() {
-    let (n, d, k) = (
-        setting("BENCH_N", 1_000_000),
-        setting("BENCH_D", 16),
-        setting("BENCH_K", 8),
-    );
-    let size = setting("BENCH_SAMPLE", 20_000);
-    let repeats = setting("BENCH_REPEATS", 3);
+    let (n, d, k, size, repeats) = common::shape();
     let Some(pg) = pg::Postgres::start() else {
         eprintln!("no PostgreSQL server could be started; nothing measured");
         return;
@@ -202,13 +156,7 @@ fn main() {
             .expect("the sample")
     });
     let sample = Array2::from_shape_vec((size, d), values).expect("size x d values");
-    let centres: Vec<f64> = sample
-        .rows()
-        .into_iter()
-        .take(k)
-        .flatten()
-        .copied()
-        .collect();
+    let centres = common::first_rows(&sample, k);
     let there = best_of(repeats, || {
         std::hint::black_box(
             db.round("records", &features, &centres, &shifts)
