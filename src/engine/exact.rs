@@ -153,19 +153,7 @@ impl Shifts {
     /// The shifts for the data itself: its largest magnitude per column.
     /// O(n d).
     pub fn of_data(data: ArrayView2<'_, f64>) -> Result<Shifts, OutOfRange> {
-        let largest: Vec<f64> = data
-            .columns()
-            .into_iter()
-            .map(|c| {
-                c.iter().fold(0.0_f64, |m, x| {
-                    if m.is_nan() || x.is_nan() {
-                        f64::NAN
-                    } else {
-                        m.max(x.abs())
-                    }
-                })
-            })
-            .collect();
+        let largest: Vec<f64> = data.columns().into_iter().map(largest).collect();
         Shifts::of(&largest)
     }
 }
@@ -239,6 +227,91 @@ impl RoundSums {
     }
 }
 
+/// An exact sum of values whose magnitude is at most a bound given up
+/// front, and their count: the fill means and z-score parameters of
+/// recipes whose results must not depend on how the records are split or
+/// ordered (`sample ... by key`), in memory and in passes alike. Each
+/// value is summed as [`Shift::fixed`] with the shift of the bound.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Sum {
+    shift: Shift,
+    total: i128,
+    count: u64,
+}
+
+impl Sum {
+    /// Nothing summed yet, for values of magnitude at most `largest`, or
+    /// why that bound is out of the scheme's range.
+    pub fn new(largest: f64) -> Result<Sum, OutOfRange> {
+        let shifts = Shifts::of(&[largest])?;
+        Ok(Sum {
+            shift: shifts.features[0],
+            total: 0,
+            count: 0,
+        })
+    }
+
+    #[inline]
+    pub fn add(&mut self, x: f64) {
+        self.total += i128::from(self.shift.fixed(x));
+        self.count += 1;
+    }
+
+    /// Adds another part's sum, of the same bound.
+    pub fn merge(&mut self, other: &Sum) {
+        self.total += other.total;
+        self.count += other.count;
+    }
+
+    pub fn count(&self) -> u64 {
+        self.count
+    }
+
+    /// The sum as a double.
+    pub fn total(&self) -> f64 {
+        self.shift.float(self.total)
+    }
+
+    /// The sum over the count; `None` for no values.
+    pub fn mean(&self) -> Option<f64> {
+        (self.count > 0).then(|| self.total() / self.count as f64)
+    }
+}
+
+/// The largest magnitude among `xs` (0 for none; NaN if one is NaN).
+pub fn largest<'a>(xs: impl IntoIterator<Item = &'a f64>) -> f64 {
+    xs.into_iter().fold(0.0_f64, |m, x| {
+        if m.is_nan() || x.is_nan() {
+            f64::NAN
+        } else {
+            m.max(x.abs())
+        }
+    })
+}
+
+/// The mean of values of largest magnitude `largest` from their exact sum
+/// ([`Sum`]); `None` for none. O(n).
+pub fn mean(xs: &[f64], largest: f64) -> Result<Option<f64>, OutOfRange> {
+    let mut sum = Sum::new(largest)?;
+    xs.iter().for_each(|&x| sum.add(x));
+    Ok(sum.mean())
+}
+
+/// The bound of a squared deviation from `mean` of values of largest
+/// magnitude `largest`: `(largest + |mean|)^2`.
+pub fn deviation_bound(largest: f64, mean: f64) -> f64 {
+    (largest + mean.abs()).powi(2)
+}
+
+/// The population standard deviation of `xs` around their `mean`, from
+/// the exact sum of the squared deviations (each computed in doubles),
+/// `sqrt(sum / n)`; 0 for no values. O(n).
+pub fn sd_population(xs: &[f64], largest: f64, mean: f64) -> Result<f64, OutOfRange> {
+    let mut sum = Sum::new(deviation_bound(largest, mean))?;
+    xs.iter().for_each(|&x| sum.add((x - mean) * (x - mean)));
+    Ok(sum.mean().map_or(0.0, f64::sqrt))
+}
+
 /// Records per part of a round run in parallel here; any other split
 /// gives the same sums.
 const PART: usize = 4096;
@@ -273,6 +346,20 @@ mod tests {
     use ndarray::Array2;
     use proptest::prelude::*;
 
+    /// The exact mean and population standard deviation of a small set
+    /// whose values are exact in binary: 2, 4, 4, 4, 5, 5, 7, 9 has mean 5
+    /// and population standard deviation 2 (a common textbook example,
+    /// checked by hand).
+    #[test]
+    fn exact_mean_and_sd_of_a_worked_example() {
+        let xs = [2.0, 4.0, 4.0, 4.0, 5.0, 5.0, 7.0, 9.0];
+        let m = mean(&xs, largest(&xs)).unwrap().unwrap();
+        assert_eq!(m, 5.0);
+        assert_eq!(sd_population(&xs, largest(&xs), m).unwrap(), 2.0);
+        assert_eq!(mean(&[], 0.0).unwrap(), None);
+        assert!(Sum::new(2e18).is_err(), "beyond 2^60 is refused");
+    }
+
     fn sums_of(rows: &[Vec<f64>], centres: &[f64], shifts: &Shifts) -> RoundSums {
         let d = rows.first().map_or(1, Vec::len);
         let mut s = RoundSums::new(centres.len() / d, d);
@@ -283,6 +370,29 @@ mod tests {
     }
 
     proptest! {
+        /// An exact sum split into parts, summed in any order, is the sum
+        /// of one pass; its mean is within a few units in the last place of
+        /// the mean in doubles (the values are floored at 2^-60 of the
+        /// bound, far below that).
+        #[test]
+        fn a_sum_split_anywhere_is_the_same_sum(
+            values in prop::collection::vec(-1.0e9..1.0e9f64, 1..400),
+            cut in 0usize..400,
+        ) {
+            let bound = largest(&values);
+            let cut = cut.min(values.len());
+            let mut whole = Sum::new(bound).unwrap();
+            values.iter().for_each(|&x| whole.add(x));
+            let (mut a, mut b) = (Sum::new(bound).unwrap(), Sum::new(bound).unwrap());
+            values[..cut].iter().rev().for_each(|&x| a.add(x));
+            values[cut..].iter().for_each(|&x| b.add(x));
+            b.merge(&a);
+            prop_assert_eq!(b, whole);
+            let float = values.iter().sum::<f64>() / values.len() as f64;
+            let exact = whole.mean().unwrap();
+            prop_assert!((exact - float).abs() <= 1e-6 * bound.max(1.0), "{} {}", exact, float);
+        }
+
         /// Any split of the records into parts, each summed by itself and
         /// the parts added in any order, gives the sums of one pass.
         #[test]

@@ -25,8 +25,8 @@
 use super::error::{Place, RunError};
 use super::load::NumericColumn;
 use super::load::Table;
-use crate::engine::stats;
 use crate::engine::weights::Weights;
+use crate::engine::{exact, stats};
 use crate::plan::{CategoryGaps, FeatureKind, MissingRule, Plan, Scale, Transform};
 use ndarray::Array2;
 use rayon::prelude::*;
@@ -303,6 +303,8 @@ fn fill(
         MissingRule::FillMedian => median(&present, pw),
         MissingRule::FillMean => match pw {
             Some(pw) => stats::mean_weighted(&present, pw),
+            None if exact_sums(plan) => exact::mean(&present, exact::largest(&present))
+                .map_err(|e| out_of_exact_range(&fp.column, e))?,
             None => stats::mean(&present),
         },
         MissingRule::FillValue(v) => Some(v),
@@ -420,7 +422,10 @@ fn feature_params(
             help,
         })?;
     }
-    let (centre, divisor) = scale_params(plan.scale, &v, w);
+    let (centre, divisor) = match (plan.scale, exact_sums(plan)) {
+        (Scale::Zscore, true) => exact_zscore(&v).map_err(|e| out_of_exact_range(&fp.column, e))?,
+        (scale, _) => scale_params(scale, &v, w),
+    };
     let constant = divisor == 0.0;
     params.centre = centre;
     params.divisor = if constant { 1.0 } else { divisor };
@@ -519,6 +524,33 @@ pub(crate) fn transform(t: Transform, x: f64) -> Result<f64, (&'static str, &'st
         Transform::Log => Err(("log", "log needs values above 0; `log1p` also accepts 0")),
         Transform::Sqrt if x >= 0.0 => Ok(x.sqrt()),
         Transform::Sqrt => Err(("sqrt", "sqrt needs values of 0 or more")),
+    }
+}
+
+/// Whether the parameters are summed exactly ([`exact::Sum`]): for
+/// `sample ... by key`, whose results must not depend on the order or
+/// the split of the records, so that a run in passes or in a database
+/// prepares them as this one does. Weights are refused there.
+fn exact_sums(plan: &Plan) -> bool {
+    matches!(&plan.method, crate::plan::MethodPlan::KMeans(km) if km.by_key)
+}
+
+/// The z-score's (mean, population standard deviation) from exact sums:
+/// [`exact::mean`], then [`exact::sd_population`] around it.
+pub fn exact_zscore(v: &[f64]) -> Result<(f64, f64), exact::OutOfRange> {
+    let largest = exact::largest(v);
+    let Some(mean) = exact::mean(v, largest)? else {
+        return Ok((0.0, 0.0));
+    };
+    Ok((mean, exact::sd_population(v, largest, mean)?))
+}
+
+fn out_of_exact_range(column: &str, e: exact::OutOfRange) -> RunError {
+    RunError::ByKey {
+        reason: format!(
+            "the values of `{column}` are out of the exact sums' range: {}",
+            e.to_string().replace("feature 0", "the column")
+        ),
     }
 }
 
