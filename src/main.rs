@@ -199,6 +199,7 @@ fn main() -> ExitCode {
                     }
                     Err(e) => return fail(&e),
                 };
+                say_what_passes_hold(plan, recipe.quiet || recipe.json);
                 let progress = Progress::new(recipe.quiet || recipe.json);
                 let (mut outcome, files, _) = match deliver::run_and_render(
                     source,
@@ -671,6 +672,13 @@ fn input_shown(plan: &Plan) -> String {
     }
 }
 
+/// Reading in passes says up front, on standard error, what it will hold.
+fn say_what_passes_hold(plan: &Plan, quiet: bool) {
+    if let (true, false, Ok(held)) = (plan.input.passes, quiet, run::passes::held(plan)) {
+        eprintln!("{}", held.words());
+    }
+}
+
 /// What a run would read and write.
 fn dry_run_listing(source: &RecipeSource, plan: &Plan) -> String {
     let mut s = format!(
@@ -678,6 +686,15 @@ fn dry_run_listing(source: &RecipeSource, plan: &Plan) -> String {
         source.name()
     );
     s.push_str(&format!("  would read  {}\n", input_shown(plan)));
+    if plan.input.passes {
+        // From the footers: what reading in passes will hold.
+        match run::passes::held(plan) {
+            Ok(held) => s.push_str(&format!("              {}\n", held.words())),
+            Err(e) => s.push_str(&format!(
+                "              (cannot say what it would hold: {e})\n"
+            )),
+        }
+    }
     if let Some(v) = &plan.validate {
         s.push_str(&format!("  would read  {}\n", shown(&v.resolved)));
     }

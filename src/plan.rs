@@ -129,6 +129,10 @@ pub struct InputPlan {
     /// (docs/scale-out.md), read in the order of its key.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub database: Option<String>,
+    /// `read passes`: the records are not read into memory but once per
+    /// pass, holding only the sample and the sums (src/run/passes.rs).
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub passes: bool,
 }
 
 impl InputPlan {

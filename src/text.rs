@@ -144,6 +144,18 @@ pub fn hex(bytes: &[u8]) -> String {
     out
 }
 
+/// A size in bytes for people: MiB below a GiB, GiB with one decimal
+/// above (`120 MiB`, `1.4 GiB`).
+pub fn bytes(n: usize) -> String {
+    const MIB: f64 = 1024.0 * 1024.0;
+    let mib = n as f64 / MIB;
+    if mib < 1024.0 {
+        format!("{} MiB", mib.ceil().max(1.0))
+    } else {
+        format!("{:.1} GiB", mib / 1024.0)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::{and_list, count, odd_space_at_end, short_grouped, thousands, trim_spaces};

@@ -21,7 +21,18 @@ impl Checker {
             return None;
         };
         let opts = self.options("input", options, vocab::INPUT_OPTIONS);
+        let read = self.read_option(&opts);
         if let Some(connection) = opts.get("database") {
+            if let (Some(span), Some(o)) = (self.read_passes, opts.get("read")) {
+                self.bad_value(
+                    "read",
+                    &o.value.node,
+                    "`whole` for a database input, for now",
+                    span,
+                    "a table read in passes, its rounds run in the database, is not built yet; `sample ... by key` with the table read whole gives the same segments",
+                );
+                return None;
+            }
             return self.database_input(s, path, &opts, connection);
         }
         let separator = self.separator(&opts);
@@ -31,6 +42,8 @@ impl Checker {
         let resolved = self.read_path(path)?;
         self.input_file = path.node.clone();
         self.no_csv_options(&opts, &resolved)?;
+        read?;
+        self.passes_need_parquet(&opts, &resolved)?;
         let (separator, decimal) = (separator?, decimal?);
         self.decimal = decimal;
         self.probe_input(path, &resolved, separator, decimal)?;
@@ -49,6 +62,7 @@ impl Checker {
                 separator,
                 decimal,
                 database: None,
+                passes: false,
             },
             key_span: key.span,
         })
@@ -131,6 +145,7 @@ impl Checker {
                 separator: defaults::SEPARATOR,
                 decimal: DecimalMark::Point,
                 database: Some(connection),
+                passes: false,
             },
             key_span: key.span,
         })
@@ -160,6 +175,53 @@ impl Checker {
             }
         }
         ok.then_some(())
+    }
+
+    /// The `read` option: `whole` (the default) or `passes`, whose span
+    /// is kept for the checks of what reading in passes allows.
+    fn read_option(&mut self, opts: &HashMap<&'static str, &OptionPair>) -> Option<()> {
+        let Some(o) = opts.get("read") else {
+            return Some(());
+        };
+        match &o.value.node {
+            Value::Word(w) if w == "whole" => Some(()),
+            Value::Word(w) if w == "passes" => {
+                self.read_passes = Some(o.value.span);
+                Some(())
+            }
+            other => {
+                self.bad_value(
+                    "read",
+                    other,
+                    "`whole` or `passes`",
+                    o.value.span,
+                    "`read passes` leaves the records in the file and reads them once per pass, holding only the sample and the sums: for inputs larger than memory (docs/scale-out.md)",
+                );
+                None
+            }
+        }
+    }
+
+    /// `read passes` reads Parquet (a file or a folder of parts) for now.
+    fn passes_need_parquet(
+        &mut self,
+        opts: &HashMap<&'static str, &OptionPair>,
+        resolved: &Path,
+    ) -> Option<()> {
+        let (Some(span), Some(o)) = (self.read_passes, opts.get("read")) else {
+            return Some(());
+        };
+        if crate::parquet::is_parquet(resolved) {
+            return Some(());
+        }
+        self.bad_value(
+            "read",
+            &o.value.node,
+            "`whole` for a CSV file, for now",
+            span,
+            "reading in passes takes a Parquet file or a folder of Parquet parts, whose row groups are read in parallel; write the extract as Parquet, or read the CSV whole",
+        );
+        None
     }
 
     /// The `key` option, given alone; `None` (reported) when it is
@@ -269,6 +331,7 @@ impl Checker {
                 separator,
                 decimal,
                 database: None,
+                passes: false,
             },
             key_span: span,
         }

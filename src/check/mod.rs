@@ -19,6 +19,7 @@ mod input;
 pub(crate) mod kinds;
 mod method;
 mod outputs;
+mod passes;
 pub mod paths;
 mod previous;
 pub mod probe;
@@ -185,6 +186,7 @@ pub fn check_with(source: &RecipeSource, options: &CheckOptions) -> Checked {
         probe: None,
         input_file: String::new(),
         database: false,
+        read_passes: None,
         decimal: DecimalMark::Point,
         unparsed: tree
             .errors
@@ -352,6 +354,8 @@ struct Checker {
     input_file: String,
     /// The input is a table or a query on a connection.
     database: bool,
+    /// Where the input said `read passes`.
+    read_passes: Option<Span>,
     /// The input's decimal mark, once `input` is checked.
     decimal: DecimalMark,
     /// Statement words of statements that did not parse, and the words
@@ -510,6 +514,7 @@ impl Checker {
             self.method_limits(stmts, m);
         }
         self.weights_by_key(method.as_ref(), &record_weights, find("represents"));
+        self.passes_route(stmts, method.as_ref());
         let ks: Option<Vec<usize>> = method.as_ref().map(|m| m.ks().to_vec());
         let choose = self.choose(find("choose"), ks.as_deref());
         let floor = self.floor(find("choose"));
@@ -534,6 +539,8 @@ impl Checker {
         let outputs = self.outputs(stmts, is_tree);
         let seed = self.seed(find("seed"));
         let (name, title, period, records_noun) = self.recipe_names(find("recipe"));
+        let mut input = input?.plan;
+        input.passes = self.read_passes.is_some();
         Some(Plan {
             format: PLAN_FORMAT,
             name,
@@ -541,7 +548,7 @@ impl Checker {
             period,
             records_noun,
             seed: seed?,
-            input: input?.plan,
+            input,
             features: features?,
             categories: categories?,
             scale: scale?,

@@ -908,15 +908,24 @@ fn sample_by_weight(weights: impl Iterator<Item = f64>, target: f64) -> usize {
 /// Renumbers a labelling canonically (see the module documentation).
 /// Returns the new labels and, for each new number, the old one.
 pub fn canonical(labels: &[u32], k: usize) -> (Vec<u32>, Vec<usize>) {
-    let mut size = vec![0usize; k];
+    let mut size = vec![0u64; k];
+    for &l in labels {
+        size[l as usize] += 1;
+    }
+    canonical_by_sizes(labels, &size)
+}
+
+/// [`canonical`] with each segment's size given (`sizes`, one per
+/// segment), as when `labels` label only a sample of the records the
+/// sizes count: larger first, a tie to the segment met first in `labels`.
+pub fn canonical_by_sizes(labels: &[u32], sizes: &[u64]) -> (Vec<u32>, Vec<usize>) {
+    let k = sizes.len();
     let mut first = vec![usize::MAX; k];
     for (i, &l) in labels.iter().enumerate() {
-        let l = l as usize;
-        size[l] += 1;
-        first[l] = first[l].min(i);
+        first[l as usize] = first[l as usize].min(i);
     }
     let mut order: Vec<usize> = (0..k).collect();
-    order.sort_by(|&a, &b| size[b].cmp(&size[a]).then(first[a].cmp(&first[b])));
+    order.sort_by(|&a, &b| sizes[b].cmp(&sizes[a]).then(first[a].cmp(&first[b])));
     let mut new_of = vec![0u32; k];
     for (new, &old) in order.iter().enumerate() {
         new_of[old] = new as u32;

@@ -56,7 +56,7 @@ pub fn run_and_render(
         recipe_text: &source.text,
         inputs: &inputs,
     };
-    let mut rendered = files::render_all(&outcome, &sources);
+    let mut rendered = files::render_all(&outcome, &sources)?;
     let rec = record::build(
         &recipe_shown(source),
         &source.text,

@@ -22,6 +22,24 @@ pub struct Rendered {
     /// would run as a formula, written exactly all the same (see
     /// [`Cells::Exact`]): the run warns about them.
     pub formula_like: usize,
+    /// A file written beside its target while rendering (the assignments
+    /// of a run in passes, too large to hold): `bytes` is then empty.
+    pub staged: Option<Staged>,
+}
+
+/// A rendered file already written, at `path`, with the SHA-256 of its
+/// bytes; removed unless its set renames it into place.
+#[derive(Debug)]
+pub struct Staged {
+    pub path: PathBuf,
+    pub sha256: String,
+}
+
+impl Drop for Staged {
+    fn drop(&mut self) {
+        // After the set has renamed it, there is nothing left to remove.
+        let _ = std::fs::remove_file(&self.path);
+    }
 }
 
 /// How a CSV file's cells are written.
@@ -47,6 +65,7 @@ impl Rendered {
             bytes,
             defused: 0,
             formula_like: 0,
+            staged: None,
         }
     }
 }
@@ -59,13 +78,14 @@ pub struct Sources<'a> {
     pub inputs: &'a [super::record::InputDigest],
 }
 
-pub fn render_all(o: &Outcome, sources: &Sources<'_>) -> Vec<Rendered> {
-    let mut files: Vec<Rendered> = o
-        .plan
-        .outputs
-        .iter()
-        .map(|out| render(o, out, sources))
-        .collect();
+pub fn render_all(o: &Outcome, sources: &Sources<'_>) -> Result<Vec<Rendered>, RunError> {
+    let mut files: Vec<Rendered> = Vec::with_capacity(o.plan.outputs.len());
+    for out in &o.plan.outputs {
+        files.push(match (&o.in_passes, out.kind) {
+            (Some(p), OutputKind::Assignments) => streamed_assignments(o, p, out)?,
+            _ => render(o, out, sources),
+        });
+    }
     // Each chart of a report also as an SVG file of its own, for slides:
     // `REPORT-charts/NN-name.svg` beside the report.
     for out in o
@@ -76,7 +96,63 @@ pub fn render_all(o: &Outcome, sources: &Sources<'_>) -> Vec<Rendered> {
     {
         files.extend(chart_files(o, &out.resolved, &out.path));
     }
-    files
+    Ok(files)
+}
+
+/// The assignments of a run in passes, written as they are read, beside
+/// their target ([`super::set::staged_path`]), hashed on the way.
+fn streamed_assignments(
+    o: &Outcome,
+    p: &crate::run::passes::InPasses,
+    out: &OutputPlan,
+) -> Result<Rendered, RunError> {
+    use sha2::Digest;
+    use std::io::Write;
+    let failed = |e: std::io::Error| RunError::Write {
+        path: out.path.clone(),
+        reason: e.to_string(),
+    };
+    let mut staged = Staged {
+        path: super::set::staged_path(&std::path::absolute(&out.resolved).map_err(failed)?),
+        sha256: String::new(),
+    };
+    if let Some(dir) = staged.path.parent() {
+        std::fs::create_dir_all(dir).map_err(failed)?;
+    }
+    /// A file writer that hashes what passes through.
+    struct Hashing<W: Write>(W, sha2::Sha256);
+    impl<W: Write> Write for Hashing<W> {
+        fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+            let n = self.0.write(buf)?;
+            self.1.update(&buf[..n]);
+            Ok(n)
+        }
+        fn flush(&mut self) -> std::io::Result<()> {
+            self.0.flush()
+        }
+    }
+    let file = std::fs::File::create(&staged.path).map_err(failed)?;
+    let mut w = Hashing(std::io::BufWriter::new(file), sha2::Sha256::new());
+    let label = |s: usize| label_of(o, s);
+    let formula_like = p
+        .write_assignments(&o.plan.input.key, &label, &mut w)
+        .map_err(|e| match e {
+            RunError::Write { reason, .. } => RunError::Write {
+                path: out.path.clone(),
+                reason,
+            },
+            other => other,
+        })?;
+    w.flush().map_err(failed)?;
+    staged.sha256 = crate::text::hex(&w.1.finalize());
+    Ok(Rendered {
+        path: out.resolved.clone(),
+        shown: out.path.clone(),
+        bytes: Vec::new(),
+        defused: 0,
+        formula_like,
+        staged: Some(staged),
+    })
 }
 
 /// The report's charts as files in a folder named after it.
@@ -122,6 +198,7 @@ fn render(o: &Outcome, out: &OutputPlan, sources: &Sources<'_>) -> Rendered {
         bytes: csv.bytes,
         defused: csv.defused,
         formula_like: csv.formula_like,
+        staged: None,
     }
 }
 
@@ -606,9 +683,16 @@ pub fn write_all(files: &[Rendered]) -> Result<(), RunError> {
 
 /// Writes `files` as one set, journalled at `journal`.
 pub fn write_all_journalled(files: &[Rendered], journal: &Path) -> Result<(), RunError> {
-    let set: Vec<(&Path, &str, &[u8])> = files
+    use super::set::Content;
+    let set: Vec<(&Path, &str, Content<'_>)> = files
         .iter()
-        .map(|f| (f.path.as_path(), f.shown.as_str(), f.bytes.as_slice()))
+        .map(|f| {
+            let content = match &f.staged {
+                Some(s) => Content::Staged(&s.path),
+                None => Content::Bytes(&f.bytes),
+            };
+            (f.path.as_path(), f.shown.as_str(), content)
+        })
         .collect();
     super::set::write_set(&set, journal)
 }

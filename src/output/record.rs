@@ -142,7 +142,10 @@ pub fn build(
             .iter()
             .map(|f| FileDigest {
                 path: f.shown.clone(),
-                sha256: sha256_hex(&f.bytes),
+                sha256: f
+                    .staged
+                    .as_ref()
+                    .map_or_else(|| sha256_hex(&f.bytes), |s| s.sha256.clone()),
             })
             .collect(),
     }

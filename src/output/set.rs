@@ -214,7 +214,12 @@ fn clear_leftovers(target: &Path) {
     };
     for e in list.flatten() {
         let n = e.file_name().to_string_lossy().into_owned();
-        if n.starts_with(&prefix) && (n.ends_with(".tmp-assort") || n.ends_with(".old-assort")) {
+        // A staged file of this process is the set's own.
+        let own_stage = n.ends_with(&format!(".{}.stage-assort", std::process::id()));
+        let left = [".tmp-assort", ".old-assort", ".stage-assort"]
+            .iter()
+            .any(|end| n.ends_with(end));
+        if n.starts_with(&prefix) && left && !own_stage {
             remove(&e.path());
         }
     }
@@ -229,9 +234,34 @@ fn sibling(target: &Path, kind: &str) -> PathBuf {
     target.with_file_name(name)
 }
 
-/// Writes `files` (target, shown name, bytes) as one set, journalled in
+/// What a file of a set holds: bytes to write, or a file already written
+/// beside its target ([`staged_path`]) that the set renames into place.
+#[derive(Debug, Clone, Copy)]
+pub enum Content<'a> {
+    Bytes(&'a [u8]),
+    Staged(&'a Path),
+}
+
+impl Content<'_> {
+    /// Writes the content at `temp`.
+    fn put(self, temp: &Path) -> std::io::Result<()> {
+        match self {
+            Content::Bytes(bytes) => std::fs::write(temp, bytes),
+            Content::Staged(staged) => std::fs::rename(staged, temp),
+        }
+    }
+}
+
+/// Where an output too large to hold in memory is written before its set
+/// (a streamed output): beside `target`, named for this process, so that
+/// a run killed while writing it leaves a file the next set removes.
+pub fn staged_path(target: &Path) -> PathBuf {
+    sibling(target, "stage")
+}
+
+/// Writes `files` (target, shown name, content) as one set, journalled in
 /// `journal`. On error every target is as it was and nothing is left over.
-pub fn write_set(files: &[(&Path, &str, &[u8])], journal: &Path) -> Result<(), RunError> {
+pub fn write_set(files: &[(&Path, &str, Content<'_>)], journal: &Path) -> Result<(), RunError> {
     let fail = |shown: &str, e: std::io::Error| RunError::Write {
         path: shown.to_string(),
         reason: e.to_string(),
@@ -282,12 +312,12 @@ pub fn write_set(files: &[(&Path, &str, &[u8])], journal: &Path) -> Result<(), R
     let entries = &j.entries;
     step("journal");
     // 3. Temporaries.
-    for (e, (_, shown, bytes)) in entries.iter().zip(files) {
+    for (e, (_, shown, content)) in entries.iter().zip(files) {
         let written = (|| {
             if let Some(dir) = e.target.parent().filter(|d| !d.as_os_str().is_empty()) {
                 std::fs::create_dir_all(dir)?;
             }
-            std::fs::write(&e.temp, bytes)
+            content.put(&e.temp)
         })();
         if let Err(err) = written {
             roll_back(entries);
@@ -347,7 +377,10 @@ mod tests {
         std::fs::write(&a, "old a").unwrap();
         let journal = dir.path().join(".r.assort-journal");
         write_set(
-            &[(&a, "a.csv", b"new a"), (&b, "sub/b.csv", b"new b")],
+            &[
+                (&a, "a.csv", Content::Bytes(b"new a")),
+                (&b, "sub/b.csv", Content::Bytes(b"new b")),
+            ],
             &journal,
         )
         .unwrap();
@@ -370,7 +403,10 @@ mod tests {
         std::fs::create_dir(&b).unwrap();
         let journal = dir.path().join(".r.assort-journal");
         let e = write_set(
-            &[(&a, "a.csv", b"new a"), (&b, "b.csv", b"new b")],
+            &[
+                (&a, "a.csv", Content::Bytes(b"new a")),
+                (&b, "b.csv", Content::Bytes(b"new b")),
+            ],
             &journal,
         );
         assert!(e.is_err());

@@ -28,7 +28,7 @@ pub(super) struct Fitted {
 }
 
 impl Fitted {
-    fn of(candidates: Vec<Candidate>, tree: Option<TreeResult>) -> Fitted {
+    pub(super) fn of(candidates: Vec<Candidate>, tree: Option<TreeResult>) -> Fitted {
         Fitted {
             candidates,
             tree,
@@ -100,6 +100,9 @@ pub(super) struct Candidate {
     /// on Gower's dissimilarity): each segment's medoid, as its place
     /// among the kept records.
     pub medoids: Option<Vec<usize>>,
+    /// Records per segment over every record, when `labels` label only a
+    /// sample of them (`read passes`): what sizes and the floor count.
+    pub sizes: Option<Vec<u64>>,
 }
 
 impl Candidate {
@@ -118,6 +121,10 @@ impl Candidate {
                 .medoids
                 .as_ref()
                 .map(|m| order.iter().map(|&s| m[s]).collect()),
+            sizes: self
+                .sizes
+                .as_ref()
+                .map(|z| order.iter().map(|&s| z[s]).collect()),
         }
     }
 }
@@ -151,6 +158,7 @@ fn fit_kmeans(
             labels: fit.labels,
             centres: fit.centroids,
             medoids: None,
+            sizes: None,
         })
     })
 }
@@ -328,6 +336,7 @@ fn fit_tree(
                 centres,
                 restarts: None,
                 medoids: None,
+                sizes: None,
             }
         })
         .collect();

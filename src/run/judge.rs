@@ -47,7 +47,10 @@ pub(super) fn judge(
     let (gaps, stability) = gather_evidence(plan, (x, w), candidates, &mut sweep, progress);
     go_on("while gathering the evidence for k")?;
     // With record weights the floor counts the members segments stand for.
-    let size = Sizes::of(w, x.nrows());
+    // Candidates that label a sample count every record.
+    let records = (candidates.first().and_then(|c| c.sizes.as_ref()))
+        .map_or(x.nrows(), |s| s.iter().sum::<u64>() as usize);
+    let size = Sizes::of(w, records);
     let floor = plan.floor.map(|f| (f, f.records(size.n)));
     if let Some((_, least)) = floor {
         sweep
@@ -89,6 +92,15 @@ pub(super) fn judge(
         chosen,
         reason,
     })
+}
+
+/// Records in a candidate's smallest segment: over every record when it
+/// labels only a sample.
+fn smallest_of(c: &Candidate) -> usize {
+    match &c.sizes {
+        Some(sizes) => sizes.iter().min().map_or(0, |&s| s as usize),
+        None => smallest_segment(&c.labels, c.k),
+    }
 }
 
 /// Records in the smallest of `k` segments.
@@ -255,7 +267,7 @@ fn measure_each_k(
             restarts: c.restarts.clone(),
             gap: None,
             stability: None,
-            smallest: smallest_segment(&c.labels, k),
+            smallest: smallest_of(c),
             smallest_weighted: smallest_weighted(&c.labels, w, k),
             below_floor: false,
         });
@@ -348,7 +360,7 @@ impl Own<'_> {
             restarts: c.restarts.clone(),
             gap: None,
             stability: None,
-            smallest: smallest_segment(&c.labels, k),
+            smallest: smallest_of(c),
             smallest_weighted: smallest_weighted(&c.labels, w, k),
             below_floor: false,
         };

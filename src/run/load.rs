@@ -381,7 +381,7 @@ fn load_parquet(path: &Path, shown: &str, cols: &Columns<'_>) -> Result<Table, R
 
 /// A Parquet reading problem as a run error: a value that is not a
 /// number at its `place`, anything else as the file being unreadable.
-fn read_error(
+pub(crate) fn read_error(
     e: crate::parquet::ReadError,
     place: &impl Fn(usize, usize) -> Place,
     shown: &str,

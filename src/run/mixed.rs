@@ -110,6 +110,7 @@ pub(super) fn fit_kmedoids(
             restarts: Some(restarts(fit.restarts_at_best, fit.restarts, fit.converged)),
             labels: fit.labels,
             medoids: Some(fit.medoids),
+            sizes: None,
         });
     }
     Ok(Fitted {
@@ -148,6 +149,7 @@ pub(super) fn fit_gower_tree(
                 labels,
                 restarts: None,
                 medoids: Some(medoids),
+                sizes: None,
             }
         })
         .collect();
@@ -272,6 +274,7 @@ pub(super) fn fit_kprototypes(
             restarts: Some(restarts(fit.restarts_at_best, fit.restarts, fit.converged)),
             labels: fit.labels,
             medoids: None,
+            sizes: None,
         });
     }
     Ok(Fitted {

@@ -16,6 +16,7 @@ pub mod measure;
 mod mixed;
 pub mod model;
 mod number;
+pub mod passes;
 pub mod prepare;
 pub mod previous;
 mod profile;
@@ -299,6 +300,9 @@ pub struct Outcome {
     /// Each stage's wall time and the peak memory when it ended: for
     /// `--json` and `--times`, never for the run record.
     pub stages: Vec<stages::StageTime>,
+    /// With `read passes`: what writing the assignments reads again; the
+    /// `assignments` above are then the sample's.
+    pub in_passes: Option<passes::InPasses>,
 }
 
 /// Runs a plan.
@@ -414,6 +418,9 @@ pub fn run_with(
     cache: &mut DataCache,
     progress: &dyn Fn(Step),
 ) -> Result<Outcome, RunError> {
+    if let (true, MethodPlan::KMeans(km)) = (plan.input.passes, &plan.method) {
+        return run_in_passes(plan, km, progress);
+    }
     let mut clock = stages::Clock::start();
     let table = cache.table(plan)?;
     clock.lap("read");
@@ -424,20 +431,93 @@ pub fn run_with(
     let fitted = fit::fit(plan, &prepared, table, last.as_ref(), progress)?;
     go_on("after fitting")?;
     clock.lap("fit");
+    let read = Read {
+        table,
+        records: table.keys.len(),
+        last,
+        passes: None,
+    };
+    conclude(plan, read, prepared, fitted, clock, progress)
+}
+
+/// `read passes`: the parameters, the rounds and the chosen segments'
+/// sums over every record in passes, the rest over the sample
+/// ([`passes`]).
+fn run_in_passes(
+    plan: &Plan,
+    km: &crate::plan::KMeansPlan,
+    progress: &dyn Fn(Step),
+) -> Result<Outcome, RunError> {
+    let mut clock = stages::Clock::start();
+    let mut measured = passes::measure(plan, km, progress)?;
+    let (kept, dropped) = measured.kept();
+    enough_records(plan, kept as usize)?;
+    go_on("after fitting")?;
+    clock.lap("fit");
+    let candidates = std::mem::take(&mut measured.candidates);
+    let mut prepared = measured.prepared.clone();
+    prepared.dropped = dropped as usize;
+    prepared.dropped_by = measured.dropped_by.clone();
+    let read = Read {
+        table: &measured.table,
+        records: measured.look_records as usize,
+        last: None,
+        passes: Some(&measured),
+    };
+    conclude(
+        plan,
+        read,
+        prepared,
+        fit::Fitted::of(candidates, None),
+        clock,
+        progress,
+    )
+}
+
+/// What the stages after the fit read: the records (all of them, or with
+/// `read passes` the sample), how many the input holds, last run's model,
+/// and the passes.
+struct Read<'a> {
+    table: &'a load::Table,
+    records: usize,
+    last: Option<previous::PreviousRun>,
+    passes: Option<&'a passes::Measured>,
+}
+
+/// The stages after the fit, each a function in its own room: judging,
+/// numbering, placing, profiles, tallies, the comparison and the rules.
+fn conclude(
+    plan: &Plan,
+    read: Read<'_>,
+    prepared: Prepared,
+    fitted: fit::Fitted,
+    mut clock: stages::Clock,
+    progress: &dyn Fn(Step),
+) -> Result<Outcome, RunError> {
+    let (table, last) = (read.table, read.last.as_ref());
     let own = mixed::own(plan, &prepared, &fitted);
     let weighed = (prepared.matrix.view(), prepared.weights());
     let mut judged = judge::judge(plan, weighed, &fitted.candidates, own.as_ref(), progress)?;
     clock.lap("judge");
     let chosen = &fitted.candidates[judged.at];
-    let numbered = number::number(plan, chosen, last.as_ref(), &prepared, table);
+    let numbered = number::number(plan, chosen, last, &prepared, table);
     let assignments = number::place(&prepared, table, &numbered, &fitted.measure);
     clock.lap("place");
-    let (profiles, overall) = profile::profiles(&prepared, table, &numbered, &judged);
-    let mut notes = profile::notes(&fitted, &judged, &profiles, prepared.kept.len());
+    let exact = prepare::exact_sums(plan);
+    let (mut profiles, mut overall) =
+        profile::profiles(&prepared, table, &numbered, &judged, exact);
+    let in_passes = read
+        .passes
+        .map(|m| m.every_record(plan, &numbered, &mut profiles, &mut overall))
+        .transpose()?;
+    // Records kept: every one read, less those `missing drop` left out.
+    let kept = read.records - prepared.dropped;
+    let mut notes = profile::notes(&fitted, &judged, &profiles, kept);
+    notes.extend(in_passes.as_ref().map(|p| passes_note(p, read.records)));
     notes.extend(data_notes(plan, &prepared, table));
     let values = tallies(plan, &prepared, table, &numbered.fit);
     clock.lap("profile");
-    let against = comparison::against(plan, &assignments, &numbered, last.as_ref())?;
+    let against = comparison::against(plan, &assignments, &numbered, last)?;
     let fit = &numbered.fit;
     let compared = against.compared_with.as_deref();
     let centres = fit.centres.view();
@@ -449,13 +529,13 @@ pub fn run_with(
         &fit.labels,
         centres,
     )?;
-    let drift = last.as_ref().and_then(|l| l.drift(&prepared));
+    let drift = last.and_then(|l| l.drift(&prepared));
     clock.lap("compare");
     let rules = segment_rules(plan, &prepared, table, fit, &profiles);
     clock.lap("rules");
     Ok(Outcome {
         plan: plan.clone(),
-        records: table.keys.len(),
+        records: read.records,
         read_digest: table.digest.clone(),
         read_target: table.target.clone(),
         silhouettes: chosen_silhouettes(&mut judged, &numbered),
@@ -472,7 +552,7 @@ pub fn run_with(
         tree: fitted.tree,
         centres: fit.centres.clone(),
         comparison: against.comparison,
-        then: last.as_ref().map(|l| l.then()),
+        then: last.map(|l| l.then()),
         drift,
         matching: numbered.matching,
         values,
@@ -480,7 +560,17 @@ pub fn run_with(
         prepared,
         measure: fitted.measure,
         stages: clock.laps,
+        in_passes,
     })
+}
+
+/// What a run in passes measured where, in plain words.
+fn passes_note(p: &passes::InPasses, records: usize) -> String {
+    format!(
+        "the records were read in passes (`read passes`), never all in memory: the preparation's parameters, the refinement, and each segment's size, share and means are over every one of the {} records, exactly; the criteria for k, the profiles' medians, quartiles and standardised differences, the rules and the evidence are measured on the sample of {} drawn by key",
+        text::thousands(records),
+        text::thousands(p.sample),
+    )
 }
 
 /// The `tally` columns per segment of the chosen segmentation.

@@ -55,6 +55,27 @@ pub struct FeatureParams {
 }
 
 impl FeatureParams {
+    /// A feature's parameters once its gaps are settled (`fill`, filling
+    /// `filled` gaps): not yet clipped or scaled.
+    pub fn filled(
+        fp: &crate::plan::FeaturePlan,
+        fill: Option<f64>,
+        filled: usize,
+    ) -> FeatureParams {
+        FeatureParams {
+            column: fp.column.clone(),
+            fill,
+            filled,
+            clip: None,
+            transform: fp.transform,
+            centre: 0.0,
+            divisor: 1.0,
+            multiplier: fp.weight.sqrt(),
+            constant: false,
+            kind: fp.kind.clone(),
+        }
+    }
+
     /// Maps a clustered coordinate back to original units (clipping cannot
     /// be undone, so the value is within the clip bounds).
     pub fn to_original(&self, v: f64) -> f64 {
@@ -128,6 +149,25 @@ pub struct LeftOut {
 pub const BLANK_LEVEL: &str = "(blank)";
 
 pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
+    prepare_with(plan, table, None)
+}
+
+/// [`prepare`] with the features' parameters given rather than measured on
+/// `table`: `read passes` measures them over every record and prepares
+/// the sample with them.
+pub fn prepare_given(
+    plan: &Plan,
+    table: &Table,
+    params: Vec<FeatureParams>,
+) -> Result<Prepared, RunError> {
+    prepare_with(plan, table, Some(params))
+}
+
+fn prepare_with(
+    plan: &Plan,
+    table: &Table,
+    given: Option<Vec<FeatureParams>>,
+) -> Result<Prepared, RunError> {
     let n = table.keys.len();
     let all_weights = record_weights(plan, table)?;
     let (kept, dropped_by, left_out) = drop_rows(plan, table);
@@ -135,23 +175,29 @@ pub fn prepare(plan: &Plan, table: &Table) -> Result<Prepared, RunError> {
     let w = weights.as_deref();
     // Features are summarised side by side; the first problem is the one
     // of the first feature in recipe order, as one after another.
-    let mut params = (plan.features.par_iter().enumerate())
-        .map(|(f, fp)| fill(plan, table, (&kept, w), f, fp))
-        .collect::<Vec<_>>()
-        .into_iter()
-        .collect::<Result<Vec<_>, _>>()?;
+    let measured = given.is_none();
+    let mut params = match given {
+        Some(params) => params,
+        None => (plan.features.par_iter().enumerate())
+            .map(|(f, fp)| fill(plan, table, (&kept, w), f, fp))
+            .collect::<Vec<_>>()
+            .into_iter()
+            .collect::<Result<Vec<_>, _>>()?,
+    };
     let (categories, codes) = encode_categories(plan, table, &kept)?;
     let width = plan.features.len();
     let total_width = width + categories.iter().map(|c| c.levels.len()).sum::<usize>();
-    (plan
-        .features
-        .par_iter()
-        .zip(params.par_iter_mut())
-        .enumerate())
-    .map(|(f, (fp, params))| feature_params(plan, table, (&kept, w), f, fp, params))
-    .collect::<Vec<_>>()
-    .into_iter()
-    .collect::<Result<Vec<()>, _>>()?;
+    if measured {
+        (plan
+            .features
+            .par_iter()
+            .zip(params.par_iter_mut())
+            .enumerate())
+        .map(|(f, (fp, params))| feature_params(plan, table, (&kept, w), f, fp, params))
+        .collect::<Vec<_>>()
+        .into_iter()
+        .collect::<Result<Vec<()>, _>>()?;
+    }
     let mut matrix = Array2::zeros((kept.len(), total_width));
     // Then written a block of records at a time, every feature of a record
     // together, so preparing never holds a second copy of every feature.
@@ -329,18 +375,7 @@ fn fill(
             }
         }
     }
-    Ok(FeatureParams {
-        column: fp.column.clone(),
-        fill,
-        filled,
-        clip: None,
-        transform: fp.transform,
-        centre: 0.0,
-        divisor: 1.0,
-        multiplier: fp.weight.sqrt(),
-        constant: false,
-        kind: fp.kind.clone(),
-    })
+    Ok(FeatureParams::filled(fp, fill, filled))
 }
 
 /// Step 6, categories: each category's levels (sorted; a blank is its own
@@ -531,7 +566,7 @@ pub(crate) fn transform(t: Transform, x: f64) -> Result<f64, (&'static str, &'st
 /// `sample ... by key`, whose results must not depend on the order or
 /// the split of the records, so that a run in passes or in a database
 /// prepares them as this one does. Weights are refused there.
-fn exact_sums(plan: &Plan) -> bool {
+pub(super) fn exact_sums(plan: &Plan) -> bool {
     matches!(&plan.method, crate::plan::MethodPlan::KMeans(km) if km.by_key)
 }
 

@@ -14,14 +14,18 @@ use rayon::prelude::*;
 
 /// Every segment's profile, in number order, and the profile of all
 /// records.
+/// `exact`: the means are exact sums ([`crate::engine::exact::Sum`], for
+/// `sample ... by key`), so that they do not depend on the records' order
+/// and a run in passes gives them to the bit.
 pub(super) fn profiles(
     prepared: &Prepared,
     table: &load::Table,
     numbered: &Numbered,
     judged: &Judged,
+    exact: bool,
 ) -> (Vec<Profile>, Profile) {
     let (fit, at) = (&numbered.fit, judged.at);
-    let means = FeatureMeans::new(prepared, table, &fit.labels, fit.k);
+    let means = FeatureMeans::new(prepared, table, &fit.labels, fit.k, exact);
     let overall = profile(prepared, means.overall(), None, None, None);
     let mut members: Vec<Vec<usize>> = vec![Vec::new(); fit.k];
     for (i, &l) in fit.labels.iter().enumerate() {
@@ -129,7 +133,13 @@ struct FeatureMeans {
 }
 
 impl FeatureMeans {
-    fn new(p: &Prepared, table: &load::Table, labels: &[u32], k: usize) -> FeatureMeans {
+    fn new(
+        p: &Prepared,
+        table: &load::Table,
+        labels: &[u32],
+        k: usize,
+        exact: bool,
+    ) -> FeatureMeans {
         let mut out = FeatureMeans {
             overall: Vec::new(),
             by_segment: vec![Vec::new(); k],
@@ -158,12 +168,20 @@ impl FeatureMeans {
                     groups[l as usize].1.push(*c);
                     gaps[l as usize] += usize::from(raw.get(row).is_none());
                 }
-                let overall = summary(&values, w, 0.0, gaps.iter().sum());
+                // Exact means take the bound of every value of the feature.
+                let bound = crate::engine::exact::largest(&values);
+                let exactly = |mut summary: FeatureSummary, vals: &[f64]| {
+                    if let (true, Ok(Some(m))) = (exact, crate::engine::exact::mean(vals, bound)) {
+                        summary.mean = m;
+                    }
+                    summary
+                };
+                let overall = exactly(summary(&values, w, 0.0, gaps.iter().sum()), &values);
                 let segments = (groups.iter().enumerate())
                     .map(|(s, (vals, clus))| {
                         let mean = weighted_mean(clus, w_of(s)).unwrap_or(centre);
                         let diff = if sd > 0.0 { (mean - centre) / sd } else { 0.0 };
-                        summary(vals, w_of(s), diff, gaps[s])
+                        exactly(summary(vals, w_of(s), diff, gaps[s]), vals)
                     })
                     .collect();
                 (overall, segments)

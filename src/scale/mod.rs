@@ -7,5 +7,6 @@ pub mod drive;
 pub mod postgres;
 pub mod round;
 pub mod sample;
+pub mod select;
 pub mod source;
 pub mod stream;

@@ -56,6 +56,10 @@ pub enum PassError {
     /// A record the pass needs a key of has none.
     #[error("{shown}: record {record} has no key")]
     NoKey { shown: String, record: usize },
+    /// A stop was asked for (Ctrl-C in a session); checked between row
+    /// groups.
+    #[error("stopped")]
+    Stopped,
     /// A value the feature's transform cannot take (the parameter pass
     /// found none, so the input changed in between).
     #[error("{shown}: record {record}: the value {value} of feature {feature} cannot be prepared")]
@@ -136,7 +140,7 @@ impl Passes {
     /// Which worker reads which group varies, so a pass's result must not
     /// depend on it. One `T` per worker, not per group: the memory a pass
     /// holds does not grow with the groups.
-    fn pass<T: Send>(
+    pub fn pass<T: Send>(
         &self,
         with_key: bool,
         init: impl Fn() -> T + Sync,
@@ -154,6 +158,10 @@ impl Passes {
                 let Some(g) = self.groups.get(next.fetch_add(1, Ordering::Relaxed)) else {
                     break;
                 };
+                if crate::engine::stop::requested() {
+                    failed.store(true, Ordering::Relaxed);
+                    return Err(PassError::Stopped);
+                }
                 self.read_group(g, &wanted, &mut acc, &each)
                     .inspect_err(|_| {
                         failed.store(true, Ordering::Relaxed);
@@ -180,6 +188,11 @@ impl Passes {
         Ok(out.unwrap_or_else(init))
     }
 
+    /// The row groups a pass reads, in the input's order.
+    pub fn groups(&self) -> &[Group] {
+        &self.groups
+    }
+
     /// One row group through `each`, batch by batch, into `acc`.
     fn read_group<T>(
         &self,
@@ -187,6 +200,29 @@ impl Passes {
         wanted: &[(usize, As)],
         acc: &mut T,
         each: &impl Fn(&mut T, usize, &[Option<String>], &[&[Option<f64>]]) -> Result<(), PassError>,
+    ) -> Result<(), PassError> {
+        self.batches(g, wanted, |first, keys, values| {
+            each(acc, first, keys, values)
+        })
+    }
+
+    /// One row group read on this thread, batch by batch through `each`
+    /// (the batch's first record, its keys when `with_key`, its feature
+    /// columns).
+    pub fn read_one(
+        &self,
+        g: &Group,
+        with_key: bool,
+        each: impl FnMut(usize, &[Option<String>], &[&[Option<f64>]]) -> Result<(), PassError>,
+    ) -> Result<(), PassError> {
+        self.batches(g, &self.wanted(with_key), each)
+    }
+
+    fn batches(
+        &self,
+        g: &Group,
+        wanted: &[(usize, As)],
+        mut each: impl FnMut(usize, &[Option<String>], &[&[Option<f64>]]) -> Result<(), PassError>,
     ) -> Result<(), PassError> {
         pq::each_batch(g, wanted, BATCH, |first, columns| {
             let mut keys: &[Option<String>] = &[];
@@ -197,7 +233,7 @@ impl Passes {
                     Column::Numbers(v) => values.push(v),
                 }
             }
-            each(acc, first, keys, &values).map_err(Wrapped)
+            each(first, keys, &values).map_err(Wrapped)
         })
         .map_err(|e: Wrapped| match e.0 {
             PassError::Read { reason, .. } => PassError::Read {
@@ -271,7 +307,7 @@ impl Passes {
 
     /// Record `i` of a batch prepared into `row`; false when a gap has
     /// no fill.
-    fn prepare(
+    pub fn prepare(
         &self,
         params: &[FeatureParams],
         values: &[&[Option<f64>]],
@@ -297,36 +333,84 @@ impl Passes {
     /// smallest rank, in rank order (then by key), with their raw values.
     /// Needs the key.
     pub fn sample(&self, seed: u64, size: usize) -> Result<Vec<Drawn>, PassError> {
-        let keep = |mut drawn: Vec<Drawn>| {
-            drawn.sort_unstable_by(|a, b| a.0.cmp(&b.0).then_with(|| a.1.cmp(&b.1)));
-            drawn.truncate(size);
-            drawn
-        };
         let drawn = self.pass(
             true,
-            Vec::new,
-            |drawn: &mut Vec<Drawn>, first, keys, values| {
+            || Draw::new(size),
+            |draw: &mut Draw, first, keys, values| {
                 for (i, key) in keys.iter().enumerate() {
                     let key = key.as_deref().ok_or(PassError::NoKey {
                         shown: self.shown.clone(),
                         record: first + i,
                     })?;
-                    let rank: [u8; 32] = Sha256::digest(format!("{seed}:{key}").as_bytes()).into();
-                    drawn.push((rank, key.to_string(), values.iter().map(|c| c[i]).collect()));
-                }
-                // At most two samples' worth between trims.
-                if drawn.len() >= 2 * size.max(1) {
-                    let trimmed = keep(std::mem::take(drawn));
-                    *drawn = trimmed;
+                    draw.offer(rank_of(seed, key), key, || {
+                        values.iter().map(|c| c[i]).collect()
+                    });
                 }
                 Ok(())
             },
-            |mut a, b| {
-                a.extend(b);
-                keep(a)
-            },
+            Draw::merge,
         )?;
-        Ok(keep(drawn))
+        Ok(drawn.finish())
+    }
+}
+
+/// A record's rank: the SHA-256 digest of `seed:key` ([`super::sample`]).
+pub fn rank_of(seed: u64, key: &str) -> [u8; 32] {
+    Sha256::digest(format!("{seed}:{key}").as_bytes()).into()
+}
+
+/// The sample being drawn by one worker: at most two samples' worth of
+/// candidates between trims, and once a sample's worth is held, records
+/// of a larger rank than the last kept are not held at all.
+#[derive(Debug, Clone)]
+pub struct Draw {
+    size: usize,
+    drawn: Vec<Drawn>,
+    cutoff: Option<[u8; 32]>,
+}
+
+impl Draw {
+    pub fn new(size: usize) -> Draw {
+        Draw {
+            size,
+            drawn: Vec::new(),
+            cutoff: None,
+        }
+    }
+
+    /// A record of rank `rank`; its values are gathered only when it may
+    /// be drawn.
+    #[inline]
+    pub fn offer(&mut self, rank: [u8; 32], key: &str, values: impl FnOnce() -> Vec<Option<f64>>) {
+        if self.cutoff.is_some_and(|c| rank > c) {
+            return;
+        }
+        self.drawn.push((rank, key.to_string(), values()));
+        if self.drawn.len() >= 2 * self.size.max(1) {
+            self.trim();
+        }
+    }
+
+    fn trim(&mut self) {
+        self.drawn
+            .sort_unstable_by(|a, b| a.0.cmp(&b.0).then_with(|| a.1.cmp(&b.1)));
+        self.drawn.truncate(self.size);
+        if self.drawn.len() == self.size {
+            self.cutoff = self.drawn.last().map(|d| d.0);
+        }
+    }
+
+    /// Another worker's candidates joined to these.
+    pub fn merge(mut self, other: Draw) -> Draw {
+        self.drawn.extend(other.drawn);
+        self.trim();
+        self
+    }
+
+    /// The sample, in rank order (then by key).
+    pub fn finish(mut self) -> Vec<Drawn> {
+        self.trim();
+        self.drawn
     }
 }
 

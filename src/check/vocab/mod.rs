@@ -206,6 +206,11 @@ pub const INPUT_OPTIONS: &[OptionDoc] = &[
         takes: "a connection's name",
         summary: "read a table or a query on this PostgreSQL connection instead of a file: `input \"members\" database coop key member_id`; how to reach the connection and log in comes from the service file or the PG variables, never from the recipe (docs/scale-out.md)",
     },
+    OptionDoc {
+        name: "read",
+        takes: "`whole` or `passes`",
+        summary: "`whole` (unless given) reads the records into memory once; `passes` leaves them in the Parquet input and reads them once per pass, holding only a sample and sums, for inputs larger than memory (with `kmeans ... sample N by key`; docs/scale-out.md)",
+    },
 ];
 
 pub const CATEGORIES_OPTIONS: &[OptionDoc] = &[OptionDoc {

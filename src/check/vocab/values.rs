@@ -64,6 +64,8 @@ pub const VALUES: &[ValueDoc] = &[
     value_of("choose", "by", "gap", "the smallest k whose gap statistic is at least the next k's less its standard error (needs `evidence gap`)"),
     value_of("choose", "by", "stability", "the k whose segments come back most alike on bootstrap resamples (needs `evidence stability`)"),
     value_of("kmeans", "by", "key", "draw the sample by a hash of each record's key, with the records in key order and exact refinement: nothing depends on the order of the records"),
+    value_of("input", "read", "whole", "read the records into memory once (the default)"),
+    value_of("input", "read", "passes", "leave the records in the Parquet input and read them once per pass, holding only a sample and sums: for inputs larger than memory (with `sample N by key`)"),
     value_of("kmeans", "seeding", "kmeans++", "the first centres drawn far apart, each with probability proportional to squared distance (the default)"),
     value_of("kmeans", "seeding", "random-partition", "every record put in a random segment and the centres taken as their means"),
     value_of("tree", "linkage", "ward", "merges the pair that raises the within-segment sum of squares least: compact segments of similar size (Euclidean only)"),

@@ -1,0 +1,1072 @@
+//! `read passes`: a `kmeans ... sample N by key` run over a Parquet input
+//! that is never read whole. Every record is read once per pass
+//! ([`crate::scale::stream`]); the run holds the key-ranked sample, one
+//! 8-byte digest per record (to find a repeated key) and sums.
+//!
+//! # What comes from where
+//! - **Every record, exactly** (fixed-point sums, order statistics by
+//!   radix selection): the preparation's parameters (fills, clip bounds,
+//!   z-score mean and standard deviation, robust median and spread,
+//!   range), so they are those of the same recipe read whole; the
+//!   refinement's rounds; each segment's size, share and means; records
+//!   left out; and the assignments, written by one more pass in the
+//!   input's order.
+//! - **The sample** (the same records `sample N by key` draws): the
+//!   restarts; the criteria that judge k (within-SS, silhouette,
+//!   Calinski-Harabasz, Davies-Bouldin, and the evidence); medians,
+//!   quartiles and standardised differences of the profiles; the rules;
+//!   the drift reference of the model. The run says so in a note.
+//!
+//! # Passes
+//! One to look (count, gaps, ranges, keys, the sample), up to three per
+//! stage of parameters that needs order statistics (the fills, then clip
+//! and robust scaling), two for z-scores, the rounds of every refinement,
+//! one for the chosen segments' sums and one to write the assignments.
+
+use super::error::{Place, RunError};
+use super::fit::Candidate;
+use super::prepare::{FeatureParams, Prepared};
+use super::{load, Step};
+use crate::engine::exact::{self, Shifts, Sum};
+use crate::engine::kmeans;
+use crate::plan::{KMeansPlan, MissingRule, Plan, Scale};
+use crate::scale::select::{self, Selection, Tally};
+use crate::scale::stream::{rank_of, Draw, Drawn, PassError, Passes, Streamed};
+use ndarray::Array2;
+
+/// The input opened for passes, with where its columns are.
+#[derive(Debug, Clone)]
+pub struct Input {
+    pub passes: Passes,
+    shown: String,
+    names: Vec<String>,
+    key_at: usize,
+    /// Each feature's position in the schema.
+    at: Vec<usize>,
+}
+
+impl Input {
+    /// Opens the plan's input: its schema and row groups, from the footers.
+    pub fn open(plan: &Plan) -> Result<Input, RunError> {
+        let shown = plan.input.shown();
+        let unreadable = |reason: String| RunError::Unreadable {
+            file: shown.clone(),
+            reason,
+        };
+        let schema = crate::parquet::schema(&plan.input.resolved)
+            .map_err(|e| unreadable(crate::parquet::words(&e)))?;
+        let position = |name: &str| {
+            schema
+                .names
+                .iter()
+                .position(|n| n.trim() == name)
+                .ok_or_else(|| RunError::ColumnGone {
+                    file: shown.clone(),
+                    column: name.to_string(),
+                })
+        };
+        let key_at = position(&plan.input.key)?;
+        let at = (plan.features.iter())
+            .map(|f| position(&f.column))
+            .collect::<Result<Vec<_>, _>>()?;
+        let passes = Passes::open(&plan.input.resolved, &shown, Some(key_at), &at)
+            .map_err(|e| failed(&schema.names, &shown, key_at)(e))?;
+        Ok(Input {
+            passes,
+            names: schema.names,
+            shown,
+            key_at,
+            at,
+        })
+    }
+
+    /// Record `record` (0-based) at the column at schema position `at`.
+    fn place(&self, at: usize, record: usize) -> Place {
+        Place {
+            file: self.shown.clone(),
+            line: record as u64 + 2,
+            column: at + 1,
+            name: self.names.get(at).cloned().unwrap_or_default(),
+        }
+    }
+
+    fn failed(&self) -> impl Fn(PassError) -> RunError + '_ {
+        failed(&self.names, &self.shown, self.key_at)
+    }
+}
+
+/// A pass's failure as a run error, at the record and column it names
+/// (a missing key at the key's column, `key_at`).
+fn failed<'a>(
+    names: &'a [String],
+    shown: &'a str,
+    key_at: usize,
+) -> impl Fn(PassError) -> RunError + 'a {
+    move |e| {
+        let place = |at: usize, record: usize| Place {
+            file: shown.to_string(),
+            line: record as u64 + 2,
+            column: at + 1,
+            name: names.get(at).cloned().unwrap_or_default(),
+        };
+        match e {
+            PassError::Read { reason, .. } => load::read_error(reason, &place, shown),
+            PassError::NoKey { record, .. } => RunError::BlankKey {
+                place: place(key_at, record),
+            },
+            PassError::Stopped => RunError::Stopped {
+                during: "while reading the input in passes",
+            },
+            other => RunError::Unreadable {
+                file: shown.to_string(),
+                reason: other.to_string(),
+            },
+        }
+    }
+}
+
+/// What a run in passes holds at most, stated before it reads anything
+/// (from the footers alone).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Held {
+    pub records: usize,
+    pub groups: usize,
+    /// Bytes beyond the program itself: [`Passes::peak`] (a batch and its
+    /// pages per worker, the sample while it is drawn), an 8-byte digest
+    /// per record for repeated keys, the sample as the run over it holds
+    /// it (its table, its prepared rows and their labels), and per worker
+    /// a row group's assignment lines waiting to be written.
+    pub bytes: usize,
+    pub sample: usize,
+}
+
+/// Bytes the run over the sample holds per sample record and feature (the
+/// table's value and gap mark, the prepared row, a copy for the judge)
+/// and per record (its key and labels).
+const SAMPLE_PER_VALUE: usize = 8 + 1 + 8 + 8;
+const SAMPLE_PER_RECORD: usize = 64;
+
+/// Bytes allowed per assignments line while a worker's row group waits
+/// its turn to be written.
+const LINE_BYTES: usize = 96;
+
+/// What a run in passes of `plan` will hold, on this machine's workers.
+pub fn held(plan: &Plan) -> Result<Held, RunError> {
+    let input = Input::open(plan)?;
+    let records = input.passes.records();
+    let sample = match &plan.method {
+        crate::plan::MethodPlan::KMeans(km) => km.sample.unwrap_or(records).min(records),
+        _ => records,
+    };
+    let d = plan.features.len();
+    let workers = rayon::current_num_threads();
+    let largest_group = input
+        .passes
+        .groups()
+        .iter()
+        .map(|g| g.rows)
+        .max()
+        .unwrap_or(0);
+    Ok(Held {
+        records,
+        groups: input.passes.groups().len(),
+        bytes: input.passes.peak(workers, sample)
+            + 8 * records
+            + sample * (SAMPLE_PER_RECORD + SAMPLE_PER_VALUE * d)
+            + workers * largest_group * LINE_BYTES,
+        sample,
+    })
+}
+
+impl Held {
+    /// In words, for the terminal and the dry run.
+    pub fn words(&self) -> String {
+        format!(
+            "read in passes: {} records in {} row groups, holding at most about {} beyond the program (the sample of {}, an 8-byte digest per record, a batch per worker)",
+            crate::text::thousands(self.records),
+            crate::text::thousands(self.groups),
+            crate::text::bytes(self.bytes),
+            crate::text::thousands(self.sample),
+        )
+    }
+}
+
+/// What the first pass finds.
+#[derive(Debug, Clone)]
+struct Look {
+    records: u64,
+    kept: u64,
+    /// Per feature: records with a gap (all records; for `missing drop`).
+    gaps: Vec<u64>,
+    /// Per feature, among kept records: values present, the smallest and
+    /// largest, and the first record with a gap.
+    present: Vec<u64>,
+    lowest: Vec<f64>,
+    highest: Vec<f64>,
+    first_gap: Vec<Option<usize>>,
+    /// Every record's rank's first 8 bytes, for repeated keys.
+    ranks: Vec<u64>,
+    draw: Draw,
+}
+
+impl Look {
+    fn new(d: usize, size: usize) -> Look {
+        Look {
+            records: 0,
+            kept: 0,
+            gaps: vec![0; d],
+            present: vec![0; d],
+            lowest: vec![f64::INFINITY; d],
+            highest: vec![f64::NEG_INFINITY; d],
+            first_gap: vec![None; d],
+            ranks: Vec::new(),
+            draw: Draw::new(size),
+        }
+    }
+
+    fn merge(mut self, o: Look) -> Look {
+        self.records += o.records;
+        self.kept += o.kept;
+        for f in 0..self.gaps.len() {
+            self.gaps[f] += o.gaps[f];
+            self.present[f] += o.present[f];
+            self.lowest[f] = self.lowest[f].min(o.lowest[f]);
+            self.highest[f] = self.highest[f].max(o.highest[f]);
+            self.first_gap[f] = match (self.first_gap[f], o.first_gap[f]) {
+                (Some(a), Some(b)) => Some(a.min(b)),
+                (a, b) => a.or(b),
+            };
+        }
+        self.ranks.extend(o.ranks);
+        self.draw = self.draw.merge(o.draw);
+        self
+    }
+}
+
+/// Whether a record whose features are `values[f][i]` is kept: no gap in
+/// a feature whose rule drops the record.
+fn kept(plan: &Plan, values: &[&[Option<f64>]], i: usize) -> bool {
+    (plan.features.iter().zip(values))
+        .all(|(fp, v)| fp.missing != MissingRule::DropRow || v[i].is_some())
+}
+
+/// The first pass: counts, gaps, ranges, every record's rank and the
+/// sample of `size` kept records.
+fn look(plan: &Plan, input: &Input, size: usize) -> Result<Look, RunError> {
+    let d = plan.features.len();
+    let seed = plan.seed;
+    input
+        .passes
+        .pass(
+            true,
+            || Look::new(d, size),
+            |look, first, keys, values| {
+                for (i, key) in keys.iter().enumerate() {
+                    let record = first + i;
+                    let key = key.as_deref().ok_or(PassError::NoKey {
+                        shown: String::new(),
+                        record,
+                    })?;
+                    let rank = rank_of(seed, key);
+                    let mut head = [0u8; 8];
+                    head.copy_from_slice(&rank[..8]);
+                    look.ranks.push(u64::from_be_bytes(head));
+                    look.records += 1;
+                    for (f, v) in values.iter().enumerate() {
+                        if v[i].is_none() {
+                            look.gaps[f] += 1;
+                        }
+                    }
+                    if !kept(plan, values, i) {
+                        continue;
+                    }
+                    look.kept += 1;
+                    for (f, v) in values.iter().enumerate() {
+                        match v[i] {
+                            Some(x) => {
+                                look.present[f] += 1;
+                                look.lowest[f] = look.lowest[f].min(x);
+                                look.highest[f] = look.highest[f].max(x);
+                            }
+                            None => {
+                                look.first_gap[f] =
+                                    Some(look.first_gap[f].map_or(record, |r| r.min(record)))
+                            }
+                        }
+                    }
+                    look.draw
+                        .offer(rank, key, || values.iter().map(|c| c[i]).collect());
+                }
+                Ok(())
+            },
+            Look::merge,
+        )
+        .map_err(input.failed())
+}
+
+/// Refuses a key that appears twice: the 8-byte ranks are sorted, and
+/// only when two agree is the input read again for those keys (two keys
+/// of one rank prefix are rare, 1 in 3,700 at 100 million records).
+fn keys_once(plan: &Plan, input: &Input, mut ranks: Vec<u64>) -> Result<(), RunError> {
+    use rayon::prelude::*;
+    ranks.par_sort_unstable();
+    let mut twice: Vec<u64> = ranks
+        .windows(2)
+        .filter(|w| w[0] == w[1])
+        .map(|w| w[0])
+        .collect();
+    drop(ranks);
+    if twice.is_empty() {
+        return Ok(());
+    }
+    twice.dedup();
+    let seed = plan.seed;
+    let found = input
+        .passes
+        .pass(
+            true,
+            Vec::new,
+            |found: &mut Vec<(String, usize)>, first, keys, _| {
+                for (i, key) in keys.iter().enumerate() {
+                    let key = key.as_deref().unwrap_or_default();
+                    let rank = rank_of(seed, key);
+                    let mut head = [0u8; 8];
+                    head.copy_from_slice(&rank[..8]);
+                    if twice.binary_search(&u64::from_be_bytes(head)).is_ok() {
+                        found.push((key.to_string(), first + i));
+                    }
+                }
+                Ok(())
+            },
+            |mut a, b| {
+                a.extend(b);
+                a
+            },
+        )
+        .map_err(input.failed())?;
+    let mut found = found;
+    found.sort();
+    // The first repeated key in key order, at its second record.
+    match found.windows(2).find(|w| w[0].0 == w[1].0) {
+        Some(w) => Err(RunError::DuplicateKey {
+            place: input.place(input.key_at, w[1].1),
+            key: w[1].0.clone(),
+            first_line: w[0].1 as u64 + 2,
+        }),
+        None => Ok(()),
+    }
+}
+
+/// Order statistics over the kept records, narrowed pass by pass:
+/// `value(f, x)` is what feature `f`'s value `x` (a gap as `None`) counts
+/// as, or `None` when it is not counted. `counts[f]` values are counted
+/// per feature.
+fn select(
+    plan: &Plan,
+    input: &Input,
+    counts: &[u64],
+    wants: &[(usize, u64)],
+    value: &(dyn Fn(usize, Option<f64>) -> Option<f64> + Sync),
+) -> Result<Vec<f64>, RunError> {
+    let mut selection = Selection::new(counts, wants);
+    while !selection.probes().is_empty() {
+        let probes = selection.probes().to_vec();
+        let tallies = input
+            .passes
+            .pass(
+                false,
+                || selection.tallies(),
+                |tallies: &mut Vec<Tally>, _, _, values| {
+                    for i in 0..values.first().map_or(0, |c| c.len()) {
+                        if !kept(plan, values, i) {
+                            continue;
+                        }
+                        for (p, t) in probes.iter().zip(tallies.iter_mut()) {
+                            if let Some(x) = value(p.column, values[p.column][i]) {
+                                t.observe(p, x);
+                            }
+                        }
+                    }
+                    Ok(())
+                },
+                |mut a, b| {
+                    select::merge(&mut a, b);
+                    a
+                },
+            )
+            .map_err(input.failed())?;
+        selection.settle(tallies);
+    }
+    Ok(selection.found().unwrap_or_default())
+}
+
+/// Exact sums over the kept records of `value(f, x)` per feature (a
+/// feature whose value is `None` is not summed), each with the bound of
+/// `bounds[f]`.
+fn sums(
+    plan: &Plan,
+    input: &Input,
+    bounds: &[f64],
+    value: &(dyn Fn(usize, Option<f64>) -> Option<f64> + Sync),
+) -> Result<Vec<Sum>, RunError> {
+    let start = (bounds.iter().enumerate())
+        .map(|(f, &b)| Sum::new(b).map_err(|e| out_of_range(&plan.features[f].column, e)))
+        .collect::<Result<Vec<Sum>, RunError>>()?;
+    input
+        .passes
+        .pass(
+            false,
+            || start.clone(),
+            |sums: &mut Vec<Sum>, _, _, values| {
+                for i in 0..values.first().map_or(0, |c| c.len()) {
+                    if !kept(plan, values, i) {
+                        continue;
+                    }
+                    for (f, s) in sums.iter_mut().enumerate() {
+                        if let Some(x) = value(f, values[f][i]) {
+                            s.add(x);
+                        }
+                    }
+                }
+                Ok(())
+            },
+            |mut a, b| {
+                a.iter_mut().zip(&b).for_each(|(a, b)| a.merge(b));
+                a
+            },
+        )
+        .map_err(input.failed())
+}
+
+fn out_of_range(column: &str, e: exact::OutOfRange) -> RunError {
+    RunError::ByKey {
+        reason: format!(
+            "the values of `{column}` are out of the exact sums' range: {}",
+            e.to_string().replace("feature 0", "the column")
+        ),
+    }
+}
+
+/// The quantile at `q` of `n` values from the selection's `found`, whose
+/// two order statistics for it start at `at`, mapped by `map` first.
+fn quantile(found: &[f64], at: usize, n: u64, q: f64, map: impl Fn(f64) -> f64) -> f64 {
+    let (_, _, frac) = select::quantile_ranks(n, q);
+    select::interpolate(map(found[at]), map(found[at + 1]), frac)
+}
+
+/// The two ranks of the quantile at `q` among `n` values of feature `f`.
+fn ranks_of(f: usize, n: u64, q: f64) -> [(usize, u64); 2] {
+    let (lo, hi, _) = select::quantile_ranks(n, q);
+    [(f, lo), (f, hi)]
+}
+
+/// Every feature's parameters, over every kept record, as
+/// [`super::prepare::prepare`] computes them for `by key`: the fills, then
+/// the order statistics (clip bounds, robust scaling), then z-scores.
+fn parameters(plan: &Plan, input: &Input, look: &Look) -> Result<Vec<FeatureParams>, RunError> {
+    refuse_gaps(plan, input, look)?;
+    let fill = fills(plan, input, look)?;
+    // The filled values' range: the present values', and the fill's when
+    // it fills a gap.
+    let gaps = |f: usize| look.kept - look.present[f];
+    let ends: Vec<(f64, f64)> = (0..plan.features.len())
+        .map(|f| match fill[f].filter(|_| gaps(f) > 0) {
+            Some(v) => (look.lowest[f].min(v), look.highest[f].max(v)),
+            None => (look.lowest[f], look.highest[f]),
+        })
+        .collect();
+    let mut params: Vec<FeatureParams> = (plan.features.iter().enumerate())
+        .map(|(f, fp)| FeatureParams::filled(fp, fill[f], fill[f].map_or(0, |_| gaps(f) as usize)))
+        .collect();
+    ordered(plan, input, look, &ends, &mut params)?;
+    if plan.scale == Scale::Zscore {
+        zscores(plan, input, &ends, &mut params)?;
+    }
+    for p in params.iter_mut() {
+        p.constant = p.divisor == 0.0;
+        if p.constant {
+            p.divisor = 1.0;
+        }
+    }
+    Ok(params)
+}
+
+/// A gap no rule fills, and a fill with nothing to fill from, stop the
+/// run: the first feature in recipe order, at its first such record.
+fn refuse_gaps(plan: &Plan, input: &Input, look: &Look) -> Result<(), RunError> {
+    for (f, fp) in plan.features.iter().enumerate() {
+        let fills = matches!(fp.missing, MissingRule::FillMean | MissingRule::FillMedian);
+        if fills && look.present[f] == 0 && look.kept > 0 {
+            return Err(RunError::NothingToFillFrom {
+                column: fp.column.clone(),
+            });
+        }
+        if let (MissingRule::Refuse, Some(r)) = (fp.missing, look.first_gap[f]) {
+            return Err(RunError::MissingValue {
+                place: input.place(input.at[f], r),
+            });
+        }
+    }
+    Ok(())
+}
+
+/// Each feature's fill: a value given, the exact mean or the median of
+/// the values present among the kept records.
+fn fills(plan: &Plan, input: &Input, look: &Look) -> Result<Vec<Option<f64>>, RunError> {
+    let rule = |f: usize| plan.features[f].missing;
+    let d = plan.features.len();
+    let mut fill: Vec<Option<f64>> = (0..d)
+        .map(|f| match rule(f) {
+            MissingRule::FillValue(v) => Some(v),
+            _ => None,
+        })
+        .collect();
+    if (0..d).any(|f| rule(f) == MissingRule::FillMean) {
+        let bounds: Vec<f64> = (0..d)
+            .map(|f| look.lowest[f].abs().max(look.highest[f].abs()))
+            .collect();
+        let only_means = |f: usize, x: Option<f64>| x.filter(|_| rule(f) == MissingRule::FillMean);
+        let sums = sums(plan, input, &bounds, &only_means)?;
+        for f in (0..d).filter(|&f| rule(f) == MissingRule::FillMean) {
+            fill[f] = sums[f].mean();
+        }
+    }
+    let medians: Vec<(usize, u64)> = (0..d)
+        .filter(|&f| rule(f) == MissingRule::FillMedian)
+        .flat_map(|f| ranks_of(f, look.present[f], 0.5))
+        .collect();
+    if !medians.is_empty() {
+        let present = |_: usize, x: Option<f64>| x;
+        let found = select(plan, input, &look.present, &medians, &present)?;
+        for (i, pair) in medians.chunks(2).enumerate() {
+            let f = pair[0].0;
+            fill[f] = Some(quantile(&found, 2 * i, look.present[f], 0.5, |x| x));
+        }
+    }
+    Ok(fill)
+}
+
+/// Clip bounds, and the centre and divisor of robust, range and no
+/// scaling, from order statistics of the filled values (clipping and the
+/// transforms keep their order); `ends` are the filled values' smallest
+/// and largest, where a transform's domain is checked.
+fn ordered(
+    plan: &Plan,
+    input: &Input,
+    look: &Look,
+    ends: &[(f64, f64)],
+    params: &mut [FeatureParams],
+) -> Result<(), RunError> {
+    let robust = plan.scale == Scale::Robust;
+    let mut wants: Vec<(usize, u64)> = Vec::new();
+    for (f, fp) in plan.features.iter().enumerate() {
+        if let Some((lo, hi)) = fp.clip {
+            wants.extend(ranks_of(f, look.kept, lo));
+            wants.extend(ranks_of(f, look.kept, hi));
+        }
+        if robust {
+            for q in [0.25, 0.5, 0.75] {
+                wants.extend(ranks_of(f, look.kept, q));
+            }
+        }
+    }
+    let found = match wants.is_empty() {
+        true => Vec::new(),
+        false => {
+            let filled = |f: usize, x: Option<f64>| x.or(params[f].fill);
+            let counts = vec![look.kept; plan.features.len()];
+            select(plan, input, &counts, &wants, &filled)?
+        }
+    };
+    let mut at = 0;
+    for (f, fp) in plan.features.iter().enumerate() {
+        if let Some((lo, hi)) = fp.clip {
+            let a = quantile(&found, at, look.kept, lo, |x| x);
+            let b = quantile(&found, at + 2, look.kept, hi, |x| x);
+            params[f].clip = Some((a, b));
+            at += 4;
+        }
+        let p = &params[f];
+        let (lo, hi) = (
+            reshaped(input, look, p, f, ends[f].0)?,
+            reshaped(input, look, p, f, ends[f].1)?,
+        );
+        let (centre, divisor) = match plan.scale {
+            Scale::Robust => {
+                let t = |x: f64| reshape(p, x).unwrap_or(f64::NAN);
+                let q1 = quantile(&found, at, look.kept, 0.25, t);
+                let q2 = quantile(&found, at + 2, look.kept, 0.5, t);
+                let q3 = quantile(&found, at + 4, look.kept, 0.75, t);
+                at += 6;
+                (q2, q3 - q1)
+            }
+            Scale::Range => (lo, hi - lo),
+            Scale::None => (0.0, 1.0),
+            // From exact sums, in [`zscores`].
+            Scale::Zscore => (0.0, 0.0),
+        };
+        params[f].centre = centre;
+        params[f].divisor = divisor;
+    }
+    Ok(())
+}
+
+/// Z-scores over the reshaped (filled, clipped, transformed) values: the
+/// exact mean, then the exact sum of squared deviations from it.
+fn zscores(
+    plan: &Plan,
+    input: &Input,
+    ends: &[(f64, f64)],
+    params: &mut [FeatureParams],
+) -> Result<(), RunError> {
+    let d = params.len();
+    let largest: Vec<f64> = (0..d)
+        .map(|f| {
+            let p = &params[f];
+            let (a, b) = (reshape(p, ends[f].0), reshape(p, ends[f].1));
+            a.unwrap_or(0.0).abs().max(b.unwrap_or(0.0).abs())
+        })
+        .collect();
+    let snapshot = params.to_vec();
+    let reshaped = |f: usize, x: Option<f64>| {
+        let p = &snapshot[f];
+        x.or(p.fill).and_then(|x| reshape(p, x))
+    };
+    let means: Vec<f64> = sums(plan, input, &largest, &reshaped)?
+        .iter()
+        .map(|s| s.mean().unwrap_or(0.0))
+        .collect();
+    let bounds: Vec<f64> = (0..d)
+        .map(|f| exact::deviation_bound(largest[f], means[f]))
+        .collect();
+    let deviation =
+        |f: usize, x: Option<f64>| reshaped(f, x).map(|t| (t - means[f]) * (t - means[f]));
+    let spreads = sums(plan, input, &bounds, &deviation)?;
+    for (f, p) in params.iter_mut().enumerate() {
+        p.centre = means[f];
+        p.divisor = spreads[f].mean().map_or(0.0, f64::sqrt);
+    }
+    Ok(())
+}
+
+/// A filled value clipped and transformed; `None` outside the transform's
+/// domain.
+fn reshape(p: &FeatureParams, x: f64) -> Option<f64> {
+    let x = match p.clip {
+        Some((a, b)) => x.clamp(a, b),
+        None => x,
+    };
+    super::prepare::transform(p.transform, x).ok()
+}
+
+/// [`reshape`] of one end of a feature's filled values, or the error of
+/// the first kept record (in the input's order) whose value the transform
+/// cannot take: the smallest value is tried, as every transform's domain
+/// is bounded below.
+fn reshaped(
+    input: &Input,
+    look: &Look,
+    p: &FeatureParams,
+    f: usize,
+    x: f64,
+) -> Result<f64, RunError> {
+    let x = match p.clip {
+        Some((a, b)) => x.clamp(a, b),
+        None => x,
+    };
+    super::prepare::transform(p.transform, x).map_err(|(transform, help)| {
+        // The record: the first gap when the fill is what fails, else
+        // the smallest value's; both are found by the look or one pass.
+        let record = match p.fill.filter(|&v| v == x) {
+            Some(_) => look.first_gap[f].unwrap_or(0),
+            None => first_at_most(input, f, x).unwrap_or(0),
+        };
+        RunError::TransformDomain {
+            place: input.place(input.at[f], record),
+            transform,
+            value: x,
+            help,
+        }
+    })
+}
+
+/// The first record whose feature `f` is at most `x`, in one pass.
+fn first_at_most(input: &Input, f: usize, x: f64) -> Option<usize> {
+    input
+        .passes
+        .pass(
+            false,
+            || None,
+            |first_found: &mut Option<usize>, first, _, values| {
+                if let Some(i) = values[f].iter().position(|v| v.is_some_and(|v| v <= x)) {
+                    *first_found = Some(first_found.map_or(first + i, |r: usize| r.min(first + i)));
+                }
+                Ok(())
+            },
+            |a, b| match (a, b) {
+                (Some(a), Some(b)) => Some(a.min(b)),
+                (a, b) => a.or(b),
+            },
+        )
+        .ok()
+        .flatten()
+}
+
+/// The sample as a table, in rank order (a record's "line" is its place
+/// in the sample, for it is never reported).
+fn sample_table(input: &Input, drawn: &[Drawn], d: usize) -> load::Table {
+    let mut table = load::Table {
+        keys: load::Keys::default(),
+        lines: Vec::with_capacity(drawn.len()),
+        numeric: vec![load::NumericColumn::default(); d],
+        fields: input.at.iter().map(|a| a + 1).collect(),
+        text_fields: Vec::new(),
+        text: Vec::new(),
+        digest: None,
+        target: None,
+    };
+    for (i, (_, key, values)) in drawn.iter().enumerate() {
+        table.keys.push(key);
+        table.lines.push(i as u64 + 2);
+        for (c, &v) in table.numeric.iter_mut().zip(values) {
+            c.push(v);
+        }
+    }
+    table
+}
+
+/// The shifts of the exact sums: each feature's largest prepared
+/// magnitude, at one end of its filled values (preparing keeps order).
+fn shifts(params: &[FeatureParams], look: &Look) -> Result<Shifts, RunError> {
+    let largest: Vec<f64> = (params.iter().enumerate())
+        .map(|(f, p)| {
+            let ends = [look.lowest[f], look.highest[f]]
+                .into_iter()
+                .chain(p.fill.filter(|_| p.filled > 0));
+            ends.filter(|x| x.is_finite())
+                .filter_map(|x| super::model::prepared_value(p, x))
+                .fold(0.0_f64, |m, v| m.max(v.abs()))
+        })
+        .collect();
+    Shifts::of(&largest).map_err(|e| RunError::ByKey {
+        reason: format!("the clustered values are out of the exact sums' range: {e}"),
+    })
+}
+
+/// Each segment's exact sums over every kept record: records, the original
+/// (filled) values and the gaps filled, per feature; segment `s` is the
+/// record's nearest of `centres` (k rows, in number order).
+#[derive(Debug, Clone)]
+pub struct SegmentSums {
+    pub counts: Vec<u64>,
+    /// k × d sums of original values.
+    pub values: Vec<Sum>,
+    /// k × d gaps filled.
+    pub filled: Vec<u64>,
+}
+
+fn segment_sums(
+    plan: &Plan,
+    input: &Input,
+    params: &[FeatureParams],
+    centres: &[f64],
+    look: &Look,
+) -> Result<SegmentSums, RunError> {
+    let d = params.len();
+    let k = centres.len() / d.max(1);
+    let mut start_values = Vec::with_capacity(k * d);
+    for _ in 0..k {
+        for (f, p) in params.iter().enumerate() {
+            let mut bound = look.lowest[f].abs().max(look.highest[f].abs());
+            if let Some(v) = p.fill.filter(|_| p.filled > 0) {
+                bound = bound.max(v.abs());
+            }
+            start_values.push(Sum::new(bound).map_err(|e| out_of_range(&p.column, e))?);
+        }
+    }
+    let start = SegmentSums {
+        counts: vec![0; k],
+        values: start_values,
+        filled: vec![0; k * d],
+    };
+    input
+        .passes
+        .pass(
+            false,
+            || start.clone(),
+            |sums: &mut SegmentSums, first, _, values| {
+                let mut row = vec![0.0; d];
+                for i in 0..values.first().map_or(0, |c| c.len()) {
+                    if !kept(plan, values, i)
+                        || !input.passes.prepare(params, values, i, first, &mut row)?
+                    {
+                        continue;
+                    }
+                    let (s, _, _) = kmeans::nearest_two(&row, centres, d.max(1));
+                    let s = s as usize;
+                    sums.counts[s] += 1;
+                    for (f, p) in params.iter().enumerate() {
+                        match values[f][i] {
+                            Some(x) => sums.values[s * d + f].add(x),
+                            None => {
+                                sums.values[s * d + f].add(p.fill.unwrap_or(0.0));
+                                sums.filled[s * d + f] += 1;
+                            }
+                        }
+                    }
+                }
+                Ok(())
+            },
+            |mut a, b| {
+                a.counts
+                    .iter_mut()
+                    .zip(&b.counts)
+                    .for_each(|(a, b)| *a += b);
+                a.values
+                    .iter_mut()
+                    .zip(&b.values)
+                    .for_each(|(a, b)| a.merge(b));
+                a.filled
+                    .iter_mut()
+                    .zip(&b.filled)
+                    .for_each(|(a, b)| *a += b);
+                a
+            },
+        )
+        .map_err(input.failed())
+}
+
+/// What a run in passes carries beyond the outcome of its sample: the
+/// input to read again for the assignments, the parameters and the
+/// chosen centres.
+#[derive(Debug, Clone)]
+pub struct InPasses {
+    pub input: Input,
+    pub params: Vec<FeatureParams>,
+    /// The chosen segments' centres, k rows of d in number order.
+    pub centres: Vec<f64>,
+    /// The sample's size.
+    pub sample: usize,
+    /// The chosen segments' numbers, in the order of `centres`.
+    pub numbers: Vec<usize>,
+}
+
+/// What the run over the sample needs from the passes.
+pub(super) struct Measured {
+    pub table: load::Table,
+    pub prepared: Prepared,
+    pub candidates: Vec<Candidate>,
+    pub input: Input,
+    pub look_records: u64,
+    pub dropped_by: Vec<(String, usize)>,
+    look: Look,
+}
+
+/// The passes up to the fits: the look, repeated keys, the parameters,
+/// the sample prepared, and one candidate per k refined by streamed
+/// rounds.
+pub(super) fn measure(
+    plan: &Plan,
+    km: &KMeansPlan,
+    progress: &dyn Fn(Step),
+) -> Result<Measured, RunError> {
+    let input = Input::open(plan)?;
+    let size = km.sample.unwrap_or(usize::MAX);
+    let mut look = look(plan, &input, size)?;
+    keys_once(plan, &input, std::mem::take(&mut look.ranks))?;
+    super::go_on("after reading the input")?;
+    let params = parameters(plan, &input, &look)?;
+    let d = plan.features.len();
+    let drawn = std::mem::replace(&mut look.draw, Draw::new(0)).finish();
+    let table = sample_table(&input, &drawn, d);
+    let prepared = super::prepare::prepare_given(plan, &table, params.clone())?;
+    let shifts = shifts(&params, &look)?;
+    let mut engine = Streamed {
+        passes: &input.passes,
+        params: &params,
+        shifts: &shifts,
+    };
+    let sample = prepared.matrix.view();
+    let driven = super::driven::Driven {
+        sample,
+        shifts: &shifts,
+        labelled: sample,
+        every_record: false,
+    };
+    let candidates = driven.each_k(plan, km, &mut engine, input.failed(), progress)?;
+    let dropped_by = (plan.features.iter().enumerate())
+        .filter(|(_, fp)| fp.missing == MissingRule::DropRow)
+        .map(|(f, fp)| (fp.column.clone(), look.gaps[f] as usize))
+        .collect();
+    Ok(Measured {
+        look_records: look.records,
+        table,
+        prepared,
+        candidates,
+        input,
+        dropped_by,
+        look,
+    })
+}
+
+impl Measured {
+    /// The chosen segments' sums over every record, one pass: the
+    /// profiles (in number order, the sample's) and the overall profile
+    /// corrected by them ([`every_record`]); returns what the outcome keeps
+    /// to write the assignments.
+    pub(super) fn every_record(
+        &self,
+        plan: &Plan,
+        numbered: &super::number::Numbered,
+        profiles: &mut [super::Profile],
+        overall: &mut super::Profile,
+    ) -> Result<InPasses, RunError> {
+        let centres: Vec<f64> = numbered.fit.centres.iter().copied().collect();
+        let params = self.prepared.features.clone();
+        let sums = segment_sums(plan, &self.input, &params, &centres, &self.look)?;
+        every_record(profiles, overall, &sums);
+        Ok(InPasses {
+            input: self.input.clone(),
+            params,
+            centres,
+            sample: self.table.keys.len(),
+            numbers: numbered.numbers.clone(),
+        })
+    }
+
+    /// Records kept, and left out by `missing drop`.
+    pub(super) fn kept(&self) -> (u64, u64) {
+        (self.look.kept, self.look.records - self.look.kept)
+    }
+}
+
+/// The profiles (in number order) and the overall profile, corrected by
+/// the sums over every record: sizes, shares, means and gaps filled. The
+/// medians, quartiles and standardised differences stay the sample's.
+pub(super) fn every_record(
+    profiles: &mut [super::Profile],
+    overall: &mut super::Profile,
+    sums: &SegmentSums,
+) {
+    let d = overall.features.len();
+    let kept: u64 = sums.counts.iter().sum();
+    let share = |n: u64| {
+        if kept == 0 {
+            0.0
+        } else {
+            n as f64 / kept as f64
+        }
+    };
+    for (s, p) in profiles.iter_mut().enumerate() {
+        p.size = sums.counts[s] as usize;
+        p.share = share(sums.counts[s]);
+        for (f, fs) in p.features.iter_mut().enumerate() {
+            fs.mean = sums.values[s * d + f].mean().unwrap_or(f64::NAN);
+            fs.filled = sums.filled[s * d + f] as usize;
+        }
+    }
+    overall.size = kept as usize;
+    overall.share = 1.0;
+    for (f, fs) in overall.features.iter_mut().enumerate() {
+        let mut all = sums.values[f];
+        for s in 1..sums.counts.len() {
+            all.merge(&sums.values[s * d + f]);
+        }
+        fs.mean = all.mean().unwrap_or(f64::NAN);
+        fs.filled = (0..sums.counts.len())
+            .map(|s| sums.filled[s * d + f] as usize)
+            .sum();
+    }
+}
+
+impl InPasses {
+    /// Writes the assignments of every kept record, in the input's order,
+    /// as [`crate::output::files::assignments_csv`] writes them, a few row
+    /// groups at a time (one per worker, read in parallel, then written in
+    /// order): memory holds those groups' lines, not the file.
+    /// Returns the cells a spreadsheet would run as formulas, written
+    /// exactly all the same.
+    pub fn write_assignments(
+        &self,
+        key: &str,
+        label: &(dyn Fn(usize) -> String + Sync),
+        out: &mut dyn std::io::Write,
+    ) -> Result<usize, RunError> {
+        use rayon::prelude::*;
+        let d = self.params.len();
+        let k = self.centres.len() / d.max(1);
+        let centres =
+            Array2::from_shape_vec((k, d), self.centres.clone()).map_err(|e| RunError::ByKey {
+                reason: e.to_string(),
+            })?;
+        let write_failed = |e: std::io::Error| RunError::Write {
+            path: String::new(),
+            reason: e.to_string(),
+        };
+        // The header alone, as each batch's lines begin with it.
+        let header =
+            crate::output::files::assignments_csv(key, &super::Assignments::default(), label);
+        out.write_all(&header.bytes).map_err(write_failed)?;
+        let mut formula_like = header.formula_like;
+        let workers = rayon::current_num_threads().max(1);
+        for window in self.input.passes.groups().chunks(workers) {
+            let parts: Vec<Result<(Vec<u8>, usize), RunError>> = window
+                .par_iter()
+                .map(|g| self.group_lines(g, key, label, &centres, &header))
+                .collect();
+            for part in parts {
+                let (lines, risky) = part?;
+                out.write_all(&lines).map_err(write_failed)?;
+                formula_like += risky;
+            }
+        }
+        Ok(formula_like)
+    }
+
+    /// One row group's assignment lines, without the header, batch by
+    /// batch; and the cells among them a spreadsheet would run.
+    fn group_lines(
+        &self,
+        g: &crate::parquet::Group,
+        key: &str,
+        label: &(dyn Fn(usize) -> String + Sync),
+        centres: &Array2<f64>,
+        header: &crate::output::files::Csv,
+    ) -> Result<(Vec<u8>, usize), RunError> {
+        let d = self.params.len();
+        let mut lines: Vec<u8> = Vec::new();
+        let mut risky = 0;
+        let mut row = vec![0.0; d];
+        let passes = &self.input.passes;
+        passes
+            .read_one(g, true, |first, batch_keys, values| {
+                let mut keys: Vec<&str> = Vec::with_capacity(batch_keys.len());
+                let mut rows: Vec<f64> = Vec::with_capacity(batch_keys.len() * d);
+                for (i, k) in batch_keys.iter().enumerate() {
+                    if passes.prepare(&self.params, values, i, first, &mut row)? {
+                        keys.push(k.as_deref().unwrap_or_default());
+                        rows.extend_from_slice(&row);
+                    }
+                }
+                let x = Array2::from_shape_vec((keys.len(), d), rows)
+                    .expect("d values were pushed with each key");
+                let mut assignments = super::Assignments::with_capacity(keys.len());
+                let nearest = kmeans::nearest_with_margin(x.view(), centres.view());
+                for (key, (s, distance, margin)) in keys.iter().zip(nearest) {
+                    assignments.push(super::Assignment {
+                        key,
+                        segment: self.numbers[s as usize],
+                        distance,
+                        margin,
+                    });
+                }
+                let csv = crate::output::files::assignments_csv(key, &assignments, label);
+                let body = csv.bytes.get(header.bytes.len()..).unwrap_or_default();
+                lines.extend_from_slice(body);
+                risky += csv.formula_like - header.formula_like;
+                Ok(())
+            })
+            .map_err(self.input.failed())?;
+        Ok((lines, risky))
+    }
+}

@@ -1,0 +1,329 @@
+//! `read passes` (src/run/passes.rs): a `kmeans ... sample N by key`
+//! recipe over a Parquet input that is never read whole.
+//!
+//! - The demo's members (numeric features, gaps filled by median, a log
+//!   transform, clipping at a quantile, z-scores) read in passes give the
+//!   same segments as the same recipe over the CSV read whole: every
+//!   member's segment, the centres, the model's parameters and centres to
+//!   the last digit, and each segment's size, share and means.
+//! - The same members as a folder of four parts give every output byte
+//!   for byte as the single file, apart from the input's name and digest.
+//! - What reading in passes does not take is refused by the check at its
+//!   statement; bad records (a value that is not a number, a repeated key,
+//!   a blank key) stop the run at their line, with nothing written.
+//!
+//! Data: the invented demo (recipes/data/coop_members.csv) and its Parquet
+//! copies in tests/data/parquet (written by
+//! tests/reference/parquet_fixtures.py).
+
+mod common;
+
+use arrow_array::{ArrayRef, RecordBatch, StringArray};
+use common::case::Case;
+use std::path::Path;
+use std::sync::Arc;
+
+/// The demo's numeric recipe, reading `input` with `read`.
+fn recipe(input: &str, read: &str) -> String {
+    format!(
+        r#"recipe "passes" records "members"
+seed 2026
+input "{input}" key member_id{read}
+features tenure_months, visits_per_month, basket_value,
+         share_fresh, share_bulk, share_prepared,
+         online_ratio, coupon_rate
+missing fill median
+transform basket_value log1p
+transform visits_per_month clip 0..0.995
+scale zscore
+kmeans k 2..6 restarts 10 sample 2000 by key
+choose k by silhouette
+save assignments "out/member_segments.csv"
+save profiles "out/segment_profiles.csv"
+save centroids "out/segment_centroids.csv"
+save model "out/segment_model.json"
+save scoring "out/segment_scoring.sql"
+save report "out/segment_report.html"
+"#
+    )
+}
+
+fn fixture(name: &str) -> std::path::PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/data/parquet")
+        .join(name)
+}
+
+/// A case with the demo's CSV and its Parquet copies.
+fn case() -> Case {
+    let case = Case::demo();
+    case.copy(&fixture("coop_members.parquet"), "data/members.parquet");
+    for p in 0..4 {
+        let part = format!("part-{p:05}.parquet");
+        case.copy(
+            &fixture("coop_members_parts").join(&part),
+            &format!("data/members_parts/{part}"),
+        );
+    }
+    case
+}
+
+/// Lines of a file, sorted (assignments come in the input's order in
+/// passes, in key order read whole with `by key`).
+fn sorted_lines(text: &str) -> Vec<String> {
+    let mut lines: Vec<String> = text.lines().map(str::to_string).collect();
+    lines.sort();
+    lines
+}
+
+/// The columns of a profiles table every record decides: segment, label,
+/// size, share and the means.
+fn sizes_and_means(text: &str) -> Vec<Vec<String>> {
+    let rows: Vec<Vec<String>> = text
+        .lines()
+        .map(|l| l.split(',').map(str::to_string).collect())
+        .collect();
+    let keep: Vec<usize> = (rows[0].iter().enumerate())
+        .filter(|(_, h)| {
+            ["segment", "label", "size", "share"].contains(&h.as_str()) || h.ends_with("_mean")
+        })
+        .map(|(i, _)| i)
+        .collect();
+    rows.iter()
+        .map(|r| keep.iter().map(|&i| r[i].clone()).collect())
+        .collect()
+}
+
+#[test]
+fn read_in_passes_the_segments_are_those_read_whole() {
+    let case = case();
+    case.write("whole.assort", &recipe("data/coop_members.csv", ""));
+    case.write(
+        "passes.assort",
+        &recipe("data/members.parquet", " read passes"),
+    );
+    case.run("whole.assort").ok();
+    let whole = |f: &str| case.read(&format!("out/{f}"));
+    let (assigned, centres, profiles, model) = (
+        whole("member_segments.csv"),
+        whole("segment_centroids.csv"),
+        whole("segment_profiles.csv"),
+        whole("segment_model.json"),
+    );
+    case.run("passes.assort")
+        .ok()
+        .stdout_has("the records were read in passes");
+    let passes = |f: &str| case.read(&format!("out/{f}"));
+    assert_eq!(
+        sorted_lines(&passes("member_segments.csv")),
+        sorted_lines(&assigned)
+    );
+    assert_eq!(passes("segment_centroids.csv"), centres);
+    assert_eq!(
+        sizes_and_means(&passes("segment_profiles.csv")),
+        sizes_and_means(&profiles)
+    );
+    // The model less its drift reference (the sample's, in passes) and
+    // the input's name and digest.
+    let scoring_part = |m: &str| -> serde_json::Value {
+        let mut v: serde_json::Value = serde_json::from_str(m).unwrap();
+        let o = v.as_object_mut().unwrap();
+        o.remove("drift");
+        o["provenance"].as_object_mut().unwrap().remove("input");
+        o["provenance"]
+            .as_object_mut()
+            .unwrap()
+            .remove("input_sha256");
+        v
+    };
+    assert_eq!(
+        scoring_part(&passes("segment_model.json")),
+        scoring_part(&model),
+        "the parameters, centres and segments' means to the last digit"
+    );
+    assert_eq!(passes("member_segments.csv").lines().count(), 6_001);
+}
+
+#[test]
+fn a_folder_of_parts_writes_what_the_single_file_writes() {
+    let case = case();
+    case.write(
+        "one.assort",
+        &recipe("data/members.parquet", " read passes"),
+    );
+    case.write(
+        "parts.assort",
+        &recipe("data/members_parts", " read passes"),
+    );
+    case.run("one.assort").ok();
+    let one = case.outputs::<&str>(&[]);
+    // The input's digest, as the model records it.
+    let digest = || {
+        let model = case.read("out/segment_model.json");
+        let at = model.find("\"input_sha256\": \"").unwrap() + 17;
+        model[at..at + 64].to_string()
+    };
+    let one_digest = digest();
+    case.run("parts.assort").ok();
+    let parts_digest = digest();
+    // The recipes differ in the input's name, so their digests too.
+    let recipe_digest = |name: &str| {
+        use sha2::Digest;
+        assort::text::hex(&sha2::Sha256::digest(case.read(name).as_bytes()))
+    };
+    let parts = case.outputs(&[
+        ("data/members_parts", "data/members.parquet"),
+        // The scoring SQL's table, named after the input.
+        ("\"members_parts\"", "\"members\""),
+        (parts_digest.as_str(), one_digest.as_str()),
+        (
+            recipe_digest("parts.assort").as_str(),
+            recipe_digest("one.assort").as_str(),
+        ),
+    ]);
+    assert_eq!(one.len(), parts.len());
+    for ((name, a), (_, b)) in one.iter().zip(&parts) {
+        assert!(a == b, "{name} differs");
+    }
+}
+
+#[test]
+fn what_reading_in_passes_does_not_take_is_refused_at_its_statement() {
+    let case = case();
+    let with = |extra: &str, input: &str| {
+        case.write(
+            "r.assort",
+            &format!("{}{extra}\n", recipe(input, " read passes")),
+        );
+        case.assort(&["check", "r.assort"], &[])
+    };
+    with("categories home_branch", "data/members.parquet")
+        .fails()
+        .stderr_has("`categories` (text columns) is not available with `read passes`");
+    with("tally spend_12m", "data/members.parquet")
+        .fails()
+        .stderr_has("`tally` is not available with `read passes`");
+    with("", "data/coop_members.csv")
+        .fails()
+        .stderr_has("reading in passes takes a Parquet file or a folder of Parquet parts");
+    case.write(
+        "r.assort",
+        &recipe("data/members.parquet", " read passes")
+            .replace("sample 2000 by key", "sample 2000"),
+    );
+    case.assort(&["check", "r.assort"], &[])
+        .fails()
+        .stderr_has("`read passes` is not available with `kmeans` without `sample N by key`");
+    case.write(
+        "r.assort",
+        &recipe("data/members.parquet", " read sometimes"),
+    );
+    case.assort(&["check", "r.assort"], &[])
+        .fails()
+        .stderr_has("`whole` or `passes`");
+    with("", "data/members.parquet").ok();
+}
+
+/// A Parquet input of `parts` files with a text key `member_id` and two
+/// features given as text (`None` a null), written in row groups of 1,000.
+fn write_input(
+    case: &Case,
+    folder: &str,
+    keys: &[Option<String>],
+    x: &[String],
+    y: &[String],
+    parts: usize,
+) {
+    let dir = case.path(folder);
+    std::fs::create_dir_all(&dir).unwrap();
+    let per = keys.len().div_ceil(parts);
+    for p in 0..parts {
+        let rows = (p * per)..((p + 1) * per).min(keys.len());
+        let batch = RecordBatch::try_from_iter(vec![
+            (
+                "member_id",
+                Arc::new(StringArray::from(keys[rows.clone()].to_vec())) as ArrayRef,
+            ),
+            (
+                "x",
+                Arc::new(StringArray::from_iter_values(x[rows.clone()].iter())) as ArrayRef,
+            ),
+            (
+                "y",
+                Arc::new(StringArray::from_iter_values(y[rows.clone()].iter())) as ArrayRef,
+            ),
+        ])
+        .unwrap();
+        let props = parquet::file::properties::WriterProperties::builder()
+            .set_max_row_group_row_count(Some(1_000))
+            .build();
+        let file = std::fs::File::create(dir.join(format!("part-{p}.parquet"))).unwrap();
+        let mut w =
+            parquet::arrow::ArrowWriter::try_new(file, batch.schema(), Some(props)).unwrap();
+        w.write(&batch).unwrap();
+        w.close().unwrap();
+    }
+}
+
+#[test]
+fn bad_records_stop_the_run_at_their_line_and_nothing_is_written() {
+    let case = Case::empty();
+    let n = 6_000;
+    let keys: Vec<Option<String>> = (0..n).map(|i| Some(format!("M{i:05}"))).collect();
+    let x: Vec<String> = (0..n).map(|i| format!("{}", (i * 37) % 101)).collect();
+    let y: Vec<String> = (0..n).map(|i| format!("{}", (i * 53) % 89)).collect();
+    let recipe = r#"recipe "bad"
+input "data/m" key member_id read passes
+features x, y
+kmeans k 2..3 sample 1000 by key
+save assignments "out/a.csv"
+save report "out/r.html"
+"#;
+    case.write("r.assort", recipe);
+    write_input(&case, "data/m", &keys, &x, &y, 3);
+    case.run("r.assort").ok();
+    let before = case.read("out/a.csv");
+    assert_eq!(before.lines().count(), n + 1);
+
+    // `twice` at record 4,500 (line 4,502), past the check's sample, in
+    // the last part.
+    let mut bad_y = y.clone();
+    bad_y[4_500] = "twice".into();
+    std::fs::remove_dir_all(case.path("data/m")).unwrap();
+    write_input(&case, "data/m", &keys, &x, &bad_y, 3);
+    case.run("r.assort")
+        .fails()
+        .stderr_has("`data/m` line 4502, column 3 (`y`)")
+        .stderr_has("`twice`");
+    assert_eq!(case.read("out/a.csv"), before, "earlier outputs intact");
+
+    // A key again, 3,000 records on, in another part.
+    let mut again = keys.clone();
+    again[5_000] = Some("M02000".into());
+    std::fs::remove_dir_all(case.path("data/m")).unwrap();
+    write_input(&case, "data/m", &again, &x, &y, 3);
+    case.run("r.assort")
+        .fails()
+        .stderr_has("key `M02000` appears again (first on line 2002)");
+    assert_eq!(case.read("out/a.csv"), before);
+
+    // A blank key.
+    let mut blank = keys.clone();
+    blank[3_210] = None;
+    std::fs::remove_dir_all(case.path("data/m")).unwrap();
+    write_input(&case, "data/m", &blank, &x, &y, 3);
+    case.run("r.assort")
+        .fails()
+        .stderr_has("line 3212")
+        .stderr_has("the key is blank");
+    assert_eq!(case.read("out/a.csv"), before);
+    let left: Vec<String> = std::fs::read_dir(case.path("out"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| n.contains("assort"))
+        .collect();
+    assert!(
+        left.is_empty(),
+        "no staged or temporary file is left: {left:?}"
+    );
+}
