@@ -355,10 +355,17 @@ pub fn each_batch<E: From<ReadError>>(
 fn numbers(a: &ArrayRef, out: &mut Vec<Option<f64>>) -> Result<(), (usize, String)> {
     use DataType as T;
     let start = out.len();
+    // Without nulls the values are one slice, copied without a look at
+    // each value's validity (the common case, and a fifth of a streamed
+    // round when done value by value).
     macro_rules! primitive {
-        ($t:ty) => {
-            out.extend(a.as_primitive::<$t>().iter().map(|v| v.map(|v| v as f64)))
-        };
+        ($t:ty) => {{
+            let p = a.as_primitive::<$t>();
+            match p.null_count() {
+                0 => out.extend(p.values().iter().map(|&v| Some(v as f64))),
+                _ => out.extend(p.iter().map(|v| v.map(|v| v as f64))),
+            }
+        }};
     }
     match a.data_type() {
         T::Int8 => primitive!(Int8Type),
@@ -370,7 +377,7 @@ fn numbers(a: &ArrayRef, out: &mut Vec<Option<f64>>) -> Result<(), (usize, Strin
         T::UInt32 => primitive!(UInt32Type),
         T::UInt64 => primitive!(UInt64Type),
         T::Float32 => primitive!(Float32Type),
-        T::Float64 => out.extend(a.as_primitive::<Float64Type>().iter()),
+        T::Float64 => primitive!(Float64Type),
         T::Decimal128(_, scale) => {
             let scale = *scale;
             out.extend(

@@ -263,7 +263,7 @@ fn look(plan: &Plan, input: &Input, size: usize) -> Result<Look, RunError> {
             |look, first, keys, values| {
                 for (i, key) in keys.iter().enumerate() {
                     let record = first + i;
-                    let key = key.as_deref().ok_or(PassError::NoKey {
+                    let key = key.as_deref().ok_or_else(|| PassError::NoKey {
                         shown: String::new(),
                         record,
                     })?;

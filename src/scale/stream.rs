@@ -319,7 +319,9 @@ impl Passes {
             let Some(x) = column[i].or(fp.fill) else {
                 return Ok(false);
             };
-            row[f] = crate::run::model::prepared_value(fp, x).ok_or(PassError::Domain {
+            // The error is built only when it happens: a message per value
+            // would cost more than the rest of the round.
+            row[f] = crate::run::model::prepared_value(fp, x).ok_or_else(|| PassError::Domain {
                 shown: self.shown.clone(),
                 record: first + i,
                 feature: f,
@@ -338,7 +340,7 @@ impl Passes {
             || Draw::new(size),
             |draw: &mut Draw, first, keys, values| {
                 for (i, key) in keys.iter().enumerate() {
-                    let key = key.as_deref().ok_or(PassError::NoKey {
+                    let key = key.as_deref().ok_or_else(|| PassError::NoKey {
                         shown: self.shown.clone(),
                         record: first + i,
                     })?;
