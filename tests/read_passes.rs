@@ -25,6 +25,18 @@ use std::sync::Arc;
 
 /// The demo's numeric recipe, reading `input` with `read`.
 fn recipe(input: &str, read: &str) -> String {
+    recipe_with(
+        input,
+        read,
+        "missing fill median
+transform basket_value log1p
+transform visits_per_month clip 0..0.995
+scale zscore",
+    )
+}
+
+/// The demo's numeric recipe with its preparation `prepare`.
+fn recipe_with(input: &str, read: &str, prepare: &str) -> String {
     format!(
         r#"recipe "passes" records "members"
 seed 2026
@@ -32,10 +44,7 @@ input "{input}" key member_id{read}
 features tenure_months, visits_per_month, basket_value,
          share_fresh, share_bulk, share_prepared,
          online_ratio, coupon_rate
-missing fill median
-transform basket_value log1p
-transform visits_per_month clip 0..0.995
-scale zscore
+{prepare}
 kmeans k 2..6 restarts 10 sample 2000 by key
 choose k by silhouette
 save assignments "out/member_segments.csv"
@@ -96,6 +105,32 @@ fn sizes_and_means(text: &str) -> Vec<Vec<String>> {
 
 #[test]
 fn read_in_passes_the_segments_are_those_read_whole() {
+    assert_eq!(same_as_read_whole(recipe), 6_000);
+}
+
+/// The other preparations: records dropped for a gap, fills by mean and
+/// by a value, clipping at both ends, the square root, and robust and
+/// range scaling (order statistics and ends rather than sums).
+#[test]
+fn other_preparations_in_passes_are_those_read_whole() {
+    for prepare in [
+        "missing fill mean\nmissing drop for online_ratio\nmissing fill 0.1 for coupon_rate\n\
+         transform share_bulk clip 0.01..0.99\nscale robust",
+        "missing fill median\nmissing drop for coupon_rate\n\
+         transform basket_value sqrt\ntransform tenure_months clip 0.05..1\nscale range",
+    ] {
+        let kept = same_as_read_whole(|input, read| recipe_with(input, read, prepare));
+        assert!(
+            kept < 6_000,
+            "the records with a gap are left out: {kept} kept"
+        );
+    }
+}
+
+/// The recipe `recipe(input, read)` in passes from Parquet against read
+/// whole from the CSV.
+/// Returns the records segmented.
+fn same_as_read_whole(recipe: impl Fn(&str, &str) -> String) -> usize {
     let case = case();
     case.write("whole.assort", &recipe("data/coop_members.csv", ""));
     case.write(
@@ -141,7 +176,9 @@ fn read_in_passes_the_segments_are_those_read_whole() {
         scoring_part(&model),
         "the parameters, centres and segments' means to the last digit"
     );
-    assert_eq!(passes("member_segments.csv").lines().count(), 6_001);
+    let kept = assigned.lines().count() - 1;
+    assert_eq!(passes("member_segments.csv").lines().count() - 1, kept);
+    kept
 }
 
 #[test]
@@ -222,6 +259,31 @@ fn what_reading_in_passes_does_not_take_is_refused_at_its_statement() {
         .fails()
         .stderr_has("`whole` or `passes`");
     with("", "data/members.parquet").ok();
+}
+
+/// A value the transform cannot take (`log` of a zero share) stops the
+/// run at the record the same recipe read whole stops at.
+#[test]
+fn a_value_outside_the_transform_is_located_as_read_whole() {
+    let case = case();
+    let prepare = "missing fill median\ntransform share_fresh log";
+    case.write(
+        "whole.assort",
+        &recipe_with("data/coop_members.csv", "", prepare),
+    );
+    case.write(
+        "passes.assort",
+        &recipe_with("data/members.parquet", " read passes", prepare),
+    );
+    let place = |run: common::case::Run| {
+        let text = common::case::unwrapped(&run.stderr());
+        let at = text.find(" line ").expect("a line in the message");
+        text[at..].split(')').next().unwrap().to_string()
+    };
+    let whole = place(case.run("whole.assort").fails());
+    let passes = place(case.run("passes.assort").fails());
+    assert!(whole.contains("(`share_fresh`"), "{whole}");
+    assert_eq!(passes, whole);
 }
 
 /// A Parquet input of `parts` files with a text key `member_id` and two

@@ -588,8 +588,8 @@ fn ordered(
         }
         let p = &params[f];
         let (lo, hi) = (
-            reshaped(input, look, p, f, ends[f].0)?,
-            reshaped(input, look, p, f, ends[f].1)?,
+            reshaped(plan, input, p, f, ends[f].0)?,
+            reshaped(plan, input, p, f, ends[f].1)?,
         );
         let (centre, divisor) = match plan.scale {
             Scale::Robust => {
@@ -661,50 +661,57 @@ fn reshape(p: &FeatureParams, x: f64) -> Option<f64> {
 
 /// [`reshape`] of one end of a feature's filled values, or the error of
 /// the first kept record (in the input's order) whose value the transform
-/// cannot take: the smallest value is tried, as every transform's domain
-/// is bounded below.
+/// cannot take, found by one more pass: the ends are tried, as every
+/// transform's domain is bounded below.
 fn reshaped(
+    plan: &Plan,
     input: &Input,
-    look: &Look,
     p: &FeatureParams,
     f: usize,
     x: f64,
 ) -> Result<f64, RunError> {
+    let Err((transform, help)) = reshape_checked(p, x) else {
+        return Ok(reshape(p, x).unwrap_or(f64::NAN));
+    };
+    let (record, value) = first_failing(plan, input, p, f).unwrap_or((0, x));
+    Err(RunError::TransformDomain {
+        place: input.place(input.at[f], record),
+        transform,
+        value,
+        help,
+    })
+}
+
+/// [`reshape`] with the transform's words when it fails.
+fn reshape_checked(p: &FeatureParams, x: f64) -> Result<f64, (&'static str, &'static str)> {
     let x = match p.clip {
         Some((a, b)) => x.clamp(a, b),
         None => x,
     };
-    super::prepare::transform(p.transform, x).map_err(|(transform, help)| {
-        // The record: the first gap when the fill is what fails, else
-        // the smallest value's; both are found by the look or one pass.
-        let record = match p.fill.filter(|&v| v == x) {
-            Some(_) => look.first_gap[f].unwrap_or(0),
-            None => first_at_most(input, f, x).unwrap_or(0),
-        };
-        RunError::TransformDomain {
-            place: input.place(input.at[f], record),
-            transform,
-            value: x,
-            help,
-        }
-    })
+    super::prepare::transform(p.transform, x)
 }
 
-/// The first record whose feature `f` is at most `x`, in one pass.
-fn first_at_most(input: &Input, f: usize, x: f64) -> Option<usize> {
+/// The first kept record whose filled value of feature `f` the transform
+/// cannot take, and that value, in one pass.
+fn first_failing(plan: &Plan, input: &Input, p: &FeatureParams, f: usize) -> Option<(usize, f64)> {
     input
         .passes
         .pass(
             false,
             || None,
-            |first_found: &mut Option<usize>, first, _, values| {
-                if let Some(i) = values[f].iter().position(|v| v.is_some_and(|v| v <= x)) {
-                    *first_found = Some(first_found.map_or(first + i, |r: usize| r.min(first + i)));
+            |found: &mut Option<(usize, f64)>, first, _, values| {
+                let n = values.first().map_or(0, |c| c.len());
+                let bad = (0..n).filter(|&i| kept(plan, values, i)).find_map(|i| {
+                    let x = values[f][i].or(p.fill)?;
+                    reshape_checked(p, x).is_err().then_some((first + i, x))
+                });
+                if let Some(b) = bad {
+                    *found = Some(found.map_or(b, |a| if a.0 <= b.0 { a } else { b }));
                 }
                 Ok(())
             },
             |a, b| match (a, b) {
-                (Some(a), Some(b)) => Some(a.min(b)),
+                (Some(a), Some(b)) => Some(if a.0 <= b.0 { a } else { b }),
                 (a, b) => a.or(b),
             },
         )
