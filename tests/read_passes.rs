@@ -193,6 +193,11 @@ fn a_folder_of_parts_writes_what_the_single_file_writes() {
         &recipe("data/members_parts", " read passes"),
     );
     case.run("one.assort").ok();
+    // A rerun in passes is verified against its record, the streamed
+    // assignments' digest among the outputs'.
+    case.assort(&["verify", "one.assort"], &[])
+        .ok()
+        .stdout_has("matches its run record");
     let one = case.outputs::<&str>(&[]);
     // The input's digest, as the model records it.
     let digest = || {

@@ -879,10 +879,22 @@ pub(super) fn measure(
 ) -> Result<Measured, RunError> {
     let input = Input::open(plan)?;
     let size = km.sample.unwrap_or(usize::MAX);
+    // The passes before the fit, as steps of a progress display.
+    let step = |done: usize| {
+        progress(Step {
+            what: "reading every record: the look, the keys, the parameters",
+            done,
+            total: 3,
+        })
+    };
+    step(0);
     let mut look = look(plan, &input, size)?;
+    step(1);
     keys_once(plan, &input, std::mem::take(&mut look.ranks))?;
     super::go_on("after reading the input")?;
+    step(2);
     let params = parameters(plan, &input, &look)?;
+    step(3);
     let d = plan.features.len();
     let drawn = std::mem::replace(&mut look.draw, Draw::new(0)).finish();
     let table = sample_table(&input, &drawn, d);
