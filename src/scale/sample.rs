@@ -26,7 +26,32 @@ pub enum Dialect {
 
 /// A record's rank: the digest of `seed:key`, in lower-case hexadecimal.
 pub fn rank(seed: u64, key: &str) -> String {
-    hex(&Sha256::digest(format!("{seed}:{key}").as_bytes()))
+    hex(&digest(seed, key))
+}
+
+/// The SHA-256 digest of `seed:key`, its bytes: the seed's part hashed
+/// without building the text (a run in passes digests every key).
+pub fn digest(seed: u64, key: &str) -> [u8; 32] {
+    let mut h = Sha256::new();
+    let mut prefix = itoa_u64(seed);
+    prefix.push(b':');
+    h.update(&prefix);
+    h.update(key.as_bytes());
+    h.finalize().into()
+}
+
+/// `n` in decimal digits.
+fn itoa_u64(mut n: u64) -> Vec<u8> {
+    let mut digits = Vec::with_capacity(21);
+    loop {
+        digits.push(b'0' + (n % 10) as u8);
+        n /= 10;
+        if n == 0 {
+            break;
+        }
+    }
+    digits.reverse();
+    digits
 }
 
 /// The rank in SQL, for the key expression `key` (any type: read as its
@@ -76,7 +101,7 @@ pub fn drawn_places(keys: &[&str], seed: u64, size: usize) -> Vec<usize> {
     let mut ranked: Vec<([u8; 32], usize)> = keys
         .par_iter()
         .enumerate()
-        .map(|(i, k)| (Sha256::digest(format!("{seed}:{k}").as_bytes()).into(), i))
+        .map(|(i, k)| (digest(seed, k), i))
         .collect();
     // The digest's bytes order as its lower-case hex does; equal digests
     // (equal keys) order by key, then place.
@@ -102,6 +127,11 @@ mod tests {
             "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
         );
         assert_eq!(rank(7, "M1"), hex(&Sha256::digest(b"7:M1")));
+        assert_eq!(
+            digest(18_446_744_073_709_551_615, "é"),
+            <[u8; 32]>::from(Sha256::digest("18446744073709551615:é".as_bytes()))
+        );
+        assert_eq!(digest(0, ""), <[u8; 32]>::from(Sha256::digest(b"0:")));
         assert_ne!(rank(7, "M1"), rank(8, "M1"));
         assert_eq!(rank(7, "M1").len(), 64);
     }

@@ -21,7 +21,6 @@ use super::drive::Rounds;
 use crate::engine::exact::{RoundSums, Shifts};
 use crate::parquet::{self as pq, As, Column, Group, ReadError};
 use crate::run::prepare::FeatureParams;
-use sha2::{Digest, Sha256};
 use std::path::Path;
 
 /// The workers of a pass: rayon's thread count (`RAYON_NUM_THREADS`, else
@@ -358,7 +357,7 @@ impl Passes {
 
 /// A record's rank: the SHA-256 digest of `seed:key` ([`super::sample`]).
 pub fn rank_of(seed: u64, key: &str) -> [u8; 32] {
-    Sha256::digest(format!("{seed}:{key}").as_bytes()).into()
+    super::sample::digest(seed, key)
 }
 
 /// The sample being drawn by one worker: at most two samples' worth of
