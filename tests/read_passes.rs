@@ -5,7 +5,11 @@
 //!   transform, clipping at a quantile, z-scores) read in passes give the
 //!   same segments as the same recipe over the CSV read whole: every
 //!   member's segment, the centres, the model's parameters and centres to
-//!   the last digit, and each segment's size, share and means.
+//!   the last digit, each segment's size, share and means, and the
+//!   `tally` columns' counts, means, totals and shares. So do the other
+//!   preparations (drops, fills by mean and value, clipping, sqrt, robust
+//!   and range scaling), and a value the transform cannot take stops both
+//!   at the same line.
 //! - The same members as a folder of four parts give every output byte
 //!   for byte as the single file, apart from the input's name and digest.
 //! - What reading in passes does not take is refused by the check at its
@@ -45,10 +49,12 @@ features tenure_months, visits_per_month, basket_value,
          share_fresh, share_bulk, share_prepared,
          online_ratio, coupon_rate
 {prepare}
+tally spend_12m, contactable
 kmeans k 2..6 restarts 10 sample 2000 by key
 choose k by silhouette
 save assignments "out/member_segments.csv"
 save profiles "out/segment_profiles.csv"
+save profiles "out/segment_profiles.json"
 save centroids "out/segment_centroids.csv"
 save model "out/segment_model.json"
 save scoring "out/segment_scoring.sql"
@@ -145,6 +151,7 @@ fn same_as_read_whole(recipe: impl Fn(&str, &str) -> String) -> usize {
         whole("segment_profiles.csv"),
         whole("segment_model.json"),
     );
+    let profiles_json = whole("segment_profiles.json");
     case.run("passes.assort")
         .ok()
         .stdout_has("the records were read in passes");
@@ -176,6 +183,31 @@ fn same_as_read_whole(recipe: impl Fn(&str, &str) -> String) -> usize {
         scoring_part(&model),
         "the parameters, centres and segments' means to the last digit"
     );
+    // The tallies' counts, means, totals and shares over every record.
+    let tallied = |json: &str| -> Vec<serde_json::Value> {
+        let v: serde_json::Value = serde_json::from_str(json).unwrap();
+        let mut out = Vec::new();
+        for column in v["values"].as_array().unwrap() {
+            let groups = std::iter::once(&column["overall"])
+                .chain(column["segments"].as_array().unwrap().iter());
+            for g in groups {
+                let mut g = g.clone();
+                let o = g.as_object_mut().unwrap();
+                for sampled in ["median", "q1", "q3"] {
+                    o.remove(sampled);
+                }
+                out.push(g);
+            }
+        }
+        out
+    };
+    let (here, there) = (
+        tallied(&passes("segment_profiles.json")),
+        tallied(&profiles_json),
+    );
+    // Two columns, each over all records and at least two segments.
+    assert!(here.len() >= 2 * 3, "{here:?}");
+    assert_eq!(here, there);
     let kept = assigned.lines().count() - 1;
     assert_eq!(passes("member_segments.csv").lines().count() - 1, kept);
     kept
@@ -242,9 +274,12 @@ fn what_reading_in_passes_does_not_take_is_refused_at_its_statement() {
     with("categories home_branch", "data/members.parquet")
         .fails()
         .stderr_has("`categories` (text columns) is not available with `read passes`");
-    with("tally spend_12m", "data/members.parquet")
-        .fails()
-        .stderr_has("`tally` is not available with `read passes`");
+    with(
+        "compare with \"data/coop_members.csv\"",
+        "data/members.parquet",
+    )
+    .fails()
+    .stderr_has("`compare` is not available with `read passes`");
     with("", "data/coop_members.csv")
         .fails()
         .stderr_has("reading in passes takes a Parquet file or a folder of Parquet parts");

@@ -34,7 +34,6 @@ impl Checker {
                 StatementKind::Categories { .. } => Some("`categories` (text columns)"),
                 StatementKind::Ordered { .. } => Some("`ordered` (a category with an order)"),
                 StatementKind::Flags { .. } => Some("`flags` (columns of two values)"),
-                StatementKind::Tally { .. } => Some("`tally`"),
                 StatementKind::Compare { .. } => Some("`compare`"),
                 StatementKind::Validate { .. } => Some("`validate`"),
                 StatementKind::Previous { .. } => Some("`previous`"),
@@ -48,7 +47,7 @@ impl Checker {
                     what: what.into(),
                     method: "`read passes`".into(),
                     span: s.span,
-                    help: "reading in passes takes numeric features and writes the assignments, profiles, centres, model, SQL, rules and report, for now; read the input whole (`read whole`) for this".into(),
+                    help: "reading in passes takes numeric features and `tally` columns and writes the assignments, profiles, centres, model, SQL, rules and report, for now; read the input whole (`read whole`) for this".into(),
                 });
             }
         }

@@ -515,7 +515,13 @@ fn conclude(
     let mut notes = profile::notes(&fitted, &judged, &profiles, kept);
     notes.extend(in_passes.as_ref().map(|p| passes_note(p, read.records)));
     notes.extend(data_notes(plan, &prepared, table));
-    let values = tallies(plan, &prepared, table, &numbered.fit);
+    let mut values = tallies(plan, &prepared, table, &numbered.fit);
+    if let Some(p) = &in_passes {
+        // Over every record, as the profiles above.
+        for (j, v) in values.iter_mut().enumerate() {
+            values::exact(v, &p.tally_sums(j));
+        }
+    }
     clock.lap("profile");
     let against = comparison::against(plan, &assignments, &numbered, last)?;
     let fit = &numbered.fit;
@@ -567,7 +573,7 @@ fn conclude(
 /// What a run in passes measured where, in plain words.
 fn passes_note(p: &passes::InPasses, records: usize) -> String {
     format!(
-        "the records were read in passes (`read passes`), never all in memory: the preparation's parameters, the refinement, and each segment's size, share and means are over every one of the {} records, exactly; the criteria for k, the profiles' medians, quartiles and standardised differences, the rules and the evidence are measured on the sample of {} drawn by key",
+        "the records were read in passes (`read passes`), never all in memory: the preparation's parameters, the refinement, and each segment's size, share, means and tallies are over every one of the {} records, exactly; the criteria for k, the medians, quartiles and standardised differences, the rules and the evidence are measured on the sample of {} drawn by key",
         text::thousands(records),
         text::thousands(p.sample),
     )
@@ -585,8 +591,8 @@ fn tallies(
         plan.features.len(),
         &plan.tally,
         (&prepared.kept, prepared.weights.as_deref()),
-        &fit.labels,
-        fit.k,
+        (&fit.labels, fit.k),
+        prepare::exact_sums(plan),
     )
 }
 

@@ -8,9 +8,9 @@
 //!   radix selection): the preparation's parameters (fills, clip bounds,
 //!   z-score mean and standard deviation, robust median and spread,
 //!   range), so they are those of the same recipe read whole; the
-//!   refinement's rounds; each segment's size, share and means; records
-//!   left out; and the assignments, written by one more pass in the
-//!   input's order.
+//!   refinement's rounds; each segment's size, share and means, and its
+//!   `tally` columns' counts, means, totals and shares; records left out;
+//!   and the assignments, written by one more pass in the input's order.
 //! - **The sample** (the same records `sample N by key` draws): the
 //!   restarts; the criteria that judge k (within-SS, silhouette,
 //!   Calinski-Harabasz, Davies-Bouldin, and the evidence); medians,
@@ -41,7 +41,7 @@ pub struct Input {
     shown: String,
     names: Vec<String>,
     key_at: usize,
-    /// Each feature's position in the schema.
+    /// Each feature's position in the schema, then each `tally` column's.
     at: Vec<usize>,
 }
 
@@ -66,8 +66,10 @@ impl Input {
                 })
         };
         let key_at = position(&plan.input.key)?;
-        let at = (plan.features.iter())
-            .map(|f| position(&f.column))
+        // The features, then the `tally` columns: read as numbers alike.
+        let at = (plan.features.iter().map(|f| f.column.as_str()))
+            .chain(plan.tally.iter().map(String::as_str))
+            .map(position)
             .collect::<Result<Vec<_>, _>>()?;
         let passes = Passes::open(&plan.input.resolved, &shown, Some(key_at), &at)
             .map_err(|e| failed(&schema.names, &shown, key_at)(e))?;
@@ -253,7 +255,8 @@ fn kept(plan: &Plan, values: &[&[Option<f64>]], i: usize) -> bool {
 /// The first pass: counts, gaps, ranges, every record's rank and the
 /// sample of `size` kept records.
 fn look(plan: &Plan, input: &Input, size: usize) -> Result<Look, RunError> {
-    let d = plan.features.len();
+    // Every numeric column read: the features, then the `tally` columns.
+    let d = plan.features.len() + plan.tally.len();
     let seed = plan.seed;
     input
         .passes
@@ -770,6 +773,8 @@ pub struct SegmentSums {
     pub values: Vec<Sum>,
     /// k × d gaps filled.
     pub filled: Vec<u64>,
+    /// k × t sums of the `tally` columns' known values.
+    pub tallies: Vec<Sum>,
 }
 
 fn segment_sums(
@@ -791,10 +796,21 @@ fn segment_sums(
             start_values.push(Sum::new(bound).map_err(|e| out_of_range(&p.column, e))?);
         }
     }
+    let t = plan.tally.len();
+    let mut tallies = Vec::with_capacity(k * t);
+    for _ in 0..k {
+        for (j, name) in plan.tally.iter().enumerate() {
+            let bound = look.lowest[d + j].abs().max(look.highest[d + j].abs());
+            // No value known: nothing is summed, any bound does.
+            let bound = if bound.is_finite() { bound } else { 0.0 };
+            tallies.push(Sum::new(bound).map_err(|e| out_of_range(name, e))?);
+        }
+    }
     let start = SegmentSums {
         counts: vec![0; k],
         values: start_values,
         filled: vec![0; k * d],
+        tallies,
     };
     input
         .passes
@@ -821,6 +837,11 @@ fn segment_sums(
                             }
                         }
                     }
+                    for j in 0..t {
+                        if let Some(x) = values[d + j][i] {
+                            sums.tallies[s * t + j].add(x);
+                        }
+                    }
                 }
                 Ok(())
             },
@@ -837,6 +858,10 @@ fn segment_sums(
                     .iter_mut()
                     .zip(&b.filled)
                     .for_each(|(a, b)| *a += b);
+                a.tallies
+                    .iter_mut()
+                    .zip(&b.tallies)
+                    .for_each(|(a, b)| a.merge(b));
                 a
             },
         )
@@ -856,6 +881,9 @@ pub struct InPasses {
     pub sample: usize,
     /// The chosen segments' numbers, in the order of `centres`.
     pub numbers: Vec<usize>,
+    /// k × t sums of the `tally` columns' known values, segment after
+    /// segment.
+    tallies: Vec<Sum>,
 }
 
 /// What the run over the sample needs from the passes.
@@ -897,7 +925,7 @@ pub(super) fn measure(
     step(3);
     let d = plan.features.len();
     let drawn = std::mem::replace(&mut look.draw, Draw::new(0)).finish();
-    let table = sample_table(&input, &drawn, d);
+    let table = sample_table(&input, &drawn, d + plan.tally.len());
     let prepared = super::prepare::prepare_given(plan, &table, params.clone())?;
     let shifts = shifts(&params, &look)?;
     let mut engine = Streamed {
@@ -950,6 +978,7 @@ impl Measured {
             centres,
             sample: self.table.keys.len(),
             numbers: numbered.numbers.clone(),
+            tallies: sums.tallies,
         })
     }
 
@@ -999,6 +1028,14 @@ pub(super) fn every_record(
 }
 
 impl InPasses {
+    /// Each segment's sum of the `tally` column `j`, in profile order.
+    pub fn tally_sums(&self, j: usize) -> Vec<Sum> {
+        let t = self.tallies.len() / self.numbers.len().max(1);
+        (0..self.numbers.len())
+            .filter_map(|s| self.tallies.get(s * t + j).copied())
+            .collect()
+    }
+
     /// Writes the assignments of every kept record, in the input's order,
     /// as [`crate::output::files::assignments_csv`] writes them, a few row
     /// groups at a time (one per worker, read in parallel, then written in

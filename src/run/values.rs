@@ -7,6 +7,7 @@
 //! members hold if each holds the record's value).
 
 use super::load::Table;
+use crate::engine::exact::Sum;
 use crate::engine::stats;
 use serde::Serialize;
 
@@ -40,13 +41,17 @@ pub struct ValueProfile {
 /// `labels` their segments (0-based, profile order), `k` segments.
 ///
 /// O(n log n) per column (the quartiles sort each group).
+///
+/// `exact` (for `sample ... by key`, unweighted): means, totals and shares
+/// from exact sums ([`exact`]), so that they do not depend on the records'
+/// order and a run in passes gives them to the bit.
 pub fn profiles(
     table: &Table,
     features: usize,
     names: &[String],
     (kept, weights): (&[usize], Option<&[f64]>),
-    labels: &[u32],
-    k: usize,
+    (labels, k): (&[u32], usize),
+    exact: bool,
 ) -> Vec<ValueProfile> {
     let w = crate::engine::weights::Weights::maybe(weights);
     names
@@ -64,13 +69,47 @@ pub fn profiles(
             }
             let grand = all.total();
             let weighted = w.is_weighted();
-            ValueProfile {
+            let mut profile = ValueProfile {
                 column: name.clone(),
                 overall: all.summary(grand, weighted),
                 segments: groups.iter().map(|g| g.summary(grand, weighted)).collect(),
+            };
+            let bound = crate::engine::exact::largest(&all.values);
+            let sums: Option<Vec<Sum>> = (groups.iter())
+                .map(|g| {
+                    let mut sum = Sum::new(bound).ok()?;
+                    g.values.iter().for_each(|&v| sum.add(v));
+                    Some(sum)
+                })
+                .collect();
+            if let (true, Some(sums)) = (exact && !weighted, sums) {
+                self::exact(&mut profile, &sums);
             }
+            profile
         })
         .collect()
+}
+
+/// Replaces a column's counts, means, totals and shares of the total by
+/// those of exact sums, one per segment (`sums`, profile order; the
+/// overall is their sum): the medians and quartiles stay.
+pub fn exact(profile: &mut ValueProfile, sums: &[Sum]) {
+    let mut all = match sums.first() {
+        Some(&first) => first,
+        None => return,
+    };
+    sums.iter().skip(1).for_each(|s| all.merge(s));
+    let grand = all.total();
+    let summarise = |v: &mut ValueSummary, sum: &Sum| {
+        v.known = sum.count() as usize;
+        v.mean = sum.mean();
+        v.total = sum.total();
+        v.share_of_total = (grand != 0.0).then(|| v.total / grand);
+    };
+    summarise(&mut profile.overall, &all);
+    for (v, sum) in profile.segments.iter_mut().zip(sums) {
+        summarise(v, sum);
+    }
 }
 
 /// A group's known values and their records' weights.
