@@ -515,13 +515,7 @@ fn conclude(
     let mut notes = profile::notes(&fitted, &judged, &profiles, kept);
     notes.extend(in_passes.as_ref().map(|p| passes_note(p, read.records)));
     notes.extend(data_notes(plan, &prepared, table));
-    let mut values = tallies(plan, &prepared, table, &numbered.fit);
-    if let Some(p) = &in_passes {
-        // Over every record, as the profiles above.
-        for (j, v) in values.iter_mut().enumerate() {
-            values::exact(v, &p.tally_sums(j));
-        }
-    }
+    let values = tallies(plan, &prepared, table, &numbered.fit, in_passes.as_ref());
     clock.lap("profile");
     let against = comparison::against(plan, &assignments, &numbered, last)?;
     let fit = &numbered.fit;
@@ -579,21 +573,29 @@ fn passes_note(p: &passes::InPasses, records: usize) -> String {
     )
 }
 
-/// The `tally` columns per segment of the chosen segmentation.
+/// The `tally` columns per segment of the chosen segmentation; in passes
+/// their counts, means, totals and shares over every record.
 fn tallies(
     plan: &Plan,
     prepared: &Prepared,
     table: &load::Table,
     fit: &fit::Candidate,
+    in_passes: Option<&passes::InPasses>,
 ) -> Vec<values::ValueProfile> {
-    values::profiles(
+    let mut described = values::profiles(
         table,
         plan.features.len(),
         &plan.tally,
         (&prepared.kept, prepared.weights.as_deref()),
         (&fit.labels, fit.k),
         prepare::exact_sums(plan),
-    )
+    );
+    if let Some(p) = in_passes {
+        for (j, v) in described.iter_mut().enumerate() {
+            values::exact(v, &p.tally_sums(j));
+        }
+    }
+    described
 }
 
 /// Each segment's readable rule, numbered and named as its profile.

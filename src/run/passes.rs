@@ -777,6 +777,63 @@ pub struct SegmentSums {
     pub tallies: Vec<Sum>,
 }
 
+impl SegmentSums {
+    /// Nothing summed yet for `k` segments: each feature's sums bounded by
+    /// its filled values' range, each `tally` column's by its known values'.
+    fn zero(
+        plan: &Plan,
+        params: &[FeatureParams],
+        look: &Look,
+        k: usize,
+    ) -> Result<SegmentSums, RunError> {
+        let d = params.len();
+        let mut values = Vec::with_capacity(k * d);
+        let mut tallies = Vec::with_capacity(k * plan.tally.len());
+        for _ in 0..k {
+            for (f, p) in params.iter().enumerate() {
+                let mut bound = look.lowest[f].abs().max(look.highest[f].abs());
+                if let Some(v) = p.fill.filter(|_| p.filled > 0) {
+                    bound = bound.max(v.abs());
+                }
+                values.push(Sum::new(bound).map_err(|e| out_of_range(&p.column, e))?);
+            }
+            for (j, name) in plan.tally.iter().enumerate() {
+                let bound = look.lowest[d + j].abs().max(look.highest[d + j].abs());
+                // No value known: nothing is summed, any bound does.
+                let bound = if bound.is_finite() { bound } else { 0.0 };
+                tallies.push(Sum::new(bound).map_err(|e| out_of_range(name, e))?);
+            }
+        }
+        Ok(SegmentSums {
+            counts: vec![0; k],
+            values,
+            filled: vec![0; k * d],
+            tallies,
+        })
+    }
+
+    /// Another worker's sums added.
+    fn merge(mut self, b: SegmentSums) -> SegmentSums {
+        self.counts
+            .iter_mut()
+            .zip(&b.counts)
+            .for_each(|(a, b)| *a += b);
+        self.values
+            .iter_mut()
+            .zip(&b.values)
+            .for_each(|(a, b)| a.merge(b));
+        self.filled
+            .iter_mut()
+            .zip(&b.filled)
+            .for_each(|(a, b)| *a += b);
+        self.tallies
+            .iter_mut()
+            .zip(&b.tallies)
+            .for_each(|(a, b)| a.merge(b));
+        self
+    }
+}
+
 fn segment_sums(
     plan: &Plan,
     input: &Input,
@@ -786,32 +843,8 @@ fn segment_sums(
 ) -> Result<SegmentSums, RunError> {
     let d = params.len();
     let k = centres.len() / d.max(1);
-    let mut start_values = Vec::with_capacity(k * d);
-    for _ in 0..k {
-        for (f, p) in params.iter().enumerate() {
-            let mut bound = look.lowest[f].abs().max(look.highest[f].abs());
-            if let Some(v) = p.fill.filter(|_| p.filled > 0) {
-                bound = bound.max(v.abs());
-            }
-            start_values.push(Sum::new(bound).map_err(|e| out_of_range(&p.column, e))?);
-        }
-    }
     let t = plan.tally.len();
-    let mut tallies = Vec::with_capacity(k * t);
-    for _ in 0..k {
-        for (j, name) in plan.tally.iter().enumerate() {
-            let bound = look.lowest[d + j].abs().max(look.highest[d + j].abs());
-            // No value known: nothing is summed, any bound does.
-            let bound = if bound.is_finite() { bound } else { 0.0 };
-            tallies.push(Sum::new(bound).map_err(|e| out_of_range(name, e))?);
-        }
-    }
-    let start = SegmentSums {
-        counts: vec![0; k],
-        values: start_values,
-        filled: vec![0; k * d],
-        tallies,
-    };
+    let start = SegmentSums::zero(plan, params, look, k)?;
     input
         .passes
         .pass(
@@ -845,25 +878,7 @@ fn segment_sums(
                 }
                 Ok(())
             },
-            |mut a, b| {
-                a.counts
-                    .iter_mut()
-                    .zip(&b.counts)
-                    .for_each(|(a, b)| *a += b);
-                a.values
-                    .iter_mut()
-                    .zip(&b.values)
-                    .for_each(|(a, b)| a.merge(b));
-                a.filled
-                    .iter_mut()
-                    .zip(&b.filled)
-                    .for_each(|(a, b)| *a += b);
-                a.tallies
-                    .iter_mut()
-                    .zip(&b.tallies)
-                    .for_each(|(a, b)| a.merge(b));
-                a
-            },
+            SegmentSums::merge,
         )
         .map_err(input.failed())
 }
