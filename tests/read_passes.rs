@@ -326,6 +326,26 @@ fn a_value_outside_the_transform_is_located_as_read_whole() {
     assert_eq!(passes, whole);
 }
 
+/// A staged assignments file a killed run left (another process's) is
+/// removed by the next run's set; the run's own staged file becomes the
+/// output.
+#[test]
+fn a_staged_file_a_killed_run_left_is_removed_by_the_next() {
+    let case = case();
+    case.write("r.assort", &recipe("data/members.parquet", " read passes"));
+    let left = "out/member_segments.csv.4194999.stage-assort";
+    case.write(left, "half of an earlier run's assignments");
+    case.run("r.assort").ok();
+    assert!(!case.path(left).exists(), "the leftover is removed");
+    assert_eq!(case.read("out/member_segments.csv").lines().count(), 6_001);
+    let staged: Vec<String> = std::fs::read_dir(case.path("out"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| n.ends_with("-assort"))
+        .collect();
+    assert!(staged.is_empty(), "{staged:?}");
+}
+
 /// A Parquet input of `parts` files with a text key `member_id` and two
 /// features given as text (`None` a null), written in row groups of 1,000.
 fn write_input(
