@@ -224,7 +224,14 @@ fn a_folder_of_parts_writes_what_the_single_file_writes() {
         "parts.assort",
         &recipe("data/members_parts", " read passes"),
     );
-    case.run("one.assort").ok();
+    // What the run will hold, stated before it reads (from the footers).
+    case.assort(&["run", "--dry-run", "one.assort"], &[])
+        .ok()
+        .stdout_has("read in passes: 6,000 records in")
+        .stdout_has("holding at most about");
+    case.run("one.assort")
+        .ok()
+        .stderr_has("read in passes: 6,000 records in");
     // A rerun in passes is verified against its record, the streamed
     // assignments' digest among the outputs'.
     case.assort(&["verify", "one.assort"], &[])

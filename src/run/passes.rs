@@ -160,7 +160,8 @@ pub fn held(plan: &Plan) -> Result<Held, RunError> {
         crate::plan::MethodPlan::KMeans(km) => km.sample.unwrap_or(records).min(records),
         _ => records,
     };
-    let d = plan.features.len();
+    // The sample holds the `tally` columns beside the features.
+    let d = plan.features.len() + plan.tally.len();
     let workers = rayon::current_num_threads();
     let largest_group = input
         .passes
