@@ -15,6 +15,20 @@ pub struct Place {
     pub name: String,
 }
 
+impl Place {
+    /// Record `record` (0-based) of a file or table `shown` whose columns
+    /// are `names`, at the column `at` (0-based): the record's line is its
+    /// place in the same table written as CSV (the first record is line 2).
+    pub fn of_record(shown: &str, names: &[String], at: usize, record: usize) -> Place {
+        Place {
+            file: shown.to_string(),
+            line: record as u64 + 2,
+            column: at + 1,
+            name: names.get(at).cloned().unwrap_or_default(),
+        }
+    }
+}
+
 impl std::fmt::Display for Place {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         // A table on a connection is described in words that quote its

@@ -321,12 +321,7 @@ fn load_parquet(path: &Path, shown: &str, cols: &Columns<'_>) -> Result<Table, R
         .chain(num_at.iter().enumerate().map(|(f, &a)| (a, as_read(f))))
         .chain(text_at.iter().map(|&a| (a, As::Texts)))
         .collect();
-    let place = |at: usize, record: usize| Place {
-        file: shown.to_string(),
-        line: record as u64 + 2,
-        column: at + 1,
-        name: schema.names.get(at).cloned().unwrap_or_default(),
-    };
+    let place = |at: usize, record: usize| Place::of_record(shown, &schema.names, at, record);
     let mut read: Vec<Column> = wanted
         .par_iter()
         .map(|w| pq::read(path, std::slice::from_ref(w), None).map(|mut c| c.remove(0)))

@@ -84,12 +84,7 @@ impl Input {
 
     /// Record `record` (0-based) at the column at schema position `at`.
     fn place(&self, at: usize, record: usize) -> Place {
-        Place {
-            file: self.shown.clone(),
-            line: record as u64 + 2,
-            column: at + 1,
-            name: self.names.get(at).cloned().unwrap_or_default(),
-        }
+        Place::of_record(&self.shown, &self.names, at, record)
     }
 
     fn failed(&self) -> impl Fn(PassError) -> RunError + '_ {
@@ -105,12 +100,7 @@ fn failed<'a>(
     key_at: usize,
 ) -> impl Fn(PassError) -> RunError + 'a {
     move |e| {
-        let place = |at: usize, record: usize| Place {
-            file: shown.to_string(),
-            line: record as u64 + 2,
-            column: at + 1,
-            name: names.get(at).cloned().unwrap_or_default(),
-        };
+        let place = |at: usize, record: usize| Place::of_record(shown, names, at, record);
         match e {
             PassError::Read { reason, .. } => load::read_error(reason, &place, shown),
             PassError::NoKey { record, .. } => RunError::BlankKey {
@@ -854,9 +844,9 @@ fn segment_sums(
             |sums: &mut SegmentSums, first, _, values| {
                 let mut row = vec![0.0; d];
                 for i in 0..values.first().map_or(0, |c| c.len()) {
-                    if !kept(plan, values, i)
-                        || !input.passes.prepare(params, values, i, first, &mut row)?
-                    {
+                    // A record `missing drop` leaves out has a gap with no
+                    // fill, so preparing it fails: no separate check.
+                    if !input.passes.prepare(params, values, i, first, &mut row)? {
                         continue;
                     }
                     let (s, _, _) = kmeans::nearest_two(&row, centres, d.max(1));
