@@ -25,7 +25,8 @@ mod pg;
 
 use assort::engine::exact::{self, Shifts};
 use assort::scale::drive::{self, InMemory};
-use assort::scale::postgres::{Database, InDatabase, Target};
+use assort::scale::postgres::{Database, Target};
+use assort::scale::sql::{InEngine, SqlEngine};
 use common::{best_of, fit_settings, records, timed};
 use ndarray::Array2;
 use std::io::Write as _;
@@ -122,8 +123,8 @@ fn fits(
     };
     let (here, here_time) =
         timed(|| drive::fit(sample.view(), &settings, shifts, &mut memory).expect("a fit"));
-    let mut engine = InDatabase {
-        db,
+    let mut engine = InEngine {
+        engine: db,
         source: "records".into(),
         features: (0..data.ncols()).map(|j| format!("x{j}")).collect(),
         shifts,

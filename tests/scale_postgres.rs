@@ -20,6 +20,8 @@ mod common;
 
 use assort::engine::exact::{self, RoundSums, Shifts};
 use assort::scale::round::{parse_round, round_query};
+use assort::scale::sample::Dialect;
+use assort::scale::sql::SqlEngine;
 use common::pg::Postgres;
 use ndarray::Array2;
 
@@ -90,7 +92,7 @@ fn round_in(
     settings: &str,
 ) -> RoundSums {
     let features: Vec<String> = (0..d).map(|j| format!("x{j}")).collect();
-    let query = round_query(table, &features, centres, shifts);
+    let query = round_query(table, &features, centres, shifts, Dialect::Postgres);
     let rows = pg.psql(&format!("{settings}{query};")).unwrap();
     let rows: Vec<Vec<String>> = rows
         .iter()
@@ -142,7 +144,13 @@ fn a_round_in_postgresql_sums_exactly_as_in_memory_in_one_table_or_four_partitio
     let plan = pg
         .psql(&format!(
             "{PARALLEL}EXPLAIN (ANALYZE, COSTS OFF) {};",
-            round_query("wine_parts", &features, &centres, &shifts)
+            round_query(
+                "wine_parts",
+                &features,
+                &centres,
+                &shifts,
+                Dialect::Postgres
+            )
         ))
         .unwrap();
     let plan: Vec<String> = plan.iter().map(|r| r.iter().collect::<String>()).collect();
@@ -264,7 +272,7 @@ fn connections_that_fail_are_named() {
 /// repeated key; in one table and in four partitions.
 #[test]
 fn the_sample_drawn_in_postgresql_is_the_one_drawn_here() {
-    use assort::scale::sample::{draw, sample_query, Dialect};
+    use assort::scale::sample::{draw, sample_query};
     let Some(pg) = Postgres::start() else {
         return;
     };
@@ -317,9 +325,7 @@ fn the_sample_drawn_in_postgresql_is_the_one_drawn_here() {
 /// workers.
 #[test]
 fn a_fit_refined_in_the_database_is_the_fit_refined_in_memory() {
-    use assort::engine::kmeans::{KMeansSettings, Seeding};
-    use assort::scale::drive::{self, InMemory};
-    use assort::scale::postgres::{InDatabase, Target};
+    use assort::scale::postgres::Target;
     use assort::scale::sample;
     let Some((pg, _dir, env)) = coop() else {
         return;
@@ -333,16 +339,7 @@ fn a_fit_refined_in_the_database_is_the_fit_refined_in_memory() {
     ))
     .unwrap();
     let (seed, size) = (2026, 1000);
-    let settings = KMeansSettings {
-        k: 4,
-        restarts: 8,
-        max_rounds: 100,
-        tolerance: 1e-4,
-        seeding: Seeding::KMeansPlusPlus,
-        seed,
-        sample: None,
-        start: None,
-    };
+    let settings = common::four_of_eight_restarts(seed);
     let (shifts, _, features) = start_of(&data, 1);
 
     // In memory: the same draw over the record numbers as keys.
@@ -350,11 +347,7 @@ fn a_fit_refined_in_the_database_is_the_fit_refined_in_memory() {
     let drawn = sample::draw(keys.iter().map(String::as_str), seed, size);
     let rows: Vec<usize> = drawn.iter().map(|k| k.parse().unwrap()).collect();
     let here_sample = data.select(ndarray::Axis(0), &rows);
-    let mut memory = InMemory {
-        data: data.view(),
-        shifts: &shifts,
-    };
-    let here = drive::fit(here_sample.view(), &settings, &shifts, &mut memory).unwrap();
+    let here = common::fit_in_memory(data.view(), here_sample.view(), &settings, &shifts);
     assert_eq!(here.len(), 3, "the three best restarts are refined");
     assert!(here[0].within <= here[1].within && here[0].converged);
     assert_eq!(here[0].sizes.iter().sum::<u64>(), data.nrows() as u64);
@@ -367,19 +360,15 @@ fn a_fit_refined_in_the_database_is_the_fit_refined_in_memory() {
         assert_eq!(sampled, drawn, "{table}: the same sample, in rank order");
         let there_sample = Array2::from_shape_vec((size, features.len()), values).unwrap();
         assert_eq!(there_sample, here_sample, "{table}: the same values");
-        let mut engine = InDatabase {
-            db: &mut db,
-            source: table.to_string(),
-            features: features.clone(),
-            shifts: &shifts,
-        };
-        let there = drive::fit(there_sample.view(), &settings, &shifts, &mut engine).unwrap();
-        // Debug writes each double's shortest exact digits (and the sign
-        // of a zero): equal text is equal bits.
-        assert_eq!(
-            format!("{there:?}"),
-            format!("{here:?}"),
-            "{table}: every refinement, bit for bit"
+        common::same_fit_in(
+            &mut db,
+            table,
+            &features,
+            there_sample.view(),
+            &settings,
+            &shifts,
+            &here,
+            table,
         );
     }
 }

@@ -25,7 +25,7 @@ use assort::engine::exact::{self, Shifts};
 use assort::engine::kmeans::{KMeansSettings, Seeding};
 use assort::plan::{FeatureKind, Transform};
 use assort::run::prepare::FeatureParams;
-use assort::scale::drive::{self, InMemory};
+use assort::scale::drive;
 use assort::scale::sample;
 use assort::scale::stream::{PassError, Passes, Streamed};
 use ndarray::{Array2, Axis};
@@ -162,21 +162,8 @@ fn a_fit_streamed_from_parquet_parts_is_the_fit_in_memory() {
     let streamed = passes.round(&params, &centres, &shifts).unwrap();
     assert_eq!(streamed, exact::round(x.view(), &centres, &shifts));
 
-    let settings = KMeansSettings {
-        k: 4,
-        restarts: 8,
-        max_rounds: 100,
-        tolerance: 1e-4,
-        seeding: Seeding::KMeansPlusPlus,
-        seed,
-        sample: None,
-        start: None,
-    };
-    let mut memory = InMemory {
-        data: x.view(),
-        shifts: &shifts,
-    };
-    let in_memory = drive::fit(sample.view(), &settings, &shifts, &mut memory).unwrap();
+    let settings = common::four_of_eight_restarts(seed);
+    let in_memory = common::fit_in_memory(x.view(), sample.view(), &settings, &shifts);
     let mut engine = Streamed {
         passes: &passes,
         params: &params,

@@ -3,10 +3,13 @@
 //! here keeping only the centres and each round's exact sums
 //! ([`crate::engine::exact`]).
 
+#[cfg(feature = "ballista")]
+pub mod cluster;
 pub mod drive;
 pub mod postgres;
 pub mod round;
 pub mod sample;
 pub mod select;
 pub mod source;
+pub mod sql;
 pub mod stream;

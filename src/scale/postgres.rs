@@ -8,7 +8,6 @@
 //! assort sends runs in a read-only transaction, and a recipe's own query
 //! is checked to be one statement that only reads.
 
-use crate::engine::exact::{RoundSums, Shifts};
 use postgres::error::SqlState;
 use postgres::{Client, NoTls};
 use std::collections::HashMap;
@@ -384,91 +383,6 @@ impl Database {
             .collect())
     }
 
-    /// One k-means round over `source` (see [`super::round`]).
-    pub fn round(
-        &mut self,
-        source: &str,
-        features: &[String],
-        centres: &[f64],
-        shifts: &Shifts,
-    ) -> Result<RoundSums, DbError> {
-        let d = features.len();
-        let query = super::round::round_query(source, features, centres, shifts);
-        let rows = self.read(&query, "a k-means round")?;
-        let text: Vec<Vec<String>> = rows
-            .into_iter()
-            .map(|r| r.into_iter().map(Option::unwrap_or_default).collect())
-            .collect();
-        super::round::parse_round(&text, centres.len() / d.max(1), d).map_err(|reason| {
-            DbError::Failed {
-                connection: self.name.clone(),
-                what: "reading a round's sums".into(),
-                reason,
-            }
-        })
-    }
-
-    /// The largest magnitude of each of `features` (SQL expressions over
-    /// `source`), exact: what the exact sums' shifts are chosen from.
-    /// NULLs are left aside.
-    pub fn largest(&mut self, source: &str, features: &[String]) -> Result<Vec<f64>, DbError> {
-        let list: Vec<String> = features
-            .iter()
-            .map(|f| format!("CAST(MAX(ABS({f})) AS TEXT)"))
-            .collect();
-        let sql = format!("SELECT {} FROM {source}", list.join(", "));
-        let rows = self.read(&sql, "measuring the features' range")?;
-        let row = rows.into_iter().next().unwrap_or_default();
-        Ok(row
-            .iter()
-            .map(|v| {
-                v.as_deref()
-                    .and_then(crate::text::parse_number)
-                    .unwrap_or(0.0)
-            })
-            .collect())
-    }
-
-    /// The seeded sample of `size` records of `source` keyed by `key`, in
-    /// rank order ([`super::sample`]): their keys and `features` (SQL
-    /// expressions) as doubles. A value that is NULL or not a number is
-    /// an error naming the record's key.
-    pub fn sample(
-        &mut self,
-        source: &str,
-        key: &str,
-        features: &[String],
-        (seed, size): (u64, usize),
-    ) -> Result<(Vec<String>, Vec<f64>), DbError> {
-        use super::sample::{sample_query, Dialect};
-        let columns: Vec<String> = features
-            .iter()
-            .map(|f| format!("CAST({f} AS TEXT)"))
-            .collect();
-        let sql = sample_query(source, key, &columns, seed, size, Dialect::Postgres);
-        let rows = self.read(&sql, "drawing the sample")?;
-        let mut keys = Vec::with_capacity(rows.len());
-        let mut values = Vec::with_capacity(rows.len() * features.len());
-        for row in rows {
-            let mut cells = row.into_iter();
-            let k = cells.next().flatten().unwrap_or_default();
-            for (j, v) in cells.enumerate() {
-                let x = v.as_deref().and_then(crate::text::parse_number);
-                values.push(x.ok_or_else(|| DbError::Failed {
-                    connection: self.name.clone(),
-                    what: "drawing the sample".into(),
-                    reason: format!(
-                        "feature {} of the record keyed `{k}` is {}",
-                        j + 1,
-                        v.map_or("NULL".into(), |v| format!("`{v}`, not a number"))
-                    ),
-                })?);
-            }
-            keys.push(k);
-        }
-        Ok((keys, values))
-    }
-
     /// A recipe's own query, checked to be one statement that only reads,
     /// and its columns' names. It is prepared (a second statement after `;`
     /// is refused), then run as a subquery that returns no row (a data
@@ -505,20 +419,20 @@ impl Database {
     }
 }
 
-/// Rounds run by the database over `source` (as it may follow `FROM`),
-/// whose `features` are SQL expressions of the prepared values.
-pub struct InDatabase<'a> {
-    pub db: &'a mut Database,
-    pub source: String,
-    pub features: Vec<String>,
-    pub shifts: &'a Shifts,
-}
-
-impl super::drive::Rounds for InDatabase<'_> {
+impl super::sql::SqlEngine for Database {
     type Error = DbError;
-    fn round(&mut self, centres: &[f64]) -> Result<RoundSums, DbError> {
-        self.db
-            .round(&self.source, &self.features, centres, self.shifts)
+    fn dialect(&self) -> super::sample::Dialect {
+        super::sample::Dialect::Postgres
+    }
+    fn read(&mut self, sql: &str, what: &str) -> Result<Vec<Vec<Option<String>>>, DbError> {
+        Database::read(self, sql, what)
+    }
+    fn failed(&self, what: &str, reason: String) -> DbError {
+        DbError::Failed {
+            connection: self.name.clone(),
+            what: what.into(),
+            reason,
+        }
     }
 }
 

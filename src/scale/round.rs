@@ -18,13 +18,14 @@
 //!   where the platform has them, which is 18 % faster per round than
 //!   summing decimals). A double cast straight to a decimal would be
 //!   rounded to 15 significant digits by PostgreSQL (seen with version 15:
-//!   tests/scale_postgres.rs fails when the query casts so). An engine
-//!   whose bigint sum is a bigint needs a cast to `DECIMAL(38, 0)` before
-//!   the sum;
+//!   tests/scale_postgres.rs fails when the query casts so). DataFusion's
+//!   sum of bigints is a bigint, so there each bigint is cast to
+//!   `DECIMAL(38, 0)` (a 128-bit integer, exact) before the sum;
 //! - sums come back as text, so no client library rounds them.
 //!
 //! Cost in the engine: one scan, O(n d k), and a k-row aggregate.
 
+use super::sample::Dialect;
 use crate::engine::exact::{RoundSums, Shift, Shifts};
 use crate::sql_words::{nearest_branch, number};
 use std::fmt::Write as _;
@@ -35,30 +36,42 @@ fn double(v: f64) -> String {
     format!("CAST({} AS DOUBLE PRECISION)", number(v))
 }
 
-/// The integer a value is summed as, in SQL, summed (exactly, into a
-/// `NUMERIC`: see the module documentation).
-fn fixed_sum(value: &str, shift: Shift) -> String {
-    format!(
-        "CAST(SUM(CAST(FLOOR({value} * {}) AS BIGINT)) AS VARCHAR)",
+/// The integer a value is summed as, in SQL, summed exactly (see the
+/// module documentation): PostgreSQL sums bigints into a `NUMERIC`;
+/// DataFusion's sum of bigints is a bigint, so each is cast to
+/// `DECIMAL(38, 0)` (a 128-bit integer) first.
+fn fixed_sum(value: &str, shift: Shift, dialect: Dialect) -> String {
+    let fixed = format!(
+        "CAST(FLOOR({value} * {}) AS BIGINT)",
         double(shift.factor())
-    )
+    );
+    let summed = match dialect {
+        Dialect::Postgres => fixed,
+        Dialect::DataFusion => format!("CAST({fixed} AS DECIMAL(38, 0))"),
+    };
+    format!("CAST(SUM({summed}) AS VARCHAR)")
 }
 
-/// The query for one round over `source` (a table or a parenthesised query
-/// with an alias, as it may follow `FROM`), whose prepared features are
-/// the SQL expressions `features` (doubles, no gaps), with `centres` (k
-/// rows of d in one slice). Rows, every value text: segment, records, d
-/// sums, within; only segments that drew records, in no set order.
-pub fn round_query(source: &str, features: &[String], centres: &[f64], shifts: &Shifts) -> String {
+/// The steps every record goes through before it is placed: `prepared`
+/// (the features as doubles `x0`, `x1`, ..., beside the `carried`
+/// expressions as `c0`, `c1`, ...) and `distances` (each record's squared
+/// distance `d0`, `d1`, ... to each of `centres`), as the start of a
+/// `WITH` that goes on.
+fn distances(source: &str, features: &[String], carried: &[String], centres: &[f64]) -> String {
     let d = features.len();
     let k = centres.len() / d.max(1);
     let xs: Vec<String> = (0..d).map(|j| format!("x{j}")).collect();
-    let mut q = String::from("WITH prepared AS (\n  SELECT ");
-    let cast: Vec<String> = (features.iter().zip(&xs))
+    let mut kept = xs.clone();
+    let mut selected: Vec<String> = (features.iter().zip(&xs))
         .map(|(f, x)| format!("CAST({f} AS DOUBLE PRECISION) AS {x}"))
         .collect();
-    let _ = writeln!(q, "{}\n  FROM {source}\n),", cast.join(",\n         "));
-    let _ = write!(q, "distances AS (\n  SELECT {}", xs.join(", "));
+    for (i, c) in carried.iter().enumerate() {
+        selected.push(format!("{c} AS c{i}"));
+        kept.push(format!("c{i}"));
+    }
+    let mut q = String::from("WITH prepared AS (\n  SELECT ");
+    let _ = writeln!(q, "{}\n  FROM {source}\n),", selected.join(",\n         "));
+    let _ = write!(q, "distances AS (\n  SELECT {}", kept.join(", "));
     for s in 0..k {
         let terms: Vec<String> = (xs.iter().enumerate())
             .map(|(j, x)| {
@@ -73,27 +86,69 @@ pub fn round_query(source: &str, features: &[String], centres: &[f64], shifts: &
     // once) would otherwise write each distance out again wherever the
     // next step names it, computing it about 2k times instead of once.
     let _ = writeln!(q, "\n  FROM prepared\n  OFFSET 0\n),");
-    let branches = |then: &dyn Fn(usize) -> String| -> String {
-        (0..k)
-            .map(|s| format!("{} {}", nearest_branch(s, k), then(s)))
-            .collect::<Vec<_>>()
-            .join(" ")
-    };
+    q
+}
+
+/// A `CASE` over the distances of `k` centres whose branch for centre `s`
+/// gives `then(s)`: the nearest centre, ties to the lower number.
+fn nearest_case(k: usize, then: &dyn Fn(usize) -> String) -> String {
+    let branches: Vec<String> = (0..k)
+        .map(|s| format!("{} {}", nearest_branch(s, k), then(s)))
+        .collect();
+    format!("CASE {} END", branches.join(" "))
+}
+
+/// The query for one round over `source` (a table or a parenthesised query
+/// with an alias, as it may follow `FROM`), whose prepared features are
+/// the SQL expressions `features` (doubles, no gaps), with `centres` (k
+/// rows of d in one slice). Rows, every value text: segment, records, d
+/// sums, within; only segments that drew records, in no set order.
+pub fn round_query(
+    source: &str,
+    features: &[String],
+    centres: &[f64],
+    shifts: &Shifts,
+    dialect: Dialect,
+) -> String {
+    let d = features.len();
+    let k = centres.len() / d.max(1);
+    let xs: Vec<String> = (0..d).map(|j| format!("x{j}")).collect();
+    let mut q = distances(source, features, &[], centres);
     let _ = writeln!(
         q,
-        "placed AS (\n  SELECT {},\n         CASE {} END AS segment,\n         CASE {} END AS nearest\n  FROM distances\n)",
+        "placed AS (\n  SELECT {},\n         {} AS segment,\n         {} AS nearest\n  FROM distances\n)",
         xs.join(", "),
-        branches(&|s| s.to_string()),
-        branches(&|s| format!("d{s}")),
+        nearest_case(k, &|s| s.to_string()),
+        nearest_case(k, &|s| format!("d{s}")),
     );
     let sums: Vec<String> = (xs.iter().zip(&shifts.features))
-        .map(|(x, &shift)| format!("{} AS sum{}", fixed_sum(x, shift), &x[1..]))
+        .map(|(x, &shift)| format!("{} AS sum{}", fixed_sum(x, shift, dialect), &x[1..]))
         .collect();
     let _ = write!(
         q,
         "SELECT CAST(segment AS VARCHAR) AS segment, CAST(COUNT(*) AS VARCHAR) AS records,\n       {},\n       {} AS within\nFROM placed\nGROUP BY placed.segment\n",
         sums.join(",\n       "),
-        fixed_sum("nearest", shifts.within)
+        fixed_sum("nearest", shifts.within, dialect)
+    );
+    q
+}
+
+/// The query placing every record of `source` at its nearest of `centres`
+/// as a round does: rows of the key (as text) and the segment's number
+/// (from 0), in no set order. O(n d k) in the engine; every record's key
+/// leaves it.
+pub fn assign_query(source: &str, key: &str, features: &[String], centres: &[f64]) -> String {
+    let k = centres.len() / features.len().max(1);
+    let mut q = distances(
+        source,
+        features,
+        &[format!("CAST({key} AS VARCHAR)")],
+        centres,
+    );
+    let _ = write!(
+        q,
+        "placed AS (\n  SELECT c0 AS record_key, {} AS segment\n  FROM distances\n)\nSELECT record_key, segment FROM placed\n",
+        nearest_case(k, &|s| s.to_string())
     );
     q
 }
@@ -143,6 +198,7 @@ mod tests {
             &["\"a\"".into(), "\"b\"".into()],
             &[0.0, 0.1, 1.5, -0.25],
             &shifts,
+            Dialect::Postgres,
         );
         assert!(q.contains("FROM \"members\""), "{q}");
         assert!(q.contains("(x0 - CAST(1.5 AS DOUBLE PRECISION)) * (x0 - CAST(1.5 AS DOUBLE PRECISION)) + (x1 - CAST(-0.25 AS DOUBLE PRECISION))"), "{q}");

@@ -59,3 +59,64 @@ pub fn same_fit(
     };
     assert_eq!(bits(a), bits(b), "{what}: centres");
 }
+
+/// The driven fit the engine tests share: k = 4, 8 restarts by k-means++
+/// on the sample, rounds capped at 100, tolerance 1e-4.
+pub fn four_of_eight_restarts(seed: u64) -> assort::engine::kmeans::KMeansSettings {
+    assort::engine::kmeans::KMeansSettings {
+        k: 4,
+        restarts: 8,
+        max_rounds: 100,
+        tolerance: 1e-4,
+        seeding: assort::engine::kmeans::Seeding::KMeansPlusPlus,
+        seed,
+        sample: None,
+        start: None,
+    }
+}
+
+/// The driver's fit over `data` in memory, from `sample`: the fit every
+/// engine's must equal, bit for bit.
+pub fn fit_in_memory(
+    data: ndarray::ArrayView2<'_, f64>,
+    sample: ndarray::ArrayView2<'_, f64>,
+    settings: &assort::engine::kmeans::KMeansSettings,
+    shifts: &assort::engine::exact::Shifts,
+) -> Vec<assort::scale::drive::Refined> {
+    let mut memory = assort::scale::drive::InMemory { data, shifts };
+    assort::scale::drive::fit(sample, settings, shifts, &mut memory).unwrap()
+}
+
+/// The driver's fit with its rounds run by `engine` over `source` (whose
+/// prepared features are the SQL expressions `features`) is `here`, the
+/// fit in memory, bit for bit: every refinement's centres, sizes,
+/// within-SS and rounds.
+#[track_caller]
+#[allow(clippy::too_many_arguments)]
+pub fn same_fit_in<E: assort::scale::sql::SqlEngine>(
+    engine: &mut E,
+    source: &str,
+    features: &[String],
+    sample: ndarray::ArrayView2<'_, f64>,
+    settings: &assort::engine::kmeans::KMeansSettings,
+    shifts: &assort::engine::exact::Shifts,
+    here: &[assort::scale::drive::Refined],
+    what: &str,
+) where
+    E::Error: std::fmt::Debug,
+{
+    let mut rounds = assort::scale::sql::InEngine {
+        engine,
+        source: source.to_string(),
+        features: features.to_vec(),
+        shifts,
+    };
+    let there = assort::scale::drive::fit(sample, settings, shifts, &mut rounds).unwrap();
+    // Debug writes each double's shortest exact digits (and the sign of a
+    // zero): equal text is equal bits.
+    assert_eq!(
+        format!("{there:?}"),
+        format!("{here:?}"),
+        "{what}: every refinement, bit for bit"
+    );
+}
