@@ -21,73 +21,16 @@
 
 mod common;
 
-use arrow_array::{ArrayRef, Float64Array, RecordBatch, StringArray};
 use assort::engine::exact::{self, Shifts};
 use assort::plan::{FeatureKind, Transform};
 use assort::run::prepare::FeatureParams;
 use assort::scale::drive::{self, InMemory, Refined};
 use assort::scale::stream::{Passes, Streamed};
-use common::{best_of, fit_settings, records, resident_peak, setting, timed, Records};
+use common::{best_of, fit_settings, records, resident_peak, setting, timed, write_parquet};
 use ndarray::Array2;
-use parquet::arrow::ArrowWriter;
-use parquet::basic::Compression;
-use parquet::file::properties::WriterProperties;
-use std::path::Path;
-use std::sync::Arc;
 
 /// Records per Parquet part.
 const PART: usize = 10_000_000;
-
-/// Writes the `n` records as parts of [`PART`] into `folder`, a million
-/// at a time. Returns the bytes written.
-fn write(folder: &Path, n: usize, d: usize, group: usize) -> u64 {
-    std::fs::create_dir_all(folder).expect("the bench's folder");
-    let mut gen = Records::new(d);
-    let props = WriterProperties::builder()
-        .set_max_row_group_row_count(Some(group))
-        .set_compression(Compression::SNAPPY)
-        .build();
-    let mut bytes = 0;
-    for p in 0..n.div_ceil(PART) {
-        let path = folder.join(format!("part-{p:05}.parquet"));
-        let file = std::fs::File::create(&path).expect("a part");
-        let mut writer: Option<ArrowWriter<std::fs::File>> = None;
-        let end = ((p + 1) * PART).min(n);
-        while gen.next < end {
-            let first = gen.next;
-            let rows = (end - first).min(1 << 20);
-            let mut values = Vec::with_capacity(rows * d);
-            for _ in 0..rows {
-                gen.row(&mut values);
-            }
-            let mut fields: Vec<(String, ArrayRef)> = vec![(
-                "id".into(),
-                Arc::new(StringArray::from_iter_values(
-                    (first..first + rows).map(|i| format!("C{i:09}")),
-                )),
-            )];
-            for j in 0..d {
-                let column: Vec<f64> = (0..rows).map(|i| values[i * d + j]).collect();
-                fields.push((format!("x{j}"), Arc::new(Float64Array::from(column))));
-            }
-            let batch = RecordBatch::try_from_iter(fields).expect("a batch");
-            let w = writer.get_or_insert_with(|| {
-                ArrowWriter::try_new(
-                    file.try_clone().expect("the part"),
-                    batch.schema(),
-                    Some(props.clone()),
-                )
-                .expect("a writer")
-            });
-            w.write(&batch).expect("written");
-        }
-        if let Some(w) = writer {
-            w.close().expect("closed");
-        }
-        bytes += std::fs::metadata(&path).map_or(0, |m| m.len());
-    }
-    bytes
-}
 
 fn main() {
     let (n, d, k, size, repeats) = common::shape();
@@ -97,7 +40,7 @@ fn main() {
     let folder = std::env::var("BENCH_DIR").map_or(temp.path().join("records"), Into::into);
     let existing = std::fs::read_dir(&folder).map_or(0, |r| r.count());
     let (bytes, writing) = match existing {
-        0 => timed(|| write(&folder, n, d, group)),
+        0 => timed(|| write_parquet(&folder, n, d, group, PART)),
         _ => (0, 0.0),
     };
     // The streamed side's peak, not the writer's: the writer's freed

@@ -23,17 +23,14 @@ mod common;
 
 use arrow_array::{ArrayRef, Float64Array, Int64Array, RecordBatch};
 use assort::engine::exact::Shifts;
-use assort::scale::cluster::Cluster;
+use assort::scale::cluster::{free_port, Cluster, TrialCluster};
 use assort::scale::sample;
 use assort::scale::sql::SqlEngine;
 use ndarray::{Array2, Axis};
 use parquet::arrow::ArrowWriter;
 use parquet::file::properties::WriterProperties;
-use std::net::{TcpListener, TcpStream};
 use std::path::Path;
-use std::process::{Child, Command, Stdio};
 use std::sync::Arc;
-use std::time::{Duration, Instant};
 
 /// Writes the records numbered from 0 (key `record`) with `data`'s columns
 /// `x0`, `x1`, ... as `parts` Parquet files in `folder`, in row groups of
@@ -59,52 +56,6 @@ fn write_parts(folder: &Path, data: &Array2<f64>, parts: usize) {
         writer.write(&batch).unwrap();
         writer.close().unwrap();
     }
-}
-
-/// A port nobody listens on now.
-fn free_port() -> u16 {
-    TcpListener::bind("127.0.0.1:0")
-        .unwrap()
-        .local_addr()
-        .unwrap()
-        .port()
-}
-
-/// Waits until something listens on `port` (the process `child` started),
-/// failing if it ends first or takes a minute.
-fn wait_for(port: u16, child: &mut Child, what: &str) {
-    let start = Instant::now();
-    while TcpStream::connect(("127.0.0.1", port)).is_err() {
-        if let Some(status) = child.try_wait().unwrap() {
-            panic!("the {what} ended before it listened: {status}");
-        }
-        assert!(
-            start.elapsed() < Duration::from_secs(60),
-            "the {what} did not listen"
-        );
-        std::thread::sleep(Duration::from_millis(100));
-    }
-}
-
-/// The cluster's processes, ended when the test ends, however it ends.
-struct Processes(Vec<Child>);
-
-impl Drop for Processes {
-    fn drop(&mut self) {
-        for child in &mut self.0 {
-            let _ = child.kill();
-            let _ = child.wait();
-        }
-    }
-}
-
-fn node(args: &[String], log: &Path) -> Child {
-    Command::new(env!("CARGO_BIN_EXE_assort-cluster-node"))
-        .args(args)
-        .stdout(Stdio::null())
-        .stderr(std::fs::File::create(log).unwrap())
-        .spawn()
-        .unwrap()
 }
 
 /// Files under `dir`, at any depth.
@@ -172,44 +123,9 @@ fn rounds_on_a_ballista_cluster_give_the_fit_and_the_segments_made_in_memory() {
 
     // A scheduler and two executors, each a process of its own, each
     // executor running one task at a time.
-    let scheduler = free_port();
-    let mut processes = Processes(Vec::new());
-    processes.0.push(node(
-        &["scheduler".into(), "--port".into(), scheduler.to_string()],
-        &dir.path().join("scheduler.log"),
-    ));
-    wait_for(scheduler, &mut processes.0[0], "scheduler");
-    let mut work_dirs = Vec::new();
-    for e in 0..2 {
-        let (port, grpc) = (free_port(), free_port());
-        let work = dir.path().join(format!("executor-{e}"));
-        std::fs::create_dir_all(&work).unwrap();
-        let args: Vec<String> = [
-            "executor",
-            "--scheduler",
-            &scheduler.to_string(),
-            "--port",
-            &port.to_string(),
-            "--grpc-port",
-            &grpc.to_string(),
-            "--work-dir",
-            work.to_str().unwrap(),
-            "--slots",
-            "1",
-        ]
-        .iter()
-        .map(|s| s.to_string())
-        .collect();
-        processes
-            .0
-            .push(node(&args, &dir.path().join(format!("executor-{e}.log"))));
-        let last = processes.0.len() - 1;
-        wait_for(port, &mut processes.0[last], "executor");
-        work_dirs.push(work);
-    }
-    // Registration follows the executor's listening; give it a moment.
-    std::thread::sleep(Duration::from_secs(2));
-
+    let node = Path::new(env!("CARGO_BIN_EXE_assort-cluster-node"));
+    let trial = TrialCluster::start(node, 2, 1, dir.path()).unwrap();
+    let scheduler = trial.scheduler;
     let mut cluster = Cluster::connect("127.0.0.1", scheduler, 4).unwrap();
     cluster.register_parquet("wine", &folder).unwrap();
     let count = cluster
@@ -291,7 +207,7 @@ fn rounds_on_a_ballista_cluster_give_the_fit_and_the_segments_made_in_memory() {
         .and_then(|g| g.parse().ok())
         .unwrap_or_else(|| panic!("no first stage in the plan:\n{plan}"));
     assert!(groups >= 4, "the folder is read in {groups} parts:\n{plan}");
-    for work in &work_dirs {
+    for work in &trial.work_dirs {
         assert!(files_under(work) > 0, "{} ran no task", work.display());
     }
 }
@@ -300,7 +216,7 @@ fn rounds_on_a_ballista_cluster_give_the_fit_and_the_segments_made_in_memory() {
 /// the step.
 #[test]
 fn a_cluster_that_cannot_be_reached_is_named() {
-    let port = free_port();
+    let port = free_port().unwrap();
     let error = match Cluster::connect("127.0.0.1", port, 4) {
         Err(e) => e.to_string(),
         Ok(mut c) => c.read("SELECT 1", "a first query").unwrap_err().to_string(),

@@ -3,7 +3,13 @@
 
 #![allow(dead_code)] // each bench uses its own part
 
+use arrow_array::{ArrayRef, Float64Array, RecordBatch, StringArray};
 use assort::engine::rng::Stream;
+use parquet::arrow::ArrowWriter;
+use parquet::basic::Compression;
+use parquet::file::properties::WriterProperties;
+use std::path::Path;
+use std::sync::Arc;
 use std::time::Instant;
 
 /// The whole number in the variable `name`, else `default`.
@@ -119,4 +125,57 @@ pub fn fit_settings(k: usize) -> assort::engine::kmeans::KMeansSettings {
         sample: None,
         start: None,
     }
+}
+
+/// Writes `n` records of [`Records`] (text keys `C000000000`..., features
+/// `x0`, `x1`, ...) into `folder` as snappy Parquet parts of `part`
+/// records in row groups of `group`, a million at a time. Returns the
+/// bytes written.
+pub fn write_parquet(folder: &Path, n: usize, d: usize, group: usize, part: usize) -> u64 {
+    std::fs::create_dir_all(folder).expect("the bench's folder");
+    let mut gen = Records::new(d);
+    let props = WriterProperties::builder()
+        .set_max_row_group_row_count(Some(group))
+        .set_compression(Compression::SNAPPY)
+        .build();
+    let mut bytes = 0;
+    for p in 0..n.div_ceil(part) {
+        let path = folder.join(format!("part-{p:05}.parquet"));
+        let file = std::fs::File::create(&path).expect("a part");
+        let mut writer: Option<ArrowWriter<std::fs::File>> = None;
+        let end = ((p + 1) * part).min(n);
+        while gen.next < end {
+            let first = gen.next;
+            let rows = (end - first).min(1 << 20);
+            let mut values = Vec::with_capacity(rows * d);
+            for _ in 0..rows {
+                gen.row(&mut values);
+            }
+            let mut fields: Vec<(String, ArrayRef)> = vec![(
+                "id".into(),
+                Arc::new(StringArray::from_iter_values(
+                    (first..first + rows).map(|i| format!("C{i:09}")),
+                )),
+            )];
+            for j in 0..d {
+                let column: Vec<f64> = (0..rows).map(|i| values[i * d + j]).collect();
+                fields.push((format!("x{j}"), Arc::new(Float64Array::from(column))));
+            }
+            let batch = RecordBatch::try_from_iter(fields).expect("a batch");
+            let w = writer.get_or_insert_with(|| {
+                ArrowWriter::try_new(
+                    file.try_clone().expect("the part"),
+                    batch.schema(),
+                    Some(props.clone()),
+                )
+                .expect("a writer")
+            });
+            w.write(&batch).expect("written");
+        }
+        if let Some(w) = writer {
+            w.close().expect("closed");
+        }
+        bytes += std::fs::metadata(&path).map_or(0, |m| m.len());
+    }
+    bytes
 }

@@ -23,8 +23,11 @@ use datafusion::arrow::array::{Array, AsArray};
 use datafusion::arrow::datatypes::{DataType, Float64Type};
 use datafusion::execution::SessionStateBuilder;
 use datafusion::prelude::{ParquetReadOptions, SessionConfig, SessionContext};
-use std::path::Path;
+use std::net::{TcpListener, TcpStream};
+use std::path::{Path, PathBuf};
+use std::process::{Child, Command, Stdio};
 use std::sync::Arc;
+use std::time::{Duration, Instant};
 
 /// What went wrong on the cluster, naming it and the step.
 #[derive(Debug, thiserror::Error)]
@@ -226,4 +229,128 @@ pub fn serve_executor(
                 reason: e.to_string(),
             })
     })
+}
+
+/// A trial cluster on this machine: a scheduler and executors, each a
+/// process of its own running `node` (`assort-cluster-node`), on ports
+/// free when it starts, ended when this is dropped.
+pub struct TrialCluster {
+    children: Vec<Child>,
+    /// The scheduler's port on 127.0.0.1.
+    pub scheduler: u16,
+    /// Each executor's work folder, where it keeps the results it serves.
+    pub work_dirs: Vec<PathBuf>,
+}
+
+impl TrialCluster {
+    /// Starts a scheduler, then `executors` executors taking `slots` tasks
+    /// at a time, their work folders and logs in `dir`; returns once each
+    /// listens and a moment more for the executors to register.
+    pub fn start(
+        node: &Path,
+        executors: usize,
+        slots: usize,
+        dir: &Path,
+    ) -> Result<TrialCluster, ClusterError> {
+        let scheduler = free_port()?;
+        let mut cluster = TrialCluster {
+            children: Vec::new(),
+            scheduler,
+            work_dirs: Vec::new(),
+        };
+        let port = scheduler.to_string();
+        cluster.spawn(node, &["scheduler", "--port", &port], dir, "scheduler")?;
+        cluster.wait_for(scheduler, "scheduler")?;
+        for e in 0..executors {
+            let (port, grpc) = (free_port()?, free_port()?);
+            let work = dir.join(format!("executor-{e}"));
+            std::fs::create_dir_all(&work).map_err(|e| trial(e.to_string()))?;
+            let at = work.to_string_lossy().into_owned();
+            let args = [
+                "executor",
+                "--scheduler",
+                &scheduler.to_string(),
+                "--port",
+                &port.to_string(),
+                "--grpc-port",
+                &grpc.to_string(),
+                "--work-dir",
+                &at,
+                "--slots",
+                &slots.to_string(),
+            ];
+            cluster.spawn(node, &args, dir, &format!("executor-{e}"))?;
+            cluster.wait_for(port, "executor")?;
+            cluster.work_dirs.push(work);
+        }
+        // An executor registers with the scheduler after it listens.
+        std::thread::sleep(Duration::from_secs(2));
+        Ok(cluster)
+    }
+
+    fn spawn(
+        &mut self,
+        node: &Path,
+        args: &[&str],
+        dir: &Path,
+        name: &str,
+    ) -> Result<(), ClusterError> {
+        let log = std::fs::File::create(dir.join(format!("{name}.log")))
+            .map_err(|e| trial(e.to_string()))?;
+        let child = Command::new(node)
+            .args(args)
+            .stdout(Stdio::null())
+            .stderr(log)
+            .spawn()
+            .map_err(|e| trial(format!("starting {}: {e}", node.display())))?;
+        self.children.push(child);
+        Ok(())
+    }
+
+    /// Waits until something listens on `port` (the process last
+    /// started), failing if it ends first or takes a minute.
+    fn wait_for(&mut self, port: u16, what: &str) -> Result<(), ClusterError> {
+        let start = Instant::now();
+        let child = self
+            .children
+            .last_mut()
+            .ok_or_else(|| trial("nothing started".into()))?;
+        while TcpStream::connect(("127.0.0.1", port)).is_err() {
+            if let Ok(Some(status)) = child.try_wait() {
+                return Err(trial(format!(
+                    "the {what} ended before it listened: {status}"
+                )));
+            }
+            if start.elapsed() > Duration::from_secs(60) {
+                return Err(trial(format!("the {what} did not listen within a minute")));
+            }
+            std::thread::sleep(Duration::from_millis(100));
+        }
+        Ok(())
+    }
+}
+
+impl Drop for TrialCluster {
+    fn drop(&mut self) {
+        for child in &mut self.children {
+            let _ = child.kill();
+            let _ = child.wait();
+        }
+    }
+}
+
+fn trial(reason: String) -> ClusterError {
+    ClusterError::Failed {
+        address: "127.0.0.1".into(),
+        what: "starting a trial cluster".into(),
+        reason,
+    }
+}
+
+/// A port nobody listens on now (the system's choice).
+pub fn free_port() -> Result<u16, ClusterError> {
+    TcpListener::bind("127.0.0.1:0")
+        .and_then(|l| l.local_addr())
+        .map(|a| a.port())
+        .map_err(|e| trial(e.to_string()))
 }
