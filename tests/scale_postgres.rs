@@ -65,7 +65,14 @@ fn load(pg: &Postgres, name: &str, data: &Array2<f64>, partitions: usize) {
         .into_iter()
         .enumerate()
         .map(|(i, r)| {
-            let v: Vec<String> = r.iter().map(|x| format!("{x:?}")).collect();
+            // NaN stands for a gap.
+            let v: Vec<String> = r
+                .iter()
+                .map(|x| match x.is_nan() {
+                    true => "NULL".to_string(),
+                    false => format!("{x:?}"),
+                })
+                .collect();
             format!("({i}, {})", v.join(", "))
         })
         .collect();
@@ -371,4 +378,185 @@ fn a_fit_refined_in_the_database_is_the_fit_refined_in_memory() {
             table,
         );
     }
+}
+
+/// The aggregate queries that stand for the passes of `read passes` over
+/// a table (`scale::aggregate`) give what the same pass gathers here:
+/// the look (records, gaps, kept records, values present, smallest and
+/// largest), exact sums and counts, order statistics, a repeated key, and
+/// per segment the records and exact sums of carried columns with gaps;
+/// in one table and in four partitions read by parallel workers.
+#[test]
+fn the_aggregates_of_the_passes_are_the_passes_made_here() {
+    use assort::engine::exact::Sum;
+    use assort::scale::aggregate::*;
+    use assort::scale::postgres::Target;
+    let Some((pg, _dir, env)) = coop() else {
+        return;
+    };
+    // Wine x5 (890 records), unscaled, with gaps: x1 every 7th record, x2
+    // (whose gaps leave the record out) every 11th.
+    let mut data = wine(5, false);
+    let n = data.nrows();
+    for i in 0..n {
+        if i % 7 == 3 {
+            data[[i, 1]] = f64::NAN;
+        }
+        if i % 11 == 5 {
+            data[[i, 2]] = f64::NAN;
+        }
+    }
+    load(&pg, "gappy_one", &data, 1);
+    load(&pg, "gappy_four", &data, 4);
+    let kept_rows: Vec<usize> = (0..n).filter(|&i| !data[[i, 2]].is_nan()).collect();
+    let present = |j: usize| -> Vec<f64> {
+        let mut v: Vec<f64> = (kept_rows.iter().map(|&i| data[[i, j]]))
+            .filter(|x| !x.is_nan())
+            .collect();
+        v.sort_by(f64::total_cmp);
+        v
+    };
+    let columns: Vec<String> = (0..5).map(|j| format!("x{j}")).collect();
+    let kept = kept_predicate(&["x2".to_string()]);
+    let fill = 2.5;
+    let filled = format!("COALESCE(x1, CAST({fill:?} AS DOUBLE PRECISION))");
+    let centres: Vec<f64> = [0, 60, 130]
+        .iter()
+        .flat_map(|&i| [data[[i, 0]], data[[i, 3]]])
+        .collect();
+    let nearest = |i: usize| -> usize {
+        let row = [data[[i, 0]], data[[i, 3]]];
+        let mut best = (0, f64::INFINITY);
+        for (s, c) in centres.chunks(2).enumerate() {
+            let d2 = (row[0] - c[0]) * (row[0] - c[0]) + (row[1] - c[1]) * (row[1] - c[1]);
+            if d2 < best.1 {
+                best = (s, d2);
+            }
+        }
+        best.0
+    };
+
+    pg.psql(&format!(
+        "{}SELECT pg_reload_conf();",
+        PARALLEL.replace("SET ", "ALTER SYSTEM SET ")
+    ))
+    .unwrap();
+    for table in ["gappy_one", "gappy_four"] {
+        let mut db = Target::resolve("coop", &env).unwrap().connect().unwrap();
+
+        let row = db
+            .read(&look_query(table, &columns, &kept), "the look")
+            .unwrap();
+        let looked = parse_look(&row[0], 5).unwrap();
+        assert_eq!(looked.records, n as u64, "{table}");
+        let gaps: Vec<u64> = (0..5)
+            .map(|j| data.column(j).iter().filter(|x| x.is_nan()).count() as u64)
+            .collect();
+        assert_eq!(looked.gaps, gaps, "{table}: gaps");
+        assert_eq!(looked.kept, kept_rows.len() as u64, "{table}: kept");
+        for j in 0..5 {
+            let v = present(j);
+            assert_eq!(looked.present[j], v.len() as u64, "{table}: x{j} present");
+            if let (Some(lo), Some(hi)) = (v.first(), v.last()) {
+                assert_eq!(
+                    (looked.lowest[j], looked.highest[j]),
+                    (*lo, *hi),
+                    "{table}: x{j} ends"
+                );
+            }
+        }
+
+        // Exact sums: x0 as it is, x1 filled.
+        let bounds = [
+            looked.highest[0].abs().max(looked.lowest[0].abs()),
+            looked.highest[1].abs().max(fill),
+        ];
+        let shifts: Vec<_> = bounds
+            .iter()
+            .map(|&b| Sum::new(b).unwrap().shift())
+            .collect();
+        let q = sums_query(
+            table,
+            &kept,
+            &["x0".to_string(), filled.clone()],
+            &shifts,
+            Dialect::Postgres,
+        );
+        let there = parse_sums(&db.read(&q, "sums").unwrap()[0], &bounds).unwrap();
+        let mut here = [Sum::new(bounds[0]).unwrap(), Sum::new(bounds[1]).unwrap()];
+        for &i in &kept_rows {
+            here[0].add(data[[i, 0]]);
+            here[1].add(if data[[i, 1]].is_nan() {
+                fill
+            } else {
+                data[[i, 1]]
+            });
+        }
+        assert_eq!(there, here.to_vec(), "{table}: exact sums");
+
+        // Order statistics of x1 among the kept values present.
+        let v = present(1);
+        for rank in [0, v.len() / 2, v.len() - 1] {
+            let rows = db
+                .read(&ranked_query(table, &kept, "x1", rank as u64), "a rank")
+                .unwrap();
+            let x: f64 = rows[0][0].as_deref().unwrap().parse().unwrap();
+            assert_eq!(x, v[rank], "{table}: rank {rank}");
+        }
+        let past = db
+            .read(&ranked_query(table, &kept, "x1", v.len() as u64), "past")
+            .unwrap();
+        assert!(past.is_empty(), "{table}: no value past the last rank");
+
+        // Keys: each once; then one repeated.
+        assert!(db
+            .read(&repeated_key_query(table, "id", "id"), "keys")
+            .unwrap()
+            .is_empty());
+
+        // Per segment (x0 and x3 against three centres): records, x1's
+        // sum and count of values present, x4's sum.
+        let carried = ["x1".to_string(), "x4".to_string()];
+        let b4 = looked.highest[4].abs().max(looked.lowest[4].abs());
+        let seg_bounds = [bounds[1], b4];
+        let seg_shifts: Vec<_> = seg_bounds
+            .iter()
+            .map(|&b| Sum::new(b).unwrap().shift())
+            .collect();
+        let q = segment_sums_query(
+            (table, &kept),
+            &["x0".into(), "x3".into()],
+            &centres,
+            &carried,
+            &seg_shifts,
+            Dialect::Postgres,
+        );
+        let rows = db.read(&q, "segment sums").unwrap();
+        let (counts, sums) = parse_segment_sums(&rows, 3, &seg_bounds).unwrap();
+        let mut here_counts = vec![0u64; 3];
+        let mut here_sums: Vec<Sum> = (0..3)
+            .flat_map(|_| seg_bounds.map(|b| Sum::new(b).unwrap()))
+            .collect();
+        for &i in &kept_rows {
+            let s = nearest(i);
+            here_counts[s] += 1;
+            if !data[[i, 1]].is_nan() {
+                here_sums[2 * s].add(data[[i, 1]]);
+            }
+            here_sums[2 * s + 1].add(data[[i, 4]]);
+        }
+        assert_eq!(counts, here_counts, "{table}: segment sizes");
+        assert_eq!(sums, here_sums, "{table}: segment sums");
+    }
+    pg.psql("INSERT INTO gappy_one (id, x0) VALUES (17, 1.0), (17, 2.0), (4, 0.5);")
+        .unwrap();
+    let mut db = Target::resolve("coop", &env).unwrap().connect().unwrap();
+    let rows = db
+        .read(&repeated_key_query("gappy_one", "id", "id"), "keys")
+        .unwrap();
+    assert_eq!(
+        rows,
+        vec![vec![Some("4".to_string())]],
+        "the smallest repeated key"
+    );
 }

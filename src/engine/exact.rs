@@ -251,6 +251,26 @@ impl Sum {
         })
     }
 
+    /// A sum formed elsewhere (in a database, say) of `count` values of
+    /// magnitude at most `largest`, whose fixed-point integers total
+    /// `total`.
+    pub fn from_total(largest: f64, total: i128, count: u64) -> Result<Sum, OutOfRange> {
+        let mut sum = Sum::new(largest)?;
+        sum.total = total;
+        sum.count = count;
+        Ok(sum)
+    }
+
+    /// The shift each value is summed with.
+    pub fn shift(&self) -> Shift {
+        self.shift
+    }
+
+    /// The fixed-point integers' total.
+    pub fn fixed_total(&self) -> i128 {
+        self.total
+    }
+
     #[inline]
     pub fn add(&mut self, x: f64) {
         self.total += i128::from(self.shift.fixed(x));

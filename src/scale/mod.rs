@@ -3,6 +3,7 @@
 //! here keeping only the centres and each round's exact sums
 //! ([`crate::engine::exact`]).
 
+pub mod aggregate;
 #[cfg(feature = "ballista")]
 pub mod cluster;
 pub mod drive;

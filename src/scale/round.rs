@@ -40,7 +40,7 @@ fn double(v: f64) -> String {
 /// module documentation): PostgreSQL sums bigints into a `NUMERIC`;
 /// DataFusion's sum of bigints is a bigint, so each is cast to
 /// `DECIMAL(38, 0)` (a 128-bit integer) first.
-fn fixed_sum(value: &str, shift: Shift, dialect: Dialect) -> String {
+pub(crate) fn fixed_sum(value: &str, shift: Shift, dialect: Dialect) -> String {
     let fixed = format!(
         "CAST(FLOOR({value} * {}) AS BIGINT)",
         double(shift.factor())
@@ -57,7 +57,12 @@ fn fixed_sum(value: &str, shift: Shift, dialect: Dialect) -> String {
 /// expressions as `c0`, `c1`, ...) and `distances` (each record's squared
 /// distance `d0`, `d1`, ... to each of `centres`), as the start of a
 /// `WITH` that goes on.
-fn distances(source: &str, features: &[String], carried: &[String], centres: &[f64]) -> String {
+pub(crate) fn distances(
+    source: &str,
+    features: &[String],
+    carried: &[String],
+    centres: &[f64],
+) -> String {
     let d = features.len();
     let k = centres.len() / d.max(1);
     let xs: Vec<String> = (0..d).map(|j| format!("x{j}")).collect();
@@ -91,7 +96,7 @@ fn distances(source: &str, features: &[String], carried: &[String], centres: &[f
 
 /// A `CASE` over the distances of `k` centres whose branch for centre `s`
 /// gives `then(s)`: the nearest centre, ties to the lower number.
-fn nearest_case(k: usize, then: &dyn Fn(usize) -> String) -> String {
+pub(crate) fn nearest_case(k: usize, then: &dyn Fn(usize) -> String) -> String {
     let branches: Vec<String> = (0..k)
         .map(|s| format!("{} {}", nearest_branch(s, k), then(s)))
         .collect();
