@@ -354,14 +354,94 @@ fn keys_once(plan: &Plan, input: &Input, mut ranks: Vec<u64>) -> Result<(), RunE
 /// Order statistics over the kept records, narrowed pass by pass:
 /// `value(f, x)` is what feature `f`'s value `x` (a gap as `None`) counts
 /// as, or `None` when it is not counted. `counts[f]` values are counted
+/// What a pass gathers of a feature's value (`None`: nothing): the same
+/// here, record by record, and in SQL ([`database`]).
+#[derive(Clone, Copy)]
+pub(super) enum Value<'a> {
+    /// The value present, of a feature filled by its mean; nothing of
+    /// the others.
+    ForMean,
+    /// The value present.
+    Present,
+    /// The value, or the fill of a gap.
+    Filled(&'a [FeatureParams]),
+    /// The value filled, clipped and transformed.
+    Reshaped(&'a [FeatureParams]),
+    /// The reshaped value's squared deviation from `means[f]`.
+    Deviation(&'a [FeatureParams], &'a [f64]),
+}
+
+impl Value<'_> {
+    fn of(self, plan: &Plan, f: usize, x: Option<f64>) -> Option<f64> {
+        let reshaped = |params: &[FeatureParams]| {
+            let p = &params[f];
+            x.or(p.fill).and_then(|x| reshape(p, x))
+        };
+        match self {
+            Value::ForMean => x.filter(|_| plan.features[f].missing == MissingRule::FillMean),
+            Value::Present => x,
+            Value::Filled(params) => x.or(params[f].fill),
+            Value::Reshaped(params) => reshaped(params),
+            Value::Deviation(params, means) => {
+                reshaped(params).map(|t| (t - means[f]) * (t - means[f]))
+            }
+        }
+    }
+}
+
+/// Where the parameters' passes run: over the records read here
+/// ([`Input`]) or as aggregate queries where they live
+/// ([`database::InDatabase`]).
+pub(super) trait Gather {
+    /// Exact sums over the kept records of `value` per feature, each with
+    /// the bound of `bounds[f]`.
+    fn sums(&self, plan: &Plan, bounds: &[f64], value: Value<'_>) -> Result<Vec<Sum>, RunError>;
+    /// The values at `wants` (feature, rank among its `counts[f]` values
+    /// of `value`, increasing), in the order of `wants`.
+    fn select(
+        &self,
+        plan: &Plan,
+        counts: &[u64],
+        wants: &[(usize, u64)],
+        value: Value<'_>,
+    ) -> Result<Vec<f64>, RunError>;
+    /// The first kept record (in the input's order) whose filled value of
+    /// feature `f` the transform of `p` cannot take, and that value.
+    fn first_failing(&self, plan: &Plan, p: &FeatureParams, f: usize) -> Option<(usize, f64)>;
+    /// Record `record` (0-based, in the input's order) at feature `f`.
+    fn place(&self, f: usize, record: usize) -> Place;
+}
+
+impl Gather for Input {
+    fn sums(&self, plan: &Plan, bounds: &[f64], value: Value<'_>) -> Result<Vec<Sum>, RunError> {
+        sums(plan, self, bounds, value)
+    }
+    fn select(
+        &self,
+        plan: &Plan,
+        counts: &[u64],
+        wants: &[(usize, u64)],
+        value: Value<'_>,
+    ) -> Result<Vec<f64>, RunError> {
+        select(plan, self, counts, wants, value)
+    }
+    fn first_failing(&self, plan: &Plan, p: &FeatureParams, f: usize) -> Option<(usize, f64)> {
+        first_failing(plan, self, p, f)
+    }
+    fn place(&self, f: usize, record: usize) -> Place {
+        Input::place(self, self.at[f], record)
+    }
+}
+
 /// per feature.
 fn select(
     plan: &Plan,
     input: &Input,
     counts: &[u64],
     wants: &[(usize, u64)],
-    value: &(dyn Fn(usize, Option<f64>) -> Option<f64> + Sync),
+    value: Value<'_>,
 ) -> Result<Vec<f64>, RunError> {
+    let value = |f: usize, x: Option<f64>| value.of(plan, f, x);
     let mut selection = Selection::new(counts, wants);
     while !selection.probes().is_empty() {
         let probes = selection.probes().to_vec();
@@ -401,8 +481,9 @@ fn sums(
     plan: &Plan,
     input: &Input,
     bounds: &[f64],
-    value: &(dyn Fn(usize, Option<f64>) -> Option<f64> + Sync),
+    value: Value<'_>,
 ) -> Result<Vec<Sum>, RunError> {
+    let value = |f: usize, x: Option<f64>| value.of(plan, f, x);
     let start = (bounds.iter().enumerate())
         .map(|(f, &b)| Sum::new(b).map_err(|e| out_of_range(&plan.features[f].column, e)))
         .collect::<Result<Vec<Sum>, RunError>>()?;
@@ -457,7 +538,11 @@ fn ranks_of(f: usize, n: u64, q: f64) -> [(usize, u64); 2] {
 /// Every feature's parameters, over every kept record, as
 /// [`super::prepare::prepare`] computes them for `by key`: the fills, then
 /// the order statistics (clip bounds, robust scaling), then z-scores.
-fn parameters(plan: &Plan, input: &Input, look: &Look) -> Result<Vec<FeatureParams>, RunError> {
+fn parameters(
+    plan: &Plan,
+    input: &dyn Gather,
+    look: &Look,
+) -> Result<Vec<FeatureParams>, RunError> {
     refuse_gaps(plan, input, look)?;
     let fill = fills(plan, input, look)?;
     // The filled values' range: the present values', and the fill's when
@@ -487,7 +572,7 @@ fn parameters(plan: &Plan, input: &Input, look: &Look) -> Result<Vec<FeaturePara
 
 /// A gap no rule fills, and a fill with nothing to fill from, stop the
 /// run: the first feature in recipe order, at its first such record.
-fn refuse_gaps(plan: &Plan, input: &Input, look: &Look) -> Result<(), RunError> {
+fn refuse_gaps(plan: &Plan, input: &dyn Gather, look: &Look) -> Result<(), RunError> {
     for (f, fp) in plan.features.iter().enumerate() {
         let fills = matches!(fp.missing, MissingRule::FillMean | MissingRule::FillMedian);
         if fills && look.present[f] == 0 && look.kept > 0 {
@@ -497,7 +582,7 @@ fn refuse_gaps(plan: &Plan, input: &Input, look: &Look) -> Result<(), RunError> 
         }
         if let (MissingRule::Refuse, Some(r)) = (fp.missing, look.first_gap[f]) {
             return Err(RunError::MissingValue {
-                place: input.place(input.at[f], r),
+                place: input.place(f, r),
             });
         }
     }
@@ -506,7 +591,7 @@ fn refuse_gaps(plan: &Plan, input: &Input, look: &Look) -> Result<(), RunError> 
 
 /// Each feature's fill: a value given, the exact mean or the median of
 /// the values present among the kept records.
-fn fills(plan: &Plan, input: &Input, look: &Look) -> Result<Vec<Option<f64>>, RunError> {
+fn fills(plan: &Plan, input: &dyn Gather, look: &Look) -> Result<Vec<Option<f64>>, RunError> {
     let rule = |f: usize| plan.features[f].missing;
     let d = plan.features.len();
     let mut fill: Vec<Option<f64>> = (0..d)
@@ -519,8 +604,7 @@ fn fills(plan: &Plan, input: &Input, look: &Look) -> Result<Vec<Option<f64>>, Ru
         let bounds: Vec<f64> = (0..d)
             .map(|f| look.lowest[f].abs().max(look.highest[f].abs()))
             .collect();
-        let only_means = |f: usize, x: Option<f64>| x.filter(|_| rule(f) == MissingRule::FillMean);
-        let sums = sums(plan, input, &bounds, &only_means)?;
+        let sums = input.sums(plan, &bounds, Value::ForMean)?;
         for f in (0..d).filter(|&f| rule(f) == MissingRule::FillMean) {
             fill[f] = sums[f].mean();
         }
@@ -530,8 +614,7 @@ fn fills(plan: &Plan, input: &Input, look: &Look) -> Result<Vec<Option<f64>>, Ru
         .flat_map(|f| ranks_of(f, look.present[f], 0.5))
         .collect();
     if !medians.is_empty() {
-        let present = |_: usize, x: Option<f64>| x;
-        let found = select(plan, input, &look.present, &medians, &present)?;
+        let found = input.select(plan, &look.present, &medians, Value::Present)?;
         for (i, pair) in medians.chunks(2).enumerate() {
             let f = pair[0].0;
             fill[f] = Some(quantile(&found, 2 * i, look.present[f], 0.5, |x| x));
@@ -546,7 +629,7 @@ fn fills(plan: &Plan, input: &Input, look: &Look) -> Result<Vec<Option<f64>>, Ru
 /// and largest, where a transform's domain is checked.
 fn ordered(
     plan: &Plan,
-    input: &Input,
+    input: &dyn Gather,
     look: &Look,
     ends: &[(f64, f64)],
     params: &mut [FeatureParams],
@@ -567,9 +650,8 @@ fn ordered(
     let found = match wants.is_empty() {
         true => Vec::new(),
         false => {
-            let filled = |f: usize, x: Option<f64>| x.or(params[f].fill);
             let counts = vec![look.kept; plan.features.len()];
-            select(plan, input, &counts, &wants, &filled)?
+            input.select(plan, &counts, &wants, Value::Filled(params))?
         }
     };
     let mut at = 0;
@@ -609,7 +691,7 @@ fn ordered(
 /// exact mean, then the exact sum of squared deviations from it.
 fn zscores(
     plan: &Plan,
-    input: &Input,
+    input: &dyn Gather,
     ends: &[(f64, f64)],
     params: &mut [FeatureParams],
 ) -> Result<(), RunError> {
@@ -622,20 +704,15 @@ fn zscores(
         })
         .collect();
     let snapshot = params.to_vec();
-    let reshaped = |f: usize, x: Option<f64>| {
-        let p = &snapshot[f];
-        x.or(p.fill).and_then(|x| reshape(p, x))
-    };
-    let means: Vec<f64> = sums(plan, input, &largest, &reshaped)?
-        .iter()
-        .map(|s| s.mean().unwrap_or(0.0))
-        .collect();
+    let means: Vec<f64> = (input
+        .sums(plan, &largest, Value::Reshaped(&snapshot))?
+        .iter())
+    .map(|s| s.mean().unwrap_or(0.0))
+    .collect();
     let bounds: Vec<f64> = (0..d)
         .map(|f| exact::deviation_bound(largest[f], means[f]))
         .collect();
-    let deviation =
-        |f: usize, x: Option<f64>| reshaped(f, x).map(|t| (t - means[f]) * (t - means[f]));
-    let spreads = sums(plan, input, &bounds, &deviation)?;
+    let spreads = input.sums(plan, &bounds, Value::Deviation(&snapshot, &means))?;
     for (f, p) in params.iter_mut().enumerate() {
         p.centre = means[f];
         p.divisor = spreads[f].mean().map_or(0.0, f64::sqrt);
@@ -659,7 +736,7 @@ fn reshape(p: &FeatureParams, x: f64) -> Option<f64> {
 /// transform's domain is bounded below.
 fn reshaped(
     plan: &Plan,
-    input: &Input,
+    input: &dyn Gather,
     p: &FeatureParams,
     f: usize,
     x: f64,
@@ -667,9 +744,9 @@ fn reshaped(
     let Err((transform, help)) = reshape_checked(p, x) else {
         return Ok(reshape(p, x).unwrap_or(f64::NAN));
     };
-    let (record, value) = first_failing(plan, input, p, f).unwrap_or((0, x));
+    let (record, value) = input.first_failing(plan, p, f).unwrap_or((0, x));
     Err(RunError::TransformDomain {
-        place: input.place(input.at[f], record),
+        place: input.place(f, record),
         transform,
         value,
         help,
