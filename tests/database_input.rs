@@ -496,3 +496,47 @@ fn a_query_that_fails_past_the_checked_records_stops_the_run_by_name() {
     );
     assert!(!case.path("out").exists(), "nothing is written");
 }
+
+/// `read passes` over a table split in four partitions (filled in random
+/// order, read by parallel workers): each pass an aggregate query, each
+/// round one query, the sample drawn in the database. Against the same
+/// recipe over the CSV read whole with `sample ... by key`: every member's
+/// segment, the centres, each segment's size, share and means, the
+/// model's parameters and centres to the last digit, the `tally` columns'
+/// counts, means, totals and shares (common::passes::same_segments). A
+/// transform other than `clip` is refused with this route, at its
+/// statement.
+#[test]
+fn a_table_read_in_passes_gives_the_segments_read_whole() {
+    let Some((_pg, case, service)) = coop(4) else {
+        return;
+    };
+    let env = [("PGSERVICEFILE", service.as_str())];
+    for prepare in [
+        "missing fill median\ntransform visits_per_month clip 0..0.995\nscale zscore",
+        "missing fill mean\nmissing drop for online_ratio\nmissing fill 0.1 for coupon_rate\n\
+         transform share_bulk clip 0.01..0.99\nscale robust",
+    ] {
+        let recipe = |input: &str, read: &str| common::passes::recipe_with(input, read, prepare);
+        case.write("whole.assort", &recipe("data/coop_members.csv", ""));
+        case.write(
+            "passes.assort",
+            &recipe("coop_members_split", " database coop read passes"),
+        );
+        case.assort(&["run", "--dry-run", "passes.assort"], &env)
+            .ok()
+            .stdout_has("read in passes in the database: 6,000 records");
+        let kept = common::passes::same_segments(&case, &env);
+        assert!(kept > 5_000, "{kept} members segmented");
+    }
+    let transformed = common::passes::recipe_with(
+        "coop_members_split",
+        " database coop read passes",
+        "missing fill median\ntransform basket_value log1p\nscale zscore",
+    );
+    case.write("passes.assort", &transformed);
+    case.assort(&["check", "passes.assort"], &env)
+        .fails()
+        .stderr_has("`read passes` on a database input")
+        .stderr_has("LN");
+}

@@ -29,37 +29,13 @@ use std::sync::Arc;
 
 /// The demo's numeric recipe, reading `input` with `read`.
 fn recipe(input: &str, read: &str) -> String {
-    recipe_with(
+    common::passes::recipe_with(
         input,
         read,
         "missing fill median
 transform basket_value log1p
 transform visits_per_month clip 0..0.995
 scale zscore",
-    )
-}
-
-/// The demo's numeric recipe with its preparation `prepare`.
-fn recipe_with(input: &str, read: &str, prepare: &str) -> String {
-    format!(
-        r#"recipe "passes" records "members"
-seed 2026
-input "{input}" key member_id{read}
-features tenure_months, visits_per_month, basket_value,
-         share_fresh, share_bulk, share_prepared,
-         online_ratio, coupon_rate
-{prepare}
-tally spend_12m, contactable
-kmeans k 2..6 restarts 10 sample 2000 by key
-choose k by silhouette
-save assignments "out/member_segments.csv"
-save profiles "out/segment_profiles.csv"
-save profiles "out/segment_profiles.json"
-save centroids "out/segment_centroids.csv"
-save model "out/segment_model.json"
-save scoring "out/segment_scoring.sql"
-save report "out/segment_report.html"
-"#
     )
 }
 
@@ -83,30 +59,17 @@ fn case() -> Case {
     case
 }
 
-/// Lines of a file, sorted (assignments come in the input's order in
-/// passes, in key order read whole with `by key`).
-fn sorted_lines(text: &str) -> Vec<String> {
-    let mut lines: Vec<String> = text.lines().map(str::to_string).collect();
-    lines.sort();
-    lines
-}
-
-/// The columns of a profiles table every record decides: segment, label,
-/// size, share and the means.
-fn sizes_and_means(text: &str) -> Vec<Vec<String>> {
-    let rows: Vec<Vec<String>> = text
-        .lines()
-        .map(|l| l.split(',').map(str::to_string).collect())
-        .collect();
-    let keep: Vec<usize> = (rows[0].iter().enumerate())
-        .filter(|(_, h)| {
-            ["segment", "label", "size", "share"].contains(&h.as_str()) || h.ends_with("_mean")
-        })
-        .map(|(i, _)| i)
-        .collect();
-    rows.iter()
-        .map(|r| keep.iter().map(|&i| r[i].clone()).collect())
-        .collect()
+/// The recipe `recipe(input, read)` in passes from Parquet against read
+/// whole from the CSV.
+/// Returns the records segmented.
+fn same_as_read_whole(recipe: impl Fn(&str, &str) -> String) -> usize {
+    let case = case();
+    case.write("whole.assort", &recipe("data/coop_members.csv", ""));
+    case.write(
+        "passes.assort",
+        &recipe("data/members.parquet", " read passes"),
+    );
+    common::passes::same_segments(&case, &[])
 }
 
 #[test]
@@ -125,92 +88,13 @@ fn other_preparations_in_passes_are_those_read_whole() {
         "missing fill median\nmissing drop for coupon_rate\n\
          transform basket_value sqrt\ntransform tenure_months clip 0.05..1\nscale range",
     ] {
-        let kept = same_as_read_whole(|input, read| recipe_with(input, read, prepare));
+        let kept =
+            same_as_read_whole(|input, read| common::passes::recipe_with(input, read, prepare));
         assert!(
             kept < 6_000,
             "the records with a gap are left out: {kept} kept"
         );
     }
-}
-
-/// The recipe `recipe(input, read)` in passes from Parquet against read
-/// whole from the CSV.
-/// Returns the records segmented.
-fn same_as_read_whole(recipe: impl Fn(&str, &str) -> String) -> usize {
-    let case = case();
-    case.write("whole.assort", &recipe("data/coop_members.csv", ""));
-    case.write(
-        "passes.assort",
-        &recipe("data/members.parquet", " read passes"),
-    );
-    case.run("whole.assort").ok();
-    let whole = |f: &str| case.read(&format!("out/{f}"));
-    let (assigned, centres, profiles, model) = (
-        whole("member_segments.csv"),
-        whole("segment_centroids.csv"),
-        whole("segment_profiles.csv"),
-        whole("segment_model.json"),
-    );
-    let profiles_json = whole("segment_profiles.json");
-    case.run("passes.assort")
-        .ok()
-        .stdout_has("the records were read in passes");
-    let passes = |f: &str| case.read(&format!("out/{f}"));
-    assert_eq!(
-        sorted_lines(&passes("member_segments.csv")),
-        sorted_lines(&assigned)
-    );
-    assert_eq!(passes("segment_centroids.csv"), centres);
-    assert_eq!(
-        sizes_and_means(&passes("segment_profiles.csv")),
-        sizes_and_means(&profiles)
-    );
-    // The model less its drift reference (the sample's, in passes) and
-    // the input's name and digest.
-    let scoring_part = |m: &str| -> serde_json::Value {
-        let mut v: serde_json::Value = serde_json::from_str(m).unwrap();
-        let o = v.as_object_mut().unwrap();
-        o.remove("drift");
-        o["provenance"].as_object_mut().unwrap().remove("input");
-        o["provenance"]
-            .as_object_mut()
-            .unwrap()
-            .remove("input_sha256");
-        v
-    };
-    assert_eq!(
-        scoring_part(&passes("segment_model.json")),
-        scoring_part(&model),
-        "the parameters, centres and segments' means to the last digit"
-    );
-    // The tallies' counts, means, totals and shares over every record.
-    let tallied = |json: &str| -> Vec<serde_json::Value> {
-        let v: serde_json::Value = serde_json::from_str(json).unwrap();
-        let mut out = Vec::new();
-        for column in v["values"].as_array().unwrap() {
-            let groups = std::iter::once(&column["overall"])
-                .chain(column["segments"].as_array().unwrap().iter());
-            for g in groups {
-                let mut g = g.clone();
-                let o = g.as_object_mut().unwrap();
-                for sampled in ["median", "q1", "q3"] {
-                    o.remove(sampled);
-                }
-                out.push(g);
-            }
-        }
-        out
-    };
-    let (here, there) = (
-        tallied(&passes("segment_profiles.json")),
-        tallied(&profiles_json),
-    );
-    // Two columns, each over all records and at least two segments.
-    assert!(here.len() >= 2 * 3, "{here:?}");
-    assert_eq!(here, there);
-    let kept = assigned.lines().count() - 1;
-    assert_eq!(passes("member_segments.csv").lines().count() - 1, kept);
-    kept
 }
 
 #[test]
@@ -316,11 +200,11 @@ fn a_value_outside_the_transform_is_located_as_read_whole() {
     let prepare = "missing fill median\ntransform share_fresh log";
     case.write(
         "whole.assort",
-        &recipe_with("data/coop_members.csv", "", prepare),
+        &common::passes::recipe_with("data/coop_members.csv", "", prepare),
     );
     case.write(
         "passes.assort",
-        &recipe_with("data/members.parquet", " read passes", prepare),
+        &common::passes::recipe_with("data/members.parquet", " read passes", prepare),
     );
     let place = |run: common::case::Run| {
         let text = common::case::unwrapped(&run.stderr());

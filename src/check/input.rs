@@ -23,16 +23,6 @@ impl Checker {
         let opts = self.options("input", options, vocab::INPUT_OPTIONS);
         let read = self.read_option(&opts);
         if let Some(connection) = opts.get("database") {
-            if let (Some(span), Some(o)) = (self.read_passes, opts.get("read")) {
-                self.bad_value(
-                    "read",
-                    &o.value.node,
-                    "`whole` for a database input, for now",
-                    span,
-                    "a table read in passes, its rounds run in the database, is not built yet; `sample ... by key` with the table read whole gives the same segments",
-                );
-                return None;
-            }
             return self.database_input(s, path, &opts, connection);
         }
         let separator = self.separator(&opts);

@@ -40,6 +40,18 @@ impl Checker {
                 StatementKind::Save { what, .. } if what.node == "handoff" => {
                     Some("`save handoff`")
                 }
+                StatementKind::Transform {
+                    action: TransformAction::Named(_),
+                    ..
+                } if self.database => {
+                    self.err(CheckError::NotWithMethod {
+                        what: "a `transform` other than `clip`".into(),
+                        method: "`read passes` on a database input".into(),
+                        span: s.span,
+                        help: "read in passes, the database prepares every value for the rounds, and its `LN` and `SQRT` may differ from assort's in the last bit, which would change segments silently; compute the column in the recipe's query or a view (the database's own arithmetic then defines it), or read the table whole".into(),
+                    });
+                    None
+                }
                 _ => None,
             };
             if let Some(what) = refused {

@@ -39,7 +39,7 @@ pub use crate::sql_words::{comment, ident, number, text};
 /// A number column as the queries read it: a gap when its text is empty
 /// after trimming spaces (NULL, or `''` in an all-text table), else the
 /// value cast to a double (see the module documentation).
-fn read_number(column: &str) -> String {
+pub(crate) fn read_number(column: &str) -> String {
     let col = ident(column);
     format!("CASE WHEN TRIM(CAST({col} AS VARCHAR)) = '' THEN NULL ELSE CAST({col} AS DOUBLE PRECISION) END")
 }

@@ -34,6 +34,16 @@ use crate::scale::select::{self, Selection, Tally};
 use crate::scale::stream::{rank_of, Draw, Drawn, PassError, Passes, Streamed};
 use ndarray::Array2;
 
+mod database;
+
+/// Where a run in passes reads its records: a Parquet input read here, or
+/// a table or query whose passes run in its database.
+#[derive(Debug, Clone)]
+pub enum Records {
+    Parquet(Input),
+    Database(database::InDatabase),
+}
+
 /// The input opened for passes, with where its columns are.
 #[derive(Debug, Clone)]
 pub struct Input {
@@ -130,6 +140,8 @@ pub struct Held {
     /// a row group's assignment lines waiting to be written.
     pub bytes: usize,
     pub sample: usize,
+    /// The passes and rounds run in the input's database.
+    pub database: bool,
 }
 
 /// Bytes the run over the sample holds per sample record and feature (the
@@ -144,6 +156,9 @@ const LINE_BYTES: usize = 96;
 
 /// What a run in passes of `plan` will hold, on this machine's workers.
 pub fn held(plan: &Plan) -> Result<Held, RunError> {
+    if let Some(source) = plan.input.source() {
+        return database::held(plan, &source);
+    }
     let input = Input::open(plan)?;
     let records = input.passes.records();
     let sample = match &plan.method {
@@ -168,12 +183,21 @@ pub fn held(plan: &Plan) -> Result<Held, RunError> {
             + sample * (SAMPLE_PER_RECORD + SAMPLE_PER_VALUE * d)
             + workers * largest_group * LINE_BYTES,
         sample,
+        database: false,
     })
 }
 
 impl Held {
     /// In words, for the terminal and the dry run.
     pub fn words(&self) -> String {
+        if self.database {
+            return format!(
+                "read in passes in the database: {} records, each pass and round an aggregate query there, holding at most about {} beyond the program (the sample of {}, a batch of assignments)",
+                crate::text::thousands(self.records),
+                crate::text::bytes(self.bytes),
+                crate::text::thousands(self.sample),
+            );
+        }
         format!(
             "read in passes: {} records in {} row groups, holding at most about {} beyond the program (the sample of {}, an 8-byte digest per record, a batch per worker)",
             crate::text::thousands(self.records),
@@ -792,12 +816,12 @@ fn first_failing(plan: &Plan, input: &Input, p: &FeatureParams, f: usize) -> Opt
 
 /// The sample as a table, in rank order (a record's "line" is its place
 /// in the sample, for it is never reported).
-fn sample_table(input: &Input, drawn: &[Drawn], d: usize) -> load::Table {
+fn sample_table(fields: Vec<usize>, drawn: &[Drawn], d: usize) -> load::Table {
     let mut table = load::Table {
         keys: load::Keys::default(),
         lines: Vec::with_capacity(drawn.len()),
         numeric: vec![load::NumericColumn::default(); d],
-        fields: input.at.iter().map(|a| a + 1).collect(),
+        fields,
         text_fields: Vec::new(),
         text: Vec::new(),
         digest: None,
@@ -956,7 +980,7 @@ fn segment_sums(
 /// chosen centres.
 #[derive(Debug, Clone)]
 pub struct InPasses {
-    pub input: Input,
+    pub input: Records,
     pub params: Vec<FeatureParams>,
     /// The chosen segments' centres, k rows of d in number order.
     pub centres: Vec<f64>,
@@ -974,7 +998,7 @@ pub(super) struct Measured {
     pub table: load::Table,
     pub prepared: Prepared,
     pub candidates: Vec<Candidate>,
-    pub input: Input,
+    pub input: Records,
     pub look_records: u64,
     pub dropped_by: Vec<(String, usize)>,
     look: Look,
@@ -988,7 +1012,6 @@ pub(super) fn measure(
     km: &KMeansPlan,
     progress: &dyn Fn(Step),
 ) -> Result<Measured, RunError> {
-    let input = Input::open(plan)?;
     let size = km.sample.unwrap_or(usize::MAX);
     // The passes before the fit, as steps of a progress display.
     let step = |done: usize| {
@@ -999,23 +1022,42 @@ pub(super) fn measure(
         })
     };
     step(0);
-    let mut look = look(plan, &input, size)?;
-    step(1);
-    keys_once(plan, &input, std::mem::take(&mut look.ranks))?;
-    super::go_on("after reading the input")?;
-    step(2);
-    let params = parameters(plan, &input, &look)?;
-    step(3);
     let d = plan.features.len();
-    let drawn = std::mem::replace(&mut look.draw, Draw::new(0)).finish();
-    let table = sample_table(&input, &drawn, d + plan.tally.len());
+    let (input, look, params, drawn) = match plan.input.source() {
+        None => {
+            let input = Input::open(plan)?;
+            let mut look = look(plan, &input, size)?;
+            step(1);
+            keys_once(plan, &input, std::mem::take(&mut look.ranks))?;
+            super::go_on("after reading the input")?;
+            step(2);
+            let params = parameters(plan, &input, &look)?;
+            let drawn = std::mem::replace(&mut look.draw, Draw::new(0)).finish();
+            (Records::Parquet(input), look, params, drawn)
+        }
+        Some(source) => {
+            let input = database::InDatabase::open(plan, &source)?;
+            let look = input.look(plan)?;
+            step(1);
+            input.keys_once()?;
+            super::go_on("after looking at the input")?;
+            step(2);
+            let params = parameters(plan, &input, &look)?;
+            let drawn = input.sample(plan.seed, size.min(look.kept as usize))?;
+            (Records::Database(input), look, params, drawn)
+        }
+    };
+    step(3);
+    let fields: Vec<usize> = match &input {
+        Records::Parquet(i) => i.at.iter().map(|a| a + 1).collect(),
+        Records::Database(_) => (2..d + plan.tally.len() + 2).collect(),
+    };
+    let mut table = sample_table(fields, &drawn, d + plan.tally.len());
+    if let Records::Database(db) = &input {
+        table.target = Some(db.target.clone());
+    }
     let prepared = super::prepare::prepare_given(plan, &table, params.clone())?;
     let shifts = shifts(&params, &look)?;
-    let mut engine = Streamed {
-        passes: &input.passes,
-        params: &params,
-        shifts: &shifts,
-    };
     let sample = prepared.matrix.view();
     let driven = super::driven::Driven {
         sample,
@@ -1023,7 +1065,31 @@ pub(super) fn measure(
         labelled: sample,
         every_record: false,
     };
-    let candidates = driven.each_k(plan, km, &mut engine, input.failed(), progress)?;
+    let candidates = match &input {
+        Records::Parquet(input) => {
+            let mut engine = Streamed {
+                passes: &input.passes,
+                params: &params,
+                shifts: &shifts,
+            };
+            driven.each_k(plan, km, &mut engine, input.failed(), progress)?
+        }
+        Records::Database(input) => {
+            let mut db = input.engine();
+            let mut engine = crate::scale::sql::InEngine {
+                engine: &mut *db,
+                source: input.kept_source(),
+                features: (params.iter().enumerate())
+                    .map(|(f, p)| input.prepared(p, f))
+                    .collect(),
+                shifts: &shifts,
+            };
+            let failed = |e: crate::scale::postgres::DbError| RunError::Database {
+                reason: e.to_string(),
+            };
+            driven.each_k(plan, km, &mut engine, failed, progress)?
+        }
+    };
     let dropped_by = (plan.features.iter().enumerate())
         .filter(|(_, fp)| fp.missing == MissingRule::DropRow)
         .map(|(f, fp)| (fp.column.clone(), look.gaps[f] as usize))
@@ -1053,7 +1119,10 @@ impl Measured {
     ) -> Result<InPasses, RunError> {
         let centres: Vec<f64> = numbered.fit.centres.iter().copied().collect();
         let params = self.prepared.features.clone();
-        let sums = segment_sums(plan, &self.input, &params, &centres, &self.look)?;
+        let sums = match &self.input {
+            Records::Parquet(input) => segment_sums(plan, input, &params, &centres, &self.look)?,
+            Records::Database(input) => input.segment_sums(plan, &params, &centres, &self.look)?,
+        };
         every_record(profiles, overall, &sums);
         Ok(InPasses {
             input: self.input.clone(),
@@ -1147,11 +1216,24 @@ impl InPasses {
             crate::output::files::assignments_csv(key, &super::Assignments::default(), label);
         out.write_all(&header.bytes).map_err(write_failed)?;
         let mut formula_like = header.formula_like;
+        let input = match &self.input {
+            Records::Parquet(input) => input,
+            Records::Database(db) => {
+                let mut write = |keys: &[&str], rows: Vec<f64>| -> Result<(), RunError> {
+                    let (lines, risky) = self.lines(keys, rows, key, label, &centres, &header);
+                    out.write_all(&lines).map_err(write_failed)?;
+                    formula_like += risky;
+                    Ok(())
+                };
+                db.assignments(&self.params, &mut write)?;
+                return Ok(formula_like);
+            }
+        };
         let workers = rayon::current_num_threads().max(1);
-        for window in self.input.passes.groups().chunks(workers) {
+        for window in input.passes.groups().chunks(workers) {
             let parts: Vec<Result<(Vec<u8>, usize), RunError>> = window
                 .par_iter()
-                .map(|g| self.group_lines(g, key, label, &centres, &header))
+                .map(|g| self.group_lines(input, g, key, label, &centres, &header))
                 .collect();
             for part in parts {
                 let (lines, risky) = part?;
@@ -1166,6 +1248,7 @@ impl InPasses {
     /// batch; and the cells among them a spreadsheet would run.
     fn group_lines(
         &self,
+        input: &Input,
         g: &crate::parquet::Group,
         key: &str,
         label: &(dyn Fn(usize) -> String + Sync),
@@ -1176,7 +1259,7 @@ impl InPasses {
         let mut lines: Vec<u8> = Vec::new();
         let mut risky = 0;
         let mut row = vec![0.0; d];
-        let passes = &self.input.passes;
+        let passes = &input.passes;
         passes
             .read_one(g, true, |first, batch_keys, values| {
                 let mut keys: Vec<&str> = Vec::with_capacity(batch_keys.len());
@@ -1187,25 +1270,42 @@ impl InPasses {
                         rows.extend_from_slice(&row);
                     }
                 }
-                let x = Array2::from_shape_vec((keys.len(), d), rows)
-                    .expect("d values were pushed with each key");
-                let mut assignments = super::Assignments::with_capacity(keys.len());
-                let nearest = kmeans::nearest_with_margin(x.view(), centres.view());
-                for (key, (s, distance, margin)) in keys.iter().zip(nearest) {
-                    assignments.push(super::Assignment {
-                        key,
-                        segment: self.numbers[s as usize],
-                        distance,
-                        margin,
-                    });
-                }
-                let csv = crate::output::files::assignments_csv(key, &assignments, label);
-                let body = csv.bytes.get(header.bytes.len()..).unwrap_or_default();
-                lines.extend_from_slice(body);
-                risky += csv.formula_like - header.formula_like;
+                let (batch, batch_risky) = self.lines(&keys, rows, key, label, centres, header);
+                lines.extend_from_slice(&batch);
+                risky += batch_risky;
                 Ok(())
             })
-            .map_err(self.input.failed())?;
+            .map_err(input.failed())?;
         Ok((lines, risky))
+    }
+
+    /// The assignment lines of the records keyed `keys` whose prepared
+    /// values are `rows` (one slice), without the header; and the cells
+    /// among them a spreadsheet would run.
+    fn lines(
+        &self,
+        keys: &[&str],
+        rows: Vec<f64>,
+        key: &str,
+        label: &(dyn Fn(usize) -> String + Sync),
+        centres: &Array2<f64>,
+        header: &crate::output::files::Csv,
+    ) -> (Vec<u8>, usize) {
+        let d = self.params.len();
+        let x = Array2::from_shape_vec((keys.len(), d), rows)
+            .expect("d values were pushed with each key");
+        let mut assignments = super::Assignments::with_capacity(keys.len());
+        let nearest = kmeans::nearest_with_margin(x.view(), centres.view());
+        for (key, (s, distance, margin)) in keys.iter().zip(nearest) {
+            assignments.push(super::Assignment {
+                key,
+                segment: self.numbers[s as usize],
+                distance,
+                margin,
+            });
+        }
+        let csv = crate::output::files::assignments_csv(key, &assignments, label);
+        let body = csv.bytes.get(header.bytes.len()..).unwrap_or_default();
+        (body.to_vec(), csv.formula_like - header.formula_like)
     }
 }

@@ -181,7 +181,9 @@ fn sum_of(total: Option<&str>, count: Option<&str>, bound: f64) -> Result<Sum, S
 /// over the kept records of `source`, as text; no row past the last.
 pub fn ranked_query(source: &str, kept: &str, expr: &str, rank: u64) -> String {
     format!(
-        "SELECT {} FROM (SELECT CAST({expr} AS DOUBLE PRECISION) AS v FROM {source} WHERE {kept}) AS values_kept\nWHERE v IS NOT NULL\nORDER BY v\nOFFSET {rank} LIMIT 1",
+        // The text gets a name of its own: `ORDER BY v` would otherwise
+        // sort by it (PostgreSQL names a cast of `v` `v`), not by value.
+        "SELECT {} AS ranked_value FROM (SELECT CAST({expr} AS DOUBLE PRECISION) AS v FROM {source} WHERE {kept}) AS values_kept\nWHERE v IS NOT NULL\nORDER BY v\nOFFSET {rank} LIMIT 1",
         as_text("v")
     )
 }

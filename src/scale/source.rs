@@ -21,8 +21,13 @@ pub struct Source {
 /// A column's type as assort reads it.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub enum Class {
-    /// Integers, decimals and floating-point numbers.
+    /// Integers, decimals and double-precision numbers: a double holds
+    /// each as its text would read.
     Number,
+    /// Single-precision numbers (`real`): read through their text (as an
+    /// export writes them: `0.09`), since the double nearest that text is
+    /// not the single's own value (0.09000000357627869).
+    Single,
     /// Text, and types whose text is a plain value (yes/no, identifiers).
     Text,
     /// Anything else (a date, bytes, a list), in words.
@@ -119,9 +124,9 @@ fn as_text(columns: &[&str]) -> Vec<String> {
 }
 
 /// The `ORDER BY` term for a key of `class`.
-fn key_order(key: &str, class: &Class) -> String {
+pub fn key_order(key: &str, class: &Class) -> String {
     match class {
-        Class::Number => ident(key),
+        Class::Number | Class::Single => ident(key),
         _ => format!("CAST({} AS TEXT) COLLATE \"C\"", ident(key)),
     }
 }
@@ -143,7 +148,8 @@ pub fn is_table_name(text: &str) -> bool {
 /// The class of a PostgreSQL type, by its name.
 pub fn class_of(type_name: &str) -> Class {
     match type_name {
-        "int2" | "int4" | "int8" | "float4" | "float8" | "numeric" | "oid" => Class::Number,
+        "int2" | "int4" | "int8" | "float8" | "numeric" | "oid" => Class::Number,
+        "float4" => Class::Single,
         "text" | "varchar" | "bpchar" | "name" | "char" | "bool" | "uuid" | "citext" => Class::Text,
         "date" => Class::Other("a date".into()),
         "timestamp" | "timestamptz" | "time" | "timetz" => Class::Other("a time".into()),

@@ -5,6 +5,7 @@
 
 pub mod case;
 pub mod kinds;
+pub mod passes;
 pub mod pg;
 
 use ndarray::Array2;
