@@ -540,3 +540,64 @@ fn a_table_read_in_passes_gives_the_segments_read_whole() {
         .stderr_has("`read passes` on a database input")
         .stderr_has("LN");
 }
+
+/// A server that dies between two rounds of a run in passes stops the run
+/// with a message naming the connection and the table; nothing is
+/// written and the outputs of the run before are intact. (The run
+/// announces each round and waits, `ASSORT_TEST_ROUND_PAUSE_MS`; the
+/// server is stopped as a crash would stop it, `pg_ctl stop -m
+/// immediate`.)
+#[test]
+fn a_server_killed_between_rounds_stops_the_run_and_keeps_earlier_outputs() {
+    use std::io::BufRead;
+    let Some((pg, case, service)) = coop(1) else {
+        return;
+    };
+    let env = [("PGSERVICEFILE", service.as_str())];
+    let recipe = common::passes::recipe_with(
+        "coop_members",
+        " database coop read passes",
+        "missing fill median\nscale zscore",
+    );
+    case.write("passes.assort", &recipe);
+    case.assort(&["run", "passes.assort"], &env).ok();
+    let before = case.outputs::<&str>(&[]);
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_assort"))
+        .args(["run", "passes.assort"])
+        .current_dir(case.path(""))
+        .env("PGSERVICEFILE", &service)
+        .env("ASSORT_TEST_ROUND_PAUSE_MS", "300")
+        .env("NO_COLOR", "1")
+        .stdout(std::process::Stdio::null())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut said = String::new();
+    let mut lines = std::io::BufReader::new(child.stderr.take().unwrap()).lines();
+    for line in lines.by_ref() {
+        let line = line.unwrap();
+        said.push_str(&line);
+        said.push('\n');
+        if line == "assort-test: round 3" {
+            pg.kill().unwrap();
+            break;
+        }
+    }
+    for line in lines {
+        said.push_str(&line.unwrap());
+        said.push('\n');
+    }
+    let status = child.wait().unwrap();
+    assert!(!status.success(), "the run fails:\n{said}");
+    let said = common::case::unwrapped(&said);
+    assert!(said.contains("`coop`"), "the connection is named:\n{said}");
+    assert!(
+        said.contains("table `coop_members` on connection `coop`"),
+        "the table is named:\n{said}"
+    );
+    assert_eq!(
+        case.outputs::<&str>(&[]),
+        before,
+        "the outputs of the run before are intact"
+    );
+}

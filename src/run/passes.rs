@@ -1076,7 +1076,7 @@ pub(super) fn measure(
         }
         Records::Database(input) => {
             let mut db = input.engine();
-            let mut engine = crate::scale::sql::InEngine {
+            let engine = crate::scale::sql::InEngine {
                 engine: &mut *db,
                 source: input.kept_source(),
                 features: (params.iter().enumerate())
@@ -1085,7 +1085,11 @@ pub(super) fn measure(
                 shifts: &shifts,
             };
             let failed = |e: crate::scale::postgres::DbError| RunError::Database {
-                reason: e.to_string(),
+                reason: format!("{e} (reading {})", input.shown),
+            };
+            let mut engine = database::Announced {
+                inner: engine,
+                rounds: 0,
             };
             driven.each_k(plan, km, &mut engine, failed, progress)?
         }

@@ -142,6 +142,25 @@ impl Postgres {
         })
     }
 
+    /// Stops the server at once, as a crash or a killed server would end
+    /// (`pg_ctl stop -m immediate`).
+    #[allow(dead_code)] // the tests stop a server; the benches do not
+    pub fn kill(&self) -> Result<(), String> {
+        let data = self.dir.path().join("data");
+        self.server_program(
+            "pg_ctl",
+            &[
+                "-D".as_ref(),
+                data.as_os_str(),
+                "-m".as_ref(),
+                "immediate".as_ref(),
+                "-w".as_ref(),
+                "stop".as_ref(),
+            ],
+        )
+        .map(|_| ())
+    }
+
     /// Restarts the server (for settings read at start only).
     pub fn restart(&self) -> Result<(), String> {
         self.pg_ctl("restart").map(|_| ())

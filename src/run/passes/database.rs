@@ -547,3 +547,27 @@ pub(super) fn held(plan: &Plan, source: &Source) -> Result<super::Held, RunError
         database: true,
     })
 }
+
+/// Rounds as `inner` runs them. A test hook: with
+/// `ASSORT_TEST_ROUND_PAUSE_MS` set, each round is announced on standard
+/// error (`assort-test: round N`) and waits that long first, so that
+/// tests/database_input.rs can stop the server between two rounds.
+pub(super) struct Announced<R> {
+    pub inner: R,
+    pub rounds: usize,
+}
+
+impl<R: crate::scale::drive::Rounds> crate::scale::drive::Rounds for Announced<R> {
+    type Error = R::Error;
+    fn round(&mut self, centres: &[f64]) -> Result<crate::engine::exact::RoundSums, R::Error> {
+        if let Some(ms) = std::env::var("ASSORT_TEST_ROUND_PAUSE_MS")
+            .ok()
+            .and_then(|v| v.parse::<u64>().ok())
+        {
+            self.rounds += 1;
+            eprintln!("assort-test: round {}", self.rounds);
+            std::thread::sleep(std::time::Duration::from_millis(ms));
+        }
+        self.inner.round(centres)
+    }
+}
