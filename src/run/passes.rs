@@ -1023,30 +1023,7 @@ pub(super) fn measure(
     };
     step(0);
     let d = plan.features.len();
-    let (input, look, params, drawn) = match plan.input.source() {
-        None => {
-            let input = Input::open(plan)?;
-            let mut look = look(plan, &input, size)?;
-            step(1);
-            keys_once(plan, &input, std::mem::take(&mut look.ranks))?;
-            super::go_on("after reading the input")?;
-            step(2);
-            let params = parameters(plan, &input, &look)?;
-            let drawn = std::mem::replace(&mut look.draw, Draw::new(0)).finish();
-            (Records::Parquet(input), look, params, drawn)
-        }
-        Some(source) => {
-            let input = database::InDatabase::open(plan, &source)?;
-            let look = input.look(plan)?;
-            step(1);
-            input.keys_once()?;
-            super::go_on("after looking at the input")?;
-            step(2);
-            let params = parameters(plan, &input, &look)?;
-            let drawn = input.sample(plan.seed, size.min(look.kept as usize))?;
-            (Records::Database(input), look, params, drawn)
-        }
-    };
+    let (input, look, params, drawn) = read_up_to_fit(plan, size, &step)?;
     step(3);
     let fields: Vec<usize> = match &input {
         Records::Parquet(i) => i.at.iter().map(|a| a + 1).collect(),
@@ -1065,35 +1042,7 @@ pub(super) fn measure(
         labelled: sample,
         every_record: false,
     };
-    let candidates = match &input {
-        Records::Parquet(input) => {
-            let mut engine = Streamed {
-                passes: &input.passes,
-                params: &params,
-                shifts: &shifts,
-            };
-            driven.each_k(plan, km, &mut engine, input.failed(), progress)?
-        }
-        Records::Database(input) => {
-            let mut db = input.engine();
-            let engine = crate::scale::sql::InEngine {
-                engine: &mut *db,
-                source: input.kept_source(),
-                features: (params.iter().enumerate())
-                    .map(|(f, p)| input.prepared(p, f))
-                    .collect(),
-                shifts: &shifts,
-            };
-            let failed = |e: crate::scale::postgres::DbError| RunError::Database {
-                reason: format!("{e} (reading {})", input.shown),
-            };
-            let mut engine = database::Announced {
-                inner: engine,
-                rounds: 0,
-            };
-            driven.each_k(plan, km, &mut engine, failed, progress)?
-        }
-    };
+    let candidates = fit_each_k(plan, km, &input, &driven, (&params, &shifts), progress)?;
     let dropped_by = (plan.features.iter().enumerate())
         .filter(|(_, fp)| fp.missing == MissingRule::DropRow)
         .map(|(f, fp)| (fp.column.clone(), look.gaps[f] as usize))
@@ -1107,6 +1056,81 @@ pub(super) fn measure(
         dropped_by,
         look,
     })
+}
+
+/// The passes before the fit, on either kind of input: the look, the
+/// keys, the parameters and the sample drawn.
+#[allow(clippy::type_complexity)]
+fn read_up_to_fit(
+    plan: &Plan,
+    size: usize,
+    step: &dyn Fn(usize),
+) -> Result<(Records, Look, Vec<FeatureParams>, Vec<Drawn>), RunError> {
+    match plan.input.source() {
+        None => {
+            let input = Input::open(plan)?;
+            let mut look = look(plan, &input, size)?;
+            step(1);
+            keys_once(plan, &input, std::mem::take(&mut look.ranks))?;
+            super::go_on("after reading the input")?;
+            step(2);
+            let params = parameters(plan, &input, &look)?;
+            let drawn = std::mem::replace(&mut look.draw, Draw::new(0)).finish();
+            Ok((Records::Parquet(input), look, params, drawn))
+        }
+        Some(source) => {
+            let input = database::InDatabase::open(plan, &source)?;
+            let look = input.look(plan)?;
+            step(1);
+            input.keys_once()?;
+            super::go_on("after looking at the input")?;
+            step(2);
+            let params = parameters(plan, &input, &look)?;
+            let drawn = input.sample(plan.seed, size.min(look.kept as usize))?;
+            Ok((Records::Database(input), look, params, drawn))
+        }
+    }
+}
+
+/// One candidate per k, refined by rounds where the records are: streamed
+/// from Parquet, or run in the database.
+fn fit_each_k(
+    plan: &Plan,
+    km: &KMeansPlan,
+    input: &Records,
+    driven: &super::driven::Driven<'_>,
+    (params, shifts): (&[FeatureParams], &Shifts),
+    progress: &dyn Fn(Step),
+) -> Result<Vec<Candidate>, RunError> {
+    match input {
+        Records::Parquet(input) => {
+            let mut engine = Streamed {
+                passes: &input.passes,
+                params,
+                shifts,
+            };
+            driven.each_k(plan, km, &mut engine, input.failed(), progress)
+        }
+        Records::Database(input) => {
+            let mut db = input.engine();
+            let engine = crate::scale::sql::InEngine {
+                engine: &mut *db,
+                source: input.kept_source(),
+                features: (params.iter().enumerate())
+                    .map(|(f, p)| input.prepared(p, f))
+                    .collect(),
+                shifts,
+            };
+            let failed = |e: crate::scale::postgres::DbError| RunError::Database {
+                reason: format!("{e} (reading {})", input.shown),
+            };
+            let mut engine = database::Announced {
+                inner: engine,
+                rounds: 0,
+            };
+            driven.each_k(plan, km, &mut engine, failed, progress)
+        }
+    }
 }
 
 impl Measured {
