@@ -1030,6 +1030,7 @@ pub(super) fn measure(
         Records::Database(_) => (2..d + plan.tally.len() + 2).collect(),
     };
     let mut table = sample_table(fields, &drawn, d + plan.tally.len());
+    drop(drawn);
     if let Records::Database(db) = &input {
         table.target = Some(db.target.clone());
     }

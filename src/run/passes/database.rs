@@ -233,22 +233,28 @@ impl InDatabase {
             size,
             Dialect::Postgres,
         );
-        let rows = self.read(&sql, "drawing the sample")?;
-        rows.into_iter()
-            .map(|row| {
-                let mut cells = row.into_iter();
-                let key = cells.next().flatten().unwrap_or_default();
-                let values = cells
-                    .map(|v| match v {
-                        None => Ok(None),
-                        Some(t) => crate::text::parse_number(&t).map(Some).ok_or_else(|| {
-                            self.odd("drawing the sample", "a value that is not a number")
-                        }),
-                    })
-                    .collect::<Result<Vec<Option<f64>>, RunError>>()?;
-                Ok((crate::scale::sample::digest(seed, &key), key, values))
-            })
-            .collect()
+        // Streamed, each row parsed as it arrives: the sample is held as
+        // numbers, never as the text of its rows.
+        let mut drawn: Vec<super::Drawn> = Vec::new();
+        let bad = || self.odd("drawing the sample", "a value that is not a number");
+        let mut db = self.engine();
+        db.each_row(&sql, "drawing the sample", |row| {
+            let key = row.first().copied().flatten().unwrap_or_default();
+            let values = (row[1..].iter())
+                .map(|v| match v {
+                    None => Ok(None),
+                    Some(t) => crate::text::parse_number(t).map(Some).ok_or_else(bad),
+                })
+                .collect::<Result<Vec<Option<f64>>, RunError>>()?;
+            drawn.push((
+                crate::scale::sample::digest(seed, key),
+                key.to_string(),
+                values,
+            ));
+            Ok(())
+        })
+        .map_err(database)??;
+        Ok(drawn)
     }
 
     /// The kept records as a source.
