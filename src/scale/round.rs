@@ -74,8 +74,15 @@ pub(crate) fn distances(
         selected.push(format!("{c} AS c{i}"));
         kept.push(format!("c{i}"));
     }
+    // `OFFSET 0` here too: a feature that is an expression (a fill, a
+    // clip, a scaling) would otherwise be written out again in each of the
+    // 2k terms of the distances that name it.
     let mut q = String::from("WITH prepared AS (\n  SELECT ");
-    let _ = writeln!(q, "{}\n  FROM {source}\n),", selected.join(",\n         "));
+    let _ = writeln!(
+        q,
+        "{}\n  FROM {source}\n  OFFSET 0\n),",
+        selected.join(",\n         ")
+    );
     let _ = write!(q, "distances AS (\n  SELECT {}", kept.join(", "));
     for s in 0..k {
         let terms: Vec<String> = (xs.iter().enumerate())
