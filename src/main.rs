@@ -62,25 +62,15 @@ enum Command {
         /// The recipe to start from, or to save to (`session.assort` unless
         /// given).
         recipe: Option<PathBuf>,
-        /// A folder outside the recipe's own that it may read and write.
-        #[arg(long = "allow-dir", value_name = "FOLDER")]
-        allow_dirs: Vec<PathBuf>,
-        /// Accept an `--allow-dir` that is the whole disk or a home folder.
-        #[arg(long = "allow-wide")]
-        allow_wide: bool,
+        #[command(flatten)]
+        allowed: Allowed,
     },
     /// The language server, over standard input and output: diagnostics,
     /// hover help, completion, go to definition, symbols and formatting
     /// for recipes in any editor that speaks the protocol.
     Lsp {
-        /// A folder outside each recipe's own that recipes opened in the
-        /// editor may read and write (repeatable; put it in the editor's
-        /// server command, see docs/editors.md).
-        #[arg(long = "allow-dir", value_name = "FOLDER")]
-        allow_dirs: Vec<PathBuf>,
-        /// Accept an `--allow-dir` that is the whole disk or a home folder.
-        #[arg(long = "allow-wide")]
-        allow_wide: bool,
+        #[command(flatten)]
+        allowed: Allowed,
     },
     /// Rewrite recipes in the canonical layout (comments kept).
     Fmt {
@@ -104,10 +94,9 @@ enum Command {
     },
 }
 
+/// What the person running a recipe allows it beyond its own folder.
 #[derive(Args)]
-struct RecipeArgs {
-    /// The recipe file.
-    recipe: PathBuf,
+struct Allowed {
     /// A folder outside the recipe's own that it may read and write
     /// (repeatable).
     #[arg(long = "allow-dir", value_name = "FOLDER")]
@@ -117,6 +106,29 @@ struct RecipeArgs {
     /// write anything there).
     #[arg(long = "allow-wide")]
     allow_wide: bool,
+    /// A table on the recipe's database connection that `save table` may
+    /// replace (repeatable): a recipe writes into a database only there.
+    #[arg(long = "allow-table", value_name = "TABLE")]
+    allow_tables: Vec<String>,
+}
+
+impl Allowed {
+    /// The check's options, or `None` (said on standard error unless
+    /// `quiet`) when a folder would open too much.
+    fn options(&self, quiet: bool) -> Option<CheckOptions> {
+        allowed_folders_ok(&self.allow_dirs, self.allow_wide, quiet).then(|| CheckOptions {
+            allow_dirs: self.allow_dirs.clone(),
+            allow_tables: self.allow_tables.clone(),
+        })
+    }
+}
+
+#[derive(Args)]
+struct RecipeArgs {
+    /// The recipe file.
+    recipe: PathBuf,
+    #[command(flatten)]
+    allowed: Allowed,
     /// Print one JSON document on standard output instead of text (see
     /// docs/json.md).
     #[arg(long)]
@@ -211,16 +223,18 @@ fn main() -> ExitCode {
                     Err(e) => return fail(&e),
                 };
                 progress.finish();
-                if let Err(e) = deliver::write(source, &files, &lock, &mut outcome) {
-                    return fail(&e);
-                }
+                let tables = match deliver::write(source, &files, &lock, &mut outcome) {
+                    Ok(tables) => tables,
+                    Err(e) => return fail(&e),
+                };
                 if output::set::interrupted_while_writing() {
                     eprintln!(
                         "interrupted while writing: the outputs were completed first, as one set"
                     );
                     return ExitCode::from(130);
                 }
-                let written: Vec<String> = files.iter().map(|f| shown(&f.path)).collect();
+                let written: Vec<String> =
+                    files.iter().map(|f| shown(&f.path)).chain(tables).collect();
                 let defused: usize = files.iter().map(|f| f.defused).sum();
                 if recipe.json {
                     let mut result = output::json::run(&outcome, &written);
@@ -265,16 +279,13 @@ fn main() -> ExitCode {
             expect_shift,
         } => assign(&model, &data, out.as_deref(), &expect_shift),
         Command::Fmt { check, files } => fmt(check, &files),
-        Command::Lsp {
-            allow_dirs,
-            allow_wide,
-        } => {
+        Command::Lsp { allowed } => {
             // Standard error is the editor's log: the folders allowed are
             // noted there.
-            if !allowed_folders_ok(&allow_dirs, allow_wide, false) {
+            let Some(options) = allowed.options(false) else {
                 return ExitCode::FAILURE;
-            }
-            match assort::lsp::serve(CheckOptions { allow_dirs }) {
+            };
+            match assort::lsp::serve(options) {
                 Ok(()) => ExitCode::SUCCESS,
                 Err(e) => {
                     eprintln!("error: the language server stopped: {e}");
@@ -282,15 +293,11 @@ fn main() -> ExitCode {
                 }
             }
         }
-        Command::Repl {
-            recipe,
-            allow_dirs,
-            allow_wide,
-        } => {
-            if !allowed_folders_ok(&allow_dirs, allow_wide, false) {
+        Command::Repl { recipe, allowed } => {
+            let Some(options) = allowed.options(false) else {
                 return ExitCode::FAILURE;
-            }
-            let code = assort::repl::run(recipe.as_deref(), CheckOptions { allow_dirs });
+            };
+            let code = assort::repl::run(recipe.as_deref(), options);
             ExitCode::from(u8::try_from(code).unwrap_or(1))
         }
         Command::Compare { old, new, json } => {
@@ -701,6 +708,12 @@ fn dry_run_listing(source: &RecipeSource, plan: &Plan) -> String {
     for o in &plan.outputs {
         s.push_str(&format!("  would write {}\n", shown(&o.resolved)));
     }
+    if let Some(t) = &plan.table {
+        s.push_str(&format!(
+            "  would write {} (made again with the assignments)\n",
+            t.describe()
+        ));
+    }
     s.push_str(&format!(
         "  would write {} (the run record)\n",
         shown(&record_path(source, plan))
@@ -721,6 +734,7 @@ fn dry_run_json(
         .outputs
         .iter()
         .map(|o| shown(&o.resolved))
+        .chain(plan.table.iter().map(|t| t.describe()))
         .chain(std::iter::once(shown(&record_path(source, plan))))
         .collect();
     json!({"format": "assort-dry-run/1", "ok": true, "diagnostics": diagnostics, "reads": reads, "writes": writes})
@@ -821,11 +835,8 @@ fn with_plan(
             return ExitCode::FAILURE;
         }
     };
-    if !allowed_folders_ok(&args.allow_dirs, args.allow_wide, args.quiet || args.json) {
+    let Some(options) = args.allowed.options(args.quiet || args.json) else {
         return ExitCode::FAILURE;
-    }
-    let options = CheckOptions {
-        allow_dirs: args.allow_dirs.clone(),
     };
     let checked = check::check_with(&source, &options);
     let diagnostics = output::json::diagnostics(&checked.problems, &source.name(), &source.text);

@@ -52,6 +52,10 @@ pub struct Plan {
     /// Last run's segment model, whose numbers and labels this run keeps.
     pub previous: Option<PreviousPlan>,
     pub outputs: Vec<OutputPlan>,
+    /// `save table "NAME"`: the assignments also written into a table on
+    /// the input's connection, allowed by `--allow-table NAME`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub table: Option<TablePlan>,
     /// Columns profiled per segment but not clustered (`tally`), read
     /// as numbers after the features.
     pub tally: Vec<String>,
@@ -868,6 +872,25 @@ pub struct OutputPlan {
     pub path: String,
     #[serde(skip)]
     pub resolved: PathBuf,
+}
+
+/// `save table "NAME"`: the assignments written into table `name` on the
+/// input's connection, replacing it as a whole in one transaction
+/// (src/output/table.rs). Only where the person running the recipe allows
+/// that table (`--allow-table NAME`), as `--allow-dir` allows a folder.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct TablePlan {
+    pub connection: String,
+    /// As written: one or two plain SQL names joined by a dot, quoted
+    /// as written when sent (so the letter case counts).
+    pub name: String,
+}
+
+impl TablePlan {
+    /// In words: "table `segments` on connection `coop`".
+    pub fn describe(&self) -> String {
+        format!("table `{}` on connection `{}`", self.name, self.connection)
+    }
 }
 
 /// The segment model's file format, written by `save model`; kept here so

@@ -277,7 +277,8 @@ impl Session {
         let (mut outcome, files, _) =
             deliver::run_and_render(&source, &plan, &mut self.cache, &|_| {})
                 .map_err(|e| failed(&e))?;
-        deliver::write(&source, &files, &lock, &mut outcome).map_err(|e| failed(&e))?;
+        let tables =
+            deliver::write(&source, &files, &lock, &mut outcome).map_err(|e| failed(&e))?;
         let mut report = tables::report(&outcome);
         self.last = Some(outcome);
         if recovered {
@@ -286,6 +287,9 @@ impl Session {
         }
         for f in &files {
             report.push_str(&format!("wrote {}\n", deliver::shown(&f.path)));
+        }
+        for t in &tables {
+            report.push_str(&format!("wrote {t}\n"));
         }
         if self.unsaved() {
             report.push_str(

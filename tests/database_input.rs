@@ -601,3 +601,204 @@ fn a_server_killed_between_rounds_stops_the_run_and_keeps_earlier_outputs() {
         "the outputs of the run before are intact"
     );
 }
+
+/// The rows of `table` as psql prints them (`--csv`: NULL as an empty
+/// field, each value as the database writes it), header first, then the
+/// rows sorted.
+fn table_rows(pg: &Postgres, table: &str) -> Vec<Vec<String>> {
+    let rows = pg.psql(&format!("SELECT * FROM {table}")).unwrap();
+    let mut rows: Vec<Vec<String>> = rows
+        .iter()
+        .map(|r| r.iter().map(str::to_string).collect())
+        .collect();
+    rows[1..].sort();
+    rows
+}
+
+/// The rows of an assignments file as a CSV reader reads them, header
+/// first, then the rows sorted.
+fn file_rows(case: &Case, rel: &str) -> Vec<Vec<String>> {
+    let text = case.read(rel);
+    let mut reader = csv::ReaderBuilder::new()
+        .has_headers(false)
+        .from_reader(text.as_bytes());
+    let mut rows: Vec<Vec<String>> = reader
+        .records()
+        .map(|r| r.unwrap().iter().map(str::to_string).collect())
+        .collect();
+    rows[1..].sort();
+    rows
+}
+
+/// A column's type as the database states it.
+fn column_type(pg: &Postgres, table: &str, column: &str) -> String {
+    let rows = pg
+        .psql(&format!(
+            "SELECT format_type(atttypid, atttypmod) FROM pg_attribute \
+             WHERE attrelid = '{table}'::regclass AND attname = '{column}'"
+        ))
+        .unwrap();
+    rows[1][0].to_string()
+}
+
+/// `save table`: the assignments go into a table on the input's
+/// connection only when the person running the recipe allows that table
+/// (`--allow-table`); refused, nothing is read, written or changed. The
+/// table holds, read back by psql, exactly the rows of the assignments
+/// file (keys, segments, labels, distances and margins as their text),
+/// replaces the one that stood there, its key has the input key's own
+/// type (text here, `bigint` from an integer key) and joins back to every
+/// member. The same from a run in passes.
+#[test]
+fn the_assignments_go_into_an_allowed_table_exactly_as_the_file_holds_them() {
+    let Some((pg, case, service)) = coop(1) else {
+        return;
+    };
+    let env = [("PGSERVICEFILE", service.as_str())];
+    pg.psql(
+        "CREATE SCHEMA segments;\n\
+         CREATE TABLE segments.coop_segments (note TEXT);\n\
+         INSERT INTO segments.coop_segments VALUES ('last quarter');\n\
+         CREATE TABLE coop_numbered AS SELECT CAST(SUBSTRING(member_id FROM 2) AS BIGINT) AS member_no, * FROM coop_members;\n",
+    )
+    .unwrap();
+    case.edit(
+        "coop-members.assort",
+        r#"input "data/coop_members.csv" key member_id"#,
+        "input \"coop_members\" database coop key member_id",
+    );
+    case.edit(
+        "coop-members.assort",
+        r#"save assignments "out/member_segments.csv""#,
+        "save assignments \"out/member_segments.csv\"\nsave table \"segments.coop_segments\"",
+    );
+    let old = table_rows(&pg, "segments.coop_segments");
+    case.assort(&["run", "coop-members.assort"], &env)
+        .fails()
+        .stderr_has("writes table `segments.coop_segments` on connection `coop`")
+        .stderr_has("--allow-table segments.coop_segments");
+    assert!(!case.path("out").exists(), "nothing is written");
+    assert_eq!(table_rows(&pg, "segments.coop_segments"), old);
+    let allowed = ["--allow-table", "segments.coop_segments"];
+    case.assort(
+        &[
+            "run",
+            "--dry-run",
+            "coop-members.assort",
+            allowed[0],
+            allowed[1],
+        ],
+        &env,
+    )
+    .ok()
+    .stdout_has("would write table `segments.coop_segments` on connection `coop`");
+    assert_eq!(table_rows(&pg, "segments.coop_segments"), old);
+    case.assort(
+        &["run", "coop-members.assort", allowed[0], allowed[1]],
+        &env,
+    )
+    .ok()
+    .stdout_has("wrote table `segments.coop_segments` on connection `coop` (6,000 rows)");
+    let file = file_rows(&case, "out/member_segments.csv");
+    assert_eq!(file.len(), 6_001);
+    assert_eq!(table_rows(&pg, "segments.coop_segments"), file);
+    assert_eq!(
+        column_type(&pg, "segments.coop_segments", "member_id"),
+        "text"
+    );
+    assert_eq!(
+        column_type(&pg, "segments.coop_segments", "distance"),
+        "numeric"
+    );
+    let joined = pg
+        .psql("SELECT count(*) FROM coop_members JOIN segments.coop_segments USING (member_id)")
+        .unwrap();
+    assert_eq!(&joined[1][0], "6000", "every key joins back to its member");
+
+    // In passes, keyed by a number: the table is that run's file again.
+    let recipe = common::passes::recipe_with(
+        "coop_numbered",
+        " database coop read passes",
+        "missing fill median\nscale zscore\nsave table \"numbered_segments\"",
+    )
+    .replace("key member_id", "key member_no");
+    case.write("passes.assort", &recipe);
+    let allowed = ["--allow-table", "numbered_segments"];
+    case.assort(&["run", "passes.assort", allowed[0], allowed[1]], &env)
+        .ok()
+        .stdout_has("wrote table `numbered_segments` on connection `coop`");
+    assert_eq!(
+        table_rows(&pg, "numbered_segments"),
+        file_rows(&case, "out/member_segments.csv")
+    );
+    assert_eq!(column_type(&pg, "numbered_segments", "member_no"), "bigint");
+}
+
+/// A table that cannot be replaced (a view stands on it) stops the run
+/// with the connection and the table named; the old table, the view and
+/// the files of the run before are as they were. The other refusals of
+/// `save table` are the checker's, each at the statement: a name that is
+/// no table's, the input itself.
+#[test]
+fn a_table_that_cannot_be_replaced_stops_the_run_and_changes_nothing() {
+    let Some((pg, case, service)) = coop(1) else {
+        return;
+    };
+    let env = [("PGSERVICEFILE", service.as_str())];
+    case.edit(
+        "coop-members.assort",
+        r#"input "data/coop_members.csv" key member_id"#,
+        "input \"coop_members\" database coop key member_id",
+    );
+    case.assort(&["run", "coop-members.assort"], &env).ok();
+    let before = case.outputs::<&str>(&[]);
+    pg.psql(
+        "CREATE TABLE member_segments (member_id TEXT, segment INTEGER);\n\
+         INSERT INTO member_segments VALUES ('M00001', 7);\n\
+         CREATE VIEW segment_sizes AS SELECT segment, count(*) FROM member_segments GROUP BY segment;\n",
+    )
+    .unwrap();
+    case.edit(
+        "coop-members.assort",
+        r#"save assignments "out/member_segments.csv""#,
+        "save assignments \"out/member_segments.csv\"\nsave table \"member_segments\"",
+    );
+    case.assort(
+        &[
+            "run",
+            "coop-members.assort",
+            "--allow-table",
+            "member_segments",
+        ],
+        &env,
+    )
+    .fails()
+    .stderr_has("`coop` failed at writing table \"member_segments\"")
+    .stderr_has("depend");
+    assert_eq!(case.outputs::<&str>(&[]), before, "no file changed");
+    let rows = pg.psql("SELECT * FROM segment_sizes").unwrap();
+    assert_eq!(rows.len(), 2, "the view and the old table stand");
+    assert_eq!((&rows[1][0], &rows[1][1]), ("7", "1"));
+
+    for (name, says) in [
+        ("member segments", "`member segments` is not a table's name"),
+        ("coop_members", "would replace the recipe's input"),
+    ] {
+        case.edit(
+            "coop-members.assort",
+            "save table \"member_segments\"",
+            &format!("save table {name:?}"),
+        );
+        case.assort(
+            &["check", "coop-members.assort", "--allow-table", name],
+            &env,
+        )
+        .fails()
+        .stderr_has(says);
+        case.edit(
+            "coop-members.assort",
+            &format!("save table {name:?}"),
+            "save table \"member_segments\"",
+        );
+    }
+}

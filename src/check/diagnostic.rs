@@ -525,6 +525,52 @@ pub enum CheckError {
         span: Span,
     },
 
+    #[error("`save table` writes into the input's database, and this recipe's input is a file")]
+    #[diagnostic(
+        code(assort::table_needs_database),
+        help("save the assignments as a file (`save assignments \"out/assignments.csv\"`), or read the input from a connection (`input \"members\" database NAME key COLUMN`) to write them beside it")
+    )]
+    TableNeedsDatabase {
+        #[label("a table on which connection?")]
+        span: Span,
+    },
+
+    #[error("`{name}` is not a table's name")]
+    #[diagnostic(
+        code(assort::table_name),
+        help("name a table with letters, digits and `_` (not starting with a digit), its schema before a dot if it needs one: `segments.members_2026q4`; the name is used as written, letter case included")
+    )]
+    TableName {
+        name: String,
+        #[label("a table's name")]
+        span: Span,
+    },
+
+    #[error("`save table \"{name}\"` would replace the recipe's input")]
+    #[diagnostic(
+        code(assort::table_is_input),
+        help("write the segments into a table of their own, for example `{name}_segments`")
+    )]
+    TableIsInput {
+        name: String,
+        #[label("replaced")]
+        span: Span,
+        #[label("read")]
+        input: Span,
+    },
+
+    #[error("the recipe writes table `{name}` on connection `{connection}`, which the person running it has not allowed")]
+    #[diagnostic(
+        code(assort::table_not_allowed),
+        help("a recipe may come from a colleague, so it writes into a database only where you allow it, by the table's name: `--allow-table {name}` after `run`, `check` or `repl` (and `assort lsp --allow-table {name}` for an editor); the table is dropped and made again with the assignments, in one transaction")
+    )]
+    TableNotAllowed {
+        name: String,
+        connection: String,
+        #[label("not allowed")]
+        span: Span,
+    },
+
     #[error("output `{path}` would overwrite the input data")]
     #[diagnostic(
         code(assort::output_is_input),

@@ -162,6 +162,9 @@ pub fn check(source: &RecipeSource) -> Checked {
 pub struct CheckOptions {
     /// Folders outside the recipe's own that it may read and write.
     pub allow_dirs: Vec<PathBuf>,
+    /// Tables a recipe may write on its input's connection (`save table`),
+    /// by name as the recipe writes it.
+    pub allow_tables: Vec<String>,
 }
 
 /// Checks a recipe with the given permissions.
@@ -170,6 +173,7 @@ pub fn check_with(source: &RecipeSource, options: &CheckOptions) -> Checked {
     let mut cx = Checker {
         sandbox: paths::Sandbox::new(&source.folder(), &options.allow_dirs),
         reads: Vec::new(),
+        allow_tables: options.allow_tables.clone(),
         folder: source.folder(),
         recipe_stem: source
             .path
@@ -372,6 +376,8 @@ struct Checker {
     /// Every file the recipe reads (real path, span), so no output can
     /// overwrite one.
     reads: Vec<(PathBuf, Span)>,
+    /// The tables the recipe may write (`--allow-table`).
+    allow_tables: Vec<String>,
     /// The statements that shape the segments, to compare with those a
     /// `previous` model records.
     settings: Vec<String>,
@@ -535,8 +541,8 @@ impl Checker {
         let evidence = self.evidence(find("evidence"), choose, ks.as_deref());
         let validate = self.validate(find("validate"), input.as_ref());
         let compare = self.compare(find("compare"));
-        let is_tree = matches!(method, Some(MethodPlan::Tree(_)));
-        let outputs = self.outputs(stmts, is_tree);
+        let outputs = self.outputs(stmts, matches!(method, Some(MethodPlan::Tree(_))));
+        let table = self.table_output(stmts, input.as_ref().map(|i| &i.plan));
         let seed = self.seed(find("seed"));
         let (name, title, period, records_noun) = self.recipe_names(find("recipe"));
         let mut input = input?.plan;
@@ -562,6 +568,7 @@ impl Checker {
             compare: compare?,
             previous: previous?.map(|p| p.plan),
             outputs: outputs?,
+            table: table?,
             tally: tally?,
             record_weights: record_weights?,
             display: display?,

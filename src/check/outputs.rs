@@ -41,6 +41,9 @@ impl Checker {
             let StatementKind::Save { what, path } = &s.kind else {
                 continue;
             };
+            if what.node == TABLE {
+                continue;
+            }
             let Some(resolved) = self.safe_path(path) else {
                 ok = false;
                 continue;
@@ -129,5 +132,79 @@ impl Checker {
         }
     }
 
-    // ---------------------------------------------------------- helpers --
+    /// `save table "NAME"`: a table on the input's connection, named as
+    /// SQL names a table, not the input itself, allowed by the person
+    /// running the recipe (`--allow-table NAME`). At most one.
+    pub(super) fn table_output(
+        &mut self,
+        stmts: &[Statement],
+        input: Option<&InputPlan>,
+    ) -> Option<Option<TablePlan>> {
+        let mut found: Option<(TablePlan, Span)> = None;
+        let mut ok = true;
+        for s in stmts {
+            let StatementKind::Save { what, path: name } = &s.kind else {
+                continue;
+            };
+            if what.node != TABLE {
+                continue;
+            }
+            if let Some((_, first)) = &found {
+                self.err(CheckError::OutputTwice {
+                    path: "a table".into(),
+                    span: name.span,
+                    first: *first,
+                });
+                ok = false;
+                continue;
+            }
+            let Some(input) = input else {
+                ok = false;
+                continue;
+            };
+            let Some(connection) = input.database.clone() else {
+                self.err(CheckError::TableNeedsDatabase { span: what.span });
+                ok = false;
+                continue;
+            };
+            let problem = if !crate::scale::source::is_table_name(&name.node) {
+                Some(CheckError::TableName {
+                    name: name.node.clone(),
+                    span: name.span,
+                })
+            } else if name.node == input.path {
+                let read = stmts.iter().find_map(|s| match &s.kind {
+                    StatementKind::Input { path, .. } => Some(path.span),
+                    _ => None,
+                });
+                Some(CheckError::TableIsInput {
+                    name: name.node.clone(),
+                    span: name.span,
+                    input: read.unwrap_or(name.span),
+                })
+            } else if !self.allow_tables.contains(&name.node) {
+                Some(CheckError::TableNotAllowed {
+                    name: name.node.clone(),
+                    connection: connection.clone(),
+                    span: name.span,
+                })
+            } else {
+                None
+            };
+            if let Some(problem) = problem {
+                self.err(problem);
+                ok = false;
+                continue;
+            }
+            let table = TablePlan {
+                connection,
+                name: name.node.clone(),
+            };
+            found = Some((table, name.span));
+        }
+        ok.then(|| found.map(|(t, _)| t))
+    }
 }
+
+/// The `save` word that writes into a table instead of a file.
+const TABLE: &str = "table";

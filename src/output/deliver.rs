@@ -84,18 +84,35 @@ pub fn lock(source: &RecipeSource) -> Result<(set::RunLock, bool), RunError> {
 }
 
 /// Writes rendered files as one set (all new or all old), under a lock
-/// taken with [`lock`]; the time it took joins the outcome's stages.
+/// taken with [`lock`], and the table of `save table` (in a transaction
+/// that commits only once the files are written); the time it took joins
+/// the outcome's stages. Returns the tables written, in words.
 pub fn write(
     source: &RecipeSource,
     rendered: &[Rendered],
     _lock: &set::RunLock,
     outcome: &mut Outcome,
-) -> Result<(), RunError> {
+) -> Result<Vec<String>, RunError> {
     let mut clock = run::stages::Clock::start();
-    files::write_all_journalled(rendered, &set::journal_path(&source.path))?;
+    let journal = set::journal_path(&source.path);
+    let files = || files::write_all_journalled(rendered, &journal);
+    let tables = match &outcome.plan.table {
+        Some(table) => {
+            // The assignments file's text, when the run saves one, is the
+            // table's: not computed (or read from the database) again.
+            let saved = (outcome.plan.outputs.iter())
+                .find(|o| o.kind == crate::plan::OutputKind::Assignments)
+                .and_then(|o| rendered.iter().find(|r| r.path == o.resolved));
+            vec![super::table::replace(outcome, table, saved, files)?]
+        }
+        None => {
+            files()?;
+            Vec::new()
+        }
+    };
     clock.lap("write");
     outcome.stages.extend(clock.laps);
-    Ok(())
+    Ok(tables)
 }
 
 /// The stage times in lines for a terminal: each stage's seconds and the

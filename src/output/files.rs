@@ -337,6 +337,22 @@ fn is_plain_number(cell: &str) -> bool {
         && cell.parse::<f64>().is_ok()
 }
 
+/// The assignments file's text, as `save assignments` writes it, into
+/// `out`: held in memory, or read again in passes for a run in passes.
+pub fn write_assignments(o: &Outcome, out: &mut dyn std::io::Write) -> Result<(), RunError> {
+    match &o.in_passes {
+        Some(p) => p
+            .write_assignments(&o.plan.input.key, &|s| label_of(o, s), out)
+            .map(|_| ()),
+        None => out
+            .write_all(&assignments(o).bytes)
+            .map_err(|e| RunError::Write {
+                path: String::new(),
+                reason: e.to_string(),
+            }),
+    }
+}
+
 fn label_of(o: &Outcome, segment: usize) -> String {
     o.plan.labels.get(&segment).cloned().unwrap_or_default()
 }

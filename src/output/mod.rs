@@ -14,6 +14,7 @@ pub mod record;
 pub mod report;
 pub mod set;
 pub mod sql;
+pub mod table;
 pub mod tables;
 
 pub use crate::text::short;

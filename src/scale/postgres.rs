@@ -363,6 +363,20 @@ impl Database {
         &mut self,
         source: &super::source::Source,
     ) -> Result<Vec<(String, super::source::Class)>, DbError> {
+        Ok(self
+            .column_types(source)?
+            .into_iter()
+            .map(|(name, type_name)| (name, super::source::class_of(&type_name)))
+            .collect())
+    }
+
+    /// The columns of a recipe's input and their PostgreSQL type names
+    /// (`int8`, `text`, ..), the query checked as [`Database::columns`]
+    /// checks it.
+    pub fn column_types(
+        &mut self,
+        source: &super::source::Source,
+    ) -> Result<Vec<(String, String)>, DbError> {
         if !source.is_table() {
             self.check_query(&source.text)?;
         }
@@ -374,13 +388,78 @@ impl Database {
         Ok(statement
             .columns()
             .iter()
-            .map(|c| {
-                (
-                    c.name().to_string(),
-                    super::source::class_of(c.type_().name()),
-                )
-            })
+            .map(|c| (c.name().to_string(), c.type_().name().to_string()))
             .collect())
+    }
+
+    /// Replaces table `table` (its SQL name, quoted as it is to be sent)
+    /// with a new one of `columns` (their SQL definitions) holding the CSV
+    /// text with a header line that `fill` writes, then runs `then` (the
+    /// files of the same run written) and commits only when both
+    /// succeeded: a failure anywhere leaves the old table as it was.
+    ///
+    /// One read-write transaction, of statements assort writes and never
+    /// the recipe's query: the rows go into a staging table in the
+    /// target's schema (`CREATE`, `COPY ... FROM STDIN`), and only then is
+    /// the old table dropped and the new one renamed into its place, so
+    /// readers of the old table wait for the last step only. The old
+    /// table's indexes, grants and comments go with it (the new one is
+    /// the database user's own). Returns the number of rows written.
+    pub fn replace_table<E>(
+        &mut self,
+        table: &str,
+        columns: &str,
+        fill: impl FnOnce(&mut dyn std::io::Write) -> Result<(), E>,
+        then: impl FnOnce() -> Result<(), E>,
+    ) -> Result<Result<u64, E>, DbError> {
+        // Not [`Database::failure`]: a refused write here is the server's
+        // (a standby, a user without the right), not the recipe's.
+        let (connection, what) = (self.name.clone(), format!("writing table {table}"));
+        let failed = |e: postgres::Error| DbError::Failed {
+            connection: connection.clone(),
+            what: what.clone(),
+            reason: reason(&e),
+        };
+        let (schema, name) = match table.rsplit_once("\".\"") {
+            Some((schema, name)) => (format!("{schema}\"."), format!("\"{name}")),
+            None => (String::new(), table.to_string()),
+        };
+        let staged = format!("assort_staged_{}", std::process::id());
+        let staged_sql = format!("{schema}\"{staged}\"");
+        let mut tx = self
+            .client
+            .build_transaction()
+            .read_only(false)
+            .start()
+            .map_err(&failed)?;
+        tx.batch_execute(&format!("CREATE TABLE {staged_sql} ({columns})"))
+            .map_err(&failed)?;
+        let mut writer = tx
+            .copy_in(&format!(
+                "COPY {staged_sql} FROM STDIN (FORMAT csv, HEADER true)"
+            ))
+            .map_err(&failed)?;
+        if let Err(e) = fill(&mut writer) {
+            // Dropped unfinished, the copy is cancelled; the transaction
+            // rolls back when dropped.
+            return Ok(Err(e));
+        }
+        let rows = writer.finish().map_err(&failed)?;
+        tx.batch_execute(&format!(
+            "DROP TABLE IF EXISTS {table}; ALTER TABLE {staged_sql} RENAME TO {name}"
+        ))
+        .map_err(&failed)?;
+        if let Err(e) = then() {
+            return Ok(Err(e));
+        }
+        tx.commit().map_err(|e| DbError::Failed {
+            connection: connection.clone(),
+            what: format!(
+                "committing table {table}, after the run's files were written (they are the new ones; the table is the old one)"
+            ),
+            reason: reason(&e),
+        })?;
+        Ok(Ok(rows))
     }
 
     /// A recipe's own query, checked to be one statement that only reads,

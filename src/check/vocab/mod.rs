@@ -398,7 +398,7 @@ pub const PREVIOUS_OPTIONS: &[OptionDoc] = &[OptionDoc {
 }];
 
 /// What `save` can write.
-pub const SAVE_WHAT: [&str; 10] = [
+pub const SAVE_WHAT: [&str; 11] = [
     "assignments",
     "profiles",
     "centroids",
@@ -409,6 +409,7 @@ pub const SAVE_WHAT: [&str; 10] = [
     "handoff",
     "merges",
     "tree",
+    "table",
 ];
 
 /// Fill words `missing fill` takes besides a number.

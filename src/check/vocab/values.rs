@@ -96,6 +96,7 @@ pub const VALUES: &[ValueDoc] = &[
     fixed("save", "rules", "each segment's readable rule (at most three conditions, with its coverage and precision) as one SQL query for a CRM or marketing system (.sql)"),
     fixed("save", "handoff", "a CSV for a CRM or marketing system: each record's key and its segment's name, nothing else"),
     fixed("save", "merges", "a CSV of the tree's merges in order (`tree` only)"),
+    fixed("save", "table", "the assignments written into a table on the input's connection, replaced as a whole in one transaction; only with `--allow-table NAME` on the command line"),
     fixed("save", "tree", "the tree in Newick format for tree viewers (`tree` only)"),
     value_of("call", "as", "number", "up to two decimals, thousands separated, the unit after: `4.5 visits`"),
     value_of("call", "as", "percent", "a fraction shown as a percentage: 0.21 as `21 %`"),
