@@ -133,6 +133,10 @@ pub struct InputPlan {
     /// (docs/scale-out.md), read in the order of its key.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub database: Option<String>,
+    /// `cluster NAME`: the k-means rounds of a Parquet input read in
+    /// passes run on this Ballista cluster (docs/scale-out.md).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cluster: Option<String>,
     /// `read passes`: the records are not read into memory but once per
     /// pass, holding only the sample and the sums (src/run/passes.rs).
     #[serde(default, skip_serializing_if = "std::ops::Not::not")]

@@ -58,6 +58,13 @@ fn write_parts(folder: &Path, data: &Array2<f64>, parts: usize) {
     }
 }
 
+/// The Wine data's measurements repeated `times` times.
+fn wine_times(times: usize) -> Array2<f64> {
+    let raw = common::measurements("wine.csv");
+    let rows: Vec<f64> = (0..times).flat_map(|_| raw.iter().copied()).collect();
+    Array2::from_shape_vec((raw.nrows() * times, raw.ncols()), rows).unwrap()
+}
+
 /// Files under `dir`, at any depth.
 fn files_under(dir: &Path) -> usize {
     std::fs::read_dir(dir)
@@ -94,10 +101,7 @@ fn nearest(row: &[f64], centres: &[f64]) -> usize {
 
 #[test]
 fn rounds_on_a_ballista_cluster_give_the_fit_and_the_segments_made_in_memory() {
-    let raw = common::measurements("wine.csv");
-    let times = 50;
-    let rows: Vec<f64> = (0..times).flat_map(|_| raw.iter().copied()).collect();
-    let data = Array2::from_shape_vec((raw.nrows() * times, raw.ncols()), rows).unwrap();
+    let data = wine_times(50);
     let (n, d) = data.dim();
     let dir = tempfile::tempdir().unwrap();
     let folder = dir.path().join("wine");
@@ -225,4 +229,103 @@ fn a_cluster_that_cannot_be_reached_is_named() {
         error.contains(&format!("the cluster at 127.0.0.1:{port}")),
         "{error}"
     );
+}
+
+/// The Wine recipe over `folder` read in passes, writing into `out`, with
+/// `cluster` after its input (` cluster trial`, or nothing).
+fn wine_recipe(folder: &str, cluster: &str, out: &str, d: usize) -> String {
+    let features: Vec<String> = (0..d).map(|j| format!("x{j}")).collect();
+    format!(
+        r#"recipe "wine in passes" records "wines"
+seed 2026
+input "{folder}" key record read passes{cluster}
+features {}
+transform x3 clip 0.01..0.99
+scale zscore
+kmeans k 2..4 restarts 8 sample 1000 by key
+choose k by silhouette
+save assignments "{out}/segments.csv"
+save centroids "{out}/centres.csv"
+save profiles "{out}/profiles.csv"
+save model "{out}/model.json"
+"#,
+        features.join(", ")
+    )
+}
+
+/// Runs assort in `dir` with `args` and the variables `env`.
+fn assort(dir: &Path, args: &[&str], env: &[(&str, String)]) -> std::process::Output {
+    std::process::Command::new(env!("CARGO_BIN_EXE_assort"))
+        .args(args)
+        .current_dir(dir)
+        .env("NO_COLOR", "1")
+        .envs(env.iter().map(|(k, v)| (k, v)))
+        .output()
+        .unwrap()
+}
+
+/// A recipe pointed at a cluster (`input "wine" key record read passes
+/// cluster trial`, the scheduler's address in `ASSORT_CLUSTER_TRIAL`): its
+/// rounds run on a scheduler and two executors, processes of their own,
+/// and it writes the assignments, centres, profiles and model the same
+/// recipe writes with its rounds here, byte for byte (the model's record
+/// of the recipe's own digest aside). Without the variable it stops,
+/// naming it, and writes nothing.
+#[test]
+fn a_recipe_pointed_at_a_cluster_writes_what_it_writes_here() {
+    let data = wine_times(50);
+    let d = data.ncols();
+    let dir = tempfile::tempdir().unwrap();
+    write_parts(&dir.path().join("wine"), &data, 8);
+    std::fs::write(
+        dir.path().join("here.assort"),
+        wine_recipe("wine", "", "here", d),
+    )
+    .unwrap();
+    std::fs::write(
+        dir.path().join("there.assort"),
+        wine_recipe("wine", " cluster trial", "there", d),
+    )
+    .unwrap();
+
+    let unset = assort(dir.path(), &["run", "there.assort"], &[]);
+    let said = String::from_utf8_lossy(&unset.stderr);
+    assert!(!unset.status.success());
+    assert!(said.contains("ASSORT_CLUSTER_TRIAL"), "{said}");
+    assert!(!dir.path().join("there").exists(), "nothing is written");
+
+    let node = Path::new(env!("CARGO_BIN_EXE_assort-cluster-node"));
+    let trial = TrialCluster::start(node, 2, 1, dir.path()).unwrap();
+    let at = [(
+        "ASSORT_CLUSTER_TRIAL",
+        format!("127.0.0.1:{}", trial.scheduler),
+    )];
+    for recipe in ["here.assort", "there.assort"] {
+        let run = assort(dir.path(), &["run", recipe], &at);
+        assert!(
+            run.status.success(),
+            "{recipe}: {}",
+            String::from_utf8_lossy(&run.stderr)
+        );
+    }
+    for file in ["segments.csv", "centres.csv", "profiles.csv", "model.json"] {
+        let read = |side: &str| {
+            let text = std::fs::read_to_string(dir.path().join(side).join(file)).unwrap();
+            text.lines()
+                .filter(|l| !l.contains("recipe_sha256"))
+                .collect::<Vec<_>>()
+                .join("\n")
+        };
+        let (here, there) = (read("here"), read("there"));
+        assert!(here.len() > 100, "{file} is written");
+        if here != there {
+            let (a, b) = (here.lines().zip(there.lines()))
+                .find(|(a, b)| a != b)
+                .unwrap_or_default();
+            panic!("{file} differs with the rounds on the cluster:\n{a}\n{b}");
+        }
+    }
+    for work in &trial.work_dirs {
+        assert!(files_under(work) > 0, "{} ran no task", work.display());
+    }
 }

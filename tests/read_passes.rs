@@ -192,6 +192,34 @@ fn what_reading_in_passes_does_not_take_is_refused_at_its_statement() {
     with("", "data/members.parquet").ok();
 }
 
+/// `cluster NAME` (the rounds on a Ballista cluster) is refused without
+/// `read passes`, and in an assort built without the `ballista` feature
+/// with how to build one; in one built with it, a `transform` other than
+/// `clip` is refused at its statement (the executors would compute the
+/// logarithm). The route itself: tests/cluster_rounds.rs.
+#[test]
+fn a_cluster_is_named_only_with_read_passes_and_the_cluster_engine() {
+    let case = case();
+    case.write("r.assort", &recipe("data/members.parquet", " cluster lake"));
+    case.assort(&["check", "r.assort"], &[])
+        .fails()
+        .stderr_has("add `read passes`");
+    case.write(
+        "r.assort",
+        &recipe("data/members.parquet", " read passes cluster lake"),
+    );
+    let checked = case.assort(&["check", "r.assort"], &[]).fails();
+    if cfg!(feature = "ballista") {
+        checked.stderr_has(
+            "a `transform` other than `clip` is not available with rounds on a cluster",
+        );
+    } else {
+        checked
+            .stderr_has("built without the cluster engine")
+            .stderr_has("--features ballista");
+    }
+}
+
 /// A value the transform cannot take (`log` of a zero share) stops the
 /// run at the record the same recipe read whole stops at.
 #[test]

@@ -34,11 +34,14 @@ impl Checker {
         self.no_csv_options(&opts, &resolved)?;
         read?;
         self.passes_need_parquet(&opts, &resolved)?;
+        let cluster = self.cluster_option(&opts)?;
         let (separator, decimal) = (separator?, decimal?);
         self.decimal = decimal;
         self.probe_input(path, &resolved, separator, decimal)?;
         if let Some(Some(span)) = no_key {
-            return Some(self.keyless_input(path, resolved, separator, decimal, span));
+            let mut keyless = self.keyless_input(path, resolved, separator, decimal, span);
+            keyless.plan.cluster = cluster;
+            return Some(keyless);
         }
         let key = key?;
         self.known_column(&key)?;
@@ -52,6 +55,7 @@ impl Checker {
                 separator,
                 decimal,
                 database: None,
+                cluster,
                 passes: false,
             },
             key_span: key.span,
@@ -89,6 +93,7 @@ impl Checker {
             ("separator", "a database stores its values typed; remove the option"),
             ("decimal", "a database stores its values typed; remove the option"),
             ("no", "a table has no order of its own, so records cannot be numbered by it; name its key"),
+            ("cluster", "the database runs the rounds of a table read in passes itself; remove the option"),
         ] {
             if let Some(o) = opts.get(option) {
                 self.bad_value(option, &o.value.node, "nothing here", o.value.span, why);
@@ -135,6 +140,7 @@ impl Checker {
                 separator: defaults::SEPARATOR,
                 decimal: DecimalMark::Point,
                 database: Some(connection),
+                cluster: None,
                 passes: false,
             },
             key_span: key.span,
@@ -190,6 +196,49 @@ impl Checker {
                 None
             }
         }
+    }
+
+    /// The `cluster` option: the name of a Ballista cluster whose
+    /// executors run the k-means rounds of a Parquet input read in passes
+    /// (docs/scale-out.md); only with `read passes`, and only in an assort
+    /// built with the `ballista` feature.
+    fn cluster_option(
+        &mut self,
+        opts: &HashMap<&'static str, &OptionPair>,
+    ) -> Option<Option<String>> {
+        let Some(o) = opts.get("cluster") else {
+            return Some(None);
+        };
+        let name = match &o.value.node {
+            Value::Word(w) | Value::Text(w)
+                if crate::scale::source::is_table_name(w) && !w.contains('.') =>
+            {
+                w.clone()
+            }
+            other => {
+                self.bad_value(
+                    "cluster",
+                    other,
+                    "a cluster's name",
+                    o.value.span,
+                    "for example `cluster lake`; its scheduler's address comes from the variable `ASSORT_CLUSTER_LAKE` (`host:port`), never from the recipe (docs/scale-out.md)",
+                );
+                return None;
+            }
+        };
+        let problem = if self.read_passes.is_none() {
+            Some("the rounds run on a cluster when the records stay in the Parquet input: add `read passes` (with `kmeans ... sample N by key`)")
+        } else if !cfg!(feature = "ballista") {
+            Some("this assort was built without the cluster engine: build it with `cargo build --release --features ballista` (docs/scale-out.md), or remove the option to run the rounds here")
+        } else {
+            None
+        };
+        if let Some(help) = problem {
+            self.bad_value("cluster", &o.value.node, "nothing here", o.value.span, help);
+            return None;
+        }
+        self.cluster = true;
+        Some(Some(name))
     }
 
     /// `read passes` reads Parquet (a file or a folder of parts) for now.
@@ -321,6 +370,7 @@ impl Checker {
                 separator,
                 decimal,
                 database: None,
+                cluster: None,
                 passes: false,
             },
             key_span: span,

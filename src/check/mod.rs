@@ -190,6 +190,7 @@ pub fn check_with(source: &RecipeSource, options: &CheckOptions) -> Checked {
         probe: None,
         input_file: String::new(),
         database: false,
+        cluster: false,
         read_passes: None,
         decimal: DecimalMark::Point,
         unparsed: tree
@@ -358,6 +359,8 @@ struct Checker {
     input_file: String,
     /// The input is a table or a query on a connection.
     database: bool,
+    /// The input's rounds run on a cluster (`cluster NAME`).
+    cluster: bool,
     /// Where the input said `read passes`.
     read_passes: Option<Span>,
     /// The input's decimal mark, once `input` is checked.

@@ -43,12 +43,17 @@ impl Checker {
                 StatementKind::Transform {
                     action: TransformAction::Named(_),
                     ..
-                } if self.database => {
+                } if self.database || self.cluster => {
+                    let (method, help) = if self.database {
+                        ("`read passes` on a database input", "read in passes, the database prepares every value for the rounds, and its `LN` and `SQRT` may differ from assort's in the last bit, which would change segments silently; compute the column in the recipe's query or a view (the database's own arithmetic then defines it), or read the table whole")
+                    } else {
+                        ("rounds on a cluster", "on a cluster, the executors prepare every value for the rounds, and their `LN` and `SQRT` may differ from assort's in the last bit, which would change segments silently; write the transformed column into the Parquet input, or run the rounds here (remove `cluster`)")
+                    };
                     self.err(CheckError::NotWithMethod {
                         what: "a `transform` other than `clip`".into(),
-                        method: "`read passes` on a database input".into(),
+                        method: method.into(),
                         span: s.span,
-                        help: "read in passes, the database prepares every value for the rounds, and its `LN` and `SQRT` may differ from assort's in the last bit, which would change segments silently; compute the column in the recipe's query or a view (the database's own arithmetic then defines it), or read the table whole".into(),
+                        help: help.into(),
                     });
                     None
                 }

@@ -270,6 +270,13 @@ pub enum RunError {
     )]
     Database { reason: String },
 
+    #[error("{reason}")]
+    #[diagnostic(
+        code(assort::run::cluster),
+        help("nothing was written; the cluster's scheduler is found at the address in `ASSORT_CLUSTER_NAME` (`host:port`, NAME the recipe's `cluster` in capitals), and its executors read the Parquet input by the same path (docs/scale-out.md)")
+    )]
+    Cluster { reason: String },
+
     #[error("`sample ... by key` cannot run: {reason}")]
     #[diagnostic(
         code(assort::run::by_key),

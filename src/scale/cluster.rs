@@ -102,6 +102,21 @@ impl Cluster {
             .map_err(|e| self.fault(&format!("naming `{}` as a table", path.display()), e))
     }
 
+    /// The columns of table `table` and their Arrow types, from the
+    /// session's own record of it (the files' footers).
+    pub fn column_types(&mut self, table: &str) -> Result<Vec<(String, DataType)>, ClusterError> {
+        let provider = self
+            .runtime
+            .block_on(self.context.table_provider(table))
+            .map_err(|e| self.fault(&format!("reading the columns of `{table}`"), e))?;
+        Ok(provider
+            .schema()
+            .fields()
+            .iter()
+            .map(|f| (f.name().clone(), f.data_type().clone()))
+            .collect())
+    }
+
     /// Runs `sql` and returns its rows, every value as text (`None` for a
     /// NULL).
     pub fn read(
@@ -152,6 +167,28 @@ impl Cluster {
             .collect::<Vec<_>>()
             .join("\n"))
     }
+}
+
+/// True when a column of type `t` cast to a double in SQL gives the
+/// double assort reads from the Parquet file (`v as f64`): integers and
+/// floating-point numbers. Decimals, booleans and text are read here by
+/// rules of assort's own (a decimal's correctly rounded quotient, text
+/// parsed), which a cast need not follow to the last bit.
+pub fn exact_as_double(t: &DataType) -> bool {
+    use DataType as T;
+    matches!(
+        t,
+        T::Int8
+            | T::Int16
+            | T::Int32
+            | T::Int64
+            | T::UInt8
+            | T::UInt16
+            | T::UInt32
+            | T::UInt64
+            | T::Float32
+            | T::Float64
+    )
 }
 
 impl SqlEngine for Cluster {

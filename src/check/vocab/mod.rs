@@ -207,6 +207,11 @@ pub const INPUT_OPTIONS: &[OptionDoc] = &[
         summary: "read a table or a query on this PostgreSQL connection instead of a file: `input \"members\" database coop key member_id`; how to reach the connection and log in comes from the service file or the PG variables, never from the recipe (docs/scale-out.md)",
     },
     OptionDoc {
+        name: "cluster",
+        takes: "a cluster's name",
+        summary: "with `read passes` over Parquet: run the k-means rounds on this Apache DataFusion Ballista cluster, whose scheduler's address comes from the variable `ASSORT_CLUSTER_NAME` (`host:port`), never from the recipe (an assort built with the `ballista` feature; docs/scale-out.md)",
+    },
+    OptionDoc {
         name: "read",
         takes: "`whole` or `passes`",
         summary: "`whole` (unless given) reads the records into memory once; `passes` leaves them in the Parquet input and reads them once per pass, holding only a sample and sums, for inputs larger than memory (with `kmeans ... sample N by key`; docs/scale-out.md)",

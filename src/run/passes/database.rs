@@ -268,22 +268,29 @@ impl InDatabase {
     /// Feature `f` prepared by `p`, in SQL ([`crate::run::model`]'s
     /// arithmetic).
     pub(super) fn prepared(&self, p: &FeatureParams, f: usize) -> String {
-        if p.constant {
-            return double(0.0);
-        }
-        let t = reshaped(p, &self.columns[f]);
-        format!(
-            "((({t}) - {}) / {}) * {}",
-            double(p.centre),
-            double(p.divisor),
-            double(p.multiplier)
-        )
+        prepared(p, &self.columns[f])
     }
 
     /// Runs the rounds of a fit: the driver's engine over the kept records.
     pub(super) fn engine(&self) -> std::sync::MutexGuard<'_, Database> {
         self.db.lock().unwrap_or_else(|p| p.into_inner())
     }
+}
+
+/// A feature prepared by `p` from its value `column` (a double, NULL for
+/// a gap), in SQL: [`crate::run::model`]'s arithmetic, with the
+/// parameters' exact doubles.
+pub(super) fn prepared(p: &FeatureParams, column: &str) -> String {
+    if p.constant {
+        return double(0.0);
+    }
+    let t = reshaped(p, column);
+    format!(
+        "((({t}) - {}) / {}) * {}",
+        double(p.centre),
+        double(p.divisor),
+        double(p.multiplier)
+    )
 }
 
 /// A value filled.
