@@ -90,7 +90,7 @@ fn options_not_yet_given_and_the_words_an_option_takes() {
     assert_eq!(labels("input \"x.csv\" key member"), ["member_id"]);
     assert_eq!(
         labels("input \"x.csv\" key member_id "),
-        ["database", "decimal", "read", "separator"]
+        ["cluster", "database", "decimal", "read", "separator"]
     );
     assert_eq!(
         labels("input \"x.parquet\" key member_id read "),
