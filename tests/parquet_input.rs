@@ -72,6 +72,15 @@ fn the_demo_from_parquet_writes_what_it_writes_from_csv() {
     demo_alike("coop_members.parquet");
 }
 
+/// Shares and ratios stored in single precision (`float32`, as some
+/// extracts store them) read as the doubles their shortest text gives
+/// (`0.09`, not the single's own 0.09000000357627869), so the outputs are
+/// those of the CSV, byte for byte, the model's full digits included.
+#[test]
+fn single_precision_columns_read_as_their_csv_text_reads() {
+    demo_alike("coop_members_single.parquet");
+}
+
 #[test]
 fn the_demo_from_a_folder_of_four_parts_writes_the_same() {
     // The `_SUCCESS` marker in the folder is not a part.

@@ -171,9 +171,9 @@ impl Cluster {
 
 /// True when a column of type `t` cast to a double in SQL gives the
 /// double assort reads from the Parquet file (`v as f64`): integers and
-/// floating-point numbers. Decimals, booleans and text are read here by
-/// rules of assort's own (a decimal's correctly rounded quotient, text
-/// parsed), which a cast need not follow to the last bit.
+/// double-precision numbers. Singles, decimals, booleans and text are read
+/// here by rules of assort's own (a single or a decimal as the double its
+/// text gives, text parsed), which a cast need not follow to the last bit.
 pub fn exact_as_double(t: &DataType) -> bool {
     use DataType as T;
     matches!(
@@ -186,7 +186,6 @@ pub fn exact_as_double(t: &DataType) -> bool {
             | T::UInt16
             | T::UInt32
             | T::UInt64
-            | T::Float32
             | T::Float64
     )
 }

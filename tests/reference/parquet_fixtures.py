@@ -13,6 +13,9 @@ Writes, under tests/data/parquet/:
   dictionary-encoded string, zstd compression, row groups of 1,000;
 - coop_members_parts/: the same members in four part files (snappy),
   with a `_SUCCESS` marker;
+- coop_members_single.parquet: the same members with every share and
+  ratio as a single-precision float (`float32`), as some extracts store
+  them: read as the double their shortest text gives, as the CSV reads;
 - types.parquet: one column of each type assort reads or refuses.
 """
 import datetime
@@ -53,6 +56,13 @@ for i in range(4):
     rows = members.slice(i * quarter, quarter if i < 3 else members.num_rows - 3 * quarter)
     pq.write_table(rows, parts / f"part-{i:05d}.parquet", compression="snappy")
 (parts / "_SUCCESS").write_text("")
+# Shares and ratios in single precision.
+single = members
+for name in ["visits_per_month", "share_fresh", "share_bulk", "share_prepared",
+             "online_ratio", "coupon_rate"]:
+    at = single.schema.get_field_index(name)
+    single = single.set_column(at, name, single.column(name).cast(pa.float32()))
+pq.write_table(single, OUT / "coop_members_single.parquet", compression="snappy")
 
 types = pa.table(
     {

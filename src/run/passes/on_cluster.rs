@@ -84,7 +84,7 @@ pub(super) fn fit_each_k(
             found => {
                 return Err(RunError::Cluster {
                     reason: format!(
-                        "cluster `{name}`: feature `{}` of {} is {}; on a cluster the features are read as integers or floating-point numbers (their SQL cast is then exact), so store it as one",
+                        "cluster `{name}`: feature `{}` of {} is {}; on a cluster the features are read as integers or double-precision numbers (their SQL cast is then the value assort reads), so store it as one",
                         f.column,
                         input.shown,
                         found.map_or("missing".to_string(), |(_, t)| format!("of type {t}"))
