@@ -269,8 +269,9 @@ fn assort(dir: &Path, args: &[&str], env: &[(&str, String)]) -> std::process::Ou
 /// rounds run on a scheduler and two executors, processes of their own,
 /// and it writes the assignments, centres, profiles and model the same
 /// recipe writes with its rounds here, byte for byte (the model's record
-/// of the recipe's own digest aside). Without the variable it stops,
-/// naming it, and writes nothing.
+/// of the recipe's own digest aside). Without the variable, or with an
+/// address where nothing answers, it stops before its first pass, naming
+/// them, and writes nothing.
 #[test]
 fn a_recipe_pointed_at_a_cluster_writes_what_it_writes_here() {
     let data = wine_times(50);
@@ -292,6 +293,18 @@ fn a_recipe_pointed_at_a_cluster_writes_what_it_writes_here() {
     let said = String::from_utf8_lossy(&unset.stderr);
     assert!(!unset.status.success());
     assert!(said.contains("ASSORT_CLUSTER_TRIAL"), "{said}");
+    assert!(!dir.path().join("there").exists(), "nothing is written");
+    // An address where nothing answers stops the run before its first
+    // pass, naming the address.
+    let nobody = format!("127.0.0.1:{}", free_port().unwrap());
+    let gone = assort(
+        dir.path(),
+        &["run", "there.assort"],
+        &[("ASSORT_CLUSTER_TRIAL", nobody.clone())],
+    );
+    let said = String::from_utf8_lossy(&gone.stderr);
+    assert!(!gone.status.success());
+    assert!(said.contains(&format!("nothing answers at {nobody}")), "{said}");
     assert!(!dir.path().join("there").exists(), "nothing is written");
 
     let node = Path::new(env!("CARGO_BIN_EXE_assort-cluster-node"));

@@ -1068,6 +1068,27 @@ pub(super) fn measure(
     })
 }
 
+/// A run whose rounds go to a cluster stops before its first pass when
+/// the cluster's address is not given or nothing answers there.
+fn cluster_found(plan: &Plan) -> Result<(), RunError> {
+    if plan.input.cluster.is_none() {
+        return Ok(());
+    }
+    #[cfg(feature = "ballista")]
+    return on_cluster::reachable(plan);
+    #[cfg(not(feature = "ballista"))]
+    return Err(no_cluster_engine());
+}
+
+/// A plan naming a cluster in an assort built without the engine (the
+/// check refuses it first).
+#[cfg(not(feature = "ballista"))]
+fn no_cluster_engine() -> RunError {
+    RunError::Cluster {
+        reason: "this assort was built without the cluster engine (the `ballista` feature)".into(),
+    }
+}
+
 /// The passes before the fit, on either kind of input: the look, the
 /// keys, the parameters and the sample drawn.
 #[allow(clippy::type_complexity)]
@@ -1078,6 +1099,7 @@ fn read_up_to_fit(
 ) -> Result<(Records, Look, Vec<FeatureParams>, Vec<Drawn>), RunError> {
     match plan.input.source() {
         None => {
+            cluster_found(plan)?;
             let input = Input::open(plan)?;
             let mut look = look(plan, &input, size)?;
             step(1);
@@ -1117,10 +1139,7 @@ fn fit_each_k(
             #[cfg(feature = "ballista")]
             return on_cluster::fit_each_k(plan, km, input, driven, (params, shifts), progress);
             #[cfg(not(feature = "ballista"))]
-            return Err(RunError::Cluster {
-                reason: "this assort was built without the cluster engine (the `ballista` feature)"
-                    .into(),
-            });
+            return Err(no_cluster_engine());
         }
         Records::Parquet(input) => {
             let mut engine = Streamed {

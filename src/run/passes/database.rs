@@ -101,10 +101,6 @@ impl InDatabase {
                 })
             })
             .collect::<Result<Vec<String>, RunError>>()?;
-        let dropping: Vec<String> = (plan.features.iter().zip(&columns))
-            .filter(|(f, _)| f.missing == MissingRule::DropRow)
-            .map(|(_, c)| c.clone())
-            .collect();
         let mut names = vec![key.clone()];
         names.extend(read.iter().map(|c| c.to_string()));
         Ok(InDatabase {
@@ -113,7 +109,7 @@ impl InDatabase {
             from: source.from_sql(),
             key: ident(key),
             order,
-            kept: aggregate::kept_predicate(&dropping),
+            kept: kept(plan, &columns),
             columns,
             names,
             shown,
@@ -275,6 +271,16 @@ impl InDatabase {
     pub(super) fn engine(&self) -> std::sync::MutexGuard<'_, Database> {
         self.db.lock().unwrap_or_else(|p| p.into_inner())
     }
+}
+
+/// The predicate of a kept record, over each feature's value `columns`
+/// (then any `tally` column's): no gap a `missing drop` rule drops.
+pub(super) fn kept(plan: &Plan, columns: &[String]) -> String {
+    let dropping: Vec<String> = (plan.features.iter().zip(columns))
+        .filter(|(f, _)| f.missing == MissingRule::DropRow)
+        .map(|(_, c)| c.clone())
+        .collect();
+    aggregate::kept_predicate(&dropping)
 }
 
 /// A feature prepared by `p` from its value `column` (a double, NULL for

@@ -13,9 +13,7 @@
 //! `ASSORT_CLUSTER_NAME` (`host:port`; NAME the recipe's name in capitals),
 //! never in the recipe.
 
-use super::{
-    Candidate, FeatureParams, Input, KMeansPlan, MissingRule, Plan, RunError, Shifts, Step,
-};
+use super::{Candidate, FeatureParams, Input, KMeansPlan, Plan, RunError, Shifts, Step};
 use crate::scale::cluster::{Cluster, ClusterError};
 use crate::scale::sql::InEngine;
 use crate::sql_words::ident;
@@ -52,6 +50,28 @@ pub fn address(
         ))
     })?;
     Ok((host.to_string(), port))
+}
+
+/// Whether cluster `plan.input.cluster` has an address and something
+/// answers there (a TCP connection within 10 seconds): checked before the
+/// first pass, so a run over a large folder does not read it for nothing.
+pub(super) fn reachable(plan: &Plan) -> Result<(), RunError> {
+    let name = plan.input.cluster.as_deref().unwrap_or_default();
+    let env = |v: &str| std::env::var(v).ok();
+    let (host, port) = address(name, &env)?;
+    let unreachable = |reason: String| RunError::Cluster {
+        reason: format!("cluster `{name}`: nothing answers at {host}:{port} ({reason})"),
+    };
+    let addresses = std::net::ToSocketAddrs::to_socket_addrs(&(host.as_str(), port))
+        .map_err(|e| unreachable(e.to_string()))?;
+    let mut last = String::from("no address");
+    for a in addresses {
+        match std::net::TcpStream::connect_timeout(&a, std::time::Duration::from_secs(10)) {
+            Ok(_) => return Ok(()),
+            Err(e) => last = e.to_string(),
+        }
+    }
+    Err(unreachable(last))
 }
 
 /// The fit's candidates, each k's refinement rounds on the cluster.
@@ -94,11 +114,7 @@ pub(super) fn fit_each_k(
         }
         columns.push(format!("CAST({} AS DOUBLE PRECISION)", ident(column)));
     }
-    let dropping: Vec<String> = (plan.features.iter().zip(&columns))
-        .filter(|(f, _)| f.missing == MissingRule::DropRow)
-        .map(|(_, c)| c.clone())
-        .collect();
-    let kept = crate::scale::aggregate::kept_predicate(&dropping);
+    let kept = super::database::kept(plan, &columns);
     let mut engine = InEngine {
         engine: &mut cluster,
         source: format!("(SELECT * FROM {TABLE} WHERE {kept}) AS kept_records"),
