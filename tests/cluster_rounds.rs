@@ -304,7 +304,10 @@ fn a_recipe_pointed_at_a_cluster_writes_what_it_writes_here() {
     );
     let said = String::from_utf8_lossy(&gone.stderr);
     assert!(!gone.status.success());
-    assert!(said.contains(&format!("nothing answers at {nobody}")), "{said}");
+    assert!(
+        said.contains(&format!("nothing answers at {nobody}")),
+        "{said}"
+    );
     assert!(!dir.path().join("there").exists(), "nothing is written");
 
     let node = Path::new(env!("CARGO_BIN_EXE_assort-cluster-node"));
